@@ -1,0 +1,161 @@
+//! The library's one error type.
+
+use std::fmt;
+use std::path::{Path, PathBuf};
+
+/// Result alias used throughout the library.
+pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+/// Where in an input a problem was found: a file and, when known, a line.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Location {
+    /// The file as the user named it.
+    pub file: PathBuf,
+    /// One-based line number, when the problem belongs to one line.
+    pub line: Option<usize>,
+}
+
+impl Location {
+    /// A location covering a whole file.
+    pub fn file(file: impl AsRef<Path>) -> Location {
+        Location {
+            file: file.as_ref().to_path_buf(),
+            line: None,
+        }
+    }
+
+    /// A location at one line of a file.
+    pub fn line(file: impl AsRef<Path>, line: usize) -> Location {
+        Location {
+            file: file.as_ref().to_path_buf(),
+            line: Some(line),
+        }
+    }
+}
+
+impl fmt::Display for Location {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self.line {
+            Some(line) => write!(f, "{}:{}", self.file.display(), line),
+            None => write!(f, "{}", self.file.display()),
+        }
+    }
+}
+
+/// Everything that can go wrong in whorl's library code.
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    /// An input file (spectrum, manifest, bundle) is unusable as given.
+    #[error("{at}: {reason}")]
+    Input {
+        /// File and line.
+        at: Location,
+        /// What is wrong, in one sentence.
+        reason: String,
+        /// What the user can do about it.
+        hint: String,
+    },
+    /// A command-level value (technique, solvent, unit, formula) is not valid.
+    #[error("{reason}")]
+    Invalid {
+        /// What is wrong.
+        reason: String,
+        /// What the user can do about it.
+        hint: String,
+    },
+    /// The library folder is missing, not a library, or from an incompatible version.
+    #[error("library {path}: {reason}")]
+    Library {
+        /// The library folder.
+        path: PathBuf,
+        /// What is wrong.
+        reason: String,
+        /// What the user can do about it.
+        hint: String,
+    },
+    /// No record with this id.
+    #[error("no {kind} with id {id} in this library")]
+    NotFound {
+        /// "spectrum", "compound", ...
+        kind: &'static str,
+        /// The id asked for.
+        id: i64,
+    },
+    /// The metadata query could not be parsed.
+    #[error("metadata query '{query}' is not valid: {reason}")]
+    Query {
+        /// The query as given.
+        query: String,
+        /// Parser message.
+        reason: String,
+    },
+    /// SQLite failed.
+    #[error("database: {0}")]
+    Sqlite(#[from] rusqlite::Error),
+    /// The text index failed.
+    #[error("text index: {0}")]
+    Tantivy(#[from] tantivy::TantivyError),
+    /// An I/O operation failed.
+    #[error("{context}: {source}")]
+    Io {
+        /// What was being done, naming the path.
+        context: String,
+        /// The underlying error.
+        source: std::io::Error,
+    },
+    /// JSON (de)serialisation of a stored record failed.
+    #[error("stored record is not valid JSON: {0}")]
+    Json(#[from] serde_json::Error),
+}
+
+impl Error {
+    /// A suggestion for the user, when there is one.
+    pub fn hint(&self) -> Option<&str> {
+        match self {
+            Error::Input { hint, .. }
+            | Error::Invalid { hint, .. }
+            | Error::Library { hint, .. } => Some(hint.as_str()).filter(|h| !h.is_empty()),
+            Error::NotFound { .. } => Some("run `whorl list` to see the ids in this library"),
+            Error::Query { .. } => Some(
+                "use field:value terms joined by AND/OR, e.g. `tag:solvent AND formula:C7H8`; quote phrases",
+            ),
+            _ => None,
+        }
+    }
+
+    /// True when the error is about the user's input rather than the machine.
+    pub fn is_input(&self) -> bool {
+        matches!(
+            self,
+            Error::Input { .. }
+                | Error::Invalid { .. }
+                | Error::Query { .. }
+                | Error::NotFound { .. }
+        )
+    }
+
+    /// Shorthand for an [`Error::Input`].
+    pub fn input(at: Location, reason: impl Into<String>, hint: impl Into<String>) -> Error {
+        Error::Input {
+            at,
+            reason: reason.into(),
+            hint: hint.into(),
+        }
+    }
+
+    /// Shorthand for an [`Error::Invalid`].
+    pub fn invalid(reason: impl Into<String>, hint: impl Into<String>) -> Error {
+        Error::Invalid {
+            reason: reason.into(),
+            hint: hint.into(),
+        }
+    }
+
+    /// Wraps an I/O error with what was being done.
+    pub fn io(context: impl Into<String>, source: std::io::Error) -> Error {
+        Error::Io {
+            context: context.into(),
+            source,
+        }
+    }
+}

@@ -1,0 +1,102 @@
+//! The library fingerprint: a name for an exact state of the searchable content.
+//!
+//! Each searchable spectrum contributes the SHA-256 of its canonical record; the
+//! contributions are added modulo 2^256 (an incremental multiset hash, so that adding,
+//! revising or withdrawing one spectrum updates the sum without reading the others), and the
+//! fingerprint is the SHA-256 of the recipes and that sum. `check` recomputes the sum from
+//! scratch. The audit trail, not the fingerprint, is what makes tampering evident.
+
+use sha2::{Digest, Sha256};
+
+/// A 256-bit running sum, big-endian.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct ContentSum(pub [u8; 32]);
+
+impl ContentSum {
+    /// Adds a record hash.
+    pub fn add(&mut self, h: &[u8; 32]) {
+        let mut carry = 0u16;
+        for i in (0..32).rev() {
+            let s = u16::from(self.0[i]) + u16::from(h[i]) + carry;
+            self.0[i] = s as u8;
+            carry = s >> 8;
+        }
+    }
+
+    /// Removes a record hash that was added before.
+    pub fn remove(&mut self, h: &[u8; 32]) {
+        // Subtracting is adding the two's complement.
+        let mut neg = [0u8; 32];
+        for i in 0..32 {
+            neg[i] = !h[i];
+        }
+        let mut one = [0u8; 32];
+        one[31] = 1;
+        let mut t = ContentSum(neg);
+        t.add(&one);
+        self.add(&t.0);
+    }
+
+    /// Hex form for storage.
+    pub fn to_hex(self) -> String {
+        hex::encode(self.0)
+    }
+
+    /// Reads the hex form; `None` when malformed.
+    pub fn from_hex(s: &str) -> Option<ContentSum> {
+        let bytes = hex::decode(s).ok()?;
+        Some(ContentSum(bytes.try_into().ok()?))
+    }
+}
+
+/// SHA-256 of the canonical encoding of one searchable record.
+pub fn record_hash(
+    spectrum_id: i64,
+    technique: &str,
+    status: &str,
+    revision: i64,
+    raw_sha256: &str,
+    metadata_json: &str,
+) -> [u8; 32] {
+    let canonical = serde_json::json!([
+        spectrum_id,
+        technique,
+        status,
+        revision,
+        raw_sha256,
+        metadata_json
+    ])
+    .to_string();
+    Sha256::digest(canonical.as_bytes()).into()
+}
+
+/// The fingerprint: SHA-256 over a format tag, the recipes (JSON, in technique order) and the sum.
+pub fn fingerprint(recipes_json: &str, sum: ContentSum) -> String {
+    let mut h = Sha256::new();
+    h.update(b"whorl fingerprint v1\n");
+    h.update(recipes_json.as_bytes());
+    h.update(b"\n");
+    h.update(sum.0);
+    hex::encode(h.finalize())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        #[test]
+        fn sum_is_order_free_and_removable(a in any::<[u8; 32]>(), b in any::<[u8; 32]>(), c in any::<[u8; 32]>()) {
+            let mut x = ContentSum::default();
+            x.add(&a); x.add(&b); x.add(&c);
+            let mut y = ContentSum::default();
+            y.add(&c); y.add(&a); y.add(&b);
+            prop_assert_eq!(x, y);
+            y.remove(&b);
+            let mut z = ContentSum::default();
+            z.add(&a); z.add(&c);
+            prop_assert_eq!(y, z);
+        }
+    }
+}

@@ -1,0 +1,223 @@
+//! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
+
+mod fingerprint;
+mod records;
+mod schema;
+mod stage;
+
+pub use fingerprint::{ContentSum, fingerprint, record_hash};
+pub use records::{Candidate, Event, Metadata, Outcome, SpectrumRecord, Stats, Status, Summary};
+pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
+pub use stage::{
+    Recipes, Staged, Submission, normalise_metadata, read_and_prepare, stage, usual_x_unit,
+};
+
+use std::path::{Path, PathBuf};
+
+use rusqlite::{Connection, OptionalExtension, params};
+
+use crate::error::{Error, Result};
+use crate::prepare::Recipe;
+use crate::technique::Technique;
+use crate::text::TextIndex;
+
+/// The database file inside a library folder.
+pub const DATABASE_FILE: &str = "library.sqlite";
+/// The text index folder inside a library folder.
+pub const TEXT_INDEX_DIR: &str = "text-index";
+
+/// An open library.
+pub struct Library {
+    root: Option<PathBuf>,
+    conn: Connection,
+    recipes: Recipes,
+    text: TextIndex,
+}
+
+/// The current time, UTC, RFC 3339 with milliseconds.
+pub fn now() -> String {
+    chrono::Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
+}
+
+impl Library {
+    /// Creates a new library in `root` with the default recipes. Refuses a folder that already
+    /// holds a library.
+    pub fn init(root: &Path, actor: &str) -> Result<Library> {
+        let db = root.join(DATABASE_FILE);
+        if db.exists() {
+            return Err(Error::Library {
+                path: root.to_path_buf(),
+                reason: "already holds a library".into(),
+                hint: "use the existing library, or choose another folder with --library".into(),
+            });
+        }
+        std::fs::create_dir_all(root)
+            .map_err(|e| Error::io(format!("creating {}", root.display()), e))?;
+        let conn = Connection::open(&db)?;
+        schema::configure(&conn, true)?;
+        let text = TextIndex::open_or_create(&root.join(TEXT_INDEX_DIR))?;
+        let mut lib = Library {
+            root: Some(root.to_path_buf()),
+            conn,
+            recipes: Recipes::new(),
+            text,
+        };
+        lib.initialise(actor)?;
+        Ok(lib)
+    }
+
+    /// A library held in memory, for tests.
+    pub fn in_memory(actor: &str) -> Result<Library> {
+        let conn = Connection::open_in_memory()?;
+        schema::configure(&conn, false)?;
+        let mut lib = Library {
+            root: None,
+            conn,
+            recipes: Recipes::new(),
+            text: TextIndex::in_ram()?,
+        };
+        lib.initialise(actor)?;
+        Ok(lib)
+    }
+
+    fn initialise(&mut self, actor: &str) -> Result<()> {
+        schema::migrate(&mut self.conn)?;
+        let tx = self.conn.transaction()?;
+        let recipes: Recipes = Technique::ALL
+            .iter()
+            .map(|&t| (t, Recipe::default_for(t)))
+            .collect();
+        for (t, r) in &recipes {
+            tx.execute(
+                "INSERT INTO recipe (technique, recipe) VALUES (?1, ?2)",
+                params![t.name(), serde_json::to_string(r)?],
+            )?;
+        }
+        let created = now();
+        for (k, v) in [
+            ("created_at", created.as_str()),
+            ("created_by_version", env!("CARGO_PKG_VERSION")),
+            ("generation", "0"),
+            ("content_sum", &ContentSum::default().to_hex()),
+        ] {
+            tx.execute(
+                "INSERT INTO setting (key, value) VALUES (?1, ?2)",
+                params![k, v],
+            )?;
+        }
+        let payload = serde_json::json!({ "recipes": recipes.values().collect::<Vec<_>>() });
+        records::append_event(&tx, actor, "init", "library", &payload)?;
+        tx.commit()?;
+        self.recipes = recipes;
+        self.text.rebuild([], 0)?;
+        Ok(())
+    }
+
+    /// Opens an existing library, migrating an older schema forward and rebuilding the text
+    /// index if it is behind the database.
+    pub fn open(root: &Path) -> Result<Library> {
+        let db = root.join(DATABASE_FILE);
+        if !db.is_file() {
+            return Err(Error::Library {
+                path: root.to_path_buf(),
+                reason: format!("no {DATABASE_FILE} here"),
+                hint: "create one with `whorl init --library DIR`, or point --library / WHORL_LIBRARY at an existing library".into(),
+            });
+        }
+        let mut conn = Connection::open(&db)?;
+        schema::configure(&conn, true)?;
+        let version = schema::version(&conn)?;
+        if version > SCHEMA_VERSION || version < OLDEST_READABLE {
+            return Err(Error::Library {
+                path: root.to_path_buf(),
+                reason: format!(
+                    "schema version {version}; this whorl reads {OLDEST_READABLE}..{SCHEMA_VERSION}"
+                ),
+                hint: if version > SCHEMA_VERSION {
+                    "use a newer whorl".into()
+                } else {
+                    "export it with the whorl that made it".into()
+                },
+            });
+        }
+        schema::migrate(&mut conn)?;
+        let recipes = records::load_recipes(&conn)?;
+        let text = TextIndex::open_or_create(&root.join(TEXT_INDEX_DIR))?;
+        let lib = Library {
+            root: Some(root.to_path_buf()),
+            conn,
+            recipes,
+            text,
+        };
+        lib.refresh_text_index()?;
+        Ok(lib)
+    }
+
+    /// The library folder (`None` for an in-memory library).
+    pub fn root(&self) -> Option<&Path> {
+        self.root.as_deref()
+    }
+
+    /// The recipes, one per technique.
+    pub fn recipes(&self) -> &Recipes {
+        &self.recipes
+    }
+
+    /// The recipe of one technique.
+    pub fn recipe(&self, technique: Technique) -> Result<&Recipe> {
+        self.recipes
+            .get(&technique)
+            .ok_or_else(|| Error::invalid(format!("no recipe for {technique}"), ""))
+    }
+
+    /// The text index.
+    pub fn text(&self) -> &TextIndex {
+        &self.text
+    }
+
+    /// The generation counter: bumped by every write transaction.
+    pub fn generation(&self) -> Result<i64> {
+        let v: String = self.conn.query_row(
+            "SELECT value FROM setting WHERE key = 'generation'",
+            [],
+            |r| r.get(0),
+        )?;
+        Ok(v.parse().unwrap_or(0))
+    }
+
+    /// The fingerprint of the searchable content and the recipes.
+    pub fn fingerprint(&self) -> Result<String> {
+        let sum: String = self.conn.query_row(
+            "SELECT value FROM setting WHERE key = 'content_sum'",
+            [],
+            |r| r.get(0),
+        )?;
+        let sum = ContentSum::from_hex(&sum).unwrap_or_default();
+        Ok(fingerprint(
+            &serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?,
+            sum,
+        ))
+    }
+
+    /// Rebuilds the text index from the database when it is behind; returns whether it did.
+    pub fn refresh_text_index(&self) -> Result<bool> {
+        let generation = self.generation()?;
+        if self.text.generation()? == Some(generation) {
+            return Ok(false);
+        }
+        let all = self.all_records()?;
+        self.text
+            .rebuild(all.iter().map(SpectrumRecord::index_doc), generation)?;
+        Ok(true)
+    }
+
+    /// A setting's value, if set.
+    pub fn setting(&self, key: &str) -> Result<Option<String>> {
+        Ok(self
+            .conn
+            .query_row("SELECT value FROM setting WHERE key = ?1", [key], |r| {
+                r.get(0)
+            })
+            .optional()?)
+    }
+}

@@ -1,0 +1,47 @@
+//! The embedded migrations and the database's own version number.
+
+use rusqlite::Connection;
+
+use crate::error::Result;
+
+/// The migrations, in order; migration `i` takes the database from version `i` to `i + 1`.
+const MIGRATIONS: [&str; 1] = [include_str!("../../schema/0001_init.sql")];
+
+/// The schema version this build writes.
+pub const SCHEMA_VERSION: i64 = MIGRATIONS.len() as i64;
+
+/// The oldest schema version this build can open (and migrate forward).
+pub const OLDEST_READABLE: i64 = 1;
+
+/// The database's `PRAGMA user_version`.
+pub fn version(conn: &Connection) -> Result<i64> {
+    Ok(conn.query_row("PRAGMA user_version", [], |r| r.get(0))?)
+}
+
+/// Applies the migrations the database has not seen yet, in one transaction.
+pub fn migrate(conn: &mut Connection) -> Result<()> {
+    let from = version(conn)?;
+    if from >= SCHEMA_VERSION {
+        return Ok(());
+    }
+    let tx = conn.transaction()?;
+    for sql in &MIGRATIONS[from as usize..] {
+        tx.execute_batch(sql)?;
+    }
+    tx.pragma_update(None, "user_version", SCHEMA_VERSION)?;
+    tx.commit()?;
+    Ok(())
+}
+
+/// Sets the connection options every library connection uses.
+pub fn configure(conn: &Connection, on_disk: bool) -> Result<()> {
+    if on_disk {
+        // WAL lets readers work while a writer commits; FULL makes every commit durable,
+        // which an audit trail needs more than a few milliseconds per transaction.
+        conn.pragma_update(None, "journal_mode", "WAL")?;
+        conn.pragma_update(None, "synchronous", "FULL")?;
+    }
+    conn.pragma_update(None, "foreign_keys", "ON")?;
+    conn.busy_timeout(std::time::Duration::from_secs(10))?;
+    Ok(())
+}

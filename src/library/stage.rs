@@ -1,0 +1,170 @@
+//! Reading and preparing a submission before anything touches the database. Pure and
+//! thread-safe, so a bulk import stages files in parallel.
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use crate::chem::{check_cas, parse_formula};
+use crate::error::{Error, Result};
+use crate::library::Metadata;
+use crate::prepare::{Conditions, Prepared, Recipe, Solvent, prepare};
+use crate::spectrum::{RawSpectrum, XUnit, YUnit, check_points, read_points};
+use crate::technique::Technique;
+
+/// The recipes of a library, one per technique.
+pub type Recipes = BTreeMap<Technique, Recipe>;
+
+/// One spectrum file and what the submitter says about it.
+#[derive(Debug, Clone)]
+pub struct Submission {
+    /// Where to read the file.
+    pub path: PathBuf,
+    /// The technique.
+    pub technique: Technique,
+    /// Metadata as given.
+    pub metadata: Metadata,
+    /// x unit, when not the technique's usual one.
+    pub x_unit: Option<XUnit>,
+    /// y unit, when declared.
+    pub y_unit: Option<YUnit>,
+    /// Who submits it.
+    pub submitted_by: String,
+}
+
+/// A submission read, checked and prepared, ready to store.
+#[derive(Debug, Clone)]
+pub struct Staged {
+    /// The submission, with its metadata normalised.
+    pub submission: Submission,
+    /// The raw points as read.
+    pub raw: RawSpectrum,
+    /// The prepared form.
+    pub prepared: Prepared,
+}
+
+/// The x unit a technique's files use unless told otherwise.
+pub fn usual_x_unit(technique: Technique) -> XUnit {
+    match technique {
+        Technique::Ir | Technique::Raman => XUnit::Wavenumber,
+        Technique::MsEi => XUnit::MassToCharge,
+        Technique::Nmr1h => XUnit::Ppm,
+    }
+}
+
+/// Reads, checks and prepares one spectrum file with a recipe: the single path every library
+/// spectrum and every unknown goes through.
+pub fn read_and_prepare(
+    path: &Path,
+    recipe: &Recipe,
+    x_unit: Option<XUnit>,
+    y_unit: Option<YUnit>,
+    solvent: Option<Solvent>,
+) -> Result<(RawSpectrum, Prepared)> {
+    let technique = recipe.technique;
+    let usual = usual_x_unit(technique);
+    let x_unit = x_unit.unwrap_or(usual);
+    let allowed = x_unit == usual
+        || (technique == Technique::Ir && matches!(x_unit, XUnit::Micrometre | XUnit::Nanometre));
+    if !allowed {
+        return Err(Error::invalid(
+            format!("x unit {x_unit} does not apply to {technique} spectra"),
+            format!(
+                "{technique} files use {usual}; only IR accepts um or nm, which are converted to cm-1"
+            ),
+        ));
+    }
+    let parsed = read_points(path)?;
+    let converted = check_points(path, &parsed, technique, x_unit)?;
+    let conditions = Conditions { y_unit, solvent };
+    let prepared = prepare(path, recipe, &converted, &conditions)?;
+    let raw = RawSpectrum {
+        points: parsed.points,
+        x_unit,
+        y_unit: prepared.y_unit,
+        file_sha256: parsed.file_sha256,
+    };
+    Ok((raw, prepared))
+}
+
+/// Normalises and checks metadata: a name is required, a formula is rewritten in Hill order,
+/// a CAS RN must pass its check digit, an NMR solvent must be one whorl knows.
+pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metadata> {
+    m.name = m.name.trim().to_string();
+    if m.name.is_empty() {
+        return Err(Error::invalid(
+            "the compound name is empty",
+            "give the compound's name (--name or the name column)",
+        ));
+    }
+    let trim_opt = |v: &mut Option<String>| {
+        *v = v
+            .take()
+            .map(|s| s.trim().to_string())
+            .filter(|s| !s.is_empty());
+    };
+    for v in [
+        &mut m.formula,
+        &mut m.cas,
+        &mut m.solvent,
+        &mut m.source,
+        &mut m.instrument,
+        &mut m.acquired,
+        &mut m.notes,
+    ] {
+        trim_opt(v);
+    }
+    m.synonyms = m
+        .synonyms
+        .iter()
+        .map(|s| s.trim().to_string())
+        .filter(|s| !s.is_empty())
+        .collect();
+    m.tags = m
+        .tags
+        .iter()
+        .map(|s| s.trim().to_string())
+        .filter(|s| !s.is_empty())
+        .collect();
+    if let Some(f) = &m.formula {
+        m.formula = Some(parse_formula(f)?.to_string());
+    }
+    if let Some(c) = &m.cas {
+        m.cas = Some(check_cas(c)?);
+    }
+    if let Some(s) = &m.solvent {
+        let solvent: Solvent = s.parse()?;
+        m.solvent = Some(solvent.name().to_string());
+    } else if technique == Technique::Nmr1h {
+        // Allowed, but the residual signals then stay in; `prepare` warns.
+    }
+    Ok(m)
+}
+
+/// Stages one submission: metadata checked, file read and prepared with the library's recipe.
+pub fn stage(recipes: &Recipes, mut submission: Submission) -> Result<Staged> {
+    let recipe = recipes.get(&submission.technique).ok_or_else(|| {
+        Error::invalid(
+            format!("this library has no recipe for {}", submission.technique),
+            "re-create the library with `whorl init`",
+        )
+    })?;
+    submission.metadata = normalise_metadata(submission.technique, submission.metadata)?;
+    let solvent = submission
+        .metadata
+        .solvent
+        .as_deref()
+        .map(str::parse::<Solvent>)
+        .transpose()?;
+    let (raw, prepared) = read_and_prepare(
+        &submission.path,
+        recipe,
+        submission.x_unit,
+        submission.y_unit,
+        solvent,
+    )?;
+    Ok(Staged {
+        submission,
+        raw,
+        prepared,
+    })
+}

@@ -1,0 +1,147 @@
+//! 1H NMR: solvent masks, area binning, normalisation to total area, peaks with integrals.
+
+use super::{Conditions, Prepared, Recipe, pick};
+use crate::error::Result;
+use crate::spectrum::YUnit;
+
+/// Tetramethylsilane, the 0 ppm reference, is masked within this half-width: it is added
+/// to the sample, not part of the analyte (common practice).
+const TMS_HALF_WIDTH: f64 = 0.05;
+
+pub(super) fn prepare(
+    recipe: &Recipe,
+    sorted: &[(f64, f64)],
+    conditions: &Conditions,
+) -> Result<Prepared> {
+    let grid = &recipe.grid;
+    let mut masks = vec![(-TMS_HALF_WIDTH, TMS_HALF_WIDTH)];
+    let mut warnings = Vec::new();
+    match conditions.solvent {
+        Some(s) => masks.extend(s.masks()),
+        None => warnings.push(
+            "no solvent declared: residual solvent and water signals are not masked".to_string(),
+        ),
+    }
+    masks.extend(grid.masks.iter().copied());
+    let masked = |x: f64| masks.iter().any(|&(lo, hi)| x >= lo && x <= hi);
+
+    // Negative points (baseline noise, phase error) carry no area; masked points carry none either.
+    let xs: Vec<f64> = sorted.iter().map(|p| p.0).collect();
+    let ys: Vec<f64> = sorted
+        .iter()
+        .map(|&(x, y)| if masked(x) { 0.0 } else { y.max(0.0) })
+        .collect();
+
+    // Each point stands for the area of its Voronoi cell: y times half the distance between
+    // its neighbours. Points fall into the bin whose centre is nearest.
+    let n = xs.len();
+    let areas: Vec<f64> = (0..n)
+        .map(|i| {
+            let left = if i > 0 { xs[i] - xs[i - 1] } else { 0.0 };
+            let right = if i + 1 < n { xs[i + 1] - xs[i] } else { 0.0 };
+            ys[i] * (left + right) / 2.0
+        })
+        .collect();
+    let total: f64 = areas.iter().sum();
+    let mut vector = vec![0f32; grid.len()];
+    if total > 0.0 {
+        let mut bins = vec![0f64; grid.len()];
+        for (i, &a) in areas.iter().enumerate() {
+            if let Some(b) = grid.index_of(xs[i]) {
+                bins[b] += a;
+            }
+        }
+        let on_grid: f64 = bins.iter().sum();
+        if on_grid > 0.0 {
+            for (v, b) in vector.iter_mut().zip(&bins) {
+                *v = (b / on_grid) as f32;
+            }
+        }
+    }
+
+    let mut peaks = Vec::new();
+    if total > 0.0 {
+        for (m, mut peak) in pick(&xs, &ys, recipe.min_peak_prominence) {
+            let (lo, hi) = valley_bounds(&ys, m.index);
+            peak.area = areas[lo..=hi].iter().sum::<f64>() / total;
+            peaks.push(peak);
+        }
+    }
+    Ok(Prepared {
+        technique: recipe.technique,
+        vector,
+        peaks,
+        y_unit: conditions.y_unit.unwrap_or(YUnit::Intensity),
+        warnings,
+    })
+}
+
+/// The nearest local minima on each side of a maximum: the stretch a line's integral covers.
+fn valley_bounds(y: &[f64], index: usize) -> (usize, usize) {
+    let mut lo = index;
+    while lo > 0 && y[lo - 1] <= y[lo] {
+        lo -= 1;
+    }
+    let mut hi = index;
+    while hi + 1 < y.len() && y[hi + 1] <= y[hi] {
+        hi += 1;
+    }
+    (lo, hi)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::prepare::Solvent;
+    use crate::technique::Technique;
+
+    fn lorentzian(x: f64, centre: f64, fwhm: f64) -> f64 {
+        let h = fwhm / 2.0;
+        h * h / ((x - centre).powi(2) + h * h)
+    }
+
+    #[test]
+    fn solvent_residual_is_masked_and_area_sums_to_one() {
+        let recipe = Recipe::default_for(Technique::Nmr1h);
+        let pts: Vec<(f64, f64)> = (0..3000)
+            .map(|i| {
+                let x = -0.5 + i as f64 * 0.004;
+                (
+                    x,
+                    lorentzian(x, 7.26, 0.006) * 50.0
+                        + lorentzian(x, 0.90, 0.006) * 3.0
+                        + lorentzian(x, 2.30, 0.006) * 2.0,
+                )
+            })
+            .collect();
+        let cond = Conditions {
+            solvent: Some(Solvent::Cdcl3),
+            ..Conditions::default()
+        };
+        let p = prepare(&recipe, &pts, &cond).unwrap();
+        let sum: f64 = p.vector.iter().map(|&v| f64::from(v)).sum();
+        assert!((sum - 1.0).abs() < 1e-5, "{sum}");
+        let bin_726 = recipe.grid.index_of(7.26).unwrap();
+        assert_eq!(p.vector[bin_726], 0.0);
+        let xs: Vec<f64> = p.peaks.iter().map(|p| p.x).collect();
+        assert!(
+            xs.iter().any(|x| (x - 0.90).abs() < 0.005)
+                && xs.iter().any(|x| (x - 2.30).abs() < 0.005),
+            "{xs:?}"
+        );
+        // Integrals follow the 3:2 ratio of the two signals (within the truncated Lorentzian tails).
+        let big = p
+            .peaks
+            .iter()
+            .find(|p| (p.x - 0.9).abs() < 0.01)
+            .unwrap()
+            .area;
+        let small = p
+            .peaks
+            .iter()
+            .find(|p| (p.x - 2.3).abs() < 0.01)
+            .unwrap()
+            .area;
+        assert!((big / small - 1.5).abs() < 0.1, "{big} {small}");
+    }
+}

@@ -1,0 +1,216 @@
+//! IR and Raman: absorbance, resampling onto the grid, masks, L2 normalisation, peaks.
+
+use super::{Conditions, Prepared, Recipe, l2_normalise, pick};
+use crate::error::Result;
+use crate::spectrum::YUnit;
+use crate::technique::{Grid, Technique};
+
+/// Transmittance is clamped here before the logarithm, so that a zero or negative reading
+/// (detector noise at total absorption) gives absorbance 4 instead of infinity.
+const MIN_TRANSMITTANCE: f64 = 1e-4;
+
+/// Converts a y value to absorbance: A = -log10(T) for transmittance (IUPAC Gold Book,
+/// "absorbance"), with T as a fraction; absorbance and counts pass through.
+pub fn absorbance_from(y: f64, unit: YUnit) -> f64 {
+    match unit {
+        YUnit::Transmittance => -(y.max(MIN_TRANSMITTANCE)).log10(),
+        YUnit::TransmittancePercent => -((y / 100.0).max(MIN_TRANSMITTANCE)).log10(),
+        _ => y,
+    }
+}
+
+/// Guesses the y unit of an IR spectrum whose unit was not declared.
+///
+/// An absorbance spectrum sits mostly near zero with a few bands; a transmittance spectrum
+/// sits mostly near its maximum with dips. So: values within 0..1.05 with a median above
+/// 0.5 are a transmittance fraction; values within 0..105 with a median above 40 and a
+/// maximum above 2 are percent transmittance; anything else is absorbance (common practice
+/// of reading a spectrum's baseline).
+pub fn detect_optical_y_unit(technique: Technique, ys: &[f64]) -> YUnit {
+    if technique == Technique::Raman {
+        return YUnit::Counts;
+    }
+    let mut sorted: Vec<f64> = ys.to_vec();
+    sorted.sort_by(f64::total_cmp);
+    let (min, max, median) = (
+        sorted[0],
+        sorted[sorted.len() - 1],
+        sorted[sorted.len() / 2],
+    );
+    if min >= -0.05 && max <= 1.05 && median > 0.5 {
+        YUnit::Transmittance
+    } else if min >= -5.0 && max <= 105.0 && max > 2.0 && median > 40.0 {
+        YUnit::TransmittancePercent
+    } else {
+        YUnit::Absorbance
+    }
+}
+
+/// Resamples sorted `(x, y)` points onto the grid. Where the source is finer than the grid,
+/// each grid point takes the mean of the source points within half a step of it
+/// (bin-averaging keeps the noise reduction a fine source offers); elsewhere it takes the
+/// linear interpolation between the two neighbouring source points. Grid points outside the
+/// source's span are zero.
+pub fn resample(points: &[(f64, f64)], grid: &Grid) -> Vec<f64> {
+    let n = grid.len();
+    let mut out = vec![0.0; n];
+    if points.len() < 2 {
+        return out;
+    }
+    let (first, last) = (points[0].0, points[points.len() - 1].0);
+    let mut spacings: Vec<f64> = points.windows(2).map(|w| w[1].0 - w[0].0).collect();
+    spacings.sort_by(f64::total_cmp);
+    let finer = spacings[spacings.len() / 2] < 0.75 * grid.step;
+    let half = grid.step / 2.0;
+
+    let mut j = 0; // first source point not left of the current window
+    for (i, slot) in out.iter_mut().enumerate() {
+        let g = grid.x(i);
+        if g < first || g > last {
+            continue;
+        }
+        if finer {
+            while j < points.len() && points[j].0 < g - half {
+                j += 1;
+            }
+            let (mut sum, mut count, mut k) = (0.0, 0usize, j);
+            while k < points.len() && points[k].0 < g + half {
+                sum += points[k].1;
+                count += 1;
+                k += 1;
+            }
+            if count > 0 {
+                *slot = sum / count as f64;
+                continue;
+            }
+        }
+        while j + 1 < points.len() && points[j + 1].0 < g {
+            j += 1;
+        }
+        let k = (j + 1).min(points.len() - 1);
+        let ((x0, y0), (x1, y1)) = (points[j], points[k]);
+        *slot = if x1 == x0 {
+            y0
+        } else {
+            y0 + (y1 - y0) * (g - x0) / (x1 - x0)
+        };
+    }
+    out
+}
+
+pub(super) fn prepare(
+    recipe: &Recipe,
+    sorted: &[(f64, f64)],
+    conditions: &Conditions,
+) -> Result<Prepared> {
+    let ys: Vec<f64> = sorted.iter().map(|p| p.1).collect();
+    let mut warnings = Vec::new();
+    let y_unit = match conditions.y_unit {
+        Some(u) => u,
+        None => {
+            let u = detect_optical_y_unit(recipe.technique, &ys);
+            if u.is_transmittance() {
+                warnings.push(format!("y unit not declared; detected {u} from the baseline and converted to absorbance"));
+            }
+            u
+        }
+    };
+    let converted: Vec<(f64, f64)> = sorted
+        .iter()
+        .map(|&(x, y)| (x, absorbance_from(y, y_unit)))
+        .collect();
+    let grid = &recipe.grid;
+    let mut values = resample(&converted, grid);
+    for (i, v) in values.iter_mut().enumerate() {
+        if grid.masked(grid.x(i)) {
+            *v = 0.0;
+        }
+    }
+    let covered = converted[0].0 <= grid.start + grid.step
+        && converted[converted.len() - 1].0 >= grid.stop - grid.step;
+    if !covered {
+        warnings.push(format!(
+            "the spectrum covers {:.0}..{:.0} cm-1, less than the grid's {:.0}..{:.0}; the rest counts as zero",
+            converted[0].0,
+            converted[converted.len() - 1].0,
+            grid.start,
+            grid.stop
+        ));
+    }
+    let xs: Vec<f64> = (0..grid.len()).map(|i| grid.x(i)).collect();
+    let mut vector: Vec<f32> = values.iter().map(|&v| v as f32).collect();
+    l2_normalise(&mut vector);
+    let normalised: Vec<f64> = vector.iter().map(|&v| f64::from(v)).collect();
+    let peaks = pick(&xs, &normalised, recipe.min_peak_prominence)
+        .into_iter()
+        .map(|(_, p)| p)
+        .collect();
+    Ok(Prepared {
+        technique: recipe.technique,
+        vector,
+        peaks,
+        y_unit,
+        warnings,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn transmittance_to_absorbance_follows_the_definition() {
+        // A = -log10(T) (IUPAC Gold Book, "absorbance"): T = 10 % gives A = 1, T = 1 % gives A = 2.
+        assert!((absorbance_from(0.1, YUnit::Transmittance) - 1.0).abs() < 1e-12);
+        assert!((absorbance_from(1.0, YUnit::TransmittancePercent) - 2.0).abs() < 1e-12);
+        assert!(
+            (absorbance_from(50.0, YUnit::TransmittancePercent) - std::f64::consts::LOG10_2).abs()
+                < 1e-12
+        );
+        assert_eq!(absorbance_from(0.0, YUnit::Transmittance), 4.0);
+        assert_eq!(absorbance_from(0.37, YUnit::Absorbance), 0.37);
+    }
+
+    #[test]
+    fn y_unit_detection_reads_the_baseline() {
+        let absorb: Vec<f64> = (0..100).map(|i| if i == 50 { 0.9 } else { 0.01 }).collect();
+        let trans: Vec<f64> = absorb.iter().map(|a| 10f64.powf(-a)).collect();
+        let percent: Vec<f64> = trans.iter().map(|t| 100.0 * t).collect();
+        assert_eq!(
+            detect_optical_y_unit(Technique::Ir, &absorb),
+            YUnit::Absorbance
+        );
+        assert_eq!(
+            detect_optical_y_unit(Technique::Ir, &trans),
+            YUnit::Transmittance
+        );
+        assert_eq!(
+            detect_optical_y_unit(Technique::Ir, &percent),
+            YUnit::TransmittancePercent
+        );
+    }
+
+    #[test]
+    fn resampling_interpolates_and_bin_averages() {
+        let grid = Grid {
+            start: 0.0,
+            stop: 10.0,
+            step: 2.0,
+            masks: vec![],
+        };
+        // Coarser source: linear interpolation of y = x.
+        let coarse: Vec<(f64, f64)> = (0..=4).map(|i| (i as f64 * 2.5, i as f64 * 2.5)).collect();
+        assert_eq!(
+            resample(&coarse, &grid),
+            vec![0.0, 2.0, 4.0, 6.0, 8.0, 10.0]
+        );
+        // Finer source: mean within +-1 of each grid point (half-open window).
+        let fine: Vec<(f64, f64)> = (0..=20).map(|i| (i as f64 * 0.5, i as f64 * 0.5)).collect();
+        let out = resample(&fine, &grid);
+        assert_eq!(out[0], 0.25); // points 0 and 0.5
+        assert_eq!(out[1], 1.75); // 1, 1.5, 2, 2.5
+        // Outside the source's span stays zero.
+        let short: Vec<(f64, f64)> = (0..=2).map(|i| (i as f64 * 2.0 + 4.0, 1.0)).collect();
+        assert_eq!(resample(&short, &grid), vec![0.0, 0.0, 1.0, 1.0, 1.0, 0.0]);
+    }
+}

@@ -1,0 +1,496 @@
+//! The delimited-text reader: two numeric columns, x and y, in any of the common layouts.
+//!
+//! Accepted: an optional header line, `#` comments, comma / semicolon / tab / whitespace
+//! delimiters, a decimal comma with any delimiter but the comma, UTF-8 with or without a
+//! byte-order mark, and x in any order.
+
+use std::path::Path;
+
+use crate::error::{Error, Location, Result};
+use crate::spectrum::{XUnit, sha256_hex};
+use crate::technique::Technique;
+
+/// Points read from a file, with the line each came from so that later checks can point at it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ParsedPoints {
+    /// `(x, y)` in file order.
+    pub points: Vec<(f64, f64)>,
+    /// The one-based line of each point.
+    pub lines: Vec<usize>,
+    /// The header line, if the file had one.
+    pub header: Option<String>,
+    /// SHA-256 of the file bytes, hex.
+    pub file_sha256: String,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Delimiter {
+    Comma,
+    Semicolon,
+    Tab,
+    Whitespace,
+}
+
+impl Delimiter {
+    fn detect(line: &str) -> Delimiter {
+        if line.contains('\t') {
+            Delimiter::Tab
+        } else if line.contains(';') {
+            Delimiter::Semicolon
+        } else if line.contains(',') {
+            Delimiter::Comma
+        } else {
+            Delimiter::Whitespace
+        }
+    }
+
+    fn split(self, line: &str) -> Vec<&str> {
+        let mut fields: Vec<&str> = match self {
+            Delimiter::Comma => line.split(',').map(str::trim).collect(),
+            Delimiter::Semicolon => line.split(';').map(str::trim).collect(),
+            Delimiter::Tab => line.split('\t').map(str::trim).collect(),
+            Delimiter::Whitespace => line.split_whitespace().collect(),
+        };
+        // A trailing delimiter ("1,2,") leaves one empty field; spreadsheets write these.
+        if fields.len() > 2 && fields.last() == Some(&"") {
+            fields.pop();
+        }
+        fields
+    }
+
+    fn name(self) -> &'static str {
+        match self {
+            Delimiter::Comma => "comma",
+            Delimiter::Semicolon => "semicolon",
+            Delimiter::Tab => "tab",
+            Delimiter::Whitespace => "whitespace",
+        }
+    }
+}
+
+/// Reads a two-column spectrum file from disk.
+pub fn read_points(path: &Path) -> Result<ParsedPoints> {
+    let bytes = std::fs::read(path).map_err(|e| {
+        let hint = if e.kind() == std::io::ErrorKind::NotFound {
+            "check the path; manifest paths are relative to the manifest's folder"
+        } else {
+            "check the file's permissions"
+        };
+        Error::input(
+            Location::file(path),
+            format!("cannot read the file: {e}"),
+            hint,
+        )
+    })?;
+    read_points_from_bytes(path, &bytes)
+}
+
+/// Reads a two-column spectrum from bytes; `path` is used in messages only.
+pub fn read_points_from_bytes(path: &Path, bytes: &[u8]) -> Result<ParsedPoints> {
+    let file_sha256 = sha256_hex(bytes);
+    let text = decode_text(path, bytes)?;
+
+    let mut points = Vec::new();
+    let mut lines = Vec::new();
+    let mut header: Option<String> = None;
+    let mut delimiter: Option<Delimiter> = None;
+
+    for (index, raw_line) in text.split('\n').enumerate() {
+        let line_no = index + 1;
+        let line = raw_line.trim_end_matches('\r').trim();
+        if line.is_empty() || line.starts_with('#') {
+            continue;
+        }
+        let at = || Location::line(path, line_no);
+        if delimiter.is_none() && !looks_numeric(line) {
+            if header.is_some() {
+                return Err(Error::input(
+                    at(),
+                    format!("line is neither data nor the header: '{}'", shorten(line)),
+                    "only one header line is allowed; start comment lines with '#'",
+                ));
+            }
+            header = Some(line.to_string());
+            continue;
+        }
+        let delim = *delimiter.get_or_insert_with(|| Delimiter::detect(line));
+        let fields = delim.split(line);
+        if fields.len() != 2 {
+            let hint = if delim == Delimiter::Comma && fields.len() == 4 {
+                "this looks like decimal commas in a comma-delimited file; use ';' as the delimiter"
+                    .to_string()
+            } else {
+                format!(
+                    "each data line needs exactly two numbers, x and y, separated by a {} \
+                     (the delimiter found on the first data line)",
+                    delim.name()
+                )
+            };
+            return Err(Error::input(
+                at(),
+                format!(
+                    "expected 2 fields (x, y), found {}: '{}'",
+                    fields.len(),
+                    shorten(line)
+                ),
+                hint,
+            ));
+        }
+        let x = parse_number(fields[0], delim, &at)?;
+        let y = parse_number(fields[1], delim, &at)?;
+        points.push((x, y));
+        lines.push(line_no);
+    }
+
+    if points.is_empty() {
+        let (reason, hint) = match header {
+            Some(_) => (
+                "the file has a header line but no data",
+                "add the x,y data lines below the header",
+            ),
+            None => (
+                "the file is empty",
+                "export the spectrum again; expected two columns, x and y",
+            ),
+        };
+        return Err(Error::input(Location::file(path), reason, hint));
+    }
+    Ok(ParsedPoints {
+        points,
+        lines,
+        header,
+        file_sha256,
+    })
+}
+
+fn decode_text<'a>(path: &Path, bytes: &'a [u8]) -> Result<&'a str> {
+    if bytes.starts_with(&[0xFF, 0xFE]) || bytes.starts_with(&[0xFE, 0xFF]) {
+        return Err(Error::input(
+            Location::file(path),
+            "the file is UTF-16 encoded",
+            "save it as UTF-8 (with or without a byte-order mark)",
+        ));
+    }
+    let bytes = bytes.strip_prefix(&[0xEF, 0xBB, 0xBF]).unwrap_or(bytes);
+    std::str::from_utf8(bytes).map_err(|e| {
+        let line = bytes[..e.valid_up_to()]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count()
+            + 1;
+        Error::input(
+            Location::line(path, line),
+            "the file is not valid UTF-8 text",
+            "save it as UTF-8 text; a binary instrument file must be exported as CSV first",
+        )
+    })
+}
+
+fn looks_numeric(line: &str) -> bool {
+    line.chars()
+        .next()
+        .is_some_and(|c| c.is_ascii_digit() || matches!(c, '-' | '+' | '.'))
+}
+
+fn parse_number(field: &str, delim: Delimiter, at: &dyn Fn() -> Location) -> Result<f64> {
+    // A decimal comma is unambiguous whenever the delimiter is not itself a comma.
+    let owned;
+    let text = if delim != Delimiter::Comma && field.contains(',') && !field.contains('.') {
+        owned = field.replacen(',', ".", 1);
+        owned.as_str()
+    } else {
+        field
+    };
+    let value: f64 = text.parse().map_err(|_| {
+        Error::input(
+            at(),
+            format!("'{}' is not a number", shorten(field)),
+            "x and y must be plain decimal numbers such as 1715.5 or 1.2e-3",
+        )
+    })?;
+    if !value.is_finite() {
+        return Err(Error::input(
+            at(),
+            format!("'{field}' is not a finite number (NaN or infinity)"),
+            "remove the point or replace it with a measured value",
+        ));
+    }
+    Ok(value)
+}
+
+fn shorten(s: &str) -> String {
+    if s.chars().count() > 40 {
+        format!("{}...", s.chars().take(40).collect::<String>())
+    } else {
+        s.to_string()
+    }
+}
+
+/// Checks parsed points against what the technique allows, after converting x to the
+/// technique's own unit. Returns the converted points.
+pub fn check_points(
+    path: &Path,
+    parsed: &ParsedPoints,
+    technique: Technique,
+    x_unit: XUnit,
+) -> Result<Vec<(f64, f64)>> {
+    let n = parsed.points.len();
+    let at = |i: usize| Location::line(path, parsed.lines[i]);
+    if n < technique.min_points() {
+        return Err(Error::input(
+            Location::file(path),
+            format!(
+                "only {n} data points; a usable {technique} spectrum has at least {}",
+                technique.min_points()
+            ),
+            "check that the whole spectrum was exported",
+        ));
+    }
+
+    let converted: Vec<(f64, f64)> = parsed
+        .points
+        .iter()
+        .map(|&(x, y)| (x_unit.to_wavenumber(x), y))
+        .collect();
+
+    if technique == Technique::Ir && x_unit == XUnit::Wavenumber {
+        let max_x = parsed.points.iter().map(|p| p.0).fold(f64::MIN, f64::max);
+        if max_x <= 50.0 && max_x > 0.0 {
+            return Err(Error::input(
+                Location::file(path),
+                format!(
+                    "x values end at {max_x}, which looks like a wavelength in micrometres, not cm-1"
+                ),
+                "pass --x-unit um (or put x_unit=um in the manifest) to convert wavelength to wavenumber",
+            ));
+        }
+        if max_x > technique.plausible_x().1 {
+            return Err(Error::input(
+                Location::file(path),
+                format!(
+                    "x values reach {max_x}, which looks like a wavelength in nanometres, not cm-1"
+                ),
+                "pass --x-unit nm (or put x_unit=nm in the manifest) to convert wavelength to wavenumber",
+            ));
+        }
+    }
+
+    let (lo, hi) = technique.plausible_x();
+    for (i, &(x, y)) in converted.iter().enumerate() {
+        let out_of_range = if technique == Technique::MsEi {
+            x <= lo || x > hi
+        } else {
+            x < lo || x > hi
+        };
+        if out_of_range {
+            return Err(Error::input(
+                at(i),
+                format!(
+                    "x = {} is outside the plausible {technique} range {lo}..{hi} ({})",
+                    parsed.points[i].0,
+                    technique.x_label()
+                ),
+                "check the technique and the x unit of the file",
+            ));
+        }
+        if technique == Technique::MsEi && y < 0.0 {
+            return Err(Error::input(
+                at(i),
+                format!("negative ion abundance {y} at m/z {x}"),
+                "a mass spectrum's abundances must be zero or positive; export the centroided peak list",
+            ));
+        }
+    }
+
+    if converted.iter().all(|p| p.1 == 0.0) {
+        let reason = if technique == Technique::MsEi {
+            "no peaks: every abundance is zero"
+        } else {
+            "every intensity is zero"
+        };
+        return Err(Error::input(
+            Location::file(path),
+            reason,
+            "the export holds no signal; export the spectrum again",
+        ));
+    }
+
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by(|&a, &b| converted[a].0.total_cmp(&converted[b].0));
+    for pair in order.windows(2) {
+        if converted[pair[0]].0 == converted[pair[1]].0 {
+            let (first, second) = (
+                parsed.lines[pair[0]].min(parsed.lines[pair[1]]),
+                parsed.lines[pair[0]].max(parsed.lines[pair[1]]),
+            );
+            return Err(Error::input(
+                Location::line(path, second),
+                format!(
+                    "x = {} appears twice (lines {first} and {second})",
+                    parsed.points[pair[0]].0
+                ),
+                "remove or average the repeated point",
+            ));
+        }
+    }
+    Ok(converted)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn parse(text: &str) -> Result<ParsedPoints> {
+        read_points_from_bytes(Path::new("t.csv"), text.as_bytes())
+    }
+
+    fn check(text: &str, expected: &[(f64, f64)]) {
+        assert_eq!(parse(text).unwrap().points, expected, "input: {text:?}");
+    }
+
+    fn fails(text: &str, line: Option<usize>, reason_part: &str) {
+        match parse(text) {
+            Err(Error::Input { at, reason, .. }) => {
+                assert_eq!(at.line, line, "input {text:?}: {reason}");
+                assert!(
+                    reason.contains(reason_part),
+                    "input {text:?}: reason {reason:?}"
+                );
+            }
+            other => panic!("input {text:?} gave {other:?}"),
+        }
+    }
+
+    #[test]
+    fn layouts_read_alike() {
+        let want = [(1.5, 2.0), (3.0, 4.25)];
+        check("1.5,2\n3,4.25\n", &want);
+        check("x,y\n1.5,2\n3,4.25\n", &want);
+        check("# comment\n\nx;y\n1,5;2\n3;4,25\n", &want);
+        check("1.5\t2\r\n3\t4.25\r\n", &want);
+        check("1,5\t2\n3\t4,25\n", &want);
+        check("  1.5   2\n3 4.25", &want);
+        check("\u{feff}ppm,intensity\n1.5,2\n3,4.25\n", &want);
+        check("1.5,2,\n3,4.25,\n", &want);
+        check("1.5e0,2E0\n+3,4.25\n", &want);
+    }
+
+    #[test]
+    fn bad_layouts_name_the_line() {
+        fails("", None, "empty");
+        fails("# only a comment\n", None, "empty");
+        fails("wavenumber,absorbance\n", None, "header");
+        fails("x,y\n1,2\n3,abc\n", Some(3), "not a number");
+        fails("1,2\n3,NaN\n", Some(2), "finite");
+        fails("1,2\ninf,3\n", Some(2), "finite");
+        fails("1,2\n3\n", Some(2), "found 1");
+        fails("1,5,2,0\n", Some(1), "found 4");
+        fails(
+            "x,y\nunits,more\n1,2\n",
+            Some(2),
+            "neither data nor the header",
+        );
+    }
+
+    #[test]
+    fn non_utf8_is_refused_with_its_line() {
+        let bytes = b"1,2\n3,\xff\n";
+        let err = read_points_from_bytes(Path::new("t.csv"), bytes).unwrap_err();
+        assert!(
+            matches!(
+                err,
+                Error::Input {
+                    at: Location { line: Some(2), .. },
+                    ..
+                }
+            ),
+            "{err:?}"
+        );
+    }
+
+    fn points(n: usize, f: impl Fn(usize) -> (f64, f64)) -> ParsedPoints {
+        let pts: Vec<_> = (0..n).map(f).collect();
+        ParsedPoints {
+            lines: (1..=n).collect(),
+            points: pts,
+            header: None,
+            file_sha256: String::new(),
+        }
+    }
+
+    fn check_fails(p: &ParsedPoints, t: Technique, unit: XUnit, part: &str) {
+        let err = check_points(Path::new("t.csv"), p, t, unit).unwrap_err();
+        assert!(
+            err.to_string().contains(part) || err.hint().unwrap_or("").contains(part),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn technique_checks() {
+        let ir = points(20, |i| (4000.0 - 100.0 * i as f64, 0.1));
+        assert!(check_points(Path::new("t"), &ir, Technique::Ir, XUnit::Wavenumber).is_ok());
+        check_fails(
+            &points(5, |i| (1000.0 + i as f64, 0.1)),
+            Technique::Ir,
+            XUnit::Wavenumber,
+            "at least 10",
+        );
+        check_fails(
+            &points(20, |i| (2.5 + i as f64, 0.1)),
+            Technique::Ir,
+            XUnit::Wavenumber,
+            "--x-unit um",
+        );
+        check_fails(
+            &points(20, |i| (2500.0 + 1000.0 * i as f64, 0.1)),
+            Technique::Ir,
+            XUnit::Wavenumber,
+            "--x-unit nm",
+        );
+        let um = check_points(
+            Path::new("t"),
+            &points(20, |i| (2.5 + i as f64, 0.1)),
+            Technique::Ir,
+            XUnit::Micrometre,
+        )
+        .unwrap();
+        assert_eq!(um[0].0, 4000.0);
+        check_fails(
+            &points(20, |i| (-10.0 + i as f64, 0.1)),
+            Technique::Nmr1h,
+            XUnit::Ppm,
+            "outside",
+        );
+        check_fails(
+            &points(3, |i| (10.0 + i as f64, -1.0)),
+            Technique::MsEi,
+            XUnit::MassToCharge,
+            "negative",
+        );
+        check_fails(
+            &points(3, |i| (10.0 + i as f64, 0.0)),
+            Technique::MsEi,
+            XUnit::MassToCharge,
+            "no peaks",
+        );
+        check_fails(
+            &points(3, |i| (i as f64, 5.0)),
+            Technique::MsEi,
+            XUnit::MassToCharge,
+            "outside",
+        );
+        check_fails(
+            &points(12, |i| (1.0 + (i % 11) as f64, 1.0)),
+            Technique::Nmr1h,
+            XUnit::Ppm,
+            "appears twice",
+        );
+        check_fails(
+            &points(12, |i| (1.0 + i as f64, 0.0)),
+            Technique::Nmr1h,
+            XUnit::Ppm,
+            "zero",
+        );
+    }
+}

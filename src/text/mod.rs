@@ -1,0 +1,413 @@
+//! The full-text index over spectrum metadata (tantivy). Derived data: rebuilt from SQLite
+//! whenever its recorded generation differs from the database's.
+
+use std::collections::HashSet;
+use std::path::Path;
+
+use tantivy::collector::{DocSetCollector, TopDocs};
+use tantivy::query::QueryParser;
+use tantivy::schema::{
+    FAST, Field, INDEXED, STORED, STRING, Schema, TEXT, TextFieldIndexing, TextOptions, Value,
+};
+use tantivy::{Index, IndexReader, IndexWriter, TantivyDocument, Term};
+
+use crate::error::{Error, Result};
+use crate::library::Metadata;
+
+/// What the index holds for one spectrum.
+#[derive(Debug, Clone)]
+pub struct IndexDoc<'a> {
+    /// Spectrum id.
+    pub spectrum_id: i64,
+    /// Compound id.
+    pub compound_id: i64,
+    /// Technique name.
+    pub technique: &'a str,
+    /// Status name.
+    pub status: &'a str,
+    /// Who submitted it.
+    pub submitted_by: &'a str,
+    /// The current revision's metadata.
+    pub metadata: &'a Metadata,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Fields {
+    spectrum_id: Field,
+    compound_id: Field,
+    name: Field,
+    synonym: Field,
+    cas: Field,
+    formula: Field,
+    tag: Field,
+    technique: Field,
+    status: Field,
+    solvent: Field,
+    note: Field,
+    source: Field,
+    instrument: Field,
+    submitted_by: Field,
+    acquired: Field,
+    extra: Field,
+    meta: Field,
+}
+
+/// The names users can put before a colon in a query; other names are looked up among the
+/// extra metadata columns.
+pub const QUERY_FIELDS: [&str; 15] = [
+    "name",
+    "synonym",
+    "cas",
+    "formula",
+    "tag",
+    "technique",
+    "status",
+    "solvent",
+    "note",
+    "source",
+    "instrument",
+    "submitted_by",
+    "acquired",
+    "extra",
+    "meta",
+];
+
+fn schema() -> (Schema, Fields) {
+    let mut b = Schema::builder();
+    let json = TextOptions::default()
+        .set_indexing_options(TextFieldIndexing::default().set_tokenizer("default"));
+    let fields = Fields {
+        spectrum_id: b.add_u64_field("spectrum_id", INDEXED | STORED | FAST),
+        compound_id: b.add_u64_field("compound_id", STORED | FAST),
+        name: b.add_text_field("name", TEXT | STORED),
+        synonym: b.add_text_field("synonym", TEXT),
+        cas: b.add_text_field("cas", TEXT),
+        formula: b.add_text_field("formula", TEXT),
+        tag: b.add_text_field("tag", TEXT),
+        technique: b.add_text_field("technique", STRING),
+        status: b.add_text_field("status", STRING),
+        solvent: b.add_text_field("solvent", TEXT),
+        note: b.add_text_field("note", TEXT),
+        source: b.add_text_field("source", TEXT),
+        instrument: b.add_text_field("instrument", TEXT),
+        submitted_by: b.add_text_field("submitted_by", TEXT),
+        acquired: b.add_text_field("acquired", TEXT),
+        extra: b.add_text_field("extra", TEXT),
+        meta: b.add_json_field("meta", json),
+    };
+    (b.build(), fields)
+}
+
+/// The tantivy index of one library.
+pub struct TextIndex {
+    index: Index,
+    reader: IndexReader,
+    fields: Fields,
+}
+
+/// Memory budget of the index writer; tantivy needs a few MB per thread at least.
+const WRITER_BUDGET: usize = 50_000_000;
+
+impl TextIndex {
+    /// Opens the index in `dir`, creating it when the folder is empty or missing.
+    pub fn open_or_create(dir: &Path) -> Result<TextIndex> {
+        std::fs::create_dir_all(dir)
+            .map_err(|e| Error::io(format!("creating {}", dir.display()), e))?;
+        let (schema, fields) = schema();
+        let mmap =
+            tantivy::directory::MmapDirectory::open(dir).map_err(tantivy::TantivyError::from)?;
+        let index = match Index::open_or_create(mmap, schema.clone()) {
+            Ok(index) => index,
+            // A schema from an older build: the index is derived, so start it afresh.
+            Err(tantivy::TantivyError::SchemaError(_)) => {
+                std::fs::remove_dir_all(dir)
+                    .map_err(|e| Error::io(format!("removing {}", dir.display()), e))?;
+                return TextIndex::open_or_create(dir);
+            }
+            Err(e) => return Err(e.into()),
+        };
+        TextIndex::from_index(index, fields)
+    }
+
+    /// An index held in memory, for tests and throw-away libraries.
+    pub fn in_ram() -> Result<TextIndex> {
+        let (schema, fields) = schema();
+        TextIndex::from_index(Index::create_in_ram(schema), fields)
+    }
+
+    fn from_index(index: Index, fields: Fields) -> Result<TextIndex> {
+        let reader = index
+            .reader_builder()
+            .reload_policy(tantivy::ReloadPolicy::Manual)
+            .try_into()?;
+        Ok(TextIndex {
+            index,
+            reader,
+            fields,
+        })
+    }
+
+    /// The library generation the index was last committed at, if any.
+    pub fn generation(&self) -> Result<Option<i64>> {
+        let metas = self.index.load_metas()?;
+        Ok(metas.payload.and_then(|p| p.parse().ok()))
+    }
+
+    /// Number of documents in the index.
+    pub fn len(&self) -> u64 {
+        self.reader.searcher().num_docs()
+    }
+
+    /// True when the index holds no document.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    fn writer(&self) -> Result<IndexWriter> {
+        Ok(self.index.writer_with_num_threads(1, WRITER_BUDGET)?)
+    }
+
+    fn commit(&self, mut writer: IndexWriter, generation: i64) -> Result<()> {
+        let mut prepared = writer.prepare_commit()?;
+        prepared.set_payload(&generation.to_string());
+        prepared.commit()?;
+        self.reader.reload()?;
+        Ok(())
+    }
+
+    /// Replaces the whole index with `docs` and records `generation`.
+    pub fn rebuild<'a>(
+        &self,
+        docs: impl IntoIterator<Item = IndexDoc<'a>>,
+        generation: i64,
+    ) -> Result<()> {
+        let writer = self.writer()?;
+        writer.delete_all_documents()?;
+        for doc in docs {
+            writer.add_document(self.document(&doc))?;
+        }
+        self.commit(writer, generation)
+    }
+
+    /// Adds or replaces the documents of these spectra and records `generation`.
+    pub fn upsert<'a>(
+        &self,
+        docs: impl IntoIterator<Item = IndexDoc<'a>>,
+        generation: i64,
+    ) -> Result<()> {
+        let writer = self.writer()?;
+        for doc in docs {
+            writer.delete_term(Term::from_field_u64(
+                self.fields.spectrum_id,
+                doc.spectrum_id as u64,
+            ));
+            writer.add_document(self.document(&doc))?;
+        }
+        self.commit(writer, generation)
+    }
+
+    fn document(&self, d: &IndexDoc<'_>) -> TantivyDocument {
+        let f = &self.fields;
+        let m = d.metadata;
+        let mut doc = TantivyDocument::default();
+        doc.add_u64(f.spectrum_id, d.spectrum_id as u64);
+        doc.add_u64(f.compound_id, d.compound_id as u64);
+        doc.add_text(f.name, &m.name);
+        doc.add_text(f.technique, d.technique);
+        doc.add_text(f.status, d.status);
+        doc.add_text(f.submitted_by, d.submitted_by);
+        for s in &m.synonyms {
+            doc.add_text(f.synonym, s);
+        }
+        for t in &m.tags {
+            doc.add_text(f.tag, t);
+        }
+        let optional = [
+            (f.cas, &m.cas),
+            (f.formula, &m.formula),
+            (f.solvent, &m.solvent),
+            (f.note, &m.notes),
+            (f.source, &m.source),
+            (f.instrument, &m.instrument),
+            (f.acquired, &m.acquired),
+        ];
+        for (field, value) in optional {
+            if let Some(v) = value {
+                doc.add_text(field, v);
+            }
+        }
+        if !m.extra.is_empty() {
+            let mut object = serde_json::Map::new();
+            for (k, v) in &m.extra {
+                doc.add_text(f.extra, v);
+                object.insert(k.clone(), serde_json::Value::String(v.clone()));
+            }
+            let value = serde_json::Value::Object(object);
+            if let Ok(owned) = serde_json::from_value::<tantivy::schema::OwnedValue>(value) {
+                doc.add_field_value(f.meta, &owned);
+            }
+        }
+        doc
+    }
+
+    fn parse(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
+        let f = &self.fields;
+        let defaults = vec![
+            f.name,
+            f.synonym,
+            f.cas,
+            f.formula,
+            f.tag,
+            f.note,
+            f.source,
+            f.instrument,
+            f.solvent,
+            f.extra,
+        ];
+        let mut parser = QueryParser::for_index(&self.index, defaults);
+        parser.set_field_boost(f.name, 3.0);
+        parser.set_field_boost(f.synonym, 2.0);
+        let rewritten = route_extra_fields(query);
+        parser.parse_query(&rewritten).map_err(|e| Error::Query {
+            query: query.to_string(),
+            reason: e.to_string(),
+        })
+    }
+
+    /// Every spectrum id matching the query.
+    pub fn matching_ids(&self, query: &str) -> Result<HashSet<i64>> {
+        let q = self.parse(query)?;
+        let searcher = self.reader.searcher();
+        let addresses = searcher.search(&q, &DocSetCollector)?;
+        let mut out = HashSet::with_capacity(addresses.len());
+        let mut columns = Vec::new();
+        for reader in searcher.segment_readers() {
+            columns.push(reader.fast_fields().u64("spectrum_id")?);
+        }
+        for a in addresses {
+            if let Some(id) = columns[a.segment_ord as usize].first(a.doc_id) {
+                out.insert(id as i64);
+            }
+        }
+        Ok(out)
+    }
+
+    /// The best `limit` matches with their relevance scores, best first.
+    pub fn find(&self, query: &str, limit: usize) -> Result<Vec<(f32, i64)>> {
+        let q = self.parse(query)?;
+        let searcher = self.reader.searcher();
+        let top = searcher.search(&q, &TopDocs::with_limit(limit.max(1)).order_by_score())?;
+        let mut out = Vec::with_capacity(top.len());
+        for (score, address) in top {
+            let doc: TantivyDocument = searcher.doc(address)?;
+            if let Some(id) = doc
+                .get_first(self.fields.spectrum_id)
+                .and_then(|v| v.as_u64())
+            {
+                out.push((score, id as i64));
+            }
+        }
+        Ok(out)
+    }
+}
+
+/// Rewrites `column:value` for a name that is not one of the fixed fields into
+/// `meta.column:value`, so that extra manifest columns can be queried by their own names.
+fn route_extra_fields(query: &str) -> String {
+    let mut out = String::with_capacity(query.len() + 16);
+    let mut in_quotes = false;
+    let chars: Vec<char> = query.chars().collect();
+    let mut i = 0;
+    while i < chars.len() {
+        let c = chars[i];
+        if c == '"' {
+            in_quotes = !in_quotes;
+        }
+        let at_token_start = i == 0 || matches!(chars[i - 1], ' ' | '(' | '+' | '-' | '\t');
+        if !in_quotes && at_token_start && (c.is_ascii_alphabetic() || c == '_') {
+            let mut j = i;
+            while j < chars.len() && (chars[j].is_ascii_alphanumeric() || chars[j] == '_') {
+                j += 1;
+            }
+            if j < chars.len() && chars[j] == ':' {
+                let name: String = chars[i..j].iter().collect();
+                if !QUERY_FIELDS.contains(&name.as_str())
+                    && !matches!(name.as_str(), "AND" | "OR" | "NOT")
+                {
+                    out.push_str("meta.");
+                    out.push_str(&name.to_ascii_lowercase());
+                    i = j;
+                    continue;
+                }
+            }
+        }
+        out.push(c);
+        i += 1;
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::collections::BTreeMap;
+
+    fn meta(name: &str, formula: &str, tags: &[&str], extra: &[(&str, &str)]) -> Metadata {
+        Metadata {
+            name: name.into(),
+            formula: Some(formula.into()),
+            tags: tags.iter().map(|s| s.to_string()).collect(),
+            extra: extra
+                .iter()
+                .map(|(k, v)| (k.to_string(), v.to_string()))
+                .collect::<BTreeMap<_, _>>(),
+            ..Metadata::default()
+        }
+    }
+
+    #[test]
+    fn field_queries_and_extra_columns() {
+        let idx = TextIndex::in_ram().unwrap();
+        let toluene = meta(
+            "toluene",
+            "C7H8",
+            &["solvent", "aromatic"],
+            &[("class", "aromatic hydrocarbon")],
+        );
+        let acetone = meta("acetone", "C3H6O", &["solvent"], &[("class", "ketone")]);
+        let docs = [(1, &toluene), (2, &acetone)].map(|(id, m)| IndexDoc {
+            spectrum_id: id,
+            compound_id: id,
+            technique: "ir",
+            status: "pending",
+            submitted_by: "a.analyst",
+            metadata: m,
+        });
+        idx.rebuild(docs, 7).unwrap();
+        assert_eq!(idx.generation().unwrap(), Some(7));
+        assert_eq!(
+            idx.matching_ids("tag:solvent AND formula:C7H8").unwrap(),
+            HashSet::from([1])
+        );
+        assert_eq!(
+            idx.matching_ids("class:ketone").unwrap(),
+            HashSet::from([2])
+        );
+        assert_eq!(idx.matching_ids("technique:ir").unwrap().len(), 2);
+        assert_eq!(idx.find("acetone", 5).unwrap()[0].1, 2);
+        assert!(matches!(
+            idx.matching_ids("name:(unclosed").unwrap_err(),
+            Error::Query { .. }
+        ));
+    }
+
+    #[test]
+    fn routing_leaves_known_fields_and_quotes_alone() {
+        assert_eq!(
+            route_extra_fields("tag:a AND lot:QR-1"),
+            "tag:a AND meta.lot:QR-1"
+        );
+        assert_eq!(route_extra_fields("name:\"x lot:y\""), "name:\"x lot:y\"");
+        assert_eq!(route_extra_fields("(Class:ketone)"), "(meta.class:ketone)");
+    }
+}
