@@ -1,11 +1,15 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
 mod fingerprint;
+mod import;
+mod manifest;
 mod records;
 mod schema;
 mod stage;
 
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
+pub use import::{BATCH, ImportReport, RowReport, import_rows};
+pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use records::{Candidate, Event, Metadata, Outcome, SpectrumRecord, Stats, Status, Summary};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{

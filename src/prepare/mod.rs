@@ -3,12 +3,14 @@
 //! Every library spectrum and every unknown passes through [`prepare`] with the library's
 //! [`Recipe`] for its technique, so that vectors are comparable bin for bin.
 
+mod baseline;
 mod nmr;
 mod optical;
 mod peaks;
 mod solvent;
 mod spectrometry;
 
+pub use baseline::{Baseline, asls, rubber_band};
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
 pub use peaks::{Maximum, Peak, find_maxima};
 pub use solvent::Solvent;
@@ -31,6 +33,9 @@ pub struct Recipe {
     pub min_peak_prominence: f64,
     /// EI-MS: ions below this fraction of the base peak are dropped (DESIGN: 0.5 %).
     pub min_relative_abundance: f64,
+    /// IR, Raman: baseline removed on the grid before masking and normalisation.
+    #[serde(default)]
+    pub baseline: Option<Baseline>,
 }
 
 impl Recipe {
@@ -44,6 +49,16 @@ impl Recipe {
                 _ => 0.05,
             },
             min_relative_abundance: 0.005,
+            // Raman spectra ride on fluorescence backgrounds far larger than their bands, so
+            // a Raman library removes the baseline by default (DESIGN: ALS with lambda ~1e5,
+            // p ~0.01 on the grid). IR keeps its baseline unless the library asks otherwise.
+            baseline: match technique {
+                Technique::Raman => Some(Baseline::Als {
+                    lambda: 1e5,
+                    p: 0.01,
+                }),
+                _ => None,
+            },
         }
     }
 }

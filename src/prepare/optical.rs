@@ -121,6 +121,12 @@ pub(super) fn prepare(
         .collect();
     let grid = &recipe.grid;
     let mut values = resample(&converted, grid);
+    if let Some(method) = recipe.baseline {
+        let base = method.estimate(&values);
+        for (v, b) in values.iter_mut().zip(base) {
+            *v -= b;
+        }
+    }
     for (i, v) in values.iter_mut().enumerate() {
         if grid.masked(grid.x(i)) {
             *v = 0.0;

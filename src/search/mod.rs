@@ -161,3 +161,122 @@ pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Resul
         warnings,
     })
 }
+
+/// The library a search ran against.
+#[derive(Debug, Clone, Serialize)]
+pub struct LibraryStamp {
+    /// Library folder.
+    pub path: String,
+    /// Library fingerprint at the time of the search.
+    pub fingerprint: String,
+}
+
+/// The unknown a search ran for.
+#[derive(Debug, Clone, Serialize)]
+pub struct UnknownStamp {
+    /// The file as given.
+    pub file: String,
+    /// SHA-256 of the file bytes.
+    pub sha256: String,
+    /// Technique.
+    pub technique: Technique,
+    /// The y unit used (declared or detected).
+    pub y_unit: crate::spectrum::YUnit,
+    /// NMR solvent, if declared.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub solvent: Option<String>,
+    /// Peaks picked in the unknown.
+    pub peaks: usize,
+}
+
+/// The parameters that decided the ranking.
+#[derive(Debug, Clone, Serialize)]
+pub struct Parameters {
+    /// Hits asked for.
+    pub top: usize,
+    /// Metadata filter.
+    #[serde(rename = "where", skip_serializing_if = "Option::is_none")]
+    pub filter: Option<String>,
+    /// Statuses searched.
+    pub statuses: Vec<Status>,
+    /// Score parameters.
+    pub score: ScoreParams,
+    /// The preparation recipe of the technique.
+    pub recipe: crate::prepare::Recipe,
+}
+
+/// A complete, self-describing search result.
+#[derive(Debug, Clone, Serialize)]
+pub struct Report {
+    /// whorl version.
+    pub tool_version: String,
+    /// When the search ran (UTC).
+    pub searched_at: String,
+    /// The library.
+    pub library: LibraryStamp,
+    /// The unknown.
+    pub unknown: UnknownStamp,
+    /// Parameters.
+    pub parameters: Parameters,
+    /// Library spectra compared.
+    pub candidates: usize,
+    /// Hits, best first.
+    pub hits: Vec<Hit>,
+    /// Hit 1 minus hit 2.
+    pub margin: Option<f64>,
+    /// Warnings about the unknown's preparation and about the hit list.
+    pub warnings: Vec<String>,
+    /// The caution that goes with every hit list.
+    pub caution: String,
+}
+
+/// Prepares an unknown file with the library's recipe and searches it, returning the full report.
+pub fn run_search(
+    library: &Library,
+    file: &std::path::Path,
+    x_unit: Option<crate::spectrum::XUnit>,
+    y_unit: Option<crate::spectrum::YUnit>,
+    solvent: Option<crate::prepare::Solvent>,
+    request: &Request,
+) -> Result<Report> {
+    let recipe = library.recipe(request.technique)?.clone();
+    let (raw, unknown) = crate::library::read_and_prepare(file, &recipe, x_unit, y_unit, solvent)?;
+    let list = search(library, &unknown, request)?;
+    let mut warnings: Vec<String> = unknown
+        .warnings
+        .iter()
+        .map(|w| format!("unknown: {w}"))
+        .collect();
+    warnings.extend(list.warnings);
+    Ok(Report {
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        searched_at: crate::library::now(),
+        library: LibraryStamp {
+            path: library
+                .root()
+                .map(|p| p.display().to_string())
+                .unwrap_or_else(|| ":memory:".into()),
+            fingerprint: library.fingerprint()?,
+        },
+        unknown: UnknownStamp {
+            file: file.display().to_string(),
+            sha256: raw.file_sha256,
+            technique: request.technique,
+            y_unit: unknown.y_unit,
+            solvent: solvent.map(|s| s.name().to_string()),
+            peaks: unknown.peaks.len(),
+        },
+        parameters: Parameters {
+            top: request.top,
+            filter: request.filter.clone(),
+            statuses: request.statuses.clone(),
+            score: request.params.clone(),
+            recipe,
+        },
+        candidates: list.candidates,
+        hits: list.hits,
+        margin: list.margin,
+        warnings,
+        caution: crate::CAUTION.to_string(),
+    })
+}

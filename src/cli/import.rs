@@ -1,0 +1,127 @@
+//! `whorl import`: import the spectra a manifest lists.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::Args;
+use serde_json::json;
+use whorl::library::{ImportReport, Library, Outcome, import_rows, read_manifest};
+
+use super::{Context, EXIT_INPUT, identity, output};
+
+#[derive(Debug, Args)]
+pub struct ImportArgs {
+    /// Manifest CSV: file,technique,name[,formula,cas,synonyms,tags,solvent,y_unit,x_unit,source,
+    /// submitted_by,instrument,acquired,notes,...]; other columns are kept as searchable metadata
+    pub manifest: PathBuf,
+    /// Import nothing if any row is rejected
+    #[arg(long)]
+    pub all_or_nothing: bool,
+    /// Who imports, and the submitter of rows without submitted_by [default: $WHORL_USER, else the OS user]
+    #[arg(long, value_name = "WHO")]
+    pub by: Option<String>,
+    /// Print the summary as JSON
+    #[arg(long)]
+    pub json: bool,
+}
+
+pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let mut lib = ctx.open()?;
+    let report = import_manifest(
+        &mut lib,
+        &args.manifest,
+        &identity(args.by.as_deref()),
+        args.all_or_nothing,
+        true,
+    )?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        let rejected: Vec<_> = report
+            .rejected()
+            .map(|(r, e)| json!({"line": r.line, "file": r.file, "reason": format!("{e}"), "hint": e.hint()}))
+            .collect();
+        output::json(
+            &mut out,
+            &json!({
+                "imported": report.imported(),
+                "already_present": report.already_present(),
+                "rejected": rejected,
+                "rolled_back": report.rolled_back,
+            }),
+        )?;
+    } else {
+        print_summary(&mut out, &args.manifest, &report)?;
+    }
+    Ok(if report.rejected().next().is_some() {
+        ExitCode::from(EXIT_INPUT)
+    } else {
+        ExitCode::SUCCESS
+    })
+}
+
+/// Reads a manifest and imports its rows with a progress bar; shared with `demo`.
+pub fn import_manifest(
+    lib: &mut Library,
+    manifest: &std::path::Path,
+    actor: &str,
+    all_or_nothing: bool,
+    show_progress: bool,
+) -> anyhow::Result<ImportReport> {
+    let rows = read_manifest(manifest, actor)?;
+    let bar = if show_progress {
+        output::progress(rows.len() as u64, "importing")
+    } else {
+        indicatif::ProgressBar::hidden()
+    };
+    let report = import_rows(lib, rows, actor, all_or_nothing, &|n| {
+        bar.set_position(n as u64)
+    })?;
+    bar.finish_and_clear();
+    Ok(report)
+}
+
+fn print_summary(
+    out: &mut impl Write,
+    manifest: &std::path::Path,
+    report: &ImportReport,
+) -> anyhow::Result<()> {
+    for (row, err) in report.rejected() {
+        writeln!(
+            out,
+            "rejected {}:{} ({}): {err}",
+            manifest.display(),
+            row.line,
+            row.file
+        )?;
+        if let Some(h) = err.hint() {
+            writeln!(out, "  hint: {h}")?;
+        }
+    }
+    if report.rolled_back {
+        writeln!(
+            out,
+            "nothing imported (--all-or-nothing): fix the rows above and run the import again"
+        )?;
+    }
+    let added_ids: Vec<i64> = report
+        .rows
+        .iter()
+        .filter_map(|r| match r.outcome {
+            Ok(Outcome::Added { spectrum_id, .. }) => Some(spectrum_id),
+            _ => None,
+        })
+        .collect();
+    let range = match (added_ids.iter().min(), added_ids.iter().max()) {
+        (Some(a), Some(b)) => format!(" (ids {a}..{b})"),
+        _ => String::new(),
+    };
+    writeln!(
+        out,
+        "imported {}{range}, already present {}, rejected {}",
+        report.imported(),
+        report.already_present(),
+        report.rejected().count()
+    )?;
+    Ok(())
+}

@@ -1,0 +1,36 @@
+//! `whorl init`: create a library.
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use clap::Args;
+use whorl::library::Library;
+
+use super::{Context, identity};
+
+#[derive(Debug, Args)]
+pub struct InitArgs {
+    /// Who creates the library [default: $WHORL_USER, else the OS user]
+    #[arg(long, value_name = "WHO")]
+    pub by: Option<String>,
+}
+
+pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let lib = Library::init(&ctx.library, &identity(args.by.as_deref()))?;
+    let mut out = std::io::stdout().lock();
+    writeln!(out, "created library {}", ctx.library.display())?;
+    for r in lib.recipes().values() {
+        let g = &r.grid;
+        writeln!(
+            out,
+            "  {:<7} grid {}..{} step {} ({} points)",
+            r.technique.name(),
+            g.start,
+            g.stop,
+            g.step,
+            g.len()
+        )?;
+    }
+    writeln!(out, "fingerprint {}", lib.fingerprint()?)?;
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,98 @@
+//! `whorl show`: one spectrum in full.
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use clap::Args;
+use serde_json::json;
+
+use super::{Context, output};
+
+#[derive(Debug, Args)]
+pub struct ShowArgs {
+    /// Spectrum id
+    pub id: i64,
+    /// Print as JSON
+    #[arg(long)]
+    pub json: bool,
+}
+
+pub fn run(args: ShowArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let lib = ctx.open()?;
+    let rec = lib.spectrum(args.id)?;
+    let prepared = lib.prepared(args.id)?;
+    let events = lib.events(Some(&format!("spectrum:{}", args.id)))?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        output::json(
+            &mut out,
+            &json!({ "spectrum": rec, "peaks": prepared.peaks, "preparation_warnings": prepared.warnings, "events": events }),
+        )?;
+        return Ok(ExitCode::SUCCESS);
+    }
+    let m = &rec.metadata;
+    let mut line = |k: &str, v: &str| writeln!(out, "{k:<14}{v}");
+    line(
+        "spectrum",
+        &format!("{} (revision {}, {})", rec.id, rec.revision, rec.status),
+    )?;
+    line(
+        "compound",
+        &format!("{} (compound {})", m.name, rec.compound_id),
+    )?;
+    for (k, v) in [
+        ("formula", &m.formula),
+        ("cas", &m.cas),
+        ("solvent", &m.solvent),
+        ("source", &m.source),
+        ("instrument", &m.instrument),
+        ("acquired", &m.acquired),
+        ("notes", &m.notes),
+    ] {
+        if let Some(v) = v {
+            line(k, v)?;
+        }
+    }
+    if !m.synonyms.is_empty() {
+        line("synonyms", &m.synonyms.join("; "))?;
+    }
+    if !m.tags.is_empty() {
+        line("tags", &m.tags.join("; "))?;
+    }
+    for (k, v) in &m.extra {
+        line(k, v)?;
+    }
+    line("technique", rec.technique.name())?;
+    line(
+        "file",
+        &format!(
+            "{} ({} points, x {}, y {})",
+            rec.file_name, rec.points, rec.x_unit, rec.y_unit
+        ),
+    )?;
+    line("file sha256", &rec.file_sha256)?;
+    line("raw sha256", &rec.raw_sha256)?;
+    line(
+        "submitted",
+        &format!("{} by {}", rec.created_at, rec.submitted_by),
+    )?;
+    for w in &prepared.warnings {
+        line("warning", w)?;
+    }
+    writeln!(out, "\npeaks ({})", prepared.peaks.len())?;
+    let mut t = output::Table::new(&[">x", ">height", ">width", ">area"]);
+    for p in &prepared.peaks {
+        t.row(vec![
+            format!("{:.3}", p.x),
+            format!("{:.4}", p.height),
+            format!("{:.3}", p.width),
+            format!("{:.4}", p.area),
+        ]);
+    }
+    t.write(&mut out)?;
+    writeln!(out, "\nevents")?;
+    for e in events {
+        writeln!(out, "  #{} {} {} by {}", e.seq, e.at, e.action, e.actor)?;
+    }
+    Ok(ExitCode::SUCCESS)
+}

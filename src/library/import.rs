@@ -1,0 +1,120 @@
+//! Bulk import: stage files in parallel, store them in batched transactions.
+
+use rayon::prelude::*;
+
+use crate::error::{Error, Result};
+use crate::library::{Library, ManifestRow, Outcome, Staged, stage};
+
+/// Spectra per transaction in a bulk import. A crash loses at most the batch under way, and
+/// re-running the import skips what is already stored.
+pub const BATCH: usize = 500;
+
+/// What happened to one manifest row.
+#[derive(Debug)]
+pub struct RowReport {
+    /// Manifest line.
+    pub line: usize,
+    /// File as written in the manifest.
+    pub file: String,
+    /// Stored, already present, or refused with the reason.
+    pub outcome: Result<Outcome>,
+}
+
+/// The result of a bulk import.
+#[derive(Debug, Default)]
+pub struct ImportReport {
+    /// One entry per manifest row, in manifest order.
+    pub rows: Vec<RowReport>,
+    /// True when `all_or_nothing` refused the whole import.
+    pub rolled_back: bool,
+}
+
+impl ImportReport {
+    /// Rows newly stored.
+    pub fn imported(&self) -> usize {
+        self.rows
+            .iter()
+            .filter(|r| matches!(r.outcome, Ok(Outcome::Added { .. })))
+            .count()
+    }
+
+    /// Rows whose raw points were already in the library.
+    pub fn already_present(&self) -> usize {
+        self.rows
+            .iter()
+            .filter(|r| matches!(r.outcome, Ok(Outcome::AlreadyPresent { .. })))
+            .count()
+    }
+
+    /// Rows refused, with their reasons.
+    pub fn rejected(&self) -> impl Iterator<Item = (&RowReport, &Error)> {
+        self.rows
+            .iter()
+            .filter_map(|r| r.outcome.as_ref().err().map(|e| (r, e)))
+    }
+}
+
+/// Imports manifest rows. By default every good row is stored and bad rows are reported;
+/// with `all_or_nothing`, one bad row means nothing is stored. `progress` is called with the
+/// number of rows finished so far.
+pub fn import_rows(
+    lib: &mut Library,
+    rows: Vec<ManifestRow>,
+    actor: &str,
+    all_or_nothing: bool,
+    progress: &(dyn Fn(usize) + Sync),
+) -> Result<ImportReport> {
+    let mut report = ImportReport::default();
+    let chunk = if all_or_nothing {
+        rows.len().max(1)
+    } else {
+        BATCH
+    };
+    let mut done = 0;
+    let mut rows = rows.into_iter().peekable();
+    while rows.peek().is_some() {
+        let batch: Vec<ManifestRow> = rows.by_ref().take(chunk).collect();
+        let batch_len = batch.len();
+        let recipes = lib.recipes().clone();
+        let staged: Vec<(usize, String, Result<Staged>)> = batch
+            .into_par_iter()
+            .map(|row| {
+                let staged = row.submission.and_then(|s| stage(&recipes, s));
+                (row.line, row.file, staged)
+            })
+            .collect();
+        let good: Vec<Staged> = staged
+            .iter()
+            .filter_map(|(_, _, s)| s.as_ref().ok().cloned())
+            .collect();
+        let any_bad = staged.iter().any(|s| s.2.is_err());
+        let mut stored = if all_or_nothing && any_bad {
+            Vec::new()
+        } else {
+            lib.store(&good, actor, all_or_nothing)?
+        };
+        stored.reverse();
+        for (line, file, s) in staged {
+            let outcome = match s {
+                Ok(_) if all_or_nothing && any_bad => continue,
+                Ok(_) => stored.pop().expect("one outcome per staged spectrum"),
+                Err(e) => Err(e),
+            };
+            report.rows.push(RowReport {
+                line,
+                file,
+                outcome,
+            });
+        }
+        done += batch_len;
+        progress(done);
+        if all_or_nothing && (any_bad || report.rejected().next().is_some()) {
+            report.rolled_back = true;
+        }
+    }
+    if report.rolled_back {
+        // Nothing was committed: report every row that was good as not imported.
+        report.rows.retain(|r| r.outcome.is_err());
+    }
+    Ok(report)
+}

@@ -1,0 +1,248 @@
+//! Import manifests: a CSV naming spectrum files and their metadata.
+
+use std::collections::BTreeMap;
+use std::path::{Component, Path, PathBuf};
+
+use crate::error::{Error, Location, Result};
+use crate::library::{Metadata, Submission};
+use crate::spectrum::{XUnit, YUnit};
+use crate::technique::Technique;
+
+/// Columns every manifest must have.
+pub const REQUIRED_COLUMNS: [&str; 3] = ["file", "technique", "name"];
+/// Columns with a meaning of their own; any other column is kept as extra metadata.
+pub const KNOWN_COLUMNS: [&str; 15] = [
+    "file",
+    "technique",
+    "name",
+    "formula",
+    "cas",
+    "synonyms",
+    "tags",
+    "solvent",
+    "y_unit",
+    "x_unit",
+    "source",
+    "submitted_by",
+    "instrument",
+    "acquired",
+    "notes",
+];
+
+/// One data row of a manifest: its line and the submission it describes, or why it is unusable.
+#[derive(Debug)]
+pub struct ManifestRow {
+    /// One-based line number in the manifest.
+    pub line: usize,
+    /// The file as written in the manifest.
+    pub file: String,
+    /// The submission, or the reason the row cannot be used.
+    pub submission: Result<Submission>,
+}
+
+/// Splits a `;`-separated list field.
+fn list(field: &str) -> Vec<String> {
+    field
+        .split(';')
+        .map(|s| s.trim().to_string())
+        .filter(|s| !s.is_empty())
+        .collect()
+}
+
+/// The name an extra column is stored and queried under: lower case, other characters as `_`.
+pub fn extra_key(column: &str) -> String {
+    column
+        .trim()
+        .to_lowercase()
+        .chars()
+        .map(|c| if c.is_ascii_alphanumeric() { c } else { '_' })
+        .collect()
+}
+
+/// Resolves a manifest's `file` entry against the manifest's folder, refusing absolute paths
+/// and paths that climb out of the folder (a manifest must not pull in arbitrary files).
+pub fn resolve_within(base: &Path, entry: &str) -> std::result::Result<PathBuf, String> {
+    let rel = Path::new(entry.trim());
+    if entry.trim().is_empty() {
+        return Err("the file column is empty".into());
+    }
+    if rel.is_absolute()
+        || rel
+            .components()
+            .any(|c| matches!(c, Component::Prefix(_) | Component::RootDir))
+    {
+        return Err(format!(
+            "'{entry}' is an absolute path; manifest paths must be relative to the manifest's folder"
+        ));
+    }
+    let mut depth = 0i32;
+    for c in rel.components() {
+        match c {
+            Component::ParentDir => depth -= 1,
+            Component::Normal(_) => depth += 1,
+            _ => {}
+        }
+        if depth < 0 {
+            return Err(format!("'{entry}' leads outside the manifest's folder"));
+        }
+    }
+    let joined = base.join(rel);
+    // Symbolic links could still lead out; compare the real paths when the file exists.
+    if let (Ok(real), Ok(real_base)) = (joined.canonicalize(), base.canonicalize())
+        && !real.starts_with(&real_base)
+    {
+        return Err(format!(
+            "'{entry}' resolves outside the manifest's folder (through a link)"
+        ));
+    }
+    Ok(joined)
+}
+
+/// Reads a manifest. Problems with the manifest as a whole (unreadable, missing a required
+/// column) are errors; problems with one row are reported in that row.
+pub fn read_manifest(path: &Path, default_submitter: &str) -> Result<Vec<ManifestRow>> {
+    let bytes = std::fs::read(path).map_err(|e| {
+        Error::input(
+            Location::file(path),
+            format!("cannot read the manifest: {e}"),
+            "check the path to the manifest CSV",
+        )
+    })?;
+    let bytes = bytes.strip_prefix(&[0xEF, 0xBB, 0xBF]).unwrap_or(&bytes);
+    let mut reader = csv::ReaderBuilder::new().flexible(false).from_reader(bytes);
+    let headers: Vec<String> = reader
+        .headers()
+        .map_err(|e| {
+            Error::input(
+                Location::line(path, 1),
+                format!("the header is not valid CSV: {e}"),
+                "save the manifest as UTF-8 CSV",
+            )
+        })?
+        .iter()
+        .map(|h| h.trim().to_string())
+        .collect();
+    for required in REQUIRED_COLUMNS {
+        if !headers.iter().any(|h| h == required) {
+            return Err(Error::input(
+                Location::line(path, 1),
+                format!("the manifest has no '{required}' column"),
+                format!(
+                    "the header must name at least: {}",
+                    REQUIRED_COLUMNS.join(",")
+                ),
+            ));
+        }
+    }
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let mut rows = Vec::new();
+    for record in reader.records() {
+        let record = record.map_err(|e| {
+            let line = e.position().map_or(0, |p| p.line() as usize);
+            Error::input(
+                Location::line(path, line),
+                format!("not valid CSV: {e}"),
+                "every row needs as many fields as the header; quote fields containing commas",
+            )
+        })?;
+        let line = record.position().map_or(0, |p| p.line() as usize);
+        let field = |name: &str| {
+            headers
+                .iter()
+                .position(|h| h == name)
+                .and_then(|i| record.get(i))
+                .map(str::trim)
+                .unwrap_or("")
+        };
+        let opt = |name: &str| Some(field(name).to_string()).filter(|s| !s.is_empty());
+        let file = field("file").to_string();
+        let submission = (|| -> Result<Submission> {
+            let at = || Location::line(path, line);
+            let resolved = resolve_within(&base, &file).map_err(|reason| {
+                Error::input(
+                    at(),
+                    reason,
+                    "write paths relative to the manifest, without '..'",
+                )
+            })?;
+            let technique: Technique = field("technique").parse()?;
+            let mut extra = BTreeMap::new();
+            for (i, h) in headers.iter().enumerate() {
+                if !KNOWN_COLUMNS.contains(&h.as_str()) && !h.is_empty() {
+                    let v = record.get(i).unwrap_or("").trim();
+                    if !v.is_empty() {
+                        extra.insert(extra_key(h), v.to_string());
+                    }
+                }
+            }
+            let metadata = Metadata {
+                name: field("name").to_string(),
+                formula: opt("formula"),
+                cas: opt("cas"),
+                synonyms: list(field("synonyms")),
+                tags: list(field("tags")),
+                solvent: opt("solvent"),
+                source: opt("source"),
+                instrument: opt("instrument"),
+                acquired: opt("acquired"),
+                notes: opt("notes"),
+                extra,
+            };
+            Ok(Submission {
+                path: resolved,
+                technique,
+                metadata,
+                x_unit: opt("x_unit").map(|s| s.parse::<XUnit>()).transpose()?,
+                y_unit: opt("y_unit").map(|s| s.parse::<YUnit>()).transpose()?,
+                submitted_by: opt("submitted_by").unwrap_or_else(|| default_submitter.to_string()),
+            })
+        })();
+        rows.push(ManifestRow {
+            line,
+            file,
+            submission,
+        });
+    }
+    if rows.is_empty() {
+        return Err(Error::input(
+            Location::file(path),
+            "the manifest has a header but no rows",
+            "add one row per spectrum file",
+        ));
+    }
+    Ok(rows)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn paths_stay_inside_the_manifest_folder() {
+        let base = Path::new("/tmp/nowhere-whorl");
+        assert!(resolve_within(base, "spectra/a.csv").is_ok());
+        assert!(resolve_within(base, "spectra/../a.csv").is_ok());
+        assert!(
+            resolve_within(base, "../a.csv")
+                .unwrap_err()
+                .contains("outside")
+        );
+        assert!(
+            resolve_within(base, "spectra/../../a.csv")
+                .unwrap_err()
+                .contains("outside")
+        );
+        assert!(
+            resolve_within(base, "/etc/passwd")
+                .unwrap_err()
+                .contains("absolute")
+        );
+        assert!(resolve_within(base, "").is_err());
+    }
+
+    #[test]
+    fn extra_columns_get_query_names() {
+        assert_eq!(extra_key("Lot No."), "lot_no_");
+        assert_eq!(extra_key("class"), "class");
+    }
+}
