@@ -1,0 +1,5 @@
+//! Integration tests: the real binary on temporary libraries, one module per command.
+
+mod util;
+
+mod init;
