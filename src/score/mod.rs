@@ -121,3 +121,141 @@ pub fn score(
         peak_overlap,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::prepare::{Peak, Recipe};
+    use crate::spectrum::YUnit;
+    use proptest::prelude::*;
+
+    fn optical(values: &[f32], peaks: &[f64]) -> Prepared {
+        let mut vector = values.to_vec();
+        crate::prepare::l2_normalise(&mut vector);
+        Prepared {
+            technique: Technique::Ir,
+            vector,
+            peaks: peaks
+                .iter()
+                .map(|&x| Peak {
+                    x,
+                    height: 1.0,
+                    width: 0.0,
+                    area: 0.0,
+                })
+                .collect(),
+            y_unit: YUnit::Absorbance,
+            warnings: vec![],
+        }
+    }
+
+    fn mass(ions: &[(u16, f32)]) -> Prepared {
+        let grid = Technique::MsEi.default_grid();
+        let mut vector = vec![0f32; grid.len()];
+        let mut peaks = Vec::new();
+        for &(mz, a) in ions {
+            vector[usize::from(mz) - 1] = a;
+        }
+        for (i, &a) in vector.iter().enumerate() {
+            if a > 0.0 {
+                peaks.push(Peak {
+                    x: grid.x(i),
+                    height: f64::from(a),
+                    width: 0.0,
+                    area: 0.0,
+                });
+            }
+        }
+        Prepared {
+            technique: Technique::MsEi,
+            vector,
+            peaks,
+            y_unit: YUnit::Relative,
+            warnings: vec![],
+        }
+    }
+
+    fn in_unit(x: f64) -> bool {
+        (0.0..=1.0).contains(&x)
+    }
+
+    fn grid(n: usize) -> Grid {
+        Grid {
+            start: 0.0,
+            stop: (n - 1) as f64,
+            step: 1.0,
+            masks: vec![],
+        }
+    }
+
+    proptest! {
+        #[test]
+        fn optical_scores_lie_in_0_1(
+            a in prop::collection::vec(-1.0f32..10.0, 32),
+            b in prop::collection::vec(-1.0f32..10.0, 32),
+            pa in prop::collection::vec(0.0f64..31.0, 0..8),
+            pb in prop::collection::vec(0.0f64..31.0, 0..8),
+        ) {
+            let s = score(&optical(&a, &pa), &optical(&b, &pb), &grid(32), &ScoreParams::default_for(Technique::Ir));
+            prop_assert!(in_unit(s.combined) && in_unit(s.spectral) && in_unit(s.cosine));
+            prop_assert!(in_unit(s.correlation.unwrap()));
+            let o = s.peak_overlap;
+            prop_assert!(in_unit(o.forward) && in_unit(o.reverse) && in_unit(o.jaccard));
+        }
+
+        #[test]
+        fn mass_scores_lie_in_0_1(
+            a in prop::collection::vec((1u16..400, 0.01f32..1.0), 1..20),
+            b in prop::collection::vec((1u16..400, 0.01f32..1.0), 1..20),
+            reverse in any::<bool>(),
+        ) {
+            let mut params = ScoreParams::default_for(Technique::MsEi);
+            params.composite.reverse = reverse;
+            let s = score(&mass(&a), &mass(&b), &Technique::MsEi.default_grid(), &params);
+            let c = s.composite.unwrap();
+            prop_assert!(in_unit(s.combined) && in_unit(c.dot) && in_unit(c.ratio) && in_unit(c.composite));
+        }
+
+        #[test]
+        fn a_spectrum_compared_with_itself_scores_1(
+            a in prop::collection::vec(0.0f32..10.0, 32).prop_filter("not constant", |v| v.iter().any(|&x| (x - v[0]).abs() > 1e-3)),
+            peaks in prop::collection::vec(0.0f64..31.0, 1..8),
+            ions in prop::collection::vec((1u16..400, 0.01f32..1.0), 1..20),
+        ) {
+            let p = optical(&a, &peaks);
+            let s = score(&p, &p, &grid(32), &ScoreParams::default_for(Technique::Ir));
+            prop_assert!((s.combined - 1.0).abs() < 1e-6, "{s:?}");
+            let m = mass(&ions);
+            let s = score(&m, &m, &Technique::MsEi.default_grid(), &ScoreParams::default_for(Technique::MsEi));
+            prop_assert!((s.combined - 1.0).abs() < 1e-6, "{s:?}");
+        }
+
+        #[test]
+        fn cosine_ignores_y_scale_and_is_symmetric(
+            a in prop::collection::vec(0.0f32..10.0, 16),
+            b in prop::collection::vec(0.0f32..10.0, 16),
+            k in 0.001f32..1000.0,
+        ) {
+            let scaled: Vec<f32> = a.iter().map(|x| x * k).collect();
+            prop_assert!((cosine(&a, &b) - cosine(&scaled, &b)).abs() < 1e-5);
+            prop_assert!((cosine(&a, &b) - cosine(&b, &a)).abs() < 1e-12);
+            prop_assert!((pearson(&a, &b, None) - pearson(&b, &a, None)).abs() < 1e-12);
+        }
+
+        #[test]
+        fn preparation_then_cosine_ignores_y_scale(k in 0.01f64..100.0) {
+            // Scaling the raw y of an absorbance spectrum leaves the prepared vector's direction,
+            // and so every cosine against it, unchanged.
+            let recipe = Recipe::default_for(Technique::Ir);
+            let pts: Vec<(f64, f64)> = (0..=900).map(|i| {
+                let x = 400.0 + 4.0 * f64::from(i);
+                (x, 0.02 + (-((x - 1715.0) / 12.0).powi(2)).exp() + 0.4 * (-((x - 2950.0) / 20.0).powi(2)).exp())
+            }).collect();
+            let scaled: Vec<(f64, f64)> = pts.iter().map(|&(x, y)| (x, y * k)).collect();
+            let cond = crate::prepare::Conditions { y_unit: Some(YUnit::Absorbance), solvent: None };
+            let a = crate::prepare::prepare(std::path::Path::new("a"), &recipe, &pts, &cond).unwrap();
+            let b = crate::prepare::prepare(std::path::Path::new("b"), &recipe, &scaled, &cond).unwrap();
+            prop_assert!((cosine(&a.vector, &b.vector) - 1.0).abs() < 1e-6);
+        }
+    }
+}

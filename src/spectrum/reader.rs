@@ -494,3 +494,27 @@ mod tests {
         );
     }
 }
+
+#[cfg(test)]
+mod properties {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        #[test]
+        fn the_reader_never_panics(bytes in prop::collection::vec(any::<u8>(), 0..400)) {
+            let _ = read_points_from_bytes(Path::new("fuzz.csv"), &bytes);
+        }
+
+        #[test]
+        fn the_reader_never_panics_on_near_valid_text(lines in prop::collection::vec("[0-9.,;eE+\\-\\t #a-z]{0,24}", 0..30)) {
+            let text = lines.join("\n");
+            if let Ok(p) = read_points_from_bytes(Path::new("fuzz.csv"), text.as_bytes()) {
+                prop_assert!(p.points.iter().all(|(x, y)| x.is_finite() && y.is_finite()));
+                for t in Technique::ALL {
+                    let _ = check_points(Path::new("fuzz.csv"), &p, t, XUnit::Wavenumber);
+                }
+            }
+        }
+    }
+}
