@@ -119,8 +119,18 @@ impl Error {
             Error::Query { .. } => Some(
                 "use field:value terms joined by AND/OR, e.g. `tag:solvent AND formula:C7H8`; quote phrases",
             ),
+            e if e.is_busy() => Some(
+                "another whorl process is writing to this library; wait for it to finish and run the command again \
+                 (WHORL_BUSY_TIMEOUT_MS sets how long to wait)",
+            ),
             _ => None,
         }
+    }
+
+    /// True when SQLite gave up waiting for another process's write lock.
+    pub fn is_busy(&self) -> bool {
+        matches!(self, Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
+            if matches!(f.code, rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked))
     }
 
     /// True when the error is about the user's input rather than the machine.

@@ -7,7 +7,7 @@ use std::time::Instant;
 
 use anyhow::Context as _;
 use clap::Args;
-use whorl::library::{Library, resolve_within};
+use whorl::library::{Decision, Library, resolve_within};
 use whorl::search::{Request, run_search};
 
 use super::{Context, EXIT_FAILURE, search::print_report};
@@ -24,6 +24,9 @@ pub struct DemoArgs {
     #[arg(long, default_value_t = 5)]
     pub top: usize,
 }
+
+/// The invented second analyst who reviews the demo library.
+const REVIEWER: &str = "demo.reviewer";
 
 fn seed_folder(given: Option<PathBuf>) -> anyhow::Result<PathBuf> {
     if let Some(dir) = given {
@@ -56,6 +59,16 @@ pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = Library::init(&root, actor)?;
     let report =
         super::import::import_manifest(&mut lib, &seed.join("manifest.csv"), actor, false, true)?;
+    // A second analyst signs off every demo spectrum, so the demo searches verified references
+    // as a lab would.
+    let ids: Vec<i64> = lib.list(None)?.iter().map(|s| s.id).collect();
+    lib.review_many(
+        &ids,
+        REVIEWER,
+        Decision::Approve,
+        None,
+        Some("demo library: synthetic reference"),
+    )?;
     let mut out = std::io::stdout().lock();
     let stats = lib.stats()?;
     writeln!(

@@ -12,7 +12,7 @@ use super::{Context, EXIT_INPUT, identity, output};
 
 #[derive(Debug, Args)]
 pub struct ImportArgs {
-    /// Manifest CSV: file,technique,name[,formula,cas,synonyms,tags,solvent,y_unit,x_unit,source,
+    /// A bundle folder written by `whorl export`, or a manifest CSV: file,technique,name[,formula,cas,synonyms,tags,solvent,y_unit,x_unit,source,
     /// submitted_by,instrument,acquired,notes,...]; other columns are kept as searchable metadata
     pub manifest: PathBuf,
     /// Import nothing if any row is rejected
@@ -28,6 +28,9 @@ pub struct ImportArgs {
 
 pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
+    if args.manifest.is_dir() {
+        return import_bundle(&mut lib, &args, ctx);
+    }
     let report = import_manifest(
         &mut lib,
         &args.manifest,
@@ -58,6 +61,38 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     } else {
         ExitCode::SUCCESS
     })
+}
+
+fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
+    let (info, outcomes) = lib.import_bundle(&args.manifest, &identity(args.by.as_deref()))?;
+    let added = outcomes
+        .iter()
+        .filter(|o| matches!(o, Outcome::Added { .. }))
+        .count();
+    let present = outcomes.len() - added;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        output::json(
+            &mut out,
+            &json!({ "bundle": info, "imported": added, "already_present": present, "rejected": [], "fingerprint": lib.fingerprint()? }),
+        )?;
+    } else {
+        writeln!(
+            out,
+            "bundle {} checksums verified ({} spectra, exported by {} at {})",
+            args.manifest.display(),
+            info.spectra,
+            info.exported_by,
+            info.exported_at
+        )?;
+        writeln!(
+            out,
+            "imported {added}, already present {present}, rejected 0"
+        )?;
+        writeln!(out, "bundle fingerprint  {}", info.fingerprint)?;
+        writeln!(out, "library fingerprint {}", lib.fingerprint()?)?;
+    }
+    Ok(ExitCode::SUCCESS)
 }
 
 /// Reads a manifest and imports its rows with a progress bar; shared with `demo`.

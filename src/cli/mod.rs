@@ -1,15 +1,23 @@
 //! The command line: one file per subcommand, each with its clap `Args` and `run`.
 
 mod add;
+mod check;
 mod demo;
+mod export;
 mod find;
 mod import;
 mod init;
 mod list;
+mod log;
 mod output;
+mod policy;
+mod replay;
+mod review;
+mod revise;
 mod search;
 mod show;
 mod stats;
+mod withdraw;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -25,6 +33,10 @@ pub const EXIT_FAILURE: u8 = 1;
 pub const EXIT_INPUT: u8 = 3;
 /// Exit code: the library is missing or cannot be opened by this version.
 pub const EXIT_LIBRARY: u8 = 4;
+/// Exit code: `check` found an inconsistency, or `replay` found different hits.
+pub const EXIT_MISMATCH: u8 = 5;
+/// Exit code: another process kept the library busy past the timeout.
+pub const EXIT_BUSY: u8 = 6;
 
 /// whorl: a lab's own library of verified reference spectra, and search against it.
 #[derive(Debug, Parser)]
@@ -62,6 +74,22 @@ pub enum Command {
     List(list::ListArgs),
     /// Counts, grids and the library fingerprint.
     Stats(stats::StatsArgs),
+    /// Sign off a pending spectrum (approve or reject).
+    Review(review::ReviewArgs),
+    /// Make a new revision of a spectrum's metadata.
+    Revise(Box<revise::ReviseArgs>),
+    /// Take a spectrum out of search, keeping it for history.
+    Withdraw(withdraw::WithdrawArgs),
+    /// Print the audit trail, for the library or one spectrum.
+    Log(log::LogArgs),
+    /// Verify the audit chain, raw data, prepared data and fingerprint.
+    Check(check::CheckArgs),
+    /// Write a portable bundle (raw points, manifest with history, checksums).
+    Export(export::ExportArgs),
+    /// Re-run a saved search and compare the hits.
+    Replay(replay::ReplayArgs),
+    /// Show or change the library's review policy.
+    Policy(policy::PolicyArgs),
     /// Build a demo library from seed-library/ and search its example unknowns.
     Demo(demo::DemoArgs),
 }
@@ -70,6 +98,8 @@ pub enum Command {
 pub struct Context {
     /// The library folder.
     pub library: PathBuf,
+    /// Whether the folder was named (`--library` or `WHORL_LIBRARY`) rather than defaulted.
+    pub library_given: bool,
 }
 
 impl Context {
@@ -86,6 +116,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
             .library
             .clone()
             .unwrap_or_else(|| PathBuf::from("whorl-library")),
+        library_given: cli.global.library.is_some(),
     };
     match cli.command {
         Command::Init(a) => init::run(a, &ctx),
@@ -96,6 +127,14 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Show(a) => show::run(a, &ctx),
         Command::List(a) => list::run(a, &ctx),
         Command::Stats(a) => stats::run(a, &ctx),
+        Command::Review(a) => review::run(a, &ctx),
+        Command::Revise(a) => revise::run(*a, &ctx),
+        Command::Withdraw(a) => withdraw::run(a, &ctx),
+        Command::Log(a) => log::run(a, &ctx),
+        Command::Check(a) => check::run(a, &ctx),
+        Command::Export(a) => export::run(a, &ctx),
+        Command::Replay(a) => replay::run(a, &ctx),
+        Command::Policy(a) => policy::run(a, &ctx),
         Command::Demo(a) => demo::run(a, &ctx),
     }
 }
@@ -104,6 +143,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
 pub fn exit_code(err: &anyhow::Error) -> u8 {
     match err.downcast_ref::<whorl::Error>() {
         Some(whorl::Error::Library { .. }) => EXIT_LIBRARY,
+        Some(e) if e.is_busy() => EXIT_BUSY,
         Some(e) if e.is_input() => EXIT_INPUT,
         _ => EXIT_FAILURE,
     }

@@ -35,6 +35,12 @@ pub struct SearchArgs {
     /// x unit for IR files given as wavelength: um or nm
     #[arg(long)]
     pub x_unit: Option<XUnit>,
+    /// Also search pending (not yet reviewed) spectra
+    #[arg(long)]
+    pub include_pending: bool,
+    /// Save the search record (unknown's hash, parameters, fingerprint, hits) for `whorl replay`
+    #[arg(long, value_name = "FILE")]
+    pub save: Option<PathBuf>,
     /// Print the full report as JSON
     #[arg(long)]
     pub json: bool,
@@ -45,6 +51,9 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut request = Request::new(args.technique);
     request.top = args.top.max(1);
     request.filter = args.filter.clone();
+    if args.include_pending {
+        request.statuses.push(whorl::library::Status::Pending);
+    }
     let report = run_search(
         &lib,
         &args.unknown,
@@ -53,6 +62,11 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         args.solvent,
         &request,
     )?;
+    if let Some(path) = &args.save {
+        let text = serde_json::to_string_pretty(&report)? + "\n";
+        std::fs::write(path, text)
+            .map_err(|e| whorl::Error::io(format!("writing {}", path.display()), e))?;
+    }
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &report)?;

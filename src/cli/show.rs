@@ -12,6 +12,9 @@ use super::{Context, output};
 pub struct ShowArgs {
     /// Spectrum id
     pub id: i64,
+    /// Show the metadata of this earlier (or the current) revision
+    #[arg(long, value_name = "N")]
+    pub revision: Option<i64>,
     /// Print as JSON
     #[arg(long)]
     pub json: bool,
@@ -19,23 +22,72 @@ pub struct ShowArgs {
 
 pub fn run(args: ShowArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
-    let rec = lib.spectrum(args.id)?;
+    let current = lib.spectrum(args.id)?;
+    let (rec, revision) = lib.spectrum_at(args.id, args.revision.unwrap_or(current.revision))?;
     let prepared = lib.prepared(args.id)?;
+    let reviews = lib.reviews(args.id)?;
+    let withdrawn = lib.withdrawn_reason(args.id)?;
     let events = lib.events(Some(&format!("spectrum:{}", args.id)))?;
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(
             &mut out,
-            &json!({ "spectrum": rec, "peaks": prepared.peaks, "preparation_warnings": prepared.warnings, "events": events }),
+            &json!({
+                "spectrum": rec, "revision": revision, "current_revision": current.revision,
+                "withdrawn_reason": withdrawn, "reviews": reviews,
+                "peaks": prepared.peaks, "preparation_warnings": prepared.warnings, "events": events,
+            }),
         )?;
         return Ok(ExitCode::SUCCESS);
     }
     let m = &rec.metadata;
     let mut line = |k: &str, v: &str| writeln!(out, "{k:<14}{v}");
+    let which = if rec.revision == current.revision {
+        format!("revision {} of {}", rec.revision, current.revision)
+    } else {
+        format!(
+            "revision {} of {}; NOT the current revision",
+            rec.revision, current.revision
+        )
+    };
+    line("spectrum", &format!("{} ({which}, {})", rec.id, rec.status))?;
     line(
-        "spectrum",
-        &format!("{} (revision {}, {})", rec.id, rec.revision, rec.status),
+        "revision by",
+        &format!(
+            "{} at {}{}",
+            revision.created_by,
+            revision.created_at,
+            revision
+                .reason
+                .as_deref()
+                .map(|r| format!(" ({r})"))
+                .unwrap_or_default()
+        ),
     )?;
+    if let Some(w) = &withdrawn {
+        line("withdrawn", w)?;
+    }
+    for r in &reviews {
+        line(
+            "sign-off",
+            &format!(
+                "revision {} {} by {} at {}: {}{}{}",
+                r.revision,
+                r.decision,
+                r.reviewer,
+                r.at,
+                r.meaning,
+                r.note
+                    .as_deref()
+                    .map(|n| format!(" ({n})"))
+                    .unwrap_or_default(),
+                r.imported_from
+                    .as_deref()
+                    .map(|f| format!(" [from {f}]"))
+                    .unwrap_or_default()
+            ),
+        )?;
+    }
     line(
         "compound",
         &format!("{} (compound {})", m.name, rec.compound_id),

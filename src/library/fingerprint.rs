@@ -49,24 +49,17 @@ impl ContentSum {
     }
 }
 
-/// SHA-256 of the canonical encoding of one searchable record.
+/// SHA-256 of the canonical encoding of one searchable record: what is searched (technique,
+/// raw points, current metadata) and whether it is searched by default (status). Local ids and
+/// revision numbers are left out, so that a library rebuilt from an exported bundle has the
+/// same fingerprint as the library it came from.
 pub fn record_hash(
-    spectrum_id: i64,
     technique: &str,
     status: &str,
-    revision: i64,
     raw_sha256: &str,
     metadata_json: &str,
 ) -> [u8; 32] {
-    let canonical = serde_json::json!([
-        spectrum_id,
-        technique,
-        status,
-        revision,
-        raw_sha256,
-        metadata_json
-    ])
-    .to_string();
+    let canonical = serde_json::json!([technique, status, raw_sha256, metadata_json]).to_string();
     Sha256::digest(canonical.as_bytes()).into()
 }
 

@@ -38,6 +38,19 @@ pub struct ManifestRow {
     pub file: String,
     /// The submission, or the reason the row cannot be used.
     pub submission: Result<Submission>,
+    /// The `whorl_*` provenance columns of a bundle manifest (empty for a plain manifest).
+    pub provenance: BTreeMap<String, String>,
+}
+
+/// The prefix of the provenance columns an exported bundle's manifest carries.
+pub const PROVENANCE_PREFIX: &str = "whorl_";
+
+/// Gives a command-level error the manifest location it came from.
+fn located(e: Error, at: Location) -> Error {
+    match e {
+        Error::Invalid { reason, hint } => Error::Input { at, reason, hint },
+        other => other,
+    }
 }
 
 /// Splits a `;`-separated list field.
@@ -101,6 +114,15 @@ pub fn resolve_within(base: &Path, entry: &str) -> std::result::Result<PathBuf, 
 /// Reads a manifest. Problems with the manifest as a whole (unreadable, missing a required
 /// column) are errors; problems with one row are reported in that row.
 pub fn read_manifest(path: &Path, default_submitter: &str) -> Result<Vec<ManifestRow>> {
+    read_rows(path, default_submitter, false)
+}
+
+/// Reads the manifest of an exported bundle, keeping its provenance columns.
+pub(super) fn read_bundle_manifest(path: &Path) -> Result<Vec<ManifestRow>> {
+    read_rows(path, "unknown", true)
+}
+
+fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<ManifestRow>> {
     let bytes = std::fs::read(path).map_err(|e| {
         Error::input(
             Location::file(path),
@@ -134,8 +156,17 @@ pub fn read_manifest(path: &Path, default_submitter: &str) -> Result<Vec<Manifes
             ));
         }
     }
+    if !bundle && headers.iter().any(|h| h.starts_with(PROVENANCE_PREFIX)) {
+        return Err(Error::input(
+            Location::line(path, 1),
+            "this manifest belongs to an exported bundle (it has whorl_ provenance columns)",
+            "import the bundle's folder instead (`whorl import DIR`), so its checksums and history are used",
+        ));
+    }
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
     let mut rows = Vec::new();
+    let mut seen: std::collections::HashMap<(String, String), usize> =
+        std::collections::HashMap::new();
     for record in reader.records() {
         let record = record.map_err(|e| {
             let line = e.position().map_or(0, |p| p.line() as usize);
@@ -156,8 +187,17 @@ pub fn read_manifest(path: &Path, default_submitter: &str) -> Result<Vec<Manifes
         };
         let opt = |name: &str| Some(field(name).to_string()).filter(|s| !s.is_empty());
         let file = field("file").to_string();
+        let at = || Location::line(path, line);
+        let key = (file.clone(), field("technique").to_ascii_lowercase());
+        let first = *seen.entry(key).or_insert(line);
         let submission = (|| -> Result<Submission> {
-            let at = || Location::line(path, line);
+            if first != line {
+                return Err(Error::input(
+                    at(),
+                    format!("this row repeats line {first} (same file and technique)"),
+                    "remove the duplicated row from the manifest",
+                ));
+            }
             let resolved = resolve_within(&base, &file).map_err(|reason| {
                 Error::input(
                     at(),
@@ -165,10 +205,13 @@ pub fn read_manifest(path: &Path, default_submitter: &str) -> Result<Vec<Manifes
                     "write paths relative to the manifest, without '..'",
                 )
             })?;
-            let technique: Technique = field("technique").parse()?;
+            let technique: Technique = field("technique").parse().map_err(|e| located(e, at()))?;
             let mut extra = BTreeMap::new();
             for (i, h) in headers.iter().enumerate() {
-                if !KNOWN_COLUMNS.contains(&h.as_str()) && !h.is_empty() {
+                if !KNOWN_COLUMNS.contains(&h.as_str())
+                    && !h.is_empty()
+                    && !h.starts_with(PROVENANCE_PREFIX)
+                {
                     let v = record.get(i).unwrap_or("").trim();
                     if !v.is_empty() {
                         extra.insert(extra_key(h), v.to_string());
@@ -192,15 +235,28 @@ pub fn read_manifest(path: &Path, default_submitter: &str) -> Result<Vec<Manifes
                 path: resolved,
                 technique,
                 metadata,
-                x_unit: opt("x_unit").map(|s| s.parse::<XUnit>()).transpose()?,
-                y_unit: opt("y_unit").map(|s| s.parse::<YUnit>()).transpose()?,
+                x_unit: opt("x_unit")
+                    .map(|s| s.parse::<XUnit>())
+                    .transpose()
+                    .map_err(|e| located(e, at()))?,
+                y_unit: opt("y_unit")
+                    .map(|s| s.parse::<YUnit>())
+                    .transpose()
+                    .map_err(|e| located(e, at()))?,
                 submitted_by: opt("submitted_by").unwrap_or_else(|| default_submitter.to_string()),
             })
         })();
+        let provenance = headers
+            .iter()
+            .enumerate()
+            .filter(|(_, h)| h.starts_with(PROVENANCE_PREFIX))
+            .map(|(i, h)| (h.clone(), record.get(i).unwrap_or("").to_string()))
+            .collect();
         rows.push(ManifestRow {
             line,
             file,
             submission,
+            provenance,
         });
     }
     if rows.is_empty() {

@@ -1,5 +1,8 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
+mod bundle;
+mod check;
+mod curation;
 mod fingerprint;
 mod import;
 mod manifest;
@@ -7,13 +10,17 @@ mod records;
 mod schema;
 mod stage;
 
+pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
+pub use check::{CheckReport, Finding};
+pub use curation::{Decision, MetadataPatch, Review, RevisionInfo};
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use records::{Candidate, Event, Metadata, Outcome, SpectrumRecord, Stats, Status, Summary};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
-    Recipes, Staged, Submission, normalise_metadata, read_and_prepare, stage, usual_x_unit,
+    Recipes, Staged, Submission, normalise_metadata, prepare_raw, read_and_prepare, stage,
+    usual_x_unit,
 };
 
 use std::path::{Path, PathBuf};
@@ -36,6 +43,9 @@ pub struct Library {
     conn: Connection,
     recipes: Recipes,
     text: TextIndex,
+    /// Set when the text index could not be brought up to date (another process holds its
+    /// writer lock); it is derived data, so the command goes on and says so.
+    text_behind: std::cell::Cell<bool>,
 }
 
 /// The current time, UTC, RFC 3339 with milliseconds.
@@ -65,6 +75,7 @@ impl Library {
             conn,
             recipes: Recipes::new(),
             text,
+            text_behind: Default::default(),
         };
         lib.initialise(actor)?;
         Ok(lib)
@@ -79,6 +90,7 @@ impl Library {
             conn,
             recipes: Recipes::new(),
             text: TextIndex::in_ram()?,
+            text_behind: Default::default(),
         };
         lib.initialise(actor)?;
         Ok(lib)
@@ -131,7 +143,7 @@ impl Library {
         let mut conn = Connection::open(&db)?;
         schema::configure(&conn, true)?;
         let version = schema::version(&conn)?;
-        if version > SCHEMA_VERSION || version < OLDEST_READABLE {
+        if !(OLDEST_READABLE..=SCHEMA_VERSION).contains(&version) {
             return Err(Error::Library {
                 path: root.to_path_buf(),
                 reason: format!(
@@ -152,8 +164,11 @@ impl Library {
             conn,
             recipes,
             text,
+            text_behind: Default::default(),
         };
-        lib.refresh_text_index()?;
+        if lib.refresh_text_index().is_err() {
+            lib.text_behind.set(true);
+        }
         Ok(lib)
     }
 
@@ -213,6 +228,27 @@ impl Library {
         self.text
             .rebuild(all.iter().map(SpectrumRecord::index_doc), generation)?;
         Ok(true)
+    }
+
+    /// True when the text index is behind the database because another process was writing
+    /// it; metadata queries may then miss the newest spectra until the next command.
+    pub fn text_index_behind(&self) -> bool {
+        self.text_behind.get()
+    }
+
+    /// Updates the text index after a commit. The database already holds the truth, so a
+    /// failure here (another process holding the index's writer lock) only leaves the index
+    /// behind; the next command rebuilds it from the recorded generation.
+    pub(crate) fn sync_text(&self, ids: &[i64], generation: i64) -> Result<()> {
+        let records = self.records(ids)?;
+        if self
+            .text
+            .upsert(records.iter().map(SpectrumRecord::index_doc), generation)
+            .is_err()
+        {
+            self.text_behind.set(true);
+        }
+        Ok(())
     }
 
     /// A setting's value, if set.

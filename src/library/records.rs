@@ -219,7 +219,7 @@ pub enum Outcome {
 }
 
 /// One row of the audit trail.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Event {
     /// Sequence number.
     pub seq: i64,
@@ -298,6 +298,12 @@ pub fn append_event(
             hash
         ],
     )?;
+    // The head of the chain is kept beside it, so that deleting the newest events is found too.
+    tx.execute(
+        "INSERT INTO setting (key, value) VALUES ('event_head', ?1)
+         ON CONFLICT (key) DO UPDATE SET value = excluded.value",
+        [format!("{seq}:{hash}")],
+    )?;
     Ok(seq)
 }
 
@@ -312,7 +318,7 @@ pub(super) fn load_recipes(conn: &Connection) -> Result<Recipes> {
     Ok(out)
 }
 
-fn bump_generation(tx: &Connection) -> Result<i64> {
+pub(super) fn bump_generation(tx: &Connection) -> Result<i64> {
     tx.execute("UPDATE setting SET value = CAST(CAST(value AS INTEGER) + 1 AS TEXT) WHERE key = 'generation'", [])?;
     Ok(tx.query_row(
         "SELECT CAST(value AS INTEGER) FROM setting WHERE key = 'generation'",
@@ -321,7 +327,7 @@ fn bump_generation(tx: &Connection) -> Result<i64> {
     )?)
 }
 
-fn update_content_sum(tx: &Connection, f: impl FnOnce(&mut ContentSum)) -> Result<()> {
+pub(super) fn update_content_sum(tx: &Connection, f: impl FnOnce(&mut ContentSum)) -> Result<()> {
     let text: String = tx.query_row(
         "SELECT value FROM setting WHERE key = 'content_sum'",
         [],
@@ -337,18 +343,18 @@ fn update_content_sum(tx: &Connection, f: impl FnOnce(&mut ContentSum)) -> Resul
 }
 
 /// The identity key of a compound: its CAS RN when known, else its lower-cased name.
-fn compound_key(m: &Metadata) -> String {
+pub(super) fn compound_key(m: &Metadata) -> String {
     match &m.cas {
         Some(cas) => format!("cas:{cas}"),
         None => format!("name:{}", m.name.to_lowercase()),
     }
 }
 
-fn f32_bytes(v: &[f32]) -> Vec<u8> {
+pub(super) fn f32_bytes(v: &[f32]) -> Vec<u8> {
     v.iter().flat_map(|x| x.to_le_bytes()).collect()
 }
 
-fn f32_from_bytes(b: &[u8]) -> Vec<f32> {
+pub(super) fn f32_from_bytes(b: &[u8]) -> Vec<f32> {
     b.chunks_exact(4)
         .map(|c| f32::from_le_bytes([c[0], c[1], c[2], c[3]]))
         .collect()
@@ -418,9 +424,7 @@ impl Library {
         }
         let generation = bump_generation(&tx)?;
         tx.commit()?;
-        let records = self.records(&added)?;
-        self.text
-            .upsert(records.iter().map(SpectrumRecord::index_doc), generation)?;
+        self.sync_text(&added, generation)?;
         Ok(outcomes)
     }
 
@@ -650,6 +654,31 @@ impl Library {
         Ok(out)
     }
 
+    /// The sequence number of the newest event.
+    pub fn last_event(&self) -> Result<i64> {
+        Ok(self
+            .conn
+            .query_row("SELECT coalesce(max(seq), 0) FROM event", [], |r| r.get(0))?)
+    }
+
+    /// Number of spectra of a technique in a status.
+    pub fn count(&self, technique: Technique, status: Status) -> Result<i64> {
+        Ok(self.conn.query_row(
+            "SELECT count(*) FROM spectrum WHERE technique = ?1 AND status = ?2",
+            params![technique.name(), status.name()],
+            |r| r.get(0),
+        )?)
+    }
+
+    /// Events after the given sequence number.
+    pub fn events_since(&self, seq: i64) -> Result<Vec<Event>> {
+        Ok(self
+            .events(None)?
+            .into_iter()
+            .filter(|e| e.seq > seq)
+            .collect())
+    }
+
     /// Compound names by id, for labelling hits.
     pub fn compound_names(&self, ids: &[i64]) -> Result<HashMap<i64, String>> {
         let mut stmt = self
@@ -680,34 +709,7 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
         return Ok(Outcome::AlreadyPresent { spectrum_id });
     }
     let m = &sub.metadata;
-    let key = compound_key(m);
-    let found: Option<(i64, Option<String>)> = tx
-        .query_row(
-            "SELECT id, formula FROM compound WHERE key = ?1",
-            [&key],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )
-        .optional()?;
-    let compound_id = match found {
-        Some((id, Some(formula))) if m.formula.as_ref().is_some_and(|f| f != &formula) => {
-            return Err(Error::invalid(
-                format!(
-                    "compound {id} ('{}') is on record with formula {formula}, but this spectrum says {}",
-                    m.name,
-                    m.formula.as_deref().unwrap_or("")
-                ),
-                "correct the formula, or give the CAS RN if this is a different substance",
-            ));
-        }
-        Some((id, _)) => id,
-        None => {
-            tx.execute(
-                "INSERT INTO compound (key, name, formula, cas, created_at) VALUES (?1, ?2, ?3, ?4, ?5)",
-                params![key, m.name, m.formula, m.cas, now()],
-            )?;
-            tx.last_insert_rowid()
-        }
-    };
+    let compound_id = find_or_create_compound(tx, m)?;
     let file_name = sub
         .path
         .file_name()
@@ -734,8 +736,9 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
     let spectrum_id = tx.last_insert_rowid();
     let metadata_json = serde_json::to_string(m)?;
     tx.execute(
-        "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason) VALUES (?1, 1, ?2, ?3, ?4, NULL)",
-        params![spectrum_id, metadata_json, created_at, sub.submitted_by],
+        "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
+         VALUES (?1, 1, ?2, ?3, ?4, NULL, ?5)",
+        params![spectrum_id, metadata_json, created_at, sub.submitted_by, compound_id],
     )?;
     let p = &staged.prepared;
     tx.execute(
@@ -743,10 +746,8 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
         params![spectrum_id, f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?, p.y_unit.name(), serde_json::to_string(&p.warnings)?],
     )?;
     let h = record_hash(
-        spectrum_id,
         technique,
         Status::Pending.name(),
-        1,
         &raw_sha256,
         &metadata_json,
     );
@@ -772,4 +773,37 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
         spectrum_id,
         compound_id,
     })
+}
+
+/// The compound a metadata record names: found by its identity key, or created. Refuses a
+/// formula that contradicts the compound already on record.
+pub(super) fn find_or_create_compound(tx: &Connection, m: &Metadata) -> Result<i64> {
+    let key = compound_key(m);
+    let found: Option<(i64, Option<String>)> = tx
+        .query_row(
+            "SELECT id, formula FROM compound WHERE key = ?1",
+            [&key],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .optional()?;
+    match found {
+        Some((id, Some(formula))) if m.formula.as_ref().is_some_and(|f| f != &formula) => {
+            Err(Error::invalid(
+                format!(
+                    "compound {id} ('{}') is on record with formula {formula}, but this spectrum says {}",
+                    m.name,
+                    m.formula.as_deref().unwrap_or("")
+                ),
+                "correct the formula, or give the CAS RN if this is a different substance",
+            ))
+        }
+        Some((id, _)) => Ok(id),
+        None => {
+            tx.execute(
+                "INSERT INTO compound (key, name, formula, cas, created_at) VALUES (?1, ?2, ?3, ?4, ?5)",
+                params![key, m.name, m.formula, m.cas, now()],
+            )?;
+            Ok(tx.last_insert_rowid())
+        }
+    }
 }

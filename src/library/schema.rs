@@ -5,7 +5,10 @@ use rusqlite::Connection;
 use crate::error::Result;
 
 /// The migrations, in order; migration `i` takes the database from version `i` to `i + 1`.
-const MIGRATIONS: [&str; 1] = [include_str!("../../schema/0001_init.sql")];
+const MIGRATIONS: [&str; 2] = [
+    include_str!("../../schema/0001_init.sql"),
+    include_str!("../../schema/0002_curation.sql"),
+];
 
 /// The schema version this build writes.
 pub const SCHEMA_VERSION: i64 = MIGRATIONS.len() as i64;
@@ -42,6 +45,16 @@ pub fn configure(conn: &Connection, on_disk: bool) -> Result<()> {
         conn.pragma_update(None, "synchronous", "FULL")?;
     }
     conn.pragma_update(None, "foreign_keys", "ON")?;
-    conn.busy_timeout(std::time::Duration::from_secs(10))?;
+    conn.busy_timeout(busy_timeout())?;
     Ok(())
+}
+
+/// How long a command waits for another process's write transaction before giving up:
+/// `WHORL_BUSY_TIMEOUT_MS`, else 10 s.
+pub fn busy_timeout() -> std::time::Duration {
+    let ms = std::env::var("WHORL_BUSY_TIMEOUT_MS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(10_000);
+    std::time::Duration::from_millis(ms)
 }

@@ -168,3 +168,25 @@ pub fn stage(recipes: &Recipes, mut submission: Submission) -> Result<Staged> {
         prepared,
     })
 }
+
+/// Prepares stored raw points again (after a revision changes the solvent, or to verify the
+/// stored prepared form). Gives exactly what the import gave, because the y unit stored is the
+/// one the import used.
+pub fn prepare_raw(
+    label: &Path,
+    recipe: &Recipe,
+    points: &[(f64, f64)],
+    x_unit: XUnit,
+    y_unit: YUnit,
+    solvent: Option<Solvent>,
+) -> Result<Prepared> {
+    let converted: Vec<(f64, f64)> = points
+        .iter()
+        .map(|&(x, y)| (x_unit.to_wavenumber(x), y))
+        .collect();
+    let conditions = Conditions {
+        y_unit: Some(y_unit),
+        solvent,
+    };
+    prepare(label, recipe, &converted, &conditions)
+}

@@ -1,9 +1,13 @@
 //! Ranking library spectra against an unknown.
 
+mod replay;
+
+pub use replay::{Replay, load_saved, replay};
+
 use std::collections::HashSet;
 
 use rayon::prelude::*;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::error::Result;
 use crate::library::{Library, Status};
@@ -33,14 +37,14 @@ impl Request {
             technique,
             top: 10,
             filter: None,
-            statuses: vec![Status::Pending, Status::Verified],
+            statuses: vec![Status::Verified],
             params: ScoreParams::default_for(technique),
         }
     }
 }
 
 /// One ranked library entry.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Hit {
     /// 1 for the best.
     pub rank: usize,
@@ -65,7 +69,7 @@ pub struct Hit {
 }
 
 /// A ranked hit list with what the analyst needs to judge it.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct HitList {
     /// Hits, best first.
     pub hits: Vec<Hit>,
@@ -145,6 +149,20 @@ pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Resul
         )),
         Some(_) => {}
     }
+    if request.filter.is_some() && library.text_index_behind() {
+        warnings.push(
+            "the metadata index is behind the database (another process is writing); the --where filter may miss the newest spectra".to_string(),
+        );
+    }
+    if !request.statuses.contains(&Status::Pending) {
+        let pending = library.count(request.technique, Status::Pending)?;
+        if pending > 0 {
+            warnings.push(format!(
+                "{pending} pending (not yet reviewed) {} spectra were not searched; --include-pending adds them",
+                request.technique
+            ));
+        }
+    }
     if let (Some(m), Some(first), Some(second)) = (margin, hits.first(), hits.get(1))
         && m < CLOSE_MARGIN
         && first.compound_id != second.compound_id
@@ -163,16 +181,18 @@ pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Resul
 }
 
 /// The library a search ran against.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct LibraryStamp {
     /// Library folder.
     pub path: String,
     /// Library fingerprint at the time of the search.
     pub fingerprint: String,
+    /// The last audit-trail event at the time of the search.
+    pub last_event: i64,
 }
 
 /// The unknown a search ran for.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct UnknownStamp {
     /// The file as given.
     pub file: String,
@@ -180,22 +200,25 @@ pub struct UnknownStamp {
     pub sha256: String,
     /// Technique.
     pub technique: Technique,
+    /// The x unit declared for the file, if not the technique's usual one.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub x_unit: Option<crate::spectrum::XUnit>,
     /// The y unit used (declared or detected).
     pub y_unit: crate::spectrum::YUnit,
     /// NMR solvent, if declared.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub solvent: Option<String>,
     /// Peaks picked in the unknown.
     pub peaks: usize,
 }
 
 /// The parameters that decided the ranking.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Parameters {
     /// Hits asked for.
     pub top: usize,
     /// Metadata filter.
-    #[serde(rename = "where", skip_serializing_if = "Option::is_none")]
+    #[serde(rename = "where", default, skip_serializing_if = "Option::is_none")]
     pub filter: Option<String>,
     /// Statuses searched.
     pub statuses: Vec<Status>,
@@ -206,7 +229,7 @@ pub struct Parameters {
 }
 
 /// A complete, self-describing search result.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Report {
     /// whorl version.
     pub tool_version: String,
@@ -257,11 +280,13 @@ pub fn run_search(
                 .map(|p| p.display().to_string())
                 .unwrap_or_else(|| ":memory:".into()),
             fingerprint: library.fingerprint()?,
+            last_event: library.last_event()?,
         },
         unknown: UnknownStamp {
             file: file.display().to_string(),
             sha256: raw.file_sha256,
             technique: request.technique,
+            x_unit,
             y_unit: unknown.y_unit,
             solvent: solvent.map(|s| s.name().to_string()),
             peaks: unknown.peaks.len(),

@@ -191,7 +191,15 @@ fn top_classes(
     n: usize,
 ) -> Vec<(String, String)> {
     let classes = classes();
-    let mut args = vec!["search", file, "--technique", technique, "--top", "5"];
+    let mut args = vec![
+        "search",
+        file,
+        "--technique",
+        technique,
+        "--top",
+        "5",
+        "--include-pending",
+    ];
     args.extend_from_slice(extra);
     let report = lab.json(&args);
     report["hits"].as_array().unwrap()[..n]

@@ -1,0 +1,56 @@
+//! `whorl check`: verify the audit chain, the raw data and the derived data.
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use clap::Args;
+
+use super::{Context, EXIT_MISMATCH, output};
+
+#[derive(Debug, Args)]
+pub struct CheckArgs {
+    /// Print the report as JSON
+    #[arg(long)]
+    pub json: bool,
+}
+
+pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let lib = ctx.open()?;
+    let bar = output::progress(0, "checking");
+    let report = lib.check(&|done, total| {
+        bar.set_length(total as u64);
+        bar.set_position(done as u64);
+    })?;
+    bar.finish_and_clear();
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        output::json(&mut out, &report)?;
+    } else {
+        for f in &report.findings {
+            writeln!(out, "{}: {}", f.record, f.problem)?;
+        }
+        if report.text_index_rebuilt {
+            writeln!(
+                out,
+                "the text index was behind the database and has been rebuilt (derived data)"
+            )?;
+        }
+        writeln!(
+            out,
+            "checked {} events and {} spectra: {}",
+            report.events,
+            report.spectra,
+            if report.findings.is_empty() {
+                "no inconsistency".to_string()
+            } else {
+                format!("{} inconsistencies", report.findings.len())
+            }
+        )?;
+        writeln!(out, "fingerprint {}", lib.fingerprint()?)?;
+    }
+    Ok(if report.findings.is_empty() {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(EXIT_MISMATCH)
+    })
+}

@@ -1,0 +1,51 @@
+//! `whorl export`: write a portable bundle.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::Args;
+use whorl::library::Status;
+
+use super::{Context, identity, output};
+
+#[derive(Debug, Args)]
+pub struct ExportArgs {
+    /// The bundle folder to create (must not exist or be empty)
+    pub dir: PathBuf,
+    /// Only spectra matching this metadata query
+    #[arg(long = "where", value_name = "QUERY")]
+    pub filter: Option<String>,
+    /// Only spectra in this status: pending, verified or withdrawn
+    #[arg(long)]
+    pub status: Option<Status>,
+    /// Who exports [default: $WHORL_USER, else the OS user]
+    #[arg(long, value_name = "WHO")]
+    pub by: Option<String>,
+    /// Print bundle.json as JSON
+    #[arg(long)]
+    pub json: bool,
+}
+
+pub fn run(args: ExportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let lib = ctx.open()?;
+    let report = lib.export(
+        &args.dir,
+        args.filter.as_deref(),
+        args.status,
+        &identity(args.by.as_deref()),
+    )?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        output::json(&mut out, &report.info)?;
+    } else {
+        writeln!(
+            out,
+            "exported {} spectra to {}",
+            report.info.spectra,
+            report.dir.display()
+        )?;
+        writeln!(out, "bundle fingerprint {}", report.info.fingerprint)?;
+    }
+    Ok(ExitCode::SUCCESS)
+}

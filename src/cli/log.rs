@@ -1,0 +1,91 @@
+//! `whorl log`: the audit trail.
+
+use std::process::ExitCode;
+
+use clap::Args;
+
+use super::{Context, output};
+
+#[derive(Debug, Args)]
+pub struct LogArgs {
+    /// Only the events of this spectrum
+    pub id: Option<i64>,
+    /// Print the events (with payloads and hashes) as JSON
+    #[arg(long)]
+    pub json: bool,
+}
+
+pub fn run(args: LogArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let lib = ctx.open()?;
+    if let Some(id) = args.id {
+        lib.spectrum(id)?;
+    }
+    let record = args.id.map(|id| format!("spectrum:{id}"));
+    let events = lib.events(record.as_deref())?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        output::json(&mut out, &events)?;
+        return Ok(ExitCode::SUCCESS);
+    }
+    let mut t = output::Table::new(&[
+        ">seq", "at (UTC)", "actor", "action", "record", "detail", "hash",
+    ]);
+    for e in &events {
+        t.row(vec![
+            e.seq.to_string(),
+            e.at.clone(),
+            e.actor.clone(),
+            e.action.clone(),
+            e.record.clone(),
+            detail(e),
+            output::short(&e.hash).to_string(),
+        ]);
+    }
+    t.write(&mut out)?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// A one-line summary of an event's payload.
+fn detail(e: &whorl::library::Event) -> String {
+    let p = &e.payload;
+    let s = |k: &str| p[k].as_str().unwrap_or_default().to_string();
+    match e.action.as_str() {
+        "add" => format!(
+            "{} {} ({})",
+            s("technique"),
+            p["metadata"]["name"].as_str().unwrap_or_default(),
+            s("file")
+        ),
+        "import" => format!(
+            "{} {} from bundle {}",
+            s("technique"),
+            p["revisions"]
+                .as_array()
+                .and_then(|r| r.last())
+                .map(|r| r["metadata"]["name"].as_str().unwrap_or_default())
+                .unwrap_or_default(),
+            output::short(p["bundle"]["fingerprint"].as_str().unwrap_or_default())
+        ),
+        "review" => format!(
+            "revision {} {}{}",
+            p["revision"],
+            s("decision"),
+            p["note"]
+                .as_str()
+                .map(|n| format!(": {n}"))
+                .unwrap_or_default()
+        ),
+        "revise" => format!(
+            "revision {}{}",
+            p["revision"],
+            p["reason"]
+                .as_str()
+                .map(|r| format!(": {r}"))
+                .unwrap_or_default()
+        ),
+        "withdraw" => format!("reason: {}", s("reason")),
+        "policy" => format!("allow_self_review = {}", p["allow_self_review"]),
+        "init" => "library created".to_string(),
+        _ => String::new(),
+    }
+}

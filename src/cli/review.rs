@@ -1,0 +1,67 @@
+//! `whorl review`: sign off a pending spectrum.
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use clap::Args;
+use whorl::library::Decision;
+
+use super::{Context, identity, output};
+
+#[derive(Debug, Args)]
+#[command(group(clap::ArgGroup::new("decision").required(true).args(["approve", "reject"])))]
+pub struct ReviewArgs {
+    /// Spectrum id
+    pub id: i64,
+    /// Approve it as a reference: it becomes verified and is searched by default
+    #[arg(long)]
+    pub approve: bool,
+    /// Reject it: it stays pending until revised or withdrawn
+    #[arg(long)]
+    pub reject: bool,
+    /// The reviewer; must differ from the submitter [default: $WHORL_USER, else the OS user]
+    #[arg(long, value_name = "WHO")]
+    pub by: Option<String>,
+    /// What the signature means [default: a statement of the decision]
+    #[arg(long)]
+    pub meaning: Option<String>,
+    /// The reviewer's note
+    #[arg(long)]
+    pub note: Option<String>,
+    /// Print the sign-off as JSON
+    #[arg(long)]
+    pub json: bool,
+}
+
+pub fn run(args: ReviewArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let mut lib = ctx.open()?;
+    let decision = if args.approve {
+        Decision::Approve
+    } else {
+        Decision::Reject
+    };
+    let reviewer = identity(args.by.as_deref());
+    let review = lib.review(
+        args.id,
+        &reviewer,
+        decision,
+        args.meaning.as_deref(),
+        args.note.as_deref(),
+    )?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        output::json(&mut out, &review)?;
+    } else {
+        writeln!(
+            out,
+            "spectrum {} revision {} {} by {} at {}: {}",
+            review.spectrum_id,
+            review.revision,
+            review.decision,
+            review.reviewer,
+            review.at,
+            review.meaning
+        )?;
+    }
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,551 @@
+//! Portable bundles: export spectra with their full history, import them elsewhere.
+//!
+//! A bundle is a folder: `spectra/<id>.<technique>.csv` (raw points exactly as imported),
+//! `manifest.csv` (metadata, provenance, revision and review history), `bundle.json` (format,
+//! fingerprint of what was exported, recipes, who and when) and `SHA256SUMS` (sha256sum format)
+//! covering every other file.
+
+use std::collections::{BTreeMap, BTreeSet, HashSet};
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+use rusqlite::{OptionalExtension, params};
+use serde::{Deserialize, Serialize};
+
+use super::curation::{Review, reweigh};
+use super::manifest::{read_bundle_manifest, resolve_within};
+use super::records::{
+    Metadata, SpectrumRecord, Status, append_event, f32_bytes, find_or_create_compound,
+};
+use super::{ContentSum, Library, Outcome, Staged, fingerprint, now, record_hash, stage};
+use crate::error::{Error, Location, Result};
+use crate::spectrum::sha256_hex;
+
+/// The bundle format this build writes and reads.
+pub const BUNDLE_FORMAT: &str = "whorl-bundle-1";
+
+/// `bundle.json`.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct BundleInfo {
+    /// Always [`BUNDLE_FORMAT`].
+    pub format: String,
+    /// Fingerprint of the exported spectra (recipes plus their searchable records).
+    pub fingerprint: String,
+    /// Spectra in the bundle.
+    pub spectra: usize,
+    /// When it was written (UTC).
+    pub exported_at: String,
+    /// Who wrote it.
+    pub exported_by: String,
+    /// whorl version that wrote it.
+    pub tool_version: String,
+    /// Fingerprint of the whole library it came from.
+    pub source_fingerprint: String,
+    /// The recipes of the library it came from.
+    pub recipes: serde_json::Value,
+    /// The metadata query that selected the spectra, if any.
+    pub query: Option<String>,
+    /// The status that selected the spectra, if any.
+    pub status: Option<Status>,
+}
+
+/// One earlier or current revision, as carried in a bundle.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+struct RevisionEntry {
+    number: i64,
+    metadata: Metadata,
+    created_at: String,
+    created_by: String,
+    reason: Option<String>,
+}
+
+/// What an export wrote.
+#[derive(Debug, Clone, Serialize)]
+pub struct ExportReport {
+    /// The bundle folder.
+    pub dir: PathBuf,
+    /// `bundle.json` as written.
+    pub info: BundleInfo,
+}
+
+const BASE_COLUMNS: [&str; 15] = [
+    "file",
+    "technique",
+    "name",
+    "formula",
+    "cas",
+    "synonyms",
+    "tags",
+    "solvent",
+    "y_unit",
+    "x_unit",
+    "source",
+    "submitted_by",
+    "instrument",
+    "acquired",
+    "notes",
+];
+const PROVENANCE_COLUMNS: [&str; 10] = [
+    "whorl_original_id",
+    "whorl_status",
+    "whorl_revision",
+    "whorl_original_file",
+    "whorl_original_file_sha256",
+    "whorl_raw_sha256",
+    "whorl_created_at",
+    "whorl_withdrawn_reason",
+    "whorl_revisions",
+    "whorl_reviews",
+];
+
+fn io(context: impl Into<String>) -> impl FnOnce(std::io::Error) -> Error {
+    let context = context.into();
+    move |e| Error::io(context, e)
+}
+
+/// The text of a raw-points CSV: shortest round-trip decimal forms, so reading it back gives
+/// the same f64 values and so the same raw hash.
+fn points_csv(rec: &SpectrumRecord, points: &[(f64, f64)]) -> String {
+    let mut s = format!(
+        "# whorl bundle: raw points of spectrum {} as imported from {} (x {}, y {})\nx,y\n",
+        rec.id, rec.file_name, rec.x_unit, rec.y_unit
+    );
+    for (x, y) in points {
+        let _ = writeln!(s, "{x},{y}");
+    }
+    s
+}
+
+impl Library {
+    /// Writes a bundle of the spectra matching `query` and `status` (all when both are `None`)
+    /// into `dir`, which must not exist or be empty. The bundle is written beside `dir` and
+    /// renamed into place, so a failed export leaves no half bundle.
+    pub fn export(
+        &self,
+        dir: &Path,
+        query: Option<&str>,
+        status: Option<Status>,
+        actor: &str,
+    ) -> Result<ExportReport> {
+        if dir.exists()
+            && std::fs::read_dir(dir)
+                .map_err(io(format!("reading {}", dir.display())))?
+                .next()
+                .is_some()
+        {
+            return Err(Error::invalid(
+                format!("{} exists and is not empty", dir.display()),
+                "export into a new folder",
+            ));
+        }
+        let allowed: Option<HashSet<i64>> = query.map(|q| self.text.matching_ids(q)).transpose()?;
+        let records: Vec<SpectrumRecord> = self
+            .all_records()?
+            .into_iter()
+            .filter(|r| status.is_none_or(|s| r.status == s))
+            .filter(|r| allowed.as_ref().is_none_or(|a| a.contains(&r.id)))
+            .collect();
+        let name = dir
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "bundle".into());
+        let staging = dir.with_file_name(format!(".{name}.partial"));
+        if staging.exists() {
+            std::fs::remove_dir_all(&staging)
+                .map_err(io(format!("removing {}", staging.display())))?;
+        }
+        std::fs::create_dir_all(staging.join("spectra"))
+            .map_err(io(format!("creating {}", staging.display())))?;
+
+        let extra_keys: BTreeSet<String> = records
+            .iter()
+            .flat_map(|r| r.metadata.extra.keys().cloned())
+            .collect();
+        let mut w = csv::Writer::from_writer(Vec::new());
+        let header: Vec<&str> = BASE_COLUMNS
+            .iter()
+            .copied()
+            .chain(extra_keys.iter().map(String::as_str))
+            .chain(PROVENANCE_COLUMNS.iter().copied())
+            .collect();
+        w.write_record(&header).map_err(csv_error)?;
+        let mut sums: BTreeMap<String, String> = BTreeMap::new();
+        let mut content = ContentSum::default();
+        for rec in &records {
+            let file = format!("spectra/{}.{}.csv", rec.id, rec.technique);
+            let text = points_csv(rec, &self.raw_points(rec.id)?);
+            std::fs::write(staging.join(&file), &text).map_err(io(format!("writing {file}")))?;
+            sums.insert(file.clone(), sha256_hex(text.as_bytes()));
+            let m = &rec.metadata;
+            let revisions = self.revision_entries(rec.id)?;
+            let reviews = self.reviews(rec.id)?;
+            let mut row: Vec<String> = vec![
+                file,
+                rec.technique.to_string(),
+                m.name.clone(),
+                m.formula.clone().unwrap_or_default(),
+                m.cas.clone().unwrap_or_default(),
+                m.synonyms.join(";"),
+                m.tags.join(";"),
+                m.solvent.clone().unwrap_or_default(),
+                rec.y_unit.clone(),
+                rec.x_unit.clone(),
+                m.source.clone().unwrap_or_default(),
+                rec.submitted_by.clone(),
+                m.instrument.clone().unwrap_or_default(),
+                m.acquired.clone().unwrap_or_default(),
+                m.notes.clone().unwrap_or_default(),
+            ];
+            row.extend(
+                extra_keys
+                    .iter()
+                    .map(|k| m.extra.get(k).cloned().unwrap_or_default()),
+            );
+            row.extend([
+                rec.id.to_string(),
+                rec.status.to_string(),
+                rec.revision.to_string(),
+                rec.file_name.clone(),
+                rec.file_sha256.clone(),
+                rec.raw_sha256.clone(),
+                rec.created_at.clone(),
+                self.withdrawn_reason(rec.id)?.unwrap_or_default(),
+                serde_json::to_string(&revisions)?,
+                serde_json::to_string(&reviews)?,
+            ]);
+            w.write_record(&row).map_err(csv_error)?;
+            if rec.status.searchable() {
+                content.add(&record_hash(
+                    rec.technique.name(),
+                    rec.status.name(),
+                    &rec.raw_sha256,
+                    &serde_json::to_string(m)?,
+                ));
+            }
+        }
+        let manifest = w
+            .into_inner()
+            .map_err(|e| Error::invalid(format!("writing the manifest: {e}"), ""))?;
+        std::fs::write(staging.join("manifest.csv"), &manifest)
+            .map_err(io("writing manifest.csv"))?;
+        sums.insert("manifest.csv".into(), sha256_hex(&manifest));
+
+        let recipes_json = serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?;
+        let info = BundleInfo {
+            format: BUNDLE_FORMAT.into(),
+            fingerprint: fingerprint(&recipes_json, content),
+            spectra: records.len(),
+            exported_at: now(),
+            exported_by: actor.into(),
+            tool_version: env!("CARGO_PKG_VERSION").into(),
+            source_fingerprint: self.fingerprint()?,
+            recipes: serde_json::from_str(&recipes_json)?,
+            query: query.map(str::to_string),
+            status,
+        };
+        let info_text = serde_json::to_string_pretty(&info)? + "\n";
+        std::fs::write(staging.join("bundle.json"), &info_text)
+            .map_err(io("writing bundle.json"))?;
+        sums.insert("bundle.json".into(), sha256_hex(info_text.as_bytes()));
+        let mut listing = String::new();
+        for (file, sum) in &sums {
+            let _ = writeln!(listing, "{sum}  {file}");
+        }
+        std::fs::write(staging.join("SHA256SUMS"), listing).map_err(io("writing SHA256SUMS"))?;
+        if dir.exists() {
+            std::fs::remove_dir(dir).map_err(io(format!("replacing empty {}", dir.display())))?;
+        }
+        std::fs::rename(&staging, dir)
+            .map_err(io(format!("moving the bundle into {}", dir.display())))?;
+        Ok(ExportReport {
+            dir: dir.to_path_buf(),
+            info,
+        })
+    }
+
+    fn revision_entries(&self, id: i64) -> Result<Vec<RevisionEntry>> {
+        let mut stmt = self.conn.prepare(
+            "SELECT number, metadata, created_at, created_by, reason FROM revision WHERE spectrum_id = ?1 ORDER BY number",
+        )?;
+        let rows = stmt.query_map([id], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, String>(1)?,
+                r.get(2)?,
+                r.get(3)?,
+                r.get(4)?,
+            ))
+        })?;
+        let mut out = Vec::new();
+        for row in rows {
+            let (number, metadata, created_at, created_by, reason) = row?;
+            out.push(RevisionEntry {
+                number,
+                metadata: serde_json::from_str(&metadata)?,
+                created_at,
+                created_by,
+                reason,
+            });
+        }
+        Ok(out)
+    }
+
+    /// Imports a bundle folder. Every checksum is verified first; if any file is missing,
+    /// altered or outside the folder, nothing is imported. The whole bundle is one
+    /// transaction. Spectra already present (same technique and raw points) are skipped.
+    pub fn import_bundle(&mut self, dir: &Path, actor: &str) -> Result<(BundleInfo, Vec<Outcome>)> {
+        let info = verify_bundle(dir)?;
+        let manifest = dir.join("manifest.csv");
+        let rows = read_bundle_manifest(&manifest)?;
+        let recipes = self.recipes.clone();
+        let staged: Vec<(usize, Result<Staged>, BTreeMap<String, String>)> = rows
+            .into_par_iter()
+            .map(|row| {
+                (
+                    row.line,
+                    row.submission.and_then(|s| stage(&recipes, s)),
+                    row.provenance,
+                )
+            })
+            .collect();
+        let mut good = Vec::with_capacity(staged.len());
+        for (line, s, provenance) in staged {
+            match s {
+                Ok(s) => good.push((line, s, provenance)),
+                Err(e) => {
+                    return Err(Error::input(
+                        Location::line(&manifest, line),
+                        format!("this bundle row cannot be imported: {e}"),
+                        "the bundle is damaged or was written by an incompatible whorl; nothing was imported",
+                    ));
+                }
+            }
+        }
+        let source = format!("bundle {} ({})", &info.fingerprint[..16], dir.display());
+        let outcomes = self.write(|tx| {
+            let mut outcomes = Vec::with_capacity(good.len());
+            let mut touched = Vec::new();
+            for (line, staged, provenance) in &good {
+                let at = || Location::line(&manifest, *line);
+                let o = import_one(tx, staged, provenance, actor, &source, &info, at)?;
+                if let Outcome::Added { spectrum_id, .. } = o {
+                    touched.push(spectrum_id);
+                }
+                outcomes.push(o);
+            }
+            Ok((outcomes, touched))
+        })?;
+        Ok((info, outcomes))
+    }
+}
+
+fn csv_error(e: csv::Error) -> Error {
+    Error::invalid(
+        format!("writing the bundle manifest: {e}"),
+        "check the free space and permissions of the folder",
+    )
+}
+
+/// Checks `SHA256SUMS` against every file it lists, and that every file in the bundle is listed.
+pub fn verify_bundle(dir: &Path) -> Result<BundleInfo> {
+    let sums_path = dir.join("SHA256SUMS");
+    let text = std::fs::read_to_string(&sums_path).map_err(|e| {
+        Error::input(
+            Location::file(&sums_path),
+            format!("cannot read the checksum list: {e}"),
+            "a bundle folder holds SHA256SUMS, manifest.csv, bundle.json and spectra/",
+        )
+    })?;
+    let mut listed = BTreeSet::new();
+    for (i, line) in text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.trim().is_empty())
+    {
+        let at = Location::line(&sums_path, i + 1);
+        let Some((sum, file)) = line.split_once("  ") else {
+            return Err(Error::input(
+                at,
+                "not a checksum line",
+                "each line is '<sha256>  <relative path>'",
+            ));
+        };
+        let path = resolve_within(dir, file).map_err(|reason| {
+            Error::input(
+                at.clone(),
+                reason,
+                "a bundle may only list files inside its own folder; nothing was imported",
+            )
+        })?;
+        let bytes = std::fs::read(&path).map_err(|e| {
+            Error::input(
+                at.clone(),
+                format!("{file} is listed but cannot be read: {e}"),
+                "the bundle is incomplete; copy it again from its source; nothing was imported",
+            )
+        })?;
+        if sha256_hex(&bytes) != sum.trim() {
+            return Err(Error::input(
+                at,
+                format!("{file} does not match its checksum"),
+                "the file was altered or damaged after export; copy the bundle again from its source; nothing was imported",
+            ));
+        }
+        listed.insert(file.to_string());
+    }
+    let mut present = vec!["manifest.csv".to_string(), "bundle.json".to_string()];
+    if let Ok(entries) = std::fs::read_dir(dir.join("spectra")) {
+        for e in entries.flatten() {
+            present.push(format!("spectra/{}", e.file_name().to_string_lossy()));
+        }
+    }
+    for file in present {
+        if !listed.contains(&file) {
+            return Err(Error::input(
+                Location::file(&sums_path),
+                format!("{file} is in the bundle but has no checksum"),
+                "a bundle must list every file in SHA256SUMS; nothing was imported",
+            ));
+        }
+    }
+    let info_path = dir.join("bundle.json");
+    let info: BundleInfo =
+        serde_json::from_slice(&std::fs::read(&info_path).map_err(io("reading bundle.json"))?)
+            .map_err(|e| {
+                Error::input(
+                    Location::file(&info_path),
+                    format!("not a bundle description: {e}"),
+                    "export the bundle again",
+                )
+            })?;
+    if info.format != BUNDLE_FORMAT {
+        return Err(Error::input(
+            Location::file(&info_path),
+            format!("bundle format '{}' is not {BUNDLE_FORMAT}", info.format),
+            "import it with the whorl version that exported it",
+        ));
+    }
+    Ok(info)
+}
+
+fn import_one(
+    tx: &rusqlite::Connection,
+    staged: &Staged,
+    provenance: &BTreeMap<String, String>,
+    actor: &str,
+    source: &str,
+    info: &BundleInfo,
+    at: impl Fn() -> Location,
+) -> Result<Outcome> {
+    let technique = staged.submission.technique.name();
+    let raw_sha256 = staged.raw.raw_sha256();
+    let field = |k: &str| provenance.get(k).map(String::as_str).unwrap_or("");
+    let bad = |what: &str| {
+        Error::input(
+            at(),
+            format!("bundle row has an unreadable {what}"),
+            "export the bundle again",
+        )
+    };
+    if field("whorl_raw_sha256") != raw_sha256 {
+        return Err(Error::input(
+            at(),
+            "the raw points do not hash to the value the bundle records",
+            "export the bundle again",
+        ));
+    }
+    let existing: Option<i64> = tx
+        .query_row(
+            "SELECT id FROM spectrum WHERE technique = ?1 AND raw_sha256 = ?2",
+            params![technique, raw_sha256],
+            |r| r.get(0),
+        )
+        .optional()?;
+    if let Some(spectrum_id) = existing {
+        return Ok(Outcome::AlreadyPresent { spectrum_id });
+    }
+    let status: Status = field("whorl_status").parse().map_err(|_| bad("status"))?;
+    let revisions: Vec<RevisionEntry> =
+        serde_json::from_str(field("whorl_revisions")).map_err(|_| bad("revision history"))?;
+    let reviews: Vec<Review> =
+        serde_json::from_str(field("whorl_reviews")).map_err(|_| bad("review history"))?;
+    let current: i64 = field("whorl_revision")
+        .parse()
+        .map_err(|_| bad("revision number"))?;
+    let metadata = &staged.submission.metadata;
+    if revisions.last().map(|r| r.number) != Some(current)
+        || revisions.last().map(|r| &r.metadata) != Some(metadata)
+    {
+        return Err(bad("current revision (it differs from the row's metadata)"));
+    }
+    let compound_id = find_or_create_compound(tx, metadata)?;
+    let withdrawn = Some(field("whorl_withdrawn_reason").to_string()).filter(|s| !s.is_empty());
+    tx.execute(
+        "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
+                               x_unit, y_unit, submitted_by, created_at, withdrawn_reason)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+        params![
+            compound_id,
+            technique,
+            status.name(),
+            current,
+            field("whorl_original_file"),
+            field("whorl_original_file_sha256"),
+            raw_sha256,
+            staged.raw.canonical_bytes(),
+            staged.raw.x_unit.name(),
+            staged.raw.y_unit.name(),
+            staged.submission.submitted_by,
+            field("whorl_created_at"),
+            withdrawn,
+        ],
+    )?;
+    let spectrum_id = tx.last_insert_rowid();
+    for r in &revisions {
+        let compound = (r.number == current).then_some(compound_id);
+        tx.execute(
+            "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+            params![spectrum_id, r.number, serde_json::to_string(&r.metadata)?, r.created_at, r.created_by, r.reason, compound],
+        )?;
+    }
+    let imported_from = format!("{source}, spectrum {}", field("whorl_original_id"));
+    for r in &reviews {
+        tx.execute(
+            "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning, note, imported_from)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
+            params![spectrum_id, r.revision, r.reviewer, r.at, r.decision, r.meaning, r.note, imported_from],
+        )?;
+    }
+    let p = &staged.prepared;
+    tx.execute(
+        "INSERT INTO prepared (spectrum_id, vector, peaks, y_unit, warnings) VALUES (?1, ?2, ?3, ?4, ?5)",
+        params![spectrum_id, f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?, p.y_unit.name(), serde_json::to_string(&p.warnings)?],
+    )?;
+    let meta_json = serde_json::to_string(metadata)?;
+    reweigh(tx, technique, &raw_sha256, None, Some((status, &meta_json)))?;
+    let payload = serde_json::json!({
+        "spectrum": spectrum_id,
+        "compound": compound_id,
+        "technique": technique,
+        "raw_sha256": raw_sha256,
+        "file_sha256": field("whorl_original_file_sha256"),
+        "status": status,
+        "current_revision": current,
+        "revisions": revisions,
+        "reviews": reviews,
+        "bundle": { "fingerprint": info.fingerprint, "original_id": field("whorl_original_id"), "exported_by": info.exported_by, "exported_at": info.exported_at },
+    });
+    append_event(
+        tx,
+        actor,
+        "import",
+        &format!("spectrum:{spectrum_id}"),
+        &payload,
+    )?;
+    Ok(Outcome::Added {
+        spectrum_id,
+        compound_id,
+    })
+}

@@ -1,0 +1,420 @@
+//! `check`: walk the audit chain, replay it against the tables, re-hash every raw blob,
+//! re-prepare every spectrum, recompute the fingerprint, and bring derived data up to date.
+
+use std::collections::{BTreeMap, HashMap};
+
+use rayon::prelude::*;
+use serde::Serialize;
+use serde_json::Value;
+
+use super::records::{GENESIS_HASH, SpectrumRecord, event_hash, f32_bytes};
+use super::{ContentSum, Library, Recipes, prepare_raw, record_hash};
+use crate::error::Result;
+use crate::prepare::Solvent;
+use crate::spectrum::{decode_points, sha256_hex};
+
+/// One inconsistency, with the record it concerns.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct Finding {
+    /// The record: `event:12`, `spectrum:3`, `library`.
+    pub record: String,
+    /// What is wrong.
+    pub problem: String,
+}
+
+/// What `check` looked at and found.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct CheckReport {
+    /// Events walked.
+    pub events: usize,
+    /// Spectra whose raw points were re-hashed and re-prepared.
+    pub spectra: usize,
+    /// Inconsistencies; empty when the library is whole.
+    pub findings: Vec<Finding>,
+    /// True when the text index was behind and has been rebuilt (derived data, not a finding).
+    pub text_index_rebuilt: bool,
+}
+
+/// The state of one spectrum as its events describe it.
+#[derive(Debug, Default)]
+struct Expected {
+    technique: String,
+    raw_sha256: String,
+    revisions: BTreeMap<i64, Value>,
+    current: i64,
+    status: String,
+    reviews: usize,
+}
+
+impl Library {
+    /// Checks the whole library. `progress(done, total)` is called as spectra are verified.
+    pub fn check(&self, progress: &(dyn Fn(usize, usize) + Sync)) -> Result<CheckReport> {
+        let mut report = CheckReport::default();
+        let mut find =
+            |record: String, problem: String| report.findings.push(Finding { record, problem });
+
+        // 1. The chain.
+        let mut stmt = self
+            .conn
+            .prepare("SELECT seq, at, actor, action, record, payload, payload_hash, prev_hash, hash FROM event ORDER BY rowid")?;
+        type Row = (
+            i64,
+            String,
+            String,
+            String,
+            String,
+            String,
+            String,
+            String,
+            String,
+        );
+        let events: Vec<Row> = stmt
+            .query_map([], |r| {
+                Ok((
+                    r.get(0)?,
+                    r.get(1)?,
+                    r.get(2)?,
+                    r.get(3)?,
+                    r.get(4)?,
+                    r.get(5)?,
+                    r.get(6)?,
+                    r.get(7)?,
+                    r.get(8)?,
+                ))
+            })?
+            .collect::<rusqlite::Result<_>>()?;
+        let mut previous_hash = GENESIS_HASH.to_string();
+        let mut expected_seq = 1;
+        for (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash) in &events {
+            let id = format!("event:{seq}");
+            if *seq != expected_seq {
+                let problem = if *seq > expected_seq {
+                    format!(
+                        "events {expected_seq}..{} are missing: the sequence jumps to {seq}",
+                        seq - 1
+                    )
+                } else {
+                    format!("out of order: found after event {}", expected_seq - 1)
+                };
+                find(id.clone(), problem);
+            }
+            if sha256_hex(payload.as_bytes()) != *payload_hash {
+                find(
+                    id.clone(),
+                    "its payload does not match the payload hash (the payload was edited)".into(),
+                );
+            }
+            if *prev_hash != previous_hash {
+                find(id.clone(), "it does not follow the event before it (an event was removed, reordered or edited)".into());
+            }
+            if event_hash(*seq, at, actor, action, record, payload_hash, prev_hash) != *hash {
+                find(
+                    id.clone(),
+                    "its fields do not match its hash (the event was edited)".into(),
+                );
+            }
+            previous_hash = hash.clone();
+            expected_seq = seq + 1;
+        }
+        report.events = events.len();
+        let head = self.setting("event_head")?;
+        let last = events.last().map(|e| format!("{}:{}", e.0, e.8));
+        if head != last {
+            find(
+                "library".into(),
+                format!(
+                    "the chain head on record is {} but the last event is {}: the newest events were removed or replaced",
+                    head.as_deref().unwrap_or("absent"),
+                    last.as_deref().unwrap_or("absent")
+                ),
+            );
+        }
+
+        // 2. Replay the events and compare with the tables.
+        let mut expected: BTreeMap<i64, Expected> = BTreeMap::new();
+        for (seq, _, _, action, record, payload, ..) in &events {
+            let Some(id) = record
+                .strip_prefix("spectrum:")
+                .and_then(|s| s.parse::<i64>().ok())
+            else {
+                continue;
+            };
+            let Ok(p) = serde_json::from_str::<Value>(payload) else {
+                find(
+                    format!("event:{seq}"),
+                    "its payload is not valid JSON".into(),
+                );
+                continue;
+            };
+            let e = expected.entry(id).or_default();
+            match action.as_str() {
+                "add" => {
+                    e.technique = p["technique"].as_str().unwrap_or_default().to_string();
+                    e.raw_sha256 = p["raw_sha256"].as_str().unwrap_or_default().to_string();
+                    e.revisions.insert(1, p["metadata"].clone());
+                    e.current = 1;
+                    e.status = "pending".into();
+                }
+                "import" => {
+                    e.technique = p["technique"].as_str().unwrap_or_default().to_string();
+                    e.raw_sha256 = p["raw_sha256"].as_str().unwrap_or_default().to_string();
+                    for r in p["revisions"].as_array().into_iter().flatten() {
+                        e.revisions
+                            .insert(r["number"].as_i64().unwrap_or(0), r["metadata"].clone());
+                    }
+                    e.current = p["current_revision"].as_i64().unwrap_or(1);
+                    e.status = p["status"].as_str().unwrap_or_default().to_string();
+                    e.reviews += p["reviews"].as_array().map_or(0, Vec::len);
+                }
+                "revise" => {
+                    let n = p["revision"].as_i64().unwrap_or(0);
+                    e.revisions.insert(n, p["metadata"].clone());
+                    e.current = n;
+                    e.status = "pending".into();
+                }
+                "review" => {
+                    e.reviews += 1;
+                    if p["decision"] == "approved" {
+                        e.status = "verified".into();
+                    }
+                }
+                "withdraw" => e.status = "withdrawn".into(),
+                _ => {}
+            }
+        }
+
+        let records = self.all_records()?;
+        let on_record: HashMap<i64, &SpectrumRecord> = records.iter().map(|r| (r.id, r)).collect();
+        for id in expected.keys() {
+            if !on_record.contains_key(id) {
+                find(
+                    format!("spectrum:{id}"),
+                    "the audit trail records it but the spectrum is missing".into(),
+                );
+            }
+        }
+        let mut revision_rows: HashMap<i64, Vec<(i64, String)>> = HashMap::new();
+        {
+            let mut stmt = self.conn.prepare(
+                "SELECT spectrum_id, number, metadata FROM revision ORDER BY spectrum_id, number",
+            )?;
+            let rows = stmt.query_map([], |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    r.get::<_, i64>(1)?,
+                    r.get::<_, String>(2)?,
+                ))
+            })?;
+            for row in rows {
+                let (id, n, m) = row?;
+                revision_rows.entry(id).or_default().push((n, m));
+            }
+        }
+        let mut review_counts: HashMap<i64, usize> = HashMap::new();
+        {
+            let mut stmt = self
+                .conn
+                .prepare("SELECT spectrum_id, count(*) FROM review GROUP BY spectrum_id")?;
+            let rows = stmt.query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, i64>(1)?)))?;
+            for row in rows {
+                let (id, n) = row?;
+                review_counts.insert(id, n as usize);
+            }
+        }
+        let mut sum = ContentSum::default();
+        for rec in &records {
+            let id = format!("spectrum:{}", rec.id);
+            let Some(e) = expected.get(&rec.id) else {
+                find(
+                    id,
+                    "no event records its import (inserted outside whorl)".into(),
+                );
+                continue;
+            };
+            if rec.raw_sha256 != e.raw_sha256 || rec.technique.name() != e.technique {
+                find(
+                    id.clone(),
+                    "its raw hash or technique differs from the one recorded when it was imported"
+                        .into(),
+                );
+            }
+            if rec.status.name() != e.status {
+                find(
+                    id.clone(),
+                    format!("status is {} but its events say {}", rec.status, e.status),
+                );
+            }
+            if rec.revision != e.current {
+                find(
+                    id.clone(),
+                    format!(
+                        "current revision is {} but its events say {}",
+                        rec.revision, e.current
+                    ),
+                );
+            }
+            let rows = revision_rows
+                .get(&rec.id)
+                .map(Vec::as_slice)
+                .unwrap_or_default();
+            if rows.len() != e.revisions.len() {
+                find(
+                    id.clone(),
+                    format!(
+                        "{} revisions on record, {} in its events",
+                        rows.len(),
+                        e.revisions.len()
+                    ),
+                );
+            }
+            for (n, text) in rows {
+                let stored: Value = serde_json::from_str(text).unwrap_or(Value::Null);
+                if e.revisions.get(n) != Some(&stored) {
+                    find(
+                        id.clone(),
+                        format!(
+                            "metadata of revision {n} differs from what its event recorded (edited)"
+                        ),
+                    );
+                }
+            }
+            if review_counts.get(&rec.id).copied().unwrap_or(0) != e.reviews {
+                find(
+                    id.clone(),
+                    "its sign-offs differ from those its events recorded".into(),
+                );
+            }
+            if rec.status.searchable() {
+                let meta = serde_json::to_string(&rec.metadata)?;
+                sum.add(&record_hash(
+                    rec.technique.name(),
+                    rec.status.name(),
+                    &rec.raw_sha256,
+                    &meta,
+                ));
+            }
+        }
+        let stored_sum = self
+            .setting("content_sum")?
+            .and_then(|s| ContentSum::from_hex(&s))
+            .unwrap_or_default();
+        if stored_sum != sum {
+            find(
+                "library".into(),
+                "the stored fingerprint sum does not match the searchable records".into(),
+            );
+        }
+
+        // 3. Raw blobs and prepared forms, in parallel.
+        let total = records.len();
+        let recipes = self.recipes.clone();
+        let done = std::sync::atomic::AtomicUsize::new(0);
+        for chunk in records.chunks(512) {
+            let mut inputs = Vec::with_capacity(chunk.len());
+            for rec in chunk {
+                let (blob, vector, peaks): (Vec<u8>, Vec<u8>, String) = self.conn.query_row(
+                    "SELECT s.raw, p.vector, p.peaks FROM spectrum s JOIN prepared p ON p.spectrum_id = s.id WHERE s.id = ?1",
+                    [rec.id],
+                    |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+                )?;
+                inputs.push((rec, blob, vector, peaks));
+            }
+            let found: Vec<Finding> = inputs
+                .par_iter()
+                .flat_map_iter(|(rec, blob, vector, peaks)| {
+                    let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+                    progress(n, total);
+                    verify_blob(&recipes, rec, blob, vector, peaks)
+                })
+                .collect();
+            report.findings.extend(found);
+        }
+        report.spectra = total;
+
+        // 4. Derived data.
+        report.text_index_rebuilt = self.refresh_text_index()?;
+        if !report.text_index_rebuilt && self.text.len() != records.len() as u64 {
+            let generation = self.generation()?;
+            self.text
+                .rebuild(records.iter().map(SpectrumRecord::index_doc), generation)?;
+            report.text_index_rebuilt = true;
+        }
+        Ok(report)
+    }
+}
+
+fn verify_blob(
+    recipes: &Recipes,
+    rec: &SpectrumRecord,
+    blob: &[u8],
+    vector: &[u8],
+    peaks: &str,
+) -> Vec<Finding> {
+    let id = format!("spectrum:{}", rec.id);
+    let mut out = Vec::new();
+    if sha256_hex(blob) != rec.raw_sha256 {
+        out.push(Finding {
+            record: id,
+            problem: "its raw points do not match their hash (the raw blob was edited)".into(),
+        });
+        return out;
+    }
+    let again = (|| -> Result<(Vec<u8>, String)> {
+        let points = decode_points(blob).unwrap_or_default();
+        let recipe = recipes.get(&rec.technique).ok_or_else(|| {
+            crate::Error::invalid(
+                format!("no recipe for {}", rec.technique),
+                "the library's recipe table is damaged",
+            )
+        })?;
+        let solvent = rec
+            .metadata
+            .solvent
+            .as_deref()
+            .map(str::parse::<Solvent>)
+            .transpose()?;
+        let label = std::path::PathBuf::from(&id);
+        let p = prepare_raw(
+            &label,
+            recipe,
+            &points,
+            rec.x_unit.parse()?,
+            rec.y_unit.parse()?,
+            solvent,
+        )?;
+        Ok((f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?))
+    })();
+    match again {
+        Ok((v, p)) if v == vector && p == peaks => {}
+        Ok(_) => out.push(Finding {
+            record: id,
+            problem:
+                "its stored prepared vector or peaks differ from its raw points prepared again"
+                    .into(),
+        }),
+        Err(e) => out.push(Finding {
+            record: id,
+            problem: format!("its raw points can no longer be prepared: {e}"),
+        }),
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::Status;
+
+    #[test]
+    fn an_empty_library_checks_clean() {
+        let lib = Library::in_memory("t").unwrap();
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+        assert_eq!(report.events, 1);
+    }
+
+    #[test]
+    fn status_names_are_the_stored_ones() {
+        assert_eq!(Status::Verified.name(), "verified");
+    }
+}
