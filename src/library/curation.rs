@@ -407,6 +407,7 @@ impl Library {
             .filter(|r| !r.is_empty())
             .map(str::to_string);
         self.write(|tx| {
+            correct_sole_compound(tx, id, &metadata)?;
             let compound_id = find_or_create_compound(tx, &metadata)?;
             tx.execute(
                 "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
@@ -515,6 +516,31 @@ pub struct RevisionInfo {
     pub created_by: String,
     /// Why (absent for the first revision).
     pub reason: Option<String>,
+}
+
+/// A revision that corrects the formula of a compound only this spectrum belongs to corrects
+/// the compound too; a compound shared with other spectra keeps its formula (and the revision
+/// is refused by `find_or_create_compound`, naming the conflict).
+fn correct_sole_compound(tx: &Connection, id: i64, metadata: &Metadata) -> Result<()> {
+    let Some(formula) = &metadata.formula else {
+        return Ok(());
+    };
+    let key = super::records::compound_key(metadata);
+    let sharing: Option<(i64, i64)> = tx
+        .query_row(
+            "SELECT c.id, (SELECT count(*) FROM spectrum s WHERE s.compound_id = c.id AND s.id != ?2)
+             FROM compound c WHERE c.key = ?1",
+            params![key, id],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .optional()?;
+    if let Some((compound, 0)) = sharing {
+        tx.execute(
+            "UPDATE compound SET formula = ?2 WHERE id = ?1",
+            params![compound, formula],
+        )?;
+    }
+    Ok(())
 }
 
 /// Parses a stored x unit name.

@@ -2,5 +2,7 @@
 
 mod util;
 
+mod curation;
 mod init;
+mod integrity;
 mod trade_facts;

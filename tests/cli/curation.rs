@@ -1,0 +1,263 @@
+//! Review sign-off, revisions, withdrawal, the audit log, and the default search scope.
+
+use crate::util::{Lab, ir_csv};
+
+/// A lab with one IR spectrum submitted by `s.submitter`; returns its id.
+fn one_spectrum() -> (Lab, String) {
+    let lab = Lab::new();
+    let file = lab.write(
+        "ketone.csv",
+        ir_csv(&[(1715.0, 0.9, 10.0), (2960.0, 0.3, 15.0)]),
+    );
+    let id = lab.ok(&[
+        "add",
+        file.to_str().unwrap(),
+        "-t",
+        "ir",
+        "--name",
+        "example ketone",
+        "--formula",
+        "C3H6O",
+        "--by",
+        "s.submitter",
+    ]);
+    (lab, id.trim().to_string())
+}
+
+fn status(lab: &Lab, id: &str) -> String {
+    lab.json(&["show", id])["spectrum"]["status"]
+        .as_str()
+        .unwrap()
+        .to_string()
+}
+
+#[test]
+fn a_second_analyst_approves_and_the_spectrum_is_searched() {
+    let (lab, id) = one_spectrum();
+    assert_eq!(status(&lab, &id), "pending");
+    let unknown = lab.write("u.csv", ir_csv(&[(1715.0, 0.9, 10.0), (2960.0, 0.3, 15.0)]));
+    let u = unknown.to_str().unwrap();
+    // Pending spectra are not searched by default, and the report says so.
+    let before = lab.json(&["search", u, "-t", "ir"]);
+    assert_eq!(before["hits"].as_array().unwrap().len(), 0);
+    assert!(before["warnings"].to_string().contains("--include-pending"));
+    assert_eq!(
+        lab.json(&["search", u, "-t", "ir", "--include-pending"])["hits"]
+            .as_array()
+            .unwrap()
+            .len(),
+        1
+    );
+
+    let signed = lab.json(&[
+        "review",
+        &id,
+        "--approve",
+        "--by",
+        "r.reviewer",
+        "--note",
+        "checked against CoA",
+    ]);
+    assert_eq!(signed["decision"], "approved");
+    assert_eq!(signed["reviewer"], "r.reviewer");
+    assert!(signed["meaning"].as_str().unwrap().contains("approved"));
+    assert_eq!(status(&lab, &id), "verified");
+    assert_eq!(
+        lab.json(&["search", u, "-t", "ir"])["hits"][0]["status"],
+        "verified"
+    );
+    let shown = lab.json(&["show", &id]);
+    assert_eq!(shown["reviews"][0]["note"], "checked against CoA");
+}
+
+#[test]
+fn self_review_is_refused_unless_the_policy_allows_it() {
+    let (lab, id) = one_spectrum();
+    let err = lab.fails(&["review", &id, "--approve", "--by", "S.Submitter"], 3);
+    assert!(
+        err.contains("reviewer must be someone else") && err.contains("hint:"),
+        "{err}"
+    );
+    assert_eq!(status(&lab, &id), "pending");
+    lab.ok(&["policy", "--self-review", "allow", "--by", "q.manager"]);
+    lab.ok(&["review", &id, "--approve", "--by", "s.submitter"]);
+    assert_eq!(status(&lab, &id), "verified");
+    let log = lab.json(&["log"]);
+    assert!(
+        log.as_array()
+            .unwrap()
+            .iter()
+            .any(|e| e["action"] == "policy" && e["actor"] == "q.manager")
+    );
+}
+
+#[test]
+fn a_rejected_revision_must_be_revised_before_approval() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&[
+        "review",
+        &id,
+        "--reject",
+        "--by",
+        "r.reviewer",
+        "--note",
+        "wrong formula",
+    ]);
+    assert_eq!(status(&lab, &id), "pending");
+    let err = lab.fails(&["review", &id, "--approve", "--by", "r.other"], 3);
+    assert!(err.contains("was rejected by r.reviewer"), "{err}");
+    lab.ok(&[
+        "revise",
+        &id,
+        "--formula",
+        "C4H8O",
+        "--reason",
+        "formula corrected",
+        "--by",
+        "s.submitter",
+    ]);
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    assert_eq!(status(&lab, &id), "verified");
+}
+
+#[test]
+fn a_revision_replaces_the_old_one_and_the_old_one_stays_readable() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    let raw_before = lab.json(&["show", &id])["spectrum"]["raw_sha256"].clone();
+    let out = lab.ok(&[
+        "revise",
+        &id,
+        "--name",
+        "example ketone (corrected)",
+        "--tag",
+        "solvent",
+        "--reason",
+        "name",
+        "--by",
+        "e.editor",
+    ]);
+    assert!(out.contains("revision 2"), "{out}");
+    let now = lab.json(&["show", &id]);
+    assert_eq!(
+        now["spectrum"]["metadata"]["name"],
+        "example ketone (corrected)"
+    );
+    assert_eq!(
+        now["spectrum"]["status"], "pending",
+        "a revision goes back to review"
+    );
+    assert_eq!(
+        now["spectrum"]["raw_sha256"], raw_before,
+        "raw points are never edited"
+    );
+    let old = lab.json(&["show", &id, "--revision", "1"]);
+    assert_eq!(old["spectrum"]["metadata"]["name"], "example ketone");
+    assert_eq!(old["revision"]["created_by"], "s.submitter");
+    assert_eq!(now["revision"]["reason"], "name");
+    // The search finds the new name only.
+    assert_eq!(
+        lab.json(&["find", "corrected"]).as_array().unwrap().len(),
+        1
+    );
+    let err = lab.fails(&["show", &id, "--revision", "7"], 3);
+    assert!(err.contains("no revision 7"), "{err}");
+    let err = lab.fails(&["revise", &id, "--by", "e.editor"], 3);
+    assert!(err.contains("changes nothing"), "{err}");
+}
+
+#[test]
+fn withdrawal_keeps_the_spectrum_out_of_search_and_out_of_review() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    let before = lab.json(&["stats"])["fingerprint"].clone();
+    lab.ok(&[
+        "withdraw",
+        &id,
+        "--reason",
+        "standard lot recalled",
+        "--by",
+        "q.manager",
+    ]);
+    assert_ne!(
+        lab.json(&["stats"])["fingerprint"],
+        before,
+        "withdrawal changes the searchable content"
+    );
+    let shown = lab.json(&["show", &id]);
+    assert_eq!(shown["spectrum"]["status"], "withdrawn");
+    assert_eq!(shown["withdrawn_reason"], "standard lot recalled");
+    let unknown = lab.write("u.csv", ir_csv(&[(1715.0, 0.9, 10.0)]));
+    let hits = lab.json(&[
+        "search",
+        unknown.to_str().unwrap(),
+        "-t",
+        "ir",
+        "--include-pending",
+    ]);
+    assert_eq!(hits["hits"].as_array().unwrap().len(), 0);
+    let err = lab.fails(&["review", &id, "--approve", "--by", "r.other"], 3);
+    assert!(err.contains("withdrawn") && err.contains("hint:"), "{err}");
+    let err = lab.fails(&["withdraw", &id, "--reason", "again"], 3);
+    assert!(err.contains("already withdrawn"), "{err}");
+}
+
+#[test]
+fn an_unknown_id_is_a_clear_error() {
+    let lab = Lab::new();
+    for args in [
+        vec!["show", "99"],
+        vec!["review", "99", "--approve", "--by", "r"],
+        vec!["withdraw", "99", "--reason", "x"],
+        vec!["revise", "99", "--name", "x"],
+        vec!["log", "99"],
+    ] {
+        let err = lab.fails(&args, 3);
+        assert!(
+            err.contains("no spectrum with id 99") && err.contains("whorl list"),
+            "{args:?}: {err}"
+        );
+    }
+}
+
+#[test]
+fn the_log_records_who_did_what_in_order() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    lab.ok(&[
+        "withdraw",
+        &id,
+        "--reason",
+        "superseded",
+        "--by",
+        "q.manager",
+    ]);
+    let events = lab.json(&["log", &id]);
+    let actions: Vec<(&str, &str)> = events
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|e| (e["action"].as_str().unwrap(), e["actor"].as_str().unwrap()))
+        .collect();
+    // The identity is the --by of each command.
+    assert_eq!(
+        actions,
+        [
+            ("add", "s.submitter"),
+            ("review", "r.reviewer"),
+            ("withdraw", "q.manager")
+        ]
+    );
+    let seqs: Vec<i64> = events
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|e| e["seq"].as_i64().unwrap())
+        .collect();
+    assert!(seqs.windows(2).all(|w| w[0] < w[1]));
+    let human = lab.ok(&["log"]);
+    assert!(
+        human.contains("superseded") && human.contains("init"),
+        "{human}"
+    );
+}
