@@ -2,7 +2,9 @@
 
 mod util;
 
+mod bundle;
 mod curation;
 mod init;
 mod integrity;
+mod replay;
 mod trade_facts;

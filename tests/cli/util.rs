@@ -41,12 +41,14 @@ impl Lab {
         p
     }
 
-    /// Runs whorl with `--library <lab>/lib` and the given arguments.
+    /// Runs whorl with `--library <lab>/lib` (unless the arguments name another library) and
+    /// the given arguments.
     pub fn run(&self, args: &[&str]) -> Output {
-        Command::new(env!("CARGO_BIN_EXE_whorl"))
-            .arg("--library")
-            .arg(self.library())
-            .args(args)
+        let mut cmd = Command::new(env!("CARGO_BIN_EXE_whorl"));
+        if !args.contains(&"--library") {
+            cmd.arg("--library").arg(self.library());
+        }
+        cmd.args(args)
             .current_dir(self.dir.path())
             .env("WHORL_USER", "t.tester")
             .env_remove("WHORL_LIBRARY")

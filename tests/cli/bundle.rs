@@ -1,0 +1,278 @@
+//! Export and import of portable bundles.
+
+use std::path::Path;
+
+use crate::util::{Lab, seed};
+
+/// A library with the seed spectra, some reviewed, one revised and one withdrawn.
+fn source() -> Lab {
+    let lab = Lab::new();
+    lab.ok(&["import", seed().join("manifest.csv").to_str().unwrap()]);
+    for id in ["1", "2", "3", "4", "5"] {
+        lab.ok(&[
+            "review",
+            id,
+            "--approve",
+            "--by",
+            "r.reviewer",
+            "--note",
+            "bundle test",
+        ]);
+    }
+    lab.ok(&[
+        "revise",
+        "6",
+        "--note",
+        "second look",
+        "--by",
+        "e.editor",
+        "--reason",
+        "notes",
+    ]);
+    lab.ok(&["review", "7", "--reject", "--by", "r.reviewer"]);
+    lab.ok(&["withdraw", "8", "--reason", "recalled", "--by", "q.manager"]);
+    lab
+}
+
+fn fingerprint(lab: &Lab, library: &Path) -> String {
+    let out = lab.ok(&["--library", library.to_str().unwrap(), "stats", "--json"]);
+    let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+    v["fingerprint"].as_str().unwrap().to_string()
+}
+
+#[test]
+fn export_then_import_into_an_empty_library_keeps_fingerprint_and_history() {
+    let lab = source();
+    let bundle = lab.path("bundle");
+    let info = lab.json(&["export", bundle.to_str().unwrap()]);
+    assert_eq!(info["spectra"], 176);
+    for f in [
+        "manifest.csv",
+        "SHA256SUMS",
+        "bundle.json",
+        "spectra/1.ir.csv",
+    ] {
+        assert!(bundle.join(f).is_file(), "{f}");
+    }
+    let original = lab.json(&["stats"])["fingerprint"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    assert_eq!(
+        info["fingerprint"], original,
+        "a full export carries the library's fingerprint"
+    );
+
+    let target = lab.path("target-lib");
+    lab.ok(&["--library", target.to_str().unwrap(), "init"]);
+    let out = lab.ok(&[
+        "--library",
+        target.to_str().unwrap(),
+        "import",
+        bundle.to_str().unwrap(),
+    ]);
+    assert!(out.contains("imported 176, already present 0"), "{out}");
+    assert_eq!(fingerprint(&lab, &target), original);
+
+    // History survives: sign-offs, revisions, the withdrawal reason, the original file hash.
+    let t = |args: &[&str]| -> serde_json::Value {
+        let mut all = vec!["--library", target.to_str().unwrap()];
+        all.extend_from_slice(args);
+        all.push("--json");
+        serde_json::from_str(&lab.ok(&all)).unwrap()
+    };
+    let orig = |id: &str| lab.json(&["show", id]);
+    let list = t(&["list"]);
+    let find = |name: &str, technique: &str| {
+        list.as_array()
+            .unwrap()
+            .iter()
+            .find(|r| r["name"] == name && r["technique"] == technique)
+            .unwrap()["id"]
+            .to_string()
+    };
+    for id in ["1", "6", "7", "8"] {
+        let o = orig(id);
+        let name = o["spectrum"]["metadata"]["name"].as_str().unwrap();
+        let technique = o["spectrum"]["technique"].as_str().unwrap();
+        let copy = t(&["show", &find(name, technique)]);
+        assert_eq!(
+            copy["spectrum"]["status"], o["spectrum"]["status"],
+            "spectrum {id}"
+        );
+        assert_eq!(
+            copy["spectrum"]["revision"], o["spectrum"]["revision"],
+            "spectrum {id}"
+        );
+        assert_eq!(
+            copy["spectrum"]["file_sha256"], o["spectrum"]["file_sha256"],
+            "spectrum {id}"
+        );
+        assert_eq!(
+            copy["spectrum"]["raw_sha256"], o["spectrum"]["raw_sha256"],
+            "spectrum {id}"
+        );
+        assert_eq!(
+            copy["withdrawn_reason"], o["withdrawn_reason"],
+            "spectrum {id}"
+        );
+        let reviews = |v: &serde_json::Value| -> Vec<(String, String, String)> {
+            v["reviews"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|r| {
+                    (
+                        r["reviewer"].to_string(),
+                        r["decision"].to_string(),
+                        r["at"].to_string(),
+                    )
+                })
+                .collect()
+        };
+        assert_eq!(reviews(&copy), reviews(&o), "spectrum {id}");
+    }
+    let old = t(&["show", &find("acetone", "ir"), "--revision", "1"]);
+    assert_eq!(old["revision"]["number"], 1);
+    // The copy checks clean, and importing the same bundle again adds nothing.
+    t(&["check"]);
+    let again = lab.ok(&[
+        "--library",
+        target.to_str().unwrap(),
+        "import",
+        bundle.to_str().unwrap(),
+    ]);
+    assert!(again.contains("imported 0, already present 176"), "{again}");
+    assert_eq!(fingerprint(&lab, &target), original);
+}
+
+#[test]
+fn a_filtered_export_holds_only_what_matches() {
+    let lab = source();
+    let bundle = lab.path("ketones");
+    let info = lab.json(&[
+        "export",
+        bundle.to_str().unwrap(),
+        "--where",
+        "class:ketone",
+        "--status",
+        "pending",
+    ]);
+    // Five compounds whose class contains "ketone" in the seed tables (acetone, 2-butanone,
+    // cyclohexanone, 4-methyl-2-pentanone, and acetophenone, an "aromatic ketone") times four
+    // techniques, all pending (the reviewed spectra are methanol's and ethanol's).
+    let expected = whorl_seed_count(|c| c["class"].as_str().unwrap().contains("ketone")) * 4;
+    assert_eq!(info["spectra"], expected);
+    let manifest = std::fs::read_to_string(bundle.join("manifest.csv")).unwrap();
+    assert_eq!(manifest.lines().count(), expected + 1);
+}
+
+fn whorl_seed_count(pick: impl Fn(&serde_json::Value) -> bool) -> usize {
+    let text = std::fs::read_to_string(seed().join("compounds.json")).unwrap();
+    let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+    v["compounds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|c| pick(c))
+        .count()
+}
+
+fn bundle_of_three() -> (Lab, std::path::PathBuf) {
+    let lab = source();
+    let bundle = lab.path("small");
+    lab.ok(&[
+        "export",
+        bundle.to_str().unwrap(),
+        "--where",
+        "name:toluene",
+    ]);
+    (lab, bundle)
+}
+
+fn import_fails(lab: &Lab, bundle: &Path, words: &str) {
+    let target = lab.path("fresh");
+    if !target.exists() {
+        lab.ok(&["--library", target.to_str().unwrap(), "init"]);
+    }
+    let before = fingerprint(lab, &target);
+    let out = lab.run(&[
+        "--library",
+        target.to_str().unwrap(),
+        "import",
+        bundle.to_str().unwrap(),
+    ]);
+    let text = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(3), "{text}");
+    assert!(text.contains(words) && text.contains("hint:"), "{text}");
+    assert_eq!(fingerprint(lab, &target), before, "nothing was imported");
+}
+
+#[test]
+fn a_bundle_with_a_missing_file_is_refused() {
+    let (lab, bundle) = bundle_of_three();
+    let victim = std::fs::read_dir(bundle.join("spectra"))
+        .unwrap()
+        .next()
+        .unwrap()
+        .unwrap()
+        .path();
+    std::fs::remove_file(victim).unwrap();
+    import_fails(&lab, &bundle, "is listed but cannot be read");
+}
+
+#[test]
+fn a_bundle_with_a_wrong_checksum_is_refused() {
+    let (lab, bundle) = bundle_of_three();
+    let victim = std::fs::read_dir(bundle.join("spectra"))
+        .unwrap()
+        .next()
+        .unwrap()
+        .unwrap()
+        .path();
+    let mut text = std::fs::read_to_string(&victim).unwrap();
+    text.push_str("9999,1\n");
+    std::fs::write(&victim, text).unwrap();
+    import_fails(&lab, &bundle, "does not match its checksum");
+}
+
+#[test]
+fn a_bundle_path_that_escapes_its_folder_is_refused() {
+    let (lab, bundle) = bundle_of_three();
+    lab.write("outside.csv", "1,2\n");
+    let sums = bundle.join("SHA256SUMS");
+    let mut text = std::fs::read_to_string(&sums).unwrap();
+    let digest = whorl::spectrum::sha256_hex(b"1,2\n");
+    text.push_str(&format!("{digest}  ../outside.csv\n"));
+    std::fs::write(&sums, text).unwrap();
+    import_fails(&lab, &bundle, "outside the manifest's folder");
+}
+
+#[test]
+fn a_file_without_a_checksum_is_refused() {
+    let (lab, bundle) = bundle_of_three();
+    std::fs::write(bundle.join("spectra/extra.csv"), "1,2\n").unwrap();
+    import_fails(&lab, &bundle, "has no checksum");
+}
+
+#[test]
+fn a_bundle_manifest_given_as_a_plain_manifest_is_refused() {
+    let (lab, bundle) = bundle_of_three();
+    let err = lab.fails(
+        &["import", bundle.join("manifest.csv").to_str().unwrap()],
+        3,
+    );
+    assert!(err.contains("import the bundle's folder"), "{err}");
+}
+
+#[test]
+fn export_refuses_a_folder_that_is_not_empty() {
+    let lab = Lab::new();
+    lab.write("full/x.txt", "keep me");
+    let err = lab.fails(&["export", lab.path("full").to_str().unwrap()], 3);
+    assert!(err.contains("not empty"), "{err}");
+    assert_eq!(
+        std::fs::read_to_string(lab.path("full/x.txt")).unwrap(),
+        "keep me"
+    );
+}
