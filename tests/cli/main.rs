@@ -2,4 +2,6 @@
 
 mod util;
 
+mod add;
+mod import;
 mod init;
