@@ -179,6 +179,26 @@ fn extra_columns_are_kept_and_searchable() {
 }
 
 #[test]
+fn extra_column_values_of_several_words_are_searchable() {
+    // Regression: values that split into several terms ('QX-12', "aromatic alcohol") made
+    // a phrase query over the extra-column field, which was indexed without positions, so
+    // the query failed with "does not have positions indexed".
+    let lab = Lab::new();
+    let path = manifest(&lab, "good.csv", false);
+    lab.ok(&["import", &path]);
+    assert_eq!(
+        names(&lab.json(&["find", "lot:QX-12"])),
+        ["ir compound a", "ms-ei compound a"]
+            .map(String::from)
+            .into()
+    );
+    assert_eq!(
+        names(&lab.json(&["find", "class:\"aromatic alcohol\""])),
+        ["ir compound b"].map(String::from).into()
+    );
+}
+
+#[test]
 fn the_seed_class_column_is_searchable() {
     let lab = Lab::seeded();
     let rows = csv_rows(&seed().join("manifest.csv"));
