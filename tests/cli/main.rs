@@ -5,3 +5,4 @@ mod util;
 mod add;
 mod import;
 mod init;
+mod search;

@@ -118,6 +118,14 @@ impl Lab {
         }
     }
 
+    /// The library fingerprint from `stats --json`.
+    pub fn fingerprint(&self) -> String {
+        self.json(&["stats"])["fingerprint"]
+            .as_str()
+            .expect("fingerprint is a string")
+            .to_string()
+    }
+
     /// Runs whorl expecting it to fail with `code` and to leave the library exactly as it
     /// was; returns stderr and stdout together.
     pub fn refuses(&self, args: &[&str], code: i32) -> String {
@@ -178,6 +186,12 @@ pub fn csv_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
                 .collect()
         })
         .collect()
+}
+
+/// SHA-256 of a file's bytes, lower-case hex.
+pub fn sha256_of(path: &Path) -> String {
+    use sha2::Digest;
+    hex::encode(sha2::Sha256::digest(std::fs::read(path).unwrap()))
 }
 
 /// The keys of a JSON object, sorted.
