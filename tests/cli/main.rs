@@ -3,6 +3,10 @@
 mod util;
 
 mod add;
+mod find;
 mod import;
 mod init;
+mod list;
 mod search;
+mod show;
+mod stats;
