@@ -3,6 +3,7 @@
 mod util;
 
 mod add;
+mod demo;
 mod find;
 mod import;
 mod init;
