@@ -3,6 +3,7 @@
 mod util;
 
 mod add;
+mod bad_input;
 mod demo;
 mod find;
 mod import;

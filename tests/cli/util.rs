@@ -206,6 +206,15 @@ pub fn keys(v: &Value) -> Vec<&str> {
     k
 }
 
+/// A two-column file: a header line, then one `x,y` line per point.
+pub fn xy_csv(header: &str, points: &[(f64, f64)]) -> String {
+    let mut s = format!("{header}\n");
+    for (x, y) in points {
+        s.push_str(&format!("{x},{y}\n"));
+    }
+    s
+}
+
 fn gaussian_sum(x: f64, bands: &[(f64, f64, f64)]) -> f64 {
     bands
         .iter()
@@ -233,6 +242,17 @@ pub fn ir_micrometre_csv(bands: &[(f64, f64, f64)]) -> String {
         let x = 2.5 + 0.01 * i as f64;
         let y = 0.01 + gaussian_sum(x, bands);
         s.push_str(&format!("{x:.2},{y:.6}\n"));
+    }
+    s
+}
+
+/// A synthetic Raman spectrum in counts, 100..3500 cm-1 at 2 cm-1, with Gaussian bands.
+pub fn raman_csv(bands: &[(f64, f64, f64)]) -> String {
+    let mut s = String::from("raman_shift,counts\n");
+    for i in 0..=1700 {
+        let x = 100.0 + 2.0 * i as f64;
+        let y = 100.0 + gaussian_sum(x, bands);
+        s.push_str(&format!("{x},{y:.1}\n"));
     }
     s
 }
