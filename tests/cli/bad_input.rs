@@ -1,7 +1,9 @@
 //! Every rejected input: the documented exit code (3 for input, 4 for the library), an
 //! error that names the file (and line), a `hint:` line, and a library left as it was.
 
-use crate::util::{Lab, hint, ir_csv, ir_micrometre_csv, ms_csv, nmr_csv, raman_csv, sha256_of};
+use crate::util::{
+    Lab, hint, ir_csv, ir_micrometre_csv, ms_csv, nmr_csv, raman_csv, sha256_of, xy_csv,
+};
 
 /// A library holding one spectrum, so that "unchanged" has something to compare.
 fn lab() -> Lab {
@@ -54,10 +56,6 @@ fn ir_points(n: usize) -> Vec<(f64, f64)> {
         .collect()
 }
 
-fn xy(header: &str, points: &[(f64, f64)]) -> String {
-    crate::util::xy_csv(header, points)
-}
-
 fn contains(text: &str, part: &str) {
     assert!(text.contains(part), "expected {part:?} in\n{text}");
 }
@@ -76,7 +74,7 @@ fn a_header_without_data() {
 
 #[test]
 fn fewer_than_10_ir_points() {
-    let text = refused_add(xy("x,y", &ir_points(9)), "ir", &[], "bad.csv");
+    let text = refused_add(xy_csv("x,y", &ir_points(9)), "ir", &[], "bad.csv");
     contains(&text, "only 9 data points");
     contains(&text, "at least 10");
 }
@@ -84,14 +82,14 @@ fn fewer_than_10_ir_points() {
 #[test]
 fn fewer_than_10_raman_points() {
     let points: Vec<_> = (0..9).map(|i| (200.0 + 100.0 * i as f64, 500.0)).collect();
-    let text = refused_add(xy("shift,counts", &points), "raman", &[], "bad.csv");
+    let text = refused_add(xy_csv("shift,counts", &points), "raman", &[], "bad.csv");
     contains(&text, "only 9 data points");
 }
 
 #[test]
 fn fewer_than_10_nmr_points() {
     let points: Vec<_> = (0..9).map(|i| (8.0 - i as f64, 10.0)).collect();
-    let text = refused_add(xy("ppm,intensity", &points), "nmr-1h", &[], "bad.csv");
+    let text = refused_add(xy_csv("ppm,intensity", &points), "nmr-1h", &[], "bad.csv");
     contains(&text, "only 9 data points");
 }
 
@@ -197,7 +195,7 @@ fn a_negative_ion_abundance() {
 #[test]
 fn an_ir_spectrum_of_zeros() {
     let points: Vec<_> = ir_points(20).into_iter().map(|(x, _)| (x, 0.0)).collect();
-    let text = refused_add(xy("x,y", &points), "ir", &[], "bad.csv");
+    let text = refused_add(xy_csv("x,y", &points), "ir", &[], "bad.csv");
     contains(&text, "every intensity is zero");
 }
 
