@@ -28,7 +28,12 @@ fn main() -> ExitCode {
 
 fn is_broken_pipe(err: &anyhow::Error) -> bool {
     err.chain().any(|e| {
-        e.downcast_ref::<std::io::Error>()
-            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+        // serde_json wraps the io::Error of a failed write without exposing it as a
+        // source, so JSON output is asked for its I/O error kind directly.
+        let kind = e
+            .downcast_ref::<std::io::Error>()
+            .map(std::io::Error::kind)
+            .or_else(|| e.downcast_ref::<serde_json::Error>()?.io_error_kind());
+        kind == Some(std::io::ErrorKind::BrokenPipe)
     })
 }

@@ -11,8 +11,9 @@ use super::{Context, identity, output};
 #[derive(Debug, Args)]
 #[command(group(clap::ArgGroup::new("decision").required(true).args(["approve", "reject"])))]
 pub struct ReviewArgs {
-    /// Spectrum id
-    pub id: i64,
+    /// Spectrum ids: one sign-off each, recorded together (all or none)
+    #[arg(required = true, num_args = 1.., value_name = "ID")]
+    pub ids: Vec<i64>,
     /// Approve it as a reference: it becomes verified and is searched by default
     #[arg(long)]
     pub approve: bool,
@@ -41,8 +42,8 @@ pub fn run(args: ReviewArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         Decision::Reject
     };
     let reviewer = identity(args.by.as_deref());
-    let review = lib.review(
-        args.id,
+    let reviews = lib.review_many(
+        &args.ids,
         &reviewer,
         decision,
         args.meaning.as_deref(),
@@ -50,8 +51,14 @@ pub fn run(args: ReviewArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     )?;
     let mut out = std::io::stdout().lock();
     if args.json {
-        output::json(&mut out, &review)?;
-    } else {
+        if let [one] = reviews.as_slice() {
+            output::json(&mut out, one)?;
+        } else {
+            output::json(&mut out, &reviews)?;
+        }
+        return Ok(ExitCode::SUCCESS);
+    }
+    for review in &reviews {
         writeln!(
             out,
             "spectrum {} revision {} {} by {} at {}: {}",

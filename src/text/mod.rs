@@ -7,7 +7,8 @@ use std::path::Path;
 use tantivy::collector::{DocSetCollector, TopDocs};
 use tantivy::query::QueryParser;
 use tantivy::schema::{
-    FAST, Field, INDEXED, STORED, STRING, Schema, TEXT, TextFieldIndexing, TextOptions, Value,
+    FAST, Field, INDEXED, IndexRecordOption, STORED, STRING, Schema, TEXT, TextFieldIndexing,
+    TextOptions, Value,
 };
 use tantivy::{Index, IndexReader, IndexWriter, TantivyDocument, Term};
 
@@ -74,8 +75,13 @@ pub const QUERY_FIELDS: [&str; 15] = [
 
 fn schema() -> (Schema, Fields) {
     let mut b = Schema::builder();
-    let json = TextOptions::default()
-        .set_indexing_options(TextFieldIndexing::default().set_tokenizer("default"));
+    // Positions, like TEXT fields have, so that a value of several words ('QR-3727',
+    // "aromatic ketone") can be queried: the query parser turns it into a phrase.
+    let json = TextOptions::default().set_indexing_options(
+        TextFieldIndexing::default()
+            .set_tokenizer("default")
+            .set_index_option(IndexRecordOption::WithFreqsAndPositions),
+    );
     let fields = Fields {
         spectrum_id: b.add_u64_field("spectrum_id", INDEXED | STORED | FAST),
         compound_id: b.add_u64_field("compound_id", STORED | FAST),

@@ -2,9 +2,18 @@
 
 mod util;
 
+mod add;
+mod bad_input;
 mod bundle;
 mod curation;
+mod demo;
+mod find;
+mod import;
 mod init;
 mod integrity;
+mod list;
 mod replay;
+mod search;
+mod show;
+mod stats;
 mod trade_facts;

@@ -1,11 +1,22 @@
 //! Helpers for running the real `whorl` binary against temporary libraries.
 
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
+
+use serde_json::Value;
 
 /// A temporary folder holding a library and any input files a test writes.
 pub struct Lab {
     pub dir: tempfile::TempDir,
+}
+
+/// What can be seen of a library from outside: `stats --json` (fingerprint, counts, events)
+/// and `list --json`. Two equal states mean nothing was written.
+#[derive(Debug, PartialEq)]
+pub struct State {
+    pub stats: Value,
+    pub list: Value,
 }
 
 impl Lab {
@@ -23,6 +34,26 @@ impl Lab {
         }
     }
 
+    /// A fresh library holding every spectrum of the seed library's manifest.
+    /// A library holding the seed spectra, all signed off by a second analyst (search covers
+    /// verified spectra by default).
+    pub fn seeded() -> Lab {
+        let lab = Lab::new();
+        let manifest = seed().join("manifest.csv");
+        lab.ok(&["import", manifest.to_str().unwrap()]);
+        let list = lab.json(&["list"]);
+        let ids: Vec<String> = list
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|r| r["id"].to_string())
+            .collect();
+        let mut args = vec!["review", "--approve", "--by", "r.second"];
+        args.extend(ids.iter().map(String::as_str));
+        lab.ok(&args);
+        lab
+    }
+
     pub fn library(&self) -> PathBuf {
         self.dir.path().join("lib")
     }
@@ -31,7 +62,8 @@ impl Lab {
         self.dir.path().join(name)
     }
 
-    /// Writes a file relative to the lab folder, creating folders as needed.
+    /// Writes a file relative to the lab folder, creating folders as needed. Commands run
+    /// in the lab folder, so tests can pass `name` itself on the command line.
     pub fn write(&self, name: &str, contents: impl AsRef<[u8]>) -> PathBuf {
         let p = self.path(name);
         if let Some(parent) = p.parent() {
@@ -91,11 +123,117 @@ impl Lab {
         all.push("--json");
         serde_json::from_str(&self.ok(&all)).expect("valid JSON")
     }
+
+    /// The library as seen by `stats --json` and `list --json`.
+    pub fn state(&self) -> State {
+        State {
+            stats: self.json(&["stats"]),
+            list: self.json(&["list"]),
+        }
+    }
+
+    /// The library fingerprint from `stats --json`.
+    pub fn fingerprint(&self) -> String {
+        self.json(&["stats"])["fingerprint"]
+            .as_str()
+            .expect("fingerprint is a string")
+            .to_string()
+    }
+
+    /// Runs whorl expecting it to fail with `code` and to leave the library exactly as it
+    /// was; returns stderr and stdout together.
+    pub fn refuses(&self, args: &[&str], code: i32) -> String {
+        let before = self.state();
+        let text = self.fails(args, code);
+        assert_eq!(
+            self.state(),
+            before,
+            "whorl {args:?} changed the library although it failed\n{text}"
+        );
+        text
+    }
+
+    /// Writes `contents` to `file` and adds it with `whorl add`; returns the printed id.
+    pub fn add(
+        &self,
+        file: &str,
+        contents: &str,
+        technique: &str,
+        name: &str,
+        more: &[&str],
+    ) -> i64 {
+        self.write(file, contents);
+        let mut args = vec!["add", file, "--technique", technique, "--name", name];
+        args.extend_from_slice(more);
+        let out = self.ok(&args);
+        out.trim()
+            .parse()
+            .unwrap_or_else(|_| panic!("add printed {out:?}, not an id"))
+    }
+}
+
+/// The text of the `hint: ...` line in a command's output; fails the test when there is none.
+pub fn hint(text: &str) -> &str {
+    text.lines()
+        .filter_map(|l| l.trim_start().strip_prefix("hint: "))
+        .find(|h| !h.trim().is_empty())
+        .unwrap_or_else(|| panic!("no 'hint: ...' line in:\n{text}"))
 }
 
 /// The repository's seed library.
 pub fn seed() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("seed-library")
+}
+
+/// The data rows of a CSV file, each as column name -> value.
+pub fn csv_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
+    let mut reader = csv::Reader::from_path(path).expect("readable CSV");
+    let headers = reader.headers().unwrap().clone();
+    reader
+        .records()
+        .map(|r| {
+            let r = r.expect("valid CSV row");
+            headers
+                .iter()
+                .zip(r.iter())
+                .map(|(h, v)| (h.to_string(), v.to_string()))
+                .collect()
+        })
+        .collect()
+}
+
+/// SHA-256 of a file's bytes, lower-case hex.
+pub fn sha256_of(path: &Path) -> String {
+    use sha2::Digest;
+    hex::encode(sha2::Sha256::digest(std::fs::read(path).unwrap()))
+}
+
+/// The keys of a JSON object, sorted.
+pub fn keys(v: &Value) -> Vec<&str> {
+    let mut k: Vec<&str> = v
+        .as_object()
+        .unwrap_or_else(|| panic!("not an object: {v}"))
+        .keys()
+        .map(String::as_str)
+        .collect();
+    k.sort_unstable();
+    k
+}
+
+/// A two-column file: a header line, then one `x,y` line per point.
+pub fn xy_csv(header: &str, points: &[(f64, f64)]) -> String {
+    let mut s = format!("{header}\n");
+    for (x, y) in points {
+        s.push_str(&format!("{x},{y}\n"));
+    }
+    s
+}
+
+fn gaussian_sum(x: f64, bands: &[(f64, f64, f64)]) -> f64 {
+    bands
+        .iter()
+        .map(|&(c, h, w)| h * (-((x - c) / w).powi(2)).exp())
+        .sum()
 }
 
 /// A synthetic IR spectrum in absorbance, 4000..400 cm-1 at 2 cm-1, with Gaussian bands
@@ -104,12 +242,52 @@ pub fn ir_csv(bands: &[(f64, f64, f64)]) -> String {
     let mut s = String::from("wavenumber,absorbance\n");
     for i in 0..=1800 {
         let x = 4000.0 - 2.0 * i as f64;
-        let y: f64 = 0.01
-            + bands
-                .iter()
-                .map(|&(c, h, w)| h * (-((x - c) / w).powi(2)).exp())
-                .sum::<f64>();
+        let y = 0.01 + gaussian_sum(x, bands);
         s.push_str(&format!("{x},{y:.6}\n"));
+    }
+    s
+}
+
+/// The same kind of IR spectrum with x as wavelength in micrometres, 2.5..25 um at 0.01 um;
+/// band centres and widths are given in micrometres.
+pub fn ir_micrometre_csv(bands: &[(f64, f64, f64)]) -> String {
+    let mut s = String::from("wavelength_um,absorbance\n");
+    for i in 0..=2250 {
+        let x = 2.5 + 0.01 * i as f64;
+        let y = 0.01 + gaussian_sum(x, bands);
+        s.push_str(&format!("{x:.2},{y:.6}\n"));
+    }
+    s
+}
+
+/// A synthetic Raman spectrum in counts, 100..3500 cm-1 at 2 cm-1, with Gaussian bands.
+pub fn raman_csv(bands: &[(f64, f64, f64)]) -> String {
+    let mut s = String::from("raman_shift,counts\n");
+    for i in 0..=1700 {
+        let x = 100.0 + 2.0 * i as f64;
+        let y = 100.0 + gaussian_sum(x, bands);
+        s.push_str(&format!("{x},{y:.1}\n"));
+    }
+    s
+}
+
+/// A synthetic 1H NMR spectrum, 12..-0.5 ppm at 0.005 ppm, with Gaussian lines
+/// `(shift, height, width)`.
+pub fn nmr_csv(lines: &[(f64, f64, f64)]) -> String {
+    let mut s = String::from("ppm,intensity\n");
+    for i in 0..=2500 {
+        let x = 12.0 - 0.005 * i as f64;
+        let y = 1.0 + gaussian_sum(x, lines);
+        s.push_str(&format!("{x:.3},{y:.3}\n"));
+    }
+    s
+}
+
+/// A centroided EI mass spectrum: one `m/z,abundance` line per ion.
+pub fn ms_csv(ions: &[(u32, f64)]) -> String {
+    let mut s = String::from("mz,abundance\n");
+    for (mz, a) in ions {
+        s.push_str(&format!("{mz},{a}\n"));
     }
     s
 }

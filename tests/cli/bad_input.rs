@@ -1,0 +1,387 @@
+//! Every rejected input: the documented exit code (3 for input, 4 for the library), an
+//! error that names the file (and line), a `hint:` line, and a library left as it was.
+
+use crate::util::{
+    Lab, hint, ir_csv, ir_micrometre_csv, ms_csv, nmr_csv, raman_csv, sha256_of, xy_csv,
+};
+
+/// A library holding one spectrum, so that "unchanged" has something to compare.
+fn lab() -> Lab {
+    let lab = Lab::new();
+    lab.add(
+        "ref.csv",
+        &ir_csv(&[(1715.0, 0.8, 10.0)]),
+        "ir",
+        "reference",
+        &[],
+    );
+    lab
+}
+
+/// `whorl add bad.csv` with `contents` must fail with exit 3 and an error starting with
+/// `at` (the file, or the file and line), print a hint and leave the library as it was.
+/// Returns the output for further checks.
+fn refused_add(contents: impl AsRef<[u8]>, technique: &str, more: &[&str], at: &str) -> String {
+    let lab = lab();
+    lab.write("bad.csv", contents);
+    let mut args = vec!["add", "bad.csv", "--technique", technique, "--name", "bad"];
+    args.extend_from_slice(more);
+    let text = lab.refuses(&args, 3);
+    assert!(
+        text.contains(&format!("error: {at}: ")),
+        "expected 'error: {at}: ...' in\n{text}"
+    );
+    assert!(!hint(&text).is_empty());
+    text
+}
+
+/// Imports `m/list.csv` (with `files` written beside it) expecting its one row to be
+/// rejected: exit 3, the manifest's file and line, a hint, and nothing stored.
+fn refused_row(manifest: &str, files: &[(&str, String)]) -> String {
+    let lab = lab();
+    for (name, contents) in files {
+        lab.write(&format!("m/{name}"), contents);
+    }
+    lab.write("m/list.csv", manifest);
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    assert!(text.contains("rejected m/list.csv:2 ("), "{text}");
+    assert!(!hint(&text).is_empty());
+    text
+}
+
+/// `n` IR points from 4000 cm-1 down in steps of 100.
+fn ir_points(n: usize) -> Vec<(f64, f64)> {
+    (0..n)
+        .map(|i| (4000.0 - 100.0 * i as f64, 0.1 + 0.01 * i as f64))
+        .collect()
+}
+
+fn contains(text: &str, part: &str) {
+    assert!(text.contains(part), "expected {part:?} in\n{text}");
+}
+
+#[test]
+fn an_empty_file() {
+    let text = refused_add("", "ir", &[], "bad.csv");
+    contains(&text, "empty");
+}
+
+#[test]
+fn a_header_without_data() {
+    let text = refused_add("wavenumber,absorbance\n", "ir", &[], "bad.csv");
+    contains(&text, "header line but no data");
+}
+
+#[test]
+fn fewer_than_10_ir_points() {
+    let text = refused_add(xy_csv("x,y", &ir_points(9)), "ir", &[], "bad.csv");
+    contains(&text, "only 9 data points");
+    contains(&text, "at least 10");
+}
+
+#[test]
+fn fewer_than_10_raman_points() {
+    let points: Vec<_> = (0..9).map(|i| (200.0 + 100.0 * i as f64, 500.0)).collect();
+    let text = refused_add(xy_csv("shift,counts", &points), "raman", &[], "bad.csv");
+    contains(&text, "only 9 data points");
+}
+
+#[test]
+fn fewer_than_10_nmr_points() {
+    let points: Vec<_> = (0..9).map(|i| (8.0 - i as f64, 10.0)).collect();
+    let text = refused_add(xy_csv("ppm,intensity", &points), "nmr-1h", &[], "bad.csv");
+    contains(&text, "only 9 data points");
+}
+
+#[test]
+fn a_mass_spectrum_without_peaks() {
+    let text = refused_add(
+        ms_csv(&[(15, 0.0), (43, 0.0), (58, 0.0)]),
+        "ms-ei",
+        &[],
+        "bad.csv",
+    );
+    contains(&text, "no peaks");
+}
+
+#[test]
+fn a_field_that_is_not_a_number() {
+    let text = refused_add("x,y\n4000,0.1\n3998,abc\n", "ir", &[], "bad.csv:3");
+    contains(&text, "'abc' is not a number");
+}
+
+#[test]
+fn a_decimal_comma_in_a_comma_delimited_file() {
+    // Both numbers with a decimal comma: four fields where two were meant.
+    let text = refused_add("x,y\n4000,5,0,1\n", "ir", &[], "bad.csv:2");
+    assert!(hint(&text).contains("';'"), "{text}");
+}
+
+#[test]
+fn a_nan() {
+    let text = refused_add("x,y\n4000,0.1\n3998,NaN\n", "ir", &[], "bad.csv:3");
+    contains(&text, "not a finite number");
+}
+
+#[test]
+fn an_infinity() {
+    let text = refused_add("x,y\n4000,0.1\n3998,0.2\ninf,0.3\n", "ir", &[], "bad.csv:4");
+    contains(&text, "not a finite number");
+}
+
+#[test]
+fn a_repeated_x() {
+    // ir_csv has a header, then x = 4000 - 2 i on line i + 2: x = 1000 is on line 1502,
+    // and the appended point is line 1803.
+    let text = format!("{}1000,0.5\n", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    let text = refused_add(text, "ir", &[], "bad.csv:1803");
+    contains(&text, "x = 1000 appears twice (lines 1502 and 1803)");
+}
+
+#[test]
+fn an_ir_x_below_10_per_cm() {
+    let text = format!("{}5,0.1\n", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    let text = refused_add(text, "ir", &[], "bad.csv:1803");
+    contains(&text, "x = 5 is outside");
+}
+
+#[test]
+fn an_ir_x_above_10000_per_cm() {
+    let text = format!("{}10001,0.1\n", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    let text = refused_add(text, "ir", &[], "bad.csv");
+    assert!(hint(&text).contains("--x-unit nm"), "{text}");
+}
+
+#[test]
+fn an_nmr_shift_below_minus_5_ppm() {
+    // nmr_csv has a header and 2501 points: the appended point is line 2503.
+    let text = format!("{}-6,1\n", nmr_csv(&[(2.0, 100.0, 0.01)]));
+    let text = refused_add(text, "nmr-1h", &[], "bad.csv:2503");
+    contains(&text, "x = -6 is outside");
+}
+
+#[test]
+fn an_nmr_shift_above_20_ppm() {
+    let text = format!("{}21,1\n", nmr_csv(&[(2.0, 100.0, 0.01)]));
+    let text = refused_add(text, "nmr-1h", &[], "bad.csv:2503");
+    contains(&text, "x = 21 is outside");
+}
+
+#[test]
+fn an_mz_of_zero() {
+    let text = refused_add(ms_csv(&[(0, 10.0), (43, 999.0)]), "ms-ei", &[], "bad.csv:2");
+    contains(&text, "x = 0 is outside");
+}
+
+#[test]
+fn an_ir_file_in_micrometres_without_x_unit() {
+    let text = ir_micrometre_csv(&[(5.83, 0.8, 0.03)]);
+    let text = refused_add(text, "ir", &[], "bad.csv");
+    contains(&text, "micrometres");
+    assert!(hint(&text).contains("--x-unit um"), "{text}");
+}
+
+#[test]
+fn a_negative_ion_abundance() {
+    let text = refused_add(
+        "mz,abundance\n15,10\n28,-5\n43,999\n",
+        "ms-ei",
+        &[],
+        "bad.csv:3",
+    );
+    contains(&text, "negative ion abundance");
+}
+
+#[test]
+fn an_ir_spectrum_of_zeros() {
+    let points: Vec<_> = ir_points(20).into_iter().map(|(x, _)| (x, 0.0)).collect();
+    let text = refused_add(xy_csv("x,y", &points), "ir", &[], "bad.csv");
+    contains(&text, "every intensity is zero");
+}
+
+#[test]
+fn a_raman_spectrum_outside_its_range() {
+    let text = format!("{}6000,100\n", raman_csv(&[(1000.0, 5000.0, 5.0)]));
+    // raman_csv has a header and 1701 points: the appended point is line 1703.
+    let text = refused_add(text, "raman", &[], "bad.csv:1703");
+    contains(&text, "x = 6000 is outside");
+}
+
+#[test]
+fn a_file_that_is_not_utf8() {
+    let text = refused_add(
+        b"x,y\n4000,0.1\n3998,\xff\xfe\n".as_slice(),
+        "ir",
+        &[],
+        "bad.csv:3",
+    );
+    contains(&text, "not valid UTF-8");
+}
+
+#[test]
+fn a_utf16_file() {
+    let mut bytes = vec![0xFF, 0xFE];
+    for unit in "x,y\n4000,0.1\n".encode_utf16() {
+        bytes.extend_from_slice(&unit.to_le_bytes());
+    }
+    let text = refused_add(bytes, "ir", &[], "bad.csv");
+    contains(&text, "UTF-16");
+}
+
+#[test]
+fn a_missing_file() {
+    let lab = lab();
+    let text = lab.refuses(&["add", "missing.csv", "-t", "ir", "--name", "x"], 3);
+    contains(&text, "error: missing.csv: cannot read the file");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn a_bad_unknown_is_refused_by_search_as_well() {
+    let lab = lab();
+    lab.write("u.csv", "x,y\n4000,0.1\n3998,abc\n");
+    let text = lab.refuses(&["search", "u.csv", "-t", "ir"], 3);
+    contains(&text, "error: u.csv:3: ");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn an_unknown_technique_on_the_command_line() {
+    let lab = lab();
+    lab.write("a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    // clap refuses the value before whorl runs: its usage-error code is 2.
+    let text = lab.refuses(&["add", "a.csv", "--technique", "uv", "--name", "x"], 2);
+    contains(&text, "unknown technique 'uv'");
+}
+
+#[test]
+fn an_unknown_technique_in_a_manifest_row() {
+    let text = refused_row(
+        "file,technique,name\na.csv,uv,x\n",
+        &[("a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]))],
+    );
+    contains(&text, "unknown technique 'uv'");
+    assert!(hint(&text).contains("ir, raman, ms-ei, nmr-1h"), "{text}");
+}
+
+#[test]
+fn a_manifest_row_naming_a_missing_file() {
+    let text = refused_row("file,technique,name\nmissing.csv,ir,x\n", &[]);
+    contains(&text, "(missing.csv)");
+    contains(&text, "m/missing.csv: cannot read the file");
+}
+
+#[test]
+fn a_missing_manifest() {
+    let lab = lab();
+    let text = lab.refuses(&["import", "nowhere.csv"], 3);
+    contains(&text, "error: nowhere.csv: cannot read the manifest");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn a_manifest_without_a_required_column() {
+    let lab = lab();
+    lab.write("m/a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    lab.write("m/list.csv", "file,name\na.csv,x\n");
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(
+        &text,
+        "error: m/list.csv:1: the manifest has no 'technique' column",
+    );
+    assert!(hint(&text).contains("file,technique,name"), "{text}");
+}
+
+#[test]
+fn a_manifest_row_with_a_wrong_number_of_fields() {
+    let lab = lab();
+    lab.write("m/a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    lab.write("m/list.csv", "file,technique,name\na.csv,ir,x\na.csv,ir\n");
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(&text, "error: m/list.csv:3: ");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn a_manifest_path_that_climbs_out_of_its_folder() {
+    let lab = lab();
+    // The file exists, so only its place can be the reason for the refusal.
+    lab.write("x.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    lab.write("m/list.csv", "file,technique,name\n../x.csv,ir,x\n");
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(&text, "rejected m/list.csv:2 (../x.csv)");
+    contains(&text, "outside the manifest's folder");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn a_manifest_path_that_is_absolute() {
+    let lab = lab();
+    let file = lab.write("m/x.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    let file = file.to_str().unwrap();
+    lab.write("m/list.csv", format!("file,technique,name\n{file},ir,x\n"));
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(&text, &format!("rejected m/list.csv:2 ({file})"));
+    contains(&text, "absolute path");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn an_unknown_nmr_solvent_on_the_command_line() {
+    let lab = lab();
+    lab.write("n.csv", nmr_csv(&[(2.0, 100.0, 0.01)]));
+    let text = lab.refuses(
+        &[
+            "add",
+            "n.csv",
+            "-t",
+            "nmr-1h",
+            "--name",
+            "x",
+            "--solvent",
+            "CDCl4",
+        ],
+        3,
+    );
+    contains(&text, "unknown NMR solvent 'CDCl4'");
+    assert!(hint(&text).contains("CDCl3"), "{text}");
+}
+
+#[test]
+fn an_unknown_nmr_solvent_in_a_manifest_row() {
+    let text = refused_row(
+        "file,technique,name,solvent\nn.csv,nmr-1h,x,CDCl4\n",
+        &[("n.csv", nmr_csv(&[(2.0, 100.0, 0.01)]))],
+    );
+    contains(&text, "rejected m/list.csv:2 (n.csv)");
+    contains(&text, "unknown NMR solvent 'CDCl4'");
+}
+
+#[test]
+fn a_command_on_a_folder_without_a_library() {
+    let lab = Lab::empty();
+    lab.write("a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    let text = lab.fails(&["add", "a.csv", "-t", "ir", "--name", "x"], 4);
+    contains(&text, &format!("library {}", lab.library().display()));
+    assert!(hint(&text).contains("whorl init"), "{text}");
+    assert!(
+        !lab.library().exists(),
+        "the failed add created a library folder"
+    );
+}
+
+#[test]
+fn a_library_from_a_newer_whorl() {
+    let lab = lab();
+    let db = lab.library().join("library.sqlite");
+    rusqlite::Connection::open(&db)
+        .unwrap()
+        .pragma_update(None, "user_version", 99)
+        .unwrap();
+    let before = sha256_of(&db);
+    lab.write("a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    let text = lab.fails(&["add", "a.csv", "-t", "ir", "--name", "x"], 4);
+    contains(&text, "schema version 99");
+    assert!(hint(&text).contains("newer whorl"), "{text}");
+    assert_eq!(sha256_of(&db), before, "the database file changed");
+}

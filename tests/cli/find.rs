@@ -1,0 +1,159 @@
+use std::collections::BTreeSet;
+
+use crate::util::{Lab, hint, ir_csv, keys, ms_csv};
+
+/// Two compounds, one with an IR and an MS spectrum, with distinct metadata.
+fn lab() -> Lab {
+    let lab = Lab::new();
+    lab.add(
+        "a.csv",
+        &ir_csv(&[(1715.0, 0.8, 10.0)]),
+        "ir",
+        "compound alpha",
+        &[
+            "--tag",
+            "solvent",
+            "--formula",
+            "C3H6O",
+            "--synonym",
+            "first synonym",
+        ],
+    );
+    lab.add(
+        "a.ms.csv",
+        &ms_csv(&[(43, 999.0), (58, 300.0)]),
+        "ms-ei",
+        "compound alpha",
+        &["--tag", "solvent", "--formula", "C3H6O"],
+    );
+    lab.add(
+        "b.csv",
+        &ir_csv(&[(1050.0, 0.8, 12.0)]),
+        "ir",
+        "compound beta",
+        &[
+            "--tag",
+            "reagent",
+            "--formula",
+            "C2H6O",
+            "--note",
+            "kept cold",
+        ],
+    );
+    lab
+}
+
+fn found(lab: &Lab, query: &str) -> BTreeSet<(String, String)> {
+    lab.json(&["find", query])
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            (
+                r["name"].as_str().unwrap().to_string(),
+                r["technique"].as_str().unwrap().to_string(),
+            )
+        })
+        .collect()
+}
+
+fn set(items: &[(&str, &str)]) -> BTreeSet<(String, String)> {
+    items
+        .iter()
+        .map(|(a, b)| (a.to_string(), b.to_string()))
+        .collect()
+}
+
+#[test]
+fn find_matches_words_and_fields() {
+    let lab = lab();
+    let alpha = set(&[("compound alpha", "ir"), ("compound alpha", "ms-ei")]);
+    assert_eq!(found(&lab, "alpha"), alpha);
+    assert_eq!(found(&lab, "tag:solvent"), alpha);
+    assert_eq!(
+        found(&lab, "formula:C2H6O"),
+        set(&[("compound beta", "ir")])
+    );
+    assert_eq!(
+        found(&lab, "synonym:first"),
+        set(&[("compound alpha", "ir")])
+    );
+    assert_eq!(found(&lab, "note:cold"), set(&[("compound beta", "ir")]));
+    assert_eq!(
+        found(&lab, "tag:solvent AND technique:ms-ei"),
+        set(&[("compound alpha", "ms-ei")])
+    );
+    assert_eq!(found(&lab, "compound").len(), 3);
+}
+
+#[test]
+fn find_json_rows_carry_ids_and_metadata() {
+    let lab = lab();
+    let rows = lab.json(&["find", "beta"]);
+    let rows = rows.as_array().unwrap();
+    assert_eq!(rows.len(), 1);
+    assert_eq!(
+        keys(&rows[0]),
+        [
+            "cas",
+            "compound_id",
+            "formula",
+            "name",
+            "relevance",
+            "spectrum_id",
+            "status",
+            "technique"
+        ]
+    );
+    // compound beta was the third spectrum added to a fresh library.
+    assert_eq!(rows[0]["spectrum_id"], 3);
+    assert_eq!(rows[0]["formula"], "C2H6O");
+    assert_eq!(rows[0]["status"], "pending");
+    assert!(rows[0]["relevance"].as_f64().unwrap() > 0.0);
+}
+
+#[test]
+fn find_top_limits_the_rows() {
+    let lab = lab();
+    let rows = lab.json(&["find", "compound", "--top", "2"]);
+    assert_eq!(rows.as_array().unwrap().len(), 2);
+}
+
+#[test]
+fn find_with_no_match_says_so() {
+    let lab = lab();
+    let out = lab.ok(&["find", "nosuchword"]);
+    assert!(out.contains("nothing matches 'nosuchword'"), "{out}");
+    assert_eq!(lab.json(&["find", "nosuchword"]), serde_json::json!([]));
+}
+
+#[test]
+fn find_human_output_is_a_table() {
+    let lab = lab();
+    let out = lab.ok(&["find", "beta"]);
+    let lines: Vec<&str> = out.lines().collect();
+    assert_eq!(lines.len(), 2, "{out}");
+    for word in [
+        "relevance",
+        "id",
+        "technique",
+        "compound",
+        "formula",
+        "cas",
+        "status",
+    ] {
+        assert!(lines[0].split_whitespace().any(|w| w == word), "{out}");
+    }
+    assert!(
+        lines[1].contains("compound beta") && lines[1].contains("C2H6O"),
+        "{out}"
+    );
+}
+
+#[test]
+fn a_malformed_query_is_refused_with_a_hint() {
+    let lab = lab();
+    let text = lab.refuses(&["find", "name:("], 3);
+    assert!(text.contains("'name:('"), "{text}");
+    assert!(hint(&text).contains("AND"), "{text}");
+}

@@ -1,0 +1,238 @@
+use std::collections::BTreeSet;
+
+use crate::util::{Lab, csv_rows, hint, ir_csv, keys, ms_csv, seed};
+
+/// Writes three good spectra into `m/` and a manifest `m/<name>` listing them, with a row
+/// for a file of repeated x values after the first when `bad` is true.
+fn manifest(lab: &Lab, name: &str, bad: bool) -> String {
+    lab.write("m/a.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    lab.write(
+        "m/b.csv",
+        ir_csv(&[(1050.0, 0.6, 12.0), (3350.0, 0.5, 80.0)]),
+    );
+    lab.write("m/c.csv", ms_csv(&[(43, 999.0), (58, 300.0)]));
+    let repeated = format!("{}1000,0.5\n", ir_csv(&[(1600.0, 0.5, 10.0)]));
+    lab.write("m/bad.csv", repeated);
+    let mut text = String::from("file,technique,name,class,lot\n");
+    text.push_str("a.csv,ir,compound a,ketone,QX-12\n");
+    if bad {
+        text.push_str("bad.csv,ir,compound bad,,\n");
+    }
+    text.push_str("b.csv,ir,compound b,aromatic alcohol,QX-13\n");
+    text.push_str("c.csv,ms-ei,compound a,ketone,QX-12\n");
+    let path = format!("m/{name}");
+    lab.write(&path, text);
+    path
+}
+
+fn names(list: &serde_json::Value) -> BTreeSet<String> {
+    list.as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            format!(
+                "{} {}",
+                r["technique"].as_str().unwrap(),
+                r["name"].as_str().unwrap()
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn the_seed_manifest_imports_every_row() {
+    let lab = Lab::new();
+    let manifest = seed().join("manifest.csv");
+    let rows = csv_rows(&manifest);
+    let out = lab.ok(&["import", manifest.to_str().unwrap()]);
+    let n = rows.len();
+    assert!(
+        out.contains(&format!(
+            "imported {n} (ids 1..{n}), already present 0, rejected 0"
+        )),
+        "{out}"
+    );
+    let stats = lab.json(&["stats"]);
+    let total: i64 = stats["spectra"]
+        .as_object()
+        .unwrap()
+        .values()
+        .flat_map(|by_status| by_status.as_object().unwrap().values())
+        .map(|v| v.as_i64().unwrap())
+        .sum();
+    assert_eq!(total as usize, n);
+    // A compound is identified by its CAS RN, and every seed row has one.
+    let compounds: BTreeSet<&str> = rows.iter().map(|r| r["cas"].as_str()).collect();
+    assert_eq!(stats["compounds"], compounds.len());
+    assert_eq!(lab.json(&["list"]).as_array().unwrap().len(), n);
+}
+
+#[test]
+fn importing_the_seed_manifest_again_imports_nothing() {
+    let lab = Lab::seeded();
+    let before = lab.state();
+    let manifest = seed().join("manifest.csv");
+    let n = csv_rows(&manifest).len();
+    let summary = lab.json(&["import", manifest.to_str().unwrap()]);
+    assert_eq!(summary["imported"], 0);
+    assert_eq!(summary["already_present"], n);
+    assert_eq!(summary["rejected"], serde_json::json!([]));
+    assert_eq!(lab.state(), before);
+}
+
+#[test]
+fn one_bad_row_is_reported_with_its_manifest_line_and_the_good_rows_are_imported() {
+    let lab = Lab::new();
+    let path = manifest(&lab, "with-bad.csv", true);
+    let text = lab.fails(&["import", &path], 3);
+    // The bad row is the second data row, on line 3 of the manifest.
+    assert!(
+        text.contains(&format!("rejected {path}:3 (bad.csv)")),
+        "{text}"
+    );
+    assert!(text.contains("appears twice"), "{text}");
+    assert!(!hint(&text).is_empty());
+    assert!(text.contains("imported 3"), "{text}");
+    let want: BTreeSet<String> = ["ir compound a", "ir compound b", "ms-ei compound a"]
+        .map(String::from)
+        .into();
+    assert_eq!(names(&lab.json(&["list"])), want);
+}
+
+#[test]
+fn all_or_nothing_with_one_bad_row_imports_nothing() {
+    let lab = Lab::new();
+    let path = manifest(&lab, "with-bad.csv", true);
+    let text = lab.refuses(&["import", &path, "--all-or-nothing"], 3);
+    assert!(text.contains(&format!("{path}:3")), "{text}");
+    assert!(text.contains("nothing imported"), "{text}");
+    assert_eq!(lab.json(&["list"]), serde_json::json!([]));
+    assert_eq!(lab.json(&["stats"])["spectra"], serde_json::json!({}));
+}
+
+#[test]
+fn all_or_nothing_json_says_it_rolled_back() {
+    let lab = Lab::new();
+    let path = manifest(&lab, "with-bad.csv", true);
+    let out = lab.run(&["import", &path, "--all-or-nothing", "--json"]);
+    assert_eq!(out.status.code(), Some(3));
+    let summary: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(summary["rolled_back"], true);
+    assert_eq!(summary["imported"], 0);
+    assert_eq!(summary["rejected"].as_array().unwrap().len(), 1);
+}
+
+#[test]
+fn all_or_nothing_with_good_rows_imports_them_all() {
+    let lab = Lab::new();
+    let path = manifest(&lab, "good.csv", false);
+    let summary = lab.json(&["import", &path, "--all-or-nothing"]);
+    assert_eq!(summary["imported"], 3);
+    assert_eq!(summary["rolled_back"], false);
+    assert_eq!(lab.json(&["list"]).as_array().unwrap().len(), 3);
+}
+
+#[test]
+fn import_json_summary_has_counts_and_rejected_rows() {
+    let lab = Lab::new();
+    let path = manifest(&lab, "with-bad.csv", true);
+    let out = lab.run(&["import", &path, "--json"]);
+    assert_eq!(out.status.code(), Some(3));
+    let summary: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(
+        keys(&summary),
+        ["already_present", "imported", "rejected", "rolled_back"]
+    );
+    assert_eq!(summary["imported"], 3);
+    assert_eq!(summary["already_present"], 0);
+    assert_eq!(summary["rolled_back"], false);
+    let rejected = summary["rejected"].as_array().unwrap();
+    assert_eq!(rejected.len(), 1);
+    assert_eq!(keys(&rejected[0]), ["file", "hint", "line", "reason"]);
+    assert_eq!(rejected[0]["file"], "bad.csv");
+    assert_eq!(rejected[0]["line"], 3);
+    assert!(
+        rejected[0]["reason"]
+            .as_str()
+            .unwrap()
+            .contains("appears twice")
+    );
+    assert!(!rejected[0]["hint"].as_str().unwrap().is_empty());
+}
+
+#[test]
+fn extra_columns_are_kept_and_searchable() {
+    let lab = Lab::new();
+    let path = manifest(&lab, "good.csv", false);
+    lab.ok(&["import", &path]);
+    let found = lab.json(&["find", "class:ketone"]);
+    assert_eq!(
+        names(&found),
+        ["ir compound a", "ms-ei compound a"]
+            .map(String::from)
+            .into()
+    );
+    let id = found[0]["spectrum_id"].to_string();
+    let extra = &lab.json(&["show", &id])["spectrum"]["metadata"]["extra"];
+    assert_eq!(extra["class"], "ketone");
+    assert_eq!(extra["lot"], "QX-12");
+}
+
+#[test]
+fn extra_column_values_of_several_words_are_searchable() {
+    // Regression: values that split into several terms ('QX-12', "aromatic alcohol") made
+    // a phrase query over the extra-column field, which was indexed without positions, so
+    // the query failed with "does not have positions indexed".
+    let lab = Lab::new();
+    let path = manifest(&lab, "good.csv", false);
+    lab.ok(&["import", &path]);
+    assert_eq!(
+        names(&lab.json(&["find", "lot:QX-12"])),
+        ["ir compound a", "ms-ei compound a"]
+            .map(String::from)
+            .into()
+    );
+    assert_eq!(
+        names(&lab.json(&["find", "class:\"aromatic alcohol\""])),
+        ["ir compound b"].map(String::from).into()
+    );
+}
+
+#[test]
+fn the_seed_class_column_is_searchable() {
+    let lab = Lab::seeded();
+    let rows = csv_rows(&seed().join("manifest.csv"));
+    // The text index splits values into words, so 'class:ketone' also finds "aromatic ketone".
+    let want: BTreeSet<String> = rows
+        .iter()
+        .filter(|r| r["class"].split_whitespace().any(|w| w == "ketone"))
+        .map(|r| format!("{} {}", r["technique"], r["name"]))
+        .collect();
+    assert!(!want.is_empty(), "the seed manifest has no ketones");
+    let found = lab.json(&["find", "class:ketone", "--top", "1000"]);
+    assert_eq!(names(&found), want);
+}
+
+#[test]
+fn the_submitted_by_column_wins_over_the_importer() {
+    let lab = Lab::new();
+    lab.write("m/a.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    lab.write("m/b.csv", ir_csv(&[(1050.0, 0.6, 12.0)]));
+    lab.write(
+        "m/list.csv",
+        "file,technique,name,submitted_by\na.csv,ir,compound a,s.submitter\nb.csv,ir,compound b,\n",
+    );
+    lab.ok(&["import", "m/list.csv", "--by", "i.importer"]);
+    let list = lab.json(&["list"]);
+    let by = |name: &str| {
+        let row = list
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|r| r["name"] == name)
+            .unwrap();
+        lab.json(&["show", &row["id"].to_string()])["spectrum"]["submitted_by"].clone()
+    };
+    assert_eq!(by("compound a"), "s.submitter");
+    assert_eq!(by("compound b"), "i.importer");
+}

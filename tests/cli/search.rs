@@ -1,0 +1,373 @@
+use serde_json::Value;
+
+use crate::util::{Lab, csv_rows, hint, ir_csv, keys, seed, sha256_of};
+
+/// Three IR references with different bands and metadata: `t` is tagged solvent with
+/// formula C7H8, `k` is tagged solvent with another formula, `c` has C7H8 but no solvent tag.
+fn small_lab() -> Lab {
+    let lab = Lab::new();
+    let t = ir_csv(&[(3030.0, 0.3, 10.0), (1605.0, 0.5, 8.0), (730.0, 0.9, 8.0)]);
+    let k = ir_csv(&[(1715.0, 0.9, 10.0), (1360.0, 0.4, 10.0)]);
+    let c = ir_csv(&[(3300.0, 0.6, 60.0), (1050.0, 0.8, 12.0)]);
+    lab.add(
+        "t.csv",
+        &t,
+        "ir",
+        "compound t",
+        &["--tag", "solvent", "--formula", "C7H8"],
+    );
+    lab.add(
+        "k.csv",
+        &k,
+        "ir",
+        "compound k",
+        &["--tag", "solvent", "--formula", "C3H6O"],
+    );
+    lab.add(
+        "c.csv",
+        &c,
+        "ir",
+        "compound c",
+        &["--tag", "reagent", "--formula", "C7H8"],
+    );
+    // Search covers verified spectra by default: a second analyst signs them off.
+    lab.ok(&["review", "1", "2", "3", "--approve", "--by", "r.second"]);
+    lab
+}
+
+fn hits(report: &Value) -> &Vec<Value> {
+    report["hits"].as_array().expect("hits is an array")
+}
+
+/// The search arguments for one row of the seed unknowns manifest.
+fn unknown_args(row: &std::collections::BTreeMap<String, String>) -> Vec<String> {
+    let file = seed().join("unknowns").join(&row["file"]);
+    let mut args = vec![
+        "search".to_string(),
+        file.to_str().unwrap().to_string(),
+        "--technique".to_string(),
+        row["technique"].clone(),
+    ];
+    for (column, flag) in [
+        ("solvent", "--solvent"),
+        ("y_unit", "--y-unit"),
+        ("x_unit", "--x-unit"),
+    ] {
+        if !row[column].is_empty() {
+            args.push(format!("{flag}={}", row[column]));
+        }
+    }
+    args
+}
+
+fn seed_unknowns() -> Vec<std::collections::BTreeMap<String, String>> {
+    let rows = csv_rows(&seed().join("unknowns").join("manifest.csv"));
+    assert!(!rows.is_empty(), "the unknowns manifest has no rows");
+    rows
+}
+
+#[test]
+fn an_identical_spectrum_is_hit_1_with_score_1() {
+    let lab = small_lab();
+    let report = lab.json(&["search", "k.csv", "-t", "ir"]);
+    let h = hits(&report);
+    assert_eq!(h[0]["name"], "compound k");
+    assert_eq!(h[0]["rank"], 1);
+    // Every measure of a spectrum against itself is at its maximum.
+    assert!(
+        (h[0]["score"].as_f64().unwrap() - 1.0).abs() < 1e-6,
+        "{}",
+        h[0]
+    );
+    assert_eq!(report["candidates"], 3);
+}
+
+#[test]
+fn search_json_has_the_documented_keys() {
+    let lab = small_lab();
+    let report = lab.json(&["search", "k.csv", "-t", "ir"]);
+    assert_eq!(
+        keys(&report),
+        [
+            "candidates",
+            "caution",
+            "hits",
+            "library",
+            "margin",
+            "parameters",
+            "searched_at",
+            "tool_version",
+            "unknown",
+            "warnings",
+        ]
+    );
+    assert_eq!(
+        keys(&report["library"]),
+        ["fingerprint", "last_event", "path"]
+    );
+    assert_eq!(report["library"]["path"], lab.library().to_str().unwrap());
+    assert_eq!(report["library"]["fingerprint"], lab.fingerprint());
+    let unknown = &report["unknown"];
+    for key in ["file", "sha256", "technique"] {
+        assert!(
+            unknown.get(key).is_some(),
+            "unknown has no {key}: {unknown}"
+        );
+    }
+    assert_eq!(unknown["file"], "k.csv");
+    assert_eq!(unknown["sha256"], sha256_of(&lab.path("k.csv")));
+    assert_eq!(unknown["technique"], "ir");
+    assert!(report["parameters"].is_object());
+    assert!(report["warnings"].is_array());
+    assert!(
+        report["caution"]
+            .as_str()
+            .unwrap()
+            .contains("not proof of identity"),
+        "{}",
+        report["caution"]
+    );
+    assert_eq!(hits(&report).len(), 3);
+    for hit in hits(&report) {
+        assert_eq!(
+            keys(hit),
+            [
+                "cas",
+                "components",
+                "compound_id",
+                "formula",
+                "name",
+                "rank",
+                "score",
+                "spectrum_id",
+                "status",
+                "technique",
+            ]
+        );
+        assert_eq!(hit["technique"], "ir");
+        assert_eq!(hit["status"], "verified");
+    }
+}
+
+#[test]
+fn scores_lie_in_0_to_1_and_are_sorted_best_first() {
+    let lab = Lab::seeded();
+    let manifest = csv_rows(&seed().join("manifest.csv"));
+    for row in seed_unknowns() {
+        let mut args = unknown_args(&row);
+        args.extend(["--top".to_string(), "1000".to_string()]);
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        let report = lab.json(&args);
+        let h = hits(&report);
+        // With a large --top every spectrum of the technique is listed.
+        let of_technique = manifest
+            .iter()
+            .filter(|r| r["technique"] == row["technique"])
+            .count();
+        assert_eq!(h.len(), of_technique, "{}", row["file"]);
+        assert_eq!(report["candidates"], of_technique);
+        let scores: Vec<f64> = h.iter().map(|x| x["score"].as_f64().unwrap()).collect();
+        assert!(
+            scores.iter().all(|s| (0.0..=1.0).contains(s)),
+            "{}: {scores:?}",
+            row["file"]
+        );
+        assert!(
+            scores.windows(2).all(|w| w[0] >= w[1]),
+            "{}: not sorted {scores:?}",
+            row["file"]
+        );
+        let ranks: Vec<u64> = h.iter().map(|x| x["rank"].as_u64().unwrap()).collect();
+        assert_eq!(ranks, (1..=h.len() as u64).collect::<Vec<_>>());
+    }
+}
+
+#[test]
+fn where_restricts_the_candidates_to_matching_spectra() {
+    let lab = small_lab();
+    let report = lab.json(&[
+        "search",
+        "k.csv",
+        "-t",
+        "ir",
+        "--where",
+        "tag:solvent AND formula:C7H8",
+    ]);
+    assert_eq!(report["candidates"], 1);
+    let h = hits(&report);
+    assert_eq!(h.len(), 1);
+    assert_eq!(h[0]["name"], "compound t");
+    assert_eq!(
+        report["parameters"]["where"],
+        "tag:solvent AND formula:C7H8"
+    );
+}
+
+#[test]
+fn where_on_the_seed_library_keeps_only_matching_spectra() {
+    let lab = Lab::seeded();
+    let manifest = csv_rows(&seed().join("manifest.csv"));
+    let matching = manifest
+        .iter()
+        .filter(|r| {
+            r["technique"] == "ir"
+                && r["formula"] == "C7H8"
+                && r["tags"].split(';').any(|t| t.trim() == "solvent")
+        })
+        .count();
+    assert!(
+        matching > 0,
+        "no IR solvent with formula C7H8 in the seed manifest"
+    );
+    let unknown = seed().join("unknowns").join("u01.ir.csv");
+    let report = lab.json(&[
+        "search",
+        unknown.to_str().unwrap(),
+        "-t",
+        "ir",
+        "--top",
+        "1000",
+        "--where",
+        "tag:solvent AND formula:C7H8",
+    ]);
+    assert_eq!(report["candidates"], matching);
+    assert_eq!(hits(&report).len(), matching);
+    assert!(hits(&report).iter().all(|h| h["formula"] == "C7H8"));
+}
+
+#[test]
+fn where_matching_nothing_gives_no_hits_and_a_warning() {
+    let lab = small_lab();
+    let report = lab.json(&["search", "k.csv", "-t", "ir", "--where", "name:nosuchname"]);
+    assert_eq!(report["candidates"], 0);
+    assert!(hits(&report).is_empty());
+    let warnings = report["warnings"].as_array().unwrap();
+    assert!(
+        warnings
+            .iter()
+            .any(|w| w.as_str().unwrap().contains("no library spectrum")),
+        "{warnings:?}"
+    );
+}
+
+#[test]
+fn a_malformed_where_query_is_refused_with_a_hint() {
+    let lab = small_lab();
+    let text = lab.refuses(&["search", "k.csv", "-t", "ir", "--where", "name:("], 3);
+    assert!(text.contains("name:("), "{text}");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn top_limits_the_number_of_hits() {
+    let lab = small_lab();
+    for n in [1usize, 2, 3] {
+        let report = lab.json(&["search", "k.csv", "-t", "ir", "--top", &n.to_string()]);
+        assert_eq!(hits(&report).len(), n);
+        assert_eq!(report["parameters"]["top"], n);
+    }
+    // More than the library holds lists what there is.
+    let report = lab.json(&["search", "k.csv", "-t", "ir", "--top", "50"]);
+    assert_eq!(hits(&report).len(), 3);
+}
+
+#[test]
+fn a_search_changes_nothing_in_the_library() {
+    let lab = small_lab();
+    let before = lab.state();
+    lab.ok(&["search", "t.csv", "-t", "ir"]);
+    assert_eq!(lab.state(), before);
+}
+
+/// The start and end (byte offsets) of a column's header word in the header line.
+fn column(header: &str, name: &str) -> (usize, usize) {
+    let start = header
+        .split(' ')
+        .scan(0, |at, word| {
+            let here = *at;
+            *at += word.len() + 1;
+            Some((here, word))
+        })
+        .find(|(_, word)| *word == name)
+        .unwrap_or_else(|| panic!("no column {name} in {header:?}"))
+        .0;
+    (start, start + name.len())
+}
+
+#[test]
+fn human_output_shows_the_fingerprint_the_caution_and_aligned_columns() {
+    let lab = Lab::seeded();
+    let unknown = seed().join("unknowns").join("u01.ir.csv");
+    let unknown = unknown.to_str().unwrap();
+    let out = lab.ok(&["search", unknown, "-t", "ir", "--top", "8"]);
+    let fingerprint = lab.fingerprint();
+    // The first 16 hex digits, then the closing bracket: no more, no less.
+    assert!(
+        out.contains(&format!("(fingerprint {})", &fingerprint[..16])),
+        "{out}"
+    );
+    let caution = lab.json(&["search", unknown, "-t", "ir"])["caution"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    assert!(
+        out.lines()
+            .any(|l| l.starts_with("caution") && l.ends_with(&caution)),
+        "{out}"
+    );
+
+    let lines: Vec<&str> = out.lines().collect();
+    let first = lines
+        .iter()
+        .position(|l| l.starts_with("rank "))
+        .expect("a table header");
+    let table: Vec<&str> = lines[first..]
+        .iter()
+        .take_while(|l| !l.is_empty())
+        .copied()
+        .collect();
+    assert_eq!(table.len(), 1 + 8, "{out}");
+    let header = table[0];
+    // Numbers are right-aligned under their header, words left-aligned.
+    for name in ["rank", "score", "peaks", "id"] {
+        let (_, end) = column(header, name);
+        for row in &table[1..] {
+            let b = row.as_bytes();
+            assert!(
+                b[end - 1] != b' ' && b.get(end).is_none_or(|&c| c == b' '),
+                "column {name} is not right-aligned in {row:?}\n{out}"
+            );
+        }
+    }
+    for name in ["compound", "formula", "status"] {
+        let (start, _) = column(header, name);
+        for row in &table[1..] {
+            let b = row.as_bytes();
+            assert!(
+                b[start] != b' ' && b[start - 1] == b' ',
+                "column {name} is not left-aligned in {row:?}\n{out}"
+            );
+        }
+    }
+}
+
+#[test]
+fn every_example_unknown_has_its_expected_compound_at_rank_1() {
+    let lab = Lab::seeded();
+    let mut misses = Vec::new();
+    for row in seed_unknowns() {
+        let args = unknown_args(&row);
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        let report = lab.json(&args);
+        let best = &hits(&report)[0];
+        if best["name"] != row["expected"].as_str()
+            || best["technique"] != row["technique"].as_str()
+        {
+            misses.push(format!(
+                "{}: expected {}, rank 1 is {} ({})",
+                row["file"], row["expected"], best["name"], best["score"]
+            ));
+        }
+    }
+    assert!(misses.is_empty(), "{}", misses.join("\n"));
+}
