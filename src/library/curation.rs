@@ -160,7 +160,9 @@ impl Library {
         &mut self,
         f: impl FnOnce(&Connection) -> Result<(T, Vec<i64>)>,
     ) -> Result<T> {
-        let tx = self.conn.transaction()?;
+        let tx = self
+            .conn
+            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         let (value, touched) = f(&tx)?;
         let generation = bump_generation(&tx)?;
         tx.commit()?;

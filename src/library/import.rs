@@ -9,6 +9,16 @@ use crate::library::{Library, ManifestRow, Outcome, Staged, stage};
 /// re-running the import skips what is already stored.
 pub const BATCH: usize = 500;
 
+/// The batch size: `WHORL_IMPORT_BATCH` when set (the crash test uses small batches to land
+/// its kills between many commits), else [`BATCH`].
+pub fn batch_size() -> usize {
+    std::env::var("WHORL_IMPORT_BATCH")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .filter(|&n| n > 0)
+        .unwrap_or(BATCH)
+}
+
 /// What happened to one manifest row.
 #[derive(Debug)]
 pub struct RowReport {
@@ -68,7 +78,7 @@ pub fn import_rows(
     let chunk = if all_or_nothing {
         rows.len().max(1)
     } else {
-        BATCH
+        batch_size()
     };
     let mut done = 0;
     let mut rows = rows.into_iter().peekable();

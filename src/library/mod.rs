@@ -98,7 +98,9 @@ impl Library {
 
     fn initialise(&mut self, actor: &str) -> Result<()> {
         schema::migrate(&mut self.conn)?;
-        let tx = self.conn.transaction()?;
+        let tx = self
+            .conn
+            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         let recipes: Recipes = Technique::ALL
             .iter()
             .map(|&t| (t, Recipe::default_for(t)))

@@ -402,7 +402,9 @@ impl Library {
         actor: &str,
         all_or_nothing: bool,
     ) -> Result<Vec<Result<Outcome>>> {
-        let mut tx = self.conn.transaction()?;
+        let mut tx = self
+            .conn
+            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         let mut outcomes = Vec::with_capacity(batch.len());
         let mut added = Vec::new();
         for staged in batch {

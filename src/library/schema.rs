@@ -27,7 +27,7 @@ pub fn migrate(conn: &mut Connection) -> Result<()> {
     if from >= SCHEMA_VERSION {
         return Ok(());
     }
-    let tx = conn.transaction()?;
+    let tx = conn.transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
     for sql in &MIGRATIONS[from as usize..] {
         tx.execute_batch(sql)?;
     }

@@ -500,7 +500,18 @@ mod properties {
     use super::*;
     use proptest::prelude::*;
 
+    /// Cases per property: 60k each, so that CI feeds the reader 120k inputs
+    /// (random bytes and near-valid CSV). `PROPTEST_CASES` overrides it for a quick local run.
+    fn cases() -> u32 {
+        std::env::var("PROPTEST_CASES")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(60_000)
+    }
+
     proptest! {
+        #![proptest_config(ProptestConfig { cases: cases(), failure_persistence: None, ..ProptestConfig::default() })]
+
         #[test]
         fn the_reader_never_panics(bytes in prop::collection::vec(any::<u8>(), 0..400)) {
             let _ = read_points_from_bytes(Path::new("fuzz.csv"), &bytes);

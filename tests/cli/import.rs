@@ -236,3 +236,22 @@ fn the_submitted_by_column_wins_over_the_importer() {
     assert_eq!(by("compound a"), "s.submitter");
     assert_eq!(by("compound b"), "i.importer");
 }
+
+#[test]
+fn a_manifest_with_a_duplicated_row_names_the_repeat() {
+    let lab = Lab::new();
+    lab.write("m/a.csv", crate::util::ir_csv(&[(1715.0, 0.9, 10.0)]));
+    lab.write(
+        "m/list.csv",
+        "file,technique,name\na.csv,ir,compound a\nb.csv,ir,compound b\na.csv,ir,compound a\n",
+    );
+    lab.write("m/b.csv", crate::util::ir_csv(&[(1600.0, 0.9, 10.0)]));
+    let out = lab.run(&["import", "m/list.csv"]);
+    assert_eq!(out.status.code(), Some(3));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("list.csv:4") && text.contains("repeats line 2"),
+        "{text}"
+    );
+    assert!(text.contains("imported 2"), "{text}");
+}

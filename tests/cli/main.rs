@@ -5,6 +5,7 @@ mod util;
 mod add;
 mod bad_input;
 mod bundle;
+mod concurrency;
 mod curation;
 mod demo;
 mod find;

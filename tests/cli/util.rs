@@ -76,6 +76,11 @@ impl Lab {
     /// Runs whorl with `--library <lab>/lib` (unless the arguments name another library) and
     /// the given arguments.
     pub fn run(&self, args: &[&str]) -> Output {
+        self.command(args).output().expect("run whorl")
+    }
+
+    /// The command `run` runs, for tests that set more environment or run it in the background.
+    pub fn command(&self, args: &[&str]) -> Command {
         let mut cmd = Command::new(env!("CARGO_BIN_EXE_whorl"));
         if !args.contains(&"--library") {
             cmd.arg("--library").arg(self.library());
@@ -83,9 +88,8 @@ impl Lab {
         cmd.args(args)
             .current_dir(self.dir.path())
             .env("WHORL_USER", "t.tester")
-            .env_remove("WHORL_LIBRARY")
-            .output()
-            .expect("run whorl")
+            .env_remove("WHORL_LIBRARY");
+        cmd
     }
 
     /// Runs whorl and asserts success; returns stdout.
