@@ -2,5 +2,7 @@
 
 mod util;
 
+mod formula;
+mod fragments;
 mod init;
 mod trade_facts;
