@@ -93,7 +93,7 @@ pub fn nitrogen_rule(formula: &Formula) -> Result<NitrogenRule> {
 pub struct FormulaSummary {
     /// The formula in Hill order.
     pub formula: String,
-    /// Average molar mass, g/mol (CIAAW 2021 weights), rounded to 0.0001.
+    /// Average molar mass, g/mol (CIAAW 2021 weights), rounded to 0.000001.
     pub average_mass: f64,
     /// Elements of the formula whose weight is CIAAW's conventional value for an interval.
     pub conventional_weights: Vec<String>,
@@ -141,7 +141,7 @@ pub fn summarize(formula: &Formula) -> Result<FormulaSummary> {
         .collect();
     Ok(FormulaSummary {
         formula: formula.to_string(),
-        average_mass: round_to(average_mass(formula)?, 4),
+        average_mass: round_to(average_mass(formula)?, 6),
         conventional_weights: elements
             .iter()
             .filter(|(e, _)| e.conventional)
