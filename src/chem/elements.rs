@@ -237,6 +237,14 @@ impl ElementData {
             .max_by(|a, b| a.abundance.total_cmp(&b.abundance))
             .expect("every element in the tables has an isotope")
     }
+
+    /// The nominal shifts of the lightest and the heaviest isotope from the most abundant one
+    /// (-1 and 0 for boron, -6 and +2 for selenium).
+    pub fn shift_range(&self) -> (i64, i64) {
+        let top = i64::from(self.most_abundant().mass_number);
+        let shifts = self.isotopes.iter().map(|i| i64::from(i.mass_number) - top);
+        (shifts.clone().min().unwrap_or(0), shifts.max().unwrap_or(0))
+    }
 }
 
 fn table() -> &'static BTreeMap<&'static str, ElementData> {
@@ -379,6 +387,10 @@ mod tests {
         assert_eq!(element("Se").unwrap().most_abundant().mass_number, 80);
         assert_eq!(element("Li").unwrap().most_abundant().mass_number, 7);
         assert_eq!(element("Br").unwrap().most_abundant().mass_number, 79);
+        // 10B lies one below 11B; 74Se six below and 82Se two above 80Se (IUPAC 2009 isotopes).
+        assert_eq!(element("B").unwrap().shift_range(), (-1, 0));
+        assert_eq!(element("Se").unwrap().shift_range(), (-6, 2));
+        assert_eq!(element("F").unwrap().shift_range(), (0, 0));
     }
 
     #[test]

@@ -7,6 +7,7 @@ use super::formula::Formula;
 use super::isotopes::isotope_pattern;
 use super::mass::{ihd, monoisotopic_mass, nominal_mass, resolve, round_to};
 use crate::error::{Error, Result};
+use crate::prepare::nominal_mz;
 
 /// The electron mass in u, CODATA 2018 (5.48579909065e-4 u), from memory: a singly charged
 /// cation weighs its neutral composition minus one electron.
@@ -257,7 +258,7 @@ pub fn ms_formula_warnings(formula: &Formula, peaks: &[(f64, f64)]) -> Vec<Strin
 
 fn check_ms(formula: &Formula, peaks: &[(f64, f64)]) -> Result<Vec<String>> {
     let mut warnings = Vec::new();
-    let nominal = |mz: f64| (mz + 0.5).floor().max(0.0) as u64;
+    let nominal = |mz: f64| u64::try_from(nominal_mz(mz)).unwrap_or(0);
     let Some(&(base_mz, base)) = peaks.iter().max_by(|a, b| a.1.total_cmp(&b.1)) else {
         return Ok(warnings);
     };

@@ -80,6 +80,15 @@ impl Shifts {
     }
 }
 
+/// How far below M the lighter isotopes of a formula can reach (1 for one boron, 12 for two
+/// seleniums): the lowest shift of its isotope pattern, negated.
+pub fn reach_below(formula: &Formula) -> Result<i64> {
+    Ok(resolve(formula)?
+        .iter()
+        .map(|(e, n)| -e.shift_range().0 * *n as i64)
+        .sum())
+}
+
 /// The unit-resolution isotope pattern of a formula for nominal shifts `lo..=hi` from M (the
 /// isotopologue made of each element's most abundant isotope), relative to M = 100, from the
 /// IUPAC 2009 representative isotopic compositions (Berglund & Wieser, Pure Appl. Chem. 83
@@ -92,42 +101,18 @@ impl Shifts {
 /// them back into range, so the work stays small for any atom count.
 pub fn isotope_pattern(formula: &Formula, lo: i64, hi: i64) -> Result<Vec<IsotopePeak>> {
     let elements = resolve(formula)?;
-    // How far below M the lighter isotopes could take any partial product: a partial product
-    // above `hi + reach` can never come back into range.
-    let reach: i64 = elements
-        .iter()
-        .map(|(e, n)| {
-            let top = i64::from(e.most_abundant().mass_number);
-            let lightest = e
-                .isotopes
-                .iter()
-                .map(|i| i64::from(i.mass_number))
-                .min()
-                .unwrap_or(top);
-            (top - lightest) * *n as i64
-        })
-        .sum();
-    let max = hi + reach;
+    // A partial product above `hi + reach_below` can never come back into range.
+    let max = hi + reach_below(formula)?;
     let mut total = Shifts::unit();
     for (e, n) in &elements {
+        let (first, last) = e.shift_range();
         let top = i64::from(e.most_abundant().mass_number);
-        let first = e
-            .isotopes
-            .iter()
-            .map(|i| i64::from(i.mass_number))
-            .min()
-            .unwrap_or(top);
-        let last = e
-            .isotopes
-            .iter()
-            .map(|i| i64::from(i.mass_number))
-            .max()
-            .unwrap_or(top);
         let mut p = vec![0.0; usize::try_from(last - first + 1).unwrap_or(1)];
         for i in &e.isotopes {
-            p[usize::try_from(i64::from(i.mass_number) - first).unwrap_or(0)] += i.abundance;
+            let at = i64::from(i.mass_number) - top - first;
+            p[usize::try_from(at).unwrap_or(0)] += i.abundance;
         }
-        let one = Shifts { lo: first - top, p };
+        let one = Shifts { lo: first, p };
         total = total.times(&one.power(*n, max), max);
     }
     let m = total.at(0);

@@ -5,7 +5,7 @@ use serde::Serialize;
 
 use super::elements::{ElementData, element};
 use super::formula::Formula;
-use super::isotopes::{IsotopePeak, isotope_pattern};
+use super::isotopes::{IsotopePeak, isotope_pattern, reach_below};
 use crate::error::Result;
 
 /// Each element of a formula with its count and its data; fails on the first element without data.
@@ -123,14 +123,7 @@ const MIN_LIGHTER_RELATIVE: f64 = 0.01;
 /// Computes the [`FormulaSummary`] of a formula.
 pub fn summarize(formula: &Formula) -> Result<FormulaSummary> {
     let elements = resolve(formula)?;
-    let lighter: i64 = elements
-        .iter()
-        .map(|(e, n)| {
-            let lightest = e.isotopes.iter().map(|i| i.mass_number).min().unwrap_or(0);
-            (i64::from(e.most_abundant().mass_number) - i64::from(lightest)) * *n as i64
-        })
-        .sum();
-    let pattern = isotope_pattern(formula, -lighter, 2)?;
+    let pattern = isotope_pattern(formula, -reach_below(formula)?, 2)?;
     let isotopes = pattern
         .into_iter()
         .filter(|p| p.shift >= 0 || p.relative >= MIN_LIGHTER_RELATIVE)

@@ -15,7 +15,7 @@ pub use fragments::{
     ELECTRON_MASS, Fragment, explains, molecular_region_top, ms_formula_warnings, parse_mz_list,
     sub_formulas,
 };
-pub use isotopes::{IsotopePeak, isotope_pattern};
+pub use isotopes::{IsotopePeak, isotope_pattern, reach_below};
 pub use mass::{
     FormulaSummary, NitrogenRule, average_mass, ihd, monoisotopic_mass, nitrogen_rule,
     nominal_mass, summarize,
