@@ -38,11 +38,30 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         args.all_or_nothing,
         true,
     )?;
+    for row in &report.rows {
+        for w in &row.warnings {
+            eprintln!(
+                "warning: {}:{} ({}): {w}",
+                args.manifest.display(),
+                row.line,
+                row.file
+            );
+        }
+    }
     let mut out = std::io::stdout().lock();
     if args.json {
         let rejected: Vec<_> = report
             .rejected()
             .map(|(r, e)| json!({"line": r.line, "file": r.file, "reason": format!("{e}"), "hint": e.hint()}))
+            .collect();
+        let warnings: Vec<_> = report
+            .rows
+            .iter()
+            .flat_map(|r| {
+                r.warnings
+                    .iter()
+                    .map(|w| json!({"line": r.line, "file": r.file, "warning": w}))
+            })
             .collect();
         output::json(
             &mut out,
@@ -50,6 +69,7 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                 "imported": report.imported(),
                 "already_present": report.already_present(),
                 "rejected": rejected,
+                "warnings": warnings,
                 "rolled_back": report.rolled_back,
             }),
         )?;

@@ -5,6 +5,8 @@ mod check;
 mod demo;
 mod export;
 mod find;
+mod formula;
+mod fragments;
 mod import;
 mod init;
 mod list;
@@ -92,6 +94,10 @@ pub enum Command {
     Policy(policy::PolicyArgs),
     /// Build a demo library from seed-library/ and search its example unknowns.
     Demo(demo::DemoArgs),
+    /// Masses, IHD, nitrogen rule and isotope pattern of a formula (no library needed).
+    Formula(formula::FormulaArgs),
+    /// Sub-formulas of a formula at given nominal m/z values (no library needed).
+    Fragments(fragments::FragmentsArgs),
 }
 
 /// What every command needs besides its own arguments.
@@ -136,6 +142,8 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Replay(a) => replay::run(a, &ctx),
         Command::Policy(a) => policy::run(a, &ctx),
         Command::Demo(a) => demo::run(a, &ctx),
+        Command::Formula(a) => formula::run(a, &ctx),
+        Command::Fragments(a) => fragments::run(a, &ctx),
     }
 }
 
@@ -192,6 +200,13 @@ mod tests {
         let err =
             Cli::try_parse_from(["whorl", "search", "u.csv", "--technique", "uv"]).unwrap_err();
         assert!(err.to_string().contains("unknown technique"), "{err}");
+    }
+
+    #[test]
+    fn fragments_needs_an_mz_list() {
+        assert!(Cli::try_parse_from(["whorl", "fragments", "C3H6O"]).is_err());
+        let cli = Cli::try_parse_from(["whorl", "fragments", "C3H6O", "--mz", "15,29"]).unwrap();
+        assert!(matches!(cli.command, Command::Fragments(_)));
     }
 
     #[test]

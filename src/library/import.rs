@@ -28,6 +28,8 @@ pub struct RowReport {
     pub file: String,
     /// Stored, already present, or refused with the reason.
     pub outcome: Result<Outcome>,
+    /// What preparation warned about (stored with a new spectrum).
+    pub warnings: Vec<String>,
 }
 
 /// The result of a bulk import.
@@ -105,15 +107,19 @@ pub fn import_rows(
         };
         stored.reverse();
         for (line, file, s) in staged {
-            let outcome = match s {
+            let (outcome, warnings) = match s {
                 Ok(_) if all_or_nothing && any_bad => continue,
-                Ok(_) => stored.pop().expect("one outcome per staged spectrum"),
-                Err(e) => Err(e),
+                Ok(staged) => (
+                    stored.pop().expect("one outcome per staged spectrum"),
+                    staged.prepared.warnings,
+                ),
+                Err(e) => (Err(e), Vec::new()),
             };
             report.rows.push(RowReport {
                 line,
                 file,
                 outcome,
+                warnings,
             });
         }
         done += batch_len;

@@ -4,7 +4,7 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use crate::chem::{check_cas, parse_formula};
+use crate::chem::{check_cas, ms_formula_warnings, parse_formula};
 use crate::error::{Error, Result};
 use crate::library::Metadata;
 use crate::prepare::{Conditions, Prepared, Recipe, Solvent, prepare};
@@ -141,6 +141,8 @@ pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metad
 }
 
 /// Stages one submission: metadata checked, file read and prepared with the library's recipe.
+/// An EI mass spectrum with a formula is also checked against it (`chem::ms_formula_warnings`);
+/// what does not fit becomes a warning in the prepared spectrum, stored with it.
 pub fn stage(recipes: &Recipes, mut submission: Submission) -> Result<Staged> {
     let recipe = recipes.get(&submission.technique).ok_or_else(|| {
         Error::invalid(
@@ -155,13 +157,24 @@ pub fn stage(recipes: &Recipes, mut submission: Submission) -> Result<Staged> {
         .as_deref()
         .map(str::parse::<Solvent>)
         .transpose()?;
-    let (raw, prepared) = read_and_prepare(
+    let (raw, mut prepared) = read_and_prepare(
         &submission.path,
         recipe,
         submission.x_unit,
         submission.y_unit,
         solvent,
     )?;
+    if submission.technique == Technique::MsEi
+        && let Some(formula) = &submission.metadata.formula
+    {
+        // A base peak or a molecular ion the formula cannot give is worth a warning, not a
+        // refusal: the formula may be wrong, or the spectrum may hold background ions.
+        let formula = parse_formula(formula)?;
+        let peaks: Vec<(f64, f64)> = prepared.peaks.iter().map(|p| (p.x, p.height)).collect();
+        prepared
+            .warnings
+            .extend(ms_formula_warnings(&formula, &peaks));
+    }
     Ok(Staged {
         submission,
         raw,

@@ -14,6 +14,7 @@ pub use baseline::{Baseline, asls, rubber_band};
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
 pub use peaks::{Maximum, Peak, find_maxima};
 pub use solvent::Solvent;
+pub use spectrometry::nominal_mass as nominal_mz;
 
 use serde::{Deserialize, Serialize};
 

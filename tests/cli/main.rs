@@ -9,6 +9,8 @@ mod concurrency;
 mod curation;
 mod demo;
 mod find;
+mod formula;
+mod fragments;
 mod import;
 mod init;
 mod integrity;
