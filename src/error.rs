@@ -119,7 +119,18 @@ impl Error {
             Error::Query { .. } => Some(
                 "use field:value terms joined by AND/OR, e.g. `tag:solvent AND formula:C7H8`; quote phrases",
             ),
-            _ => None,
+            Error::Sqlite(_) => Some(
+                "if another whorl is writing to this library, wait for it and run the command again; otherwise keep a copy of the library folder and report the message",
+            ),
+            Error::Tantivy(_) => Some(
+                "the text index is derived data: delete the library's text-index/ folder and run the command again to rebuild it",
+            ),
+            Error::Io { .. } => Some(
+                "check that the path exists, that you may read and write it, and that the disk has room",
+            ),
+            Error::Json(_) => Some(
+                "a stored record is damaged; keep a copy of the library folder and report the message",
+            ),
         }
     }
 
