@@ -2,5 +2,8 @@
 
 mod util;
 
+mod comfort;
 mod init;
+mod plot;
+mod report;
 mod trade_facts;

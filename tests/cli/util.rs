@@ -111,3 +111,49 @@ pub fn ir_csv(bands: &[(f64, f64, f64)]) -> String {
     }
     s
 }
+
+impl Lab {
+    /// Runs whorl like [`Lab::run`] with extra environment variables.
+    pub fn run_env(&self, args: &[&str], env: &[(&str, &str)]) -> Output {
+        let mut cmd = Command::new(env!("CARGO_BIN_EXE_whorl"));
+        cmd.arg("--library")
+            .arg(self.library())
+            .args(args)
+            .current_dir(self.dir.path())
+            .env("WHORL_USER", "t.tester")
+            .env_remove("WHORL_LIBRARY")
+            .env_remove("NO_COLOR");
+        for (k, v) in env {
+            cmd.env(k, v);
+        }
+        cmd.output().expect("run whorl")
+    }
+
+    /// A library holding the seed library's spectra (all four techniques) of the named
+    /// compounds, imported through a manifest of just those rows.
+    pub fn seeded(compounds: &[&str]) -> Lab {
+        let lab = Lab::new();
+        let mut reader = csv::Reader::from_path(seed().join("manifest.csv")).unwrap();
+        std::fs::create_dir_all(lab.path("seed")).unwrap();
+        let mut writer = csv::Writer::from_path(lab.path("seed/manifest.csv")).unwrap();
+        writer.write_record(reader.headers().unwrap()).unwrap();
+        for record in reader.records() {
+            let record = record.unwrap();
+            if compounds.contains(&&record[2]) {
+                let target = lab.path(&format!("seed/{}", &record[0]));
+                std::fs::create_dir_all(target.parent().unwrap()).unwrap();
+                std::fs::copy(seed().join(&record[0]), target).unwrap();
+                writer.write_record(&record).unwrap();
+            }
+        }
+        writer.flush().unwrap();
+        drop(writer);
+        lab.ok(&["import", "seed/manifest.csv"]);
+        lab
+    }
+}
+
+/// An example unknown of the seed library.
+pub fn unknown(name: &str) -> String {
+    seed().join("unknowns").join(name).display().to_string()
+}
