@@ -123,7 +123,18 @@ impl Error {
                 "another whorl process is writing to this library; wait for it to finish and run the command again \
                  (WHORL_BUSY_TIMEOUT_MS sets how long to wait)",
             ),
-            _ => None,
+            Error::Sqlite(_) => {
+                Some("keep a copy of the library folder, run `whorl check`, and report the message")
+            }
+            Error::Tantivy(_) => Some(
+                "the text index is derived data: delete the library's text-index/ folder and run the command again to rebuild it",
+            ),
+            Error::Io { .. } => Some(
+                "check that the path exists, that you may read and write it, and that the disk has room",
+            ),
+            Error::Json(_) => Some(
+                "a stored record is damaged; keep a copy of the library folder and report the message",
+            ),
         }
     }
 

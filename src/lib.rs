@@ -48,9 +48,11 @@
 #![warn(missing_docs)]
 
 pub mod chem;
+pub mod config;
 pub mod error;
 pub mod library;
 pub mod prepare;
+pub mod report;
 pub mod score;
 pub mod search;
 pub mod spectrum;

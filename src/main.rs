@@ -8,19 +8,15 @@ use clap::Parser;
 
 fn main() -> ExitCode {
     let args = cli::Cli::parse();
+    let paint = cli::stderr_paint(args.global.color);
     match cli::run(args) {
         Ok(code) => code,
         Err(err) => {
             if is_broken_pipe(&err) {
                 return ExitCode::SUCCESS;
             }
-            eprintln!("error: {err:#}");
-            if let Some(hint) = err
-                .downcast_ref::<whorl::Error>()
-                .and_then(whorl::Error::hint)
-            {
-                eprintln!("hint: {hint}");
-            }
+            eprintln!("{} {err:#}", paint.error("error:"));
+            eprintln!("{} {}", paint.bold("hint:"), cli::hint(&err));
             ExitCode::from(cli::exit_code(&err))
         }
     }

@@ -23,6 +23,9 @@ pub struct DemoArgs {
     /// Hits to show per unknown
     #[arg(long, default_value_t = 5)]
     pub top: usize,
+    /// Print the import summary and every search report as JSON
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// The invented second analyst who reviews the demo library.
@@ -30,6 +33,13 @@ const REVIEWER: &str = "demo.reviewer";
 
 fn seed_folder(given: Option<PathBuf>) -> anyhow::Result<PathBuf> {
     if let Some(dir) = given {
+        if !dir.join("manifest.csv").is_file() {
+            return Err(whorl::Error::invalid(
+                format!("{} holds no manifest.csv", dir.display()),
+                "pass --seed the folder of the repository's seed-library/, or leave --seed out",
+            )
+            .into());
+        }
         return Ok(dir);
     }
     let here = PathBuf::from("seed-library");
@@ -40,7 +50,11 @@ fn seed_folder(given: Option<PathBuf>) -> anyhow::Result<PathBuf> {
     if built_in.join("manifest.csv").is_file() {
         return Ok(built_in);
     }
-    anyhow::bail!("no seed-library/ found here or in the source tree; pass --seed DIR")
+    Err(whorl::Error::invalid(
+        "no seed-library/ found here or in the source tree",
+        "run the demo from the repository folder, or pass --seed DIR",
+    )
+    .into())
 }
 
 pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
@@ -71,8 +85,12 @@ pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
     )?;
     let mut out = std::io::stdout().lock();
     let stats = lib.stats()?;
+    // With --json, the human lines go nowhere and the searches are collected instead.
+    let mut sink = std::io::sink();
+    let mut text: &mut dyn Write = if args.json { &mut sink } else { &mut out };
+    let mut searches = Vec::new();
     writeln!(
-        out,
+        text,
         "demo library {}: {} spectra of {} compounds imported from {} in {:.1} s",
         root.display(),
         report.imported(),
@@ -81,7 +99,7 @@ pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
         started.elapsed().as_secs_f64()
     )?;
     for (row, err) in report.rejected() {
-        writeln!(out, "  rejected line {} ({}): {err}", row.line, row.file)?;
+        writeln!(text, "  rejected line {} ({}): {err}", row.line, row.file)?;
     }
 
     let unknowns = seed.join("unknowns");
@@ -118,11 +136,11 @@ pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
         let r = run_search(&lib, &file, x_unit, y_unit, solvent, &request)?;
         let elapsed = t.elapsed();
         writeln!(
-            out,
+            text,
             "\n== {} ({}; {})",
             row.file, technique, row.degradations
         )?;
-        print_report(&mut out, &r)?;
+        print_report(&mut text, &r)?;
         let rank = r
             .hits
             .iter()
@@ -130,13 +148,13 @@ pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
             .map(|i| i + 1);
         match rank {
             Some(k) => writeln!(
-                out,
+                text,
                 "expected  {} at rank {k}  (searched in {:.1} ms)",
                 row.expected,
                 elapsed.as_secs_f64() * 1e3
             )?,
             None => writeln!(
-                out,
+                text,
                 "expected  {} not in the top {}",
                 row.expected, args.top
             )?,
@@ -145,18 +163,41 @@ pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
         if rank == Some(1) {
             top1.0 += 1;
         }
+        searches.push(serde_json::json!({
+            "file": row.file,
+            "degradations": row.degradations,
+            "expected": row.expected,
+            "expected_rank": rank,
+            "milliseconds": elapsed.as_secs_f64() * 1e3,
+            "report": r,
+        }));
     }
     writeln!(
-        out,
+        text,
         "\n{} of {} example unknowns have the expected compound at rank 1.",
         top1.0, top1.1
     )?;
     if args.keep.is_some() {
         writeln!(
-            out,
+            text,
             "The demo library is kept in {}; try `whorl --library {} find solvent`.",
             root.display(),
             root.display()
+        )?;
+    }
+    if args.json {
+        super::output::json(
+            &mut out,
+            &serde_json::json!({
+                "library": root.display().to_string(),
+                "kept": args.keep.is_some(),
+                "imported": report.imported(),
+                "rejected": report.rejected().count(),
+                "compounds": stats.compounds,
+                "expected_at_rank_1": top1.0,
+                "unknowns": top1.1,
+                "searches": searches,
+            }),
         )?;
     }
     Ok(if top1.1 == 0 {

@@ -2,6 +2,8 @@
 
 mod add;
 mod check;
+mod completions;
+mod config;
 mod demo;
 mod export;
 mod find;
@@ -11,7 +13,9 @@ mod import;
 mod init;
 mod list;
 mod log;
+mod man;
 mod output;
+mod plot;
 mod policy;
 mod replay;
 mod review;
@@ -56,6 +60,9 @@ pub struct Global {
     /// The library folder [default: ./whorl-library]
     #[arg(long, global = true, env = "WHORL_LIBRARY", value_name = "DIR")]
     pub library: Option<PathBuf>,
+    /// When to colour output: auto (a terminal, unless NO_COLOR is set), always, never
+    #[arg(long, global = true, value_name = "WHEN", default_value = "auto")]
+    pub color: output::ColorChoice,
 }
 
 #[derive(Debug, Subcommand)]
@@ -98,6 +105,14 @@ pub enum Command {
     Formula(formula::FormulaArgs),
     /// Sub-formulas of a formula at given nominal m/z values (no library needed).
     Fragments(fragments::FragmentsArgs),
+    /// Plot spectra (library ids and/or files) on one axis as SVG.
+    Plot(plot::PlotArgs),
+    /// Show the library's settings (whorl.toml) with the defaults filled in.
+    Config(config::ConfigArgs),
+    /// Print a shell completion script: bash, zsh, fish, elvish or powershell.
+    Completions(completions::CompletionsArgs),
+    /// Print the manual page (roff); e.g. `whorl man > whorl.1 && man ./whorl.1`.
+    Man(man::ManArgs),
 }
 
 /// What every command needs besides its own arguments.
@@ -106,11 +121,25 @@ pub struct Context {
     pub library: PathBuf,
     /// Whether the folder was named (`--library` or `WHORL_LIBRARY`) rather than defaulted.
     pub library_given: bool,
+    /// Colour on stdout.
+    pub paint: output::Paint,
+    /// The `--color` choice, for stderr.
+    pub color: output::ColorChoice,
 }
 
 impl Context {
     fn open(&self) -> anyhow::Result<whorl::library::Library> {
         Ok(whorl::library::Library::open(&self.library)?)
+    }
+
+    /// Colour on stderr.
+    fn paint_stderr(&self) -> output::Paint {
+        self.color.stderr()
+    }
+
+    /// The library's `whorl.toml`, or the defaults without one.
+    fn config(&self) -> anyhow::Result<whorl::config::Config> {
+        Ok(whorl::config::Config::load(&self.library)?)
     }
 }
 
@@ -123,6 +152,8 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
             .clone()
             .unwrap_or_else(|| PathBuf::from("whorl-library")),
         library_given: cli.global.library.is_some(),
+        paint: cli.global.color.stdout(),
+        color: cli.global.color,
     };
     match cli.command {
         Command::Init(a) => init::run(a, &ctx),
@@ -144,7 +175,44 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Demo(a) => demo::run(a, &ctx),
         Command::Formula(a) => formula::run(a, &ctx),
         Command::Fragments(a) => fragments::run(a, &ctx),
+        Command::Plot(a) => plot::run(a, &ctx),
+        Command::Config(a) => config::run(a, &ctx),
+        Command::Completions(a) => completions::run(a),
+        Command::Man(a) => man::run(a),
     }
+}
+
+/// Colour on stderr, for `main` to print errors with.
+pub fn stderr_paint(cli_color: output::ColorChoice) -> output::Paint {
+    cli_color.stderr()
+}
+
+/// What the user can do about an error: the library's own hint, else one for the kind of
+/// failure, so that every error ends with a hint.
+pub fn hint(err: &anyhow::Error) -> String {
+    if let Some(h) = err
+        .downcast_ref::<whorl::Error>()
+        .and_then(whorl::Error::hint)
+    {
+        return h.to_string();
+    }
+    for cause in err.chain() {
+        if let Some(io) = cause.downcast_ref::<std::io::Error>() {
+            return match io.kind() {
+                std::io::ErrorKind::NotFound => {
+                    "check the path: the file or its folder does not exist".into()
+                }
+                std::io::ErrorKind::PermissionDenied => {
+                    "check the file's permissions, or choose a folder you may write to".into()
+                }
+                _ => "check the path, the free disk space and the permissions, then run the command again".into(),
+            };
+        }
+        if cause.downcast_ref::<csv::Error>().is_some() {
+            return "check the CSV file: a header line, then one record per line with the same number of fields".into();
+        }
+    }
+    "run the command again with --help to check its arguments; if it persists, report it with the command line".into()
 }
 
 /// The documented exit code for an error.

@@ -1,6 +1,6 @@
-//! Terminal output helpers: aligned tables and short hashes.
+//! Terminal output helpers: aligned tables, colour, short hashes, JSON, progress bars.
 
-use std::io::Write;
+use std::io::{IsTerminal, Write};
 
 /// A table whose columns are padded to their widest cell.
 pub struct Table {
@@ -29,6 +29,16 @@ impl Table {
 
     /// Writes the table.
     pub fn write(&self, out: &mut impl Write) -> std::io::Result<()> {
+        self.write_styled(out, Paint::OFF, None)
+    }
+
+    /// Writes the table with one row (0-based, headers not counted) in bold.
+    pub fn write_styled(
+        &self,
+        out: &mut impl Write,
+        paint: Paint,
+        bold_row: Option<usize>,
+    ) -> std::io::Result<()> {
         let n = self.headers.len();
         let mut widths: Vec<usize> = self.headers.iter().map(|h| h.chars().count()).collect();
         for r in &self.rows {
@@ -56,10 +66,88 @@ impl Table {
             s
         };
         writeln!(out, "{}", line(&self.headers))?;
-        for r in &self.rows {
-            writeln!(out, "{}", line(r))?;
+        for (i, r) in self.rows.iter().enumerate() {
+            let text = line(r);
+            if bold_row == Some(i) {
+                writeln!(out, "{}", paint.bold(&text))?;
+            } else {
+                writeln!(out, "{text}")?;
+            }
         }
         Ok(())
+    }
+}
+
+/// When to colour output: `--color auto|always|never`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum)]
+pub enum ColorChoice {
+    /// Only on a terminal, and not when NO_COLOR is set.
+    #[default]
+    Auto,
+    /// Always, even into a pipe.
+    Always,
+    /// Never.
+    Never,
+}
+
+impl ColorChoice {
+    /// Whether to colour a stream: `auto` colours a terminal unless `NO_COLOR` is set to a
+    /// non-empty value (no-color.org); an explicit `always` or `never` wins over both.
+    pub fn decide(self, is_terminal: bool, no_color: Option<&std::ffi::OsStr>) -> bool {
+        match self {
+            ColorChoice::Always => true,
+            ColorChoice::Never => false,
+            ColorChoice::Auto => is_terminal && no_color.is_none_or(|v| v.is_empty()),
+        }
+    }
+
+    /// The paint for stdout.
+    pub fn stdout(self) -> Paint {
+        Paint(self.decide(
+            std::io::stdout().is_terminal(),
+            std::env::var_os("NO_COLOR").as_deref(),
+        ))
+    }
+
+    /// The paint for stderr.
+    pub fn stderr(self) -> Paint {
+        Paint(self.decide(
+            std::io::stderr().is_terminal(),
+            std::env::var_os("NO_COLOR").as_deref(),
+        ))
+    }
+}
+
+/// Minimal ANSI styling, a no-op when colour is off. Colour is kept for what needs the eye:
+/// errors, warnings, and the first hit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Paint(pub bool);
+
+impl Paint {
+    /// No colour.
+    pub const OFF: Paint = Paint(false);
+
+    fn wrap(self, code: &str, text: &str) -> String {
+        if self.0 {
+            format!("\x1b[{code}m{text}\x1b[0m")
+        } else {
+            text.to_string()
+        }
+    }
+
+    /// Bold.
+    pub fn bold(self, text: &str) -> String {
+        self.wrap("1", text)
+    }
+
+    /// Bold yellow, for warnings.
+    pub fn warn(self, text: &str) -> String {
+        self.wrap("1;33", text)
+    }
+
+    /// Bold red, for errors.
+    pub fn error(self, text: &str) -> String {
+        self.wrap("1;31", text)
     }
 }
 
@@ -92,6 +180,32 @@ pub fn progress(len: u64, what: &str) -> indicatif::ProgressBar {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn colour_only_on_a_terminal_and_never_under_no_color() {
+        use std::ffi::OsStr;
+        let auto = ColorChoice::Auto;
+        assert!(auto.decide(true, None));
+        assert!(!auto.decide(false, None));
+        assert!(!auto.decide(true, Some(OsStr::new("1"))));
+        // An empty NO_COLOR does not count (no-color.org).
+        assert!(auto.decide(true, Some(OsStr::new(""))));
+        assert!(ColorChoice::Always.decide(false, Some(OsStr::new("1"))));
+        assert!(!ColorChoice::Never.decide(true, None));
+    }
+
+    #[test]
+    fn a_bold_row_keeps_the_columns_aligned() {
+        let mut t = Table::new(&[">rank", "name"]);
+        t.row(vec!["1".into(), "toluene".into()]);
+        t.row(vec!["10".into(), "acetone".into()]);
+        let mut out = Vec::new();
+        t.write_styled(&mut out, Paint(true), Some(0)).unwrap();
+        assert_eq!(
+            String::from_utf8(out).unwrap(),
+            "rank  name\n\x1b[1m   1  toluene\x1b[0m\n  10  acetone\n"
+        );
+    }
 
     #[test]
     fn columns_align() {

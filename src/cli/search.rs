@@ -4,10 +4,11 @@ use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+use anyhow::Context as _;
 use clap::Args;
 use whorl::prepare::Solvent;
 use whorl::score::Measure;
-use whorl::search::{Report, Request, run_search};
+use whorl::search::{Report, Request, search_file};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
@@ -20,13 +21,13 @@ pub struct SearchArgs {
     /// ir, raman, ms-ei or nmr-1h
     #[arg(long, short)]
     pub technique: Technique,
-    /// Number of hits to list
-    #[arg(long, default_value_t = 10)]
-    pub top: usize,
+    /// Number of hits to list [default: from whorl.toml, else 10]
+    #[arg(long)]
+    pub top: Option<usize>,
     /// Metadata query restricting the candidates, e.g. 'tag:solvent AND formula:C7H8'
     #[arg(long = "where", value_name = "QUERY")]
     pub filter: Option<String>,
-    /// NMR solvent of the unknown, e.g. CDCl3
+    /// NMR solvent of the unknown, e.g. CDCl3 [default: from whorl.toml]
     #[arg(long)]
     pub solvent: Option<Solvent>,
     /// y unit of the unknown (detected for IR when not given)
@@ -42,24 +43,33 @@ pub struct SearchArgs {
     #[arg(long, value_name = "FILE")]
     pub save: Option<PathBuf>,
     /// Print the full report as JSON
-    #[arg(long)]
+    #[arg(long, conflicts_with = "csv")]
     pub json: bool,
+    /// Print the hit list as CSV
+    #[arg(long)]
+    pub csv: bool,
+    /// Also write a self-contained HTML report with overlay plots to FILE
+    #[arg(long, value_name = "FILE")]
+    pub html: Option<PathBuf>,
 }
 
 pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
+    let config = ctx.config()?;
     let mut request = Request::new(args.technique);
-    request.top = args.top.max(1);
+    config.apply(&mut request);
+    request.top = args.top.unwrap_or(config.top(args.technique)).max(1);
     request.filter = args.filter.clone();
     if args.include_pending {
         request.statuses.push(whorl::library::Status::Pending);
     }
-    let report = run_search(
+    let solvent = args.solvent.or(config.solvent(args.technique));
+    let (report, unknown) = search_file(
         &lib,
         &args.unknown,
         args.x_unit,
         args.y_unit,
-        args.solvent,
+        solvent,
         &request,
     )?;
     if let Some(path) = &args.save {
@@ -67,13 +77,78 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         std::fs::write(path, text)
             .map_err(|e| whorl::Error::io(format!("writing {}", path.display()), e))?;
     }
+    if let Some(path) = &args.html {
+        let references = whorl::report::references(&lib, &report, config.report.plots)?;
+        let html = whorl::report::search_page(&whorl::report::Query {
+            report: &report,
+            unknown: &unknown,
+            references: &references,
+        })?;
+        std::fs::write(path, html)
+            .with_context(|| format!("writing the HTML report to {}", path.display()))?;
+        eprintln!("report written to {}", path.display());
+    }
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &report)?;
+    } else if args.csv {
+        write_csv(&mut out, &report)?;
     } else {
-        print_report(&mut out, &report)?;
+        print_report_styled(&mut out, &report, ctx.paint)?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// The hit list as CSV: one row per hit, every score component in its own column.
+pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
+    let mut w = csv::Writer::from_writer(out);
+    w.write_record([
+        "rank",
+        "score",
+        "measure",
+        "spectral",
+        "cosine",
+        "correlation",
+        "composite",
+        "peaks_matched",
+        "unknown_peaks",
+        "reference_peaks",
+        "peak_jaccard",
+        "name",
+        "formula",
+        "cas",
+        "spectrum_id",
+        "compound_id",
+        "technique",
+        "status",
+    ])?;
+    let opt = |v: Option<f64>| v.map(|v| format!("{v:.6}")).unwrap_or_default();
+    for h in &r.hits {
+        let c = &h.components;
+        let o = &c.peak_overlap;
+        w.write_record([
+            h.rank.to_string(),
+            format!("{:.6}", h.score),
+            measure_label(r.parameters.score.measure).to_string(),
+            format!("{:.6}", c.spectral),
+            format!("{:.6}", c.cosine),
+            opt(c.correlation),
+            opt(c.composite.as_ref().map(|x| x.composite)),
+            o.matched.to_string(),
+            o.unknown_peaks.to_string(),
+            o.reference_peaks.to_string(),
+            format!("{:.6}", o.jaccard),
+            h.name.clone(),
+            h.formula.clone().unwrap_or_default(),
+            h.cas.clone().unwrap_or_default(),
+            h.spectrum_id.to_string(),
+            h.compound_id.to_string(),
+            h.technique.to_string(),
+            h.status.to_string(),
+        ])?;
+    }
+    w.flush()?;
+    Ok(())
 }
 
 fn measure_label(m: Measure) -> &'static str {
@@ -86,6 +161,15 @@ fn measure_label(m: Measure) -> &'static str {
 
 /// Prints a hit list for people; shared with `demo`.
 pub fn print_report(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
+    print_report_styled(out, r, output::Paint::OFF)
+}
+
+/// [`print_report`] with colour: the first hit in bold, warnings in yellow.
+pub fn print_report_styled(
+    out: &mut impl Write,
+    r: &Report,
+    paint: output::Paint,
+) -> anyhow::Result<()> {
     let p = &r.parameters.score;
     writeln!(
         out,
@@ -154,7 +238,7 @@ pub fn print_report(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
             h.status.to_string(),
         ]);
     }
-    t.write(out)?;
+    t.write_styled(out, paint, Some(0))?;
     writeln!(out)?;
     if let Some(m) = r.margin {
         writeln!(
@@ -163,7 +247,7 @@ pub fn print_report(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
         )?;
     }
     for w in &r.warnings {
-        writeln!(out, "warning   {w}")?;
+        writeln!(out, "{}   {w}", paint.warn("warning"))?;
     }
     writeln!(out, "caution   {}", r.caution)?;
     Ok(())

@@ -28,6 +28,27 @@ pub struct Request {
     pub statuses: Vec<Status>,
     /// Scoring parameters.
     pub params: ScoreParams,
+    /// When the hit list warns.
+    pub thresholds: Thresholds,
+}
+
+/// When a hit list warns that it is weak or undecided. The defaults are [`WEAK_SCORE`] and
+/// [`CLOSE_MARGIN`]; a library's `whorl.toml` may set its own.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Thresholds {
+    /// Below this combined score the best hit is reported as a weak match.
+    pub weak_score: f64,
+    /// Top hits of different compounds closer than this are reported as too close to call.
+    pub close_margin: f64,
+}
+
+impl Default for Thresholds {
+    fn default() -> Thresholds {
+        Thresholds {
+            weak_score: WEAK_SCORE,
+            close_margin: CLOSE_MARGIN,
+        }
+    }
 }
 
 impl Request {
@@ -39,6 +60,7 @@ impl Request {
             filter: None,
             statuses: vec![Status::Verified],
             params: ScoreParams::default_for(technique),
+            thresholds: Thresholds::default(),
         }
     }
 }
@@ -143,9 +165,9 @@ pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Resul
             "no library spectrum to compare with: check the technique and the --where query"
                 .to_string(),
         ),
-        Some(best) if best.score < WEAK_SCORE => warnings.push(format!(
-            "best score {:.3} is below {WEAK_SCORE}: a weak match, not an identification",
-            best.score
+        Some(best) if best.score < request.thresholds.weak_score => warnings.push(format!(
+            "best score {:.3} is below {}: a weak match, not an identification",
+            best.score, request.thresholds.weak_score
         )),
         Some(_) => {}
     }
@@ -164,7 +186,7 @@ pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Resul
         }
     }
     if let (Some(m), Some(first), Some(second)) = (margin, hits.first(), hits.get(1))
-        && m < CLOSE_MARGIN
+        && m < request.thresholds.close_margin
         && first.compound_id != second.compound_id
     {
         warnings.push(format!(
@@ -226,6 +248,8 @@ pub struct Parameters {
     pub score: ScoreParams,
     /// The preparation recipe of the technique.
     pub recipe: crate::prepare::Recipe,
+    /// When the hit list warns.
+    pub thresholds: Thresholds,
 }
 
 /// A complete, self-describing search result.
@@ -262,6 +286,19 @@ pub fn run_search(
     solvent: Option<crate::prepare::Solvent>,
     request: &Request,
 ) -> Result<Report> {
+    search_file(library, file, x_unit, y_unit, solvent, request).map(|(report, _)| report)
+}
+
+/// [`run_search`], also returning the unknown as prepared, which a plotted report lays over
+/// the references.
+pub fn search_file(
+    library: &Library,
+    file: &std::path::Path,
+    x_unit: Option<crate::spectrum::XUnit>,
+    y_unit: Option<crate::spectrum::YUnit>,
+    solvent: Option<crate::prepare::Solvent>,
+    request: &Request,
+) -> Result<(Report, Prepared)> {
     let recipe = library.recipe(request.technique)?.clone();
     let (raw, unknown) = crate::library::read_and_prepare(file, &recipe, x_unit, y_unit, solvent)?;
     let list = search(library, &unknown, request)?;
@@ -271,7 +308,7 @@ pub fn run_search(
         .map(|w| format!("unknown: {w}"))
         .collect();
     warnings.extend(list.warnings);
-    Ok(Report {
+    let report = Report {
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
         searched_at: crate::library::now(),
         library: LibraryStamp {
@@ -297,11 +334,13 @@ pub fn run_search(
             statuses: request.statuses.clone(),
             score: request.params.clone(),
             recipe,
+            thresholds: request.thresholds,
         },
         candidates: list.candidates,
         hits: list.hits,
         margin: list.margin,
         warnings,
         caution: crate::CAUTION.to_string(),
-    })
+    };
+    Ok((report, unknown))
 }

@@ -76,6 +76,7 @@ pub fn replay(library: &Library, saved: &Report) -> Result<Replay> {
         filter: p.filter.clone(),
         statuses: p.statuses.clone(),
         params: p.score.clone(),
+        thresholds: p.thresholds,
     };
     let solvent = saved
         .unknown

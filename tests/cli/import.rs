@@ -141,7 +141,13 @@ fn import_json_summary_has_counts_and_rejected_rows() {
     let summary: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(
         keys(&summary),
-        ["already_present", "imported", "rejected", "rolled_back"]
+        [
+            "already_present",
+            "imported",
+            "rejected",
+            "rolled_back",
+            "warnings"
+        ]
     );
     assert_eq!(summary["imported"], 3);
     assert_eq!(summary["already_present"], 0);

@@ -34,14 +34,19 @@ impl Lab {
         }
     }
 
-    /// A fresh library holding every spectrum of the seed library's manifest.
     /// A library holding the seed spectra, all signed off by a second analyst (search covers
     /// verified spectra by default).
     pub fn seeded() -> Lab {
         let lab = Lab::new();
         let manifest = seed().join("manifest.csv");
         lab.ok(&["import", manifest.to_str().unwrap()]);
-        let list = lab.json(&["list"]);
+        lab.approve_all();
+        lab
+    }
+
+    /// Signs off every spectrum in the library as a second analyst.
+    pub fn approve_all(&self) {
+        let list = self.json(&["list"]);
         let ids: Vec<String> = list
             .as_array()
             .unwrap()
@@ -50,8 +55,7 @@ impl Lab {
             .collect();
         let mut args = vec!["review", "--approve", "--by", "r.second"];
         args.extend(ids.iter().map(String::as_str));
-        lab.ok(&args);
-        lab
+        self.ok(&args);
     }
 
     pub fn library(&self) -> PathBuf {
@@ -294,4 +298,46 @@ pub fn ms_csv(ions: &[(u32, f64)]) -> String {
         s.push_str(&format!("{mz},{a}\n"));
     }
     s
+}
+
+impl Lab {
+    /// Runs whorl like [`Lab::run`] with extra environment variables.
+    pub fn run_env(&self, args: &[&str], env: &[(&str, &str)]) -> Output {
+        let mut cmd = self.command(args);
+        cmd.env_remove("NO_COLOR");
+        for (k, v) in env {
+            cmd.env(k, v);
+        }
+        cmd.output().expect("run whorl")
+    }
+
+    /// A library holding the seed library's spectra (all four techniques) of the named
+    /// compounds, imported through a manifest of just those rows and signed off by a second
+    /// analyst.
+    pub fn seeded_with(compounds: &[&str]) -> Lab {
+        let lab = Lab::new();
+        let mut reader = csv::Reader::from_path(seed().join("manifest.csv")).unwrap();
+        std::fs::create_dir_all(lab.path("seed")).unwrap();
+        let mut writer = csv::Writer::from_path(lab.path("seed/manifest.csv")).unwrap();
+        writer.write_record(reader.headers().unwrap()).unwrap();
+        for record in reader.records() {
+            let record = record.unwrap();
+            if compounds.contains(&&record[2]) {
+                let target = lab.path(&format!("seed/{}", &record[0]));
+                std::fs::create_dir_all(target.parent().unwrap()).unwrap();
+                std::fs::copy(seed().join(&record[0]), target).unwrap();
+                writer.write_record(&record).unwrap();
+            }
+        }
+        writer.flush().unwrap();
+        drop(writer);
+        lab.ok(&["import", "seed/manifest.csv"]);
+        lab.approve_all();
+        lab
+    }
+}
+
+/// An example unknown of the seed library.
+pub fn unknown(name: &str) -> String {
+    seed().join("unknowns").join(name).display().to_string()
 }
