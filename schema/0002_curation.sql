@@ -21,6 +21,9 @@ UPDATE revision SET compound_id = (SELECT compound_id FROM spectrum WHERE spectr
 
 ALTER TABLE spectrum ADD COLUMN withdrawn_reason TEXT;
 
+-- A re-run import recognises files it has stored by their bytes, before reading them.
+CREATE INDEX spectrum_by_file ON spectrum (technique, file_sha256);
+
 INSERT INTO setting (key, value) VALUES ('allow_self_review', 'false') ON CONFLICT (key) DO NOTHING;
 
 -- Sign-offs and revisions are kept as written.

@@ -89,13 +89,18 @@ def main():
         db = os.path.join(lib, "library.sqlite")
 
         kills, runs, last = 0, 0, 0
+        # Kill moments are drawn up to max_delay, which adapts to the import rate seen so far so
+        # that about twice the wanted kills fit into the import, on a fast machine or a slow one.
+        max_delay = 1.0
+        target = args.files / (2 * args.kills)
         while kills < args.kills:
             runs += 1
             if runs > args.kills * 5:
                 sys.exit(f"FAIL: only {kills} kills landed in {runs} runs; use more --files")
             p = subprocess.Popen([whorl, "--library", lib, "import", manifest], env=env,
                                  stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-            time.sleep(rng.uniform(0.05, 1.5))
+            delay = rng.uniform(0.02, max_delay)
+            time.sleep(delay)
             if p.poll() is None:
                 os.kill(p.pid, signal.SIGKILL)
                 p.wait()
@@ -113,6 +118,11 @@ def main():
                 sys.exit("FAIL: the library is not whole after a kill")
             if spectra < last:
                 sys.exit("FAIL: spectra were lost")
+            if spectra > last:
+                rate = (spectra - last) / delay  # spectra per second, start-up included
+                max_delay = min(3.0, max(0.1, 2 * target / rate))
+            else:
+                max_delay = min(3.0, max_delay * 1.3)  # killed before its first commit
             last = spectra
             if spectra == args.files:
                 break

@@ -4,6 +4,8 @@ use rayon::prelude::*;
 
 use crate::error::{Error, Result};
 use crate::library::{Library, ManifestRow, Outcome, Staged, stage};
+use crate::spectrum::sha256_hex;
+use crate::technique::Technique;
 
 /// Spectra per transaction in a bulk import. A crash loses at most the batch under way, and
 /// re-running the import skips what is already stored.
@@ -88,9 +90,37 @@ pub fn import_rows(
         let batch: Vec<ManifestRow> = rows.by_ref().take(chunk).collect();
         let batch_len = batch.len();
         let recipes = lib.recipes().clone();
+        // A file whose exact bytes are already in the library for its technique is already
+        // present: skip reading and preparing it, so a re-run resumes quickly.
+        let file_hashes: Vec<Option<(Technique, String)>> = batch
+            .par_iter()
+            .map(|row| {
+                let s = row.submission.as_ref().ok()?;
+                let bytes = std::fs::read(&s.path).ok()?;
+                Some((s.technique, sha256_hex(&bytes)))
+            })
+            .collect();
+        let mut known = Vec::with_capacity(batch.len());
+        for h in &file_hashes {
+            known.push(match h {
+                Some((t, sha)) => lib.present_by_file(*t, sha)?,
+                None => None,
+            });
+        }
+        let (skipped, batch): (Vec<_>, Vec<_>) =
+            batch.into_iter().zip(known).partition(|(_, k)| k.is_some());
+        for (row, k) in skipped {
+            let spectrum_id = k.expect("partitioned on presence");
+            report.rows.push(RowReport {
+                line: row.line,
+                file: row.file,
+                outcome: Ok(Outcome::AlreadyPresent { spectrum_id }),
+                warnings: Vec::new(),
+            });
+        }
         let staged: Vec<(usize, String, Result<Staged>)> = batch
             .into_par_iter()
-            .map(|row| {
+            .map(|(row, _)| {
                 let staged = row.submission.and_then(|s| stage(&recipes, s));
                 (row.line, row.file, staged)
             })
@@ -132,5 +162,6 @@ pub fn import_rows(
         // Nothing was committed: report every row that was good as not imported.
         report.rows.retain(|r| r.outcome.is_err());
     }
+    report.rows.sort_by_key(|r| r.line);
     Ok(report)
 }

@@ -656,6 +656,17 @@ impl Library {
         Ok(out)
     }
 
+    /// The spectrum whose original file had exactly these bytes, for this technique.
+    pub fn present_by_file(&self, technique: Technique, file_sha256: &str) -> Result<Option<i64>> {
+        Ok(self
+            .conn
+            .prepare_cached(
+                "SELECT id FROM spectrum WHERE technique = ?1 AND file_sha256 = ?2 LIMIT 1",
+            )?
+            .query_row(params![technique.name(), file_sha256], |r| r.get(0))
+            .optional()?)
+    }
+
     /// The sequence number of the newest event.
     pub fn last_event(&self) -> Result<i64> {
         Ok(self
