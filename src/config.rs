@@ -27,8 +27,6 @@ pub struct Config {
     pub technique: TechniqueTable,
     /// When a hit list warns.
     pub thresholds: WarningThresholds,
-    /// Who may do what.
-    pub identity: IdentityPolicy,
     /// HTML reports.
     pub report: ReportDefaults,
 }
@@ -136,15 +134,6 @@ impl From<WarningThresholds> for Thresholds {
             close_margin: t.close_margin,
         }
     }
-}
-
-/// Who may do what in this library.
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
-#[serde(default, deny_unknown_fields)]
-pub struct IdentityPolicy {
-    /// Whether a submitter may verify their own spectrum. Off by default: a reference is
-    /// verified by someone other than the person who submitted it.
-    pub allow_self_review: bool,
 }
 
 /// HTML report settings.
@@ -296,7 +285,6 @@ mod tests {
         let c = parse("").unwrap();
         assert_eq!(c, Config::default());
         assert_eq!(c.top(Technique::Ir), 10);
-        assert!(!c.identity.allow_self_review);
         assert_eq!(Thresholds::from(c.thresholds), Thresholds::default());
         assert_eq!(c.report.plots, 5);
     }
@@ -304,13 +292,12 @@ mod tests {
     #[test]
     fn technique_options_override_the_search_defaults() {
         let c = parse(
-            "[search]\ntop = 7\n\n[technique.nmr-1h]\ntop = 3\nsolvent = \"cdcl3\"\npeak_tolerance = 0.05\n\n[technique.ms-ei]\nspectral_weight = 0.9\n\n[identity]\nallow_self_review = true\n",
+            "[search]\ntop = 7\n\n[technique.nmr-1h]\ntop = 3\nsolvent = \"cdcl3\"\npeak_tolerance = 0.05\n\n[technique.ms-ei]\nspectral_weight = 0.9\n",
         )
         .unwrap();
         assert_eq!(c.top(Technique::Nmr1h), 3);
         assert_eq!(c.top(Technique::Ir), 7);
         assert_eq!(c.solvent(Technique::Nmr1h), Some(Solvent::Cdcl3));
-        assert!(c.identity.allow_self_review);
         let mut r = Request::new(Technique::Nmr1h);
         c.apply(&mut r);
         assert_eq!(r.params.peak_tolerance, 0.05);
@@ -360,5 +347,22 @@ mod tests {
     fn a_missing_file_gives_the_defaults() {
         let dir = tempfile::tempdir().unwrap();
         assert_eq!(Config::load(dir.path()).unwrap(), Config::default());
+    }
+}
+
+#[cfg(test)]
+mod policy_tests {
+    use super::*;
+
+    #[test]
+    fn the_review_policy_is_not_a_file_setting() {
+        // Self-review is a library policy recorded in the audit trail (`whorl policy`); a text
+        // file that anyone can edit unrecorded must not weaken review.
+        let err = Config::parse(
+            "[identity]\nallow_self_review = true\n",
+            Path::new("lib/whorl.toml"),
+        )
+        .unwrap_err();
+        assert!(err.to_string().contains("identity"), "{err}");
     }
 }
