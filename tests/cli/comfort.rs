@@ -313,7 +313,7 @@ fn whorl_toml_sets_search_defaults() {
     );
     lab.write(
         "lib/whorl.toml",
-        "# lab defaults\n[search]\ntop = 3\n\n[technique.ir]\ntop = 2\nspectral_weight = 0.5\npeak_tolerance = 8\n\n[technique.nmr-1h]\nsolvent = \"CDCl3\"\n\n[thresholds]\nweak_score = 0.99\n\n[identity]\nallow_self_review = true\n",
+        "# lab defaults\n[search]\ntop = 3\n\n[technique.ir]\ntop = 2\nspectral_weight = 0.5\npeak_tolerance = 8\n\n[technique.nmr-1h]\nsolvent = \"CDCl3\"\n\n[thresholds]\nweak_score = 0.99\n",
     );
     let r = lab.json(&["search", &u, "-t", "ir"]);
     assert_eq!(r["hits"].as_array().unwrap().len(), 2);
@@ -336,7 +336,6 @@ fn whorl_toml_sets_search_defaults() {
     assert_eq!(r["unknown"]["solvent"], "CDCl3");
     let c = lab.json(&["config"]);
     assert_eq!(c["found"], true);
-    assert_eq!(c["config"]["identity"]["allow_self_review"], true);
     assert_eq!(c["config"]["technique"]["ir"]["top"], 2);
 }
 
