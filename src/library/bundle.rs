@@ -10,13 +10,14 @@ use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use rayon::prelude::*;
-use rusqlite::{OptionalExtension, params};
+use rusqlite::params;
 use serde::{Deserialize, Serialize};
 
 use super::curation::{Review, reweigh};
-use super::manifest::{read_bundle_manifest, resolve_within};
+use super::manifest::{KNOWN_COLUMNS, read_bundle_manifest, resolve_within};
 use super::records::{
-    Metadata, SpectrumRecord, Status, append_event, f32_bytes, find_or_create_compound,
+    Metadata, SpectrumRecord, Status, append_event, find_or_create_compound, insert_prepared,
+    present_by_raw,
 };
 use super::{ContentSum, Library, Outcome, Staged, fingerprint, now, record_hash, stage};
 use crate::error::{Error, Location, Result};
@@ -69,23 +70,6 @@ pub struct ExportReport {
     pub info: BundleInfo,
 }
 
-const BASE_COLUMNS: [&str; 15] = [
-    "file",
-    "technique",
-    "name",
-    "formula",
-    "cas",
-    "synonyms",
-    "tags",
-    "solvent",
-    "y_unit",
-    "x_unit",
-    "source",
-    "submitted_by",
-    "instrument",
-    "acquired",
-    "notes",
-];
 const PROVENANCE_COLUMNS: [&str; 10] = [
     "whorl_original_id",
     "whorl_status",
@@ -163,7 +147,7 @@ impl Library {
             .flat_map(|r| r.metadata.extra.keys().cloned())
             .collect();
         let mut w = csv::Writer::from_writer(Vec::new());
-        let header: Vec<&str> = BASE_COLUMNS
+        let header: Vec<&str> = KNOWN_COLUMNS
             .iter()
             .copied()
             .chain(extra_keys.iter().map(String::as_str))
@@ -455,14 +439,7 @@ fn import_one(
             "export the bundle again",
         ));
     }
-    let existing: Option<i64> = tx
-        .query_row(
-            "SELECT id FROM spectrum WHERE technique = ?1 AND raw_sha256 = ?2",
-            params![technique, raw_sha256],
-            |r| r.get(0),
-        )
-        .optional()?;
-    if let Some(spectrum_id) = existing {
+    if let Some(spectrum_id) = present_by_raw(tx, technique, &raw_sha256)? {
         return Ok(Outcome::AlreadyPresent { spectrum_id });
     }
     let status: Status = field("whorl_status").parse().map_err(|_| bad("status"))?;
@@ -518,11 +495,7 @@ fn import_one(
             params![spectrum_id, r.revision, r.reviewer, r.at, r.decision, r.meaning, r.note, imported_from],
         )?;
     }
-    let p = &staged.prepared;
-    tx.execute(
-        "INSERT INTO prepared (spectrum_id, vector, peaks, y_unit, warnings) VALUES (?1, ?2, ?3, ?4, ?5)",
-        params![spectrum_id, f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?, p.y_unit.name(), serde_json::to_string(&p.warnings)?],
-    )?;
+    insert_prepared(tx, spectrum_id, &staged.prepared)?;
     let meta_json = serde_json::to_string(metadata)?;
     reweigh(tx, technique, &raw_sha256, None, Some((status, &meta_json)))?;
     let payload = serde_json::json!({

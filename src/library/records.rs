@@ -7,7 +7,7 @@ use std::str::FromStr;
 use rusqlite::{Connection, OptionalExtension, params};
 use serde::{Deserialize, Serialize};
 
-use super::fingerprint::{ContentSum, record_hash};
+use super::fingerprint::ContentSum;
 use super::{Library, Recipes, Staged, now};
 use crate::error::{Error, Result};
 use crate::prepare::{Peak, Prepared, Recipe};
@@ -711,14 +711,7 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
     let sub = &staged.submission;
     let technique = sub.technique.name();
     let raw_sha256 = staged.raw.raw_sha256();
-    let existing: Option<i64> = tx
-        .query_row(
-            "SELECT id FROM spectrum WHERE technique = ?1 AND raw_sha256 = ?2",
-            params![technique, raw_sha256],
-            |r| r.get(0),
-        )
-        .optional()?;
-    if let Some(spectrum_id) = existing {
+    if let Some(spectrum_id) = present_by_raw(tx, technique, &raw_sha256)? {
         return Ok(Outcome::AlreadyPresent { spectrum_id });
     }
     let m = &sub.metadata;
@@ -753,18 +746,14 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
          VALUES (?1, 1, ?2, ?3, ?4, NULL, ?5)",
         params![spectrum_id, metadata_json, created_at, sub.submitted_by, compound_id],
     )?;
-    let p = &staged.prepared;
-    tx.execute(
-        "INSERT INTO prepared (spectrum_id, vector, peaks, y_unit, warnings) VALUES (?1, ?2, ?3, ?4, ?5)",
-        params![spectrum_id, f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?, p.y_unit.name(), serde_json::to_string(&p.warnings)?],
-    )?;
-    let h = record_hash(
+    insert_prepared(tx, spectrum_id, &staged.prepared)?;
+    super::curation::reweigh(
+        tx,
         technique,
-        Status::Pending.name(),
         &raw_sha256,
-        &metadata_json,
-    );
-    update_content_sum(tx, |s| s.add(&h))?;
+        None,
+        Some((Status::Pending, &metadata_json)),
+    )?;
     let payload = serde_json::json!({
         "spectrum": spectrum_id,
         "compound": compound_id,
@@ -819,4 +808,35 @@ pub(super) fn find_or_create_compound(tx: &Connection, m: &Metadata) -> Result<i
             Ok(tx.last_insert_rowid())
         }
     }
+}
+
+/// The spectrum holding exactly these raw points for this technique, if any: the identity
+/// that makes imports idempotent.
+pub(super) fn present_by_raw(
+    tx: &Connection,
+    technique: &str,
+    raw_sha256: &str,
+) -> Result<Option<i64>> {
+    Ok(tx
+        .query_row(
+            "SELECT id FROM spectrum WHERE technique = ?1 AND raw_sha256 = ?2",
+            params![technique, raw_sha256],
+            |r| r.get(0),
+        )
+        .optional()?)
+}
+
+/// Stores the prepared form of a new spectrum.
+pub(super) fn insert_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -> Result<()> {
+    tx.execute(
+        "INSERT INTO prepared (spectrum_id, vector, peaks, y_unit, warnings) VALUES (?1, ?2, ?3, ?4, ?5)",
+        params![
+            spectrum_id,
+            f32_bytes(&p.vector),
+            serde_json::to_string(&p.peaks)?,
+            p.y_unit.name(),
+            serde_json::to_string(&p.warnings)?
+        ],
+    )?;
+    Ok(())
 }
