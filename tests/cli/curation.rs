@@ -261,3 +261,80 @@ fn the_log_records_who_did_what_in_order() {
         "{human}"
     );
 }
+
+#[test]
+fn the_fingerprint_changes_exactly_when_the_searchable_content_changes() {
+    let (lab, id) = one_spectrum();
+    let fp = |lab: &Lab| {
+        lab.json(&["stats"])["fingerprint"]
+            .as_str()
+            .unwrap()
+            .to_string()
+    };
+    let mut seen = vec![fp(&lab)];
+    let mut changed = |lab: &Lab, args: &[&str], expect_change: bool| {
+        let out = lab.run(args);
+        let now = fp(lab);
+        assert_eq!(
+            now != *seen.last().unwrap(),
+            expect_change,
+            "{args:?}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        seen.push(now);
+    };
+    let u = lab.write("u.csv", ir_csv(&[(1715.0, 0.9, 10.0)]));
+    let u = u.to_str().unwrap();
+    // Reading, failing and re-adding change nothing.
+    changed(&lab, &["search", u, "-t", "ir", "--include-pending"], false);
+    changed(&lab, &["log"], false);
+    changed(
+        &lab,
+        &["review", &id, "--approve", "--by", "s.submitter"],
+        false,
+    );
+    changed(
+        &lab,
+        &[
+            "add",
+            "ketone.csv",
+            "-t",
+            "ir",
+            "--name",
+            "example ketone",
+            "--by",
+            "s.submitter",
+        ],
+        false,
+    );
+    changed(&lab, &["check"], false);
+    // Every change of what is searched, or of whether it is searched by default, changes it.
+    changed(
+        &lab,
+        &["review", &id, "--approve", "--by", "r.reviewer"],
+        true,
+    );
+    changed(
+        &lab,
+        &["revise", &id, "--note", "lot 2", "--by", "e.editor"],
+        true,
+    );
+    changed(&lab, &["add", u, "-t", "ir", "--name", "other"], true);
+    changed(
+        &lab,
+        &["withdraw", &id, "--reason", "recalled", "--by", "q.manager"],
+        true,
+    );
+    // Withdrawing the only other spectrum leaves the empty library's fingerprint.
+    changed(
+        &lab,
+        &["withdraw", "2", "--reason", "test", "--by", "q.manager"],
+        true,
+    );
+    let empty = Lab::new();
+    assert_eq!(
+        fp(&empty),
+        *seen.last().unwrap(),
+        "nothing searchable: the fingerprint of the recipes alone"
+    );
+}
