@@ -2,5 +2,7 @@
 
 mod util;
 
+mod identify;
 mod init;
+mod search_science;
 mod trade_facts;
