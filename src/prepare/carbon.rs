@@ -1,6 +1,6 @@
 //! 13C NMR: peak lists (or profile spectra reduced to peaks), solvent masks, stick vectors.
 
-use super::{Conditions, Peak, Prepared, Recipe, noise_sd, pick};
+use super::{Conditions, Peak, Prepared, Recipe, Solvent, nmr_masks, noise_sd, pick};
 use crate::error::Result;
 use crate::spectrum::YUnit;
 
@@ -27,14 +27,13 @@ pub(super) fn prepare(
     conditions: &Conditions,
 ) -> Result<Prepared> {
     let grid = &recipe.grid;
-    let mut warnings = Vec::new();
-    let mut masks = vec![(-TMS_HALF_WIDTH, TMS_HALF_WIDTH)];
-    match conditions.solvent {
-        Some(s) => masks.extend(s.carbon_masks()),
-        None => warnings
-            .push("no solvent declared: the solvent's own 13C signals are not masked".to_string()),
-    }
-    masks.extend(grid.masks.iter().copied());
+    let (masks, mut warnings) = nmr_masks(
+        TMS_HALF_WIDTH,
+        conditions.solvent,
+        Solvent::carbon_masks,
+        grid,
+        "the solvent's own 13C signals",
+    );
     let masked = |x: f64| masks.iter().any(|&(lo, hi)| x >= lo && x <= hi);
 
     let lines: Vec<(f64, f64)> = if sorted.len() > PROFILE_POINTS {

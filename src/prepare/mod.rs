@@ -264,6 +264,26 @@ pub fn l2_normalise(v: &mut [f32]) {
     }
 }
 
+/// The regions an NMR spectrum masks: TMS within `tms_half_width` of 0 ppm, the declared
+/// solvent's signals (`solvent_masks`), and the grid's own masks; with a warning when no
+/// solvent was declared, naming what stays unmasked.
+fn nmr_masks(
+    tms_half_width: f64,
+    solvent: Option<Solvent>,
+    solvent_masks: fn(Solvent) -> Vec<(f64, f64)>,
+    grid: &Grid,
+    unmasked: &str,
+) -> (Vec<(f64, f64)>, Vec<String>) {
+    let mut masks = vec![(-tms_half_width, tms_half_width)];
+    let mut warnings = Vec::new();
+    match solvent {
+        Some(s) => masks.extend(solvent_masks(s)),
+        None => warnings.push(format!("no solvent declared: {unmasked} are not masked")),
+    }
+    masks.extend(grid.masks.iter().copied());
+    (masks, warnings)
+}
+
 /// Picks peaks from a sampled curve and reports them in x units: maxima whose prominence
 /// reaches the recipe's fraction of the strongest one and, when the recipe has a noise floor,
 /// that many times `noise` (the noise standard deviation, which the caller estimates from

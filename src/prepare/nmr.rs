@@ -1,6 +1,6 @@
 //! 1H NMR: solvent masks, area binning, normalisation to total area, peaks with integrals.
 
-use super::{Binning, Conditions, Prepared, Recipe, noise_sd, pick};
+use super::{Binning, Conditions, Prepared, Recipe, Solvent, nmr_masks, noise_sd, pick};
 use crate::error::Result;
 use crate::spectrum::YUnit;
 
@@ -14,15 +14,13 @@ pub(super) fn prepare(
     conditions: &Conditions,
 ) -> Result<Prepared> {
     let grid = &recipe.grid;
-    let mut masks = vec![(-TMS_HALF_WIDTH, TMS_HALF_WIDTH)];
-    let mut warnings = Vec::new();
-    match conditions.solvent {
-        Some(s) => masks.extend(s.masks()),
-        None => warnings.push(
-            "no solvent declared: residual solvent and water signals are not masked".to_string(),
-        ),
-    }
-    masks.extend(grid.masks.iter().copied());
+    let (masks, warnings) = nmr_masks(
+        TMS_HALF_WIDTH,
+        conditions.solvent,
+        Solvent::masks,
+        grid,
+        "residual solvent and water signals",
+    );
     let masked = |x: f64| masks.iter().any(|&(lo, hi)| x >= lo && x <= hi);
 
     // Negative points (baseline noise, phase error) carry no area; masked points carry none either.

@@ -166,31 +166,8 @@ pub fn derivative_correlation(
 ) -> f64 {
     let da = first_derivative(a, params, skip);
     let db = first_derivative(b, params, skip);
-    let pairs: Vec<(f64, f64)> = da
-        .iter()
-        .zip(&db)
-        .filter_map(|(x, y)| Some(((*x)?, (*y)?)))
-        .collect();
-    let n = pairs.len() as f64;
-    if n < 2.0 {
-        return 0.0;
-    }
-    let (ma, mb) = (
-        pairs.iter().map(|p| p.0).sum::<f64>() / n,
-        pairs.iter().map(|p| p.1).sum::<f64>() / n,
-    );
-    let (mut ab, mut aa, mut bb) = (0.0, 0.0, 0.0);
-    for &(x, y) in &pairs {
-        let (x, y) = (x - ma, y - mb);
-        ab += x * y;
-        aa += x * x;
-        bb += y * y;
-    }
-    if aa == 0.0 || bb == 0.0 {
-        0.0
-    } else {
-        (ab / (aa.sqrt() * bb.sqrt())).clamp(0.0, 1.0)
-    }
+    let pairs = da.iter().zip(&db).filter_map(|(x, y)| Some(((*x)?, (*y)?)));
+    super::vector::pearson_pairs(pairs).clamp(0.0, 1.0)
 }
 
 #[cfg(test)]
