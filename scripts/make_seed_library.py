@@ -1373,6 +1373,117 @@ compound(
          sig(7.56, 2, "t", 7.9, M, "meta ArH")])
 
 
+# ---- 13C NMR peak lists ---------------------------------------------------
+# Shifts in ppm (from memory; approximate, good to about 0.5 ppm), in CDCl3
+# unless noted.  nC: equivalent carbons under the line.  kind "q" marks a
+# carbon without attached H, which appears weaker in a broadband-decoupled
+# spectrum (no NOE from attached protons, longer relaxation; common practice).
+def c13(ppm, nC, kind, assign, mark=M):
+    return {"ppm": ppm, "nC": nC, "kind": kind, "mark": mark, "assign": assign}
+
+
+CARBON = {
+    "methanol": ("CDCl3", [c13(50.4, 1, "h", "CH3O")]),
+    "ethanol": ("CDCl3", [c13(58.3, 1, "h", "CH2O"), c13(18.4, 1, "h", "CH3")]),
+    "1-propanol": ("CDCl3", [c13(64.4, 1, "h", "CH2O"), c13(25.9, 1, "h", "CH2"),
+                             c13(10.2, 1, "h", "CH3")]),
+    "2-propanol": ("CDCl3", [c13(64.3, 1, "h", "CHO"), c13(25.2, 2, "h", "CH3")]),
+    "1-butanol": ("CDCl3", [c13(62.6, 1, "h", "CH2O"), c13(34.9, 1, "h", "CH2"),
+                            c13(18.9, 1, "h", "CH2"), c13(13.8, 1, "h", "CH3")]),
+    "acetone": ("CDCl3", [c13(207.1, 1, "q", "C=O"), c13(30.9, 2, "h", "CH3")]),
+    "2-butanone": ("CDCl3", [c13(209.4, 1, "q", "C=O"), c13(36.9, 1, "h", "CH2"),
+                             c13(29.4, 1, "h", "CH3CO"), c13(7.9, 1, "h", "CH3")]),
+    "cyclohexanone": ("CDCl3", [c13(212.0, 1, "q", "C=O"), c13(42.0, 2, "h", "C2/C6"),
+                                c13(27.1, 2, "h", "C3/C5"), c13(25.1, 1, "h", "C4")]),
+    "acetophenone": ("CDCl3", [c13(198.1, 1, "q", "C=O"), c13(137.1, 1, "q", "ipso C"),
+                               c13(133.1, 1, "h", "para CH"), c13(128.6, 2, "h", "meta CH"),
+                               c13(128.3, 2, "h", "ortho CH"), c13(26.6, 1, "h", "CH3")]),
+    "4-methyl-2-pentanone": ("CDCl3", [c13(208.9, 1, "q", "C=O"), c13(52.8, 1, "h", "CH2"),
+                                       c13(30.4, 1, "h", "CH3CO"), c13(24.7, 1, "h", "CH"),
+                                       c13(22.6, 2, "h", "(CH3)2")]),
+    "propanal": ("CDCl3", [c13(202.8, 1, "h", "CHO"), c13(37.3, 1, "h", "CH2"),
+                           c13(6.0, 1, "h", "CH3")]),
+    "butanal": ("CDCl3", [c13(202.6, 1, "h", "CHO"), c13(45.8, 1, "h", "CH2CHO"),
+                          c13(15.7, 1, "h", "CH2"), c13(13.7, 1, "h", "CH3")]),
+    "benzaldehyde": ("CDCl3", [c13(192.4, 1, "h", "CHO"), c13(136.4, 1, "q", "ipso C"),
+                               c13(134.5, 1, "h", "para CH"), c13(129.7, 2, "h", "ortho CH"),
+                               c13(129.0, 2, "h", "meta CH")]),
+    "acetic acid": ("CDCl3", [c13(177.0, 1, "q", "COOH"), c13(20.8, 1, "h", "CH3")]),
+    "propanoic acid": ("CDCl3", [c13(181.2, 1, "q", "COOH"), c13(27.5, 1, "h", "CH2"),
+                                 c13(8.9, 1, "h", "CH3")]),
+    "butanoic acid": ("CDCl3", [c13(180.5, 1, "q", "COOH"), c13(36.1, 1, "h", "CH2CO"),
+                                c13(18.4, 1, "h", "CH2"), c13(13.6, 1, "h", "CH3")]),
+    "methyl acetate": ("CDCl3", [c13(171.4, 1, "q", "C=O"), c13(51.6, 1, "h", "OCH3"),
+                                 c13(20.6, 1, "h", "CH3CO")]),
+    "ethyl acetate": ("CDCl3", [c13(171.1, 1, "q", "C=O"), c13(60.5, 1, "h", "OCH2"),
+                                c13(21.0, 1, "h", "CH3CO"), c13(14.2, 1, "h", "CH3")]),
+    "butyl acetate": ("CDCl3", [c13(171.1, 1, "q", "C=O"), c13(64.4, 1, "h", "OCH2"),
+                                c13(30.7, 1, "h", "CH2"), c13(21.0, 1, "h", "CH3CO"),
+                                c13(19.2, 1, "h", "CH2"), c13(13.7, 1, "h", "CH3")]),
+    "diethyl ether": ("CDCl3", [c13(65.9, 2, "h", "OCH2"), c13(15.3, 2, "h", "CH3")]),
+    "tetrahydrofuran": ("CDCl3", [c13(68.0, 2, "h", "OCH2"), c13(25.7, 2, "h", "CH2")]),
+    "1,4-dioxane": ("CDCl3", [c13(67.2, 4, "h", "OCH2")]),
+    "methyl tert-butyl ether": ("CDCl3", [c13(72.7, 1, "q", "C(CH3)3"),
+                                          c13(49.4, 1, "h", "OCH3"),
+                                          c13(27.0, 3, "h", "C(CH3)3")]),
+    "benzene": ("CDCl3", [c13(128.4, 6, "h", "CH")]),
+    "toluene": ("CDCl3", [c13(137.9, 1, "q", "ipso C"), c13(129.1, 2, "h", "ortho CH"),
+                          c13(128.3, 2, "h", "meta CH"), c13(125.4, 1, "h", "para CH"),
+                          c13(21.5, 1, "h", "CH3")]),
+    "ethylbenzene": ("CDCl3", [c13(144.3, 1, "q", "ipso C"), c13(128.4, 2, "h", "meta CH"),
+                               c13(127.9, 2, "h", "ortho CH"), c13(125.7, 1, "h", "para CH"),
+                               c13(28.9, 1, "h", "CH2"), c13(15.6, 1, "h", "CH3")]),
+    "o-xylene": ("CDCl3", [c13(136.6, 2, "q", "C1/C2"), c13(129.6, 2, "h", "C3/C6"),
+                           c13(125.9, 2, "h", "C4/C5"), c13(19.8, 2, "h", "CH3")]),
+    "m-xylene": ("CDCl3", [c13(137.8, 2, "q", "C1/C3"), c13(130.0, 1, "h", "C2"),
+                           c13(128.2, 1, "h", "C5"), c13(126.2, 2, "h", "C4/C6"),
+                           c13(21.3, 2, "h", "CH3")]),
+    "p-xylene": ("CDCl3", [c13(134.7, 2, "q", "C1/C4"), c13(129.1, 4, "h", "CH"),
+                           c13(21.0, 2, "h", "CH3")]),
+    "styrene": ("CDCl3", [c13(137.6, 1, "q", "ipso C"), c13(136.9, 1, "h", "CH="),
+                          c13(128.5, 2, "h", "meta CH"), c13(127.8, 1, "h", "para CH"),
+                          c13(126.2, 2, "h", "ortho CH"), c13(113.8, 1, "h", "=CH2")]),
+    "chlorobenzene": ("CDCl3", [c13(134.3, 1, "q", "C-Cl"), c13(129.7, 2, "h", "meta CH"),
+                                c13(128.6, 2, "h", "ortho CH"), c13(126.4, 1, "h", "para CH")]),
+    "dichloromethane": ("CDCl3", [c13(53.5, 1, "h", "CH2Cl2")]),
+    # In CDCl3 the CHCl3 line would sit on the solvent's own triplet, so DMSO-d6.
+    "chloroform": ("DMSO-d6", [c13(79.2, 1, "h", "CHCl3")]),
+    "1,2-dichloroethane": ("CDCl3", [c13(43.5, 2, "h", "CH2Cl")]),
+    "trichloroethylene": ("CDCl3", [c13(124.5, 1, "q", "=CCl2"), c13(116.9, 1, "h", "=CHCl")]),
+    "n-hexane": ("CDCl3", [c13(31.7, 2, "h", "C3/C4"), c13(22.7, 2, "h", "C2/C5"),
+                           c13(14.1, 2, "h", "CH3")]),
+    "n-heptane": ("CDCl3", [c13(32.0, 2, "h", "C3/C5"), c13(29.1, 1, "h", "C4"),
+                            c13(22.8, 2, "h", "C2/C6"), c13(14.1, 2, "h", "CH3")]),
+    "cyclohexane": ("CDCl3", [c13(27.0, 6, "h", "CH2")]),
+    "acetonitrile": ("CDCl3", [c13(116.4, 1, "q", "C#N"), c13(1.9, 1, "h", "CH3")]),
+    "N,N-dimethylformamide": ("CDCl3", [c13(162.6, 1, "h", "CHO"), c13(36.5, 1, "h", "NCH3 (E)"),
+                                        c13(31.4, 1, "h", "NCH3 (Z)")]),
+    "pyridine": ("CDCl3", [c13(149.9, 2, "h", "C2/C6"), c13(135.9, 1, "h", "C4"),
+                           c13(123.7, 2, "h", "C3/C5")]),
+    "aniline": ("CDCl3", [c13(146.4, 1, "q", "C-N"), c13(129.3, 2, "h", "meta CH"),
+                          c13(118.6, 1, "h", "para CH"), c13(115.2, 2, "h", "ortho CH")]),
+    "phenol": ("CDCl3", [c13(155.0, 1, "q", "C-O"), c13(129.7, 2, "h", "meta CH"),
+                         c13(121.0, 1, "h", "para CH"), c13(115.3, 2, "h", "ortho CH")]),
+    "nitrobenzene": ("CDCl3", [c13(148.3, 1, "q", "C-NO2"), c13(134.7, 1, "h", "para CH"),
+                               c13(129.4, 2, "h", "meta CH"), c13(123.5, 2, "h", "ortho CH")]),
+}
+
+
+def attach_carbon_tables():
+    """Adds each compound's 13C table as `nmr_13c` (after the other tables)."""
+    for c in COMPOUNDS:
+        if c["name"] not in CARBON:
+            fail(f"{c['name']}: no 13C table")
+        solvent, signals = CARBON[c["name"]]
+        c["nmr_13c"] = {"solvent": solvent, "signals": signals}
+    extra = set(CARBON) - {c["name"] for c in COMPOUNDS}
+    if extra:
+        fail(f"13C tables for unknown compounds: {sorted(extra)}")
+
+
+attach_carbon_tables()
+
+
 # ===========================================================================
 # CHECKS
 # ===========================================================================
@@ -1508,8 +1619,56 @@ def check_tables():
             fail(f"{n}: NMR integrates to {nh_total} H, formula wants {want}")
         if meta["exch_omitted"] and solvent not in ("CD3OD", "D2O"):
             fail(f"{n}: exchangeable H omitted in a non-exchanging solvent")
+        check_carbon(c, atoms, meta)
     if len(COMPOUNDS) < 42:
         fail(f"only {len(COMPOUNDS)} compounds")
+
+
+# 13C signals of the NMR solvents (Gottlieb, Kotlyar & Nudelman, J. Org. Chem.
+# 1997, Table 1): centre of each C-D multiplet, its multiplicity (2nI + 1 lines
+# for n deuteriums, I = 1) and J(C,D) in Hz (from memory).
+CARBON_SOLVENTS = {
+    "CDCl3": [(77.16, 3, 32.0)],
+    "DMSO-d6": [(39.52, 7, 21.0)],
+    "CD3OD": [(49.00, 7, 21.5)],
+    "acetone-d6": [(29.84, 7, 19.5), (206.26, 1, 0.0)],
+    "C6D6": [(128.06, 3, 24.0)],
+    "CD3CN": [(1.32, 7, 21.0), (118.26, 1, 0.0)],
+    "D2O": [],
+}
+CARBON_GAP = 1.5  # no compound line within this distance of its solvent's signals
+C13_MHZ = 100.6   # 13C frequency of the 400 MHz instrument
+
+
+def check_carbon(c, atoms, meta):
+    n = c["name"]
+    table = c["nmr_13c"]
+    if table["solvent"] not in CARBON_SOLVENTS:
+        fail(f"{n}: unknown 13C solvent {table['solvent']}")
+    sigs = table["signals"]
+    if sum(s["nC"] for s in sigs) != atoms.get("C", 0):
+        fail(f"{n}: 13C table counts {sum(s['nC'] for s in sigs)} C, formula has {atoms.get('C', 0)}")
+    for s in sigs:
+        if not -10 <= s["ppm"] <= 250:
+            fail(f"{n}: 13C shift {s['ppm']} outside -10..250 ppm")
+        if s["kind"] not in ("q", "h") or s["mark"] not in (M, C):
+            fail(f"{n}: bad 13C entry {s}")
+        for centre, _, _ in CARBON_SOLVENTS[table["solvent"]]:
+            if abs(s["ppm"] - centre) <= CARBON_GAP:
+                fail(f"{n}: 13C line {s['ppm']} within {CARBON_GAP} ppm of the solvent at {centre}")
+    shifts = [s["ppm"] for s in sigs]
+    # Common practice: carbonyl carbons (ketone, aldehyde, acid, ester, amide) at 160-220 ppm.
+    if meta["carbonyl"] and not any(160 <= p <= 220 for p in shifts):
+        fail(f"{n}: carbonyl compound without a 13C line at 160-220 ppm")
+    if not meta["carbonyl"] and any(160 <= p <= 220 for p in shifts):
+        fail(f"{n}: 13C line at 160-220 ppm without a carbonyl")
+    # Common practice: aromatic ring carbons at 110-160 ppm.
+    if "aromatic" in c["class"] or c["class"] in ("phenol", "nitroaromatic", "heteroaromatic amine"):
+        if sum(s["nC"] for s in sigs if 110 <= s["ppm"] <= 160) < 5:
+            fail(f"{n}: aromatic compound with fewer than 5 ring carbons at 110-160 ppm")
+    # Common practice: saturated alkane carbons below 60 ppm.
+    if c["class"] in ("alkane", "cycloalkane") and any(p >= 60 for p in shifts):
+        fail(f"{n}: alkane carbon at or above 60 ppm")
 
 
 def check_solvent_clear(name, solvent, ppms):
@@ -1643,19 +1802,23 @@ ANALYSTS = {
     "raman": ["m.tanaka-ross", "p.lindqvist-oduya"],
     "ms-ei": ["j.okafor-brandt", "s.vell"],
     "nmr-1h": ["h.castellane", "r.adeyemi"],
+    "nmr-13c": ["h.castellane", "r.adeyemi"],
 }
 INSTRUMENTS = {
     "ir": "FTIR bench 2 (diamond ATR)",
     "raman": "Raman probe bench (785 nm)",
     "ms-ei": "GC-MS line A (EI 70 eV)",
     "nmr-1h": "400 MHz NMR",
+    "nmr-13c": "400 MHz NMR (100.6 MHz 13C)",
 }
-Y_UNITS = {"ir": "absorbance", "raman": "counts", "ms-ei": "relative", "nmr-1h": "intensity"}
+Y_UNITS = {"ir": "absorbance", "raman": "counts", "ms-ei": "relative", "nmr-1h": "intensity",
+           "nmr-13c": "intensity"}
 NOTES = {
     "ir": "neat, 32 scans at 4 cm-1, ATR-corrected (synthetic)",
     "raman": "neat liquid or solid in glass vial, 6 x 10 s (synthetic)",
     "ms-ei": "background-subtracted apex spectrum, scan m/z 10-300 (synthetic)",
     "nmr-1h": "about 10 mg in 0.6 mL with TMS, 16 scans (synthetic)",
+    "nmr-13c": "about 50 mg in 0.6 mL with TMS, 1H-decoupled, 1024 scans; peak list (synthetic)",
 }
 
 
@@ -1697,6 +1860,8 @@ def ref_comments(c, tech):
     extra = []
     if tech == "nmr-1h":
         extra.append(f"solvent: {c['nmr_1h']['solvent']}, 400 MHz")
+    if tech == "nmr-13c":
+        extra.append(f"solvent: {c['nmr_13c']['solvent']}, 100.6 MHz, peak list")
     return header_comments([f"compound: {c['name']} ({c['formula']}, CAS {c['cas'] or 'n/a'})",
                             f"technique: {tech}"] + extra)
 
@@ -1747,7 +1912,40 @@ def make_nmr(c, rng):
     return rows_text(["ppm", "intensity"], rows)
 
 
-TECH_FILES = ["ir", "raman", "ms-ei", "nmr-1h"]
+def carbon_lines(c, shift=0.0, jitter=None, solvent_lines=True):
+    """The 13C lines (ppm, relative height) of a compound's table: height nC, times 0.3 for
+    a carbon without H (weaker: no NOE, slower relaxation; common practice); the solvent's
+    C-D multiplet (binomial 2nI+1 pattern for I = 1 reduced to its line count, heights up
+    to 0.6 of the tallest compound line) and TMS at 0 ppm."""
+    lines = []
+    for s in c["nmr_13c"]["signals"]:
+        h = s["nC"] * (0.3 if s["kind"] == "q" else 1.0)
+        p = s["ppm"] + shift + (jitter() if jitter else 0.0)
+        lines.append((p, h))
+    top = max(h for _, h in lines)
+    if solvent_lines:
+        for centre, mult, j in CARBON_SOLVENTS[c["nmr_13c"]["solvent"]]:
+            weights = {1: [1], 3: [1, 1, 1], 7: [1, 3, 6, 7, 6, 3, 1]}[mult]
+            for k, w in enumerate(weights):
+                off = (k - (mult - 1) / 2) * j / C13_MHZ
+                lines.append((centre + off, 0.6 * top * w / max(weights)))
+        lines.append((0.0, 0.1 * top))
+    return lines
+
+
+def carbon_rows(lines, unit_heights=False):
+    top = max(h for _, h in lines)
+    rows = []
+    for p, h in sorted(lines, key=lambda l: -l[0]):
+        rows.append((f"{p:.2f}", "1" if unit_heights else str(max(1, int(round(999 * h / top))))))
+    return rows
+
+
+def make_c13(c):
+    return rows_text(["ppm", "intensity"], carbon_rows(carbon_lines(c)))
+
+
+TECH_FILES = ["ir", "raman", "ms-ei", "nmr-1h", "nmr-13c"]
 
 
 def write_library(out):
@@ -1764,6 +1962,8 @@ def write_library(out):
                 body = make_raman(c, rng)
             elif tech == "ms-ei":
                 body = make_ms(c)
+            elif tech == "nmr-13c":
+                body = make_c13(c)
             else:
                 body = make_nmr(c, rng)
             rel = f"spectra/{s}.{tech}.csv"
@@ -1771,7 +1971,8 @@ def write_library(out):
             manifest_rows.append([
                 rel, tech, c["name"], c["formula"], c["cas"],
                 ";".join(c["synonyms"]), ";".join(c["tags"]),
-                c["nmr_1h"]["solvent"] if tech == "nmr-1h" else "",
+                {"nmr-1h": c["nmr_1h"]["solvent"],
+                 "nmr-13c": c["nmr_13c"]["solvent"]}.get(tech, ""),
                 Y_UNITS[tech], src,
                 ANALYSTS[tech][(idx + ti) % 2], INSTRUMENTS[tech],
                 acquired_date(c, tech), NOTES[tech], c["class"], lot,
@@ -1972,6 +2173,35 @@ def write_unknowns(out):
         ["noise 1 % of max", "shift +0.01 ppm",
          "run in DMSO-d6 (reference in CDCl3): other residual and water peaks"])
 
+    # ---- 13C: a peak list with shift scatter, no intensities and the weak C=O
+    # line missing; and a profile spectrum instead of a peak list
+    c = by_name("2-butanone")
+    r = rng_for("unknown", "u16")
+    lines = [l for l in carbon_lines(c, jitter=lambda: r.gauss(0, 0.25)) if l[0] < 200]
+    add("u16.nmr-13c.csv", "nmr-13c", "2-butanone",
+        unknown_comments("u16", "nmr-13c", ["solvent: CDCl3, 100.6 MHz, peak list"]) +
+        rows_text(["ppm", "intensity"], carbon_rows(lines, unit_heights=True)),
+        "CDCl3", "intensity", "",
+        ["peak list without intensities (all 1)", "shift scatter sd 0.25 ppm",
+         "weak C=O line missing", "solvent triplet and TMS listed"])
+
+    c = by_name("acetophenone")
+    r = rng_for("unknown", "u17")
+    lines = carbon_lines(c, shift=0.2)
+    xs = [round(220.0 - 0.05 * i, 2) for i in range(4601)]
+    ys = []
+    for x in xs:
+        y = sum(h * lorentz(x, p, 0.1) for p, h in lines if abs(x - p) < 5)
+        ys.append(y)
+    top = max(ys)
+    ys = [1000.0 * y / top + r.gauss(0, 4.0) for y in ys]
+    add("u17.nmr-13c.csv", "nmr-13c", "acetophenone",
+        unknown_comments("u17", "nmr-13c", ["solvent: CDCl3, 100.6 MHz, full spectrum"]) +
+        rows_text(["ppm", "intensity"], [(f"{x:.2f}", fmt(y, 5, 2)) for x, y in zip(xs, ys)]),
+        "CDCl3", "intensity", "",
+        ["profile spectrum instead of a peak list (4601 points)", "referencing offset +0.2 ppm",
+         "noise 0.4 % of max", "lines 0.1 ppm wide"])
+
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["file", "technique", "expected", "solvent", "y_unit", "x_unit", "degradations"])
@@ -2013,14 +2243,16 @@ integrals match the formula, ...) and stops with an error if one fails.
   `ir.bands[]` / `raman.bands[]` (`pos` cm-1, `height` 0..1, `fwhm` cm-1,
   `mark`, `assign`), `ms.peaks[]` (`mz`, `rel` 0..100 with base peak 100,
   `mark`), `nmr_1h` (`solvent`, `signals[]` with `ppm, nH, mult, J_hz, mark,
-  assign`; `mult` is one of s d t q quint sext sept m br).
+  assign`; `mult` is one of s d t q quint sext sept m br), `nmr_13c`
+  (`solvent`, `signals[]` with `ppm, nC, kind, mark, assign`; `kind` is `q`
+  for a carbon without H, else `h`).
 - `manifest.csv`: one row per reference spectrum, header
   `file,technique,name,formula,cas,synonyms,tags,solvent,y_unit,source,submitted_by,instrument,acquired,notes,class,lot`.
-  `file` is relative to the manifest; `technique` is `ir`, `raman`, `ms-ei`
-  or `nmr-1h`; `synonyms` and `tags` are `;`-joined lists; `solvent` is set
-  for `nmr-1h` rows only; `y_unit` is `absorbance`, `counts`, `relative` or
-  `intensity`; `acquired` is an ISO date.
-- `spectra/<slug>.<technique>.csv`: four spectra per compound.
+  `file` is relative to the manifest; `technique` is `ir`, `raman`, `ms-ei`,
+  `nmr-1h` or `nmr-13c`; `synonyms` and `tags` are `;`-joined lists; `solvent`
+  is set for the NMR rows only; `y_unit` is `absorbance`, `counts`, `relative`
+  or `intensity`; `acquired` is an ISO date.
+- `spectra/<slug>.<technique>.csv`: five spectra per compound.
 - `unknowns/`: degraded example unknowns of library compounds and
   `unknowns/manifest.csv` with header
   `file,technique,expected,solvent,y_unit,x_unit,degradations`.
@@ -2037,6 +2269,7 @@ and never use exponent notation.
 | `raman` | `raman_shift_cm-1,counts` | 100 up to 3500, step 2 (1701 rows) | Lorentzian bands scaled to ~10000 counts, +~200 counts offset, shot noise; integers |
 | `ms-ei` | `mz,intensity` | nominal integer m/z, ascending | relative intensity 0-999, base peak 999 |
 | `nmr-1h` | `ppm,intensity` | 12.5 down to -0.5, step 0.004 (3251 rows) | first-order multiplets at 400 MHz of Lorentzian lines (fwhm 0.006 ppm; `br` 0.05 ppm), area proportional to nH; solvent residual, water and TMS peaks included; max ~1000 |
+| `nmr-13c` | `ppm,intensity` | peak list, descending ppm, 2 decimals | height proportional to nC, x0.3 for carbons without H; the solvent's C-D multiplet and TMS listed; integers, max 999 |
 
 NMR solvent residual / water peaks (Gottlieb, Kotlyar & Nudelman, J. Org.
 Chem. 1997): CDCl3 7.26 / 1.56, DMSO-d6 2.50 / 3.33, D2O 4.79 (HOD),
@@ -2056,7 +2289,14 @@ depart from the formats above to exercise the reader:
 - tab-delimited Raman (`.txt`);
 - whitespace-delimited mass spectrum (`.txt`);
 - NMR in ascending ppm order, or in another solvent than the reference
-  (the unknown's solvent is in the manifest).
+  (the unknown's solvent is in the manifest);
+- a 13C peak list without intensities (every line 1), and a 13C profile
+  spectrum instead of a peak list.
+
+The 13C solvent signals are those of Gottlieb, Kotlyar & Nudelman (J. Org.
+Chem. 1997, Table 1): CDCl3 77.16, DMSO-d6 39.52, CD3OD 49.00, acetone-d6
+29.84 / 206.26, C6D6 128.06, CD3CN 1.32 / 118.26; no compound line lies within
+1.5 ppm of its solvent's signals.
 """
 
 
@@ -2072,7 +2312,7 @@ def main(argv):
     write_library(out)
     rows = write_unknowns(out)
     write_text(os.path.join(out, "README.md"), README)
-    print(f"{len(COMPOUNDS)} compounds, {4 * len(COMPOUNDS)} reference spectra, "
+    print(f"{len(COMPOUNDS)} compounds, {len(TECH_FILES) * len(COMPOUNDS)} reference spectra, "
           f"{len(rows)} unknowns written to {out}")
 
 

@@ -61,6 +61,9 @@ pub struct TechniqueTable {
     /// 1H NMR.
     #[serde(rename = "nmr-1h")]
     pub nmr_1h: TechniqueOptions,
+    /// 13C NMR.
+    #[serde(rename = "nmr-13c")]
+    pub nmr_13c: TechniqueOptions,
 }
 
 impl TechniqueTable {
@@ -71,6 +74,7 @@ impl TechniqueTable {
             Technique::Raman => &self.raman,
             Technique::MsEi => &self.ms_ei,
             Technique::Nmr1h => &self.nmr_1h,
+            Technique::Nmr13c => &self.nmr_13c,
         }
     }
 }
@@ -105,26 +109,27 @@ pub struct TechniqueOptions {
     pub solvent: Option<String>,
 }
 
-/// When a hit list warns: the `[thresholds]` table.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+/// When a hit list warns: the `[thresholds]` table, overriding the thresholds derived by the
+/// evaluation for each technique and measure.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct WarningThresholds {
-    /// Below this combined score the best hit is reported as a weak match (0..1).
-    #[serde(deserialize_with = "unit_interval")]
-    pub weak_score: f64,
-    /// Top hits of different compounds closer than this are too close to call (0..1).
-    #[serde(deserialize_with = "unit_interval")]
-    pub close_margin: f64,
-}
-
-impl Default for WarningThresholds {
-    fn default() -> WarningThresholds {
-        let t = Thresholds::default();
-        WarningThresholds {
-            weak_score: t.weak_score,
-            close_margin: t.close_margin,
-        }
-    }
+    /// Below this combined score the best hit is reported as a weak match (0..1); unset keeps
+    /// the threshold derived for the technique and measure.
+    #[serde(
+        default,
+        deserialize_with = "some_unit_interval",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub weak_score: Option<f64>,
+    /// Top hits of different compounds closer than this are too close to call (0..1); unset
+    /// keeps the derived threshold.
+    #[serde(
+        default,
+        deserialize_with = "some_unit_interval",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub close_margin: Option<f64>,
 }
 
 impl From<WarningThresholds> for Thresholds {
@@ -241,10 +246,6 @@ fn some_at_least_one<'de, D: Deserializer<'de>>(
     d: D,
 ) -> std::result::Result<Option<usize>, D::Error> {
     at_least_one(d).map(Some)
-}
-
-fn unit_interval<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<f64, D::Error> {
-    unit::<D>(f64::deserialize(d)?)
 }
 
 fn some_unit_interval<'de, D: Deserializer<'de>>(

@@ -1,6 +1,6 @@
 //! # whorl
 //!
-//! A laboratory's own library of verified reference spectra (IR, Raman, EI-MS, 1H NMR),
+//! A laboratory's own library of verified reference spectra (IR, Raman, EI-MS, 1H and 13C NMR),
 //! stored in SQLite with full provenance, and searched by spectral similarity combined with
 //! a full-text query over metadata.
 //!

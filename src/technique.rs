@@ -22,15 +22,19 @@ pub enum Technique {
     /// Proton NMR, x in ppm.
     #[serde(rename = "nmr-1h")]
     Nmr1h,
+    /// Carbon-13 NMR peak list, x in ppm.
+    #[serde(rename = "nmr-13c")]
+    Nmr13c,
 }
 
 impl Technique {
     /// Every technique, in display order.
-    pub const ALL: [Technique; 4] = [
+    pub const ALL: [Technique; 5] = [
         Technique::Ir,
         Technique::Raman,
         Technique::MsEi,
         Technique::Nmr1h,
+        Technique::Nmr13c,
     ];
 
     /// The command-line name.
@@ -40,6 +44,7 @@ impl Technique {
             Technique::Raman => "raman",
             Technique::MsEi => "ms-ei",
             Technique::Nmr1h => "nmr-1h",
+            Technique::Nmr13c => "nmr-13c",
         }
     }
 
@@ -49,7 +54,7 @@ impl Technique {
             Technique::Ir => "wavenumber (cm-1)",
             Technique::Raman => "Raman shift (cm-1)",
             Technique::MsEi => "m/z",
-            Technique::Nmr1h => "chemical shift (ppm)",
+            Technique::Nmr1h | Technique::Nmr13c => "chemical shift (ppm)",
         }
     }
 
@@ -61,13 +66,17 @@ impl Technique {
             Technique::Raman => (-500.0, 5_000.0),
             Technique::MsEi => (0.0, 5_000.0),
             Technique::Nmr1h => (-5.0, 20.0),
+            // 13C shifts of organic compounds lie within about 0..230 ppm (common practice);
+            // -10..250 leaves room for referencing offsets and unusual carbons.
+            Technique::Nmr13c => (-10.0, 250.0),
         }
     }
 
     /// The fewest points a usable spectrum of this technique has.
     pub fn min_points(self) -> usize {
         match self {
-            Technique::MsEi => 1,
+            // Peak lists: one peak is a (poor but) usable spectrum.
+            Technique::MsEi | Technique::Nmr13c => 1,
             _ => 10,
         }
     }
@@ -103,17 +112,33 @@ impl Technique {
                 step: 0.04,
                 masks: vec![],
             },
+            // 1 ppm sticks over -10..250 ppm, the plausible range: a 13C peak list is compared
+            // by its peak positions; the stick vector only serves the cosine column.
+            Technique::Nmr13c => Grid {
+                start: -10.0,
+                stop: 250.0,
+                step: 1.0,
+                masks: vec![],
+            },
         }
     }
 
     /// Default one-to-one peak matching tolerance in x units (DESIGN: IR 4-8 cm-1,
-    /// MS exact nominal mass, 1H 0.03 ppm).
+    /// MS exact nominal mass, 1H 0.03 ppm, 13C 1 ppm).
     pub fn peak_tolerance(self) -> f64 {
         match self {
             Technique::Ir | Technique::Raman => 6.0,
             Technique::MsEi => 0.5,
             Technique::Nmr1h => 0.03,
+            // Solvent and referencing differences move 13C shifts by up to about 1 ppm
+            // (common practice).
+            Technique::Nmr13c => 1.0,
         }
+    }
+
+    /// True for the two NMR techniques, whose spectra carry a solvent.
+    pub fn is_nmr(self) -> bool {
+        matches!(self, Technique::Nmr1h | Technique::Nmr13c)
     }
 }
 
@@ -133,12 +158,13 @@ impl FromStr for Technique {
             "raman" => Some(Technique::Raman),
             "ms-ei" | "ei-ms" | "ms" => Some(Technique::MsEi),
             "nmr-1h" | "1h-nmr" | "1h" => Some(Technique::Nmr1h),
+            "nmr-13c" | "13c-nmr" | "13c" => Some(Technique::Nmr13c),
             _ => None,
         };
         found.ok_or_else(|| {
             Error::invalid(
                 format!("unknown technique '{s}'"),
-                "use one of: ir, raman, ms-ei, nmr-1h",
+                "use one of: ir, raman, ms-ei, nmr-1h, nmr-13c",
             )
         })
     }
@@ -214,6 +240,7 @@ mod tests {
         assert_eq!(Technique::Ir.default_grid().len(), 1801);
         assert_eq!(Technique::MsEi.default_grid().len(), 1000);
         assert_eq!(Technique::Nmr1h.default_grid().len(), 376);
+        assert_eq!(Technique::Nmr13c.default_grid().len(), 261);
     }
 
     #[test]

@@ -15,7 +15,7 @@ use super::{Context, identity};
 pub struct AddArgs {
     /// The spectrum file: two columns, x and y
     pub file: PathBuf,
-    /// ir, raman, ms-ei or nmr-1h
+    /// ir, raman, ms-ei, nmr-1h or nmr-13c
     #[arg(long, short)]
     pub technique: Technique,
     /// Compound name

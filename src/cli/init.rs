@@ -1,10 +1,12 @@
-//! `whorl init`: create a library.
+//! `whorl init`: create a library, with its library-wide preparation choices.
 
 use std::io::Write;
 use std::process::ExitCode;
 
 use clap::Args;
-use whorl::library::Library;
+use whorl::library::{Library, Recipes, default_recipes};
+use whorl::prepare::{Baseline, RegionMask};
+use whorl::technique::Technique;
 
 use super::{Context, identity};
 
@@ -16,10 +18,64 @@ pub struct InitArgs {
     /// Print the new library's recipes and fingerprint as JSON
     #[arg(long)]
     pub json: bool,
+    /// IR baseline removal: none, als or rubber-band
+    #[arg(long, value_name = "METHOD", default_value = "none")]
+    pub ir_baseline: String,
+    /// Raman baseline removal: none, als or rubber-band
+    #[arg(long, value_name = "METHOD", default_value = "als")]
+    pub raman_baseline: String,
+    /// Asymmetric least squares smoothness lambda, for the techniques using als
+    #[arg(long, value_name = "LAMBDA")]
+    pub als_lambda: Option<f64>,
+    /// Asymmetric least squares asymmetry p, for the techniques using als
+    #[arg(long, value_name = "P")]
+    pub als_p: Option<f64>,
+    /// Extra IR region to mask (repeatable): water-vapour, diamond-atr, or a range LO-HI in cm-1
+    #[arg(long = "ir-mask", value_name = "MASK")]
+    pub ir_masks: Vec<String>,
+}
+
+impl InitArgs {
+    /// The recipes these options ask for.
+    pub fn recipes(&self) -> whorl::Result<Recipes> {
+        let mut recipes = default_recipes();
+        for (technique, choice) in [
+            (Technique::Ir, &self.ir_baseline),
+            (Technique::Raman, &self.raman_baseline),
+        ] {
+            let mut baseline = Baseline::parse_choice(choice)?;
+            if let Some(Baseline::Als { lambda, p }) = &mut baseline {
+                if let Some(l) = self.als_lambda {
+                    *lambda = l;
+                }
+                if let Some(q) = self.als_p {
+                    *p = q;
+                }
+                if !(lambda.is_finite() && *lambda > 0.0 && *p > 0.0 && *p < 1.0) {
+                    return Err(whorl::Error::invalid(
+                        format!("ALS lambda {lambda} and p {p} are not usable"),
+                        "give a positive lambda (e.g. 1e5) and 0 < p < 1 (e.g. 0.01)",
+                    ));
+                }
+            }
+            if let Some(r) = recipes.get_mut(&technique) {
+                r.baseline = baseline;
+            }
+        }
+        let mut regions = Vec::new();
+        for m in &self.ir_masks {
+            regions.extend(RegionMask::parse_regions(m)?);
+        }
+        if let Some(r) = recipes.get_mut(&Technique::Ir) {
+            r.add_masks(&regions);
+        }
+        Ok(recipes)
+    }
 }
 
 pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
-    let lib = Library::init(&ctx.library, &identity(args.by.as_deref()))?;
+    let recipes = args.recipes()?;
+    let lib = Library::init_with(&ctx.library, &identity(args.by.as_deref()), recipes)?;
     let mut out = std::io::stdout().lock();
     if args.json {
         super::output::json(
@@ -35,9 +91,21 @@ pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     writeln!(out, "created library {}", ctx.library.display())?;
     for r in lib.recipes().values() {
         let g = &r.grid;
+        let mut extra = String::new();
+        if let Some(b) = r.baseline {
+            extra.push_str(&format!("; baseline {}", b.name()));
+        }
+        if !g.masks.is_empty() {
+            let masks: Vec<String> = g
+                .masks
+                .iter()
+                .map(|(lo, hi)| format!("{lo}-{hi}"))
+                .collect();
+            extra.push_str(&format!("; masked {}", masks.join(", ")));
+        }
         writeln!(
             out,
-            "  {:<7} grid {}..{} step {} ({} points)",
+            "  {:<7} grid {}..{} step {} ({} points){extra}",
             r.technique.name(),
             g.start,
             g.stop,
@@ -47,4 +115,66 @@ pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     }
     writeln!(out, "fingerprint {}", lib.fingerprint()?)?;
     Ok(ExitCode::SUCCESS)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cli::{Cli, Command};
+    use clap::Parser;
+
+    fn init_args(extra: &[&str]) -> InitArgs {
+        let mut argv = vec!["whorl", "init"];
+        argv.extend_from_slice(extra);
+        match Cli::try_parse_from(argv).unwrap().command {
+            Command::Init(a) => a,
+            _ => unreachable!(),
+        }
+    }
+
+    #[test]
+    fn defaults_match_the_default_recipes() {
+        assert_eq!(init_args(&[]).recipes().unwrap(), default_recipes());
+    }
+
+    #[test]
+    fn baselines_and_masks_go_into_the_recipes() {
+        let r = init_args(&[
+            "--ir-baseline",
+            "rubber-band",
+            "--raman-baseline",
+            "none",
+            "--ir-mask",
+            "diamond-atr",
+            "--ir-mask",
+            "water-vapour",
+        ])
+        .recipes()
+        .unwrap();
+        let ir = &r[&Technique::Ir];
+        assert_eq!(ir.baseline, Some(Baseline::RubberBand));
+        assert_eq!(
+            ir.grid.masks,
+            vec![
+                (1300.0, 2000.0),
+                (1900.0, 2300.0),
+                (2280.0, 2400.0),
+                (3500.0, 4000.0)
+            ]
+        );
+        assert_eq!(r[&Technique::Raman].baseline, None);
+        let r = init_args(&["--ir-baseline", "als", "--als-lambda", "1e6"])
+            .recipes()
+            .unwrap();
+        assert_eq!(
+            r[&Technique::Ir].baseline,
+            Some(Baseline::Als {
+                lambda: 1e6,
+                p: 0.01
+            })
+        );
+        assert!(init_args(&["--ir-mask", "4000"]).recipes().is_err());
+        assert!(init_args(&["--ir-baseline", "spline"]).recipes().is_err());
+        assert!(init_args(&["--als-p", "2"]).recipes().is_err());
+    }
 }

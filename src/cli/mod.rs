@@ -9,6 +9,7 @@ mod export;
 mod find;
 mod formula;
 mod fragments;
+mod identify;
 mod import;
 mod init;
 mod list;
@@ -74,7 +75,9 @@ pub enum Command {
     /// Import many spectra listed in a manifest CSV.
     Import(import::ImportArgs),
     /// Rank library spectra against an unknown.
-    Search(search::SearchArgs),
+    Search(Box<search::SearchArgs>),
+    /// Search unknowns of several techniques and fuse the evidence per compound.
+    Identify(Box<identify::IdentifyArgs>),
     /// Full-text search over metadata.
     Find(find::FindArgs),
     /// Show one spectrum: metadata, provenance, peaks, hashes.
@@ -159,7 +162,8 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Init(a) => init::run(a, &ctx),
         Command::Add(a) => add::run(*a, &ctx),
         Command::Import(a) => import::run(a, &ctx),
-        Command::Search(a) => search::run(a, &ctx),
+        Command::Search(a) => search::run(*a, &ctx),
+        Command::Identify(a) => identify::run(*a, &ctx),
         Command::Find(a) => find::run(a, &ctx),
         Command::Show(a) => show::run(a, &ctx),
         Command::List(a) => list::run(a, &ctx),

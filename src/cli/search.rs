@@ -7,8 +7,10 @@ use std::process::ExitCode;
 use anyhow::Context as _;
 use clap::Args;
 use whorl::prepare::Solvent;
-use whorl::score::Measure;
-use whorl::search::{Report, Request, search_file};
+use whorl::score::{Measure, ScoreParams};
+use whorl::search::{
+    Constraints, Report, Request, RiWindow, parse_alkanes, retention_index, search_file,
+};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
@@ -18,7 +20,7 @@ use super::{Context, output};
 pub struct SearchArgs {
     /// The unknown's spectrum file
     pub unknown: PathBuf,
-    /// ir, raman, ms-ei or nmr-1h
+    /// ir, raman, ms-ei, nmr-1h or nmr-13c
     #[arg(long, short)]
     pub technique: Technique,
     /// Number of hits to list [default: from whorl.toml, else 10]
@@ -36,6 +38,13 @@ pub struct SearchArgs {
     /// x unit for IR files given as wavelength: um or nm
     #[arg(long)]
     pub x_unit: Option<XUnit>,
+    #[command(flatten)]
+    pub scoring: ScoringArgs,
+    #[command(flatten)]
+    pub constraints: ConstraintArgs,
+    /// List the candidates the query or the constraints ruled out, with the reason
+    #[arg(long)]
+    pub explain: bool,
     /// Also search pending (not yet reviewed) spectra
     #[arg(long)]
     pub include_pending: bool,
@@ -53,13 +62,162 @@ pub struct SearchArgs {
     pub html: Option<PathBuf>,
 }
 
+/// How hits are scored; every option defaults to the technique's documented default.
+#[derive(Debug, Args)]
+pub struct ScoringArgs {
+    /// Ranking measure: correlation or derivative (IR, Raman), correlation (1H NMR),
+    /// composite (EI-MS), shift-match (13C NMR), or cosine (every technique)
+    #[arg(long, value_name = "M")]
+    pub measure: Option<Measure>,
+    /// Peak matching tolerance in the technique's x unit [default: IR/Raman 6 cm-1, MS 0.5,
+    /// 1H 0.03 ppm, 13C 1.0 ppm]
+    #[arg(long, value_name = "X")]
+    pub tolerance: Option<f64>,
+    /// EI-MS reverse search: only m/z present in the reference count
+    #[arg(long)]
+    pub reverse: bool,
+    /// EI-MS: leave out ions below this m/z, in the unknown and the references
+    #[arg(long, value_name = "MZ")]
+    pub min_mz: Option<f64>,
+    /// EI-MS: exponent of m/z in the peak weight [default: 3]
+    #[arg(long, value_name = "N")]
+    pub mz_exponent: Option<f64>,
+    /// EI-MS: exponent of the abundance in the peak weight [default: 0.6]
+    #[arg(long, value_name = "M")]
+    pub intensity_exponent: Option<f64>,
+    /// IR/Raman derivative measure: Savitzky-Golay window in points, odd [default: 11]
+    #[arg(long, value_name = "N")]
+    pub sg_window: Option<usize>,
+    /// IR/Raman derivative measure: Savitzky-Golay polynomial order [default: 2]
+    #[arg(long, value_name = "N")]
+    pub sg_order: Option<usize>,
+}
+
+impl ScoringArgs {
+    /// The score parameters for a technique: its defaults with these options applied.
+    pub fn params(&self, technique: Technique) -> whorl::Result<ScoreParams> {
+        let mut p = ScoreParams::default_for(technique);
+        if let Some(m) = self.measure {
+            p.measure = m;
+        }
+        if let Some(t) = self.tolerance {
+            p.peak_tolerance = t;
+        }
+        let ms_only = [
+            ("--reverse", self.reverse),
+            ("--min-mz", self.min_mz.is_some()),
+            ("--mz-exponent", self.mz_exponent.is_some()),
+            ("--intensity-exponent", self.intensity_exponent.is_some()),
+        ];
+        if technique != Technique::MsEi
+            && let Some((flag, _)) = ms_only.iter().find(|(_, given)| *given)
+        {
+            return Err(whorl::Error::invalid(
+                format!("{flag} applies to ms-ei searches, not {technique}"),
+                "leave it out, or search an EI mass spectrum with --technique ms-ei",
+            ));
+        }
+        p.composite.reverse = self.reverse;
+        p.min_mz = self.min_mz;
+        if let Some(n) = self.mz_exponent {
+            p.composite.mass_exponent = n;
+        }
+        if let Some(m) = self.intensity_exponent {
+            p.composite.intensity_exponent = m;
+        }
+        if let Some(w) = self.sg_window {
+            p.derivative.window = w;
+        }
+        if let Some(o) = self.sg_order {
+            p.derivative.order = o;
+        }
+        p.validate(technique)?;
+        Ok(p)
+    }
+}
+
+/// Constraints on the hits; a hit that one rules out is excluded (listed with `--explain`).
+#[derive(Debug, Args)]
+pub struct ConstraintArgs {
+    /// Only hits with exactly this formula, e.g. C7H8
+    #[arg(long, value_name = "F")]
+    pub formula: Option<String>,
+    /// Only hits whose formula has this nominal molecular mass
+    #[arg(long, value_name = "M")]
+    pub mass: Option<u32>,
+    /// Only hits whose formula has this index of hydrogen deficiency (rings + double bonds)
+    #[arg(long, value_name = "N")]
+    pub ihd: Option<f64>,
+    /// Only hits whose formula uses just these elements, e.g. C,H,O
+    #[arg(long, value_name = "LIST")]
+    pub elements: Option<String>,
+    /// Retention index of the unknown; hits need an `ri` within --ri-window
+    #[arg(long, value_name = "VALUE", conflicts_with = "rt")]
+    pub ri: Option<f64>,
+    /// Retention time of the unknown, turned into a retention index with --alkanes
+    #[arg(long, value_name = "T", requires = "alkanes")]
+    pub rt: Option<f64>,
+    /// n-alkane retention times for --rt, e.g. 9:8.20,10:10.60 (carbon number:time)
+    #[arg(long, value_name = "LIST", requires = "rt")]
+    pub alkanes: Option<String>,
+    /// Half-width of the retention-index window. The default, 20 units, allows for the
+    /// spread of published indices of one compound on one phase type between laboratories
+    /// and temperature programmes (from memory: typically 10-20 units)
+    #[arg(long, value_name = "W", default_value_t = 20.0)]
+    pub ri_window: f64,
+    /// Column phase of the retention index; hits' `ri_phase` must match
+    #[arg(long, value_name = "PHASE")]
+    pub ri_phase: Option<String>,
+}
+
+impl ConstraintArgs {
+    /// The validated constraints.
+    pub fn constraints(&self) -> whorl::Result<Constraints> {
+        let mut c = Constraints::default();
+        if let Some(f) = &self.formula {
+            c = c.with_formula(f)?;
+        }
+        if let Some(e) = &self.elements {
+            c = c.with_elements(e)?;
+        }
+        c.mass = self.mass;
+        c.ihd = self.ihd;
+        let ri = match (self.ri, self.rt, &self.alkanes) {
+            (Some(v), _, _) => Some(v),
+            (None, Some(t), Some(a)) => Some(retention_index(t, &parse_alkanes(a)?)?),
+            _ => None,
+        };
+        if let Some(value) = ri {
+            c.ri = Some(RiWindow {
+                value,
+                window: self.ri_window,
+                phase: self.ri_phase.clone(),
+            });
+        } else if self.ri_phase.is_some() {
+            return Err(whorl::Error::invalid(
+                "--ri-phase needs a retention index",
+                "give --ri VALUE (or --rt T --alkanes LIST) with it",
+            ));
+        }
+        c.validate()?;
+        Ok(c)
+    }
+}
+
 pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
     let config = ctx.config()?;
     let mut request = Request::new(args.technique);
+    request.params = args.scoring.params(args.technique)?;
+    // The library's whorl.toml sets defaults; options on the command line win over it.
     config.apply(&mut request);
+    if let Some(t) = args.scoring.tolerance {
+        request.params.peak_tolerance = t;
+    }
     request.top = args.top.unwrap_or(config.top(args.technique)).max(1);
     request.filter = args.filter.clone();
+    request.constraints = args.constraints.constraints()?;
+    request.explain = args.explain;
     if args.include_pending {
         request.statuses.push(whorl::library::Status::Pending);
     }
@@ -151,11 +309,60 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
     Ok(())
 }
 
-fn measure_label(m: Measure) -> &'static str {
+/// The short column label of a measure.
+pub fn measure_label(m: Measure) -> &'static str {
     match m {
         Measure::Cosine => "cosine",
         Measure::Correlation => "corr",
+        Measure::Derivative => "deriv",
         Measure::Composite => "composite",
+        Measure::ShiftMatch => "shift",
+    }
+}
+
+/// The ranking measure with the parameters that shape it, for the `ranking` line.
+fn measure_description(p: &ScoreParams, technique: Technique) -> String {
+    let mut s = measure_label(p.measure).to_string();
+    match p.measure {
+        Measure::Derivative => s.push_str(&format!(
+            " (Savitzky-Golay window {}, order {})",
+            p.derivative.window, p.derivative.order
+        )),
+        Measure::Composite => {
+            let c = &p.composite;
+            s.push_str(&format!(
+                " (weights intensity^{} x (m/z)^{}{}",
+                c.intensity_exponent,
+                c.mass_exponent,
+                if c.reverse { ", reverse search" } else { "" }
+            ));
+            if let Some(m) = p.min_mz {
+                s.push_str(&format!(", m/z >= {m}"));
+            }
+            s.push(')');
+        }
+        _ => {}
+    }
+    if technique == Technique::MsEi
+        && p.measure != Measure::Composite
+        && let Some(m) = p.min_mz
+    {
+        s.push_str(&format!(" (m/z >= {m})"));
+    }
+    s
+}
+
+/// The whole-spectrum measure shown beside the ranking one.
+fn second_measure(m: Measure, technique: Technique) -> Measure {
+    match m {
+        Measure::Cosine if technique.is_nmr() && technique != Technique::Nmr13c => {
+            Measure::Correlation
+        }
+        Measure::Cosine if technique == Technique::Nmr13c => Measure::ShiftMatch,
+        Measure::Cosine if technique == Technique::MsEi => Measure::Composite,
+        Measure::Cosine => Measure::Correlation,
+        Measure::Derivative => Measure::Correlation,
+        _ => Measure::Cosine,
     }
 }
 
@@ -171,11 +378,17 @@ pub fn print_report_styled(
     paint: output::Paint,
 ) -> anyhow::Result<()> {
     let p = &r.parameters.score;
+    let technique = r.unknown.technique;
+    let solvent = r
+        .unknown
+        .solvent
+        .as_deref()
+        .map(|s| format!(", in {s}"))
+        .unwrap_or_default();
     writeln!(
         out,
-        "unknown   {}  ({}, sha256 {})",
+        "unknown   {}  ({technique}{solvent}, sha256 {})",
         r.unknown.file,
-        r.unknown.technique,
         output::short(&r.unknown.sha256)
     )?;
     writeln!(
@@ -194,25 +407,25 @@ pub fn print_report_styled(
         out,
         "ranking   {:.2} x {} + {:.2} x peak overlap (tolerance {}); {} spectra compared{filter}",
         p.spectral_weight,
-        measure_label(p.measure),
+        measure_description(p, technique),
         1.0 - p.spectral_weight,
         p.peak_tolerance,
         r.candidates
     )?;
+    if let Some(c) = constraint_summary(&r.parameters.constraints) {
+        writeln!(out, "limits    {c}; {} ruled out", r.excluded_count)?;
+    }
     writeln!(out)?;
-    // The ranking measure, then one other whole-spectrum measure for comparison.
-    let spectral = measure_label(p.measure);
-    let second = if p.measure == Measure::Cosine {
-        "corr"
-    } else {
-        "cosine"
-    };
+    let second = second_measure(p.measure, technique);
     let mut t = output::Table::new(&[
         ">rank",
         ">score",
-        &format!(">{spectral}"),
-        &format!(">{second}"),
+        &format!(">{}", measure_label(p.measure)),
+        &format!(">{}", measure_label(second)),
         ">peaks",
+        ">fwd",
+        ">rev",
+        ">jacc",
         "compound",
         "formula",
         ">id",
@@ -221,17 +434,18 @@ pub fn print_report_styled(
     for h in &r.hits {
         let o = &h.components.peak_overlap;
         let c = &h.components;
-        let other = if p.measure == Measure::Cosine {
-            c.correlation.unwrap_or(c.cosine)
-        } else {
-            c.cosine
-        };
+        let other = c
+            .value(second)
+            .map_or_else(|| "-".to_string(), |v| format!("{v:.3}"));
         t.row(vec![
             h.rank.to_string(),
             format!("{:.3}", h.score),
             format!("{:.3}", c.spectral),
-            format!("{other:.3}"),
+            other,
             format!("{}/{}", o.matched, o.reference_peaks),
+            format!("{:.2}", o.forward),
+            format!("{:.2}", o.reverse),
+            format!("{:.2}", o.jaccard),
             h.name.clone(),
             h.formula.clone().unwrap_or_default(),
             h.spectrum_id.to_string(),
@@ -240,10 +454,38 @@ pub fn print_report_styled(
     }
     t.write_styled(out, paint, Some(0))?;
     writeln!(out)?;
+    for h in &r.hits {
+        for n in &h.notes {
+            writeln!(out, "note      hit {} ({}): {n}", h.rank, h.name)?;
+        }
+    }
+    if r.parameters.explain && r.excluded.is_empty() && r.excluded_count > 0 {
+        writeln!(
+            out,
+            "ruled out: {} candidate(s), none scoring above the last hit listed",
+            r.excluded_count
+        )?;
+        writeln!(out)?;
+    }
+    if !r.excluded.is_empty() {
+        writeln!(out, "ruled out (scored above the last hit):")?;
+        let mut t = output::Table::new(&[">score", "compound", "formula", ">id", "reason"]);
+        for e in &r.excluded {
+            t.row(vec![
+                format!("{:.3}", e.score),
+                e.name.clone(),
+                e.formula.clone().unwrap_or_default(),
+                e.spectrum_id.to_string(),
+                e.reason.clone(),
+            ]);
+        }
+        t.write(out)?;
+        writeln!(out)?;
+    }
     if let Some(m) = r.margin {
         writeln!(
             out,
-            "margin    {m:.3} between hits 1 and 2   (peaks = matched / reference peaks)"
+            "margin    {m:.3} between hits 1 and 2   (peaks = matched / reference peaks; fwd = matched / unknown peaks, rev = matched / reference peaks, jacc = Jaccard)"
         )?;
     }
     for w in &r.warnings {
@@ -251,4 +493,33 @@ pub fn print_report_styled(
     }
     writeln!(out, "caution   {}", r.caution)?;
     Ok(())
+}
+
+/// The constraints in one line, or `None` when there are none.
+pub fn constraint_summary(c: &Constraints) -> Option<String> {
+    let mut parts = Vec::new();
+    if let Some(f) = &c.formula {
+        parts.push(format!("formula {f}"));
+    }
+    if let Some(m) = c.mass {
+        parts.push(format!("nominal mass {m}"));
+    }
+    if let Some(i) = c.ihd {
+        parts.push(format!("IHD {i}"));
+    }
+    if let Some(e) = &c.elements {
+        parts.push(format!(
+            "elements {}",
+            e.iter().cloned().collect::<Vec<_>>().join(",")
+        ));
+    }
+    if let Some(ri) = &c.ri {
+        let phase = ri
+            .phase
+            .as_deref()
+            .map(|p| format!(" on {p}"))
+            .unwrap_or_default();
+        parts.push(format!("RI {:.0} +- {}{phase}", ri.value, ri.window));
+    }
+    (!parts.is_empty()).then(|| parts.join(", "))
 }

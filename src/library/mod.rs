@@ -48,6 +48,29 @@ pub struct Library {
     text_behind: std::cell::Cell<bool>,
 }
 
+/// The default recipe of every technique.
+pub fn default_recipes() -> Recipes {
+    Technique::ALL
+        .iter()
+        .map(|&t| (t, Recipe::default_for(t)))
+        .collect()
+}
+
+/// Checks recipes before a library is created from them: each under its own technique, each
+/// grid valid.
+fn check_recipes(recipes: &Recipes) -> Result<()> {
+    for (t, r) in recipes {
+        if r.technique != *t {
+            return Err(Error::invalid(
+                format!("a {} recipe was given for {t}", r.technique),
+                "give each technique its own recipe",
+            ));
+        }
+        r.grid.validate()?;
+    }
+    Ok(())
+}
+
 /// The current time, UTC, RFC 3339 with milliseconds.
 pub fn now() -> String {
     chrono::Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
@@ -57,6 +80,13 @@ impl Library {
     /// Creates a new library in `root` with the default recipes. Refuses a folder that already
     /// holds a library.
     pub fn init(root: &Path, actor: &str) -> Result<Library> {
+        Library::init_with(root, actor, default_recipes())
+    }
+
+    /// Creates a new library in `root` with the given recipes (one per technique; techniques
+    /// missing from `recipes` get their default). Refuses a folder that already holds a library.
+    pub fn init_with(root: &Path, actor: &str, recipes: Recipes) -> Result<Library> {
+        check_recipes(&recipes)?;
         let db = root.join(DATABASE_FILE);
         if db.exists() {
             return Err(Error::Library {
@@ -77,12 +107,18 @@ impl Library {
             text,
             text_behind: Default::default(),
         };
-        lib.initialise(actor)?;
+        lib.initialise(actor, recipes)?;
         Ok(lib)
     }
 
     /// A library held in memory, for tests.
     pub fn in_memory(actor: &str) -> Result<Library> {
+        Library::in_memory_with(actor, default_recipes())
+    }
+
+    /// A library held in memory with the given recipes, for tests and evaluations.
+    pub fn in_memory_with(actor: &str, recipes: Recipes) -> Result<Library> {
+        check_recipes(&recipes)?;
         let conn = Connection::open_in_memory()?;
         schema::configure(&conn, false)?;
         let mut lib = Library {
@@ -92,19 +128,17 @@ impl Library {
             text: TextIndex::in_ram()?,
             text_behind: Default::default(),
         };
-        lib.initialise(actor)?;
+        lib.initialise(actor, recipes)?;
         Ok(lib)
     }
 
-    fn initialise(&mut self, actor: &str) -> Result<()> {
+    fn initialise(&mut self, actor: &str, given: Recipes) -> Result<()> {
         schema::migrate(&mut self.conn)?;
+        let mut recipes = default_recipes();
+        recipes.extend(given);
         let tx = self
             .conn
             .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
-        let recipes: Recipes = Technique::ALL
-            .iter()
-            .map(|&t| (t, Recipe::default_for(t)))
-            .collect();
         for (t, r) in &recipes {
             tx.execute(
                 "INSERT INTO recipe (technique, recipe) VALUES (?1, ?2)",
@@ -188,7 +222,12 @@ impl Library {
     pub fn recipe(&self, technique: Technique) -> Result<&Recipe> {
         self.recipes
             .get(&technique)
-            .ok_or_else(|| Error::invalid(format!("no recipe for {technique}"), ""))
+            .ok_or_else(|| {
+                Error::invalid(
+                    format!("this library has no recipe for {technique}"),
+                    "the library was created before whorl knew this technique; create a new library with `whorl init` and import into it",
+                )
+            })
     }
 
     /// The text index.

@@ -47,7 +47,7 @@ pub fn usual_x_unit(technique: Technique) -> XUnit {
     match technique {
         Technique::Ir | Technique::Raman => XUnit::Wavenumber,
         Technique::MsEi => XUnit::MassToCharge,
-        Technique::Nmr1h => XUnit::Ppm,
+        Technique::Nmr1h | Technique::Nmr13c => XUnit::Ppm,
     }
 }
 

@@ -17,7 +17,36 @@ pub enum Baseline {
     RubberBand,
 }
 
+/// The ALS parameters a library uses unless told otherwise (DESIGN: lambda ~1e5, p ~0.01 on
+/// the library grid; Eilers & Boelens 2005 suggest 10^2..10^9 and 0.001..0.1).
+pub const ALS_DEFAULT: Baseline = Baseline::Als {
+    lambda: 1e5,
+    p: 0.01,
+};
+
 impl Baseline {
+    /// Reads a baseline choice: `none`, `als` (with [`ALS_DEFAULT`]'s parameters) or
+    /// `rubber-band`.
+    pub fn parse_choice(s: &str) -> crate::Result<Option<Baseline>> {
+        match s.trim().to_ascii_lowercase().replace('_', "-").as_str() {
+            "none" | "off" => Ok(None),
+            "als" | "asls" => Ok(Some(ALS_DEFAULT)),
+            "rubber-band" | "rubberband" => Ok(Some(Baseline::RubberBand)),
+            _ => Err(crate::Error::invalid(
+                format!("unknown baseline method '{s}'"),
+                "use none, als or rubber-band",
+            )),
+        }
+    }
+
+    /// The short name: `als` or `rubber-band`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Baseline::Als { .. } => "als",
+            Baseline::RubberBand => "rubber-band",
+        }
+    }
+
     /// Estimates the baseline of `y`.
     pub fn estimate(self, y: &[f64]) -> Vec<f64> {
         match self {

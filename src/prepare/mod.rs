@@ -4,13 +4,15 @@
 //! [`Recipe`] for its technique, so that vectors are comparable bin for bin.
 
 mod baseline;
+mod carbon;
 mod nmr;
 mod optical;
 mod peaks;
 mod solvent;
 mod spectrometry;
 
-pub use baseline::{Baseline, asls, rubber_band};
+pub use baseline::{ALS_DEFAULT, Baseline, asls, rubber_band};
+pub use carbon::PROFILE_POINTS;
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
 pub use peaks::{Maximum, Peak, find_maxima};
 pub use solvent::Solvent;
@@ -37,6 +39,58 @@ pub struct Recipe {
     /// IR, Raman: baseline removed on the grid before masking and normalisation.
     #[serde(default)]
     pub baseline: Option<Baseline>,
+    /// Peaks must also stand this many noise standard deviations above their bases (the
+    /// noise estimated from the spectrum itself, [`noise_sd`]). `None` in libraries made
+    /// before the noise floor existed, which keep picking as they did.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub noise_floor: Option<f64>,
+    /// 1H NMR: how points are binned. Libraries made before linear binning existed keep
+    /// nearest-bin binning, so their stored vectors stay comparable with their unknowns.
+    #[serde(default, skip_serializing_if = "Binning::is_nearest")]
+    pub binning: Binning,
+}
+
+/// How 1H NMR points are gathered into grid bins.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Binning {
+    /// Each point's area goes to the bin whose centre is nearest. A line sitting on a bin
+    /// edge then jumps from one bin to the next when it moves by a hundredth of a ppm.
+    #[default]
+    Nearest,
+    /// Each point's area is shared between the two nearest bin centres in proportion to
+    /// closeness ("linear binning", common practice in kernel density estimation), so that
+    /// a small shift changes the vector a little instead of moving a line across a bin edge.
+    Linear,
+}
+
+impl Binning {
+    /// True for [`Binning::Nearest`] (the value older recipes imply).
+    pub fn is_nearest(&self) -> bool {
+        *self == Binning::Nearest
+    }
+}
+
+/// The noise floor new libraries use: a peak's prominence must reach 6 noise standard
+/// deviations. In white Gaussian noise, the prominence (as [`find_maxima`] measures it) of
+/// noise maxima exceeds 3 sd about 50 times per 1000 points but 6 sd about once per 1000
+/// points (measured on seeded noise; see the test `noise_floor_rejects_noise_maxima`), so 6
+/// keeps noise out of peak lists while a band of 6 sd is still found.
+pub const NOISE_FLOOR: f64 = 6.0;
+
+/// Robust estimate of the standard deviation of white noise on a sampled curve: the median
+/// absolute first difference divided by 0.6745 sqrt(2) (the median absolute deviation of a
+/// normal variable is 0.6745 sd, and a difference of two samples has sd sqrt(2) sd; common
+/// practice). Smooth signal changes little from sample to sample, so the median difference
+/// is set by the noise wherever most samples lie off the peaks.
+pub fn noise_sd(y: &[f64]) -> f64 {
+    let mut d: Vec<f64> = y.windows(2).map(|w| (w[1] - w[0]).abs()).collect();
+    if d.is_empty() {
+        return 0.0;
+    }
+    let mid = d.len() / 2;
+    let (_, median, _) = d.select_nth_unstable_by(mid, f64::total_cmp);
+    *median / (0.6745 * std::f64::consts::SQRT_2)
 }
 
 impl Recipe {
@@ -54,13 +108,92 @@ impl Recipe {
             // a Raman library removes the baseline by default (DESIGN: ALS with lambda ~1e5,
             // p ~0.01 on the grid). IR keeps its baseline unless the library asks otherwise.
             baseline: match technique {
-                Technique::Raman => Some(Baseline::Als {
-                    lambda: 1e5,
-                    p: 0.01,
-                }),
+                Technique::Raman => Some(ALS_DEFAULT),
                 _ => None,
             },
+            noise_floor: Some(NOISE_FLOOR),
+            binning: match technique {
+                Technique::Nmr1h => Binning::Linear,
+                _ => Binning::Nearest,
+            },
         }
+    }
+
+    /// Adds masked regions to the grid, keeping them sorted and without repeats.
+    pub fn add_masks(&mut self, regions: &[(f64, f64)]) {
+        for &r in regions {
+            if !self.grid.masks.contains(&r) {
+                self.grid.masks.push(r);
+            }
+        }
+        self.grid.masks.sort_by(|a, b| a.0.total_cmp(&b.0));
+    }
+}
+
+/// A named region of an IR spectrum that a library may choose to mask at `init`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RegionMask {
+    /// Atmospheric CO2 (asymmetric stretch, about 2350 cm-1): masked by default.
+    Co2,
+    /// Water vapour in the beam path: the rotational-vibrational lines of the H2O bending
+    /// fundamental (origin about 1595 cm-1) and of the two stretching fundamentals (about
+    /// 3657 and 3756 cm-1) spread over roughly 1300-2000 and 3500-4000 cm-1 (from memory).
+    /// Masking 1300-2000 cm-1 also hides the C=O and C=C stretching region, so this mask
+    /// suits a library whose spectra carry uncompensated vapour lines and whose compounds
+    /// can be told apart without that region; a lab that purges its bench does not need it.
+    WaterVapour,
+    /// Diamond ATR: the diamond's own two- and three-phonon lattice absorption is strong at
+    /// about 1900-2300 cm-1 (from memory), where an ATR spectrum is noisy or clipped.
+    DiamondAtr,
+}
+
+impl RegionMask {
+    /// The masked regions, `(lo, hi)` in cm-1.
+    pub fn regions(self) -> &'static [(f64, f64)] {
+        match self {
+            // DESIGN: CO2 2400-2280 cm-1 (common practice for mid-IR).
+            RegionMask::Co2 => &[(2280.0, 2400.0)],
+            RegionMask::WaterVapour => &[(1300.0, 2000.0), (3500.0, 4000.0)],
+            RegionMask::DiamondAtr => &[(1900.0, 2300.0)],
+        }
+    }
+
+    /// The command-line name.
+    pub fn name(self) -> &'static str {
+        match self {
+            RegionMask::Co2 => "co2",
+            RegionMask::WaterVapour => "water-vapour",
+            RegionMask::DiamondAtr => "diamond-atr",
+        }
+    }
+
+    /// Reads a mask: a name (`co2`, `water-vapour`, `diamond-atr`) or a range `LO-HI` in cm-1.
+    pub fn parse_regions(s: &str) -> Result<Vec<(f64, f64)>> {
+        let t = s.trim().to_ascii_lowercase().replace('_', "-");
+        for m in [
+            RegionMask::Co2,
+            RegionMask::WaterVapour,
+            RegionMask::DiamondAtr,
+        ] {
+            if t == m.name() || (m == RegionMask::WaterVapour && t == "water-vapor") {
+                return Ok(m.regions().to_vec());
+            }
+        }
+        let bad = || {
+            Error::invalid(
+                format!("'{s}' is not a mask"),
+                "use co2, water-vapour, diamond-atr, or a range in cm-1 such as 1850-1950",
+            )
+        };
+        let (lo, hi) = t.split_once('-').ok_or_else(bad)?;
+        let (lo, hi): (f64, f64) = (
+            lo.trim().parse().map_err(|_| bad())?,
+            hi.trim().parse().map_err(|_| bad())?,
+        );
+        if !(lo.is_finite() && hi.is_finite() && lo < hi) {
+            return Err(bad());
+        }
+        Ok(vec![(lo, hi)])
     }
 }
 
@@ -103,6 +236,7 @@ pub fn prepare(
         Technique::Ir | Technique::Raman => optical::prepare(recipe, &sorted, conditions),
         Technique::MsEi => spectrometry::prepare(recipe, &sorted, conditions),
         Technique::Nmr1h => nmr::prepare(recipe, &sorted, conditions),
+        Technique::Nmr13c => carbon::prepare(recipe, &sorted, conditions),
     }?;
     if prepared.vector.iter().all(|&v| v == 0.0) {
         return Err(Error::input(
@@ -131,12 +265,37 @@ pub fn l2_normalise(v: &mut [f32]) {
     }
 }
 
-/// Picks peaks from a sampled curve and reports them in x units.
-fn pick(x: &[f64], y: &[f64], min_prominence_fraction: f64) -> Vec<(Maximum, Peak)> {
+/// The regions an NMR spectrum masks: TMS within `tms_half_width` of 0 ppm, the declared
+/// solvent's signals (`solvent_masks`), and the grid's own masks; with a warning when no
+/// solvent was declared, naming what stays unmasked.
+fn nmr_masks(
+    tms_half_width: f64,
+    solvent: Option<Solvent>,
+    solvent_masks: fn(Solvent) -> Vec<(f64, f64)>,
+    grid: &Grid,
+    unmasked: &str,
+) -> (Vec<(f64, f64)>, Vec<String>) {
+    let mut masks = vec![(-tms_half_width, tms_half_width)];
+    let mut warnings = Vec::new();
+    match solvent {
+        Some(s) => masks.extend(solvent_masks(s)),
+        None => warnings.push(format!("no solvent declared: {unmasked} are not masked")),
+    }
+    masks.extend(grid.masks.iter().copied());
+    (masks, warnings)
+}
+
+/// Picks peaks from a sampled curve and reports them in x units: maxima whose prominence
+/// reaches the recipe's fraction of the strongest one and, when the recipe has a noise floor,
+/// that many times `noise` (the noise standard deviation, which the caller estimates from
+/// the data before clipping or masking: runs of zeros would make [`noise_sd`] too small).
+fn pick(x: &[f64], y: &[f64], recipe: &Recipe, noise: f64) -> Vec<(Maximum, Peak)> {
     let all = find_maxima(y, 0.0);
     let strongest = all.iter().map(|m| m.prominence).fold(0.0, f64::max);
+    let floor = recipe.noise_floor.map_or(0.0, |k| k * noise);
+    let least = (recipe.min_peak_prominence * strongest).max(floor);
     all.into_iter()
-        .filter(|m| m.prominence >= min_prominence_fraction * strongest && m.prominence > 0.0)
+        .filter(|m| m.prominence >= least && m.prominence > 0.0)
         .map(|m| {
             let width = (peaks::x_at(x, m.right_half) - peaks::x_at(x, m.left_half)).abs();
             (
@@ -150,4 +309,67 @@ fn pick(x: &[f64], y: &[f64], min_prominence_fraction: f64) -> Vec<(Maximum, Pea
             )
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn noise_floor_rejects_noise_maxima() {
+        // Seeded white Gaussian noise (xorshift64* and Box-Muller), sd 1.
+        let mut state = 0x2545_F491_4F6C_DD1Du64;
+        let mut uniform = || {
+            state ^= state >> 12;
+            state ^= state << 25;
+            state ^= state >> 27;
+            (state.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let y: Vec<f64> = (0..20_000)
+            .map(|_| {
+                let (u1, u2) = (uniform().max(1e-300), uniform());
+                (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+            })
+            .collect();
+        let sd = noise_sd(&y);
+        assert!((sd - 1.0).abs() < 0.03, "{sd}");
+        let count = |k: f64| find_maxima(&y, k * sd).len() as f64 / y.len() as f64 * 1000.0;
+        // Per 1000 points: many noise maxima reach 3 sd, about one reaches 6 sd.
+        assert!(count(3.0) > 30.0, "{}", count(3.0));
+        assert!(count(NOISE_FLOOR) < 2.0, "{}", count(NOISE_FLOOR));
+    }
+
+    #[test]
+    fn masks_parse_by_name_or_range() {
+        assert_eq!(
+            RegionMask::parse_regions("Diamond_ATR").unwrap(),
+            [(1900.0, 2300.0)]
+        );
+        assert_eq!(RegionMask::parse_regions("water-vapor").unwrap().len(), 2);
+        assert_eq!(
+            RegionMask::parse_regions("1850-1950").unwrap(),
+            [(1850.0, 1950.0)]
+        );
+        assert!(RegionMask::parse_regions("1950-1850").is_err());
+        assert!(RegionMask::parse_regions("co3").is_err());
+    }
+
+    #[test]
+    fn older_recipes_read_as_they_were_written() {
+        // A recipe stored before the noise floor and linear binning existed.
+        let old = r#"{"technique":"nmr-1h","grid":{"start":-1.0,"stop":14.0,"step":0.04,"masks":[]},
+                     "min_peak_prominence":0.02,"min_relative_abundance":0.005,"baseline":null}"#;
+        let r: Recipe = serde_json::from_str(old).unwrap();
+        assert_eq!(r.noise_floor, None);
+        assert_eq!(r.binning, Binning::Nearest);
+        // ... and serialise without the new fields, so the library fingerprint is unchanged.
+        let text = serde_json::to_string(&r).unwrap();
+        assert!(
+            !text.contains("noise_floor") && !text.contains("binning"),
+            "{text}"
+        );
+        let new = Recipe::default_for(Technique::Nmr1h);
+        assert_eq!(new.binning, Binning::Linear);
+        assert_eq!(new.noise_floor, Some(NOISE_FLOOR));
+    }
 }

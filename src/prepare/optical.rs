@@ -1,6 +1,6 @@
 //! IR and Raman: absorbance, resampling onto the grid, masks, L2 normalisation, peaks.
 
-use super::{Conditions, Prepared, Recipe, l2_normalise, pick};
+use super::{Conditions, Prepared, Recipe, l2_normalise, noise_sd, pick};
 use crate::error::Result;
 use crate::spectrum::YUnit;
 use crate::technique::{Grid, Technique};
@@ -147,7 +147,14 @@ pub(super) fn prepare(
     let mut vector: Vec<f32> = values.iter().map(|&v| v as f32).collect();
     l2_normalise(&mut vector);
     let normalised: Vec<f64> = vector.iter().map(|&v| f64::from(v)).collect();
-    let peaks = pick(&xs, &normalised, recipe.min_peak_prominence)
+    // Noise from the unmasked stretch only: masked bins are runs of zeros.
+    let unmasked: Vec<f64> = normalised
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| !grid.masked(grid.x(*i)))
+        .map(|(_, &v)| v)
+        .collect();
+    let peaks = pick(&xs, &normalised, recipe, noise_sd(&unmasked))
         .into_iter()
         .map(|(_, p)| p)
         .collect();

@@ -40,6 +40,11 @@ pub const RESIDUAL_HALF_WIDTH: f64 = 0.05;
 /// concentration, so its window is wider (common practice).
 pub const WATER_HALF_WIDTH: f64 = 0.10;
 
+/// Half-width of the window masked around a solvent's 13C signal, ppm. The widest solvent
+/// multiplet, the DMSO-d6 septet, spans about +-0.63 ppm at 100 MHz (J(C,D) about 21 Hz,
+/// from memory), and 1 ppm also covers the 13C matching tolerance.
+pub const CARBON_HALF_WIDTH: f64 = 1.0;
+
 impl Solvent {
     /// Every supported solvent.
     pub const ALL: [Solvent; 7] = [
@@ -94,7 +99,31 @@ impl Solvent {
         }
     }
 
-    /// The regions masked for this solvent, `(lo, hi)` in ppm.
+    /// The solvent's own 13C signals (the centres of its C-D multiplets), ppm; none for D2O.
+    ///
+    /// Gottlieb, Kotlyar & Nudelman, J. Org. Chem. 1997, 62, 7512-7515, Table 1.
+    pub fn carbon_ppm(self) -> &'static [f64] {
+        match self {
+            Solvent::Cdcl3 => &[77.16],
+            Solvent::DmsoD6 => &[39.52],
+            Solvent::D2o => &[],
+            Solvent::Cd3od => &[49.00],
+            Solvent::AcetoneD6 => &[29.84, 206.26],
+            Solvent::C6d6 => &[128.06],
+            Solvent::Cd3cn => &[1.32, 118.26],
+        }
+    }
+
+    /// The regions masked in a 13C peak list for this solvent, `(lo, hi)` in ppm: each
+    /// solvent signal +- [`CARBON_HALF_WIDTH`].
+    pub fn carbon_masks(self) -> Vec<(f64, f64)> {
+        self.carbon_ppm()
+            .iter()
+            .map(|&c| (c - CARBON_HALF_WIDTH, c + CARBON_HALF_WIDTH))
+            .collect()
+    }
+
+    /// The regions masked for this solvent in a 1H spectrum, `(lo, hi)` in ppm.
     pub fn masks(self) -> Vec<(f64, f64)> {
         let mut out = Vec::with_capacity(2);
         if let Some(r) = self.residual_ppm() {
@@ -160,6 +189,16 @@ mod tests {
             assert_eq!(solvent.residual_ppm(), residual, "{solvent}");
             assert_eq!(solvent.water_ppm(), water, "{solvent}");
         }
+    }
+
+    #[test]
+    fn carbon_signals_follow_gottlieb_1997() {
+        // Gottlieb, Kotlyar & Nudelman, J. Org. Chem. 1997, 62, 7512, Table 1 (13C).
+        assert_eq!(Solvent::Cdcl3.carbon_ppm(), &[77.16]);
+        assert_eq!(Solvent::DmsoD6.carbon_ppm(), &[39.52]);
+        assert_eq!(Solvent::AcetoneD6.carbon_ppm(), &[29.84, 206.26]);
+        assert!(Solvent::D2o.carbon_ppm().is_empty());
+        assert_eq!(Solvent::Cdcl3.carbon_masks(), vec![(76.16, 78.16)]);
     }
 
     #[test]

@@ -148,8 +148,14 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
     fact(
         "warns when",
         format!(
-            "best score below {}, or hits 1 and 2 of different compounds within {}",
-            p.thresholds.weak_score, p.thresholds.close_margin
+            "best score below {}, or hits 1 and 2 of different compounds within {} ({})",
+            r.confidence.weak_score,
+            r.confidence.close_margin,
+            if r.confidence.derived {
+                "derived for this scoring"
+            } else {
+                "set for this library or not derived"
+            }
         ),
     );
     s.push_str("</dl>\n");
@@ -351,6 +357,8 @@ fn measure_name(m: Measure) -> &'static str {
         Measure::Cosine => "cosine",
         Measure::Correlation => "correlation",
         Measure::Composite => "composite",
+        Measure::Derivative => "derivative correlation",
+        Measure::ShiftMatch => "shift match",
     }
 }
 
@@ -360,6 +368,7 @@ fn technique_title(t: Technique) -> &'static str {
         Technique::Raman => "Raman",
         Technique::MsEi => "EI mass spectrum",
         Technique::Nmr1h => "\u{B9}H NMR",
+        Technique::Nmr13c => "\u{B9}\u{B3}C NMR",
     }
 }
 
@@ -367,7 +376,7 @@ fn x_unit(t: Technique) -> &'static str {
     match t {
         Technique::Ir | Technique::Raman => "cm\u{207B}\u{B9}",
         Technique::MsEi => "m/z",
-        Technique::Nmr1h => "ppm",
+        Technique::Nmr1h | Technique::Nmr13c => "ppm",
     }
 }
 

@@ -328,7 +328,7 @@ impl Axis {
             Technique::Ir => "wavenumber / cm\u{207B}\u{B9}",
             Technique::Raman => "Raman shift / cm\u{207B}\u{B9}",
             Technique::MsEi => "m/z",
-            Technique::Nmr1h => "chemical shift \u{3B4} / ppm",
+            Technique::Nmr1h | Technique::Nmr13c => "chemical shift \u{3B4} / ppm",
         }
     }
 
@@ -339,6 +339,7 @@ impl Axis {
             Technique::Ir => "absorbance, scaled to 1",
             Technique::Raman => "intensity, scaled to 1",
             Technique::Nmr1h => "area per bin, scaled to 1",
+            Technique::Nmr13c => "line intensity, scaled to 1",
         }
     }
 }
@@ -679,6 +680,7 @@ fn tick(v: f64) -> String {
 fn tick_for(technique: Technique, x: f64) -> String {
     match technique {
         Technique::Nmr1h => format!("{x:.2}"),
+        Technique::Nmr13c => format!("{x:.1}"),
         _ => format!("{x:.0}"),
     }
 }

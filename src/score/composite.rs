@@ -148,6 +148,32 @@ mod tests {
     }
 
     #[test]
+    fn hand_worked_example_with_the_default_exponents() {
+        // Worked by hand from Stein & Scott 1994's definitions, weights I^0.6 (m/z)^3.
+        // Intensities 1, 32, 243 have 0.6th powers 1, 8, 27 (2^5^0.6 = 2^3, 3^5^0.6 = 3^3);
+        // m/z 10, 20, 30 have cubes 1000, 8000, 27000. Weights divided by 1000 (every term
+        // is a ratio, so a common factor cancels):
+        //   unknown   m/z 10: I 32 -> 8 x 1 = 8;  m/z 20: I 1 -> 1 x 8 = 8;   m/z 30: I 243 -> 27 x 27 = 729
+        //   reference m/z 10: I 1  -> 1 x 1 = 1;  m/z 20: I 32 -> 8 x 8 = 64; m/z 30: I 243 -> 729
+        // F_D = (8x1 + 8x64 + 729x729)^2 / ((8^2 + 8^2 + 729^2)(1^2 + 64^2 + 729^2))
+        //     = 531961^2 / (531569 x 535538) = 282982505521 / 284675399122 = 0.9940532...
+        // F_R: pairs (10, 20): (64 x 8) / (1 x 8) = 64 -> 1/64; (20, 30): (729 x 8) / (64 x 729)
+        //      = 1/8; mean over the two ratios (see stein_scott's doc) = (1/64 + 1/8) / 2 = 0.0703125
+        // composite = (N_U F_D + N_common F_R) / (N_U + N_common) = (3 F_D + 3 F_R) / 6
+        //           = (0.9940532 + 0.0703125) / 2 = 0.5321829
+        let unknown = [(10.0, 32.0), (20.0, 1.0), (30.0, 243.0)];
+        let reference = [(10.0, 1.0), (20.0, 32.0), (30.0, 243.0)];
+        let c = stein_scott(&unknown, &reference, &CompositeParams::default());
+        assert!(
+            (c.dot - 282_982_505_521.0 / 284_675_399_122.0).abs() < 1e-12,
+            "{c:?}"
+        );
+        assert!((c.ratio - 0.0703125).abs() < 1e-12, "{c:?}");
+        assert!((c.composite - 0.532_182_874_7).abs() < 1e-9, "{c:?}");
+        assert_eq!((c.unknown_peaks, c.common_peaks), (3, 3));
+    }
+
+    #[test]
     fn reverse_search_ignores_extra_ions_in_the_unknown() {
         let reference = [(43.0, 100.0), (58.0, 30.0)];
         let unknown = [(43.0, 100.0), (58.0, 30.0), (207.0, 40.0)];

@@ -2,15 +2,23 @@
 //! inputs and documented parameters, and lies in 0..1 with 1 for identical spectra.
 
 mod composite;
+mod derivative;
 mod overlap;
 mod vector;
 
 pub use composite::{Composite, CompositeParams, stein_scott};
-pub use overlap::{Overlap, peak_overlap};
+pub use derivative::{
+    DerivativeParams, derivative_correlation, first_derivative, savgol_coefficients,
+};
+pub use overlap::{Overlap, peak_overlap, shift_match};
 pub use vector::{cosine, pearson};
+
+use std::fmt;
+use std::str::FromStr;
 
 use serde::{Deserialize, Serialize};
 
+use crate::error::{Error, Result};
 use crate::prepare::Prepared;
 use crate::technique::{Grid, Technique};
 
@@ -22,20 +30,85 @@ pub enum Measure {
     Cosine,
     /// Pearson correlation over unmasked bins, negative values counted as 0.
     Correlation,
+    /// Pearson correlation of the Savitzky-Golay first derivatives (IR, Raman).
+    Derivative,
     /// Stein & Scott composite (EI-MS).
     Composite,
+    /// Tolerance-weighted Jaccard index of the peak positions (13C NMR).
+    ShiftMatch,
 }
 
 impl Measure {
     /// The measure a technique uses unless told otherwise. IR and Raman rank by correlation,
     /// which ignores a constant offset of the baseline; 1H NMR by cosine of the area-normalised
-    /// bins; EI-MS by the Stein & Scott composite.
+    /// bins; EI-MS by the Stein & Scott composite; 13C NMR by the shift match, because a 13C
+    /// peak list carries positions, not quantitative intensities.
     pub fn default_for(technique: Technique) -> Measure {
         match technique {
             Technique::Ir | Technique::Raman => Measure::Correlation,
             Technique::MsEi => Measure::Composite,
             Technique::Nmr1h => Measure::Cosine,
+            Technique::Nmr13c => Measure::ShiftMatch,
         }
+    }
+
+    /// The command-line name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Measure::Cosine => "cosine",
+            Measure::Correlation => "correlation",
+            Measure::Derivative => "derivative",
+            Measure::Composite => "composite",
+            Measure::ShiftMatch => "shift-match",
+        }
+    }
+
+    /// Whether this measure can rank spectra of `technique`.
+    pub fn applies_to(self, technique: Technique) -> bool {
+        match self {
+            Measure::Cosine => true,
+            Measure::Correlation => technique != Technique::MsEi && technique != Technique::Nmr13c,
+            Measure::Derivative => matches!(technique, Technique::Ir | Technique::Raman),
+            Measure::Composite => technique == Technique::MsEi,
+            Measure::ShiftMatch => technique == Technique::Nmr13c,
+        }
+    }
+
+    /// Every measure, in display order.
+    pub const ALL: [Measure; 5] = [
+        Measure::Correlation,
+        Measure::Derivative,
+        Measure::Cosine,
+        Measure::Composite,
+        Measure::ShiftMatch,
+    ];
+}
+
+impl fmt::Display for Measure {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+impl FromStr for Measure {
+    type Err = Error;
+
+    fn from_str(s: &str) -> Result<Measure> {
+        let want = s.trim().to_ascii_lowercase();
+        let alias = match want.as_str() {
+            "corr" | "pearson" => "correlation",
+            "deriv" | "derivative-correlation" => "derivative",
+            other => other,
+        };
+        Measure::ALL
+            .into_iter()
+            .find(|m| m.name() == alias)
+            .ok_or_else(|| {
+                Error::invalid(
+                    format!("unknown measure '{s}'"),
+                    "use correlation, derivative or cosine (IR, Raman, 1H NMR), composite (EI-MS), shift-match (13C NMR)",
+                )
+            })
     }
 }
 
@@ -50,6 +123,13 @@ pub struct ScoreParams {
     pub peak_tolerance: f64,
     /// EI-MS weighting and search direction.
     pub composite: CompositeParams,
+    /// EI-MS: ions below this m/z are left out of every measure, in the unknown and in the
+    /// references alike (for example below m/z 35, where air, water and carrier-gas ions sit).
+    #[serde(default)]
+    pub min_mz: Option<f64>,
+    /// IR, Raman: the Savitzky-Golay first derivative of the derivative correlation.
+    #[serde(default)]
+    pub derivative: DerivativeParams,
 }
 
 impl ScoreParams {
@@ -61,7 +141,63 @@ impl ScoreParams {
             spectral_weight: 0.8,
             peak_tolerance: technique.peak_tolerance(),
             composite: CompositeParams::default(),
+            min_mz: None,
+            derivative: DerivativeParams::default(),
         }
+    }
+
+    /// Checks the parameters make sense for `technique`.
+    pub fn validate(&self, technique: Technique) -> Result<()> {
+        if !self.measure.applies_to(technique) {
+            let usable: Vec<&str> = Measure::ALL
+                .iter()
+                .filter(|m| m.applies_to(technique))
+                .map(|m| m.name())
+                .collect();
+            return Err(Error::invalid(
+                format!("measure {} does not apply to {technique}", self.measure),
+                format!("for {technique} use one of: {}", usable.join(", ")),
+            ));
+        }
+        if !(0.0..=1.0).contains(&self.spectral_weight) {
+            return Err(Error::invalid(
+                format!("spectral weight {} is outside 0..1", self.spectral_weight),
+                "give a weight between 0 and 1",
+            ));
+        }
+        if !(self.peak_tolerance.is_finite() && self.peak_tolerance > 0.0) {
+            return Err(Error::invalid(
+                format!(
+                    "peak tolerance {} is not a positive number",
+                    self.peak_tolerance
+                ),
+                format!(
+                    "give a tolerance in the technique's x unit, e.g. {} for {technique}",
+                    technique.peak_tolerance()
+                ),
+            ));
+        }
+        let c = &self.composite;
+        for (what, v) in [
+            ("intensity exponent", c.intensity_exponent),
+            ("m/z exponent", c.mass_exponent),
+        ] {
+            if !(v.is_finite() && (0.0..=10.0).contains(&v)) {
+                return Err(Error::invalid(
+                    format!("{what} {v} is outside 0..10"),
+                    "the usual values are 0.6 for the intensity and 3 for m/z (Stein & Scott 1994)",
+                ));
+            }
+        }
+        if let Some(m) = self.min_mz
+            && !(m.is_finite() && m >= 0.0)
+        {
+            return Err(Error::invalid(
+                format!("low m/z cutoff {m} is not a non-negative number"),
+                "give an m/z such as 35",
+            ));
+        }
+        self.derivative.validate()
     }
 }
 
@@ -74,14 +210,33 @@ pub struct Scores {
     pub spectral: f64,
     /// Cosine of the prepared vectors.
     pub cosine: f64,
-    /// Pearson r over unmasked bins, clipped to 0..1 (IR, Raman, NMR).
+    /// Pearson r over unmasked bins, clipped to 0..1 (IR, Raman, 1H NMR).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub correlation: Option<f64>,
+    /// Pearson r of the Savitzky-Golay first derivatives, clipped to 0..1 (IR, Raman).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub derivative: Option<f64>,
     /// The Stein & Scott terms (EI-MS).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub composite: Option<Composite>,
+    /// The tolerance-weighted Jaccard index of the peak positions (13C NMR).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub shift_match: Option<f64>,
     /// One-to-one peak matching.
     pub peak_overlap: Overlap,
+}
+
+impl Scores {
+    /// The value of one measure, when it was computed for this technique.
+    pub fn value(&self, measure: Measure) -> Option<f64> {
+        match measure {
+            Measure::Cosine => Some(self.cosine),
+            Measure::Correlation => self.correlation,
+            Measure::Derivative => self.derivative,
+            Measure::Composite => self.composite.map(|c| c.composite),
+            Measure::ShiftMatch => self.shift_match,
+        }
+    }
 }
 
 /// Scores a library spectrum against an unknown prepared with the same recipe.
@@ -91,25 +246,72 @@ pub fn score(
     grid: &Grid,
     params: &ScoreParams,
 ) -> Scores {
-    let cos = cosine(&unknown.vector, &reference.vector).clamp(0.0, 1.0);
-    let (correlation, composite) = if unknown.technique == Technique::MsEi {
-        let u: Vec<(f64, f64)> = unknown.peaks.iter().map(|p| (p.x, p.height)).collect();
-        let r: Vec<(f64, f64)> = reference.peaks.iter().map(|p| (p.x, p.height)).collect();
-        (None, Some(stein_scott(&u, &r, &params.composite)))
-    } else {
-        let active: Vec<bool> = (0..grid.len()).map(|i| !grid.masked(grid.x(i))).collect();
-        (
-            Some(pearson(&unknown.vector, &reference.vector, Some(&active)).clamp(0.0, 1.0)),
-            None,
-        )
+    let technique = unknown.technique;
+    let cutoff = match technique {
+        Technique::MsEi => params.min_mz,
+        _ => None,
     };
+    let keep = |x: f64| cutoff.is_none_or(|lo| x >= lo);
+    let cos = match cutoff {
+        None => cosine(&unknown.vector, &reference.vector),
+        Some(_) => {
+            let cut = |p: &Prepared| -> Vec<f32> {
+                p.vector
+                    .iter()
+                    .enumerate()
+                    .map(|(i, &v)| if keep(grid.x(i)) { v } else { 0.0 })
+                    .collect()
+            };
+            cosine(&cut(unknown), &cut(reference))
+        }
+    }
+    .clamp(0.0, 1.0);
+    let xs =
+        |p: &Prepared| -> Vec<f64> { p.peaks.iter().map(|p| p.x).filter(|&x| keep(x)).collect() };
+    let (ux, rx) = (xs(unknown), xs(reference));
+    let (mut correlation, mut derivative, mut composite, mut shift) = (None, None, None, None);
+    match technique {
+        Technique::MsEi => {
+            let sticks = |p: &Prepared| -> Vec<(f64, f64)> {
+                p.peaks
+                    .iter()
+                    .filter(|p| keep(p.x))
+                    .map(|p| (p.x, p.height))
+                    .collect()
+            };
+            composite = Some(stein_scott(
+                &sticks(unknown),
+                &sticks(reference),
+                &params.composite,
+            ));
+        }
+        Technique::Nmr13c => {
+            shift = Some(shift_match(&ux, &rx, params.peak_tolerance));
+        }
+        Technique::Ir | Technique::Raman | Technique::Nmr1h => {
+            let masked: Vec<bool> = (0..grid.len()).map(|i| grid.masked(grid.x(i))).collect();
+            let active: Vec<bool> = masked.iter().map(|m| !m).collect();
+            correlation =
+                Some(pearson(&unknown.vector, &reference.vector, Some(&active)).clamp(0.0, 1.0));
+            if technique != Technique::Nmr1h {
+                derivative = Some(derivative_correlation(
+                    &unknown.vector,
+                    &reference.vector,
+                    &params.derivative,
+                    &masked,
+                ));
+            }
+        }
+    }
     let spectral = match params.measure {
-        Measure::Cosine => cos,
-        Measure::Correlation => correlation.unwrap_or(cos),
-        Measure::Composite => composite.as_ref().map_or(cos, |c| c.composite),
-    };
-    let xs = |p: &Prepared| p.peaks.iter().map(|p| p.x).collect::<Vec<f64>>();
-    let peak_overlap = peak_overlap(&xs(unknown), &xs(reference), params.peak_tolerance);
+        Measure::Cosine => Some(cos),
+        Measure::Correlation => correlation,
+        Measure::Derivative => derivative,
+        Measure::Composite => composite.as_ref().map(|c| c.composite),
+        Measure::ShiftMatch => shift,
+    }
+    .unwrap_or(cos);
+    let peak_overlap = peak_overlap(&ux, &rx, params.peak_tolerance);
     let w = params.spectral_weight.clamp(0.0, 1.0);
     let combined = (w * spectral + (1.0 - w) * peak_overlap.jaccard).clamp(0.0, 1.0);
     Scores {
@@ -117,7 +319,9 @@ pub fn score(
         spectral,
         cosine: cos,
         correlation,
+        derivative,
         composite,
+        shift_match: shift,
         peak_overlap,
     }
 }

@@ -21,27 +21,33 @@ pub fn cosine(a: &[f32], b: &[f32]) -> f64 {
 /// Pearson's correlation coefficient r over the bins where `active` is true (all bins when
 /// `None`); 0 when either side is constant. Scale- and offset-free.
 pub fn pearson(a: &[f32], b: &[f32], active: Option<&[bool]>) -> f64 {
-    let use_bin = |i: usize| active.is_none_or(|m| m[i]);
+    let use_bin = |i: &usize| active.is_none_or(|m| m[*i]);
+    pearson_pairs(
+        (0..a.len().min(b.len()))
+            .filter(use_bin)
+            .map(|i| (f64::from(a[i]), f64::from(b[i]))),
+    )
+}
+
+/// Pearson's r of paired values, accumulated in f64 about the means; 0 with fewer than two
+/// pairs or when either side is constant.
+pub(crate) fn pearson_pairs(pairs: impl Iterator<Item = (f64, f64)> + Clone) -> f64 {
     let (mut n, mut sa, mut sb) = (0f64, 0f64, 0f64);
-    for i in 0..a.len().min(b.len()) {
-        if use_bin(i) {
-            n += 1.0;
-            sa += f64::from(a[i]);
-            sb += f64::from(b[i]);
-        }
+    for (x, y) in pairs.clone() {
+        n += 1.0;
+        sa += x;
+        sb += y;
     }
     if n < 2.0 {
         return 0.0;
     }
     let (ma, mb) = (sa / n, sb / n);
     let (mut ab, mut aa, mut bb) = (0f64, 0f64, 0f64);
-    for i in 0..a.len().min(b.len()) {
-        if use_bin(i) {
-            let (x, y) = (f64::from(a[i]) - ma, f64::from(b[i]) - mb);
-            ab += x * y;
-            aa += x * x;
-            bb += y * y;
-        }
+    for (x, y) in pairs {
+        let (x, y) = (x - ma, y - mb);
+        ab += x * y;
+        aa += x * x;
+        bb += y * y;
     }
     if aa == 0.0 || bb == 0.0 {
         0.0

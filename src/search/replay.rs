@@ -77,6 +77,14 @@ pub fn replay(library: &Library, saved: &Report) -> Result<Replay> {
         statuses: p.statuses.clone(),
         params: p.score.clone(),
         thresholds: p.thresholds,
+        constraints: p.constraints.clone(),
+        explain: p.explain,
+        solvent: saved
+            .unknown
+            .solvent
+            .as_deref()
+            .map(str::parse)
+            .transpose()?,
     };
     let solvent = saved
         .unknown

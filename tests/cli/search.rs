@@ -91,6 +91,8 @@ fn search_json_has_the_documented_keys() {
         [
             "candidates",
             "caution",
+            "confidence",
+            "excluded_count",
             "hits",
             "library",
             "margin",

@@ -341,3 +341,23 @@ impl Lab {
 pub fn unknown(name: &str) -> String {
     seed().join("unknowns").join(name).display().to_string()
 }
+
+/// Rows of the seed manifest, of one technique or of all.
+pub fn seed_rows(technique: Option<&str>) -> usize {
+    let mut reader = csv::Reader::from_path(seed().join("manifest.csv")).unwrap();
+    reader
+        .records()
+        .map(|r| r.unwrap())
+        .filter(|r| technique.is_none_or(|t| &r[1] == t))
+        .count()
+}
+
+/// Rows of the seed manifest for one compound (one per technique it was measured by).
+pub fn seed_rows_of(name: &str) -> usize {
+    let mut reader = csv::Reader::from_path(seed().join("manifest.csv")).unwrap();
+    reader
+        .records()
+        .map(|r| r.unwrap())
+        .filter(|r| &r[2] == name)
+        .count()
+}

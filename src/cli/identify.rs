@@ -1,0 +1,168 @@
+//! `whorl identify`: search unknowns of several techniques and fuse the evidence per compound.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::Args;
+use whorl::prepare::Solvent;
+use whorl::search::{IdentifyReport, UnknownInput, identify};
+use whorl::spectrum::{XUnit, YUnit};
+use whorl::technique::Technique;
+
+use super::search::{ConstraintArgs, constraint_summary};
+use super::{Context, output};
+
+#[derive(Debug, Args)]
+pub struct IdentifyArgs {
+    /// IR spectrum of the unknown
+    #[arg(long, value_name = "FILE")]
+    pub ir: Option<PathBuf>,
+    /// Raman spectrum of the unknown
+    #[arg(long, value_name = "FILE")]
+    pub raman: Option<PathBuf>,
+    /// EI mass spectrum of the unknown
+    #[arg(long = "ms-ei", value_name = "FILE")]
+    pub ms_ei: Option<PathBuf>,
+    /// 1H NMR spectrum of the unknown
+    #[arg(long = "nmr-1h", value_name = "FILE")]
+    pub nmr_1h: Option<PathBuf>,
+    /// 13C NMR peak list of the unknown
+    #[arg(long = "nmr-13c", value_name = "FILE")]
+    pub nmr_13c: Option<PathBuf>,
+    /// NMR solvent of the unknown (both NMR files), e.g. CDCl3
+    #[arg(long)]
+    pub solvent: Option<Solvent>,
+    /// y unit of the IR file (detected when not given)
+    #[arg(long, value_name = "UNIT")]
+    pub ir_y_unit: Option<YUnit>,
+    /// x unit of the IR file when given as wavelength: um or nm
+    #[arg(long, value_name = "UNIT")]
+    pub ir_x_unit: Option<XUnit>,
+    /// Number of compounds to list
+    #[arg(long, default_value_t = 10)]
+    pub top: usize,
+    #[command(flatten)]
+    pub constraints: ConstraintArgs,
+    /// Print the full report as JSON
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl IdentifyArgs {
+    fn unknowns(&self) -> Vec<UnknownInput> {
+        let given = [
+            (Technique::Ir, &self.ir),
+            (Technique::Raman, &self.raman),
+            (Technique::MsEi, &self.ms_ei),
+            (Technique::Nmr1h, &self.nmr_1h),
+            (Technique::Nmr13c, &self.nmr_13c),
+        ];
+        given
+            .into_iter()
+            .filter_map(|(technique, file)| {
+                file.as_ref().map(|f| UnknownInput {
+                    technique,
+                    file: f.clone(),
+                    x_unit: (technique == Technique::Ir)
+                        .then_some(self.ir_x_unit)
+                        .flatten(),
+                    y_unit: (technique == Technique::Ir)
+                        .then_some(self.ir_y_unit)
+                        .flatten(),
+                    solvent: technique.is_nmr().then_some(self.solvent).flatten(),
+                })
+            })
+            .collect()
+    }
+}
+
+pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let unknowns = args.unknowns();
+    let constraints = args.constraints.constraints()?;
+    let lib = ctx.open()?;
+    let report = identify(&lib, &unknowns, &constraints, args.top.max(1))?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        output::json(&mut out, &report)?;
+    } else {
+        print_identify(&mut out, &report)?;
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Prints a fused list for people.
+pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Result<()> {
+    writeln!(
+        out,
+        "library   {}  (fingerprint {})",
+        r.library.path,
+        output::short(&r.library.fingerprint)
+    )?;
+    for run in &r.runs {
+        let u = &run.unknown;
+        let solvent = u
+            .solvent
+            .as_deref()
+            .map(|s| format!(", in {s}"))
+            .unwrap_or_default();
+        writeln!(
+            out,
+            "unknown   {:<8} {}  (sha256 {}{solvent}; {} spectra compared)",
+            u.technique.name(),
+            u.file,
+            output::short(&u.sha256),
+            run.candidates
+        )?;
+    }
+    if let Some(c) = r
+        .runs
+        .first()
+        .and_then(|run| constraint_summary(&run.parameters.constraints))
+    {
+        writeln!(out, "limits    {c}")?;
+    }
+    writeln!(out, "fused     {}", r.fusion.rule)?;
+    writeln!(out)?;
+    let mut headers: Vec<String> = vec![">rank".into(), ">fused".into()];
+    headers.extend(r.fusion.techniques.iter().map(|t| format!(">{t}")));
+    headers.extend(["compound".to_string(), "formula".to_string()]);
+    let header_refs: Vec<&str> = headers.iter().map(String::as_str).collect();
+    let mut t = output::Table::new(&header_refs);
+    for c in &r.fusion.compounds {
+        let mut row = vec![c.rank.to_string(), format!("{:.3}", c.fused)];
+        for e in &c.evidence {
+            row.push(match (e.score, e.rank) {
+                (Some(s), Some(k)) => format!("{s:.3} #{k}"),
+                _ => "no ref".to_string(),
+            });
+        }
+        row.push(c.name.clone());
+        row.push(c.formula.clone().unwrap_or_default());
+        t.row(row);
+    }
+    t.write(out)?;
+    writeln!(out)?;
+    writeln!(
+        out,
+        "          (per technique: combined score #rank among compounds; no ref = the library has no spectrum of the compound for it, counted 0)"
+    )?;
+    for c in &r.fusion.compounds {
+        for d in &c.disagreements {
+            writeln!(out, "disagree  {} ({}): {d}", c.name, c.rank)?;
+        }
+    }
+    if let Some(m) = r.fusion.margin {
+        writeln!(out, "margin    {m:.3} between compounds 1 and 2")?;
+    }
+    for w in &r.fusion.warnings {
+        writeln!(out, "warning   {w}")?;
+    }
+    for run in &r.runs {
+        for w in &run.warnings {
+            writeln!(out, "warning   {}: {w}", run.unknown.technique)?;
+        }
+    }
+    writeln!(out, "caution   {}", r.caution)?;
+    Ok(())
+}

@@ -1,0 +1,389 @@
+//! Constraints an analyst applies to a hit list: formula, nominal mass, IHD, allowed
+//! elements, retention index. A hit that a constraint rules out is excluded, with the reason.
+
+use std::collections::BTreeSet;
+
+use serde::{Deserialize, Serialize};
+
+use crate::chem::{Formula, parse_formula};
+use crate::error::{Error, Result};
+use crate::library::Metadata;
+
+// --- Minimal element data -------------------------------------------------------------------
+// TO BE REPLACED by src/chem (full CIAAW / AME tables) when it lands: these few integer masses
+// and valences are all the constraints need.
+
+/// Nominal (integer) mass of the most abundant isotope of each element the constraints know
+/// (common practice: the nominal mass of a formula uses these).
+const NOMINAL_MASS: [(&str, u32); 11] = [
+    ("C", 12),
+    ("H", 1),
+    ("N", 14),
+    ("O", 16),
+    ("S", 32),
+    ("P", 31),
+    ("F", 19),
+    ("Cl", 35),
+    ("Br", 79),
+    ("I", 127),
+    ("Si", 28),
+];
+
+/// The nominal mass of a formula: the sum of its elements' integer masses.
+pub fn nominal_mass(formula: &Formula) -> Result<u32> {
+    let mut total = 0u32;
+    for (element, &n) in &formula.counts {
+        let mass = NOMINAL_MASS
+            .iter()
+            .find(|(e, _)| e == element)
+            .map(|&(_, m)| m)
+            .ok_or_else(|| unknown_element(element))?;
+        total += mass * n;
+    }
+    Ok(total)
+}
+
+/// The index of hydrogen deficiency (rings plus double bonds):
+/// IHD = C - (H + X)/2 + N/2 + 1, with halogens X; tetravalent Si counts as C and trivalent P
+/// as N; divalent O and S do not count (common practice).
+pub fn ihd(formula: &Formula) -> Result<f64> {
+    let mut sum = 2.0; // 2 * IHD
+    for (element, &n) in &formula.counts {
+        let n = f64::from(n);
+        sum += match element.as_str() {
+            "C" | "Si" => 2.0 * n,
+            "N" | "P" => n,
+            "H" | "F" | "Cl" | "Br" | "I" => -n,
+            "O" | "S" => 0.0,
+            other => return Err(unknown_element(other)),
+        };
+    }
+    Ok(sum / 2.0)
+}
+
+fn unknown_element(element: &str) -> Error {
+    Error::invalid(
+        format!("element {element} is not covered by the constraint helper"),
+        "mass and IHD constraints know C, H, N, O, S, P, F, Cl, Br, I and Si",
+    )
+}
+
+// --- Constraints ----------------------------------------------------------------------------
+
+/// A retention-index window.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RiWindow {
+    /// The unknown's retention index.
+    pub value: f64,
+    /// Half-width: a reference within value +- window passes.
+    pub window: f64,
+    /// Column phase the index was measured on; when given, a reference's `ri_phase` must match
+    /// (retention indices differ between phases).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub phase: Option<String>,
+}
+
+/// The constraints of one search. Empty constraints let every hit through.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct Constraints {
+    /// The exact formula (Hill order).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub formula: Option<String>,
+    /// Nominal molecular mass of the hit's formula.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mass: Option<u32>,
+    /// Index of hydrogen deficiency of the hit's formula.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ihd: Option<f64>,
+    /// The elements a hit's formula may contain.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub elements: Option<BTreeSet<String>>,
+    /// Retention-index window; references carry `ri` (and `ri_phase`) in their metadata.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ri: Option<RiWindow>,
+}
+
+/// The metadata key holding a reference's retention index (a manifest column `ri`).
+pub const RI_KEY: &str = "ri";
+/// The metadata key holding the column phase of that index (a manifest column `ri_phase`).
+pub const RI_PHASE_KEY: &str = "ri_phase";
+
+impl Constraints {
+    /// True when no constraint is set.
+    pub fn is_empty(&self) -> bool {
+        *self == Constraints::default()
+    }
+
+    /// Sets the formula constraint, rewriting it in Hill order.
+    pub fn with_formula(mut self, formula: &str) -> Result<Constraints> {
+        self.formula = Some(parse_formula(formula)?.to_string());
+        Ok(self)
+    }
+
+    /// Sets the allowed elements from a list such as `C,H,O`.
+    pub fn with_elements(mut self, list: &str) -> Result<Constraints> {
+        let mut set = BTreeSet::new();
+        for e in list.split(',').map(str::trim).filter(|e| !e.is_empty()) {
+            // One element symbol parses as a formula with one element and count 1.
+            let f = parse_formula(e)?;
+            if f.counts.len() != 1 || f.counts.values().any(|&n| n != 1) {
+                return Err(Error::invalid(
+                    format!("'{e}' is not one element symbol"),
+                    "list element symbols separated by commas, e.g. C,H,O,N",
+                ));
+            }
+            set.extend(f.counts.into_keys());
+        }
+        if set.is_empty() {
+            return Err(Error::invalid(
+                "the element list is empty",
+                "list element symbols separated by commas, e.g. C,H,O,N",
+            ));
+        }
+        self.elements = Some(set);
+        Ok(self)
+    }
+
+    /// Checks the values are usable.
+    pub fn validate(&self) -> Result<()> {
+        if let Some(i) = self.ihd
+            && !(i.is_finite() && i >= 0.0 && (2.0 * i).fract() == 0.0)
+        {
+            return Err(Error::invalid(
+                format!("IHD {i} is not a whole or half number of at least 0"),
+                "rings plus double bonds is 0, 1, 2, ... (half values for radicals and ions)",
+            ));
+        }
+        if let Some(ri) = &self.ri
+            && !(ri.value.is_finite() && ri.window.is_finite() && ri.window >= 0.0)
+        {
+            return Err(Error::invalid(
+                format!(
+                    "retention index {} +- {} is not usable",
+                    ri.value, ri.window
+                ),
+                "give --ri VALUE and a non-negative --ri-window, e.g. --ri 1012 --ri-window 15",
+            ));
+        }
+        Ok(())
+    }
+
+    /// Why a reference with this metadata is ruled out, or `None` when it passes. Every
+    /// failing constraint is named, separated by "; ".
+    pub fn rule_out(&self, metadata: &Metadata) -> Option<String> {
+        let mut reasons = Vec::new();
+        let needs_formula = self.formula.is_some()
+            || self.mass.is_some()
+            || self.ihd.is_some()
+            || self.elements.is_some();
+        if needs_formula {
+            match metadata.formula.as_deref().map(parse_formula) {
+                None => reasons.push("no formula on record to check".to_string()),
+                Some(Err(_)) => reasons.push("the formula on record cannot be read".to_string()),
+                Some(Ok(f)) => self.check_formula(&f, &mut reasons),
+            }
+        }
+        if let Some(ri) = &self.ri {
+            check_ri(ri, metadata, &mut reasons);
+        }
+        (!reasons.is_empty()).then(|| reasons.join("; "))
+    }
+
+    fn check_formula(&self, f: &Formula, reasons: &mut Vec<String>) {
+        let hill = f.to_string();
+        if let Some(want) = &self.formula
+            && &hill != want
+        {
+            reasons.push(format!("formula {hill}, not {want}"));
+        }
+        if let Some(want) = self.mass {
+            match nominal_mass(f) {
+                Ok(m) if m != want => reasons.push(format!("nominal mass {m}, not {want}")),
+                Ok(_) => {}
+                Err(e) => reasons.push(format!("nominal mass of {hill} unknown: {e}")),
+            }
+        }
+        if let Some(want) = self.ihd {
+            match ihd(f) {
+                Ok(i) if (i - want).abs() > 1e-9 => reasons.push(format!("IHD {i}, not {want}")),
+                Ok(_) => {}
+                Err(e) => reasons.push(format!("IHD of {hill} unknown: {e}")),
+            }
+        }
+        if let Some(allowed) = &self.elements {
+            let extra: Vec<&str> = f
+                .counts
+                .keys()
+                .filter(|e| !allowed.contains(*e))
+                .map(String::as_str)
+                .collect();
+            if !extra.is_empty() {
+                reasons.push(format!("contains {} (not allowed)", extra.join(", ")));
+            }
+        }
+    }
+}
+
+fn check_ri(ri: &RiWindow, metadata: &Metadata, reasons: &mut Vec<String>) {
+    let Some(text) = metadata.extra.get(RI_KEY) else {
+        reasons.push("no retention index on record".to_string());
+        return;
+    };
+    let Ok(value) = text.trim().parse::<f64>() else {
+        reasons.push(format!(
+            "retention index '{text}' on record is not a number"
+        ));
+        return;
+    };
+    if let Some(phase) = &ri.phase {
+        match metadata.extra.get(RI_PHASE_KEY) {
+            Some(p) if p.trim().eq_ignore_ascii_case(phase.trim()) => {}
+            Some(p) => {
+                reasons.push(format!(
+                    "retention index on record is for phase {p}, not {phase}"
+                ));
+                return;
+            }
+            None => {
+                reasons.push("no column phase on record for its retention index".to_string());
+                return;
+            }
+        }
+    }
+    let diff = value - ri.value;
+    if diff.abs() > ri.window {
+        reasons.push(format!(
+            "retention index {value} is {:.0} from {} (window +-{})",
+            diff.abs(),
+            ri.value,
+            ri.window
+        ));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn meta(formula: Option<&str>, ri: Option<&str>, phase: Option<&str>) -> Metadata {
+        let mut m = Metadata {
+            name: "x".into(),
+            formula: formula.map(str::to_string),
+            ..Metadata::default()
+        };
+        if let Some(r) = ri {
+            m.extra.insert(RI_KEY.into(), r.into());
+        }
+        if let Some(p) = phase {
+            m.extra.insert(RI_PHASE_KEY.into(), p.into());
+        }
+        m
+    }
+
+    fn f(s: &str) -> Formula {
+        parse_formula(s).unwrap()
+    }
+
+    #[test]
+    fn nominal_masses_and_ihd_of_textbook_cases() {
+        // Common practice: benzene C6H6 has nominal mass 78 and IHD 4; cyclohexene C6H10 IHD 2;
+        // acetaldehyde C2H4O mass 44 and IHD 1; acetone C3H6O IHD 1; pyridine C5H5N IHD 4;
+        // chloroform CHCl3 mass 118 (12 + 1 + 3 x 35) and IHD 0.
+        assert_eq!(nominal_mass(&f("C6H6")).unwrap(), 78);
+        assert_eq!(ihd(&f("C6H6")).unwrap(), 4.0);
+        assert_eq!(ihd(&f("C6H10")).unwrap(), 2.0);
+        assert_eq!(nominal_mass(&f("C2H4O")).unwrap(), 44);
+        assert_eq!(ihd(&f("C2H4O")).unwrap(), 1.0);
+        assert_eq!(ihd(&f("C3H6O")).unwrap(), 1.0);
+        assert_eq!(ihd(&f("C5H5N")).unwrap(), 4.0);
+        assert_eq!(nominal_mass(&f("CHCl3")).unwrap(), 118);
+        assert_eq!(ihd(&f("CHCl3")).unwrap(), 0.0);
+        assert!(nominal_mass(&f("NaCl")).is_err());
+    }
+
+    #[test]
+    fn each_constraint_excludes_what_it_should() {
+        let benzene = meta(Some("C6H6"), Some("655"), Some("DB-5"));
+        let toluene = meta(Some("C7H8"), Some("760"), Some("DB-5"));
+        let chloroform = meta(Some("CHCl3"), None, None);
+        let unnamed = meta(None, None, None);
+
+        let c = Constraints::default().with_formula("H6C6").unwrap();
+        assert_eq!(c.rule_out(&benzene), None);
+        assert_eq!(c.rule_out(&toluene).unwrap(), "formula C7H8, not C6H6");
+        assert_eq!(
+            c.rule_out(&unnamed).unwrap(),
+            "no formula on record to check"
+        );
+
+        let c = Constraints {
+            mass: Some(92),
+            ..Constraints::default()
+        };
+        assert_eq!(c.rule_out(&toluene), None);
+        assert_eq!(c.rule_out(&benzene).unwrap(), "nominal mass 78, not 92");
+
+        let c = Constraints {
+            ihd: Some(0.0),
+            ..Constraints::default()
+        };
+        assert_eq!(c.rule_out(&chloroform), None);
+        assert_eq!(c.rule_out(&benzene).unwrap(), "IHD 4, not 0");
+
+        let c = Constraints::default().with_elements("C, H").unwrap();
+        assert_eq!(c.rule_out(&toluene), None);
+        assert_eq!(
+            c.rule_out(&chloroform).unwrap(),
+            "contains Cl (not allowed)"
+        );
+
+        let ri = |phase: Option<&str>| Constraints {
+            ri: Some(RiWindow {
+                value: 660.0,
+                window: 10.0,
+                phase: phase.map(str::to_string),
+            }),
+            ..Constraints::default()
+        };
+        assert_eq!(ri(None).rule_out(&benzene), None);
+        assert_eq!(
+            ri(None).rule_out(&toluene).unwrap(),
+            "retention index 760 is 100 from 660 (window +-10)"
+        );
+        assert_eq!(
+            ri(None).rule_out(&chloroform).unwrap(),
+            "no retention index on record"
+        );
+        assert_eq!(ri(Some("db-5")).rule_out(&benzene), None);
+        assert!(
+            ri(Some("DB-WAX"))
+                .rule_out(&benzene)
+                .unwrap()
+                .contains("phase DB-5")
+        );
+
+        // Several failures are all named.
+        let c = Constraints {
+            mass: Some(92),
+            ihd: Some(4.0),
+            ..Constraints::default()
+        };
+        assert_eq!(
+            c.rule_out(&chloroform).unwrap(),
+            "nominal mass 118, not 92; IHD 0, not 4"
+        );
+    }
+
+    #[test]
+    fn bad_values_are_refused() {
+        assert!(Constraints::default().with_elements("C,Hx").is_err());
+        assert!(Constraints::default().with_elements("C2").is_err());
+        assert!(Constraints::default().with_formula("c6h6").is_err());
+        let c = Constraints {
+            ihd: Some(1.3),
+            ..Constraints::default()
+        };
+        assert!(c.validate().is_err());
+        assert!(Constraints::default().is_empty());
+    }
+}

@@ -1,0 +1,387 @@
+//! Evidence from several techniques: per-compound fusion of hit lists.
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use super::{Constraints, Hit, LibraryStamp, Parameters, Request, UnknownStamp, run_search};
+use crate::error::{Error, Result};
+use crate::library::Library;
+use crate::prepare::Solvent;
+use crate::spectrum::{XUnit, YUnit};
+use crate::technique::Technique;
+
+/// A compound ranked first by one technique and outside this many compounds by another (or
+/// without a reference spectrum of it) is reported as a disagreement.
+pub const DISAGREE_OUTSIDE: usize = 5;
+
+/// What one technique says about one compound.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TechniqueEvidence {
+    /// The technique.
+    pub technique: Technique,
+    /// The compound's best combined score in this technique; `None` when the library holds no
+    /// spectrum of the compound for it (counted as 0 in the fused score).
+    pub score: Option<f64>,
+    /// The compound's rank among compounds in this technique (1 for the best).
+    pub rank: Option<usize>,
+    /// The library spectrum behind the score.
+    pub spectrum_id: Option<i64>,
+}
+
+/// One compound of a fused list.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FusedCompound {
+    /// 1 for the best.
+    pub rank: usize,
+    /// Compound id.
+    pub compound_id: i64,
+    /// Compound name.
+    pub name: String,
+    /// Formula.
+    pub formula: Option<String>,
+    /// The fused score, 0..1.
+    pub fused: f64,
+    /// One entry per technique searched, in the order given.
+    pub evidence: Vec<TechniqueEvidence>,
+    /// Techniques searched for which the library has no spectrum of this compound.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub missing: Vec<Technique>,
+    /// Where the techniques disagree about this compound.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub disagreements: Vec<String>,
+}
+
+/// A fused list.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Fusion {
+    /// The rule that made the fused score, in words.
+    pub rule: String,
+    /// The techniques searched.
+    pub techniques: Vec<Technique>,
+    /// Compounds, best first.
+    pub compounds: Vec<FusedCompound>,
+    /// Fused score of compound 1 minus compound 2.
+    pub margin: Option<f64>,
+    /// Plain-language warnings about the fused list.
+    pub warnings: Vec<String>,
+}
+
+/// The rule [`fuse`] applies, as printed with every fused list.
+pub const FUSION_RULE: &str = "mean of the per-technique combined scores over the techniques searched; a technique without a reference spectrum of the compound counts 0";
+
+/// Fuses per-technique hit lists (each ranked, best first, ideally covering every candidate)
+/// into one list per compound, keeping the best `top`.
+///
+/// The fused score is the mean, over the techniques searched, of the compound's best combined
+/// score in each; a technique for which the library holds no spectrum of the compound counts
+/// 0 and is shown as missing. Why this rule rather than rank fusion (for example reciprocal
+/// rank fusion): every combined score already lies in 0..1 with 1 for an identical spectrum,
+/// so the mean keeps how well each technique matched, where ranks keep only the order (a
+/// near-perfect first hit and a poor first hit would count the same); counting a missing
+/// technique as 0 means a compound cannot win by lacking the evidence that would test it.
+/// Ties are broken by compound id.
+pub fn fuse(lists: &[(Technique, &[Hit])], top: usize) -> Fusion {
+    let techniques: Vec<Technique> = lists.iter().map(|(t, _)| *t).collect();
+    // compound id -> (name, formula, per technique: (score, compound rank, spectrum id))
+    type Row = (String, Option<String>, Vec<Option<(f64, usize, i64)>>);
+    let mut rows: BTreeMap<i64, Row> = BTreeMap::new();
+    for (k, (_, hits)) in lists.iter().enumerate() {
+        let mut compound_rank = 0;
+        for h in hits.iter() {
+            let row = rows
+                .entry(h.compound_id)
+                .or_insert_with(|| (h.name.clone(), h.formula.clone(), vec![None; lists.len()]));
+            if row.2[k].is_none() {
+                compound_rank += 1;
+                row.2[k] = Some((h.score, compound_rank, h.spectrum_id));
+            }
+        }
+    }
+    let n = lists.len().max(1) as f64;
+    let mut compounds: Vec<FusedCompound> = rows
+        .into_iter()
+        .map(|(compound_id, (name, formula, per))| {
+            let fused = per.iter().map(|e| e.map_or(0.0, |e| e.0)).sum::<f64>() / n;
+            let evidence: Vec<TechniqueEvidence> = techniques
+                .iter()
+                .zip(&per)
+                .map(|(&technique, e)| TechniqueEvidence {
+                    technique,
+                    score: e.map(|e| e.0),
+                    rank: e.map(|e| e.1),
+                    spectrum_id: e.map(|e| e.2),
+                })
+                .collect();
+            let missing = evidence
+                .iter()
+                .filter(|e| e.score.is_none())
+                .map(|e| e.technique)
+                .collect();
+            let disagreements = disagreements(&evidence);
+            FusedCompound {
+                rank: 0,
+                compound_id,
+                name,
+                formula,
+                fused,
+                evidence,
+                missing,
+                disagreements,
+            }
+        })
+        .collect();
+    compounds.sort_by(|a, b| {
+        b.fused
+            .total_cmp(&a.fused)
+            .then(a.compound_id.cmp(&b.compound_id))
+    });
+    compounds.truncate(top);
+    for (i, c) in compounds.iter_mut().enumerate() {
+        c.rank = i + 1;
+    }
+    let margin = (compounds.len() >= 2).then(|| compounds[0].fused - compounds[1].fused);
+    let mut warnings = Vec::new();
+    let firsts: Vec<(Technique, &str)> = lists
+        .iter()
+        .filter_map(|(t, hits)| hits.first().map(|h| (*t, h.name.as_str())))
+        .collect();
+    if firsts.windows(2).any(|w| w[0].1 != w[1].1) {
+        let said: Vec<String> = firsts.iter().map(|(t, n)| format!("{t}: {n}")).collect();
+        warnings.push(format!(
+            "the techniques rank different compounds first ({})",
+            said.join("; ")
+        ));
+    }
+    if let Some(best) = compounds.first()
+        && !best.missing.is_empty()
+    {
+        let names: Vec<&str> = best.missing.iter().map(|t| t.name()).collect();
+        warnings.push(format!(
+            "the best compound, {}, has no reference spectrum for {}: that evidence is missing, not in its favour",
+            best.name,
+            names.join(", ")
+        ));
+    }
+    Fusion {
+        rule: FUSION_RULE.to_string(),
+        techniques,
+        compounds,
+        margin,
+        warnings,
+    }
+}
+
+/// One unknown file of a multi-technique identification.
+#[derive(Debug, Clone)]
+pub struct UnknownInput {
+    /// The technique it was measured with.
+    pub technique: Technique,
+    /// The file.
+    pub file: std::path::PathBuf,
+    /// x unit, when not the technique's usual one.
+    pub x_unit: Option<XUnit>,
+    /// y unit, when declared.
+    pub y_unit: Option<YUnit>,
+    /// NMR solvent.
+    pub solvent: Option<Solvent>,
+}
+
+/// One technique's part of an identification: what was searched and how.
+#[derive(Debug, Clone, Serialize)]
+pub struct TechniqueRun {
+    /// The unknown.
+    pub unknown: UnknownStamp,
+    /// The parameters that decided its ranking.
+    pub parameters: Parameters,
+    /// Library spectra compared.
+    pub candidates: usize,
+    /// Warnings about the unknown and its hit list, as `search` gives them.
+    pub warnings: Vec<String>,
+}
+
+/// The result of `identify`: every technique searched, and the fused list.
+#[derive(Debug, Clone, Serialize)]
+pub struct IdentifyReport {
+    /// whorl version.
+    pub tool_version: String,
+    /// When the searches ran (UTC).
+    pub searched_at: String,
+    /// The library.
+    pub library: LibraryStamp,
+    /// One entry per technique, in the order given.
+    pub runs: Vec<TechniqueRun>,
+    /// The fused list.
+    pub fusion: Fusion,
+    /// The caution that goes with every hit list.
+    pub caution: String,
+}
+
+/// Searches each unknown against the library with its technique's default scoring and the
+/// given constraints, and fuses the hit lists per compound ([`fuse`]).
+pub fn identify(
+    library: &Library,
+    unknowns: &[UnknownInput],
+    constraints: &Constraints,
+    top: usize,
+) -> Result<IdentifyReport> {
+    if unknowns.is_empty() {
+        return Err(Error::invalid(
+            "no unknown to identify",
+            "give at least one of --ir, --raman, --ms-ei, --nmr-1h, --nmr-13c",
+        ));
+    }
+    for (i, u) in unknowns.iter().enumerate() {
+        if unknowns[..i].iter().any(|v| v.technique == u.technique) {
+            return Err(Error::invalid(
+                format!("two unknowns for {}", u.technique),
+                "give one file per technique",
+            ));
+        }
+    }
+    let mut runs = Vec::new();
+    let mut hit_lists = Vec::new();
+    for u in unknowns {
+        let mut request = Request::new(u.technique);
+        request.top = usize::MAX;
+        request.constraints = constraints.clone();
+        let report = run_search(library, &u.file, u.x_unit, u.y_unit, u.solvent, &request)?;
+        let mut parameters = report.parameters;
+        parameters.top = top;
+        runs.push(TechniqueRun {
+            unknown: report.unknown,
+            parameters,
+            candidates: report.candidates,
+            warnings: report.warnings,
+        });
+        hit_lists.push((u.technique, report.hits));
+    }
+    let borrowed: Vec<(Technique, &[Hit])> =
+        hit_lists.iter().map(|(t, h)| (*t, h.as_slice())).collect();
+    Ok(IdentifyReport {
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        searched_at: crate::library::now(),
+        library: LibraryStamp::of(library)?,
+        runs,
+        fusion: fuse(&borrowed, top),
+        caution: crate::CAUTION.to_string(),
+    })
+}
+
+/// A compound ranked first by one technique and outside [`DISAGREE_OUTSIDE`] (or missing) in
+/// another.
+fn disagreements(evidence: &[TechniqueEvidence]) -> Vec<String> {
+    let mut out = Vec::new();
+    for first in evidence.iter().filter(|e| e.rank == Some(1)) {
+        for other in evidence.iter().filter(|e| e.technique != first.technique) {
+            match other.rank {
+                Some(r) if r > DISAGREE_OUTSIDE => out.push(format!(
+                    "ranked 1 by {} but {r} by {}",
+                    first.technique, other.technique
+                )),
+                None => out.push(format!(
+                    "ranked 1 by {}, but no {} reference to confirm it",
+                    first.technique, other.technique
+                )),
+                _ => {}
+            }
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::Status;
+    use crate::score::{Overlap, Scores};
+
+    fn hit(compound_id: i64, name: &str, score: f64) -> Hit {
+        Hit {
+            rank: 0,
+            score,
+            components: Scores {
+                combined: score,
+                spectral: score,
+                cosine: score,
+                correlation: None,
+                derivative: None,
+                composite: None,
+                shift_match: None,
+                peak_overlap: Overlap {
+                    matched: 0,
+                    unknown_peaks: 0,
+                    reference_peaks: 0,
+                    forward: 0.0,
+                    reverse: 0.0,
+                    jaccard: 0.0,
+                },
+            },
+            spectrum_id: compound_id * 10,
+            compound_id,
+            name: name.into(),
+            formula: None,
+            cas: None,
+            technique: Technique::Ir,
+            status: Status::Pending,
+            solvent: None,
+            notes: vec![],
+        }
+    }
+
+    #[test]
+    fn mean_with_missing_as_zero_and_missing_shown() {
+        let ir = [
+            hit(1, "acetone", 0.9),
+            hit(2, "2-butanone", 0.8),
+            hit(3, "propanal", 0.5),
+        ];
+        // The library has no MS of propanal.
+        let ms = [hit(2, "2-butanone", 0.7), hit(1, "acetone", 0.5)];
+        let f = fuse(&[(Technique::Ir, &ir), (Technique::MsEi, &ms)], 10);
+        let names: Vec<&str> = f.compounds.iter().map(|c| c.name.as_str()).collect();
+        assert_eq!(names, ["2-butanone", "acetone", "propanal"]);
+        // 2-butanone (0.8 + 0.7) / 2 = 0.75 beats acetone (0.9 + 0.5) / 2 = 0.70, although IR
+        // alone ranks acetone first; propanal (0.5 + 0) / 2 = 0.25.
+        let fused: Vec<f64> = f.compounds.iter().map(|c| c.fused).collect();
+        assert!((fused[0] - 0.75).abs() < 1e-12 && (fused[1] - 0.70).abs() < 1e-12);
+        let propanal = &f.compounds[2];
+        assert_eq!(propanal.fused, 0.25);
+        assert_eq!(propanal.missing, [Technique::MsEi]);
+        assert_eq!(propanal.evidence[1].score, None);
+        assert!(
+            f.warnings[0].contains("different compounds first"),
+            "{:?}",
+            f.warnings
+        );
+    }
+
+    #[test]
+    fn disagreement_is_reported() {
+        let ir: Vec<Hit> = (1..=8)
+            .map(|i| hit(i, &format!("c{i}"), 1.0 - 0.05 * i as f64))
+            .collect();
+        let mut ms: Vec<Hit> = (2..=8)
+            .map(|i| hit(i, &format!("c{i}"), 1.0 - 0.05 * i as f64))
+            .collect();
+        ms.push(hit(1, "c1", 0.1));
+        let f = fuse(&[(Technique::Ir, &ir), (Technique::MsEi, &ms)], 10);
+        let c1 = f.compounds.iter().find(|c| c.compound_id == 1).unwrap();
+        assert_eq!(c1.disagreements, ["ranked 1 by ir but 8 by ms-ei"]);
+        // c2 is ranked 1 by ms-ei and 2 by ir: no disagreement.
+        assert!(
+            f.compounds
+                .iter()
+                .find(|c| c.compound_id == 2)
+                .unwrap()
+                .disagreements
+                .is_empty()
+        );
+        assert_eq!(
+            fuse(&[(Technique::Ir, &ir), (Technique::MsEi, &ms)], 3)
+                .compounds
+                .len(),
+            3
+        );
+    }
+}

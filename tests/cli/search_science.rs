@@ -1,0 +1,567 @@
+//! `whorl search` science: measures and their parameters, 13C, solvent notes, constraints,
+//! retention indices, library-wide preparation choices, confidence.
+
+use serde_json::Value;
+
+use crate::util::{Lab, ir_csv, seed};
+
+fn seeded() -> Lab {
+    let lab = Lab::new();
+    lab.ok(&["import", seed().join("manifest.csv").to_str().unwrap()]);
+    lab.approve_all();
+    lab
+}
+
+fn unknown(name: &str) -> String {
+    seed().join("unknowns").join(name).display().to_string()
+}
+
+fn names(report: &Value) -> Vec<String> {
+    report["hits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|h| h["name"].as_str().unwrap().to_string())
+        .collect()
+}
+
+#[test]
+fn ms_exponents_reverse_and_cutoff_are_parameters_of_the_result() {
+    let lab = seeded();
+    let u = unknown("u09.ms-ei.csv"); // ethylbenzene with column-bleed ions 207 and 281
+    let fwd = lab.json(&["search", &u, "-t", "ms-ei"]);
+    let composite = &fwd["parameters"]["score"]["composite"];
+    // Stein & Scott 1994 defaults: intensity^0.6 x (m/z)^3.
+    assert_eq!(composite["intensity_exponent"], 0.6);
+    assert_eq!(composite["mass_exponent"], 3.0);
+    assert_eq!(composite["reverse"], false);
+    let rev = lab.json(&["search", &u, "-t", "ms-ei", "--reverse"]);
+    assert_eq!(rev["parameters"]["score"]["composite"]["reverse"], true);
+    assert_eq!(names(&fwd)[0], "ethylbenzene");
+    assert_eq!(names(&rev)[0], "ethylbenzene");
+    // The bleed ions are not in the reference, so reverse search ignores them and scores higher.
+    let (f, r) = (
+        fwd["hits"][0]["score"].as_f64().unwrap(),
+        rev["hits"][0]["score"].as_f64().unwrap(),
+    );
+    assert!(r > f, "reverse {r} vs forward {f}");
+
+    let custom = lab.json(&[
+        "search",
+        &u,
+        "-t",
+        "ms-ei",
+        "--mz-exponent",
+        "1",
+        "--intensity-exponent",
+        "0.5",
+        "--min-mz",
+        "40",
+    ]);
+    let p = &custom["parameters"]["score"];
+    assert_eq!(p["composite"]["mass_exponent"], 1.0);
+    assert_eq!(p["composite"]["intensity_exponent"], 0.5);
+    assert_eq!(p["min_mz"], 40.0);
+    // Ions below m/z 40 (27 and 39) are left out of the unknown's peaks: 12 ions, 10 kept.
+    assert_eq!(
+        custom["hits"][0]["components"]["peak_overlap"]["unknown_peaks"],
+        10
+    );
+}
+
+#[test]
+fn ms_only_options_are_refused_for_other_techniques() {
+    let lab = Lab::new();
+    let file = lab.write("u.csv", ir_csv(&[(1715.0, 1.0, 10.0)]));
+    let err = lab.fails(
+        &["search", file.to_str().unwrap(), "-t", "ir", "--reverse"],
+        3,
+    );
+    assert!(err.contains("--reverse applies to ms-ei"), "{err}");
+    let err = lab.fails(
+        &[
+            "search",
+            file.to_str().unwrap(),
+            "-t",
+            "ir",
+            "--measure",
+            "composite",
+        ],
+        3,
+    );
+    assert!(err.contains("does not apply to ir"), "{err}");
+    assert!(err.contains("correlation, derivative, cosine"), "{err}");
+    let err = lab.fails(
+        &[
+            "search",
+            file.to_str().unwrap(),
+            "-t",
+            "ir",
+            "--measure",
+            "derivative",
+            "--sg-window",
+            "10",
+        ],
+        3,
+    );
+    assert!(err.contains("odd"), "{err}");
+}
+
+#[test]
+fn derivative_measure_ranks_and_reports_its_window() {
+    let lab = seeded();
+    let u = unknown("u01.ir.csv"); // ethyl acetate, sloping baseline, shifted
+    let report = lab.json(&[
+        "search",
+        &u,
+        "-t",
+        "ir",
+        "--measure",
+        "derivative",
+        "--sg-window",
+        "15",
+        "--sg-order",
+        "3",
+    ]);
+    assert_eq!(names(&report)[0], "ethyl acetate");
+    let p = &report["parameters"]["score"];
+    assert_eq!(p["measure"], "derivative");
+    assert_eq!(p["derivative"]["window"], 15);
+    assert_eq!(p["derivative"]["order"], 3);
+    let c = &report["hits"][0]["components"];
+    assert_eq!(c["spectral"], c["derivative"]);
+    let text = lab.ok(&["search", &u, "-t", "ir", "--measure", "deriv"]);
+    assert!(
+        text.contains("deriv (Savitzky-Golay window 11, order 2)"),
+        "{text}"
+    );
+}
+
+#[test]
+fn every_technique_reports_peak_overlap_per_hit() {
+    let lab = seeded();
+    for (file, technique, solvent) in [
+        ("u01.ir.csv", "ir", None),
+        ("u06.raman.csv", "raman", None),
+        ("u09.ms-ei.csv", "ms-ei", None),
+        ("u14.nmr-1h.csv", "nmr-1h", Some("CDCl3")),
+        ("u16.nmr-13c.csv", "nmr-13c", Some("CDCl3")),
+    ] {
+        let u = unknown(file);
+        let mut args = vec!["search", u.as_str(), "-t", technique, "--top", "3"];
+        if let Some(s) = solvent {
+            args.extend(["--solvent", s]);
+        }
+        let report = lab.json(&args);
+        for h in report["hits"].as_array().unwrap() {
+            let o = &h["components"]["peak_overlap"];
+            for k in ["forward", "reverse", "jaccard"] {
+                let v = o[k].as_f64().unwrap();
+                assert!((0.0..=1.0).contains(&v), "{technique} {k} {v}");
+            }
+        }
+        let text = lab.ok(&args);
+        assert!(
+            text.contains(" fwd ") && text.contains(" rev ") && text.contains("jacc"),
+            "{text}"
+        );
+    }
+}
+
+#[test]
+fn nmr_hits_note_a_solvent_that_differs() {
+    let lab = seeded();
+    // u12: diethyl ether run in acetone-d6; the reference was run in CDCl3.
+    let u = unknown("u12.nmr-1h.csv");
+    let report = lab.json(&["search", &u, "-t", "nmr-1h", "--solvent", "acetone-d6"]);
+    let first = &report["hits"][0];
+    assert_eq!(first["name"], "diethyl ether");
+    assert_eq!(first["solvent"], "CDCl3");
+    let note = first["notes"][0].as_str().unwrap();
+    assert!(
+        note.contains("reference in CDCl3, unknown in acetone-d6"),
+        "{note}"
+    );
+    // Same solvent: no note.
+    let same = lab.json(&[
+        "search",
+        &unknown("u14.nmr-1h.csv"),
+        "-t",
+        "nmr-1h",
+        "--solvent",
+        "CDCl3",
+    ]);
+    assert!(
+        same["hits"][0].get("notes").is_none(),
+        "{}",
+        same["hits"][0]
+    );
+}
+
+/// A 13C peak list `(ppm, intensity)` with a header.
+fn c13(lines: &[f64]) -> String {
+    let mut s = String::from("ppm,intensity\n");
+    for p in lines {
+        s.push_str(&format!("{p},1\n"));
+    }
+    s
+}
+
+#[test]
+fn carbon_13_matches_within_the_tolerance() {
+    let lab = seeded();
+    // Ethyl acetate's seed table (171.1, 60.5, 21.0, 14.2 ppm; from memory) moved by 0.6 ppm.
+    let shifted = lab.write("ea.csv", c13(&[171.7, 61.1, 21.6, 14.8]));
+    let path = shifted.to_str().unwrap();
+    let wide = lab.json(&["search", path, "-t", "nmr-13c", "--solvent", "CDCl3"]);
+    assert_eq!(names(&wide)[0], "ethyl acetate");
+    assert_eq!(wide["parameters"]["score"]["peak_tolerance"], 1.0);
+    assert_eq!(wide["parameters"]["score"]["measure"], "shift-match");
+    let first = &wide["hits"][0]["components"];
+    assert_eq!(first["peak_overlap"]["matched"], 4);
+    // Each pair 0.6 ppm apart counts 1 - 0.6^2 = 0.64 (Epanechnikov weight); 4 pairs of 4 + 4.
+    assert!(
+        (first["shift_match"].as_f64().unwrap() - 0.64).abs() < 1e-9,
+        "{first}"
+    );
+    // With a 0.5 ppm tolerance nothing pairs with ethyl acetate any more.
+    let narrow = lab.json(&[
+        "search",
+        path,
+        "-t",
+        "nmr-13c",
+        "--solvent",
+        "CDCl3",
+        "--tolerance",
+        "0.5",
+    ]);
+    let ea = narrow["hits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|h| h["name"] == "ethyl acetate");
+    assert!(
+        ea.is_none_or(|h| h["components"]["peak_overlap"]["matched"] == 0),
+        "{narrow}"
+    );
+    assert_eq!(narrow["parameters"]["score"]["peak_tolerance"], 0.5);
+}
+
+#[test]
+fn carbon_13_unknowns_of_the_demo_rank_first() {
+    let lab = seeded();
+    for (file, expected) in [
+        ("u16.nmr-13c.csv", "2-butanone"),
+        ("u17.nmr-13c.csv", "acetophenone"),
+    ] {
+        let report = lab.json(&[
+            "search",
+            &unknown(file),
+            "-t",
+            "nmr-13c",
+            "--solvent",
+            "CDCl3",
+        ]);
+        assert_eq!(names(&report)[0], expected, "{file}");
+    }
+}
+
+#[test]
+fn constraints_exclude_what_they_should_and_explain_lists_reasons() {
+    let lab = seeded();
+    // u09 is ethylbenzene, C8H10: nominal mass 106, IHD 4.
+    let u = unknown("u09.ms-ei.csv");
+    let check = |extra: &[&str], allowed: &dyn Fn(&Value) -> bool| {
+        let mut args = vec!["search", u.as_str(), "-t", "ms-ei", "--top", "44"];
+        args.extend_from_slice(extra);
+        let report = lab.json(&args);
+        let hits = report["hits"].as_array().unwrap();
+        assert!(!hits.is_empty(), "{extra:?}");
+        for h in hits {
+            assert!(allowed(h), "{extra:?} let through {}", h["name"]);
+        }
+        assert_eq!(
+            hits.len() + report["excluded_count"].as_u64().unwrap() as usize,
+            44,
+            "{extra:?}"
+        );
+        report
+    };
+    let r = check(&["--formula", "C8H10"], &|h| h["formula"] == "C8H10");
+    // The xylenes and ethylbenzene share C8H10 (seed tables).
+    assert_eq!(r["hits"].as_array().unwrap().len(), 4);
+    assert_eq!(names(&r)[0], "ethylbenzene");
+    check(&["--mass", "106"], &|h| {
+        ["C8H10", "C7H6O"].contains(&h["formula"].as_str().unwrap())
+    });
+    // IHD 4 in the seed library (worked by hand, C - (H + X)/2 + N/2 + 1): the benzene rings
+    // without a further double bond, and pyridine; styrene, the aromatic carbonyls and
+    // nitrobenzene have 5.
+    let r = check(&["--ihd", "4"], &|h| {
+        ["C6H6", "C7H8", "C8H10", "C6H5Cl", "C5H5N", "C6H7N", "C6H6O"]
+            .contains(&h["formula"].as_str().unwrap())
+    });
+    assert_eq!(r["hits"].as_array().unwrap().len(), 10);
+    check(&["--elements", "C,H"], &|h| {
+        let f = h["formula"].as_str().unwrap();
+        !f.contains('O') && !f.contains('N') && !f.contains("Cl")
+    });
+
+    // --explain lists what was ruled out above the last hit, with the reason.
+    let report = lab.json(&[
+        "search",
+        &u,
+        "-t",
+        "ms-ei",
+        "--top",
+        "3",
+        "--mass",
+        "92",
+        "--explain",
+    ]);
+    assert_eq!(names(&report)[0], "toluene");
+    let excluded = report["excluded"].as_array().unwrap();
+    let eb = excluded
+        .iter()
+        .find(|e| e["name"] == "ethylbenzene")
+        .unwrap();
+    assert_eq!(eb["reason"], "nominal mass 106, not 92");
+    let text = lab.ok(&[
+        "search",
+        &u,
+        "-t",
+        "ms-ei",
+        "--top",
+        "3",
+        "--mass",
+        "92",
+        "--explain",
+    ]);
+    assert!(text.contains("ruled out"), "{text}");
+    assert!(text.contains("limits    nominal mass 92"), "{text}");
+    // Without --explain the reasons are not listed.
+    let quiet = lab.json(&["search", &u, "-t", "ms-ei", "--top", "3", "--mass", "92"]);
+    assert!(quiet.get("excluded").is_none());
+
+    // --where takes part in --explain too.
+    let report = lab.json(&[
+        "search",
+        &u,
+        "-t",
+        "ms-ei",
+        "--top",
+        "2",
+        "--where",
+        "tag:chlorinated",
+        "--explain",
+    ]);
+    assert!(
+        report["excluded"][0]["reason"]
+            .as_str()
+            .unwrap()
+            .contains("does not match --where")
+    );
+
+    // A constraint nothing meets leaves an empty list with a warning.
+    let none = lab.json(&["search", &u, "-t", "ms-ei", "--formula", "C60"]);
+    assert!(none["hits"].as_array().unwrap().is_empty());
+    assert!(
+        none["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w.as_str().unwrap().contains("constraints")),
+        "{}",
+        none["warnings"]
+    );
+}
+
+#[test]
+fn bad_constraints_are_refused_with_a_hint() {
+    let lab = Lab::new();
+    let file = lab.write("u.csv", "mz,intensity\n43,999\n58,300\n");
+    let f = file.to_str().unwrap();
+    for (args, part) in [
+        (vec!["--ihd", "1.3"], "IHD 1.3"),
+        (vec!["--formula", "c6h6"], "not valid"),
+        (vec!["--elements", "C,Xx"], "not an element"),
+        (vec!["--ri-phase", "DB-5"], "needs a retention index"),
+        (vec!["--rt", "9.8", "--alkanes", "9:8.2"], "alkane"),
+    ] {
+        let mut all = vec!["search", f, "-t", "ms-ei"];
+        all.extend(args.iter().copied());
+        let err = lab.fails(&all, 3);
+        assert!(err.contains(part), "{args:?}: {err}");
+        assert!(err.contains("hint:"), "{err}");
+    }
+}
+
+#[test]
+fn retention_index_window_uses_the_ri_on_record() {
+    let lab = Lab::new();
+    // Three references with retention indices on two phases (invented values for the test).
+    for name in ["toluene", "ethylbenzene", "p-xylene"] {
+        let slug = name.replace(' ', "-");
+        std::fs::copy(
+            seed().join(format!("spectra/{slug}.ms-ei.csv")),
+            lab.path(&format!("{slug}.csv")),
+        )
+        .unwrap();
+    }
+    lab.write(
+        "m.csv",
+        "file,technique,name,formula,ri,ri_phase\n\
+         toluene.csv,ms-ei,toluene,C7H8,765,DB-5\n\
+         ethylbenzene.csv,ms-ei,ethylbenzene,C8H10,857,DB-5\n\
+         p-xylene.csv,ms-ei,p-xylene,C8H10,866,DB-WAX\n",
+    );
+    lab.ok(&["import", lab.path("m.csv").to_str().unwrap()]);
+    lab.approve_all();
+    let u = unknown("u09.ms-ei.csv");
+    let report = lab.json(&[
+        "search",
+        &u,
+        "-t",
+        "ms-ei",
+        "--ri",
+        "860",
+        "--ri-window",
+        "10",
+        "--explain",
+    ]);
+    assert_eq!(names(&report), ["ethylbenzene", "p-xylene"]);
+    let r = lab.json(&[
+        "search",
+        &u,
+        "-t",
+        "ms-ei",
+        "--ri",
+        "860",
+        "--ri-window",
+        "10",
+        "--ri-phase",
+        "db-5",
+        "--explain",
+    ]);
+    assert_eq!(names(&r), ["ethylbenzene"]);
+    let px = r["excluded"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|e| e["name"] == "p-xylene")
+        .unwrap();
+    assert!(
+        px["reason"].as_str().unwrap().contains("phase DB-WAX"),
+        "{px}"
+    );
+    // From retention times: C8 at 6.00 min, C9 at 8.40 min, the peak at 7.37 min gives
+    // 100 * (8 + 1.37 / 2.40) = 857.1 (van den Dool & Kratz 1963), within 5 of ethylbenzene only.
+    let r = lab.json(&[
+        "search",
+        &u,
+        "-t",
+        "ms-ei",
+        "--rt",
+        "7.37",
+        "--alkanes",
+        "8:6.00,9:8.40",
+        "--ri-window",
+        "5",
+    ]);
+    assert_eq!(names(&r), ["ethylbenzene"]);
+    let ri = r["parameters"]["constraints"]["ri"]["value"]
+        .as_f64()
+        .unwrap();
+    assert!((ri - 857.083).abs() < 0.001, "{ri}");
+}
+
+#[test]
+fn init_records_baseline_and_masks_in_the_recipe() {
+    let lab = Lab::empty();
+    let out = lab.ok(&[
+        "init",
+        "--ir-baseline",
+        "als",
+        "--ir-mask",
+        "water-vapour",
+        "--ir-mask",
+        "diamond-atr",
+    ]);
+    assert!(out.contains("baseline als"), "{out}");
+    let stats = lab.json(&["stats"]);
+    let ir = stats["recipes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["technique"] == "ir")
+        .unwrap()
+        .clone();
+    assert_eq!(ir["baseline"]["method"], "als");
+    let masks: Vec<(f64, f64)> = ir["grid"]["masks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|m| (m[0].as_f64().unwrap(), m[1].as_f64().unwrap()))
+        .collect();
+    assert_eq!(
+        masks,
+        [
+            (1300.0, 2000.0),
+            (1900.0, 2300.0),
+            (2280.0, 2400.0),
+            (3500.0, 4000.0)
+        ]
+    );
+    // The masked regions do not take part in the score: a band at 1715 cm-1 (inside the
+    // water-vapour mask) cannot tell two spectra apart.
+    let a = lab.write("a.csv", ir_csv(&[(1715.0, 1.0, 10.0), (1100.0, 0.5, 15.0)]));
+    let b = lab.write("b.csv", ir_csv(&[(1100.0, 0.5, 15.0)]));
+    lab.ok(&[
+        "add",
+        a.to_str().unwrap(),
+        "-t",
+        "ir",
+        "--name",
+        "with carbonyl",
+    ]);
+    let report = lab.json(&[
+        "search",
+        b.to_str().unwrap(),
+        "-t",
+        "ir",
+        "--include-pending",
+    ]);
+    assert!(
+        (report["hits"][0]["components"]["correlation"]
+            .as_f64()
+            .unwrap()
+            - 1.0)
+            .abs()
+            < 1e-3
+    );
+    let err = lab.fails(&["init", "--ir-mask", "everything"], 3);
+    assert!(err.contains("not a mask"), "{err}");
+}
+
+#[test]
+fn hit_lists_state_their_confidence() {
+    let lab = seeded();
+    let report = lab.json(&["search", &unknown("u01.ir.csv"), "-t", "ir"]);
+    let c = &report["confidence"];
+    assert_eq!(c["derived"], true);
+    assert!(c["weak_score"].as_f64().unwrap() > 0.0 && c["close_margin"].as_f64().unwrap() > 0.0);
+    assert!(report["margin"].as_f64().unwrap() > 0.0);
+    // An IR spectrum of a compound not in the library: one band where no seed compound has
+    // its strongest band is a weak match.
+    let odd = lab.write("odd.csv", ir_csv(&[(2100.0, 1.0, 8.0), (850.0, 0.6, 8.0)]));
+    let r = lab.json(&["search", odd.to_str().unwrap(), "-t", "ir"]);
+    assert!(
+        r["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w.as_str().unwrap().contains("weak match")),
+        "{}",
+        r["warnings"]
+    );
+}
