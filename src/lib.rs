@@ -8,7 +8,7 @@
 //! lab's validated procedure and is reviewed by a qualified analyst.
 //!
 //! ```
-//! use whorl::library::{Library, Metadata, Submission, stage};
+//! use whorl::library::{Decision, Library, Metadata, Outcome, Submission, stage};
 //! use whorl::search::{Request, search};
 //! use whorl::technique::Technique;
 //!
@@ -34,7 +34,10 @@
 //!     submitted_by: "a.analyst".into(),
 //! };
 //! let staged = stage(library.recipes(), submission)?;
-//! library.store(&[staged], "a.analyst", false)?;
+//! let stored = library.store(&[staged], "a.analyst", false)?;
+//! let Ok(Outcome::Added { spectrum_id, .. }) = stored[0] else { panic!("not stored") };
+//! // A second analyst signs it off; search covers verified spectra by default.
+//! library.review(spectrum_id, "b.reviewer", Decision::Approve, None, None)?;
 //!
 //! let recipe = library.recipe(Technique::Ir)?.clone();
 //! let (_, unknown) = whorl::library::read_and_prepare(&file, &recipe, None, None, None)?;
