@@ -47,6 +47,10 @@ pub struct IdentifyArgs {
     /// Print the full report as JSON
     #[arg(long)]
     pub json: bool,
+    /// Also write a self-contained HTML report: the fused list, then each technique's hit list
+    /// with overlays of the unknown on its top hits
+    #[arg(long, value_name = "FILE")]
+    pub html: Option<PathBuf>,
 }
 
 impl IdentifyArgs {
@@ -82,6 +86,18 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let constraints = args.constraints.constraints()?;
     let lib = ctx.open()?;
     let report = identify(&lib, &unknowns, &constraints, args.top.max(1))?;
+    if let Some(path) = &args.html {
+        write_html(
+            &lib,
+            &report,
+            &unknowns,
+            &constraints,
+            args.top.max(1),
+            path,
+            ctx,
+        )?;
+        eprintln!("report written to {}", path.display());
+    }
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &report)?;
@@ -89,6 +105,43 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         print_identify(&mut out, &report)?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Writes the HTML report: each technique is searched again for its own section (same
+/// scoring and constraints as `identify` used), so that its overlays show the prepared unknown.
+fn write_html(
+    lib: &whorl::library::Library,
+    report: &IdentifyReport,
+    unknowns: &[UnknownInput],
+    constraints: &whorl::search::Constraints,
+    top: usize,
+    path: &std::path::Path,
+    ctx: &Context,
+) -> anyhow::Result<()> {
+    let plots = ctx.config()?.report.plots;
+    let mut runs = Vec::with_capacity(unknowns.len());
+    for u in unknowns {
+        let mut request = whorl::search::Request::new(u.technique);
+        request.top = top;
+        request.constraints = constraints.clone();
+        let (r, prepared) =
+            whorl::search::search_file(lib, &u.file, u.x_unit, u.y_unit, u.solvent, &request)?;
+        let refs = whorl::report::references(lib, &r, plots)?;
+        runs.push((r, prepared, refs));
+    }
+    let queries: Vec<whorl::report::Query<'_>> = runs
+        .iter()
+        .map(|(r, p, refs)| whorl::report::Query {
+            report: r,
+            unknown: p,
+            references: refs,
+        })
+        .collect();
+    let html = whorl::report::identify_page(report, &queries)?;
+    std::fs::write(path, html).map_err(|e| {
+        whorl::Error::io(format!("writing the HTML report to {}", path.display()), e)
+    })?;
+    Ok(())
 }
 
 /// Prints a fused list for people.

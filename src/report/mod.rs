@@ -8,7 +8,7 @@
 pub mod html;
 pub mod plot;
 
-pub use html::{Query, escape, page, query_section, search_page};
+pub use html::{Query, escape, identify_page, page, query_section, search_page};
 pub use plot::{Trace, overlay, spectra};
 
 use crate::error::Result;

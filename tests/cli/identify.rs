@@ -145,3 +145,33 @@ fn identify_needs_an_unknown_and_one_per_technique() {
     assert!(err.contains("no unknown to identify"), "{err}");
     assert!(err.contains("hint: give at least one of --ir"), "{err}");
 }
+
+#[test]
+fn identify_writes_one_html_report_with_the_fused_list_and_each_technique() {
+    let lab = Lab::seeded();
+    let ms = lab.write("ea.ms.csv", ETHYL_ACETATE_MS);
+    let ir = seed_file("unknowns/u01.ir.csv");
+    lab.ok(&[
+        "identify",
+        "--ir",
+        ir.as_str(),
+        "--ms-ei",
+        ms.to_str().unwrap(),
+        "--top",
+        "3",
+        "--html",
+        "id.html",
+    ]);
+    let html = std::fs::read_to_string(lab.path("id.html")).unwrap();
+    assert!(html.contains("Fused list"), "the fused section");
+    assert!(
+        html.contains("IR unknown") && html.contains("EI mass spectrum unknown"),
+        "one section per technique"
+    );
+    // The fused table names the compound every technique put first, and each technique's
+    // section carries overlays (one SVG per plotted hit).
+    assert!(html.contains("ethyl acetate"));
+    assert!(html.matches("<svg").count() >= 2, "overlays present");
+    assert!(html.contains("evidence, not proof"), "the caution");
+    assert!(!html.contains("<script"), "no script");
+}
