@@ -29,12 +29,18 @@ pub struct ExportArgs {
 
 pub fn run(args: ExportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
+    let bar = output::progress(0, "exporting");
     let report = lib.export(
         &args.dir,
         args.filter.as_deref(),
         args.status,
         &identity(args.by.as_deref()),
+        &|done, total| {
+            bar.set_length(total as u64);
+            bar.set_position(done as u64);
+        },
     )?;
+    bar.finish_and_clear();
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &report.info)?;

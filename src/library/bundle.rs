@@ -104,13 +104,15 @@ fn points_csv(rec: &SpectrumRecord, points: &[(f64, f64)]) -> String {
 impl Library {
     /// Writes a bundle of the spectra matching `query` and `status` (all when both are `None`)
     /// into `dir`, which must not exist or be empty. The bundle is written beside `dir` and
-    /// renamed into place, so a failed export leaves no half bundle.
+    /// renamed into place, so a failed export leaves no half bundle. `progress(done, total)`
+    /// is called as spectra are written.
     pub fn export(
         &self,
         dir: &Path,
         query: Option<&str>,
         status: Option<Status>,
         actor: &str,
+        progress: &dyn Fn(usize, usize),
     ) -> Result<ExportReport> {
         if dir.exists()
             && std::fs::read_dir(dir)
@@ -156,7 +158,8 @@ impl Library {
         w.write_record(&header).map_err(csv_error)?;
         let mut sums: BTreeMap<String, String> = BTreeMap::new();
         let mut content = ContentSum::default();
-        for rec in &records {
+        for (done, rec) in records.iter().enumerate() {
+            progress(done, records.len());
             let file = format!("spectra/{}.{}.csv", rec.id, rec.technique);
             let text = points_csv(rec, &self.raw_points(rec.id)?);
             std::fs::write(staging.join(&file), &text).map_err(io(format!("writing {file}")))?;
