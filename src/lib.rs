@@ -50,6 +50,7 @@
 
 #![warn(missing_docs)]
 
+pub mod cache;
 pub mod chem;
 pub mod config;
 pub mod error;

@@ -110,9 +110,54 @@ pub const WEAK_SCORE: f64 = 0.6;
 /// Top hits closer than this cannot be told apart by score alone. Provisional, as above.
 pub const CLOSE_MARGIN: f64 = 0.02;
 
+/// The candidates of one unknown that made the top, best first, with their exact scores.
+#[derive(Debug, Clone)]
+pub struct Ranking {
+    /// `(combined score, spectrum id, scores)`, best first, ties by spectrum id.
+    pub scored: Vec<(f64, i64, Scores)>,
+    /// How many library spectra were compared.
+    pub compared: usize,
+}
+
 /// Ranks the library's spectra of the unknown's technique. Ties are broken by spectrum id,
-/// so the same inputs always give the same list.
+/// so the same inputs always give the same list. Goes through the technique's vector cache
+/// (`crate::cache`), which gives the same hits as [`search_exact`] without scoring every
+/// candidate.
 pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Result<HitList> {
+    let ranking = match crate::cache::rank(library, std::slice::from_ref(unknown), request)? {
+        Some(mut r) => r.pop().expect("one ranking per unknown"),
+        None => exact_ranking(library, unknown, request)?,
+    };
+    hit_list(library, request, ranking)
+}
+
+/// Searches several unknowns of one technique together: one pass over the vector cache for
+/// all of them. One hit list per unknown, in order.
+pub fn search_many(
+    library: &Library,
+    unknowns: &[Prepared],
+    request: &Request,
+) -> Result<Vec<HitList>> {
+    let rankings = match crate::cache::rank(library, unknowns, request)? {
+        Some(r) => r,
+        None => unknowns
+            .iter()
+            .map(|u| exact_ranking(library, u, request))
+            .collect::<Result<_>>()?,
+    };
+    rankings
+        .into_iter()
+        .map(|r| hit_list(library, request, r))
+        .collect()
+}
+
+/// [`search`] by scoring every candidate with the full measures: the reference the fast path
+/// is tested against.
+pub fn search_exact(library: &Library, unknown: &Prepared, request: &Request) -> Result<HitList> {
+    hit_list(library, request, exact_ranking(library, unknown, request)?)
+}
+
+fn exact_ranking(library: &Library, unknown: &Prepared, request: &Request) -> Result<Ranking> {
     let allowed: Option<HashSet<i64>> = match &request.filter {
         Some(q) => Some(library.text().matching_ids(q)?),
         None => None,
@@ -137,8 +182,18 @@ pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Resul
         )
     });
     scored.truncate(request.top);
+    Ok(Ranking {
+        scored: scored
+            .into_iter()
+            .map(|(c, i, s)| (c, candidates[i].spectrum_id, s))
+            .collect(),
+        compared,
+    })
+}
 
-    let ids: Vec<i64> = scored.iter().map(|s| candidates[s.1].spectrum_id).collect();
+fn hit_list(library: &Library, request: &Request, ranking: Ranking) -> Result<HitList> {
+    let Ranking { scored, compared } = ranking;
+    let ids: Vec<i64> = scored.iter().map(|s| s.1).collect();
     let records = library.records(&ids)?;
     let hits: Vec<Hit> = scored
         .into_iter()
