@@ -357,6 +357,49 @@ pub fn search_file(
     let recipe = library.recipe(request.technique)?.clone();
     let (raw, unknown) = crate::library::read_and_prepare(file, &recipe, x_unit, y_unit, solvent)?;
     let list = search(library, &unknown, request)?;
+    let report = make_report(library, file, raw, &unknown, list, x_unit, solvent, request)?;
+    Ok((report, unknown))
+}
+
+/// Prepares several unknown files and searches them together ([`search_many`]): one report
+/// per file, in order. Files are read and prepared in parallel.
+pub fn search_files(
+    library: &Library,
+    files: &[std::path::PathBuf],
+    x_unit: Option<crate::spectrum::XUnit>,
+    y_unit: Option<crate::spectrum::YUnit>,
+    solvent: Option<crate::prepare::Solvent>,
+    request: &Request,
+) -> Result<Vec<Report>> {
+    let recipe = library.recipe(request.technique)?.clone();
+    let read: Vec<(crate::spectrum::RawSpectrum, Prepared)> = files
+        .par_iter()
+        .map(|f| crate::library::read_and_prepare(f, &recipe, x_unit, y_unit, solvent))
+        .collect::<Result<_>>()?;
+    let unknowns: Vec<Prepared> = read.iter().map(|(_, p)| p.clone()).collect();
+    let lists = search_many(library, &unknowns, request)?;
+    files
+        .iter()
+        .zip(read)
+        .zip(lists)
+        .map(|((file, (raw, unknown)), list)| {
+            make_report(library, file, raw, &unknown, list, x_unit, solvent, request)
+        })
+        .collect()
+}
+
+#[allow(clippy::too_many_arguments)]
+fn make_report(
+    library: &Library,
+    file: &std::path::Path,
+    raw: crate::spectrum::RawSpectrum,
+    unknown: &Prepared,
+    list: HitList,
+    x_unit: Option<crate::spectrum::XUnit>,
+    solvent: Option<crate::prepare::Solvent>,
+    request: &Request,
+) -> Result<Report> {
+    let recipe = library.recipe(request.technique)?.clone();
     let mut warnings: Vec<String> = unknown
         .warnings
         .iter()
@@ -397,5 +440,5 @@ pub fn search_file(
         warnings,
         caution: crate::CAUTION.to_string(),
     };
-    Ok((report, unknown))
+    Ok(report)
 }
