@@ -41,7 +41,10 @@
 //!
 //! let recipe = library.recipe(Technique::Ir)?.clone();
 //! let (_, unknown) = whorl::library::read_and_prepare(&file, &recipe, None, None, None)?;
-//! let hits = search(&library, &unknown, &Request::new(Technique::Ir))?;
+//! // Search covers verified spectra by default; this one has not been reviewed yet.
+//! let mut request = Request::new(Technique::Ir);
+//! request.statuses.push(whorl::library::Status::Pending);
+//! let hits = search(&library, &unknown, &request)?;
 //! assert_eq!(hits.hits[0].name, "example ketone");
 //! assert!((hits.hits[0].score - 1.0).abs() < 1e-6);
 //! # Ok(())
@@ -50,6 +53,7 @@
 
 #![warn(missing_docs)]
 
+pub mod cache;
 pub mod chem;
 pub mod config;
 pub mod error;

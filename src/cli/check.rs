@@ -35,6 +35,9 @@ pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                 "the text index was behind the database and has been rebuilt (derived data)"
             )?;
         }
+        for t in &report.caches_rebuilt {
+            writeln!(out, "vector cache for {t} rebuilt (derived data)")?;
+        }
         writeln!(
             out,
             "checked {} events and {} spectra: {}",

@@ -18,8 +18,12 @@ use super::{Context, output};
 
 #[derive(Debug, Args)]
 pub struct SearchArgs {
-    /// The unknown's spectrum file
-    pub unknown: PathBuf,
+    /// The unknown's spectrum file; several files are searched together, one hit list each
+    #[arg(required_unless_present = "batch")]
+    pub unknown: Vec<PathBuf>,
+    /// Also search every file in DIR (sorted by name), together with any files given
+    #[arg(long, value_name = "DIR")]
+    pub batch: Option<PathBuf>,
     /// ir, raman, ms-ei, nmr-1h or nmr-13c
     #[arg(long, short)]
     pub technique: Technique,
@@ -222,14 +226,15 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         request.statuses.push(whorl::library::Status::Pending);
     }
     let solvent = args.solvent.or(config.solvent(args.technique));
-    let (report, unknown) = search_file(
-        &lib,
-        &args.unknown,
-        args.x_unit,
-        args.y_unit,
-        solvent,
-        &request,
-    )?;
+    let mut files = args.unknown.clone();
+    if let Some(dir) = &args.batch {
+        files.extend(batch_files(dir)?);
+    }
+    if files.len() != 1 {
+        return run_many(&args, &lib, &files, solvent, &request, ctx);
+    }
+    let (report, unknown) =
+        search_file(&lib, &files[0], args.x_unit, args.y_unit, solvent, &request)?;
     if let Some(path) = &args.save {
         let text = serde_json::to_string_pretty(&report)? + "\n";
         std::fs::write(path, text)
@@ -255,6 +260,84 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         print_report_styled(&mut out, &report, ctx.paint)?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// The files of a batch folder, sorted by name (hidden files skipped).
+fn batch_files(dir: &std::path::Path) -> anyhow::Result<Vec<PathBuf>> {
+    let entries = std::fs::read_dir(dir)
+        .map_err(|e| whorl::Error::io(format!("reading the batch folder {}", dir.display()), e))?;
+    let mut files = Vec::new();
+    for e in entries {
+        let e = e.map_err(|e| whorl::Error::io(format!("reading {}", dir.display()), e))?;
+        let name = e.file_name();
+        if e.path().is_file() && !name.to_string_lossy().starts_with('.') {
+            files.push(e.path());
+        }
+    }
+    files.sort();
+    if files.is_empty() {
+        return Err(whorl::Error::invalid(
+            format!("the batch folder {} holds no files", dir.display()),
+            "put the unknowns' spectrum files in it, or give the files themselves",
+        )
+        .into());
+    }
+    Ok(files)
+}
+
+/// Several unknowns searched together: one hit list each (JSON lines with `--json`).
+fn run_many(
+    args: &SearchArgs,
+    lib: &whorl::library::Library,
+    files: &[PathBuf],
+    solvent: Option<Solvent>,
+    request: &Request,
+    ctx: &Context,
+) -> anyhow::Result<ExitCode> {
+    if args.save.is_some() || args.html.is_some() {
+        return Err(whorl::Error::invalid(
+            "--save and --html take one unknown",
+            "search the unknowns one at a time to save or plot each",
+        )
+        .into());
+    }
+    let reports =
+        whorl::search::search_files(lib, files, args.x_unit, args.y_unit, solvent, request)?;
+    let mut out = std::io::stdout().lock();
+    let mut csv_header = true;
+    for (i, report) in reports.iter().enumerate() {
+        if args.json {
+            serde_json::to_writer(&mut out, report)?;
+            writeln!(out)?;
+        } else if args.csv {
+            let mut buf = Vec::new();
+            write_csv(&mut buf, report)?;
+            let text = String::from_utf8(buf)?;
+            let mut lines = text.lines();
+            let header = lines.next().unwrap_or_default();
+            if csv_header {
+                writeln!(out, "unknown,{header}")?;
+                csv_header = false;
+            }
+            for l in lines {
+                writeln!(out, "{},{l}", csv_field(&report.unknown.file))?;
+            }
+        } else {
+            if i > 0 {
+                writeln!(out)?;
+            }
+            print_report_styled(&mut out, report, ctx.paint)?;
+        }
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
 }
 
 /// The hit list as CSV: one row per hit, every score component in its own column.

@@ -33,6 +33,9 @@ pub struct CheckReport {
     pub findings: Vec<Finding>,
     /// True when the text index was behind and has been rebuilt (derived data, not a finding).
     pub text_index_rebuilt: bool,
+    /// Techniques whose vector cache was rebuilt from the database (derived data).
+    #[serde(default)]
+    pub caches_rebuilt: Vec<crate::technique::Technique>,
 }
 
 /// The state of one spectrum as its events describe it.
@@ -339,6 +342,7 @@ impl Library {
                 .rebuild(records.iter().map(SpectrumRecord::index_doc), generation)?;
             report.text_index_rebuilt = true;
         }
+        report.caches_rebuilt = crate::cache::rebuild_all(self)?;
         Ok(report)
     }
 }

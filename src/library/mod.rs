@@ -9,6 +9,7 @@ mod manifest;
 mod records;
 mod schema;
 mod stage;
+mod vectors;
 
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use check::{CheckReport, Finding};
@@ -22,6 +23,7 @@ pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, read_and_prepare, stage,
     usual_x_unit,
 };
+pub use vectors::{Snapshot, VectorRow};
 
 use std::path::{Path, PathBuf};
 
@@ -46,6 +48,8 @@ pub struct Library {
     /// Set when the text index could not be brought up to date (another process holds its
     /// writer lock); it is derived data, so the command goes on and says so.
     text_behind: std::cell::Cell<bool>,
+    /// Vector caches mapped by this process (derived data, see `crate::cache`).
+    caches: crate::cache::Caches,
 }
 
 /// The default recipe of every technique.
@@ -106,6 +110,7 @@ impl Library {
             recipes: Recipes::new(),
             text,
             text_behind: Default::default(),
+            caches: Default::default(),
         };
         lib.initialise(actor, recipes)?;
         Ok(lib)
@@ -127,6 +132,7 @@ impl Library {
             recipes: Recipes::new(),
             text: TextIndex::in_ram()?,
             text_behind: Default::default(),
+            caches: Default::default(),
         };
         lib.initialise(actor, recipes)?;
         Ok(lib)
@@ -201,6 +207,7 @@ impl Library {
             recipes,
             text,
             text_behind: Default::default(),
+            caches: Default::default(),
         };
         if lib.refresh_text_index().is_err() {
             lib.text_behind.set(true);
@@ -228,6 +235,11 @@ impl Library {
                     "the library was created before whorl knew this technique; create a new library with `whorl init` and import into it",
                 )
             })
+    }
+
+    /// The vector caches this process has mapped.
+    pub(crate) fn vector_caches(&self) -> &crate::cache::Caches {
+        &self.caches
     }
 
     /// The text index.

@@ -272,8 +272,95 @@ fn hit_notes(
 }
 
 /// Ranks the library's spectra of the unknown's technique. Ties are broken by spectrum id,
-/// so the same inputs always give the same list.
+/// so the same inputs always give the same list. A plain search goes through the technique's
+/// vector cache (`crate::cache`), which gives the same hits as [`search_exact`] without
+/// scoring every candidate in full; constraints and `explain` need every candidate's score
+/// and take the exact path.
 pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Result<HitList> {
+    let mut lists = search_many(library, std::slice::from_ref(unknown), request)?;
+    Ok(lists.pop().expect("one hit list per unknown"))
+}
+
+/// Searches several unknowns of one technique together: one pass over the vector cache for
+/// all of them. One hit list per unknown, in order.
+pub fn search_many(
+    library: &Library,
+    unknowns: &[Prepared],
+    request: &Request,
+) -> Result<Vec<HitList>> {
+    request.params.validate(request.technique)?;
+    request.constraints.validate()?;
+    if request.constraints.is_empty() && !request.explain {
+        if let Some(rankings) = crate::cache::rank(library, unknowns, request)? {
+            let searched: i64 = request
+                .statuses
+                .iter()
+                .map(|&s| library.count(request.technique, s))
+                .sum::<Result<i64>>()?;
+            return rankings
+                .into_iter()
+                .map(|r| {
+                    let excluded_count = (searched as usize).saturating_sub(r.compared);
+                    let mut hits = Vec::with_capacity(r.scored.len());
+                    let ids: Vec<i64> = r.scored.iter().map(|s| s.1).collect();
+                    for ((combined, _, components), rec) in
+                        r.scored.into_iter().zip(library.records(&ids)?)
+                    {
+                        hits.push(make_hit(hits.len() + 1, combined, components, rec, request));
+                    }
+                    finish(
+                        library,
+                        request,
+                        hits,
+                        r.compared,
+                        excluded_count,
+                        Vec::new(),
+                    )
+                })
+                .collect();
+        }
+    }
+    unknowns
+        .iter()
+        .map(|u| search_exact(library, u, request))
+        .collect()
+}
+
+/// The candidates of one unknown that made the top, best first, with their exact scores.
+#[derive(Debug, Clone)]
+pub struct Ranking {
+    /// `(combined score, spectrum id, scores)`, best first, ties by spectrum id.
+    pub scored: Vec<(f64, i64, Scores)>,
+    /// How many library spectra were compared.
+    pub compared: usize,
+}
+
+fn make_hit(
+    rank: usize,
+    combined: f64,
+    components: Scores,
+    rec: SpectrumRecord,
+    request: &Request,
+) -> Hit {
+    Hit {
+        rank,
+        score: combined,
+        components,
+        spectrum_id: rec.id,
+        compound_id: rec.compound_id,
+        notes: hit_notes(request.technique, request.solvent, &rec),
+        solvent: rec.metadata.solvent.clone(),
+        name: rec.metadata.name,
+        formula: rec.metadata.formula,
+        cas: rec.metadata.cas,
+        technique: rec.technique,
+        status: rec.status,
+    }
+}
+
+/// [`search`] by scoring every candidate with the full measures: the path constraints and
+/// `explain` use, and the reference the cached path is tested against.
+pub fn search_exact(library: &Library, unknown: &Prepared, request: &Request) -> Result<HitList> {
     request.params.validate(request.technique)?;
     request.constraints.validate()?;
     let allowed: Option<HashSet<i64>> = match &request.filter {
@@ -351,22 +438,20 @@ pub fn search(library: &Library, unknown: &Prepared, request: &Request) -> Resul
         if hits.len() >= request.top {
             continue;
         }
-        hits.push(Hit {
-            rank: hits.len() + 1,
-            score: combined,
-            components,
-            spectrum_id: rec.id,
-            compound_id: rec.compound_id,
-            notes: hit_notes(request.technique, request.solvent, &rec),
-            solvent: rec.metadata.solvent.clone(),
-            name: rec.metadata.name,
-            formula: rec.metadata.formula,
-            cas: rec.metadata.cas,
-            technique: rec.technique,
-            status: rec.status,
-        });
+        hits.push(make_hit(hits.len() + 1, combined, components, rec, request));
     }
+    finish(library, request, hits, compared, excluded_count, excluded)
+}
 
+/// The margin, the thresholds and the warnings that go with a hit list.
+fn finish(
+    library: &Library,
+    request: &Request,
+    hits: Vec<Hit>,
+    compared: usize,
+    excluded_count: usize,
+    excluded: Vec<Excluded>,
+) -> Result<HitList> {
     let margin = (hits.len() >= 2).then(|| hits[0].score - hits[1].score);
     let mut confidence = confidence(request.technique, &request.params);
     if let Some(w) = request.thresholds.weak_score {
@@ -564,6 +649,54 @@ pub fn search_file(
     let mut request = request.clone();
     request.solvent = solvent;
     let list = search(library, &unknown, &request)?;
+    let report = make_report(
+        library, file, raw, &unknown, list, x_unit, solvent, &request,
+    )?;
+    Ok((report, unknown))
+}
+
+/// Prepares several unknown files and searches them together ([`search_many`]): one report
+/// per file, in order. Files are read and prepared in parallel.
+pub fn search_files(
+    library: &Library,
+    files: &[std::path::PathBuf],
+    x_unit: Option<crate::spectrum::XUnit>,
+    y_unit: Option<crate::spectrum::YUnit>,
+    solvent: Option<crate::prepare::Solvent>,
+    request: &Request,
+) -> Result<Vec<Report>> {
+    let recipe = library.recipe(request.technique)?.clone();
+    let read: Vec<(crate::spectrum::RawSpectrum, Prepared)> = files
+        .par_iter()
+        .map(|f| crate::library::read_and_prepare(f, &recipe, x_unit, y_unit, solvent))
+        .collect::<Result<_>>()?;
+    let unknowns: Vec<Prepared> = read.iter().map(|(_, p)| p.clone()).collect();
+    let mut request = request.clone();
+    request.solvent = solvent;
+    let request = &request;
+    let lists = search_many(library, &unknowns, request)?;
+    files
+        .iter()
+        .zip(read)
+        .zip(lists)
+        .map(|((file, (raw, unknown)), list)| {
+            make_report(library, file, raw, &unknown, list, x_unit, solvent, request)
+        })
+        .collect()
+}
+
+#[allow(clippy::too_many_arguments)]
+fn make_report(
+    library: &Library,
+    file: &std::path::Path,
+    raw: crate::spectrum::RawSpectrum,
+    unknown: &Prepared,
+    list: HitList,
+    x_unit: Option<crate::spectrum::XUnit>,
+    solvent: Option<crate::prepare::Solvent>,
+    request: &Request,
+) -> Result<Report> {
+    let recipe = library.recipe(request.technique)?.clone();
     let mut warnings: Vec<String> = unknown
         .warnings
         .iter()
@@ -602,7 +735,7 @@ pub fn search_file(
         warnings,
         caution: crate::CAUTION.to_string(),
     };
-    Ok((report, unknown))
+    Ok(report)
 }
 
 #[cfg(test)]

@@ -373,3 +373,50 @@ fn every_example_unknown_has_its_expected_compound_at_rank_1() {
     }
     assert!(misses.is_empty(), "{}", misses.join("\n"));
 }
+
+#[test]
+fn several_unknowns_are_searched_together_one_hit_list_each() {
+    let lab = small_lab();
+    let dir = lab.path("batch");
+    std::fs::create_dir_all(&dir).unwrap();
+    std::fs::copy(lab.path("k.csv"), dir.join("a-k.csv")).unwrap();
+    std::fs::copy(lab.path("t.csv"), dir.join("b-t.csv")).unwrap();
+    let lines = lab.ok(&["search", "--batch", "batch", "c.csv", "-t", "ir", "--json"]);
+    let reports: Vec<Value> = lines
+        .lines()
+        .map(|l| serde_json::from_str(l).expect("one JSON report per line"))
+        .collect();
+    assert_eq!(reports.len(), 3);
+    // Files given come first, then the folder's files by name; each list equals a single search.
+    for (report, file) in reports
+        .iter()
+        .zip(["c.csv", "batch/a-k.csv", "batch/b-t.csv"])
+    {
+        let single = lab.json(&["search", file, "-t", "ir"]);
+        assert_eq!(hits(report), hits(&single), "{file}");
+    }
+    assert_eq!(hits(&reports[1])[0]["name"], "compound k");
+    let table = lab.ok(&["search", "k.csv", "t.csv", "-t", "ir"]);
+    assert_eq!(table.matches("caution").count(), 2);
+    let err = lab.fails(
+        &["search", "k.csv", "t.csv", "-t", "ir", "--save", "s.json"],
+        3,
+    );
+    assert!(err.contains("one unknown"), "{err}");
+    lab.fails(&["search", "--batch", "nowhere", "-t", "ir"], 1);
+}
+
+#[test]
+fn a_search_writes_the_vector_cache_and_check_rebuilds_it() {
+    let lab = small_lab();
+    lab.ok(&["search", "k.csv", "-t", "ir"]);
+    let cache = lab.library().join("cache").join("ir.corr.wvc");
+    assert!(cache.is_file());
+    std::fs::write(&cache, b"damaged").unwrap();
+    // A damaged cache is never served: the search rebuilds it and finds the same hits.
+    let report = lab.json(&["search", "k.csv", "-t", "ir"]);
+    assert_eq!(hits(&report)[0]["name"], "compound k");
+    let out = lab.ok(&["check"]);
+    assert!(out.contains("vector cache for ir rebuilt"), "{out}");
+    assert!(std::fs::metadata(&cache).unwrap().len() > 512);
+}

@@ -1,0 +1,666 @@
+//! Ranking unknowns against a vector cache, with the same result as scoring every candidate.
+//!
+//! Three stages, each giving an upper bound on a row's combined score that is at least as
+//! tight as the one before:
+//!
+//! 1. **Scan** (all rows, parallel, each worker with its own top-M selection). Dense
+//!    techniques: the i8 dot product of query and row, plus a bound on the quantisation error
+//!    (`|q.x - q'.x'| <= |q|_1 s_x / 2 + s_q |x'|_1 / 2`), with peak overlap counted as 1.
+//!    EI-MS: the weighted dot product F_D over the row's peaks and the count of shared m/z,
+//!    which bound the composite (the ratio term is at most 1) and the peak Jaccard.
+//! 2. **Rescore** (the best M, or every row whose bound can still reach the top): the f32
+//!    dot product (Pearson r or cosine, see `file`) or the composite from the cached peaks,
+//!    and the peak overlap with a slightly wider tolerance, plus a margin for f32 rounding.
+//! 3. **Exact** (in bound order): the stored prepared spectra of just those rows are loaded
+//!    and scored with `score::score`, until the next bound is below the K-th exact score.
+//!
+//! Rows outside the first top-M are bounded by the smallest key kept; when that bound could
+//! still reach the top-K, every row whose key reaches it is rescored. So the hit list is the
+//! exact one, not an approximation.
+
+use std::collections::{HashMap, HashSet};
+
+use rayon::prelude::*;
+
+use super::file::{active_bins, dense_row, quantise, weights};
+use super::kernels::{TopK, dot_f32, i8_dots};
+use super::{Kind, VectorCache, get, kind_for};
+use crate::error::Result;
+use crate::library::{Library, Status};
+use crate::prepare::Prepared;
+use crate::score::{Scores, peak_overlap, score, stein_scott};
+use crate::search::{Ranking, Request};
+
+/// Rows per parallel task (a multiple of 64, so tasks own whole mask words).
+const CHUNK: usize = 4096;
+/// Rows kept by the first scan for rescoring.
+const RESCORE: usize = 256;
+/// Added to f32 estimates so that rounding never makes a bound too low.
+const MARGIN: f64 = 1e-4;
+
+/// One unknown made ready for the scan.
+struct Query<'a> {
+    unknown: &'a Prepared,
+    dense: Vec<f32>,
+    l1: f32,
+    // Sparse: weight by nominal m/z, presence of any unknown peak by m/z.
+    weights: Vec<f32>,
+    present: Vec<bool>,
+    positive: usize,
+    xs: Vec<f64>,
+}
+
+/// Ranks unknowns through the technique's vector cache. `None` when the request is one the
+/// cache does not serve (another measure, reverse search, withdrawn spectra, non-default
+/// composite exponents, or peak positions that are not nominal m/z); the caller then scores
+/// every candidate.
+pub fn rank(
+    library: &Library,
+    unknowns: &[Prepared],
+    request: &Request,
+) -> Result<Option<Vec<Ranking>>> {
+    let Some(kind) = kind_for(request.technique, request.params.measure) else {
+        return Ok(None);
+    };
+    if request.statuses.contains(&Status::Withdrawn)
+        || request.params.min_mz.is_some()
+        || unknowns.iter().any(|u| u.technique != request.technique)
+    {
+        return Ok(None);
+    }
+    let grid = library.recipe(request.technique)?.grid.clone();
+    if kind == Kind::Sparse {
+        let c = &request.params.composite;
+        let d = crate::score::CompositeParams::default();
+        if c.reverse
+            || c.intensity_exponent != d.intensity_exponent
+            || c.mass_exponent != d.mass_exponent
+            || unknowns.iter().any(|u| {
+                u.peaks
+                    .iter()
+                    .any(|p| p.x.fract() != 0.0 || !(0.0..65536.0).contains(&p.x))
+            })
+        {
+            return Ok(None);
+        }
+    } else if unknowns.iter().any(|u| u.vector.len() != grid.len()) {
+        return Ok(None);
+    }
+    let (cache, _) = get(library, request.technique, kind)?;
+    if kind == Kind::Sparse && !cache.integer_x {
+        return Ok(None);
+    }
+
+    let allowed: Option<HashSet<i64>> = match &request.filter {
+        Some(q) => Some(library.text().matching_ids(q)?),
+        None => None,
+    };
+    let (mask, compared) = row_mask(&cache, &request.statuses, allowed.as_ref());
+    let active = active_bins(&grid);
+    let queries: Vec<Query<'_>> = unknowns
+        .iter()
+        .map(|u| make_query(u, &cache, &active))
+        .collect();
+    let w = request.params.spectral_weight.clamp(0.0, 1.0);
+    let m = RESCORE.max(4 * request.top);
+    let heaps = first_scan(&cache, &queries, &mask, m, w, request);
+
+    let mut out = Vec::with_capacity(unknowns.len());
+    for (q, heap) in queries.iter().zip(heaps) {
+        let mut exact = Exact::new(library, q.unknown, &grid, request);
+        let (scored, kth) = finish(&cache, q, &heap.rows(), w, request, &mut exact)?;
+        // Rows the first scan left out have keys at most the smallest kept one.
+        let scored = match (heap.full(), heap.min()) {
+            (true, Some(min)) if f64::from(min) >= kth => {
+                let rows = rows_reaching(&cache, q, &mask, kth, w, request);
+                finish(&cache, q, &rows, w, request, &mut exact)?.0
+            }
+            _ => scored,
+        };
+        out.push(Ranking { scored, compared });
+    }
+    Ok(Some(out))
+}
+
+/// The rows a request may return: status wanted and, with a metadata query, id in its set.
+/// Built from the id set by binary search over the (ascending) ids: no lookup per row.
+fn row_mask(
+    cache: &VectorCache,
+    statuses: &[Status],
+    allowed: Option<&HashSet<i64>>,
+) -> (Vec<u64>, usize) {
+    let n = cache.rows();
+    let want = |s: u8| {
+        if s == 1 {
+            statuses.contains(&Status::Verified)
+        } else {
+            statuses.contains(&Status::Pending)
+        }
+    };
+    let status = cache.status();
+    let mut mask = vec![0u64; n.div_ceil(64)];
+    match allowed {
+        Some(set) => {
+            let ids = cache.ids();
+            for id in set {
+                if let Ok(r) = ids.binary_search(id)
+                    && want(status[r])
+                {
+                    mask[r / 64] |= 1 << (r % 64);
+                }
+            }
+        }
+        None => {
+            for (r, &s) in status.iter().enumerate() {
+                if want(s) {
+                    mask[r / 64] |= 1 << (r % 64);
+                }
+            }
+        }
+    }
+    let count = mask.iter().map(|w| w.count_ones() as usize).sum();
+    (mask, count)
+}
+
+fn make_query<'a>(unknown: &'a Prepared, cache: &VectorCache, active: &[bool]) -> Query<'a> {
+    let mut q = Query {
+        unknown,
+        dense: vec![],
+        l1: 0.0,
+        weights: vec![],
+        present: vec![],
+        positive: 0,
+        xs: unknown.peaks.iter().map(|p| p.x).collect(),
+    };
+    if cache.kind == Kind::Sparse {
+        q.weights = vec![0.0; 65536];
+        q.present = vec![false; 65536];
+        let w = weights(&unknown.peaks, &cache.composite);
+        for (p, w) in unknown.peaks.iter().zip(w) {
+            let bin = p.x as usize;
+            q.present[bin] = true;
+            q.weights[bin] = w;
+        }
+        q.positive = unknown.peaks.iter().filter(|p| p.height > 0.0).count();
+    } else {
+        let mut row = dense_row(&unknown.vector, cache.kind, active);
+        row.resize(cache.stride(), 0.0);
+        q.l1 = row.iter().map(|a| a.abs()).sum();
+        q.dense = row;
+    }
+    q
+}
+
+/// The combined-score bound of the first scan for a dense row, from its i8 dot product.
+#[inline]
+fn dense_key(cache: &VectorCache, qscale: f32, ql1: f32, row: usize, idot: i32, w: f64) -> f32 {
+    let sx = cache.scales()[row];
+    let est = qscale * sx * idot as f32;
+    let err = 0.5 * ql1 * sx + 0.5 * qscale * cache.l1()[row] + 1e-5;
+    let r = f64::from(est + err).clamp(0.0, 1.0);
+    (w * r + (1.0 - w)) as f32
+}
+
+/// The combined-score bound of the first scan for a sparse (EI-MS) row.
+#[inline]
+fn sparse_key(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, tolerance: f64) -> f32 {
+    let range = cache.peak_range(row);
+    let (bins, ws) = (
+        &cache.peak_bin()[range.clone()],
+        &cache.peak_w()[range.clone()],
+    );
+    let (mut dot, mut common) = (0f32, 0usize);
+    for (&b, &x) in bins.iter().zip(ws) {
+        dot += q.weights[usize::from(b)] * x;
+        common += usize::from(q.present[usize::from(b)]);
+    }
+    let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
+    let (nu, nc) = (q.positive as f64, common as f64);
+    let composite = if nu + nc > 0.0 {
+        ((nu * fd + nc) / (nu + nc)).min(1.0)
+    } else {
+        fd
+    };
+    let jaccard = if tolerance < 1.0 {
+        let den = q.xs.len() + range.len() - common.min(q.xs.len() + range.len());
+        if den == 0 {
+            0.0
+        } else {
+            (nc / den as f64).min(1.0)
+        }
+    } else {
+        1.0
+    };
+    (w * composite + (1.0 - w) * jaccard) as f32
+}
+
+/// The first scan: for every unknown, the `m` rows with the largest bounds.
+fn first_scan(
+    cache: &VectorCache,
+    queries: &[Query<'_>],
+    mask: &[u64],
+    m: usize,
+    w: f64,
+    request: &Request,
+) -> Vec<TopK> {
+    let n = cache.rows();
+    let nq = queries.len();
+    let chunks = n.div_ceil(CHUNK);
+    let quantised: Vec<(Vec<i8>, f32)> = queries
+        .iter()
+        .map(|q| {
+            let (v, s, _) = quantise(&q.dense);
+            (v, s)
+        })
+        .collect();
+    let qmatrix: Vec<i8> = quantised
+        .iter()
+        .flat_map(|(v, _)| v.iter().copied())
+        .collect();
+    let tol = request.params.peak_tolerance;
+    (0..chunks)
+        .into_par_iter()
+        .fold(
+            || vec![TopK::new(m); nq],
+            |mut heaps, c| {
+                let (r0, r1) = (c * CHUNK, ((c + 1) * CHUNK).min(n));
+                let words = &mask[r0 / 64..r1.div_ceil(64)];
+                if words.iter().all(|&w| w == 0) {
+                    return heaps;
+                }
+                let on = |r: usize| mask[r / 64] >> (r % 64) & 1 == 1;
+                if cache.kind == Kind::Sparse {
+                    for r in (r0..r1).filter(|&r| on(r)) {
+                        for (q, heap) in queries.iter().zip(heaps.iter_mut()) {
+                            heap.push(sparse_key(cache, q, r, w, tol), r);
+                        }
+                    }
+                } else {
+                    let s = cache.stride();
+                    let rows = &cache.i8_matrix()[r0 * s..r1 * s];
+                    let mut dots = vec![0i32; (r1 - r0) * nq];
+                    i8_dots(rows, s, &qmatrix, &mut dots);
+                    for r in (r0..r1).filter(|&r| on(r)) {
+                        for (j, heap) in heaps.iter_mut().enumerate() {
+                            let (q, (_, qs)) = (&queries[j], &quantised[j]);
+                            let key = dense_key(cache, *qs, q.l1, r, dots[(r - r0) * nq + j], w);
+                            heap.push(key, r);
+                        }
+                    }
+                }
+                heaps
+            },
+        )
+        .reduce(
+            || vec![TopK::new(m); nq],
+            |a, b| a.into_iter().zip(b).map(|(x, y)| x.merge(y)).collect(),
+        )
+}
+
+/// Every allowed row whose first-scan bound reaches `threshold`.
+fn rows_reaching(
+    cache: &VectorCache,
+    q: &Query<'_>,
+    mask: &[u64],
+    threshold: f64,
+    w: f64,
+    request: &Request,
+) -> Vec<usize> {
+    let n = cache.rows();
+    let (qv, qs, _) = quantise(&q.dense);
+    let tol = request.params.peak_tolerance;
+    (0..n.div_ceil(CHUNK))
+        .into_par_iter()
+        .flat_map_iter(|c| {
+            let (r0, r1) = (c * CHUNK, ((c + 1) * CHUNK).min(n));
+            let on = |r: usize| mask[r / 64] >> (r % 64) & 1 == 1;
+            let keys: Vec<(usize, f32)> = if cache.kind == Kind::Sparse {
+                (r0..r1)
+                    .filter(|&r| on(r))
+                    .map(|r| (r, sparse_key(cache, q, r, w, tol)))
+                    .collect()
+            } else {
+                let s = cache.stride();
+                let mut dots = vec![0i32; r1 - r0];
+                i8_dots(&cache.i8_matrix()[r0 * s..r1 * s], s, &qv, &mut dots);
+                (r0..r1)
+                    .filter(|&r| on(r))
+                    .map(|r| (r, dense_key(cache, qs, q.l1, r, dots[r - r0], w)))
+                    .collect()
+            };
+            keys.into_iter()
+                .filter(move |&(_, k)| f64::from(k) >= threshold)
+                .map(|(r, _)| r)
+        })
+        .collect()
+}
+
+/// The second-stage bound of one row: f32 measure from the cache plus a rounding margin, and
+/// the peak Jaccard with a slightly wider tolerance (a larger tolerance never matches fewer).
+fn rescore_bound(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, request: &Request) -> f64 {
+    let range = cache.peak_range(row);
+    let tol = request.params.peak_tolerance;
+    let xs: Vec<f64> = cache.peak_x()[range.clone()]
+        .iter()
+        .map(|&x| f64::from(x))
+        .collect();
+    let spectral = if cache.kind == Kind::Sparse {
+        let r: Vec<(f64, f64)> = xs
+            .iter()
+            .zip(&cache.peak_h()[range])
+            .map(|(&x, &h)| (x, f64::from(h)))
+            .collect();
+        let u: Vec<(f64, f64)> = q.unknown.peaks.iter().map(|p| (p.x, p.height)).collect();
+        stein_scott(&u, &r, &request.params.composite).composite
+    } else {
+        let s = cache.stride();
+        f64::from(dot_f32(
+            &q.dense,
+            &cache.f32_matrix()[row * s..(row + 1) * s],
+        ))
+    };
+    let spectral = (spectral + MARGIN).clamp(0.0, 1.0);
+    let jaccard = peak_overlap(&q.xs, &xs, tol + 1e-3 + tol * 1e-6).jaccard;
+    w * spectral + (1.0 - w) * jaccard + 1e-6
+}
+
+/// Exact hits: `(combined score, spectrum id, scores)`, best first.
+type Scored = Vec<(f64, i64, Scores)>;
+
+/// Exact scores, loaded and computed once per row.
+struct Exact<'a> {
+    library: &'a Library,
+    unknown: &'a Prepared,
+    grid: &'a crate::technique::Grid,
+    request: &'a Request,
+    done: HashMap<usize, Scores>,
+}
+
+impl<'a> Exact<'a> {
+    fn new(
+        library: &'a Library,
+        unknown: &'a Prepared,
+        grid: &'a crate::technique::Grid,
+        request: &'a Request,
+    ) -> Exact<'a> {
+        Exact {
+            library,
+            unknown,
+            grid,
+            request,
+            done: HashMap::new(),
+        }
+    }
+
+    fn score(&mut self, cache: &VectorCache, row: usize) -> Result<Scores> {
+        if let Some(s) = self.done.get(&row) {
+            return Ok(s.clone());
+        }
+        let reference = self.library.prepared(cache.ids()[row])?;
+        let s = score(self.unknown, &reference, self.grid, &self.request.params);
+        self.done.insert(row, s.clone());
+        Ok(s)
+    }
+}
+
+/// Rescoring and exact scoring of candidate rows: the top-K, best first (ties by id), and the
+/// K-th exact score (minus infinity with fewer than K).
+fn finish(
+    cache: &VectorCache,
+    q: &Query<'_>,
+    rows: &[usize],
+    w: f64,
+    request: &Request,
+    exact: &mut Exact<'_>,
+) -> Result<(Scored, f64)> {
+    let mut bounds: Vec<(f64, usize)> = rows
+        .par_iter()
+        .map(|&r| (rescore_bound(cache, q, r, w, request), r))
+        .collect();
+    bounds.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+    let k = request.top;
+    let mut top: Vec<(f64, i64, Scores)> = Vec::with_capacity(k + 1);
+    let kth = |top: &Vec<(f64, i64, Scores)>| {
+        if top.len() < k {
+            f64::NEG_INFINITY
+        } else {
+            top[k - 1].0
+        }
+    };
+    for (bound, row) in bounds {
+        if bound < kth(&top) {
+            break;
+        }
+        let s = exact.score(cache, row)?;
+        top.push((s.combined, cache.ids()[row], s));
+        top.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+        top.truncate(k);
+    }
+    let kth = kth(&top);
+    Ok((top, kth))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::synthetic::{Rng, ir_points, ms_points, perturb, staged};
+    use super::*;
+    use crate::library::Decision;
+    use crate::search::{search, search_exact, search_many};
+    use crate::technique::Technique;
+
+    /// An in-memory library of `n` random spectra of a technique, every third one verified,
+    /// every other one tagged `even`; returns the library and the raw points.
+    fn random_library(
+        technique: Technique,
+        n: usize,
+        seed: u64,
+    ) -> (Library, Vec<Vec<(f64, f64)>>) {
+        let mut lib = Library::in_memory("t").unwrap();
+        let mut rng = Rng::new(seed);
+        let mut all = Vec::new();
+        let mut batch = Vec::new();
+        for i in 0..n {
+            let pts = match technique {
+                Technique::MsEi => ms_points(&mut rng),
+                _ => ir_points(&mut rng),
+            };
+            let tags: &[&str] = if i % 2 == 0 { &["even"] } else { &["odd"] };
+            batch.push(
+                staged(
+                    lib.recipes(),
+                    technique,
+                    pts.clone(),
+                    &format!("c{i}"),
+                    tags,
+                )
+                .unwrap(),
+            );
+            all.push(pts);
+        }
+        for r in lib.store(&batch, "t", false).unwrap() {
+            r.unwrap();
+        }
+        let ids: Vec<i64> = (1..=n as i64).filter(|i| i % 3 == 0).collect();
+        lib.review_many(&ids, "second", Decision::Approve, None, None)
+            .unwrap();
+        (lib, all)
+    }
+
+    fn unknown(lib: &Library, technique: Technique, pts: Vec<(f64, f64)>) -> Prepared {
+        staged(lib.recipes(), technique, pts, "u", &[])
+            .unwrap()
+            .prepared
+    }
+
+    fn same(fast: &crate::search::HitList, exact: &crate::search::HitList) {
+        let ids =
+            |h: &crate::search::HitList| h.hits.iter().map(|h| h.spectrum_id).collect::<Vec<_>>();
+        assert_eq!(ids(fast), ids(exact));
+        for (a, b) in fast.hits.iter().zip(&exact.hits) {
+            assert_eq!(a.score, b.score);
+            assert_eq!(a.components, b.components);
+        }
+        assert_eq!(fast.candidates, exact.candidates);
+    }
+
+    fn check_equivalence(technique: Technique, seed: u64) {
+        let (lib, refs) = random_library(technique, 400, seed);
+        let mut rng = Rng::new(seed ^ 0xABCD);
+        let mut unknowns = Vec::new();
+        for k in 0..6 {
+            // Noisy copies of library spectra and spectra unlike any in the library.
+            let pts = if k % 2 == 0 {
+                perturb(&refs[(rng.next_u64() % 400) as usize], &mut rng, 0.2)
+            } else if technique == Technique::MsEi {
+                ms_points(&mut rng)
+            } else {
+                ir_points(&mut rng)
+            };
+            unknowns.push(unknown(&lib, technique, pts));
+        }
+        let mut requests = Vec::new();
+        for (pending, filter, top) in [
+            (false, None, 10),
+            (true, None, 10),
+            (true, Some("tag:even"), 10),
+            (true, None, 1),
+            (true, None, 50),
+        ] {
+            let mut r = Request::new(technique);
+            if pending {
+                r.statuses.push(Status::Pending);
+            }
+            r.filter = filter.map(str::to_string);
+            r.top = top;
+            requests.push(r);
+        }
+        for r in &requests {
+            assert!(
+                rank(&lib, &unknowns[..1], r).unwrap().is_some(),
+                "the cache serves {technique}"
+            );
+            let batch = search_many(&lib, &unknowns, r).unwrap();
+            for (u, b) in unknowns.iter().zip(&batch) {
+                let exact = search_exact(&lib, u, r).unwrap();
+                same(&search(&lib, u, r).unwrap(), &exact);
+                same(b, &exact);
+            }
+        }
+    }
+
+    #[test]
+    fn ir_fast_path_gives_the_exact_hits() {
+        for seed in [1, 2] {
+            check_equivalence(Technique::Ir, seed);
+        }
+    }
+
+    #[test]
+    fn ms_fast_path_gives_the_exact_hits() {
+        for seed in [3, 4] {
+            check_equivalence(Technique::MsEi, seed);
+        }
+    }
+
+    #[test]
+    fn the_filter_mask_follows_the_text_index() {
+        let (lib, refs) = random_library(Technique::Ir, 120, 9);
+        let mut r = Request::new(Technique::Ir);
+        r.statuses.push(Status::Pending);
+        r.filter = Some("tag:odd".into());
+        let u = unknown(&lib, Technique::Ir, refs[4].clone());
+        let list = search(&lib, &u, &r).unwrap();
+        assert_eq!(list.candidates, 60);
+        assert!(
+            list.hits.iter().all(|h| h.spectrum_id % 2 == 0),
+            "odd-numbered spectra have even ids"
+        );
+        assert_ne!(list.hits[0].spectrum_id, 5, "spectrum 5 is tagged even");
+    }
+
+    #[test]
+    fn every_change_of_the_searchable_content_rebuilds_the_cache() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut lib = Library::init(&dir.path().join("lib"), "t").unwrap();
+        let mut rng = Rng::new(5);
+        let refs: Vec<Vec<(f64, f64)>> = (0..30).map(|_| ir_points(&mut rng)).collect();
+        let batch: Vec<_> = refs
+            .iter()
+            .enumerate()
+            .map(|(i, p)| {
+                staged(
+                    lib.recipes(),
+                    Technique::Ir,
+                    p.clone(),
+                    &format!("c{i}"),
+                    &[],
+                )
+                .unwrap()
+            })
+            .collect();
+        lib.store(&batch, "t", false).unwrap();
+        let mut r = Request::new(Technique::Ir);
+        r.statuses.push(Status::Pending);
+        let u = unknown(&lib, Technique::Ir, refs[7].clone());
+        let first = search(&lib, &u, &r).unwrap();
+        assert_eq!(first.hits[0].spectrum_id, 8);
+        let file = dir.path().join("lib/cache/ir.corr.wvc");
+        assert!(file.is_file(), "the search wrote the cache");
+        let (_, origin) = get(&lib, Technique::Ir, Kind::Centred).unwrap();
+        assert_eq!(origin, super::super::Origin::Fresh);
+
+        // Withdraw the best hit: the next search must not see it.
+        lib.withdraw(8, "t", "contaminated").unwrap();
+        let (c, origin) = get(&lib, Technique::Ir, Kind::Centred).unwrap();
+        assert_eq!(origin, super::super::Origin::Rebuilt);
+        assert_eq!(c.rows(), 29);
+        let after = search(&lib, &u, &r).unwrap();
+        assert!(after.hits.iter().all(|h| h.spectrum_id != 8));
+        same(&after, &search_exact(&lib, &u, &r).unwrap());
+
+        // A review changes what is searched by default; an add changes the rows.
+        lib.review(3, "second", Decision::Approve, None, None)
+            .unwrap();
+        assert_eq!(
+            get(&lib, Technique::Ir, Kind::Centred).unwrap().1,
+            super::super::Origin::Rebuilt
+        );
+        let verified = search(&lib, &u, &Request::new(Technique::Ir)).unwrap();
+        assert_eq!(verified.candidates, 1);
+        let again = perturb(&refs[7], &mut rng, 0.01);
+        let extra = staged(lib.recipes(), Technique::Ir, again, "again", &["x"]).unwrap();
+        let stored = lib.store(&[extra], "t", false).unwrap();
+        assert!(matches!(
+            stored[0],
+            Ok(crate::library::Outcome::Added {
+                spectrum_id: 31,
+                ..
+            })
+        ));
+        let again = search(&lib, &u, &r).unwrap();
+        assert_eq!(again.hits[0].spectrum_id, 31);
+
+        // Another process (a fresh open) sees the file is current and maps it.
+        drop(lib);
+        let lib = Library::open(&dir.path().join("lib")).unwrap();
+        assert_eq!(
+            get(&lib, Technique::Ir, Kind::Centred).unwrap().1,
+            super::super::Origin::Fresh
+        );
+
+        // A damaged file is rebuilt, never served.
+        drop(lib);
+        std::fs::write(&file, b"not a cache").unwrap();
+        let lib = Library::open(&dir.path().join("lib")).unwrap();
+        assert_eq!(
+            get(&lib, Technique::Ir, Kind::Centred).unwrap().1,
+            super::super::Origin::Rebuilt
+        );
+        // Deleting the folder loses nothing.
+        std::fs::remove_dir_all(dir.path().join("lib/cache")).unwrap();
+        same(
+            &search(&lib, &u, &r).unwrap(),
+            &search_exact(&lib, &u, &r).unwrap(),
+        );
+    }
+}

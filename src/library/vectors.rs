@@ -1,0 +1,114 @@
+//! Bulk reads for derived data: the prepared vectors of one technique in one read
+//! transaction, so that a vector cache built from them matches one fingerprint exactly.
+
+use crate::error::Result;
+use crate::library::Library;
+use crate::library::records::f32_from_bytes;
+use crate::library::{Status, fingerprint};
+use crate::prepare::Peak;
+use crate::technique::Technique;
+
+/// The state of the searchable content a bulk read saw.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Snapshot {
+    /// The library fingerprint.
+    pub fingerprint: String,
+    /// The generation counter.
+    pub generation: i64,
+}
+
+/// One searchable spectrum as a bulk read hands it over.
+pub struct VectorRow {
+    /// Spectrum id (rows come in ascending id order).
+    pub spectrum_id: i64,
+    /// Review status (never withdrawn).
+    pub status: Status,
+    /// The prepared vector.
+    pub vector: Vec<f32>,
+    /// The picked peaks.
+    pub peaks: Vec<Peak>,
+}
+
+impl Library {
+    /// The fingerprint and generation, read together.
+    pub fn snapshot(&self) -> Result<Snapshot> {
+        Ok(Snapshot {
+            fingerprint: self.fingerprint()?,
+            generation: self.generation()?,
+        })
+    }
+
+    /// Streams every searchable (not withdrawn) spectrum of a technique in ascending id order
+    /// to `row`, after telling `start` how many there are, all inside one read transaction:
+    /// the count, the rows and the returned [`Snapshot`] describe the same state even while
+    /// another process writes.
+    pub fn scan_vectors(
+        &self,
+        technique: Technique,
+        start: &mut dyn FnMut(usize) -> Result<()>,
+        row: &mut dyn FnMut(VectorRow) -> Result<()>,
+    ) -> Result<Snapshot> {
+        let tx = self.conn.unchecked_transaction()?;
+        let sum: String = tx.query_row(
+            "SELECT value FROM setting WHERE key = 'content_sum'",
+            [],
+            |r| r.get(0),
+        )?;
+        let generation: String = tx.query_row(
+            "SELECT value FROM setting WHERE key = 'generation'",
+            [],
+            |r| r.get(0),
+        )?;
+        let snapshot = Snapshot {
+            fingerprint: fingerprint(
+                &serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?,
+                crate::library::ContentSum::from_hex(&sum).unwrap_or_default(),
+            ),
+            generation: generation.parse().unwrap_or(0),
+        };
+        let n: i64 = tx.query_row(
+            "SELECT count(*) FROM spectrum WHERE technique = ?1 AND status != 'withdrawn'",
+            [technique.name()],
+            |r| r.get(0),
+        )?;
+        start(n as usize)?;
+        let mut stmt = tx.prepare(
+            "SELECT s.id, s.status, p.vector, p.peaks FROM spectrum s
+             JOIN prepared p ON p.spectrum_id = s.id
+             WHERE s.technique = ?1 AND s.status != 'withdrawn' ORDER BY s.id",
+        )?;
+        let mut rows = stmt.query([technique.name()])?;
+        while let Some(r) = rows.next()? {
+            let status: String = r.get(1)?;
+            let vector = r.get_ref(2)?.as_blob().map_err(rusqlite::Error::from)?;
+            let peaks = r.get_ref(3)?.as_str().map_err(rusqlite::Error::from)?;
+            row(VectorRow {
+                spectrum_id: r.get(0)?,
+                status: status.parse()?,
+                vector: f32_from_bytes(vector),
+                peaks: serde_json::from_str(peaks)?,
+            })?;
+        }
+        drop(rows);
+        drop(stmt);
+        tx.finish()?;
+        Ok(snapshot)
+    }
+
+    /// How many searchable spectra of a technique there are, and how many peaks they have.
+    pub fn vector_counts(&self, technique: Technique) -> Result<(usize, usize)> {
+        let (n, peaks): (i64, i64) = self.conn.query_row(
+            "SELECT count(*), coalesce(sum(json_array_length(p.peaks)), 0) FROM spectrum s
+             JOIN prepared p ON p.spectrum_id = s.id
+             WHERE s.technique = ?1 AND s.status != 'withdrawn'",
+            [technique.name()],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )?;
+        Ok((n as usize, peaks as usize))
+    }
+
+    /// The stored prepared forms of several spectra, in the order asked.
+    pub fn prepared_many(&self, ids: &[i64]) -> Result<Vec<crate::prepare::Prepared>> {
+        ids.iter().map(|&id| self.prepared(id)).collect()
+    }
+}
