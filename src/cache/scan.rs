@@ -193,12 +193,26 @@ fn make_query<'a>(unknown: &'a Prepared, cache: &VectorCache, active: &[bool]) -
 
 /// The combined-score bound of the first scan for a dense row, from its i8 dot product.
 #[inline]
-fn dense_key(cache: &VectorCache, qscale: f32, ql1: f32, row: usize, idot: i32, w: f64) -> f32 {
-    let sx = cache.scales()[row];
+fn dense_key(
+    cache: &VectorCache,
+    q: &Query<'_>,
+    qscale: f32,
+    row: usize,
+    idot: i32,
+    w: f64,
+) -> f32 {
+    let (ql1, sx) = (q.l1, cache.scales()[row]);
     let est = qscale * sx * idot as f32;
     let err = 0.5 * ql1 * sx + 0.5 * qscale * cache.l1()[row] + 1e-5;
     let r = f64::from(est + err).clamp(0.0, 1.0);
-    (w * r + (1.0 - w)) as f32
+    // At most min(nu, nr) peaks match, so the Jaccard is at most min / max.
+    let (nu, nr) = (q.xs.len(), cache.peak_range(row).len());
+    let jaccard = if nu.max(nr) == 0 {
+        0.0
+    } else {
+        nu.min(nr) as f64 / nu.max(nr) as f64
+    };
+    (w * r + (1.0 - w) * jaccard + 1e-6) as f32
 }
 
 /// The combined-score bound of the first scan for a sparse (EI-MS) row.
@@ -283,7 +297,7 @@ fn first_scan(
                     for r in (r0..r1).filter(|&r| on(r)) {
                         for (j, heap) in heaps.iter_mut().enumerate() {
                             let (q, (_, qs)) = (&queries[j], &quantised[j]);
-                            let key = dense_key(cache, *qs, q.l1, r, dots[(r - r0) * nq + j], w);
+                            let key = dense_key(cache, q, *qs, r, dots[(r - r0) * nq + j], w);
                             heap.push(key, r);
                         }
                     }
@@ -325,7 +339,7 @@ fn rows_reaching(
                 i8_dots(&cache.i8_matrix()[r0 * s..r1 * s], s, &qv, &mut dots);
                 (r0..r1)
                     .filter(|&r| on(r))
-                    .map(|r| (r, dense_key(cache, qs, q.l1, r, dots[r - r0], w)))
+                    .map(|r| (r, dense_key(cache, q, qs, r, dots[r - r0], w)))
                     .collect()
             };
             keys.into_iter()

@@ -290,35 +290,36 @@ pub fn search_many(
 ) -> Result<Vec<HitList>> {
     request.params.validate(request.technique)?;
     request.constraints.validate()?;
-    if request.constraints.is_empty() && !request.explain {
-        if let Some(rankings) = crate::cache::rank(library, unknowns, request)? {
-            let searched: i64 = request
-                .statuses
-                .iter()
-                .map(|&s| library.count(request.technique, s))
-                .sum::<Result<i64>>()?;
-            return rankings
-                .into_iter()
-                .map(|r| {
-                    let excluded_count = (searched as usize).saturating_sub(r.compared);
-                    let mut hits = Vec::with_capacity(r.scored.len());
-                    let ids: Vec<i64> = r.scored.iter().map(|s| s.1).collect();
-                    for ((combined, _, components), rec) in
-                        r.scored.into_iter().zip(library.records(&ids)?)
-                    {
-                        hits.push(make_hit(hits.len() + 1, combined, components, rec, request));
-                    }
-                    finish(
-                        library,
-                        request,
-                        hits,
-                        r.compared,
-                        excluded_count,
-                        Vec::new(),
-                    )
-                })
-                .collect();
-        }
+    if request.constraints.is_empty()
+        && !request.explain
+        && let Some(rankings) = crate::cache::rank(library, unknowns, request)?
+    {
+        let searched: i64 = request
+            .statuses
+            .iter()
+            .map(|&s| library.count(request.technique, s))
+            .sum::<Result<i64>>()?;
+        return rankings
+            .into_iter()
+            .map(|r| {
+                let excluded_count = (searched as usize).saturating_sub(r.compared);
+                let mut hits = Vec::with_capacity(r.scored.len());
+                let ids: Vec<i64> = r.scored.iter().map(|s| s.1).collect();
+                for ((combined, _, components), rec) in
+                    r.scored.into_iter().zip(library.records(&ids)?)
+                {
+                    hits.push(make_hit(hits.len() + 1, combined, components, rec, request));
+                }
+                finish(
+                    library,
+                    request,
+                    hits,
+                    r.compared,
+                    excluded_count,
+                    Vec::new(),
+                )
+            })
+            .collect();
     }
     unknowns
         .iter()

@@ -1,0 +1,104 @@
+//! Times the phases of a search inside one process, for `scripts/bench`.
+//!
+//! ```text
+//! cargo run --release --example bench_query -- LIBRARY ir|ms-ei UNKNOWNS_DIR REPEATS [--exact]
+//! ```
+//! Prints one JSON object of medians in milliseconds: open, fingerprint, cache (map or
+//! build), prepare, search (warm, one unknown), rank (scan and rescoring without the hit
+//! list's metadata), batch (all unknowns together), and with `--exact` the exact search.
+
+use std::path::PathBuf;
+use std::time::Instant;
+
+use whorl::library::{Library, Status, read_and_prepare};
+use whorl::search::{Request, search, search_exact, search_many};
+use whorl::technique::Technique;
+
+fn ms(t: Instant) -> f64 {
+    t.elapsed().as_secs_f64() * 1e3
+}
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+fn main() -> anyhow::Result<()> {
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    let root = PathBuf::from(&args[0]);
+    let t: Technique = args[1].parse()?;
+    let dir = PathBuf::from(&args[2]);
+    let repeats: usize = args[3].parse()?;
+    let exact = args.iter().any(|a| a == "--exact");
+
+    let t0 = Instant::now();
+    let lib = Library::open(&root)?;
+    let open = ms(t0);
+    let t0 = Instant::now();
+    lib.fingerprint()?;
+    let fingerprint = ms(t0);
+    let kind = whorl::cache::kind_for(t, whorl::score::Measure::default_for(t)).expect("kind");
+    let t0 = Instant::now();
+    let (cache, origin) = whorl::cache::get(&lib, t, kind)?;
+    let cache_ms = ms(t0);
+
+    let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)?
+        .map(|e| e.map(|e| e.path()))
+        .collect::<Result<_, _>>()?;
+    files.sort();
+    let recipe = lib.recipe(t)?.clone();
+    let t0 = Instant::now();
+    let unknowns: Vec<_> = files
+        .iter()
+        .map(|f| read_and_prepare(f, &recipe, None, None, None).map(|(_, p)| p))
+        .collect::<whorl::Result<_>>()?;
+    let prepare = ms(t0) / files.len() as f64;
+
+    let mut request = Request::new(t);
+    request.statuses.push(Status::Pending);
+    let mut warm = Vec::new();
+    let mut rank = Vec::new();
+    let mut top = Vec::new();
+    for i in 0..repeats {
+        let u = &unknowns[i % unknowns.len()];
+        let t0 = Instant::now();
+        let hits = search(&lib, u, &request)?;
+        warm.push(ms(t0));
+        top.push(hits.hits.first().map(|h| h.spectrum_id).unwrap_or(0));
+        let t0 = Instant::now();
+        whorl::cache::rank(&lib, std::slice::from_ref(u), &request)?;
+        rank.push(ms(t0));
+    }
+    let t0 = Instant::now();
+    let lists = search_many(&lib, &unknowns, &request)?;
+    let batch = ms(t0);
+    let mut exact_ms = None;
+    let mut same = None;
+    if exact {
+        let t0 = Instant::now();
+        let e = search_exact(&lib, &unknowns[0], &request)?;
+        exact_ms = Some(ms(t0));
+        let ids =
+            |l: &whorl::search::HitList| l.hits.iter().map(|h| h.spectrum_id).collect::<Vec<_>>();
+        same = Some(ids(&e) == ids(&lists[0]));
+    }
+    let json = serde_json::json!({
+        "rows": cache.rows(),
+        "cache_bytes": cache.bytes(),
+        "i8_bytes": cache.rows() * cache.stride(),
+        "cache_origin": format!("{origin:?}"),
+        "open_ms": open,
+        "fingerprint_ms": fingerprint,
+        "cache_ms": cache_ms,
+        "prepare_ms": prepare,
+        "search_ms": median(warm),
+        "rank_ms": median(rank),
+        "batch_ms": batch,
+        "batch_unknowns": unknowns.len(),
+        "exact_ms": exact_ms,
+        "exact_top10_same": same,
+        "top_hits": top,
+    });
+    println!("{json}");
+    Ok(())
+}
