@@ -102,7 +102,10 @@ pub fn rank(
         .map(|u| make_query(u, &cache, &active))
         .collect();
     let w = request.params.spectral_weight.clamp(0.0, 1.0);
-    let m = RESCORE.max(4 * request.top);
+    // `top` may be "all" (usize::MAX, as `identify` asks): never more than the rows.
+    let m = RESCORE
+        .max(request.top.saturating_mul(4))
+        .min(cache.rows().max(1));
     let heaps = first_scan(&cache, &queries, &mask, m, w, request);
 
     let mut out = Vec::with_capacity(unknowns.len());

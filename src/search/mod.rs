@@ -290,8 +290,11 @@ pub fn search_many(
 ) -> Result<Vec<HitList>> {
     request.params.validate(request.technique)?;
     request.constraints.validate()?;
+    // The cache proves a short top list; a request for every candidate (as `identify` makes)
+    // scores them all anyway.
     if request.constraints.is_empty()
         && !request.explain
+        && request.top <= 1000
         && let Some(rankings) = crate::cache::rank(library, unknowns, request)?
     {
         let searched: i64 = request
