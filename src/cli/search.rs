@@ -148,7 +148,7 @@ pub struct ConstraintArgs {
     pub formula: Option<String>,
     /// Only hits whose formula has this nominal molecular mass
     #[arg(long, value_name = "M")]
-    pub mass: Option<u32>,
+    pub mass: Option<u64>,
     /// Only hits whose formula has this index of hydrogen deficiency (rings + double bonds)
     #[arg(long, value_name = "N")]
     pub ihd: Option<f64>,

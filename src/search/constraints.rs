@@ -5,68 +5,9 @@ use std::collections::BTreeSet;
 
 use serde::{Deserialize, Serialize};
 
-use crate::chem::{Formula, parse_formula};
+use crate::chem::{Formula, ihd, nominal_mass, parse_formula};
 use crate::error::{Error, Result};
 use crate::library::Metadata;
-
-// --- Minimal element data -------------------------------------------------------------------
-// TO BE REPLACED by src/chem (full CIAAW / AME tables) when it lands: these few integer masses
-// and valences are all the constraints need.
-
-/// Nominal (integer) mass of the most abundant isotope of each element the constraints know
-/// (common practice: the nominal mass of a formula uses these).
-const NOMINAL_MASS: [(&str, u32); 11] = [
-    ("C", 12),
-    ("H", 1),
-    ("N", 14),
-    ("O", 16),
-    ("S", 32),
-    ("P", 31),
-    ("F", 19),
-    ("Cl", 35),
-    ("Br", 79),
-    ("I", 127),
-    ("Si", 28),
-];
-
-/// The nominal mass of a formula: the sum of its elements' integer masses.
-pub fn nominal_mass(formula: &Formula) -> Result<u32> {
-    let mut total = 0u32;
-    for (element, &n) in &formula.counts {
-        let mass = NOMINAL_MASS
-            .iter()
-            .find(|(e, _)| e == element)
-            .map(|&(_, m)| m)
-            .ok_or_else(|| unknown_element(element))?;
-        total += mass * n;
-    }
-    Ok(total)
-}
-
-/// The index of hydrogen deficiency (rings plus double bonds):
-/// IHD = C - (H + X)/2 + N/2 + 1, with halogens X; tetravalent Si counts as C and trivalent P
-/// as N; divalent O and S do not count (common practice).
-pub fn ihd(formula: &Formula) -> Result<f64> {
-    let mut sum = 2.0; // 2 * IHD
-    for (element, &n) in &formula.counts {
-        let n = f64::from(n);
-        sum += match element.as_str() {
-            "C" | "Si" => 2.0 * n,
-            "N" | "P" => n,
-            "H" | "F" | "Cl" | "Br" | "I" => -n,
-            "O" | "S" => 0.0,
-            other => return Err(unknown_element(other)),
-        };
-    }
-    Ok(sum / 2.0)
-}
-
-fn unknown_element(element: &str) -> Error {
-    Error::invalid(
-        format!("element {element} is not covered by the constraint helper"),
-        "mass and IHD constraints know C, H, N, O, S, P, F, Cl, Br, I and Si",
-    )
-}
 
 // --- Constraints ----------------------------------------------------------------------------
 
@@ -91,7 +32,7 @@ pub struct Constraints {
     pub formula: Option<String>,
     /// Nominal molecular mass of the hit's formula.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub mass: Option<u32>,
+    pub mass: Option<u64>,
     /// Index of hydrogen deficiency of the hit's formula.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub ihd: Option<f64>,
@@ -280,25 +221,28 @@ mod tests {
         m
     }
 
-    fn f(s: &str) -> Formula {
-        parse_formula(s).unwrap()
-    }
-
     #[test]
-    fn nominal_masses_and_ihd_of_textbook_cases() {
-        // Common practice: benzene C6H6 has nominal mass 78 and IHD 4; cyclohexene C6H10 IHD 2;
-        // acetaldehyde C2H4O mass 44 and IHD 1; acetone C3H6O IHD 1; pyridine C5H5N IHD 4;
-        // chloroform CHCl3 mass 118 (12 + 1 + 3 x 35) and IHD 0.
-        assert_eq!(nominal_mass(&f("C6H6")).unwrap(), 78);
-        assert_eq!(ihd(&f("C6H6")).unwrap(), 4.0);
-        assert_eq!(ihd(&f("C6H10")).unwrap(), 2.0);
-        assert_eq!(nominal_mass(&f("C2H4O")).unwrap(), 44);
-        assert_eq!(ihd(&f("C2H4O")).unwrap(), 1.0);
-        assert_eq!(ihd(&f("C3H6O")).unwrap(), 1.0);
-        assert_eq!(ihd(&f("C5H5N")).unwrap(), 4.0);
-        assert_eq!(nominal_mass(&f("CHCl3")).unwrap(), 118);
-        assert_eq!(ihd(&f("CHCl3")).unwrap(), 0.0);
-        assert!(nominal_mass(&f("NaCl")).is_err());
+    fn mass_and_ihd_constraints_cover_every_element_with_data() {
+        // The constraints use src/chem's element tables, so salts and organometallics are
+        // checked rather than refused. Common practice: NaCl has nominal mass 23 + 35 = 58 and,
+        // with Na counted like H, IHD 1 - (1 + 1)/2 = 0; tetramethylsilane Si(CH3)4, C4H12Si,
+        // has nominal mass 4 x 12 + 12 + 28 = 88 and IHD 0.
+        let salt = meta(Some("NaCl"), None, None);
+        let tms = meta(Some("C4H12Si"), None, None);
+        let c = Constraints {
+            mass: Some(58),
+            ihd: Some(0.0),
+            ..Constraints::default()
+        };
+        assert_eq!(c.rule_out(&salt), None);
+        assert_eq!(c.rule_out(&tms).unwrap(), "nominal mass 88, not 58");
+        // An element without atomic data (ferrocene's Fe) is named in the reason, not passed.
+        let ferrocene = meta(Some("C10H10Fe"), None, None);
+        let why = c.rule_out(&ferrocene).unwrap();
+        assert!(
+            why.starts_with("nominal mass of C10H10Fe unknown") && why.contains("Fe"),
+            "{why}"
+        );
     }
 
     #[test]

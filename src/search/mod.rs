@@ -4,7 +4,7 @@ mod constraints;
 mod fusion;
 mod retention;
 
-pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow, ihd, nominal_mass};
+pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow};
 pub use fusion::{
     DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, IdentifyReport, TechniqueEvidence,
     TechniqueRun, UnknownInput, fuse, identify,
