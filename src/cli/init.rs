@@ -5,7 +5,7 @@ use std::process::ExitCode;
 
 use clap::Args;
 use whorl::library::{Library, Recipes, default_recipes};
-use whorl::prepare::{Baseline, RegionMask};
+use whorl::prepare::{Baseline, Recipe, RegionMask};
 use whorl::technique::Technique;
 
 use super::{Context, identity};
@@ -43,53 +43,60 @@ impl InitArgs {
             (Technique::Ir, &self.ir_baseline),
             (Technique::Raman, &self.raman_baseline),
         ] {
-            let mut baseline = Baseline::parse_choice(choice)?;
-            if let Some(Baseline::Als { lambda, p }) = &mut baseline {
-                if let Some(l) = self.als_lambda {
-                    *lambda = l;
-                }
-                if let Some(q) = self.als_p {
-                    *p = q;
-                }
-                if !(lambda.is_finite() && *lambda > 0.0 && *p > 0.0 && *p < 1.0) {
-                    return Err(whorl::Error::invalid(
-                        format!("ALS lambda {lambda} and p {p} are not usable"),
-                        "give a positive lambda (e.g. 1e5) and 0 < p < 1 (e.g. 0.01)",
-                    ));
-                }
-            }
             if let Some(r) = recipes.get_mut(&technique) {
-                r.baseline = baseline;
+                set_baseline(r, choice, self.als_lambda, self.als_p)?;
             }
-        }
-        let mut regions = Vec::new();
-        for m in &self.ir_masks {
-            regions.extend(RegionMask::parse_regions(m)?);
         }
         if let Some(r) = recipes.get_mut(&Technique::Ir) {
-            r.add_masks(&regions);
+            add_masks(r, &self.ir_masks)?;
         }
         Ok(recipes)
     }
 }
 
-pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
-    let recipes = args.recipes()?;
-    let lib = Library::init_with(&ctx.library, &identity(args.by.as_deref()), recipes)?;
-    let mut out = std::io::stdout().lock();
-    if args.json {
-        super::output::json(
-            &mut out,
-            &serde_json::json!({
-                "library": ctx.library.display().to_string(),
-                "recipes": lib.recipes().values().collect::<Vec<_>>(),
-                "fingerprint": lib.fingerprint()?,
-            }),
-        )?;
-        return Ok(ExitCode::SUCCESS);
+/// Sets a recipe's baseline removal from a choice (`none`, `als`, `rubber-band`), with the ALS
+/// parameters when given.
+pub fn set_baseline(
+    recipe: &mut Recipe,
+    choice: &str,
+    als_lambda: Option<f64>,
+    als_p: Option<f64>,
+) -> whorl::Result<()> {
+    let mut baseline = Baseline::parse_choice(choice)?;
+    if let Some(Baseline::Als { lambda, p }) = &mut baseline {
+        if let Some(l) = als_lambda {
+            *lambda = l;
+        }
+        if let Some(q) = als_p {
+            *p = q;
+        }
+        if !(lambda.is_finite() && *lambda > 0.0 && *p > 0.0 && *p < 1.0) {
+            return Err(whorl::Error::invalid(
+                format!("ALS lambda {lambda} and p {p} are not usable"),
+                "give a positive lambda (e.g. 1e5) and 0 < p < 1 (e.g. 0.01)",
+            ));
+        }
     }
-    writeln!(out, "created library {}", ctx.library.display())?;
-    for r in lib.recipes().values() {
+    recipe.baseline = baseline;
+    Ok(())
+}
+
+/// Adds masked regions (`water-vapour`, `diamond-atr`, `co2` or `LO-HI` in cm-1) to a recipe.
+pub fn add_masks(recipe: &mut Recipe, masks: &[String]) -> whorl::Result<()> {
+    let mut regions = Vec::new();
+    for m in masks {
+        regions.extend(RegionMask::parse_regions(m)?);
+    }
+    recipe.add_masks(&regions);
+    Ok(())
+}
+
+/// Prints recipes a line each: technique, grid, baseline and masked regions.
+pub fn print_recipes<'a>(
+    out: &mut impl Write,
+    recipes: impl IntoIterator<Item = &'a Recipe>,
+) -> std::io::Result<()> {
+    for r in recipes {
         let g = &r.grid;
         let mut extra = String::new();
         if let Some(b) = r.baseline {
@@ -113,6 +120,26 @@ pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             g.len()
         )?;
     }
+    Ok(())
+}
+
+pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let recipes = args.recipes()?;
+    let lib = Library::init_with(&ctx.library, &identity(args.by.as_deref()), recipes)?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        super::output::json(
+            &mut out,
+            &serde_json::json!({
+                "library": ctx.library.display().to_string(),
+                "recipes": lib.recipes().values().collect::<Vec<_>>(),
+                "fingerprint": lib.fingerprint()?,
+            }),
+        )?;
+        return Ok(ExitCode::SUCCESS);
+    }
+    writeln!(out, "created library {}", ctx.library.display())?;
+    print_recipes(&mut out, lib.recipes().values())?;
     writeln!(out, "fingerprint {}", lib.fingerprint()?)?;
     Ok(ExitCode::SUCCESS)
 }

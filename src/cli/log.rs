@@ -86,6 +86,11 @@ fn detail(e: &whorl::library::Event) -> String {
         "withdraw" => format!("reason: {}", s("reason")),
         "policy" => format!("allow_self_review = {}", p["allow_self_review"]),
         "init" => "library created".to_string(),
+        "recipe" => format!(
+            "{} spectra prepared again; reason: {}",
+            p["spectra"],
+            s("reason")
+        ),
         _ => String::new(),
     }
 }

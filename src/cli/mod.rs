@@ -18,6 +18,7 @@ mod man;
 mod output;
 mod plot;
 mod policy;
+mod recipe;
 mod replay;
 mod review;
 mod revise;
@@ -102,6 +103,8 @@ pub enum Command {
     Replay(replay::ReplayArgs),
     /// Show or change the library's review policy.
     Policy(policy::PolicyArgs),
+    /// Show the preparation recipes, or change one and prepare its spectra again.
+    Recipe(recipe::RecipeArgs),
     /// Build a demo library from seed-library/ and search its example unknowns.
     Demo(demo::DemoArgs),
     /// Masses, IHD, nitrogen rule and isotope pattern of a formula (no library needed).
@@ -176,6 +179,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Export(a) => export::run(a, &ctx),
         Command::Replay(a) => replay::run(a, &ctx),
         Command::Policy(a) => policy::run(a, &ctx),
+        Command::Recipe(a) => recipe::run(a, &ctx),
         Command::Demo(a) => demo::run(a, &ctx),
         Command::Formula(a) => formula::run(a, &ctx),
         Command::Fragments(a) => fragments::run(a, &ctx),

@@ -135,7 +135,12 @@ impl Library {
 
         // 2. Replay the events and compare with the tables.
         let mut expected: BTreeMap<i64, Expected> = BTreeMap::new();
+        let mut expected_recipes: BTreeMap<String, Value> = BTreeMap::new();
         for (seq, _, _, action, record, payload, ..) in &events {
+            if action == "init" || action == "recipe" {
+                replay_recipes(action, payload, &mut expected_recipes);
+                continue;
+            }
             let Some(id) = record
                 .strip_prefix("spectrum:")
                 .and_then(|s| s.parse::<i64>().ok())
@@ -183,6 +188,31 @@ impl Library {
                 }
                 "withdraw" => e.status = "withdrawn".into(),
                 _ => {}
+            }
+        }
+
+        let stored_recipes: Vec<(String, String)> = {
+            let mut stmt = self.conn.prepare("SELECT technique, recipe FROM recipe")?;
+            stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?
+                .collect::<rusqlite::Result<_>>()?
+        };
+        for (technique, text) in &stored_recipes {
+            // Compared as parsed JSON, both sides read from text the same way.
+            let stored: Value = serde_json::from_str(text).unwrap_or(Value::Null);
+            if expected_recipes.get(technique) != Some(&stored) {
+                find(
+                    format!("recipe:{technique}"),
+                    "the recipe differs from the one its events record (edited outside whorl)"
+                        .into(),
+                );
+            }
+        }
+        for technique in expected_recipes.keys() {
+            if !stored_recipes.iter().any(|(t, _)| t == technique) {
+                find(
+                    format!("recipe:{technique}"),
+                    "its events record a recipe but the recipe table has none (deleted)".into(),
+                );
             }
         }
 
@@ -344,6 +374,24 @@ impl Library {
         }
         report.caches_rebuilt = crate::cache::rebuild_all(self)?;
         Ok(report)
+    }
+}
+
+/// Applies an `init` event (the library's first recipes) or a `recipe` event (one technique's
+/// recipe replaced) to the recipes the audit trail says the library has.
+fn replay_recipes(action: &str, payload: &str, recipes: &mut BTreeMap<String, Value>) {
+    let Ok(p) = serde_json::from_str::<Value>(payload) else {
+        return;
+    };
+    let given: Vec<&Value> = if action == "init" {
+        p["recipes"].as_array().into_iter().flatten().collect()
+    } else {
+        vec![&p["to"]]
+    };
+    for r in given {
+        if let Some(t) = r["technique"].as_str() {
+            recipes.insert(t.to_string(), r.clone());
+        }
     }
 }
 

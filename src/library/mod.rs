@@ -6,6 +6,7 @@ mod curation;
 mod fingerprint;
 mod import;
 mod manifest;
+mod recipe_change;
 mod records;
 mod schema;
 mod stage;
@@ -17,6 +18,7 @@ pub use curation::{Decision, MetadataPatch, Review, RevisionInfo};
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
+pub use recipe_change::RecipeChange;
 pub use records::{Candidate, Event, Metadata, Outcome, SpectrumRecord, Stats, Status, Summary};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
@@ -232,7 +234,7 @@ impl Library {
             .ok_or_else(|| {
                 Error::invalid(
                     format!("this library has no recipe for {technique}"),
-                    "the library was created before whorl knew this technique; create a new library with `whorl init` and import into it",
+                    format!("the library was created before whorl knew this technique; add its recipe with `whorl recipe {technique} --defaults --reason TEXT`"),
                 )
             })
     }

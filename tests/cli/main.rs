@@ -18,6 +18,7 @@ mod init;
 mod integrity;
 mod list;
 mod plot;
+mod recipe;
 mod replay;
 mod report;
 mod search;

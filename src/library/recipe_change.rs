@@ -1,0 +1,203 @@
+//! Changing a technique's preparation recipe after the library was made: every spectrum of the
+//! technique is prepared again from its raw points, in one transaction, and the change is
+//! recorded in the audit trail.
+//!
+//! The raw points, metadata, statuses and sign-offs stay as they are: a sign-off covers the
+//! measurement and what it says it is, and the prepared form is derived from the raw points by
+//! the recipe. The fingerprint changes (it covers the recipes), so saved searches made before
+//! the change replay as different and `whorl replay` names this event as the reason.
+
+use rayon::prelude::*;
+use rusqlite::{Connection, params};
+use serde::Serialize;
+
+use super::records::{append_event, f32_bytes};
+use super::stage::prepare_raw;
+use super::{Library, Metadata, check_recipes};
+use crate::error::{Error, Result};
+use crate::prepare::{Prepared, Recipe, Solvent};
+use crate::spectrum::decode_points;
+use crate::technique::Technique;
+
+/// Spectra prepared again per round trip to SQLite: bounds the raw points held in memory.
+const CHUNK: usize = 512;
+
+/// What a recipe change did.
+#[derive(Debug, Clone, Serialize)]
+pub struct RecipeChange {
+    /// The technique whose recipe changed.
+    pub technique: Technique,
+    /// The recipe before (`None` when the library had none for the technique).
+    pub from: Option<Recipe>,
+    /// The recipe now.
+    pub to: Recipe,
+    /// Spectra prepared again, of every status.
+    pub spectra: usize,
+    /// The library's fingerprint before the change.
+    pub fingerprint_before: String,
+    /// The library's fingerprint after it.
+    pub fingerprint_after: String,
+}
+
+impl Library {
+    /// Replaces the recipe of `recipe.technique` and prepares every spectrum of that technique
+    /// again with it. All or nothing: if any spectrum cannot be prepared with the new recipe,
+    /// nothing changes and the error names the spectrum. `progress(done, total)` is called as
+    /// spectra are prepared.
+    pub fn change_recipe(
+        &mut self,
+        recipe: Recipe,
+        actor: &str,
+        reason: &str,
+        progress: &(dyn Fn(usize, usize) + Sync),
+    ) -> Result<RecipeChange> {
+        let technique = recipe.technique;
+        let reason = reason.trim();
+        if reason.is_empty() {
+            return Err(Error::invalid(
+                "a recipe change needs a reason",
+                "say why with --reason TEXT; it goes into the audit trail",
+            ));
+        }
+        check_recipes(&[(technique, recipe.clone())].into_iter().collect())?;
+        let from = self.recipes.get(&technique).cloned();
+        if from.as_ref() == Some(&recipe) {
+            return Err(Error::invalid(
+                format!("the {technique} recipe already is the one asked for"),
+                "nothing to change; `whorl recipe` shows the current recipes",
+            ));
+        }
+        let fingerprint_before = self.fingerprint()?;
+        let spectra = self.write(|tx| {
+            let n = reprepare_all(tx, &recipe, progress)?;
+            tx.execute(
+                "INSERT INTO recipe (technique, recipe) VALUES (?1, ?2)
+                 ON CONFLICT (technique) DO UPDATE SET recipe = excluded.recipe",
+                params![technique.name(), serde_json::to_string(&recipe)?],
+            )?;
+            let payload = serde_json::json!({
+                "technique": technique,
+                "from": from,
+                "to": recipe,
+                "reason": reason,
+                "spectra": n,
+            });
+            append_event(
+                tx,
+                actor,
+                "recipe",
+                &format!("recipe:{technique}"),
+                &payload,
+            )?;
+            Ok((n, vec![]))
+        })?;
+        self.recipes.insert(technique, recipe.clone());
+        Ok(RecipeChange {
+            technique,
+            from,
+            to: recipe,
+            spectra,
+            fingerprint_before,
+            fingerprint_after: self.fingerprint()?,
+        })
+    }
+}
+
+/// Prepares every spectrum of the recipe's technique again and stores the result; returns how
+/// many there were.
+fn reprepare_all(
+    tx: &Connection,
+    recipe: &Recipe,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<usize> {
+    let ids: Vec<i64> = {
+        let mut stmt = tx.prepare("SELECT id FROM spectrum WHERE technique = ?1 ORDER BY id")?;
+        stmt.query_map([recipe.technique.name()], |r| r.get(0))?
+            .collect::<rusqlite::Result<_>>()?
+    };
+    let total = ids.len();
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    progress(0, total);
+    for chunk in ids.chunks(CHUNK) {
+        let mut inputs = Vec::with_capacity(chunk.len());
+        for &id in chunk {
+            inputs.push(tx.query_row(
+                "SELECT s.raw, s.x_unit, s.y_unit, r.metadata FROM spectrum s
+                 JOIN revision r ON r.spectrum_id = s.id AND r.number = s.current_revision
+                 WHERE s.id = ?1",
+                [id],
+                |r| {
+                    Ok((
+                        id,
+                        r.get::<_, Vec<u8>>(0)?,
+                        r.get::<_, String>(1)?,
+                        r.get::<_, String>(2)?,
+                        r.get::<_, String>(3)?,
+                    ))
+                },
+            )?);
+        }
+        let prepared: Vec<(i64, Prepared)> = inputs
+            .par_iter()
+            .map(|(id, raw, x_unit, y_unit, metadata)| {
+                let again = prepare_one(recipe, *id, raw, x_unit, y_unit, metadata);
+                let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+                progress(n, total);
+                again.map(|p| (*id, p))
+            })
+            .collect::<Result<_>>()?;
+        let mut update = tx.prepare_cached(
+            "UPDATE prepared SET vector = ?2, peaks = ?3, y_unit = ?4, warnings = ?5 WHERE spectrum_id = ?1",
+        )?;
+        for (id, p) in &prepared {
+            update.execute(params![
+                id,
+                f32_bytes(&p.vector),
+                serde_json::to_string(&p.peaks)?,
+                p.y_unit.name(),
+                serde_json::to_string(&p.warnings)?
+            ])?;
+        }
+    }
+    Ok(total)
+}
+
+/// One spectrum prepared with the new recipe, from its stored raw points, units and solvent.
+fn prepare_one(
+    recipe: &Recipe,
+    id: i64,
+    raw: &[u8],
+    x_unit: &str,
+    y_unit: &str,
+    metadata: &str,
+) -> Result<Prepared> {
+    let label = std::path::PathBuf::from(format!("spectrum:{id}"));
+    let why = |e: Error| {
+        Error::invalid(
+            format!("spectrum {id} cannot be prepared with the new recipe: {e}"),
+            "nothing was changed; every spectrum of the technique, withdrawn ones too, must prepare under the new recipe",
+        )
+    };
+    let points = decode_points(raw).ok_or_else(|| {
+        why(Error::invalid(
+            "its raw points cannot be decoded",
+            "run `whorl check`",
+        ))
+    })?;
+    let metadata: Metadata = serde_json::from_str(metadata)?;
+    let solvent = metadata
+        .solvent
+        .as_deref()
+        .map(str::parse::<Solvent>)
+        .transpose()
+        .map_err(why)?;
+    prepare_raw(
+        &label,
+        recipe,
+        &points,
+        x_unit.parse().map_err(why)?,
+        y_unit.parse().map_err(why)?,
+        solvent,
+    )
+    .map_err(why)
+}
