@@ -11,7 +11,7 @@ use serde::{Deserialize, Deserializer, Serialize};
 
 use crate::error::{Error, Location, Result};
 use crate::prepare::Solvent;
-use crate::search::{Request, Thresholds};
+use crate::search::{IdentityPolicy, Request, Thresholds};
 use crate::technique::Technique;
 
 /// The settings file inside a library folder.
@@ -29,6 +29,10 @@ pub struct Config {
     pub thresholds: WarningThresholds,
     /// HTML reports.
     pub report: ReportDefaults,
+    /// What `identify` requires before it reports the evidence as meeting the library's
+    /// identification criteria.
+    #[serde(deserialize_with = "identity_policy")]
+    pub identity: IdentityPolicy,
 }
 
 /// Defaults for every search.
@@ -254,6 +258,15 @@ fn some_unit_interval<'de, D: Deserializer<'de>>(
     unit::<D>(f64::deserialize(d)?).map(Some)
 }
 
+fn identity_policy<'de, D: Deserializer<'de>>(
+    d: D,
+) -> std::result::Result<IdentityPolicy, D::Error> {
+    let p = IdentityPolicy::deserialize(d)?;
+    check::<D, _>(p, p.min_techniques >= 1, |_| {
+        "min_techniques must be 1 or more".to_string()
+    })
+}
+
 fn some_positive<'de, D: Deserializer<'de>>(d: D) -> std::result::Result<Option<f64>, D::Error> {
     let v = f64::deserialize(d)?;
     check::<D, _>(v, v > 0.0 && v.is_finite(), |v| {
@@ -364,6 +377,10 @@ mod policy_tests {
             Path::new("lib/whorl.toml"),
         )
         .unwrap_err();
-        assert!(err.to_string().contains("identity"), "{err}");
+        assert!(
+            err.to_string()
+                .contains("unknown field `allow_self_review`"),
+            "{err}"
+        );
     }
 }

@@ -6,7 +6,7 @@ use std::process::ExitCode;
 
 use clap::Args;
 use whorl::prepare::Solvent;
-use whorl::search::{IdentifyReport, UnknownInput, identify};
+use whorl::search::{IdentifyOptions, IdentifyReport, UnknownInput, identify};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
@@ -82,19 +82,29 @@ impl IdentifyArgs {
 }
 
 pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
-    let unknowns = args.unknowns();
-    let constraints = args.constraints.constraints()?;
+    let config = ctx.config()?;
+    let mut unknowns = args.unknowns();
+    for u in &mut unknowns {
+        if u.technique.is_nmr() && u.solvent.is_none() {
+            u.solvent = config.solvent(u.technique);
+        }
+    }
     let lib = ctx.open()?;
-    let report = identify(&lib, &unknowns, &constraints, args.top.max(1))?;
+    let options = IdentifyOptions {
+        constraints: args.constraints.constraints()?,
+        top: args.top.max(1),
+        policy: config.identity,
+        configure: &|r| config.apply(r),
+    };
+    let report = identify(&lib, &unknowns, &options)?;
     if let Some(path) = &args.html {
         write_html(
             &lib,
             &report,
             &unknowns,
-            &constraints,
-            args.top.max(1),
+            &options,
+            config.report.plots,
             path,
-            ctx,
         )?;
         eprintln!("report written to {}", path.display());
     }
@@ -113,17 +123,16 @@ fn write_html(
     lib: &whorl::library::Library,
     report: &IdentifyReport,
     unknowns: &[UnknownInput],
-    constraints: &whorl::search::Constraints,
-    top: usize,
+    options: &IdentifyOptions<'_>,
+    plots: usize,
     path: &std::path::Path,
-    ctx: &Context,
 ) -> anyhow::Result<()> {
-    let plots = ctx.config()?.report.plots;
     let mut runs = Vec::with_capacity(unknowns.len());
     for u in unknowns {
         let mut request = whorl::search::Request::new(u.technique);
-        request.top = top;
-        request.constraints = constraints.clone();
+        (options.configure)(&mut request);
+        request.top = options.top;
+        request.constraints = options.constraints.clone();
         let (r, prepared) =
             whorl::search::search_file(lib, &u.file, u.x_unit, u.y_unit, u.solvent, &request)?;
         let refs = whorl::report::references(lib, &r, plots)?;
@@ -216,6 +225,7 @@ pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Resul
             writeln!(out, "warning   {}: {w}", run.unknown.technique)?;
         }
     }
+    writeln!(out, "criteria  {}", r.policy.summary())?;
     writeln!(out, "caution   {}", r.caution)?;
     Ok(())
 }

@@ -464,6 +464,13 @@ pub fn identify_page(r: &crate::search::IdentifyReport, queries: &[Query<'_>]) -
             format_args!("<dt>margin</dt><dd>{m:.3} between compounds 1 and 2</dd>\n"),
         );
     }
+    w(
+        &mut s,
+        format_args!(
+            "<dt>identity criteria</dt><dd>{}</dd>\n",
+            escape(&r.policy.summary())
+        ),
+    );
     s.push_str("</dl>\n");
     if !f.warnings.is_empty() {
         s.push_str("<ul class=\"warnings\">\n");

@@ -2,9 +2,12 @@
 
 use std::collections::BTreeMap;
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
-use super::{Constraints, Hit, LibraryStamp, Parameters, Request, UnknownStamp, run_search};
+use super::{
+    Confidence, Constraints, Hit, LibraryStamp, Parameters, Request, UnknownStamp, is_confident,
+    run_search,
+};
 use crate::error::{Error, Result};
 use crate::library::Library;
 use crate::prepare::Solvent;
@@ -198,6 +201,8 @@ pub struct TechniqueRun {
     pub candidates: usize,
     /// Warnings about the unknown and its hit list, as `search` gives them.
     pub warnings: Vec<String>,
+    /// The thresholds its hit list was judged by.
+    pub confidence: Confidence,
 }
 
 /// The result of `identify`: every technique searched, and the fused list.
@@ -213,17 +218,196 @@ pub struct IdentifyReport {
     pub runs: Vec<TechniqueRun>,
     /// The fused list.
     pub fusion: Fusion,
+    /// Whether the evidence meets the library's identity policy.
+    pub policy: PolicyVerdict,
     /// The caution that goes with every hit list.
     pub caution: String,
 }
 
-/// Searches each unknown against the library with its technique's default scoring and the
-/// given constraints, and fuses the hit lists per compound ([`fuse`]).
+/// What a lab asks of the evidence before a fused result may be reported as meeting its
+/// identification criteria: the `[identity]` table of `whorl.toml`.
+///
+/// A technique *supports* the fused list's first compound when its own hit list puts that
+/// compound first with a confident hit (not weak and not too close to another compound, by
+/// the technique's thresholds). It *speaks against* it when the library holds a reference of
+/// the compound for that technique and either another compound is confidently first, or the
+/// compound's own score is below the technique's weak-match threshold: the measured spectrum
+/// does not look like the reference. A technique without a reference of the compound is
+/// silent. The default asks for two supporting techniques and none against, following the
+/// common practice of confirming an identification by a second, independent technique. Labs
+/// set their own rule from their accredited procedures; whorl only reports whether it is met.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct IdentityPolicy {
+    /// Techniques that must support the first compound.
+    pub min_techniques: usize,
+    /// Whether techniques that speak against the compound may be outvoted.
+    pub allow_contradiction: bool,
+}
+
+impl Default for IdentityPolicy {
+    fn default() -> IdentityPolicy {
+        IdentityPolicy {
+            min_techniques: 2,
+            allow_contradiction: false,
+        }
+    }
+}
+
+impl IdentityPolicy {
+    /// The rule in words, as recorded with every verdict.
+    pub fn rule(&self) -> String {
+        format!(
+            "at least {} technique{} must each rank the compound first with a confident hit{}",
+            self.min_techniques,
+            if self.min_techniques == 1 { "" } else { "s" },
+            if self.allow_contradiction {
+                ""
+            } else {
+                ", and no technique holding a reference of it may speak against it"
+            }
+        )
+    }
+}
+
+/// A technique whose evidence speaks against a compound, and why.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Objection {
+    /// The technique.
+    pub technique: Technique,
+    /// Why, in words.
+    pub reason: String,
+}
+
+/// Whether an identification meets the library's [`IdentityPolicy`], and why.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PolicyVerdict {
+    /// True when the policy is met for the fused list's first compound.
+    pub met: bool,
+    /// The rule applied, in words.
+    pub rule: String,
+    /// The policy applied.
+    pub policy: IdentityPolicy,
+    /// The compound judged: the fused list's first.
+    pub compound: Option<String>,
+    /// Techniques that confidently rank it first.
+    pub supporting: Vec<Technique>,
+    /// Techniques whose evidence speaks against it.
+    pub against: Vec<Objection>,
+}
+
+impl PolicyVerdict {
+    /// The verdict in one line: met or not, and why.
+    pub fn summary(&self) -> String {
+        let Some(compound) = &self.compound else {
+            return "not met: no compound to judge".to_string();
+        };
+        let n = self.supporting.len();
+        let mut why = format!(
+            "{compound} is ranked first with a confident hit by {n} technique{}",
+            if n == 1 { "" } else { "s" }
+        );
+        if n > 0 {
+            let names: Vec<&str> = self.supporting.iter().map(|t| t.name()).collect();
+            why.push_str(&format!(" ({})", names.join(", ")));
+        }
+        for o in &self.against {
+            why.push_str(&format!("; against: {}: {}", o.technique, o.reason));
+        }
+        format!(
+            "{}: {why}; the library asks for {}{} ([identity] in whorl.toml)",
+            if self.met { "met" } else { "not met" },
+            self.policy.min_techniques,
+            if self.policy.allow_contradiction {
+                ""
+            } else {
+                " and none against"
+            }
+        )
+    }
+}
+
+/// Judges the fused list's first compound against the policy. `lists` holds each technique's
+/// hit list and `confidence` the thresholds it was judged by, in the same order.
+pub fn judge(
+    policy: &IdentityPolicy,
+    lists: &[(Technique, &[Hit])],
+    confidence: &[Confidence],
+    fusion: &Fusion,
+) -> PolicyVerdict {
+    let best = fusion.compounds.first();
+    let mut supporting = Vec::new();
+    let mut against = Vec::new();
+    if let Some(best) = best {
+        for (((technique, hits), c), evidence) in lists.iter().zip(confidence).zip(&best.evidence) {
+            let Some(score) = evidence.score else {
+                continue; // no reference of the compound: this technique is silent
+            };
+            let sure = is_confident(hits, c);
+            match hits.first() {
+                Some(first) if sure && first.compound_id == best.compound_id => {
+                    supporting.push(*technique);
+                    continue;
+                }
+                Some(first) if sure => against.push(Objection {
+                    technique: *technique,
+                    reason: format!("{} is confidently first", first.name),
+                }),
+                _ if score < c.weak_score => against.push(Objection {
+                    technique: *technique,
+                    reason: format!(
+                        "{} scores {score:.3}, below the weak-match threshold {:.3}",
+                        best.name, c.weak_score
+                    ),
+                }),
+                _ => {}
+            }
+        }
+    }
+    let met = best.is_some()
+        && supporting.len() >= policy.min_techniques
+        && (policy.allow_contradiction || against.is_empty());
+    PolicyVerdict {
+        met,
+        rule: policy.rule(),
+        policy: *policy,
+        compound: best.map(|c| c.name.clone()),
+        supporting,
+        against,
+    }
+}
+
+/// How `identify` searches: the constraints and length of the fused list, the identity policy,
+/// and the library's own search settings.
+pub struct IdentifyOptions<'a> {
+    /// Constraints applied to every technique's search.
+    pub constraints: Constraints,
+    /// Compounds listed.
+    pub top: usize,
+    /// What the evidence must show to meet the library's identification criteria.
+    pub policy: IdentityPolicy,
+    /// Applied to each technique's request before it runs (the library's `whorl.toml`).
+    pub configure: &'a dyn Fn(&mut Request),
+}
+
+impl Default for IdentifyOptions<'_> {
+    fn default() -> Self {
+        IdentifyOptions {
+            constraints: Constraints::default(),
+            top: 10,
+            policy: IdentityPolicy::default(),
+            configure: &|_| {},
+        }
+    }
+}
+
+/// Searches each unknown against the library with its technique's default scoring (adjusted
+/// by `options.configure`) and the given constraints, fuses the hit lists per compound
+/// ([`fuse`]) and judges the result against the identity policy ([`judge`]).
 pub fn identify(
     library: &Library,
     unknowns: &[UnknownInput],
-    constraints: &Constraints,
-    top: usize,
+    options: &IdentifyOptions<'_>,
 ) -> Result<IdentifyReport> {
     if unknowns.is_empty() {
         return Err(Error::invalid(
@@ -243,27 +427,33 @@ pub fn identify(
     let mut hit_lists = Vec::new();
     for u in unknowns {
         let mut request = Request::new(u.technique);
+        (options.configure)(&mut request);
         request.top = usize::MAX;
-        request.constraints = constraints.clone();
+        request.constraints = options.constraints.clone();
         let report = run_search(library, &u.file, u.x_unit, u.y_unit, u.solvent, &request)?;
         let mut parameters = report.parameters;
-        parameters.top = top;
+        parameters.top = options.top;
         runs.push(TechniqueRun {
             unknown: report.unknown,
             parameters,
             candidates: report.candidates,
             warnings: report.warnings,
+            confidence: report.confidence,
         });
         hit_lists.push((u.technique, report.hits));
     }
     let borrowed: Vec<(Technique, &[Hit])> =
         hit_lists.iter().map(|(t, h)| (*t, h.as_slice())).collect();
+    let fusion = fuse(&borrowed, options.top);
+    let confidence: Vec<Confidence> = runs.iter().map(|r| r.confidence).collect();
+    let policy = judge(&options.policy, &borrowed, &confidence, &fusion);
     Ok(IdentifyReport {
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
         searched_at: crate::library::now(),
         library: LibraryStamp::of(library)?,
         runs,
-        fusion: fuse(&borrowed, top),
+        fusion,
+        policy,
         caution: crate::CAUTION.to_string(),
     })
 }
@@ -354,6 +544,72 @@ mod tests {
             "{:?}",
             f.warnings
         );
+    }
+
+    fn thresholds(weak_score: f64, close_margin: f64) -> Confidence {
+        Confidence {
+            weak_score,
+            close_margin,
+            derived: false,
+        }
+    }
+
+    #[test]
+    fn the_policy_counts_techniques_for_and_against_the_fused_first() {
+        let ir = [hit(1, "acetone", 0.9), hit(2, "2-butanone", 0.6)];
+        let ms = [hit(1, "acetone", 0.8), hit(2, "2-butanone", 0.5)];
+        let nmr = [hit(2, "2-butanone", 0.7), hit(1, "acetone", 0.4)];
+        // The library's only 13C reference is of propanal.
+        let c13 = [hit(3, "propanal", 0.9)];
+        let lists = [
+            (Technique::Ir, &ir[..]),
+            (Technique::MsEi, &ms[..]),
+            (Technique::Nmr1h, &nmr[..]),
+            (Technique::Nmr13c, &c13[..]),
+        ];
+        let f = fuse(&lists, 10);
+        assert_eq!(f.compounds[0].name, "acetone");
+        let usual = thresholds(0.3, 0.05);
+        let verdict = |nmr: Confidence, policy: IdentityPolicy| {
+            judge(&policy, &lists, &[usual, usual, nmr, usual], &f)
+        };
+        let default = IdentityPolicy::default();
+        // IR and MS support acetone (gaps 0.3, scores above 0.3); NMR confidently puts
+        // 2-butanone first (0.7 >= 0.3, gap 0.3 >= 0.05) and speaks against it; 13C, without
+        // an acetone reference, is silent although it confidently ranks propanal first.
+        let v = verdict(usual, default);
+        assert_eq!(v.supporting, [Technique::Ir, Technique::MsEi]);
+        assert_eq!(v.against.len(), 1);
+        assert_eq!(v.against[0].technique, Technique::Nmr1h);
+        assert_eq!(v.against[0].reason, "2-butanone is confidently first");
+        assert!(!v.met);
+        assert!(
+            v.summary()
+                .starts_with("not met: acetone is ranked first with a confident hit by 2 techniques (ir, ms-ei); against: nmr-1h"),
+            "{}",
+            v.summary()
+        );
+        // NMR's first hit too close to call (gap 0.3 < 0.5), and acetone's 0.4 not weak: silent.
+        assert!(verdict(thresholds(0.3, 0.5), default).met);
+        // NMR's best hit weak (0.7 < 0.75), and acetone's own 0.4 below 0.75: against.
+        let v = verdict(thresholds(0.75, 0.05), default);
+        assert_eq!(
+            v.against[0].reason,
+            "acetone scores 0.400, below the weak-match threshold 0.750"
+        );
+        assert!(!v.met);
+        // A policy that lets two supporting techniques outvote one against.
+        let lenient = IdentityPolicy {
+            min_techniques: 2,
+            allow_contradiction: true,
+        };
+        assert!(verdict(usual, lenient).met);
+        // Three required: two are not enough.
+        let strict = IdentityPolicy {
+            min_techniques: 3,
+            allow_contradiction: true,
+        };
+        assert!(!verdict(usual, strict).met);
     }
 
     #[test]

@@ -6,8 +6,9 @@ mod retention;
 
 pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow};
 pub use fusion::{
-    DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, IdentifyReport, TechniqueEvidence,
-    TechniqueRun, UnknownInput, fuse, identify,
+    DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, IdentifyOptions, IdentifyReport,
+    IdentityPolicy, PolicyVerdict, TechniqueEvidence, TechniqueRun, UnknownInput, fuse, identify,
+    judge,
 };
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
 
@@ -492,6 +493,24 @@ fn finish(
     })
 }
 
+/// The first hit, the nearest hit of another compound, and the gap between their scores: the
+/// gap decides whether the first can be told apart.
+fn runner_up(hits: &[Hit]) -> Option<(&Hit, &Hit, f64)> {
+    let first = hits.first()?;
+    let other = hits
+        .iter()
+        .skip(1)
+        .find(|h| h.compound_id != first.compound_id)?;
+    Some((first, other, first.score - other.score))
+}
+
+/// True when a hit list's first hit passes both confidence thresholds: its score is not weak
+/// and the nearest hit of another compound is not too close.
+pub fn is_confident(hits: &[Hit], c: &Confidence) -> bool {
+    hits.first().is_some_and(|best| best.score >= c.weak_score)
+        && runner_up(hits).is_none_or(|(_, _, gap)| gap >= c.close_margin)
+}
+
 /// The plain-language warnings about a hit list: no hits, a weak best hit, top hits too close.
 fn list_warnings(hits: &[Hit], c: &Confidence) -> Vec<String> {
     let mut warnings = Vec::new();
@@ -506,20 +525,13 @@ fn list_warnings(hits: &[Hit], c: &Confidence) -> Vec<String> {
         )),
         Some(_) => {}
     }
-    // The nearest hit of another compound decides whether the first can be told apart.
-    if let Some(first) = hits.first()
-        && let Some(other) = hits
-            .iter()
-            .skip(1)
-            .find(|h| h.compound_id != first.compound_id)
+    if let Some((first, other, gap)) = runner_up(hits)
+        && gap < c.close_margin
     {
-        let gap = first.score - other.score;
-        if gap < c.close_margin {
-            warnings.push(format!(
-                "{} and {} differ by only {gap:.3} (less than {:.3}): too close to tell apart by this spectrum alone",
-                first.name, other.name, c.close_margin
-            ));
-        }
+        warnings.push(format!(
+            "{} and {} differ by only {gap:.3} (less than {:.3}): too close to tell apart by this spectrum alone",
+            first.name, other.name, c.close_margin
+        ));
     }
     warnings
 }

@@ -356,6 +356,11 @@ fn a_malformed_whorl_toml_names_file_line_and_fix() {
             2,
             "unknown NMR solvent",
         ),
+        (
+            "[identity]\nmin_techniques = 0\n",
+            1,
+            "min_techniques must be 1 or more",
+        ),
     ] {
         lab.write("lib/whorl.toml", text);
         for args in [&["search", "a.csv", "-t", "ir"][..], &["config"]] {

@@ -173,5 +173,80 @@ fn identify_writes_one_html_report_with_the_fused_list_and_each_technique() {
     assert!(html.contains("ethyl acetate"));
     assert!(html.matches("<svg").count() >= 2, "overlays present");
     assert!(html.contains("evidence, not proof"), "the caution");
+    assert!(
+        html.contains("<dt>identity criteria</dt><dd>met: ethyl acetate is ranked first with a confident hit by 2 techniques (ir, ms-ei)"),
+        "the identity-policy verdict"
+    );
     assert!(!html.contains("<script"), "no script");
+}
+
+#[test]
+fn the_identity_policy_of_whorl_toml_is_applied_and_reported() {
+    let lab = Lab::new();
+    lab.ok(&["import", &seed_file("manifest.csv")]);
+    lab.approve_all();
+    let ms = lab.write("ea.ms.csv", ETHYL_ACETATE_MS);
+    let ms = ms.to_str().unwrap();
+    let ir_ea = seed_file("unknowns/u01.ir.csv"); // ethyl acetate
+    let ir_ma = seed_file("unknowns/u02.ir.csv"); // methyl acetate
+    let policy = |args: &[&str]| lab.json(args)["policy"].clone();
+
+    // Default: two techniques must agree confidently and none may contradict.
+    let two = policy(&["identify", "--ir", &ir_ea, "--ms-ei", ms]);
+    assert_eq!(two["met"], true, "{two}");
+    assert_eq!(two["compound"], "ethyl acetate");
+    assert_eq!(two["supporting"], serde_json::json!(["ir", "ms-ei"]));
+    let one = policy(&["identify", "--ir", &ir_ea]);
+    assert_eq!(one["met"], false, "{one}");
+    assert_eq!(one["supporting"], serde_json::json!(["ir"]));
+    // IR says methyl acetate, MS says ethyl acetate: a contradiction.
+    let split = policy(&["identify", "--ir", &ir_ma, "--ms-ei", ms]);
+    assert_eq!(split["met"], false, "{split}");
+    assert_eq!(split["against"][0]["technique"], "ir");
+    assert_eq!(
+        split["against"][0]["reason"],
+        "methyl acetate is confidently first"
+    );
+    let text = lab.ok(&["identify", "--ir", &ir_ma, "--ms-ei", ms]);
+    assert!(
+        text.contains("criteria  not met: ethyl acetate is ranked first with a confident hit by 1 technique (ms-ei); against: ir: methyl acetate is confidently first"),
+        "{text}"
+    );
+    // A mass spectrum of another sample (ethylbenzene) does not look like ethyl acetate at
+    // all: it speaks against it even though no hit of it is confident.
+    let other = seed_file("unknowns/u09.ms-ei.csv");
+    let nmr = seed_file("spectra/ethyl-acetate.nmr-1h.csv");
+    let mixed = policy(&[
+        "identify",
+        "--ir",
+        &ir_ea,
+        "--ms-ei",
+        &other,
+        "--nmr-1h",
+        &nmr,
+        "--solvent",
+        "CDCl3",
+    ]);
+    assert_eq!(mixed["supporting"], serde_json::json!(["ir", "nmr-1h"]));
+    assert_eq!(mixed["against"][0]["technique"], "ms-ei");
+    assert_eq!(mixed["met"], false, "{mixed}");
+
+    // A library that accepts one technique, and one that lets a majority outvote.
+    lab.write(
+        "lib/whorl.toml",
+        "[identity]\nmin_techniques = 1\nallow_contradiction = true\n",
+    );
+    assert_eq!(policy(&["identify", "--ir", &ir_ea])["met"], true);
+    assert_eq!(
+        policy(&["identify", "--ir", &ir_ma, "--ms-ei", ms])["met"],
+        true
+    );
+    // The thresholds of whorl.toml decide what is confident: nothing reaches 0.999.
+    lab.write(
+        "lib/whorl.toml",
+        "[identity]\nmin_techniques = 1\n[thresholds]\nweak_score = 0.999\n",
+    );
+    let strict = policy(&["identify", "--ir", &ir_ea]);
+    assert_eq!(strict["met"], false, "{strict}");
+    assert_eq!(strict["supporting"], serde_json::json!([]));
 }
