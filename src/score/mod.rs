@@ -10,7 +10,7 @@ pub use composite::{Composite, CompositeParams, stein_scott};
 pub use derivative::{
     DerivativeParams, derivative_correlation, first_derivative, savgol_coefficients,
 };
-pub use overlap::{Overlap, peak_overlap, shift_match};
+pub use overlap::{Overlap, peak_overlap, shift_match, shift_match_referenced};
 pub use vector::{cosine, pearson};
 
 use std::fmt;
@@ -34,15 +34,17 @@ pub enum Measure {
     Derivative,
     /// Stein & Scott composite (EI-MS).
     Composite,
-    /// Tolerance-weighted Jaccard index of the peak positions (13C NMR).
+    /// Tolerance-weighted Jaccard index of the peak positions (13C NMR), by default after
+    /// removing a common referencing offset ([`ScoreParams::referencing_correction`]).
     ShiftMatch,
 }
 
 impl Measure {
     /// The measure a technique uses unless told otherwise. IR and Raman rank by correlation,
     /// which ignores a constant offset of the baseline; 1H NMR by cosine of the area-normalised
-    /// bins; EI-MS by the Stein & Scott composite; 13C NMR by the shift match, because a 13C
-    /// peak list carries positions, not quantitative intensities.
+    /// bins; EI-MS by the Stein & Scott composite (in reverse search by default, see
+    /// [`CompositeParams`]); 13C NMR by the shift match, because a 13C peak list carries
+    /// positions, not quantitative intensities.
     pub fn default_for(technique: Technique) -> Measure {
         match technique {
             Technique::Ir | Technique::Raman => Measure::Correlation,
@@ -130,6 +132,11 @@ pub struct ScoreParams {
     /// IR, Raman: the Savitzky-Golay first derivative of the derivative correlation.
     #[serde(default)]
     pub derivative: DerivativeParams,
+    /// 13C NMR: remove a common referencing offset of the unknown's shifts before the shift
+    /// match ([`shift_match_referenced`]). Absent in results saved before it existed, which
+    /// were matched without it, so it reads as false.
+    #[serde(default)]
+    pub referencing_correction: bool,
 }
 
 impl ScoreParams {
@@ -143,6 +150,8 @@ impl ScoreParams {
             composite: CompositeParams::default(),
             min_mz: None,
             derivative: DerivativeParams::default(),
+            // Chosen on the evaluation's tuning set (docs/evaluation.md).
+            referencing_correction: technique == Technique::Nmr13c,
         }
     }
 
@@ -219,7 +228,8 @@ pub struct Scores {
     /// The Stein & Scott terms (EI-MS).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub composite: Option<Composite>,
-    /// The tolerance-weighted Jaccard index of the peak positions (13C NMR).
+    /// The tolerance-weighted Jaccard index of the peak positions (13C NMR), after the
+    /// referencing correction when the parameters ask for it.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shift_match: Option<f64>,
     /// One-to-one peak matching.
@@ -286,7 +296,11 @@ pub fn score(
             ));
         }
         Technique::Nmr13c => {
-            shift = Some(shift_match(&ux, &rx, params.peak_tolerance));
+            shift = Some(if params.referencing_correction {
+                shift_match_referenced(&ux, &rx, params.peak_tolerance).0
+            } else {
+                shift_match(&ux, &rx, params.peak_tolerance)
+            });
         }
         Technique::Ir | Technique::Raman | Technique::Nmr1h => {
             let masked: Vec<bool> = (0..grid.len()).map(|i| grid.masked(grid.x(i))).collect();
