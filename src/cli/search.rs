@@ -450,6 +450,9 @@ fn measure_description(p: &ScoreParams, technique: Technique) -> String {
             }
             s.push(')');
         }
+        Measure::ShiftMatch if p.referencing_correction => {
+            s.push_str(" (referencing correction)");
+        }
         _ => {}
     }
     if technique == Technique::MsEi

@@ -240,6 +240,11 @@ fn carbon_13_matches_within_the_tolerance() {
         "--no-referencing-correction",
     ]);
     assert_eq!(names(&as_given)[0], "ethyl acetate");
+    // The ranking line says whether the correction was applied.
+    let args = ["search", path, "-t", "nmr-13c", "--solvent", "CDCl3"];
+    assert!(lab.ok(&args).contains("shift (referencing correction)"));
+    let plain = [&args[..], &["--no-referencing-correction"]].concat();
+    assert!(!lab.ok(&plain).contains("referencing correction"));
     let first = &as_given["hits"][0]["components"];
     // Each pair 0.6 ppm apart counts 1 - 0.6^2 = 0.64 (Epanechnikov weight); 4 pairs of 4 + 4.
     assert!(
