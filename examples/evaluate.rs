@@ -586,9 +586,11 @@ struct Scoring {
     default: bool,
 }
 
-/// The label suffix of the 13C shift match without the referencing correction; THRESHOLDS
-/// has no row of its own for it (rows are keyed by technique, measure and EI direction).
-const NO_REFERENCING: &str = "no referencing correction";
+/// Whether THRESHOLDS has a row of this scoring's own: rows are keyed by technique, measure
+/// and EI-MS direction, so the 13C shift match's variants share the default's row.
+fn keyed(s: &Scoring) -> bool {
+    !(s.technique == Technique::Nmr13c && s.params.measure == Measure::ShiftMatch && !s.default)
+}
 
 fn scorings() -> Vec<Scoring> {
     let mut out = Vec::new();
@@ -639,9 +641,18 @@ fn scorings() -> Vec<Scoring> {
                         variants.push((format!("composite, {dir}"), p.clone()));
                     }
                 } else if t == Technique::Nmr13c && m == Measure::ShiftMatch {
-                    variants.push((m.name().to_string(), p.clone()));
-                    p.referencing_correction = false;
-                    variants.push((format!("{m}, {NO_REFERENCING}"), p));
+                    // The default, each of its two refinements left out, and both (the
+                    // earlier default).
+                    for (referencing, discount, suffix) in [
+                        (true, true, ""),
+                        (true, false, ", no weak-line discount"),
+                        (false, true, ", no referencing correction"),
+                        (false, false, ", neither"),
+                    ] {
+                        p.referencing_correction = referencing;
+                        p.weak_line_discount = discount;
+                        variants.push((format!("{m}{suffix}"), p.clone()));
+                    }
                 } else {
                     variants.push((m.name().to_string(), p));
                 }
@@ -949,7 +960,7 @@ fn print_markdown(
          version of this document). Defaults are chosen among the scoring variants by their top-1 accuracy at the \
          moderate level on the tuning set; every other section reports the reported set, which plays no part in the \
          choice. The chosen defaults: EI-MS reverse search (forward search was the default before) and the 13C shift \
-         match with the referencing correction (new).",
+         match with the referencing correction and the weak-line discount (both new; `neither` is the earlier default).",
         TUNING_RUNS[0],
         TUNING_RUNS[TUNING_RUNS.len() - 1],
         n * REPLICATES as usize * TUNING_RUNS.len()
@@ -1101,7 +1112,7 @@ fn print_markdown(
     );
     println!();
     println!(
-        "Both are rounded up to two decimals and copied into `THRESHOLDS` in `src/search/mod.rs`; a unit test checks that the two agree. Rows are kept per technique, measure and EI-MS search direction; the 13C shift match without the referencing correction has none of its own and uses the shift match's. To show their effect, the table also gives the fraction of correct first hits scoring below the weak score (warned about needlessly), and the number of wrong first hits with the median margin by which they led."
+        "Both are rounded up to two decimals and copied into `THRESHOLDS` in `src/search/mod.rs`; a unit test checks that the two agree. Rows are kept per technique, measure and EI-MS search direction; the 13C shift match's variants without the referencing correction or the weak-line discount have none of their own and use the default shift match's. To show their effect, the table also gives the fraction of correct first hits scoring below the weak score (warned about needlessly), and the number of wrong first hits with the median margin by which they led."
     );
     println!();
     println!(
@@ -1115,7 +1126,7 @@ fn print_markdown(
             .unwrap()
             .0
             .preparation;
-        if s.preparation != first_prep || s.label.ends_with(NO_REFERENCING) {
+        if s.preparation != first_prep || !keyed(s) {
             continue;
         }
         let moderate: Vec<&Outcome> = outs.iter().filter(|o| o.level == Level::Moderate).collect();

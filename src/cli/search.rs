@@ -97,6 +97,9 @@ pub struct ScoringArgs {
     /// 13C NMR: match the shifts as given, without removing a common referencing offset
     #[arg(long)]
     pub no_referencing_correction: bool,
+    /// 13C NMR: count every reference line the unknown lacks in full, weak lines too
+    #[arg(long)]
+    pub no_weak_line_discount: bool,
     /// IR/Raman derivative measure: Savitzky-Golay window in points, odd [default: 11]
     #[arg(long, value_name = "N")]
     pub sg_window: Option<usize>,
@@ -130,14 +133,26 @@ impl ScoringArgs {
                 "leave it out, or search an EI mass spectrum with --technique ms-ei",
             ));
         }
-        if self.no_referencing_correction && technique != Technique::Nmr13c {
+        let carbon_only = [
+            (
+                "--no-referencing-correction",
+                self.no_referencing_correction,
+            ),
+            ("--no-weak-line-discount", self.no_weak_line_discount),
+        ];
+        if technique != Technique::Nmr13c
+            && let Some((flag, _)) = carbon_only.iter().find(|(_, given)| *given)
+        {
             return Err(whorl::Error::invalid(
-                format!("--no-referencing-correction applies to nmr-13c searches, not {technique}"),
+                format!("{flag} applies to nmr-13c searches, not {technique}"),
                 "leave it out, or search a 13C peak list with --technique nmr-13c",
             ));
         }
         if self.no_referencing_correction {
             p.referencing_correction = false;
+        }
+        if self.no_weak_line_discount {
+            p.weak_line_discount = false;
         }
         if self.forward {
             p.composite.reverse = false;
@@ -450,8 +465,16 @@ fn measure_description(p: &ScoreParams, technique: Technique) -> String {
             }
             s.push(')');
         }
-        Measure::ShiftMatch if p.referencing_correction => {
-            s.push_str(" (referencing correction)");
+        Measure::ShiftMatch if p.referencing_correction || p.weak_line_discount => {
+            let on: Vec<&str> = [
+                (p.referencing_correction, "referencing correction"),
+                (p.weak_line_discount, "weak-line discount"),
+            ]
+            .iter()
+            .filter(|(yes, _)| *yes)
+            .map(|(_, what)| *what)
+            .collect();
+            s.push_str(&format!(" ({})", on.join(", ")));
         }
         _ => {}
     }

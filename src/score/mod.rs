@@ -10,7 +10,9 @@ pub use composite::{Composite, CompositeParams, stein_scott};
 pub use derivative::{
     DerivativeParams, derivative_correlation, first_derivative, savgol_coefficients,
 };
-pub use overlap::{Overlap, peak_overlap, shift_match, shift_match_referenced};
+pub use overlap::{
+    Overlap, peak_overlap, shift_match, shift_match_costed, shift_match_referenced, weak_line_costs,
+};
 pub use vector::{cosine, pearson};
 
 use std::fmt;
@@ -35,7 +37,8 @@ pub enum Measure {
     /// Stein & Scott composite (EI-MS).
     Composite,
     /// Tolerance-weighted Jaccard index of the peak positions (13C NMR), by default after
-    /// removing a common referencing offset ([`ScoreParams::referencing_correction`]).
+    /// removing a common referencing offset ([`ScoreParams::referencing_correction`]) and
+    /// with missing weak reference lines discounted ([`ScoreParams::weak_line_discount`]).
     ShiftMatch,
 }
 
@@ -137,6 +140,13 @@ pub struct ScoreParams {
     /// were matched without it, so it reads as false.
     #[serde(default)]
     pub referencing_correction: bool,
+    /// 13C NMR: a reference line the unknown lacks counts against the match by its height
+    /// relative to the reference's median line, at most 1 ([`weak_line_costs`]), so a missing
+    /// weak line (a carbon without H) costs less than a missing typical one. Absent in
+    /// results saved before it existed, which counted every line in full, so it reads as
+    /// false.
+    #[serde(default)]
+    pub weak_line_discount: bool,
 }
 
 impl ScoreParams {
@@ -152,6 +162,7 @@ impl ScoreParams {
             derivative: DerivativeParams::default(),
             // Chosen on the evaluation's tuning set (docs/evaluation.md).
             referencing_correction: technique == Technique::Nmr13c,
+            weak_line_discount: technique == Technique::Nmr13c,
         }
     }
 
@@ -228,8 +239,8 @@ pub struct Scores {
     /// The Stein & Scott terms (EI-MS).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub composite: Option<Composite>,
-    /// The tolerance-weighted Jaccard index of the peak positions (13C NMR), after the
-    /// referencing correction when the parameters ask for it.
+    /// The tolerance-weighted Jaccard index of the peak positions (13C NMR), with the
+    /// referencing correction and the weak-line discount when the parameters ask for them.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shift_match: Option<f64>,
     /// One-to-one peak matching.
@@ -296,11 +307,22 @@ pub fn score(
             ));
         }
         Technique::Nmr13c => {
-            shift = Some(if params.referencing_correction {
-                shift_match_referenced(&ux, &rx, params.peak_tolerance).0
+            // No m/z cutoff applies to 13C, so rx and the reference's peaks correspond.
+            let costs = if params.weak_line_discount {
+                weak_line_costs(&reference.peaks.iter().map(|p| p.height).collect::<Vec<_>>())
             } else {
-                shift_match(&ux, &rx, params.peak_tolerance)
-            });
+                vec![1.0; rx.len()]
+            };
+            let lines: Vec<(f64, f64)> = rx.iter().copied().zip(costs).collect();
+            shift = Some(
+                shift_match_costed(
+                    &ux,
+                    &lines,
+                    params.peak_tolerance,
+                    params.referencing_correction,
+                )
+                .0,
+            );
         }
         Technique::Ir | Technique::Raman | Technique::Nmr1h => {
             let masked: Vec<bool> = (0..grid.len()).map(|i| grid.masked(grid.x(i))).collect();

@@ -68,11 +68,44 @@ pub fn peak_overlap(unknown: &[f64], reference: &[f64], tolerance: f64) -> Overl
 /// W / (N_U + N_R - k) for k pairs: the plain Jaccard index when every pair agrees exactly.
 /// Symmetric, within 0..1, 0 when either list is empty.
 pub fn shift_match(unknown: &[f64], reference: &[f64], tolerance: f64) -> f64 {
-    let mut u = unknown.to_vec();
-    let mut r = reference.to_vec();
-    u.sort_by(f64::total_cmp);
-    r.sort_by(f64::total_cmp);
-    best_pairing(&u, &r, tolerance).map_or(0.0, |p| p.score)
+    shift_match_costed(unknown, &full_cost(reference), tolerance, false).0
+}
+
+fn full_cost(reference: &[f64]) -> Vec<(f64, f64)> {
+    reference.iter().map(|&x| (x, 1.0)).collect()
+}
+
+/// How much each reference line counts against a match when the unknown lacks it, from the
+/// reference's line heights: min(1, height / median height).
+///
+/// Carbons without attached hydrogen give weak lines in a broadband-decoupled 13C spectrum
+/// (no NOE enhancement from attached protons, long relaxation times), and they are the lines
+/// a measured list most often lacks (common practice). A line the reference itself records
+/// as weak is therefore weaker evidence against a match when it is missing than a line of
+/// typical height: it costs its height relative to the median line, at most 1. A list
+/// without intensities (all heights equal) costs 1 per line, the plain shift match.
+pub fn weak_line_costs(heights: &[f64]) -> Vec<f64> {
+    let mut sorted: Vec<f64> = heights.iter().map(|h| h.abs()).collect();
+    sorted.sort_by(f64::total_cmp);
+    let n = sorted.len();
+    if n == 0 {
+        return Vec::new();
+    }
+    let median = if n % 2 == 1 {
+        sorted[n / 2]
+    } else {
+        (sorted[n / 2 - 1] + sorted[n / 2]) / 2.0
+    };
+    heights
+        .iter()
+        .map(|h| {
+            if median > 0.0 {
+                (h.abs() / median).min(1.0)
+            } else {
+                1.0
+            }
+        })
+        .collect()
 }
 
 /// [`shift_match`] after removing a common referencing offset of the unknown's shifts.
@@ -88,14 +121,28 @@ pub fn shift_match(unknown: &[f64], reference: &[f64], tolerance: f64) -> f64 {
 /// lowers a score. Returns the score and the offset removed (0 when none was). Swapping the
 /// two lists changes the offset's sign, not the score.
 pub fn shift_match_referenced(unknown: &[f64], reference: &[f64], tolerance: f64) -> (f64, f64) {
+    shift_match_costed(unknown, &full_cost(reference), tolerance, true)
+}
+
+/// The shift match of `unknown` against reference lines `(shift, cost)`, where a reference
+/// line the pairing leaves out adds its cost (see [`weak_line_costs`]) to the denominator
+/// instead of 1: W / (N_U + sum of the unpaired reference lines' costs), which is
+/// [`shift_match`] when every cost is 1. With `referencing`, as [`shift_match_referenced`].
+/// Returns the score and the offset removed.
+pub fn shift_match_costed(
+    unknown: &[f64],
+    reference: &[(f64, f64)],
+    tolerance: f64,
+    referencing: bool,
+) -> (f64, f64) {
     let mut u = unknown.to_vec();
     let mut r = reference.to_vec();
     u.sort_by(f64::total_cmp);
-    r.sort_by(f64::total_cmp);
+    r.sort_by(|a, b| a.0.total_cmp(&b.0));
     let Some(plain) = best_pairing(&u, &r, tolerance) else {
         return (0.0, 0.0);
     };
-    if plain.differences.len() < 2 {
+    if !referencing || plain.differences.len() < 2 {
         return (plain.score, 0.0);
     }
     let offset = plain.differences.iter().sum::<f64>() / plain.differences.len() as f64;
@@ -108,13 +155,14 @@ pub fn shift_match_referenced(unknown: &[f64], reference: &[f64], tolerance: f64
 
 /// The heaviest non-crossing pairing of two sorted lists (see [`shift_match`]).
 struct Pairing {
-    /// W / (N_U + N_R - k).
+    /// W / (N_U + the costs of the unpaired reference lines), W / (N_U + N_R - k) when
+    /// every cost is 1.
     score: f64,
     /// unknown - reference of every pair, ascending.
     differences: Vec<f64>,
 }
 
-fn best_pairing(u: &[f64], r: &[f64], tolerance: f64) -> Option<Pairing> {
+fn best_pairing(u: &[f64], r: &[(f64, f64)], tolerance: f64) -> Option<Pairing> {
     let (n, m) = (u.len(), r.len());
     if n == 0 || m == 0 || tolerance <= 0.0 {
         return None;
@@ -134,7 +182,7 @@ fn best_pairing(u: &[f64], r: &[f64], tolerance: f64) -> Option<Pairing> {
                 cell = left;
                 how = 1;
             }
-            let d = (u[i - 1] - r[j - 1]).abs();
+            let d = (u[i - 1] - r[j - 1].0).abs();
             if d <= tolerance {
                 let w = 1.0 - (d / tolerance).powi(2);
                 let diag = best[at(i - 1, j - 1)];
@@ -150,11 +198,13 @@ fn best_pairing(u: &[f64], r: &[f64], tolerance: f64) -> Option<Pairing> {
     }
     let (weight, pairs) = best[at(n, m)];
     let mut differences = Vec::with_capacity(pairs);
+    let mut unpaired_cost: f64 = r.iter().map(|l| l.1).sum();
     let (mut i, mut j) = (n, m);
     while i > 0 && j > 0 {
         match step[at(i, j)] {
             2 => {
-                differences.push(u[i - 1] - r[j - 1]);
+                differences.push(u[i - 1] - r[j - 1].0);
+                unpaired_cost -= r[j - 1].1;
                 i -= 1;
                 j -= 1;
             }
@@ -163,8 +213,10 @@ fn best_pairing(u: &[f64], r: &[f64], tolerance: f64) -> Option<Pairing> {
         }
     }
     differences.reverse();
+    // N_U + N_R - k with every cost 1.
+    let denominator = n as f64 + unpaired_cost.max(0.0);
     Some(Pairing {
-        score: (weight / (n + m - pairs) as f64).clamp(0.0, 1.0),
+        score: (weight / denominator).clamp(0.0, 1.0),
         differences,
     })
 }
@@ -233,5 +285,30 @@ mod tests {
         let (s, off) = shift_match_referenced(&[67.8], &[67.2], 1.0);
         assert!((s - 0.64).abs() < 1e-12 && off == 0.0, "{s} {off}");
         assert_eq!(shift_match_referenced(&[], &[1.0], 1.0), (0.0, 0.0));
+    }
+
+    #[test]
+    fn weak_line_discount_hand_worked() {
+        // Worked by hand (the discount is whorl's own, described in weak_line_costs).
+        // Heights 1, 0.5, 0.3, 1 (sorted 0.3, 0.5, 1, 1): median (0.5 + 1) / 2 = 0.75;
+        // costs min(1, h / 0.75) = 1, 0.6667, 0.4, 1.
+        let c = weak_line_costs(&[1.0, 0.5, 0.3, 1.0]);
+        let want = [1.0, 0.5 / 0.75, 0.3 / 0.75, 1.0];
+        assert!(
+            c.iter().zip(want).all(|(a, b)| (a - b).abs() < 1e-12),
+            "{c:?}"
+        );
+        assert_eq!(weak_line_costs(&[1.0, 1.0, 1.0]), [1.0, 1.0, 1.0]);
+        // Unknown 20.0, 30.0 against 20.0 (cost 1), 30.0 (cost 1), 140.0 (cost 0.3), all
+        // pairs exact: W = 2, denominator N_U + unpaired cost = 2 + 0.3, score 2 / 2.3;
+        // without the discount 2 / (2 + 3 - 2) = 2 / 3.
+        let r = [(20.0, 1.0), (30.0, 1.0), (140.0, 0.3)];
+        let (s, _) = shift_match_costed(&[30.0, 20.0], &r, 1.0, false);
+        assert!((s - 2.0 / 2.3).abs() < 1e-12, "{s}");
+        assert!((shift_match(&[20.0, 30.0], &[20.0, 30.0, 140.0], 1.0) - 2.0 / 3.0).abs() < 1e-12);
+        // A missing strong line costs in full: 20.0, 140.0 against the same list pairs two
+        // (W = 2) and leaves 30.0 (cost 1) out: 2 / (2 + 1).
+        let (s, _) = shift_match_costed(&[20.0, 140.0], &r, 1.0, false);
+        assert!((s - 2.0 / 3.0).abs() < 1e-12, "{s}");
     }
 }

@@ -216,7 +216,7 @@ pub const THRESHOLDS: [Threshold; 13] = [
     row(Technique::MsEi, Measure::Cosine, false, 0.88, 0.02),
     row(Technique::Nmr1h, Measure::Cosine, false, 0.92, 0.03),
     row(Technique::Nmr1h, Measure::Correlation, false, 0.93, 0.03),
-    row(Technique::Nmr13c, Measure::ShiftMatch, false, 0.64, 0.24),
+    row(Technique::Nmr13c, Measure::ShiftMatch, false, 0.67, 0.26),
     row(Technique::Nmr13c, Measure::Cosine, false, 0.67, 0.50),
 ];
 

@@ -242,9 +242,12 @@ fn carbon_13_matches_within_the_tolerance() {
     assert_eq!(names(&as_given)[0], "ethyl acetate");
     // The ranking line says whether the correction was applied.
     let args = ["search", path, "-t", "nmr-13c", "--solvent", "CDCl3"];
-    assert!(lab.ok(&args).contains("shift (referencing correction)"));
+    assert!(
+        lab.ok(&args)
+            .contains("shift (referencing correction, weak-line discount)")
+    );
     let plain = [&args[..], &["--no-referencing-correction"]].concat();
-    assert!(!lab.ok(&plain).contains("referencing correction"));
+    assert!(lab.ok(&plain).contains("shift (weak-line discount)"));
     let first = &as_given["hits"][0]["components"];
     // Each pair 0.6 ppm apart counts 1 - 0.6^2 = 0.64 (Epanechnikov weight); 4 pairs of 4 + 4.
     assert!(
@@ -665,8 +668,8 @@ fn searches_saved_with_the_earlier_defaults_replay_with_them() {
     let now = lab.json(&["search", "ms.csv", "-t", "ms-ei"]);
     assert_ne!(now["hits"][0]["score"], r["now"]["hits"][0]["score"]);
 
-    // 13C: a record from before the referencing correction has no such field; it replays
-    // without the correction.
+    // 13C: a record from before the referencing correction and the weak-line discount has
+    // neither field; it replays without them.
     lab.write("c.csv", c13(&[171.7, 61.1, 21.6, 14.8]));
     lab.ok(&[
         "search",
@@ -676,6 +679,7 @@ fn searches_saved_with_the_earlier_defaults_replay_with_them() {
         "--solvent",
         "CDCl3",
         "--no-referencing-correction",
+        "--no-weak-line-discount",
         "--save",
         "c.json",
     ]);
@@ -686,11 +690,11 @@ fn searches_saved_with_the_earlier_defaults_replay_with_them() {
         score.remove("referencing_correction"),
         Some(Value::Bool(false))
     );
+    assert_eq!(score.remove("weak_line_discount"), Some(Value::Bool(false)));
     lab.write("c.json", serde_json::to_string(&saved).unwrap());
     let r = lab.json(&["replay", "c.json"]);
     assert_eq!(r["same"], true, "{r}");
-    assert_eq!(
-        r["now"]["parameters"]["score"]["referencing_correction"],
-        false
-    );
+    for key in ["referencing_correction", "weak_line_discount"] {
+        assert_eq!(r["now"]["parameters"]["score"][key], false, "{key}");
+    }
 }
