@@ -544,6 +544,9 @@ mod tests {
             (true, None, 50),
         ] {
             let mut r = Request::new(technique);
+            // The cache serves forward EI search only; the default reverse search takes the
+            // exact path.
+            r.params.composite.reverse = false;
             if pending {
                 r.statuses.push(Status::Pending);
             }

@@ -77,9 +77,14 @@ pub struct ScoringArgs {
     /// 1H 0.03 ppm, 13C 1.0 ppm]
     #[arg(long, value_name = "X")]
     pub tolerance: Option<f64>,
-    /// EI-MS reverse search: only m/z present in the reference count
-    #[arg(long)]
+    /// EI-MS reverse search, the default: only m/z present in the reference count, so
+    /// co-eluting and background ions in the unknown do not lower the score
+    #[arg(long, conflicts_with = "forward")]
     pub reverse: bool,
+    /// EI-MS forward search: every m/z of the unknown counts (the earlier default; see
+    /// docs/evaluation.md)
+    #[arg(long)]
+    pub forward: bool,
     /// EI-MS: leave out ions below this m/z, in the unknown and the references
     #[arg(long, value_name = "MZ")]
     pub min_mz: Option<f64>,
@@ -89,6 +94,12 @@ pub struct ScoringArgs {
     /// EI-MS: exponent of the abundance in the peak weight [default: 0.6]
     #[arg(long, value_name = "M")]
     pub intensity_exponent: Option<f64>,
+    /// 13C NMR: match the shifts as given, without removing a common referencing offset
+    #[arg(long)]
+    pub no_referencing_correction: bool,
+    /// 13C NMR: count every reference line the unknown lacks in full, weak lines too
+    #[arg(long)]
+    pub no_weak_line_discount: bool,
     /// IR/Raman derivative measure: Savitzky-Golay window in points, odd [default: 11]
     #[arg(long, value_name = "N")]
     pub sg_window: Option<usize>,
@@ -109,6 +120,7 @@ impl ScoringArgs {
         }
         let ms_only = [
             ("--reverse", self.reverse),
+            ("--forward", self.forward),
             ("--min-mz", self.min_mz.is_some()),
             ("--mz-exponent", self.mz_exponent.is_some()),
             ("--intensity-exponent", self.intensity_exponent.is_some()),
@@ -121,7 +133,32 @@ impl ScoringArgs {
                 "leave it out, or search an EI mass spectrum with --technique ms-ei",
             ));
         }
-        p.composite.reverse = self.reverse;
+        let carbon_only = [
+            (
+                "--no-referencing-correction",
+                self.no_referencing_correction,
+            ),
+            ("--no-weak-line-discount", self.no_weak_line_discount),
+        ];
+        if technique != Technique::Nmr13c
+            && let Some((flag, _)) = carbon_only.iter().find(|(_, given)| *given)
+        {
+            return Err(whorl::Error::invalid(
+                format!("{flag} applies to nmr-13c searches, not {technique}"),
+                "leave it out, or search a 13C peak list with --technique nmr-13c",
+            ));
+        }
+        if self.no_referencing_correction {
+            p.referencing_correction = false;
+        }
+        if self.no_weak_line_discount {
+            p.weak_line_discount = false;
+        }
+        if self.forward {
+            p.composite.reverse = false;
+        } else if self.reverse {
+            p.composite.reverse = true;
+        }
         p.min_mz = self.min_mz;
         if let Some(n) = self.mz_exponent {
             p.composite.mass_exponent = n;
@@ -417,12 +454,27 @@ fn measure_description(p: &ScoreParams, technique: Technique) -> String {
                 " (weights intensity^{} x (m/z)^{}{}",
                 c.intensity_exponent,
                 c.mass_exponent,
-                if c.reverse { ", reverse search" } else { "" }
+                if c.reverse {
+                    ", reverse search"
+                } else {
+                    ", forward search"
+                }
             ));
             if let Some(m) = p.min_mz {
                 s.push_str(&format!(", m/z >= {m}"));
             }
             s.push(')');
+        }
+        Measure::ShiftMatch if p.referencing_correction || p.weak_line_discount => {
+            let on: Vec<&str> = [
+                (p.referencing_correction, "referencing correction"),
+                (p.weak_line_discount, "weak-line discount"),
+            ]
+            .iter()
+            .filter(|(yes, _)| *yes)
+            .map(|(_, what)| *what)
+            .collect();
+            s.push_str(&format!(" ({})", on.join(", ")));
         }
         _ => {}
     }

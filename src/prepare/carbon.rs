@@ -20,7 +20,9 @@ pub const PROFILE_POINTS: usize = 256;
 /// only: the vector holds a 1 in the grid bin of every peak (then L2-normalised) and serves
 /// the cosine column; ranking uses the shift match of the peak positions
 /// ([`crate::score::shift_match`]). Heights are kept, relative to the strongest peak, for
-/// display. The declared solvent's own signals and TMS are masked.
+/// display and, in a reference, to tell weak lines (often carbons without H) from typical
+/// ones for the shift match's weak-line discount ([`crate::score::weak_line_costs`]). The
+/// declared solvent's own signals and TMS are masked.
 pub(super) fn prepare(
     recipe: &Recipe,
     sorted: &[(f64, f64)],

@@ -10,7 +10,9 @@ pub use composite::{Composite, CompositeParams, stein_scott};
 pub use derivative::{
     DerivativeParams, derivative_correlation, first_derivative, savgol_coefficients,
 };
-pub use overlap::{Overlap, peak_overlap, shift_match};
+pub use overlap::{
+    Overlap, peak_overlap, shift_match, shift_match_costed, shift_match_referenced, weak_line_costs,
+};
 pub use vector::{cosine, pearson};
 
 use std::fmt;
@@ -34,15 +36,18 @@ pub enum Measure {
     Derivative,
     /// Stein & Scott composite (EI-MS).
     Composite,
-    /// Tolerance-weighted Jaccard index of the peak positions (13C NMR).
+    /// Tolerance-weighted Jaccard index of the peak positions (13C NMR), by default after
+    /// removing a common referencing offset ([`ScoreParams::referencing_correction`]) and
+    /// with missing weak reference lines discounted ([`ScoreParams::weak_line_discount`]).
     ShiftMatch,
 }
 
 impl Measure {
     /// The measure a technique uses unless told otherwise. IR and Raman rank by correlation,
     /// which ignores a constant offset of the baseline; 1H NMR by cosine of the area-normalised
-    /// bins; EI-MS by the Stein & Scott composite; 13C NMR by the shift match, because a 13C
-    /// peak list carries positions, not quantitative intensities.
+    /// bins; EI-MS by the Stein & Scott composite (in reverse search by default, see
+    /// [`CompositeParams`]); 13C NMR by the shift match, because a 13C peak list carries
+    /// positions, not quantitative intensities.
     pub fn default_for(technique: Technique) -> Measure {
         match technique {
             Technique::Ir | Technique::Raman => Measure::Correlation,
@@ -130,6 +135,18 @@ pub struct ScoreParams {
     /// IR, Raman: the Savitzky-Golay first derivative of the derivative correlation.
     #[serde(default)]
     pub derivative: DerivativeParams,
+    /// 13C NMR: remove a common referencing offset of the unknown's shifts before the shift
+    /// match ([`shift_match_referenced`]). Absent in results saved before it existed, which
+    /// were matched without it, so it reads as false.
+    #[serde(default)]
+    pub referencing_correction: bool,
+    /// 13C NMR: a reference line the unknown lacks counts against the match by its height
+    /// relative to the reference's median line, at most 1 ([`weak_line_costs`]), so a missing
+    /// weak line (a carbon without H) costs less than a missing typical one. Absent in
+    /// results saved before it existed, which counted every line in full, so it reads as
+    /// false.
+    #[serde(default)]
+    pub weak_line_discount: bool,
 }
 
 impl ScoreParams {
@@ -143,6 +160,9 @@ impl ScoreParams {
             composite: CompositeParams::default(),
             min_mz: None,
             derivative: DerivativeParams::default(),
+            // Chosen on the evaluation's tuning set (docs/evaluation.md).
+            referencing_correction: technique == Technique::Nmr13c,
+            weak_line_discount: technique == Technique::Nmr13c,
         }
     }
 
@@ -219,7 +239,8 @@ pub struct Scores {
     /// The Stein & Scott terms (EI-MS).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub composite: Option<Composite>,
-    /// The tolerance-weighted Jaccard index of the peak positions (13C NMR).
+    /// The tolerance-weighted Jaccard index of the peak positions (13C NMR), with the
+    /// referencing correction and the weak-line discount when the parameters ask for them.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shift_match: Option<f64>,
     /// One-to-one peak matching.
@@ -286,7 +307,22 @@ pub fn score(
             ));
         }
         Technique::Nmr13c => {
-            shift = Some(shift_match(&ux, &rx, params.peak_tolerance));
+            // No m/z cutoff applies to 13C, so rx and the reference's peaks correspond.
+            let costs = if params.weak_line_discount {
+                weak_line_costs(&reference.peaks.iter().map(|p| p.height).collect::<Vec<_>>())
+            } else {
+                vec![1.0; rx.len()]
+            };
+            let lines: Vec<(f64, f64)> = rx.iter().copied().zip(costs).collect();
+            shift = Some(
+                shift_match_costed(
+                    &ux,
+                    &lines,
+                    params.peak_tolerance,
+                    params.referencing_correction,
+                )
+                .0,
+            );
         }
         Technique::Ir | Technique::Raman | Technique::Nmr1h => {
             let masked: Vec<bool> = (0..grid.len()).map(|i| grid.masked(grid.x(i))).collect();

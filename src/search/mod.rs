@@ -217,19 +217,24 @@ pub const THRESHOLDS: [Threshold; 13] = [
     row(Technique::MsEi, Measure::Cosine, false, 0.88, 0.02),
     row(Technique::Nmr1h, Measure::Cosine, false, 0.92, 0.03),
     row(Technique::Nmr1h, Measure::Correlation, false, 0.93, 0.03),
-    row(Technique::Nmr13c, Measure::ShiftMatch, false, 0.57, 0.24),
+    row(Technique::Nmr13c, Measure::ShiftMatch, false, 0.67, 0.26),
     row(Technique::Nmr13c, Measure::Cosine, false, 0.67, 0.50),
 ];
 
 /// The thresholds for a technique and its score parameters: the derived row for this
-/// technique, measure and search direction; for a combination the evaluation did not cover
-/// (for example an EI-MS reverse search ranked by cosine), the row of the technique's default
-/// measure, marked as not derived for this scoring.
+/// technique, measure and search direction (which matters only to the EI-MS composite); for
+/// a combination the table lacks, the row of the technique's default scoring, marked as not
+/// derived for this scoring.
 pub fn confidence(technique: Technique, params: &ScoreParams) -> Confidence {
-    let reverse = technique == Technique::MsEi && params.composite.reverse;
+    // The search direction shapes only the composite score.
+    let direction = |p: &ScoreParams| {
+        technique == Technique::MsEi && p.measure == Measure::Composite && p.composite.reverse
+    };
+    let reverse = direction(params);
     let exact = THRESHOLDS
         .iter()
         .find(|t| t.technique == technique && t.measure == params.measure && t.reverse == reverse);
+    let default = ScoreParams::default_for(technique);
     let (row, derived) = match exact {
         Some(r) => (r, true),
         None => (
@@ -237,8 +242,8 @@ pub fn confidence(technique: Technique, params: &ScoreParams) -> Confidence {
                 .iter()
                 .find(|t| {
                     t.technique == technique
-                        && t.measure == Measure::default_for(technique)
-                        && !t.reverse
+                        && t.measure == default.measure
+                        && t.reverse == direction(&default)
                 })
                 .expect("every technique has a row for its default measure"),
             false,
@@ -777,6 +782,7 @@ mod tests {
             let technique: Technique = cells[0].parse().unwrap();
             let (measure, reverse) = match cells[1].split_once(", ") {
                 Some((m, "reverse")) => (m, true),
+                Some((m, "forward")) => (m, false),
                 _ => (cells[1], false),
             };
             let measure: Measure = measure.parse().unwrap();
@@ -805,10 +811,13 @@ mod tests {
             assert!(c.derived, "{t}");
             assert!(c.weak_score > 0.0 && c.close_margin > 0.0);
         }
+        // The search direction does not change the cosine, so it keeps the cosine's row.
         let mut p = ScoreParams::default_for(Technique::MsEi);
         p.measure = Measure::Cosine;
-        p.composite.reverse = true;
-        let c = confidence(Technique::MsEi, &p);
-        assert!(!c.derived);
+        for reverse in [false, true] {
+            p.composite.reverse = reverse;
+            let c = confidence(Technique::MsEi, &p);
+            assert!(c.derived, "{p:?}");
+        }
     }
 }

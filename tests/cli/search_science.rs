@@ -29,14 +29,18 @@ fn names(report: &Value) -> Vec<String> {
 fn ms_exponents_reverse_and_cutoff_are_parameters_of_the_result() {
     let lab = seeded();
     let u = unknown("u09.ms-ei.csv"); // ethylbenzene with column-bleed ions 207 and 281
-    let fwd = lab.json(&["search", &u, "-t", "ms-ei"]);
-    let composite = &fwd["parameters"]["score"]["composite"];
-    // Stein & Scott 1994 defaults: intensity^0.6 x (m/z)^3.
+    let rev = lab.json(&["search", &u, "-t", "ms-ei"]);
+    let composite = &rev["parameters"]["score"]["composite"];
+    // Stein & Scott 1994 defaults: intensity^0.6 x (m/z)^3; reverse search by default.
     assert_eq!(composite["intensity_exponent"], 0.6);
     assert_eq!(composite["mass_exponent"], 3.0);
-    assert_eq!(composite["reverse"], false);
-    let rev = lab.json(&["search", &u, "-t", "ms-ei", "--reverse"]);
-    assert_eq!(rev["parameters"]["score"]["composite"]["reverse"], true);
+    assert_eq!(composite["reverse"], true);
+    assert_eq!(
+        lab.json(&["search", &u, "-t", "ms-ei", "--reverse"])["parameters"],
+        rev["parameters"]
+    );
+    let fwd = lab.json(&["search", &u, "-t", "ms-ei", "--forward"]);
+    assert_eq!(fwd["parameters"]["score"]["composite"]["reverse"], false);
     assert_eq!(names(&fwd)[0], "ethylbenzene");
     assert_eq!(names(&rev)[0], "ethylbenzene");
     // The bleed ions are not in the reference, so reverse search ignores them and scores higher.
@@ -217,8 +221,34 @@ fn carbon_13_matches_within_the_tolerance() {
     assert_eq!(names(&wide)[0], "ethyl acetate");
     assert_eq!(wide["parameters"]["score"]["peak_tolerance"], 1.0);
     assert_eq!(wide["parameters"]["score"]["measure"], "shift-match");
+    assert_eq!(wide["parameters"]["score"]["referencing_correction"], true);
     let first = &wide["hits"][0]["components"];
     assert_eq!(first["peak_overlap"]["matched"], 4);
+    // The referencing correction removes the common 0.6 ppm (the mean of the four pair
+    // differences), after which every pair agrees: 4 / (4 + 4 - 4) = 1.
+    assert!(
+        (first["shift_match"].as_f64().unwrap() - 1.0).abs() < 1e-9,
+        "{first}"
+    );
+    let as_given = lab.json(&[
+        "search",
+        path,
+        "-t",
+        "nmr-13c",
+        "--solvent",
+        "CDCl3",
+        "--no-referencing-correction",
+    ]);
+    assert_eq!(names(&as_given)[0], "ethyl acetate");
+    // The ranking line says whether the correction was applied.
+    let args = ["search", path, "-t", "nmr-13c", "--solvent", "CDCl3"];
+    assert!(
+        lab.ok(&args)
+            .contains("shift (referencing correction, weak-line discount)")
+    );
+    let plain = [&args[..], &["--no-referencing-correction"]].concat();
+    assert!(lab.ok(&plain).contains("shift (weak-line discount)"));
+    let first = &as_given["hits"][0]["components"];
     // Each pair 0.6 ppm apart counts 1 - 0.6^2 = 0.64 (Epanechnikov weight); 4 pairs of 4 + 4.
     assert!(
         (first["shift_match"].as_f64().unwrap() - 0.64).abs() < 1e-9,
@@ -564,4 +594,107 @@ fn hit_lists_state_their_confidence() {
         "{}",
         r["warnings"]
     );
+}
+
+/// The EI peaks `(m/z, relative abundance)` of a compound in the seed tables.
+fn seed_ms(name: &str) -> Vec<(u32, f64)> {
+    let text = std::fs::read_to_string(seed().join("compounds.json")).unwrap();
+    let v: Value = serde_json::from_str(&text).unwrap();
+    let c = v["compounds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == name)
+        .unwrap_or_else(|| panic!("{name} in compounds.json"));
+    c["ms"]["peaks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| (p["mz"].as_u64().unwrap() as u32, p["rel"].as_f64().unwrap()))
+        .collect()
+}
+
+#[test]
+fn a_co_eluting_contaminant_does_not_take_the_first_place() {
+    // The evaluation's moderate EI degradation without its noise: 1-propanol with toluene
+    // co-eluting at 15 %, ions under 5 % of the base peak lost. Both spectra come from the
+    // seed tables the library's references were made from.
+    let lab = seeded();
+    let mut ions = std::collections::BTreeMap::<u32, f64>::new();
+    for (mz, rel) in seed_ms("1-propanol") {
+        if rel >= 5.0 {
+            *ions.entry(mz).or_default() += rel;
+        }
+    }
+    for (mz, rel) in seed_ms("toluene") {
+        if 0.15 * rel >= 5.0 {
+            *ions.entry(mz).or_default() += 0.15 * rel;
+        }
+    }
+    assert!(ions.contains_key(&91) && ions.contains_key(&31), "{ions:?}");
+    let mut csv = String::from("mz,intensity\n");
+    for (mz, a) in &ions {
+        csv.push_str(&format!("{mz},{a}\n"));
+    }
+    lab.write("mix.csv", csv);
+    let default = lab.json(&["search", "mix.csv", "-t", "ms-ei"]);
+    assert_eq!(names(&default)[0], "1-propanol", "{default}");
+    // Forward search, the default before, puts the contaminant first: its heavy ions (91,
+    // 92) outweigh 1-propanol's light ones under the (m/z)^3 weight.
+    let forward = lab.json(&["search", "mix.csv", "-t", "ms-ei", "--forward"]);
+    assert_eq!(names(&forward)[0], "toluene", "{forward}");
+}
+
+#[test]
+fn searches_saved_with_the_earlier_defaults_replay_with_them() {
+    let lab = seeded();
+    // EI-MS: a search saved with forward search (the earlier default) records it.
+    lab.write("ms.csv", std::fs::read(unknown("u09.ms-ei.csv")).unwrap());
+    lab.ok(&[
+        "search",
+        "ms.csv",
+        "-t",
+        "ms-ei",
+        "--forward",
+        "--save",
+        "ms.json",
+    ]);
+    let r = lab.json(&["replay", "ms.json"]);
+    assert_eq!(r["same"], true, "{r}");
+    assert_eq!(
+        r["now"]["parameters"]["score"]["composite"]["reverse"],
+        false
+    );
+    let now = lab.json(&["search", "ms.csv", "-t", "ms-ei"]);
+    assert_ne!(now["hits"][0]["score"], r["now"]["hits"][0]["score"]);
+
+    // 13C: a record from before the referencing correction and the weak-line discount has
+    // neither field; it replays without them.
+    lab.write("c.csv", c13(&[171.7, 61.1, 21.6, 14.8]));
+    lab.ok(&[
+        "search",
+        "c.csv",
+        "-t",
+        "nmr-13c",
+        "--solvent",
+        "CDCl3",
+        "--no-referencing-correction",
+        "--no-weak-line-discount",
+        "--save",
+        "c.json",
+    ]);
+    let mut saved: Value =
+        serde_json::from_str(&std::fs::read_to_string(lab.path("c.json")).unwrap()).unwrap();
+    let score = saved["parameters"]["score"].as_object_mut().unwrap();
+    assert_eq!(
+        score.remove("referencing_correction"),
+        Some(Value::Bool(false))
+    );
+    assert_eq!(score.remove("weak_line_discount"), Some(Value::Bool(false)));
+    lab.write("c.json", serde_json::to_string(&saved).unwrap());
+    let r = lab.json(&["replay", "c.json"]);
+    assert_eq!(r["same"], true, "{r}");
+    for key in ["referencing_correction", "weak_line_discount"] {
+        assert_eq!(r["now"]["parameters"]["score"][key], false, "{key}");
+    }
 }
