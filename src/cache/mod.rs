@@ -12,7 +12,7 @@ mod scan;
 pub mod synthetic;
 
 pub use file::{CACHE_DIR, FORMAT_VERSION, Kind, VectorCache};
-pub use scan::rank;
+pub use scan::{Trace, rank, rank_traced};
 
 use std::cell::RefCell;
 use std::collections::HashMap;
