@@ -213,6 +213,16 @@ impl TopK {
         self.heap.len() >= self.k
     }
 
+    /// The smallest key a push can still add: minus infinity until `k` keys are held.
+    #[inline]
+    pub fn floor(&self) -> f32 {
+        if self.full() {
+            self.min().unwrap_or(f32::NEG_INFINITY)
+        } else {
+            f32::NEG_INFINITY
+        }
+    }
+
     /// The smallest key held.
     pub fn min(&self) -> Option<f32> {
         self.heap.peek().map(|Reverse(e)| e.0)

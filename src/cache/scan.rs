@@ -59,7 +59,8 @@ struct Query<'a> {
 
 /// Peak positions to bitmap bins: `NEAR_BINS` equal bins over the grid's range, positions
 /// outside clamped to the end bins. The map is monotone (a subtraction, a product with a
-/// positive factor, a floor and a clamp each are, in floating point too), so a position
+/// positive factor, a floor and a clamp each are, in floating point too; the floor is a
+/// truncation of a value clamped at 0), so a position
 /// within `[u - t, u + t]` falls in a bin between those of `u - t` and `u + t`.
 #[derive(Debug, Clone, Copy)]
 struct Bins {
@@ -83,9 +84,13 @@ impl Bins {
 
     #[inline]
     fn bin(self, x: f64) -> usize {
-        ((x - self.lo) * self.inv)
-            .floor()
-            .clamp(0.0, (NEAR_BINS - 1) as f64) as usize
+        // Truncation is the floor for values above 0; `as` saturates; NaN goes to bin 0.
+        let v = (x - self.lo) * self.inv;
+        if v > 0.0 {
+            v.min((NEAR_BINS - 1) as f64) as u32 as usize
+        } else {
+            0
+        }
     }
 }
 
@@ -189,7 +194,7 @@ fn rank_keeping(
         Some(q) => Some(library.text().matching_ids(q)?),
         None => None,
     };
-    let (mask, compared) = row_mask(&cache, &request.statuses, allowed.as_ref());
+    let (mask, compared, searched) = row_mask(&cache, &request.statuses, allowed.as_ref());
     let active = active_bins(&grid);
     let bins = Bins::new(&grid);
     let tol = request.params.peak_tolerance;
@@ -232,7 +237,11 @@ fn rank_keeping(
                 _ => scored,
             };
             trace.exact_rows += exact.done.len();
-            out.push(Ranking { scored, compared });
+            out.push(Ranking {
+                scored,
+                compared,
+                searched,
+            });
         }
     }
     Ok(Some(out))
@@ -240,11 +249,12 @@ fn rank_keeping(
 
 /// The rows a request may return: status wanted and, with a metadata query, id in its set.
 /// Built from the id set by binary search over the (ascending) ids: no lookup per row.
+/// Also the number of rows allowed, and of rows with a wanted status.
 fn row_mask(
     cache: &VectorCache,
     statuses: &[Status],
     allowed: Option<&HashSet<i64>>,
-) -> (Vec<u64>, usize) {
+) -> (Vec<u64>, usize, usize) {
     let n = cache.rows();
     let want = |s: u8| {
         if s == 1 {
@@ -275,7 +285,8 @@ fn row_mask(
         }
     }
     let count = mask.iter().map(|w| w.count_ones() as usize).sum();
-    (mask, count)
+    let searched = status.iter().filter(|&&s| want(s)).count();
+    (mask, count, searched)
 }
 
 fn make_query<'a>(
@@ -322,35 +333,44 @@ fn make_query<'a>(
 }
 
 /// An upper bound on the peaks one-to-one matching can pair between the unknown and a row
-/// whose peaks fall in `row_bins`: every paired row peak lies within the tolerance of an
+/// whose peaks lie at `row_x`: every paired row peak lies within the tolerance of an
 /// unknown peak, so its bin is marked in `near`; and no more than either side has.
 #[inline]
-fn matched_bound(q: &Query<'_>, row_bins: &[u16]) -> usize {
-    let near = row_bins
+fn matched_bound(q: &Query<'_>, bins: &Bins, row_x: &[f32]) -> usize {
+    let near = row_x
         .iter()
-        .filter(|&&b| q.near[usize::from(b) / 64] >> (b % 64) & 1 == 1)
+        .map(|&x| bins.bin(f64::from(x)))
+        .filter(|&b| q.near[b / 64] >> (b % 64) & 1 == 1)
         .count();
     near.min(q.xs.len())
 }
 
-/// The combined-score bound of the first scan for a dense row, from its i8 dot product.
+/// The combined-score bound of the first scan for a dense row, from its i8 dot product
+/// (`sx`, `l1x`: the row's scale and L1 norm). When even a peak overlap of 1 would leave the
+/// bound below `floor`, that looser bound is returned without counting the peaks.
 #[inline]
+#[allow(clippy::too_many_arguments)]
 fn dense_key(
-    cache: &VectorCache,
     q: &Query<'_>,
     qscale: f32,
-    row: usize,
+    sx: f32,
+    l1x: f32,
     idot: i32,
-    row_bins: &[u16],
+    bins: &Bins,
+    row_x: &[f32],
     w: f64,
+    floor: f32,
 ) -> f32 {
-    let (ql1, sx) = (q.l1, cache.scales()[row]);
     let est = qscale * sx * idot as f32;
-    let err = 0.5 * ql1 * sx + 0.5 * qscale * cache.l1()[row] + 1e-5;
+    let err = 0.5 * q.l1 * sx + 0.5 * qscale * l1x + 1e-5;
     let r = f64::from(est + err).clamp(0.0, 1.0);
+    let loose = (w * r + (1.0 - w) + 1e-6) as f32;
+    if loose < floor {
+        return loose;
+    }
     // The Jaccard m / (nu + nr - m) grows with the matched count m, so a bound on m bounds it.
-    let (nu, nr) = (q.xs.len(), row_bins.len());
-    let m = matched_bound(q, row_bins);
+    let (nu, nr) = (q.xs.len(), row_x.len());
+    let m = matched_bound(q, bins, row_x);
     let jaccard = if nu + nr == 0 {
         0.0
     } else {
@@ -469,18 +489,16 @@ fn first_scan(
                     let rows = &cache.i8_matrix()[r0 * s..r1 * s];
                     let mut dots = vec![0i32; len * nq];
                     i8_dots(rows, s, &qmatrix, &mut dots);
-                    // The chunk's peak positions as bins, once for every unknown.
-                    let p0 = cache.peak_range(r0).start;
-                    let row_bins: Vec<u16> = cache.peak_x()[p0..cache.peak_range(r1 - 1).end]
-                        .iter()
-                        .map(|&x| bins.bin(f64::from(x)) as u16)
-                        .collect();
+                    let (scales, l1s, px) = (cache.scales(), cache.l1(), cache.peak_x());
                     for r in (r0..r1).filter(|&r| on(r)) {
-                        let pr = cache.peak_range(r);
-                        let rb = &row_bins[pr.start - p0..pr.end - p0];
+                        let rb = &px[cache.peak_range(r)];
+                        let (sx, l1x) = (scales[r], l1s[r]);
                         for (j, heap) in heaps.iter_mut().enumerate() {
                             let (q, (_, qs)) = (&queries[j], &quantised[j]);
-                            let key = dense_key(cache, q, *qs, r, dots[(r - r0) * nq + j], rb, w);
+                            // A key below the worker's smallest kept one need not be tight.
+                            let floor = heap.floor();
+                            let idot = dots[(r - r0) * nq + j];
+                            let key = dense_key(q, *qs, sx, l1x, idot, bins, rb, w, floor);
                             keys[j * len + r - r0] = key;
                             heap.push(key, r);
                         }
@@ -796,10 +814,9 @@ mod tests {
                     q.near[b / 64] |= 1 << (b % 64);
                 }
             }
-            let row_bins: Vec<u16> =
-                r.iter().map(|&x| bins.bin(f64::from(x as f32)) as u16).collect();
+            let row_x: Vec<f32> = r.iter().map(|&x| x as f32).collect();
             let exact = peak_overlap(&u, &r, tol).matched;
-            proptest::prop_assert!(matched_bound(&q, &row_bins) >= exact);
+            proptest::prop_assert!(matched_bound(&q, &bins, &row_x) >= exact);
         }
     }
 
