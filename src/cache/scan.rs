@@ -821,6 +821,23 @@ mod tests {
     }
 
     #[test]
+    fn a_cache_build_reports_its_progress() {
+        let (lib, refs) = random_library(Technique::Ir, 40, 31);
+        let seen = std::sync::Arc::new(std::sync::Mutex::new(Vec::new()));
+        let log = seen.clone();
+        lib.on_cache_build(move |t, done, total| log.lock().unwrap().push((t, done, total)));
+        let mut r = Request::new(Technique::Ir);
+        r.statuses.push(Status::Pending);
+        search(&lib, &unknown(&lib, Technique::Ir, refs[3].clone()), &r).unwrap();
+        let first = seen.lock().unwrap().clone();
+        assert_eq!(first.first(), Some(&(Technique::Ir, 0, 40)));
+        assert_eq!(first.last(), Some(&(Technique::Ir, 40, 40)));
+        // A second search reuses the cache built: nothing more to report.
+        search(&lib, &unknown(&lib, Technique::Ir, refs[5].clone()), &r).unwrap();
+        assert_eq!(first.len(), seen.lock().unwrap().len());
+    }
+
+    #[test]
     fn the_filter_mask_follows_the_text_index() {
         let (lib, refs) = random_library(Technique::Ir, 120, 9);
         let mut r = Request::new(Technique::Ir);
