@@ -88,25 +88,40 @@ mod avx2 {
         _mm_cvtsi128_si32(s)
     }
 
-    /// Dot products of one row with `Q` queries (each `row.len()` bytes, a multiple of 32).
+    /// Dot products of `R` rows with `Q` queries (all of one length, a multiple of 32):
+    /// `out[r * nq + j]` for row `r` and query `j`.
     #[target_feature(enable = "avx2")]
-    fn row_times<const Q: usize>(row: &[i8], queries: [&[i8]; Q], out: &mut [i32]) {
+    fn block<const R: usize, const Q: usize>(
+        rows: [&[i8]; R],
+        queries: [&[i8]; Q],
+        nq: usize,
+        out: &mut [i32],
+    ) {
+        let len = rows[0].len();
         let ones = _mm256_set1_epi16(1);
-        let mut acc = [_mm256_setzero_si256(); Q];
-        for k in (0..row.len()).step_by(32) {
-            // SAFETY: k + 32 <= row.len() (a multiple of 32), and every query has the row's
-            // length (checked by the caller); unaligned loads need no alignment.
-            let x = unsafe { _mm256_loadu_si256(row.as_ptr().add(k).cast()) };
-            let ax = _mm256_abs_epi8(x);
+        let mut acc = [[_mm256_setzero_si256(); Q]; R];
+        for k in 0..len / 32 {
+            let at = k * 32;
+            let mut ys = [_mm256_setzero_si256(); Q];
             for j in 0..Q {
+                // SAFETY: at + 32 <= len, and every query has the rows' length (checked by
+                // the caller); unaligned loads need no alignment.
+                ys[j] = unsafe { _mm256_loadu_si256(queries[j].as_ptr().add(at).cast()) };
+            }
+            for i in 0..R {
                 // SAFETY: as above.
-                let y = unsafe { _mm256_loadu_si256(queries[j].as_ptr().add(k).cast()) };
-                let p = _mm256_maddubs_epi16(ax, _mm256_sign_epi8(y, x));
-                acc[j] = _mm256_add_epi32(acc[j], _mm256_madd_epi16(p, ones));
+                let x = unsafe { _mm256_loadu_si256(rows[i].as_ptr().add(at).cast()) };
+                let ax = _mm256_abs_epi8(x);
+                for j in 0..Q {
+                    let p = _mm256_maddubs_epi16(ax, _mm256_sign_epi8(ys[j], x));
+                    acc[i][j] = _mm256_add_epi32(acc[i][j], _mm256_madd_epi16(p, ones));
+                }
             }
         }
-        for j in 0..Q {
-            out[j] = hsum(acc[j]);
+        for i in 0..R {
+            for j in 0..Q {
+                out[i * nq + j] = hsum(acc[i][j]);
+            }
         }
     }
 
@@ -116,23 +131,31 @@ mod avx2 {
         assert!(stride.is_multiple_of(32) && stride > 0);
         let nrows = rows.len() / stride;
         let nq = queries.len() / stride;
+        assert!(queries.len() == nq * stride && out.len() >= nrows * nq);
         let q = |j: usize| &queries[j * stride..(j + 1) * stride];
+        let row = |r: usize| &rows[r * stride..(r + 1) * stride];
         for r0 in (0..nrows).step_by(super::ROW_BLOCK) {
             let r1 = (r0 + super::ROW_BLOCK).min(nrows);
             let mut q0 = 0;
             while q0 < nq {
-                for r in r0..r1 {
-                    let row = &rows[r * stride..(r + 1) * stride];
-                    let o = &mut out[r * nq + q0..(r + 1) * nq];
-                    if nq - q0 >= 4 {
-                        row_times::<4>(row, [q(q0), q(q0 + 1), q(q0 + 2), q(q0 + 3)], o);
-                    } else {
-                        for j in 0..nq - q0 {
-                            row_times::<1>(row, [q(q0 + j)], &mut o[j..]);
+                let take = if nq - q0 >= 4 { 4 } else { 1 };
+                let mut r = r0;
+                // Two rows share each query load; four queries share each row load.
+                while r < r1 {
+                    let o = &mut out[r * nq + q0..];
+                    match (take, r + 1 < r1) {
+                        (4, _) => {
+                            block::<1, 4>([row(r)], [q(q0), q(q0 + 1), q(q0 + 2), q(q0 + 3)], nq, o)
                         }
+                        (_, true) => {
+                            block::<2, 1>([row(r), row(r + 1)], [q(q0)], nq, o);
+                            r += 1;
+                        }
+                        _ => block::<1, 1>([row(r)], [q(q0)], nq, o),
                     }
+                    r += 1;
                 }
-                q0 += if nq - q0 >= 4 { 4 } else { nq - q0 };
+                q0 += take;
             }
         }
     }
