@@ -47,9 +47,8 @@ struct Query<'a> {
     unknown: &'a Prepared,
     dense: Vec<f32>,
     l1: f32,
-    // Sparse: weight by nominal m/z, presence of any unknown peak by m/z.
-    weights: Vec<f32>,
-    present: Vec<bool>,
+    // Sparse: by nominal m/z, the unknown's weight and 1 when it has a peak there.
+    table: Vec<[f32; 2]>,
     positive: usize,
     xs: Vec<f64>,
     // Dense: bit b set when some unknown peak lies within the (widened) tolerance of a
@@ -301,19 +300,24 @@ fn make_query<'a>(
         unknown,
         dense: vec![],
         l1: 0.0,
-        weights: vec![],
-        present: vec![],
+        table: vec![],
         positive: 0,
         xs: unknown.peaks.iter().map(|p| p.x).collect(),
     };
     if cache.kind == Kind::Sparse {
-        q.weights = vec![0.0; 65536];
-        q.present = vec![false; 65536];
+        // A table up to the unknown's largest m/z only, so it stays in the L1 cache; a row's
+        // m/z beyond it has weight 0 and no unknown peak.
+        let len = unknown
+            .peaks
+            .iter()
+            .map(|p| p.x as usize + 1)
+            .max()
+            .unwrap_or(0);
+        q.table = vec![[0.0; 2]; len];
         let w = weights(&unknown.peaks, &cache.composite);
         for (p, w) in unknown.peaks.iter().zip(w) {
             let bin = p.x as usize;
-            q.present[bin] = true;
-            q.weights[bin] = w;
+            q.table[bin] = [w, 1.0];
         }
         q.positive = unknown.peaks.iter().filter(|p| p.height > 0.0).count();
     } else {
@@ -387,11 +391,15 @@ fn sparse_key(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, tolerance:
         &cache.peak_bin()[range.clone()],
         &cache.peak_w()[range.clone()],
     );
-    let (mut dot, mut common) = (0f32, 0usize);
+    let (mut dot, mut shared) = (0f32, 0f32);
     for (&b, &x) in bins.iter().zip(ws) {
-        dot += q.weights[usize::from(b)] * x;
-        common += usize::from(q.present[usize::from(b)]);
+        if let Some(t) = q.table.get(usize::from(b)) {
+            dot += t[0] * x;
+            shared += t[1];
+        }
     }
+    // A count of at most 65536 ones: exact in f32.
+    let common = shared as usize;
     let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
     let (nu, nc) = (q.positive as f64, common as f64);
     let composite = if nu + nc > 0.0 {
@@ -802,8 +810,7 @@ mod tests {
                 unknown: &prepared,
                 dense: vec![],
                 l1: 0.0,
-                weights: vec![],
-                present: vec![],
+                table: vec![],
                 positive: 0,
                 xs: u.clone(),
                 near: vec![0; NEAR_BINS / 64],
