@@ -43,9 +43,6 @@ pub fn configure(conn: &Connection, on_disk: bool) -> Result<()> {
         // which an audit trail needs more than a few milliseconds per transaction.
         conn.pragma_update(None, "journal_mode", "WAL")?;
         conn.pragma_update(None, "synchronous", "FULL")?;
-        // Statement journals (a savepoint per imported spectrum) only ever roll back within
-        // a transaction, never after a crash: keep them in memory instead of temp files.
-        conn.pragma_update(None, "temp_store", "MEMORY")?;
         // 32 MiB of page cache (the default is 2 MiB): fewer page reads while an import
         // grows the tables and indexes.
         conn.pragma_update(None, "cache_size", -32768)?;
