@@ -82,8 +82,9 @@ struct Prepped {
 /// number of rows finished so far.
 ///
 /// Batches are pipelined: while one batch is stored (SQLite, one thread), the next one is
-/// read and prepared on the other cores. Preparing has no side effects, so a crash still
-/// loses at most the batch whose transaction was under way.
+/// read and prepared on the other cores. Preparing has no side effects, so a crash leaves
+/// every committed batch whole and nothing of the one under way or the one being prepared;
+/// a re-run stores those.
 pub fn import_rows(
     lib: &mut Library,
     rows: Vec<ManifestRow>,
