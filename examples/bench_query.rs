@@ -5,7 +5,8 @@
 //! ```
 //! Prints one JSON object of medians in milliseconds: open, fingerprint, cache (map or
 //! build), prepare, search (warm, one unknown), rank (scan and rescoring without the hit
-//! list's metadata), batch (all unknowns together), and with `--exact` the exact search.
+//! list's metadata), batch (all unknowns together), and with `--exact` the exact search; and
+//! the stage breakdown (`whorl::cache::Trace`) of the median single rank and of the batch.
 
 use std::path::PathBuf;
 use std::time::Instant;
@@ -59,6 +60,7 @@ fn main() -> anyhow::Result<()> {
     let mut warm = Vec::new();
     let mut rank = Vec::new();
     let mut top = Vec::new();
+    let mut traces = Vec::new();
     for i in 0..repeats {
         let u = &unknowns[i % unknowns.len()];
         let t0 = Instant::now();
@@ -66,9 +68,19 @@ fn main() -> anyhow::Result<()> {
         warm.push(ms(t0));
         top.push(hits.hits.first().map(|h| h.spectrum_id).unwrap_or(0));
         let t0 = Instant::now();
-        whorl::cache::rank(&lib, std::slice::from_ref(u), &request)?;
+        let mut trace = whorl::cache::Trace::default();
+        whorl::cache::rank_traced(&lib, std::slice::from_ref(u), &request, &mut trace)?;
         rank.push(ms(t0));
+        traces.push(trace);
     }
+    // The stage breakdown of the median single-unknown rank.
+    let mut order: Vec<usize> = (0..rank.len()).collect();
+    order.sort_by(|&a, &b| rank[a].total_cmp(&rank[b]));
+    let stages = traces[order[order.len() / 2]].clone();
+    let t0 = Instant::now();
+    let mut batch_trace = whorl::cache::Trace::default();
+    whorl::cache::rank_traced(&lib, &unknowns, &request, &mut batch_trace)?;
+    let batch_rank = ms(t0);
     let t0 = Instant::now();
     let lists = search_many(&lib, &unknowns, &request)?;
     let batch = ms(t0);
@@ -94,6 +106,9 @@ fn main() -> anyhow::Result<()> {
         "search_ms": median(warm),
         "rank_ms": median(rank),
         "batch_ms": batch,
+        "stages": stages,
+        "batch_rank_ms": batch_rank,
+        "batch_stages": batch_trace,
         "batch_unknowns": unknowns.len(),
         "exact_ms": exact_ms,
         "exact_top10_same": same,

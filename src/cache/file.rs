@@ -471,7 +471,14 @@ pub(super) fn quantise(row: &[f32]) -> (Vec<i8>, f32, f32) {
     let scale = max / 127.0;
     let q: Vec<i8> = row
         .iter()
-        .map(|&a| (a / scale).round().clamp(-127.0, 127.0) as i8)
+        .map(|&a| {
+            // Rounded to nearest, halves away from zero (as `f32::round`, without a libm
+            // call on baseline x86-64): `t` truncates, and `v - t` is exact.
+            let v = (a / scale).clamp(-127.0, 127.0);
+            let t = v as i32;
+            let f = v - t as f32;
+            (t + i32::from(f >= 0.5) - i32::from(f <= -0.5)) as i8
+        })
         .collect();
     let l1 = q.iter().map(|&v| f32::from(v).abs() * scale).sum();
     (q, scale, l1)
@@ -552,6 +559,8 @@ fn fill<M: std::ops::DerefMut<Target = [u8]>>(
         peak: 0,
         integer_x: true,
     };
+    let progress = library.vector_caches();
+    progress.progress(technique, 0, layout.rows);
     let snapshot = library.scan_vectors(
         technique,
         &mut |n| {
@@ -564,8 +573,15 @@ fn fill<M: std::ops::DerefMut<Target = [u8]>>(
                 ))
             }
         },
-        &mut |r| filler.push(r),
+        &mut |r| {
+            filler.push(r)?;
+            if filler.row.is_multiple_of(4096) {
+                progress.progress(technique, filler.row, layout.rows);
+            }
+            Ok(())
+        },
     )?;
+    progress.progress(technique, layout.rows, layout.rows);
     if filler.row != layout.rows || filler.peak != layout.nnz {
         return Err(Error::invalid(
             "the library changed while its vector cache was built",

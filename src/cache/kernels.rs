@@ -1,7 +1,7 @@
-//! The inner loops of the scan, written so that the compiler vectorises them: fixed-width
-//! chunks with separate accumulators. On x86-64 the i8 kernel is compiled twice, once for the
-//! baseline and once with AVX2, and the AVX2 copy is chosen at run time when the CPU has it;
-//! the build needs no `-C target-cpu`.
+//! The inner loops of the scan. The portable ones are written so that the compiler
+//! vectorises them: fixed-width chunks with separate accumulators. On x86-64 the i8 kernel
+//! also has an AVX2 version written with `std::arch` intrinsics, chosen at run time when the
+//! CPU has AVX2; the build needs no `-C target-cpu`.
 
 use std::cmp::{Ordering, Reverse};
 use std::collections::BinaryHeap;
@@ -42,7 +42,7 @@ fn dot_i8_body(a: &[i8], b: &[i8]) -> i32 {
 
 /// Rows processed together so that they stay in cache while every query of a block passes.
 const ROW_BLOCK: usize = 64;
-/// Queries processed together against one block of rows.
+/// Queries processed together against one block of rows (portable kernel).
 const QUERY_BLOCK: usize = 8;
 
 #[inline(always)]
@@ -63,23 +63,111 @@ fn block_body(rows: &[i8], stride: usize, queries: &[i8], out: &mut [i32]) {
     }
 }
 
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn block_avx2(rows: &[i8], stride: usize, queries: &[i8], out: &mut [i32]) {
+fn block_portable(rows: &[i8], stride: usize, queries: &[i8], out: &mut [i32]) {
     block_body(rows, stride, queries, out)
 }
 
-fn block_portable(rows: &[i8], stride: usize, queries: &[i8], out: &mut [i32]) {
-    block_body(rows, stride, queries, out)
+/// The AVX2 kernel: 32 products per instruction with `vpmaddubsw`, which multiplies unsigned
+/// by signed bytes, so each row byte x is split into |x| (unsigned) and the query byte y
+/// takes x's sign (`vpsignb`): |x| * (y sign(x)) = x y. Two adjacent products are summed
+/// in i16: |x|, |y| <= 128, so |x y + x' y'| <= 2 * 128 * 127 = 32512 < 32767, never
+/// saturating (the cache's bytes are within -127..127 anyway); `vpmaddwd` with ones widens
+/// the pairs to i32. The result equals the portable kernel's exactly.
+#[cfg(target_arch = "x86_64")]
+mod avx2 {
+    use std::arch::x86_64::*;
+
+    /// Horizontal sum of eight i32 lanes.
+    #[target_feature(enable = "avx2")]
+    fn hsum(v: __m256i) -> i32 {
+        let lo = _mm256_castsi256_si128(v);
+        let hi = _mm256_extracti128_si256::<1>(v);
+        let s = _mm_add_epi32(lo, hi);
+        let s = _mm_add_epi32(s, _mm_shuffle_epi32::<0b01_00_11_10>(s));
+        let s = _mm_add_epi32(s, _mm_shuffle_epi32::<0b10_11_00_01>(s));
+        _mm_cvtsi128_si32(s)
+    }
+
+    /// Dot products of `R` rows with `Q` queries (all of one length, a multiple of 32):
+    /// `out[r * nq + j]` for row `r` and query `j`.
+    #[target_feature(enable = "avx2")]
+    fn block<const R: usize, const Q: usize>(
+        rows: [&[i8]; R],
+        queries: [&[i8]; Q],
+        nq: usize,
+        out: &mut [i32],
+    ) {
+        let len = rows[0].len();
+        let ones = _mm256_set1_epi16(1);
+        let mut acc = [[_mm256_setzero_si256(); Q]; R];
+        for k in 0..len / 32 {
+            let at = k * 32;
+            let mut ys = [_mm256_setzero_si256(); Q];
+            for j in 0..Q {
+                // SAFETY: at + 32 <= len, and every query has the rows' length (checked by
+                // the caller); unaligned loads need no alignment.
+                ys[j] = unsafe { _mm256_loadu_si256(queries[j].as_ptr().add(at).cast()) };
+            }
+            for i in 0..R {
+                // SAFETY: as above.
+                let x = unsafe { _mm256_loadu_si256(rows[i].as_ptr().add(at).cast()) };
+                let ax = _mm256_abs_epi8(x);
+                for j in 0..Q {
+                    let p = _mm256_maddubs_epi16(ax, _mm256_sign_epi8(ys[j], x));
+                    acc[i][j] = _mm256_add_epi32(acc[i][j], _mm256_madd_epi16(p, ones));
+                }
+            }
+        }
+        for i in 0..R {
+            for j in 0..Q {
+                out[i * nq + j] = hsum(acc[i][j]);
+            }
+        }
+    }
+
+    /// `i8_dots` with AVX2; `stride` must be a multiple of 32.
+    #[target_feature(enable = "avx2")]
+    pub(super) fn dots(rows: &[i8], stride: usize, queries: &[i8], out: &mut [i32]) {
+        assert!(stride.is_multiple_of(32) && stride > 0);
+        let nrows = rows.len() / stride;
+        let nq = queries.len() / stride;
+        assert!(queries.len() == nq * stride && out.len() >= nrows * nq);
+        let q = |j: usize| &queries[j * stride..(j + 1) * stride];
+        let row = |r: usize| &rows[r * stride..(r + 1) * stride];
+        for r0 in (0..nrows).step_by(super::ROW_BLOCK) {
+            let r1 = (r0 + super::ROW_BLOCK).min(nrows);
+            let mut q0 = 0;
+            while q0 < nq {
+                let take = if nq - q0 >= 4 { 4 } else { 1 };
+                let mut r = r0;
+                // Two rows share each query load; four queries share each row load.
+                while r < r1 {
+                    let o = &mut out[r * nq + q0..];
+                    match (take, r + 1 < r1) {
+                        (4, _) => {
+                            block::<1, 4>([row(r)], [q(q0), q(q0 + 1), q(q0 + 2), q(q0 + 3)], nq, o)
+                        }
+                        (_, true) => {
+                            block::<2, 1>([row(r), row(r + 1)], [q(q0)], nq, o);
+                            r += 1;
+                        }
+                        _ => block::<1, 1>([row(r)], [q(q0)], nq, o),
+                    }
+                    r += 1;
+                }
+                q0 += take;
+            }
+        }
+    }
 }
 
 /// Integer dot products of every row (of length `stride`) with every query: `out[r * nq + q]`.
 pub fn i8_dots(rows: &[i8], stride: usize, queries: &[i8], out: &mut [i32]) {
     debug_assert_eq!(out.len(), (rows.len() / stride) * (queries.len() / stride));
     #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
+    if stride.is_multiple_of(32) && std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: the CPU has AVX2, checked just above.
-        unsafe { block_avx2(rows, stride, queries, out) };
+        unsafe { avx2::dots(rows, stride, queries, out) };
         return;
     }
     block_portable(rows, stride, queries, out)
@@ -148,6 +236,16 @@ impl TopK {
         self.heap.len() >= self.k
     }
 
+    /// The smallest key a push can still add: minus infinity until `k` keys are held.
+    #[inline]
+    pub fn floor(&self) -> f32 {
+        if self.full() {
+            self.min().unwrap_or(f32::NEG_INFINITY)
+        } else {
+            f32::NEG_INFINITY
+        }
+    }
+
     /// The smallest key held.
     pub fn min(&self) -> Option<f32> {
         self.heap.peek().map(|Reverse(e)| e.0)
@@ -186,6 +284,40 @@ mod tests {
                 .map(|(&x, &y)| i64::from(x) * i64::from(y))
                 .sum::<i64>()
         });
+    }
+
+    #[test]
+    fn the_runtime_kernel_equals_the_portable_one() {
+        // Extremes included: every product at +-127 * 127, sums near the i16 pair limit.
+        let mut x = 0x2545_F491_4F6C_DD1Du64;
+        let mut byte = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            match x % 5 {
+                0 => 127,
+                1 => -127,
+                _ => ((x >> 8) % 255) as i8 as i32 as i8,
+            }
+        };
+        for (stride, nrows, nq) in [(32, 3, 1), (64, 70, 5), (1824, 9, 7), (96, 130, 4)] {
+            let rows: Vec<i8> = (0..stride * nrows).map(|_| byte().max(-127)).collect();
+            let queries: Vec<i8> = (0..stride * nq).map(|_| byte().max(-127)).collect();
+            let mut fast = vec![0i32; nrows * nq];
+            let mut portable = vec![0i32; nrows * nq];
+            i8_dots(&rows, stride, &queries, &mut fast);
+            block_portable(&rows, stride, &queries, &mut portable);
+            assert_eq!(
+                fast, portable,
+                "stride {stride}, {nrows} rows, {nq} queries"
+            );
+            let plain = |r: usize, q: usize| -> i32 {
+                (0..stride)
+                    .map(|k| i32::from(rows[r * stride + k]) * i32::from(queries[q * stride + k]))
+                    .sum()
+            };
+            assert_eq!(fast[(nrows - 1) * nq + nq - 1], plain(nrows - 1, nq - 1));
+        }
     }
 
     #[test]

@@ -12,7 +12,7 @@ mod scan;
 pub mod synthetic;
 
 pub use file::{CACHE_DIR, FORMAT_VERSION, Kind, VectorCache};
-pub use scan::rank;
+pub use scan::{Trace, rank, rank_traced};
 
 use std::cell::RefCell;
 use std::collections::HashMap;
@@ -23,10 +23,26 @@ use crate::library::Library;
 use crate::score::{CompositeParams, Measure};
 use crate::technique::Technique;
 
+/// Told how far a cache build has come: technique, rows written, rows in all.
+pub type BuildProgress = dyn Fn(Technique, usize, usize) + Send + Sync;
+
 /// The caches a library has opened in this process, so that several searches of one command
-/// map each file once. Each use still checks the tag against the database.
+/// map each file once. Each use still checks the tag against the database. Also what to tell
+/// about a build under way (`Library::on_cache_build`).
 #[derive(Default)]
-pub struct Caches(RefCell<HashMap<(Technique, Kind), Arc<VectorCache>>>);
+pub struct Caches(
+    RefCell<HashMap<(Technique, Kind), Arc<VectorCache>>>,
+    pub(crate) RefCell<Option<Box<BuildProgress>>>,
+);
+
+impl Caches {
+    /// Tells the progress callback, if any, how far a build has come.
+    pub(crate) fn progress(&self, technique: Technique, done: usize, total: usize) {
+        if let Some(f) = self.1.borrow().as_ref() {
+            f(technique, done, total);
+        }
+    }
+}
 
 impl std::fmt::Debug for Caches {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {

@@ -35,6 +35,10 @@ use crate::search::{Ranking, Request};
 const CHUNK: usize = 4096;
 /// Rows kept by the first scan for rescoring.
 const RESCORE: usize = 256;
+/// First-scan keys kept at once (rows x unknowns of one group): 128 MB.
+const KEY_BUDGET: usize = 32 << 20;
+/// Bins of the peak-position bitmaps that bound the peak overlap of dense rows.
+const NEAR_BINS: usize = 4096;
 /// Added to f32 estimates so that rounding never makes a bound too low.
 const MARGIN: f64 = 1e-4;
 
@@ -43,11 +47,56 @@ struct Query<'a> {
     unknown: &'a Prepared,
     dense: Vec<f32>,
     l1: f32,
-    // Sparse: weight by nominal m/z, presence of any unknown peak by m/z.
-    weights: Vec<f32>,
-    present: Vec<bool>,
+    // Sparse: by nominal m/z, the unknown's weight and 1 when it has a peak there.
+    table: Vec<[f32; 2]>,
     positive: usize,
     xs: Vec<f64>,
+    // Dense: bit b set when some unknown peak lies within the (widened) tolerance of a
+    // position in bin b.
+    near: Vec<u64>,
+}
+
+/// Peak positions to bitmap bins: `NEAR_BINS` equal bins over the grid's range, positions
+/// outside clamped to the end bins. The map is monotone (a subtraction, a product with a
+/// positive factor, a floor and a clamp each are, in floating point too; the floor is a
+/// truncation of a value clamped at 0), so a position
+/// within `[u - t, u + t]` falls in a bin between those of `u - t` and `u + t`.
+#[derive(Debug, Clone, Copy)]
+struct Bins {
+    lo: f64,
+    inv: f64,
+}
+
+impl Bins {
+    fn new(grid: &crate::technique::Grid) -> Bins {
+        let (lo, hi) = (grid.start.min(grid.stop), grid.start.max(grid.stop));
+        let span = hi - lo;
+        Bins {
+            lo,
+            inv: if span > 0.0 {
+                NEAR_BINS as f64 / span
+            } else {
+                0.0
+            },
+        }
+    }
+
+    #[inline]
+    fn bin(self, x: f64) -> usize {
+        // Truncation is the floor for values above 0; `as` saturates; NaN goes to bin 0.
+        let v = (x - self.lo) * self.inv;
+        if v > 0.0 {
+            v.min((NEAR_BINS - 1) as f64) as u32 as usize
+        } else {
+            0
+        }
+    }
+}
+
+/// The tolerance the cache's peak bounds use: wider than the request's, so that positions
+/// rounded to f32 in the cache never match fewer peaks than the exact f64 ones.
+fn widened(tolerance: f64) -> f64 {
+    tolerance + 1e-3 + tolerance * 1e-6
 }
 
 /// Ranks unknowns through the technique's vector cache. `None` when the request is one the
@@ -59,6 +108,55 @@ pub fn rank(
     unknowns: &[Prepared],
     request: &Request,
 ) -> Result<Option<Vec<Ranking>>> {
+    rank_traced(library, unknowns, request, &mut Trace::default())
+}
+
+/// Where the time of one [`rank_traced`] call went, stage by stage, and how many rows each
+/// stage handled; for benchmarks (`examples/bench_query.rs`). Times in milliseconds.
+#[derive(Debug, Default, Clone, serde::Serialize)]
+pub struct Trace {
+    /// Getting the cache, the metadata mask and the queries ready.
+    pub setup_ms: f64,
+    /// The first scan over every allowed row (i8 or sparse bounds).
+    pub scan_ms: f64,
+    /// Rescoring the kept rows in f32 and scoring the best exactly.
+    pub rescore_ms: f64,
+    /// Unknowns whose kept rows could not prove their top K.
+    pub fallbacks: usize,
+    /// Finding and rescoring every row whose bound still reached the top K, for those.
+    pub fallback_ms: f64,
+    /// Rows rescored in f32 (kept rows and fallback rows), over all unknowns.
+    pub rescored_rows: usize,
+    /// Rows scored exactly from the database, over all unknowns.
+    pub exact_rows: usize,
+}
+
+fn since(t: std::time::Instant) -> f64 {
+    t.elapsed().as_secs_f64() * 1e3
+}
+
+/// [`rank`], recording where the time went into `trace`.
+pub fn rank_traced(
+    library: &Library,
+    unknowns: &[Prepared],
+    request: &Request,
+    trace: &mut Trace,
+) -> Result<Option<Vec<Ranking>>> {
+    // `top` may be "all" (usize::MAX, as `identify` asks): never more than the rows.
+    let keep = RESCORE.max(request.top.saturating_mul(4));
+    rank_keeping(library, unknowns, request, trace, keep)
+}
+
+/// [`rank_traced`] with the first scan keeping `keep` rows per unknown (the tests keep as
+/// few as the hits asked for, to exercise the rescoring of rows the first scan left out).
+fn rank_keeping(
+    library: &Library,
+    unknowns: &[Prepared],
+    request: &Request,
+    trace: &mut Trace,
+    keep: usize,
+) -> Result<Option<Vec<Ranking>>> {
+    let t0 = std::time::Instant::now();
     let Some(kind) = kind_for(request.technique, request.params.measure) else {
         return Ok(None);
     };
@@ -95,43 +193,67 @@ pub fn rank(
         Some(q) => Some(library.text().matching_ids(q)?),
         None => None,
     };
-    let (mask, compared) = row_mask(&cache, &request.statuses, allowed.as_ref());
+    let (mask, compared, searched) = row_mask(&cache, &request.statuses, allowed.as_ref());
     let active = active_bins(&grid);
+    let bins = Bins::new(&grid);
+    let tol = request.params.peak_tolerance;
     let queries: Vec<Query<'_>> = unknowns
         .iter()
-        .map(|u| make_query(u, &cache, &active))
+        .map(|u| make_query(u, &cache, &active, &bins, tol))
         .collect();
     let w = request.params.spectral_weight.clamp(0.0, 1.0);
-    // `top` may be "all" (usize::MAX, as `identify` asks): never more than the rows.
-    let m = RESCORE
-        .max(request.top.saturating_mul(4))
-        .min(cache.rows().max(1));
-    let heaps = first_scan(&cache, &queries, &mask, m, w, request);
+    let m = keep.min(cache.rows().max(1));
+    trace.setup_ms += since(t0);
 
+    // Every row's first-scan key is kept (4 bytes a row and unknown), so unknowns are
+    // scanned in groups that keep at most KEY_BUDGET keys.
+    let group = (KEY_BUDGET / cache.rows().max(1)).max(1);
     let mut out = Vec::with_capacity(unknowns.len());
-    for (q, heap) in queries.iter().zip(heaps) {
-        let mut exact = Exact::new(library, q.unknown, &grid, request);
-        let (scored, kth) = finish(&cache, q, &heap.rows(), w, request, &mut exact)?;
-        // Rows the first scan left out have keys at most the smallest kept one.
-        let scored = match (heap.full(), heap.min()) {
-            (true, Some(min)) if f64::from(min) >= kth => {
-                let rows = rows_reaching(&cache, q, &mask, kth, w, request);
-                finish(&cache, q, &rows, w, request, &mut exact)?.0
-            }
-            _ => scored,
-        };
-        out.push(Ranking { scored, compared });
+    for queries in queries.chunks(group) {
+        let t0 = std::time::Instant::now();
+        let (heaps, keys) = first_scan(&cache, queries, &mask, m, w, &bins, request);
+        trace.scan_ms += since(t0);
+        for (j, (q, heap)) in queries.iter().zip(heaps).enumerate() {
+            let t0 = std::time::Instant::now();
+            let mut exact = Exact::new(library, q.unknown, &grid, request);
+            let rows = heap.rows();
+            trace.rescored_rows += rows.len();
+            let (scored, kth) = finish(&cache, q, &rows, w, request, &mut exact)?;
+            trace.rescore_ms += since(t0);
+            // Rows the first scan left out have keys at most the smallest kept one; when
+            // that could still reach the K-th exact score, every row whose key reaches it is
+            // rescored (from the keys kept, without a second scan).
+            let scored = match (heap.full(), heap.min()) {
+                (true, Some(min)) if f64::from(min) >= kth => {
+                    let t0 = std::time::Instant::now();
+                    let rows = keys.rows_reaching(j, kth);
+                    trace.fallbacks += 1;
+                    trace.rescored_rows += rows.len();
+                    let scored = finish(&cache, q, &rows, w, request, &mut exact)?.0;
+                    trace.fallback_ms += since(t0);
+                    scored
+                }
+                _ => scored,
+            };
+            trace.exact_rows += exact.done.len();
+            out.push(Ranking {
+                scored,
+                compared,
+                searched,
+            });
+        }
     }
     Ok(Some(out))
 }
 
 /// The rows a request may return: status wanted and, with a metadata query, id in its set.
 /// Built from the id set by binary search over the (ascending) ids: no lookup per row.
+/// Also the number of rows allowed, and of rows with a wanted status.
 fn row_mask(
     cache: &VectorCache,
     statuses: &[Status],
     allowed: Option<&HashSet<i64>>,
-) -> (Vec<u64>, usize) {
+) -> (Vec<u64>, usize, usize) {
     let n = cache.rows();
     let want = |s: u8| {
         if s == 1 {
@@ -162,27 +284,40 @@ fn row_mask(
         }
     }
     let count = mask.iter().map(|w| w.count_ones() as usize).sum();
-    (mask, count)
+    let searched = status.iter().filter(|&&s| want(s)).count();
+    (mask, count, searched)
 }
 
-fn make_query<'a>(unknown: &'a Prepared, cache: &VectorCache, active: &[bool]) -> Query<'a> {
+fn make_query<'a>(
+    unknown: &'a Prepared,
+    cache: &VectorCache,
+    active: &[bool],
+    bins: &Bins,
+    tolerance: f64,
+) -> Query<'a> {
     let mut q = Query {
+        near: vec![],
         unknown,
         dense: vec![],
         l1: 0.0,
-        weights: vec![],
-        present: vec![],
+        table: vec![],
         positive: 0,
         xs: unknown.peaks.iter().map(|p| p.x).collect(),
     };
     if cache.kind == Kind::Sparse {
-        q.weights = vec![0.0; 65536];
-        q.present = vec![false; 65536];
+        // A table up to the unknown's largest m/z only, so it stays in the L1 cache; a row's
+        // m/z beyond it has weight 0 and no unknown peak.
+        let len = unknown
+            .peaks
+            .iter()
+            .map(|p| p.x as usize + 1)
+            .max()
+            .unwrap_or(0);
+        q.table = vec![[0.0; 2]; len];
         let w = weights(&unknown.peaks, &cache.composite);
         for (p, w) in unknown.peaks.iter().zip(w) {
             let bin = p.x as usize;
-            q.present[bin] = true;
-            q.weights[bin] = w;
+            q.table[bin] = [w, 1.0];
         }
         q.positive = unknown.peaks.iter().filter(|p| p.height > 0.0).count();
     } else {
@@ -190,30 +325,60 @@ fn make_query<'a>(unknown: &'a Prepared, cache: &VectorCache, active: &[bool]) -
         row.resize(cache.stride(), 0.0);
         q.l1 = row.iter().map(|a| a.abs()).sum();
         q.dense = row;
+        q.near = vec![0u64; NEAR_BINS / 64];
+        let t = widened(tolerance);
+        for p in &unknown.peaks {
+            for b in bins.bin(p.x - t)..=bins.bin(p.x + t) {
+                q.near[b / 64] |= 1 << (b % 64);
+            }
+        }
     }
     q
 }
 
-/// The combined-score bound of the first scan for a dense row, from its i8 dot product.
+/// An upper bound on the peaks one-to-one matching can pair between the unknown and a row
+/// whose peaks lie at `row_x`: every paired row peak lies within the tolerance of an
+/// unknown peak, so its bin is marked in `near`; and no more than either side has.
 #[inline]
+fn matched_bound(q: &Query<'_>, bins: &Bins, row_x: &[f32]) -> usize {
+    let near = row_x
+        .iter()
+        .map(|&x| bins.bin(f64::from(x)))
+        .filter(|&b| q.near[b / 64] >> (b % 64) & 1 == 1)
+        .count();
+    near.min(q.xs.len())
+}
+
+/// The combined-score bound of the first scan for a dense row, from its i8 dot product
+/// (`sx`, `l1x`: the row's scale and L1 norm). When even a peak overlap of 1 would leave the
+/// bound below `floor`, that looser bound is returned without counting the peaks.
+#[inline]
+#[allow(clippy::too_many_arguments)]
 fn dense_key(
-    cache: &VectorCache,
     q: &Query<'_>,
     qscale: f32,
-    row: usize,
+    sx: f32,
+    l1x: f32,
     idot: i32,
+    bins: &Bins,
+    row_x: &[f32],
     w: f64,
+    floor: f32,
 ) -> f32 {
-    let (ql1, sx) = (q.l1, cache.scales()[row]);
     let est = qscale * sx * idot as f32;
-    let err = 0.5 * ql1 * sx + 0.5 * qscale * cache.l1()[row] + 1e-5;
+    let err = 0.5 * q.l1 * sx + 0.5 * qscale * l1x + 1e-5;
     let r = f64::from(est + err).clamp(0.0, 1.0);
-    // At most min(nu, nr) peaks match, so the Jaccard is at most min / max.
-    let (nu, nr) = (q.xs.len(), cache.peak_range(row).len());
-    let jaccard = if nu.max(nr) == 0 {
+    let loose = (w * r + (1.0 - w) + 1e-6) as f32;
+    if loose < floor {
+        return loose;
+    }
+    // The Jaccard m / (nu + nr - m) grows with the matched count m, so a bound on m bounds it.
+    let (nu, nr) = (q.xs.len(), row_x.len());
+    let m = matched_bound(q, bins, row_x);
+    let jaccard = if nu + nr == 0 {
         0.0
     } else {
-        nu.min(nr) as f64 / nu.max(nr) as f64
+        m as f64 / (nu + nr - m) as f64
     };
     (w * r + (1.0 - w) * jaccard + 1e-6) as f32
 }
@@ -226,11 +391,15 @@ fn sparse_key(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, tolerance:
         &cache.peak_bin()[range.clone()],
         &cache.peak_w()[range.clone()],
     );
-    let (mut dot, mut common) = (0f32, 0usize);
+    let (mut dot, mut shared) = (0f32, 0f32);
     for (&b, &x) in bins.iter().zip(ws) {
-        dot += q.weights[usize::from(b)] * x;
-        common += usize::from(q.present[usize::from(b)]);
+        if let Some(t) = q.table.get(usize::from(b)) {
+            dot += t[0] * x;
+            shared += t[1];
+        }
     }
+    // A count of at most 65536 ones: exact in f32.
+    let common = shared as usize;
     let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
     let (nu, nc) = (q.positive as f64, common as f64);
     let composite = if nu + nc > 0.0 {
@@ -251,18 +420,44 @@ fn sparse_key(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, tolerance:
     (w * composite + (1.0 - w) * jaccard) as f32
 }
 
-/// The first scan: for every unknown, the `m` rows with the largest bounds.
+/// Every first-scan key of a group of unknowns, chunk by chunk: in chunk `c`, unknown `j`'s
+/// keys of rows `r0..r1` are at `c * CHUNK * nq + j * (r1 - r0)`. Rows outside the mask have
+/// minus infinity.
+struct Keys {
+    keys: Vec<f32>,
+    rows: usize,
+    nq: usize,
+}
+
+impl Keys {
+    /// Rows whose key for unknown `j` reaches `threshold`.
+    fn rows_reaching(&self, j: usize, threshold: f64) -> Vec<usize> {
+        let mut rows = Vec::new();
+        for r0 in (0..self.rows).step_by(CHUNK) {
+            let len = CHUNK.min(self.rows - r0);
+            let at = r0 * self.nq + j * len;
+            for (k, &key) in self.keys[at..at + len].iter().enumerate() {
+                if f64::from(key) >= threshold {
+                    rows.push(r0 + k);
+                }
+            }
+        }
+        rows
+    }
+}
+
+/// The first scan: for every unknown, the `m` rows with the largest bounds, and every key.
 fn first_scan(
     cache: &VectorCache,
     queries: &[Query<'_>],
     mask: &[u64],
     m: usize,
     w: f64,
+    bins: &Bins,
     request: &Request,
-) -> Vec<TopK> {
+) -> (Vec<TopK>, Keys) {
     let n = cache.rows();
     let nq = queries.len();
-    let chunks = n.div_ceil(CHUNK);
     let quantised: Vec<(Vec<i8>, f32)> = queries
         .iter()
         .map(|q| {
@@ -275,12 +470,15 @@ fn first_scan(
         .flat_map(|(v, _)| v.iter().copied())
         .collect();
     let tol = request.params.peak_tolerance;
-    (0..chunks)
-        .into_par_iter()
+    let mut keys = vec![f32::NEG_INFINITY; n * nq];
+    let heaps = keys
+        .par_chunks_mut(CHUNK * nq)
+        .enumerate()
         .fold(
             || vec![TopK::new(m); nq],
-            |mut heaps, c| {
+            |mut heaps, (c, keys)| {
                 let (r0, r1) = (c * CHUNK, ((c + 1) * CHUNK).min(n));
+                let len = r1 - r0;
                 let words = &mask[r0 / 64..r1.div_ceil(64)];
                 if words.iter().all(|&w| w == 0) {
                     return heaps;
@@ -288,19 +486,28 @@ fn first_scan(
                 let on = |r: usize| mask[r / 64] >> (r % 64) & 1 == 1;
                 if cache.kind == Kind::Sparse {
                     for r in (r0..r1).filter(|&r| on(r)) {
-                        for (q, heap) in queries.iter().zip(heaps.iter_mut()) {
-                            heap.push(sparse_key(cache, q, r, w, tol), r);
+                        for (j, (q, heap)) in queries.iter().zip(heaps.iter_mut()).enumerate() {
+                            let key = sparse_key(cache, q, r, w, tol);
+                            keys[j * len + r - r0] = key;
+                            heap.push(key, r);
                         }
                     }
                 } else {
                     let s = cache.stride();
                     let rows = &cache.i8_matrix()[r0 * s..r1 * s];
-                    let mut dots = vec![0i32; (r1 - r0) * nq];
+                    let mut dots = vec![0i32; len * nq];
                     i8_dots(rows, s, &qmatrix, &mut dots);
+                    let (scales, l1s, px) = (cache.scales(), cache.l1(), cache.peak_x());
                     for r in (r0..r1).filter(|&r| on(r)) {
+                        let rb = &px[cache.peak_range(r)];
+                        let (sx, l1x) = (scales[r], l1s[r]);
                         for (j, heap) in heaps.iter_mut().enumerate() {
                             let (q, (_, qs)) = (&queries[j], &quantised[j]);
-                            let key = dense_key(cache, q, *qs, r, dots[(r - r0) * nq + j], w);
+                            // A key below the worker's smallest kept one need not be tight.
+                            let floor = heap.floor();
+                            let idot = dots[(r - r0) * nq + j];
+                            let key = dense_key(q, *qs, sx, l1x, idot, bins, rb, w, floor);
+                            keys[j * len + r - r0] = key;
                             heap.push(key, r);
                         }
                     }
@@ -311,45 +518,8 @@ fn first_scan(
         .reduce(
             || vec![TopK::new(m); nq],
             |a, b| a.into_iter().zip(b).map(|(x, y)| x.merge(y)).collect(),
-        )
-}
-
-/// Every allowed row whose first-scan bound reaches `threshold`.
-fn rows_reaching(
-    cache: &VectorCache,
-    q: &Query<'_>,
-    mask: &[u64],
-    threshold: f64,
-    w: f64,
-    request: &Request,
-) -> Vec<usize> {
-    let n = cache.rows();
-    let (qv, qs, _) = quantise(&q.dense);
-    let tol = request.params.peak_tolerance;
-    (0..n.div_ceil(CHUNK))
-        .into_par_iter()
-        .flat_map_iter(|c| {
-            let (r0, r1) = (c * CHUNK, ((c + 1) * CHUNK).min(n));
-            let on = |r: usize| mask[r / 64] >> (r % 64) & 1 == 1;
-            let keys: Vec<(usize, f32)> = if cache.kind == Kind::Sparse {
-                (r0..r1)
-                    .filter(|&r| on(r))
-                    .map(|r| (r, sparse_key(cache, q, r, w, tol)))
-                    .collect()
-            } else {
-                let s = cache.stride();
-                let mut dots = vec![0i32; r1 - r0];
-                i8_dots(&cache.i8_matrix()[r0 * s..r1 * s], s, &qv, &mut dots);
-                (r0..r1)
-                    .filter(|&r| on(r))
-                    .map(|r| (r, dense_key(cache, q, qs, r, dots[r - r0], w)))
-                    .collect()
-            };
-            keys.into_iter()
-                .filter(move |&(_, k)| f64::from(k) >= threshold)
-                .map(|(r, _)| r)
-        })
-        .collect()
+        );
+    (heaps, Keys { keys, rows: n, nq })
 }
 
 /// The second-stage bound of one row: f32 measure from the cache plus a rounding margin, and
@@ -377,7 +547,7 @@ fn rescore_bound(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, request
         ))
     };
     let spectral = (spectral + MARGIN).clamp(0.0, 1.0);
-    let jaccard = peak_overlap(&q.xs, &xs, tol + 1e-3 + tol * 1e-6).jaccard;
+    let jaccard = peak_overlap(&q.xs, &xs, widened(tol)).jaccard;
     w * spectral + (1.0 - w) * jaccard + 1e-6
 }
 
@@ -580,6 +750,101 @@ mod tests {
         for seed in [3, 4] {
             check_equivalence(Technique::MsEi, seed);
         }
+    }
+
+    /// With 10 rows kept by the first scan, the top 10 is proved only by rescoring every row
+    /// whose kept key reaches the K-th score: the hits must still be the exact ones.
+    #[test]
+    fn rows_left_out_by_the_first_scan_are_rescored_from_their_keys() {
+        for technique in [Technique::Ir, Technique::MsEi] {
+            let (lib, refs) = random_library(technique, 300, 21);
+            let mut rng = Rng::new(22);
+            let unknowns: Vec<Prepared> = (0..5)
+                .map(|k| unknown(&lib, technique, perturb(&refs[k * 37], &mut rng, 0.3)))
+                .collect();
+            let mut r = Request::new(technique);
+            r.statuses.push(Status::Pending);
+            r.top = 10;
+            let mut trace = Trace::default();
+            let rankings = rank_keeping(&lib, &unknowns, &r, &mut trace, 10)
+                .unwrap()
+                .unwrap();
+            assert!(trace.fallbacks > 0, "{technique}: the fallback ran");
+            for (u, ranking) in unknowns.iter().zip(&rankings) {
+                let exact = search_exact(&lib, u, &r).unwrap();
+                let ids: Vec<i64> = ranking.scored.iter().map(|s| s.1).collect();
+                let want: Vec<i64> = exact.hits.iter().map(|h| h.spectrum_id).collect();
+                assert_eq!(ids, want, "{technique}");
+                for (s, h) in ranking.scored.iter().zip(&exact.hits) {
+                    assert_eq!(s.0, h.score);
+                }
+            }
+        }
+    }
+
+    proptest::proptest! {
+        /// The first scan's bound on matched peaks is never below what one-to-one matching
+        /// pairs, for positions anywhere (inside the grid or not), rounded to f32 in the cache.
+        #[test]
+        fn matched_bound_never_undercounts(
+            u in proptest::collection::vec(300.0f64..4100.0, 0..15),
+            r in proptest::collection::vec(300.0f64..4100.0, 0..15),
+            near in proptest::collection::vec((0usize..15, -7.0f64..7.0), 0..15),
+            tol in 0.5f64..12.0,
+        ) {
+            // Some row peaks placed near unknown peaks, some at the tolerance's edge.
+            let mut r = r;
+            for (i, d) in near {
+                if let Some(&x) = u.get(i) {
+                    r.push(x + d);
+                    r.push(x + tol);
+                }
+            }
+            let grid = crate::technique::Technique::Ir.default_grid();
+            let bins = Bins::new(&grid);
+            let prepared = Prepared {
+                technique: Technique::Ir,
+                vector: vec![],
+                peaks: vec![],
+                y_unit: crate::spectrum::YUnit::Absorbance,
+                warnings: vec![],
+            };
+            let mut q = Query {
+                unknown: &prepared,
+                dense: vec![],
+                l1: 0.0,
+                table: vec![],
+                positive: 0,
+                xs: u.clone(),
+                near: vec![0; NEAR_BINS / 64],
+            };
+            let t = widened(tol);
+            for &x in &u {
+                for b in bins.bin(x - t)..=bins.bin(x + t) {
+                    q.near[b / 64] |= 1 << (b % 64);
+                }
+            }
+            let row_x: Vec<f32> = r.iter().map(|&x| x as f32).collect();
+            let exact = peak_overlap(&u, &r, tol).matched;
+            proptest::prop_assert!(matched_bound(&q, &bins, &row_x) >= exact);
+        }
+    }
+
+    #[test]
+    fn a_cache_build_reports_its_progress() {
+        let (lib, refs) = random_library(Technique::Ir, 40, 31);
+        let seen = std::sync::Arc::new(std::sync::Mutex::new(Vec::new()));
+        let log = seen.clone();
+        lib.on_cache_build(move |t, done, total| log.lock().unwrap().push((t, done, total)));
+        let mut r = Request::new(Technique::Ir);
+        r.statuses.push(Status::Pending);
+        search(&lib, &unknown(&lib, Technique::Ir, refs[3].clone()), &r).unwrap();
+        let first = seen.lock().unwrap().clone();
+        assert_eq!(first.first(), Some(&(Technique::Ir, 0, 40)));
+        assert_eq!(first.last(), Some(&(Technique::Ir, 40, 40)));
+        // A second search reuses the cache built: nothing more to report.
+        search(&lib, &unknown(&lib, Technique::Ir, refs[5].clone()), &r).unwrap();
+        assert_eq!(first.len(), seen.lock().unwrap().len());
     }
 
     #[test]

@@ -135,7 +135,22 @@ pub struct Context {
 
 impl Context {
     fn open(&self) -> anyhow::Result<whorl::library::Library> {
-        Ok(whorl::library::Library::open(&self.library)?)
+        let lib = whorl::library::Library::open(&self.library)?;
+        // A vector cache rebuilt by a search or check shows a progress bar (stderr, hidden
+        // when stderr is not a terminal).
+        let bar = std::sync::Mutex::new(None::<indicatif::ProgressBar>);
+        lib.on_cache_build(move |technique, done, total| {
+            let mut bar = bar.lock().unwrap_or_else(|e| e.into_inner());
+            let b = bar.get_or_insert_with(|| {
+                output::progress(total as u64, &format!("{technique} cache"))
+            });
+            b.set_position(done as u64);
+            if done >= total {
+                b.finish_and_clear();
+                *bar = None;
+            }
+        });
+        Ok(lib)
     }
 
     /// Colour on stderr.

@@ -301,8 +301,25 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
 
 /// The files of a batch folder, sorted by name (hidden files skipped).
 fn batch_files(dir: &std::path::Path) -> anyhow::Result<Vec<PathBuf>> {
-    let entries = std::fs::read_dir(dir)
-        .map_err(|e| whorl::Error::io(format!("reading the batch folder {}", dir.display()), e))?;
+    // A missing or unreadable folder is the user's input, not a failure of whorl (exit 3).
+    if !dir.is_dir() {
+        let reason = if dir.exists() {
+            format!("the batch folder {} is not a folder", dir.display())
+        } else {
+            format!("the batch folder {} does not exist", dir.display())
+        };
+        return Err(whorl::Error::invalid(
+            reason,
+            "give --batch a folder holding the unknowns' spectrum files, or give the files themselves",
+        )
+        .into());
+    }
+    let entries = std::fs::read_dir(dir).map_err(|e| {
+        whorl::Error::invalid(
+            format!("the batch folder {} cannot be read: {e}", dir.display()),
+            "check the folder's permissions, or give the files themselves",
+        )
+    })?;
     let mut files = Vec::new();
     for e in entries {
         let e = e.map_err(|e| whorl::Error::io(format!("reading {}", dir.display()), e))?;

@@ -68,9 +68,23 @@ impl ImportReport {
     }
 }
 
+/// A batch read and prepared, waiting to be stored.
+struct Prepped {
+    /// Rows whose files are already stored.
+    skipped: Vec<RowReport>,
+    /// `(line, file, staged)` for the rest.
+    staged: Vec<(usize, String, Result<Staged>)>,
+    rows: usize,
+}
+
 /// Imports manifest rows. By default every good row is stored and bad rows are reported;
 /// with `all_or_nothing`, one bad row means nothing is stored. `progress` is called with the
 /// number of rows finished so far.
+///
+/// Batches are pipelined: while one batch is stored (SQLite, one thread), the next one is
+/// read and prepared on the other cores. Preparing has no side effects, so a crash leaves
+/// every committed batch whole and nothing of the one under way or the one being prepared;
+/// a re-run stores those.
 pub fn import_rows(
     lib: &mut Library,
     rows: Vec<ManifestRow>,
@@ -86,76 +100,39 @@ pub fn import_rows(
     };
     let mut done = 0;
     let mut rows = rows.into_iter().peekable();
-    while rows.peek().is_some() {
+    let mut waiting: Option<Prepped> = None;
+    loop {
         let batch: Vec<ManifestRow> = rows.by_ref().take(chunk).collect();
-        let batch_len = batch.len();
+        if batch.is_empty() && waiting.is_none() {
+            break;
+        }
+        // Files already stored are skipped before preparing. A file of this batch that
+        // the batch being stored also holds is caught by the store itself (same raw points).
+        let (skipped, to_stage) = present_files(lib, batch)?;
         let recipes = lib.recipes().clone();
-        // A file whose exact bytes are already in the library for its technique is already
-        // present: skip reading and preparing it, so a re-run resumes quickly.
-        let file_hashes: Vec<Option<(Technique, String)>> = batch
-            .par_iter()
-            .map(|row| {
-                let s = row.submission.as_ref().ok()?;
-                let bytes = std::fs::read(&s.path).ok()?;
-                Some((s.technique, sha256_hex(&bytes)))
-            })
-            .collect();
-        let mut known = Vec::with_capacity(batch.len());
-        for h in &file_hashes {
-            known.push(match h {
-                Some((t, sha)) => lib.present_by_file(*t, sha)?,
-                None => None,
-            });
-        }
-        let (skipped, batch): (Vec<_>, Vec<_>) =
-            batch.into_iter().zip(known).partition(|(_, k)| k.is_some());
-        for (row, k) in skipped {
-            let spectrum_id = k.expect("partitioned on presence");
-            report.rows.push(RowReport {
-                line: row.line,
-                file: row.file,
-                outcome: Ok(Outcome::AlreadyPresent { spectrum_id }),
-                warnings: Vec::new(),
-            });
-        }
-        let staged: Vec<(usize, String, Result<Staged>)> = batch
-            .into_par_iter()
-            .map(|(row, _)| {
-                let staged = row.submission.and_then(|s| stage(&recipes, s));
-                (row.line, row.file, staged)
-            })
-            .collect();
-        let good: Vec<Staged> = staged
-            .iter()
-            .filter_map(|(_, _, s)| s.as_ref().ok().cloned())
-            .collect();
-        let any_bad = staged.iter().any(|s| s.2.is_err());
-        let mut stored = if all_or_nothing && any_bad {
-            Vec::new()
-        } else {
-            lib.store(&good, actor, all_or_nothing)?
-        };
-        stored.reverse();
-        for (line, file, s) in staged {
-            let (outcome, warnings) = match s {
-                Ok(_) if all_or_nothing && any_bad => continue,
-                Ok(staged) => (
-                    stored.pop().expect("one outcome per staged spectrum"),
-                    staged.prepared.warnings,
-                ),
-                Err(e) => (Err(e), Vec::new()),
+        let previous = waiting.take();
+        let (staged, stored) = std::thread::scope(|s| {
+            let staging = s.spawn(move || stage_rows(&recipes, to_stage));
+            let stored = match previous {
+                Some(p) => store_batch(lib, p, actor, all_or_nothing, &mut report).map(Some),
+                None => Ok(None),
             };
-            report.rows.push(RowReport {
-                line,
-                file,
-                outcome,
-                warnings,
-            });
+            (staging.join().expect("staging does not panic"), stored)
+        });
+        if let Some(n) = stored? {
+            done += n;
+            progress(done);
         }
-        done += batch_len;
-        progress(done);
-        if all_or_nothing && (any_bad || report.rejected().next().is_some()) {
-            report.rolled_back = true;
+        if report.rolled_back {
+            break;
+        }
+        let n = skipped.len() + staged.len();
+        if n > 0 {
+            waiting = Some(Prepped {
+                skipped,
+                staged,
+                rows: n,
+            });
         }
     }
     if report.rolled_back {
@@ -164,4 +141,95 @@ pub fn import_rows(
     }
     report.rows.sort_by_key(|r| r.line);
     Ok(report)
+}
+
+/// Splits a batch into rows whose exact file bytes are already stored for their technique
+/// (reported as already present, without reading and preparing them: a re-run resumes
+/// quickly) and rows to prepare.
+fn present_files(
+    lib: &Library,
+    batch: Vec<ManifestRow>,
+) -> Result<(Vec<RowReport>, Vec<ManifestRow>)> {
+    let file_hashes: Vec<Option<(Technique, String)>> = batch
+        .par_iter()
+        .map(|row| {
+            let s = row.submission.as_ref().ok()?;
+            let bytes = std::fs::read(&s.path).ok()?;
+            Some((s.technique, sha256_hex(&bytes)))
+        })
+        .collect();
+    let mut skipped = Vec::new();
+    let mut rest = Vec::with_capacity(batch.len());
+    for (row, h) in batch.into_iter().zip(file_hashes) {
+        let known = match h {
+            Some((t, sha)) => lib.present_by_file(t, &sha)?,
+            None => None,
+        };
+        match known {
+            Some(spectrum_id) => skipped.push(RowReport {
+                line: row.line,
+                file: row.file,
+                outcome: Ok(Outcome::AlreadyPresent { spectrum_id }),
+                warnings: Vec::new(),
+            }),
+            None => rest.push(row),
+        }
+    }
+    Ok((skipped, rest))
+}
+
+/// Reads and prepares rows in parallel.
+fn stage_rows(
+    recipes: &crate::library::Recipes,
+    rows: Vec<ManifestRow>,
+) -> Vec<(usize, String, Result<Staged>)> {
+    rows.into_par_iter()
+        .map(|row| {
+            let staged = row.submission.and_then(|s| stage(recipes, s));
+            (row.line, row.file, staged)
+        })
+        .collect()
+}
+
+/// Stores one prepared batch in one transaction and reports its rows; returns the rows done.
+fn store_batch(
+    lib: &mut Library,
+    batch: Prepped,
+    actor: &str,
+    all_or_nothing: bool,
+    report: &mut ImportReport,
+) -> Result<usize> {
+    report.rows.extend(batch.skipped);
+    let staged = batch.staged;
+    let good: Vec<Staged> = staged
+        .iter()
+        .filter_map(|(_, _, s)| s.as_ref().ok().cloned())
+        .collect();
+    let any_bad = staged.iter().any(|s| s.2.is_err());
+    let mut stored = if all_or_nothing && any_bad {
+        Vec::new()
+    } else {
+        lib.store(&good, actor, all_or_nothing)?
+    };
+    stored.reverse();
+    for (line, file, s) in staged {
+        let (outcome, warnings) = match s {
+            Ok(_) if all_or_nothing && any_bad => continue,
+            Ok(staged) => (
+                stored.pop().expect("one outcome per staged spectrum"),
+                staged.prepared.warnings,
+            ),
+            Err(e) => (Err(e), Vec::new()),
+        };
+        report.rows.push(RowReport {
+            line,
+            file,
+            outcome,
+            warnings,
+        });
+    }
+    if all_or_nothing && (any_bad || report.rejected().next().is_some()) {
+        report.rolled_back = true;
+    }
+    Ok(batch.rows)
 }

@@ -244,6 +244,13 @@ impl Library {
         &self.caches
     }
 
+    /// Calls `f(technique, rows written, rows in all)` while a vector cache is built (from
+    /// 0 to all, every few thousand rows), so a command can show progress; the library
+    /// itself never prints.
+    pub fn on_cache_build(&self, f: impl Fn(Technique, usize, usize) + Send + Sync + 'static) {
+        *self.caches.1.borrow_mut() = Some(Box::new(f));
+    }
+
     /// The text index.
     pub fn text(&self) -> &TextIndex {
         &self.text

@@ -43,6 +43,9 @@ pub fn configure(conn: &Connection, on_disk: bool) -> Result<()> {
         // which an audit trail needs more than a few milliseconds per transaction.
         conn.pragma_update(None, "journal_mode", "WAL")?;
         conn.pragma_update(None, "synchronous", "FULL")?;
+        // 32 MiB of page cache (the default is 2 MiB): fewer page reads while an import
+        // grows the tables and indexes.
+        conn.pragma_update(None, "cache_size", -32768)?;
     }
     conn.pragma_update(None, "foreign_keys", "ON")?;
     conn.busy_timeout(busy_timeout())?;

@@ -303,15 +303,10 @@ pub fn search_many(
         && request.top <= 1000
         && let Some(rankings) = crate::cache::rank(library, unknowns, request)?
     {
-        let searched: i64 = request
-            .statuses
-            .iter()
-            .map(|&s| library.count(request.technique, s))
-            .sum::<Result<i64>>()?;
         return rankings
             .into_iter()
             .map(|r| {
-                let excluded_count = (searched as usize).saturating_sub(r.compared);
+                let excluded_count = r.searched.saturating_sub(r.compared);
                 let mut hits = Vec::with_capacity(r.scored.len());
                 let ids: Vec<i64> = r.scored.iter().map(|s| s.1).collect();
                 for ((combined, _, components), rec) in
@@ -343,6 +338,8 @@ pub struct Ranking {
     pub scored: Vec<(f64, i64, Scores)>,
     /// How many library spectra were compared.
     pub compared: usize,
+    /// How many library spectra have the statuses searched (before any metadata query).
+    pub searched: usize,
 }
 
 fn make_hit(

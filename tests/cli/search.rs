@@ -403,7 +403,19 @@ fn several_unknowns_are_searched_together_one_hit_list_each() {
         3,
     );
     assert!(err.contains("one unknown"), "{err}");
-    lab.fails(&["search", "--batch", "nowhere", "-t", "ir"], 1);
+}
+
+#[test]
+fn a_batch_folder_that_is_missing_empty_or_a_file_is_an_input_error() {
+    let lab = small_lab();
+    let err = lab.fails(&["search", "--batch", "nowhere", "-t", "ir"], 3);
+    assert!(err.contains("batch folder nowhere does not exist"), "{err}");
+    assert!(err.contains("hint:"), "{err}");
+    let err = lab.fails(&["search", "--batch", "k.csv", "-t", "ir"], 3);
+    assert!(err.contains("k.csv is not a folder"), "{err}");
+    std::fs::create_dir_all(lab.path("empty")).unwrap();
+    let err = lab.fails(&["search", "--batch", "empty", "-t", "ir"], 3);
+    assert!(err.contains("holds no files"), "{err}");
 }
 
 #[test]
