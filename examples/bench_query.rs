@@ -1,7 +1,7 @@
 //! Times the phases of a search inside one process, for `scripts/bench`.
 //!
 //! ```text
-//! cargo run --release --example bench_query -- LIBRARY ir|ms-ei UNKNOWNS_DIR REPEATS [--exact]
+//! cargo run --release --example bench_query -- LIBRARY ir|ms-ei UNKNOWNS_DIR REPEATS [--exact] [--forward]
 //! ```
 //! Prints one JSON object of medians in milliseconds: open, fingerprint, cache (map or
 //! build), prepare, search (warm, one unknown), rank (scan and rescoring without the hit
@@ -31,6 +31,8 @@ fn main() -> anyhow::Result<()> {
     let dir = PathBuf::from(&args[2]);
     let repeats: usize = args[3].parse()?;
     let exact = args.iter().any(|a| a == "--exact");
+    // EI-MS: forward search instead of the default reverse search.
+    let forward = args.iter().any(|a| a == "--forward");
 
     let t0 = Instant::now();
     let lib = Library::open(&root)?;
@@ -57,6 +59,7 @@ fn main() -> anyhow::Result<()> {
 
     let mut request = Request::new(t);
     request.statuses.push(Status::Pending);
+    request.params.composite.reverse &= !forward;
     let mut warm = Vec::new();
     let mut rank = Vec::new();
     let mut top = Vec::new();

@@ -47,8 +47,9 @@ struct Query<'a> {
     unknown: &'a Prepared,
     dense: Vec<f32>,
     l1: f32,
-    // Sparse: by nominal m/z, the unknown's weight and 1 when it has a peak there.
-    table: Vec<[f32; 2]>,
+    // Sparse: by nominal m/z, the unknown's weight, 1 when it has a peak there, and 1 when
+    // that peak's height is above 0.
+    table: Vec<[f32; 3]>,
     positive: usize,
     xs: Vec<f64>,
     // Dense: bit b set when some unknown peak lies within the (widened) tolerance of a
@@ -170,8 +171,7 @@ fn rank_keeping(
     if kind == Kind::Sparse {
         let c = &request.params.composite;
         let d = crate::score::CompositeParams::default();
-        if c.reverse
-            || c.intensity_exponent != d.intensity_exponent
+        if c.intensity_exponent != d.intensity_exponent
             || c.mass_exponent != d.mass_exponent
             || unknowns.iter().any(|u| {
                 u.peaks
@@ -313,11 +313,11 @@ fn make_query<'a>(
             .map(|p| p.x as usize + 1)
             .max()
             .unwrap_or(0);
-        q.table = vec![[0.0; 2]; len];
+        q.table = vec![[0.0; 3]; len];
         let w = weights(&unknown.peaks, &cache.composite);
         for (p, w) in unknown.peaks.iter().zip(w) {
             let bin = p.x as usize;
-            q.table[bin] = [w, 1.0];
+            q.table[bin] = [w, 1.0, if p.height > 0.0 { 1.0 } else { 0.0 }];
         }
         q.positive = unknown.peaks.iter().filter(|p| p.height > 0.0).count();
     } else {
@@ -385,28 +385,41 @@ fn dense_key(
 
 /// The combined-score bound of the first scan for a sparse (EI-MS) row.
 #[inline]
-fn sparse_key(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, tolerance: f64) -> f32 {
+fn sparse_key(
+    cache: &VectorCache,
+    q: &Query<'_>,
+    row: usize,
+    w: f64,
+    tolerance: f64,
+    reverse: bool,
+) -> f32 {
     let range = cache.peak_range(row);
-    let (bins, ws) = (
-        &cache.peak_bin()[range.clone()],
-        &cache.peak_w()[range.clone()],
-    );
-    let (mut dot, mut shared) = (0f32, 0f32);
-    for (&b, &x) in bins.iter().zip(ws) {
-        if let Some(t) = q.table.get(usize::from(b)) {
-            dot += t[0] * x;
-            shared += t[1];
-        }
-    }
-    // A count of at most 65536 ones: exact in f32.
-    let common = shared as usize;
-    let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
-    let (nu, nc) = (q.positive as f64, common as f64);
-    let composite = if nu + nc > 0.0 {
-        ((nu * fd + nc) / (nu + nc)).min(1.0)
+    let (composite, common) = if reverse {
+        reverse_composite_bound(cache, q, range.clone())
     } else {
-        fd
+        let (bins, ws) = (
+            &cache.peak_bin()[range.clone()],
+            &cache.peak_w()[range.clone()],
+        );
+        let (mut dot, mut shared) = (0f32, 0f32);
+        for (&b, &x) in bins.iter().zip(ws) {
+            if let Some(t) = q.table.get(usize::from(b)) {
+                dot += t[0] * x;
+                shared += t[1];
+            }
+        }
+        // A count of at most 65536 ones: exact in f32.
+        let common = shared as usize;
+        let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
+        let (nu, nc) = (q.positive as f64, common as f64);
+        let composite = if nu + nc > 0.0 {
+            ((nu * fd + nc) / (nu + nc)).min(1.0)
+        } else {
+            fd
+        };
+        (composite, common)
     };
+    let nc = common as f64;
     let jaccard = if tolerance < 1.0 {
         let den = q.xs.len() + range.len() - common.min(q.xs.len() + range.len());
         if den == 0 {
@@ -418,6 +431,70 @@ fn sparse_key(cache: &VectorCache, q: &Query<'_>, row: usize, w: f64, tolerance:
         1.0
     };
     (w * composite + (1.0 - w) * jaccard) as f32
+}
+
+/// For reverse search, the composite of the unknown and a row computed from the cached
+/// weights, plus a margin for their rounding to f32, and the number of m/z where both have a
+/// peak (any height). Reverse search keeps only the unknown's ions at the row's m/z, so its
+/// dot-product term F_D = (sum W_U W_L)^2 / (sum W_U^2 over the common m/z * sum W_L^2) and the
+/// ratio term are computed here exactly as `score::stein_scott` computes them, in one pass
+/// over the row's peaks (ascending m/z); the weights are normalised, which neither term sees.
+/// Each weight is its f64 value rounded to f32 (relative error 6e-8), which moves F_D by at
+/// most 8 of those and each ratio by at most 4, far inside `MARGIN`. A positive height whose
+/// weight did not survive the rounding cannot be accounted for, so such a row gets the bound 1.
+fn reverse_composite_bound(
+    cache: &VectorCache,
+    q: &Query<'_>,
+    range: std::ops::Range<usize>,
+) -> (f64, usize) {
+    let bins = &cache.peak_bin()[range.clone()];
+    let ws = &cache.peak_w()[range.clone()];
+    let hs = &cache.peak_h()[range];
+    let (mut ur, mut uu, mut ratios) = (0f64, 0f64, 0f64);
+    let (mut shared, mut common) = (0usize, 0usize);
+    let mut previous: Option<(f64, f64)> = None;
+    let mut accounted = true;
+    for ((&b, &x), &h) in bins.iter().zip(ws).zip(hs) {
+        let Some(t) = q.table.get(usize::from(b)) else {
+            continue; // beyond the unknown's largest m/z: no unknown peak there
+        };
+        if t[1] == 0.0 {
+            continue;
+        }
+        shared += 1;
+        // The composite counts m/z where both heights are above 0; a cached height of 0 may
+        // be a positive one lost to f32, as may a weight of 0.
+        if t[2] == 0.0 {
+            continue;
+        }
+        let (wu, wl) = (f64::from(t[0]), f64::from(x));
+        if h <= 0.0 || !(wu > 0.0 && wl > 0.0) {
+            accounted = false;
+            continue;
+        }
+        ur += wu * wl;
+        uu += wu * wu;
+        common += 1;
+        if let Some((pu, pl)) = previous {
+            let r = (wl * pu) / (pl * wu);
+            ratios += if r <= 1.0 { r } else { 1.0 / r };
+        }
+        previous = Some((wu, wl));
+    }
+    if !accounted {
+        return (1.0, shared);
+    }
+    let dot = if uu > 0.0 {
+        (ur * ur / uu).min(1.0)
+    } else {
+        0.0
+    };
+    let composite = if common < 2 {
+        dot
+    } else {
+        (dot + ratios / (common - 1) as f64) / 2.0
+    };
+    ((composite + MARGIN).min(1.0), shared)
 }
 
 /// Every first-scan key of a group of unknowns, chunk by chunk: in chunk `c`, unknown `j`'s
@@ -470,6 +547,7 @@ fn first_scan(
         .flat_map(|(v, _)| v.iter().copied())
         .collect();
     let tol = request.params.peak_tolerance;
+    let reverse = request.params.composite.reverse;
     let mut keys = vec![f32::NEG_INFINITY; n * nq];
     let heaps = keys
         .par_chunks_mut(CHUNK * nq)
@@ -487,7 +565,7 @@ fn first_scan(
                 if cache.kind == Kind::Sparse {
                     for r in (r0..r1).filter(|&r| on(r)) {
                         for (j, (q, heap)) in queries.iter().zip(heaps.iter_mut()).enumerate() {
-                            let key = sparse_key(cache, q, r, w, tol);
+                            let key = sparse_key(cache, q, r, w, tol, reverse);
                             keys[j * len + r - r0] = key;
                             heap.push(key, r);
                         }
@@ -706,17 +784,19 @@ mod tests {
             unknowns.push(unknown(&lib, technique, pts));
         }
         let mut requests = Vec::new();
-        for (pending, filter, top) in [
-            (false, None, 10),
-            (true, None, 10),
-            (true, Some("tag:even"), 10),
-            (true, None, 1),
-            (true, None, 50),
+        for (pending, filter, top, reverse) in [
+            (false, None, 10, true),
+            (true, None, 10, true),
+            (true, Some("tag:even"), 10, true),
+            (true, None, 1, true),
+            (true, None, 50, true),
+            (false, None, 10, false),
+            (true, Some("tag:even"), 10, false),
+            (true, None, 1, false),
         ] {
             let mut r = Request::new(technique);
-            // The cache serves forward EI search only; the default reverse search takes the
-            // exact path.
-            r.params.composite.reverse = false;
+            // EI-MS: reverse search (the default) and forward search.
+            r.params.composite.reverse = reverse;
             if pending {
                 r.statuses.push(Status::Pending);
             }
@@ -780,6 +860,45 @@ mod tests {
                 }
             }
         }
+    }
+
+    #[test]
+    fn the_reverse_scan_bound_is_tight_and_never_below_the_composite() {
+        // For every row, the first scan's reverse-search composite lies within MARGIN above
+        // the exact one (`score::stein_scott` on the stored f64 peaks), so it is a valid
+        // bound that leaves little to rescore.
+        let (lib, refs) = random_library(Technique::MsEi, 120, 31);
+        let (cache, _) = get(&lib, Technique::MsEi, Kind::Sparse).unwrap();
+        let grid = lib.recipe(Technique::MsEi).unwrap().grid.clone();
+        let active = active_bins(&grid);
+        let bins = Bins::new(&grid);
+        let mut rng = Rng::new(32);
+        let params = crate::score::CompositeParams::default();
+        assert!(params.reverse);
+        let mut seen_ratio = false;
+        for k in 0..8 {
+            let pts = if k % 2 == 0 {
+                perturb(&refs[k * 11], &mut rng, 0.3)
+            } else {
+                ms_points(&mut rng)
+            };
+            let u = unknown(&lib, Technique::MsEi, pts);
+            let q = make_query(&u, &cache, &active, &bins, 0.5);
+            let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
+            for row in 0..cache.rows() {
+                let (bound, _) = reverse_composite_bound(&cache, &q, cache.peak_range(row));
+                let reference = lib.prepared(cache.ids()[row]).unwrap();
+                let rp: Vec<(f64, f64)> = reference.peaks.iter().map(|p| (p.x, p.height)).collect();
+                let exact = stein_scott(&up, &rp, &params);
+                seen_ratio |= exact.common_peaks >= 2 && exact.ratio < 0.99;
+                assert!(
+                    bound >= exact.composite && bound <= exact.composite + 2.0 * MARGIN,
+                    "row {row}: bound {bound}, exact {}",
+                    exact.composite
+                );
+            }
+        }
+        assert!(seen_ratio, "the ratio term was exercised");
     }
 
     proptest::proptest! {
