@@ -383,8 +383,11 @@ fn dense_key(
     (w * r + (1.0 - w) * jaccard + 1e-6) as f32
 }
 
-/// The combined-score bound of the first scan for a sparse (EI-MS) row.
+/// The combined-score bound of the first scan for a sparse (EI-MS) row. With reverse search,
+/// a row whose loose bound (ratio term 1) stays below `floor` keeps that bound without the
+/// ratio term being computed.
 #[inline]
+#[allow(clippy::too_many_arguments)]
 fn sparse_key(
     cache: &VectorCache,
     q: &Query<'_>,
@@ -392,68 +395,108 @@ fn sparse_key(
     w: f64,
     tolerance: f64,
     reverse: bool,
+    floor: f32,
 ) -> f32 {
     let range = cache.peak_range(row);
-    let (composite, common) = if reverse {
-        reverse_composite_bound(cache, q, range.clone())
-    } else {
-        let (bins, ws) = (
-            &cache.peak_bin()[range.clone()],
-            &cache.peak_w()[range.clone()],
-        );
-        let (mut dot, mut shared) = (0f32, 0f32);
-        for (&b, &x) in bins.iter().zip(ws) {
-            if let Some(t) = q.table.get(usize::from(b)) {
-                dot += t[0] * x;
-                shared += t[1];
-            }
+    if reverse {
+        let sums = reverse_sums(cache, q, range.clone());
+        let jaccard = jaccard_bound(q, range.len(), sums.shared, tolerance);
+        let key = |composite: f64| (w * composite + (1.0 - w) * jaccard) as f32;
+        if !sums.accounted {
+            return key(1.0);
         }
-        // A count of at most 65536 ones: exact in f32.
-        let common = shared as usize;
-        let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
-        let (nu, nc) = (q.positive as f64, common as f64);
-        let composite = if nu + nc > 0.0 {
-            ((nu * fd + nc) / (nu + nc)).min(1.0)
-        } else {
-            fd
-        };
-        (composite, common)
-    };
-    let nc = common as f64;
-    let jaccard = if tolerance < 1.0 {
-        let den = q.xs.len() + range.len() - common.min(q.xs.len() + range.len());
-        if den == 0 {
-            0.0
-        } else {
-            (nc / den as f64).min(1.0)
+        let dot = sums.dot();
+        if sums.common < 2 {
+            return key((dot + MARGIN).min(1.0));
         }
+        let loose = key(((dot + 1.0) / 2.0 + MARGIN).min(1.0));
+        if loose < floor {
+            return loose;
+        }
+        let ratio = reverse_ratio(cache, q, range);
+        return key(((dot + ratio) / 2.0 + MARGIN).min(1.0));
+    }
+    let (bins, ws) = (
+        &cache.peak_bin()[range.clone()],
+        &cache.peak_w()[range.clone()],
+    );
+    let (mut dot, mut shared) = (0f32, 0f32);
+    for (&b, &x) in bins.iter().zip(ws) {
+        if let Some(t) = q.table.get(usize::from(b)) {
+            dot += t[0] * x;
+            shared += t[1];
+        }
+    }
+    // A count of at most 65536 ones: exact in f32.
+    let common = shared as usize;
+    let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
+    let (nu, nc) = (q.positive as f64, common as f64);
+    let composite = if nu + nc > 0.0 {
+        ((nu * fd + nc) / (nu + nc)).min(1.0)
     } else {
-        1.0
+        fd
     };
+    let jaccard = jaccard_bound(q, range.len(), common, tolerance);
     (w * composite + (1.0 - w) * jaccard) as f32
 }
 
-/// For reverse search, the composite of the unknown and a row computed from the cached
-/// weights, plus a margin for their rounding to f32, and the number of m/z where both have a
-/// peak (any height). Reverse search keeps only the unknown's ions at the row's m/z, so its
-/// dot-product term F_D = (sum W_U W_L)^2 / (sum W_U^2 over the common m/z * sum W_L^2) and the
-/// ratio term are computed here exactly as `score::stein_scott` computes them, in one pass
-/// over the row's peaks (ascending m/z); the weights are normalised, which neither term sees.
-/// Each weight is its f64 value rounded to f32 (relative error 6e-8), which moves F_D by at
-/// most 8 of those and each ratio by at most 4, far inside `MARGIN`. A positive height whose
-/// weight did not survive the rounding cannot be accounted for, so such a row gets the bound 1.
-fn reverse_composite_bound(
-    cache: &VectorCache,
-    q: &Query<'_>,
-    range: std::ops::Range<usize>,
-) -> (f64, usize) {
+/// A bound on the peak Jaccard of the unknown and a row of `row_peaks` peaks that share
+/// `shared` m/z: within a tolerance below 1 m/z only peaks at the same nominal m/z can pair.
+fn jaccard_bound(q: &Query<'_>, row_peaks: usize, shared: usize, tolerance: f64) -> f64 {
+    if tolerance >= 1.0 {
+        return 1.0;
+    }
+    let den = q.xs.len() + row_peaks - shared.min(q.xs.len() + row_peaks);
+    if den == 0 {
+        0.0
+    } else {
+        (shared as f64 / den as f64).min(1.0)
+    }
+}
+
+/// The sums of reverse search over one row, from the cached weights (see [`reverse_ratio`]).
+struct ReverseSums {
+    /// sum W_U W_L over the common m/z (normalised weights).
+    ur: f64,
+    /// sum W_U^2 over the common m/z.
+    uu: f64,
+    /// m/z where both have a peak, of any height (for the Jaccard bound).
+    shared: usize,
+    /// m/z where both heights are above 0 (N_common of the composite).
+    common: usize,
+    /// False when a positive height's weight was lost to f32 rounding.
+    accounted: bool,
+}
+
+impl ReverseSums {
+    /// F_D of reverse search: (sum W_U W_L)^2 / (sum W_U^2 over the common m/z * sum W_L^2),
+    /// the row's sum W_L^2 being 1.
+    fn dot(&self) -> f64 {
+        if self.uu > 0.0 {
+            (self.ur * self.ur / self.uu).min(1.0)
+        } else {
+            0.0
+        }
+    }
+}
+
+/// Reverse search keeps only the unknown's ions at the row's m/z, so its dot-product term is
+/// taken over the common m/z, exactly as `score::stein_scott` does, here in one pass over the
+/// row's peaks. Each weight is its f64 value rounded to f32 (relative error 6e-8), which
+/// moves F_D by at most 8 of those, far inside `MARGIN`. A cached height or weight of 0 may be
+/// a positive one lost to f32; such a row is marked not accounted for (bound 1).
+#[inline]
+fn reverse_sums(cache: &VectorCache, q: &Query<'_>, range: std::ops::Range<usize>) -> ReverseSums {
     let bins = &cache.peak_bin()[range.clone()];
     let ws = &cache.peak_w()[range.clone()];
     let hs = &cache.peak_h()[range];
-    let (mut ur, mut uu, mut ratios) = (0f64, 0f64, 0f64);
-    let (mut shared, mut common) = (0usize, 0usize);
-    let mut previous: Option<(f64, f64)> = None;
-    let mut accounted = true;
+    let mut s = ReverseSums {
+        ur: 0.0,
+        uu: 0.0,
+        shared: 0,
+        common: 0,
+        accounted: true,
+    };
     for ((&b, &x), &h) in bins.iter().zip(ws).zip(hs) {
         let Some(t) = q.table.get(usize::from(b)) else {
             continue; // beyond the unknown's largest m/z: no unknown peak there
@@ -461,40 +504,47 @@ fn reverse_composite_bound(
         if t[1] == 0.0 {
             continue;
         }
-        shared += 1;
-        // The composite counts m/z where both heights are above 0; a cached height of 0 may
-        // be a positive one lost to f32, as may a weight of 0.
+        s.shared += 1;
         if t[2] == 0.0 {
-            continue;
+            continue; // the unknown's peak has height 0: not common in the composite
         }
         let (wu, wl) = (f64::from(t[0]), f64::from(x));
         if h <= 0.0 || !(wu > 0.0 && wl > 0.0) {
-            accounted = false;
+            s.accounted = false;
             continue;
         }
-        ur += wu * wl;
-        uu += wu * wu;
-        common += 1;
+        s.ur += wu * wl;
+        s.uu += wu * wu;
+        s.common += 1;
+    }
+    s
+}
+
+/// The ratio term of reverse search over one row with at least two common m/z (all of them
+/// accounted for, see [`reverse_sums`]): the mean over adjacent common m/z of
+/// (W_L,i W_U,i-1 / (W_L,i-1 W_U,i))^(+-1), as `score::stein_scott` takes it; the weights'
+/// normalisation cancels, and their rounding moves each ratio by at most 4 x 6e-8.
+fn reverse_ratio(cache: &VectorCache, q: &Query<'_>, range: std::ops::Range<usize>) -> f64 {
+    let bins = &cache.peak_bin()[range.clone()];
+    let ws = &cache.peak_w()[range];
+    let (mut sum, mut pairs) = (0f64, 0usize);
+    let mut previous: Option<(f64, f64)> = None;
+    for (&b, &x) in bins.iter().zip(ws) {
+        let Some(t) = q.table.get(usize::from(b)) else {
+            continue;
+        };
+        if t[1] == 0.0 || t[2] == 0.0 {
+            continue;
+        }
+        let (wu, wl) = (f64::from(t[0]), f64::from(x));
         if let Some((pu, pl)) = previous {
             let r = (wl * pu) / (pl * wu);
-            ratios += if r <= 1.0 { r } else { 1.0 / r };
+            sum += if r <= 1.0 { r } else { 1.0 / r };
+            pairs += 1;
         }
         previous = Some((wu, wl));
     }
-    if !accounted {
-        return (1.0, shared);
-    }
-    let dot = if uu > 0.0 {
-        (ur * ur / uu).min(1.0)
-    } else {
-        0.0
-    };
-    let composite = if common < 2 {
-        dot
-    } else {
-        (dot + ratios / (common - 1) as f64) / 2.0
-    };
-    ((composite + MARGIN).min(1.0), shared)
+    if pairs == 0 { 0.0 } else { sum / pairs as f64 }
 }
 
 /// Every first-scan key of a group of unknowns, chunk by chunk: in chunk `c`, unknown `j`'s
@@ -565,7 +615,8 @@ fn first_scan(
                 if cache.kind == Kind::Sparse {
                     for r in (r0..r1).filter(|&r| on(r)) {
                         for (j, (q, heap)) in queries.iter().zip(heaps.iter_mut()).enumerate() {
-                            let key = sparse_key(cache, q, r, w, tol, reverse);
+                            let floor = heap.floor();
+                            let key = sparse_key(cache, q, r, w, tol, reverse, floor);
                             keys[j * len + r - r0] = key;
                             heap.push(key, r);
                         }
@@ -886,7 +937,8 @@ mod tests {
             let q = make_query(&u, &cache, &active, &bins, 0.5);
             let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
             for row in 0..cache.rows() {
-                let (bound, _) = reverse_composite_bound(&cache, &q, cache.peak_range(row));
+                // Spectral weight 1: the key is the composite bound alone.
+                let bound = f64::from(sparse_key(&cache, &q, row, 1.0, 0.5, true, f32::MIN));
                 let reference = lib.prepared(cache.ids()[row]).unwrap();
                 let rp: Vec<(f64, f64)> = reference.peaks.iter().map(|p| (p.x, p.height)).collect();
                 let exact = stein_scott(&up, &rp, &params);
@@ -901,15 +953,22 @@ mod tests {
         assert!(seen_ratio, "the ratio term was exercised");
     }
 
+    /// Uniform f64 values in `lo..hi` on a grid of a million steps (proptest's float range
+    /// sampler can trip a debug assertion inside proptest on some seeds, known upstream).
+    fn f64_in(lo: f64, hi: f64) -> impl proptest::strategy::Strategy<Value = f64> {
+        use proptest::strategy::Strategy;
+        (0u32..1_000_000).prop_map(move |n| lo + (hi - lo) * (f64::from(n) / 1e6))
+    }
+
     proptest::proptest! {
         /// The first scan's bound on matched peaks is never below what one-to-one matching
         /// pairs, for positions anywhere (inside the grid or not), rounded to f32 in the cache.
         #[test]
         fn matched_bound_never_undercounts(
-            u in proptest::collection::vec(300.0f64..4100.0, 0..15),
-            r in proptest::collection::vec(300.0f64..4100.0, 0..15),
-            near in proptest::collection::vec((0usize..15, -7.0f64..7.0), 0..15),
-            tol in 0.5f64..12.0,
+            u in proptest::collection::vec(f64_in(300.0, 4100.0), 0..15),
+            r in proptest::collection::vec(f64_in(300.0, 4100.0), 0..15),
+            near in proptest::collection::vec((0usize..15, f64_in(-7.0, 7.0)), 0..15),
+            tol in f64_in(0.5, 12.0),
         ) {
             // Some row peaks placed near unknown peaks, some at the tolerance's edge.
             let mut r = r;
