@@ -1,6 +1,6 @@
 use std::collections::BTreeSet;
 
-use crate::util::{Lab, csv_rows, hint, ir_csv, keys, ms_csv, seed};
+use crate::util::{Lab, csv_rows, hint, ir_csv, keys, ms_csv, seed, seed_rows};
 
 /// Writes three good spectra into `m/` and a manifest `m/<name>` listing them, with a row
 /// for a file of repeated x values after the first when `bad` is true.
@@ -260,4 +260,34 @@ fn a_manifest_with_a_duplicated_row_names_the_repeat() {
         "{text}"
     );
     assert!(text.contains("imported 2"), "{text}");
+}
+
+/// Distinct segments in a library's text index (tantivy names each segment's files by one id).
+fn text_segments(lab: &Lab) -> usize {
+    let names: BTreeSet<String> = std::fs::read_dir(lab.library().join("text-index"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| !n.starts_with('.') && !n.ends_with(".json") && !n.ends_with(".lock"))
+        .filter_map(|n| n.split('.').next().map(str::to_string))
+        .collect();
+    names.len()
+}
+
+#[test]
+fn a_bulk_import_leaves_the_text_index_merged() {
+    // One commit per batch of 5: without waiting for its merges the index would keep one
+    // segment per batch, and every later command would open them all.
+    let lab = Lab::new();
+    let manifest = seed().join("manifest.csv");
+    let out = lab.run_env(
+        &["import", manifest.to_str().unwrap()],
+        &[("WHORL_IMPORT_BATCH", "5")],
+    );
+    assert!(out.status.success(), "{out:?}");
+    let batches = seed_rows(None).div_ceil(5);
+    let segments = text_segments(&lab);
+    assert!(
+        segments <= 16 && segments * 4 < batches,
+        "{segments} segments after {batches} commits"
+    );
 }
