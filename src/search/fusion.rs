@@ -390,17 +390,6 @@ pub struct IdentifyOptions<'a> {
     pub configure: &'a dyn Fn(&mut Request),
 }
 
-impl Default for IdentifyOptions<'_> {
-    fn default() -> Self {
-        IdentifyOptions {
-            constraints: Constraints::default(),
-            top: 10,
-            policy: IdentityPolicy::default(),
-            configure: &|_| {},
-        }
-    }
-}
-
 /// Searches each unknown against the library with its technique's default scoring (adjusted
 /// by `options.configure`) and the given constraints, fuses the hit lists per compound
 /// ([`fuse`]) and judges the result against the identity policy ([`judge`]).
