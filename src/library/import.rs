@@ -85,7 +85,24 @@ struct Prepped {
 /// read and prepared on the other cores. Preparing has no side effects, so a crash leaves
 /// every committed batch whole and nothing of the one under way or the one being prepared;
 /// a re-run stores those.
+///
+/// The text index is updated once, after the last batch ([`Library::defer_text`]).
 pub fn import_rows(
+    lib: &mut Library,
+    rows: Vec<ManifestRow>,
+    actor: &str,
+    all_or_nothing: bool,
+    progress: &(dyn Fn(usize) + Sync),
+) -> Result<ImportReport> {
+    lib.defer_text();
+    let result = import_batches(lib, rows, actor, all_or_nothing, progress);
+    let flushed = lib.flush_text();
+    let report = result?;
+    flushed?;
+    Ok(report)
+}
+
+fn import_batches(
     lib: &mut Library,
     rows: Vec<ManifestRow>,
     actor: &str,

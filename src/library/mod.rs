@@ -40,6 +40,8 @@ use crate::text::TextIndex;
 pub const DATABASE_FILE: &str = "library.sqlite";
 /// The text index folder inside a library folder.
 pub const TEXT_INDEX_DIR: &str = "text-index";
+/// Text-index updates held back during a bulk import are written once this many wait.
+const TEXT_DEFER_LIMIT: usize = 20_000;
 
 /// An open library.
 pub struct Library {
@@ -50,6 +52,9 @@ pub struct Library {
     /// Set when the text index could not be brought up to date (another process holds its
     /// writer lock); it is derived data, so the command goes on and says so.
     text_behind: std::cell::Cell<bool>,
+    /// While a bulk import runs, the ids whose text-index update waits for its end, and the
+    /// generation of the last commit (see [`Library::defer_text`]).
+    text_deferred: std::cell::RefCell<Option<(Vec<i64>, i64)>>,
     /// Vector caches mapped by this process (derived data, see `crate::cache`).
     caches: crate::cache::Caches,
 }
@@ -112,6 +117,7 @@ impl Library {
             recipes: Recipes::new(),
             text,
             text_behind: Default::default(),
+            text_deferred: Default::default(),
             caches: Default::default(),
         };
         lib.initialise(actor, recipes)?;
@@ -134,6 +140,7 @@ impl Library {
             recipes: Recipes::new(),
             text: TextIndex::in_ram()?,
             text_behind: Default::default(),
+            text_deferred: Default::default(),
             caches: Default::default(),
         };
         lib.initialise(actor, recipes)?;
@@ -209,6 +216,7 @@ impl Library {
             recipes,
             text,
             text_behind: Default::default(),
+            text_deferred: Default::default(),
             caches: Default::default(),
         };
         if lib.refresh_text_index().is_err() {
@@ -302,6 +310,22 @@ impl Library {
     /// failure here (another process holding the index's writer lock) only leaves the index
     /// behind; the next command rebuilds it from the recorded generation.
     pub(crate) fn sync_text(&self, ids: &[i64], generation: i64) -> Result<()> {
+        let due = match self.text_deferred.borrow_mut().as_mut() {
+            Some((pending, last)) => {
+                pending.extend_from_slice(ids);
+                *last = generation;
+                // Written now and then all the same, so a long import holds few records.
+                (pending.len() >= TEXT_DEFER_LIMIT).then(|| std::mem::take(pending))
+            }
+            None => Some(ids.to_vec()),
+        };
+        match due {
+            Some(ids) => self.write_text(&ids, generation),
+            None => Ok(()),
+        }
+    }
+
+    fn write_text(&self, ids: &[i64], generation: i64) -> Result<()> {
         let records = self.records(ids)?;
         if self
             .text
@@ -313,6 +337,27 @@ impl Library {
         Ok(())
     }
 
+    /// Holds text-index updates back until [`Library::flush_text`]: a bulk import commits one
+    /// transaction per batch, and one index commit (with its segment merges) per batch would
+    /// cost more than the batch itself. Until the flush the index is behind the database,
+    /// which it records (the generation), so a crash in between only means the next command
+    /// rebuilds it.
+    pub(crate) fn defer_text(&self) {
+        let generation = self.generation().unwrap_or(0);
+        self.text_deferred.replace(Some((Vec::new(), generation)));
+    }
+
+    /// Writes the text-index updates held back since [`Library::defer_text`], in one commit.
+    pub(crate) fn flush_text(&self) -> Result<()> {
+        let Some((ids, generation)) = self.text_deferred.take() else {
+            return Ok(());
+        };
+        if ids.is_empty() {
+            return Ok(());
+        }
+        self.write_text(&ids, generation)
+    }
+
     /// A setting's value, if set.
     pub fn setting(&self, key: &str) -> Result<Option<String>> {
         Ok(self
@@ -321,5 +366,46 @@ impl Library {
                 r.get(0)
             })
             .optional()?)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cache::synthetic::{Rng, ir_points, staged};
+
+    #[test]
+    fn deferred_text_updates_are_written_once_at_the_flush() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let recipes = lib.recipes().clone();
+        let mut rng = Rng::new(7);
+        let mut batch = |first: usize| -> Vec<Staged> {
+            (first..first + 3)
+                .map(|i| {
+                    let name = format!("c{i}");
+                    staged(&recipes, Technique::Ir, ir_points(&mut rng), &name, &[]).unwrap()
+                })
+                .collect()
+        };
+        let (a, b) = (batch(0), batch(3));
+        lib.defer_text();
+        lib.store(&a, "t", false).unwrap();
+        lib.store(&b, "t", false).unwrap();
+        // Two commits, nothing in the index yet, which knows it is behind.
+        assert_eq!(lib.text().len(), 0);
+        assert_ne!(
+            lib.text().generation().unwrap(),
+            Some(lib.generation().unwrap())
+        );
+        lib.flush_text().unwrap();
+        assert_eq!(lib.text().len(), 6);
+        assert_eq!(
+            lib.text().generation().unwrap(),
+            Some(lib.generation().unwrap())
+        );
+        // Without deferral every commit updates the index at once.
+        let c = batch(6);
+        lib.store(&c, "t", false).unwrap();
+        assert_eq!(lib.text().len(), 9);
     }
 }
