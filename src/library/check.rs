@@ -8,10 +8,9 @@ use serde::Serialize;
 use serde_json::Value;
 
 use super::records::{GENESIS_HASH, SpectrumRecord, event_hash, f32_bytes};
-use super::{ContentSum, Library, Recipes, prepare_raw, record_hash};
+use super::{ContentSum, Library, Recipes, prepare_stored, record_hash};
 use crate::error::Result;
-use crate::prepare::Solvent;
-use crate::spectrum::{decode_points, sha256_hex};
+use crate::spectrum::sha256_hex;
 
 /// One inconsistency, with the record it concerns.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -412,27 +411,19 @@ fn verify_blob(
         return out;
     }
     let again = (|| -> Result<(Vec<u8>, String)> {
-        let points = decode_points(blob).unwrap_or_default();
         let recipe = recipes.get(&rec.technique).ok_or_else(|| {
             crate::Error::invalid(
                 format!("no recipe for {}", rec.technique),
                 "the library's recipe table is damaged",
             )
         })?;
-        let solvent = rec
-            .metadata
-            .solvent
-            .as_deref()
-            .map(str::parse::<Solvent>)
-            .transpose()?;
-        let label = std::path::PathBuf::from(&id);
-        let p = prepare_raw(
-            &label,
+        let p = prepare_stored(
+            rec.id,
             recipe,
-            &points,
-            rec.x_unit.parse()?,
-            rec.y_unit.parse()?,
-            solvent,
+            blob,
+            &rec.x_unit,
+            &rec.y_unit,
+            rec.metadata.solvent.as_deref(),
         )?;
         Ok((f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?))
     })();

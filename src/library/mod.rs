@@ -22,8 +22,8 @@ pub use recipe_change::RecipeChange;
 pub use records::{Candidate, Event, Metadata, Outcome, SpectrumRecord, Stats, Status, Summary};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
-    Recipes, Staged, Submission, normalise_metadata, prepare_raw, read_and_prepare, stage,
-    usual_x_unit,
+    Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,
+    stage, usual_x_unit,
 };
 pub use vectors::{Snapshot, VectorRow};
 

@@ -12,11 +12,10 @@ use rusqlite::{Connection, params};
 use serde::Serialize;
 
 use super::records::{append_event, f32_bytes};
-use super::stage::prepare_raw;
+use super::stage::prepare_stored;
 use super::{Library, Metadata, check_recipes};
 use crate::error::{Error, Result};
-use crate::prepare::{Prepared, Recipe, Solvent};
-use crate::spectrum::decode_points;
+use crate::prepare::{Prepared, Recipe};
 use crate::technique::Technique;
 
 /// Spectra prepared again per round trip to SQLite: bounds the raw points held in memory.
@@ -171,33 +170,12 @@ fn prepare_one(
     y_unit: &str,
     metadata: &str,
 ) -> Result<Prepared> {
-    let label = std::path::PathBuf::from(format!("spectrum:{id}"));
     let why = |e: Error| {
         Error::invalid(
             format!("spectrum {id} cannot be prepared with the new recipe: {e}"),
             "nothing was changed; every spectrum of the technique, withdrawn ones too, must prepare under the new recipe",
         )
     };
-    let points = decode_points(raw).ok_or_else(|| {
-        why(Error::invalid(
-            "its raw points cannot be decoded",
-            "run `whorl check`",
-        ))
-    })?;
     let metadata: Metadata = serde_json::from_str(metadata)?;
-    let solvent = metadata
-        .solvent
-        .as_deref()
-        .map(str::parse::<Solvent>)
-        .transpose()
-        .map_err(why)?;
-    prepare_raw(
-        &label,
-        recipe,
-        &points,
-        x_unit.parse().map_err(why)?,
-        y_unit.parse().map_err(why)?,
-        solvent,
-    )
-    .map_err(why)
+    prepare_stored(id, recipe, raw, x_unit, y_unit, metadata.solvent.as_deref()).map_err(why)
 }

@@ -182,6 +182,33 @@ pub fn stage(recipes: &Recipes, mut submission: Submission) -> Result<Staged> {
     })
 }
 
+/// Prepares a stored spectrum again from what the library holds of it: its raw blob, the
+/// names of its x and y units and its metadata's solvent; `spectrum:ID` names it in errors.
+pub fn prepare_stored(
+    id: i64,
+    recipe: &Recipe,
+    raw: &[u8],
+    x_unit: &str,
+    y_unit: &str,
+    solvent: Option<&str>,
+) -> Result<Prepared> {
+    let points = crate::spectrum::decode_points(raw).ok_or_else(|| {
+        Error::invalid(
+            format!("the raw points of spectrum {id} cannot be decoded"),
+            "run `whorl check`",
+        )
+    })?;
+    let solvent = solvent.map(str::parse::<Solvent>).transpose()?;
+    prepare_raw(
+        &PathBuf::from(format!("spectrum:{id}")),
+        recipe,
+        &points,
+        x_unit.parse()?,
+        y_unit.parse()?,
+        solvent,
+    )
+}
+
 /// Prepares stored raw points again (after a revision changes the solvent, or to verify the
 /// stored prepared form). Gives exactly what the import gave, because the y unit stored is the
 /// one the import used.
