@@ -230,21 +230,15 @@ pub fn confidence(technique: Technique, params: &ScoreParams) -> Confidence {
     let direction = |p: &ScoreParams| {
         technique == Technique::MsEi && p.measure == Measure::Composite && p.composite.reverse
     };
-    let reverse = direction(params);
-    let exact = THRESHOLDS
-        .iter()
-        .find(|t| t.technique == technique && t.measure == params.measure && t.reverse == reverse);
-    let default = ScoreParams::default_for(technique);
-    let (row, derived) = match exact {
+    let find = |p: &ScoreParams| {
+        THRESHOLDS.iter().find(|t| {
+            t.technique == technique && t.measure == p.measure && t.reverse == direction(p)
+        })
+    };
+    let (row, derived) = match find(params) {
         Some(r) => (r, true),
         None => (
-            THRESHOLDS
-                .iter()
-                .find(|t| {
-                    t.technique == technique
-                        && t.measure == default.measure
-                        && t.reverse == direction(&default)
-                })
+            find(&ScoreParams::default_for(technique))
                 .expect("every technique has a row for its default measure"),
             false,
         ),
