@@ -3,7 +3,7 @@
 //! ```text
 //! header   512 bytes: magic, format version, kind, technique, grid length (dim), padded
 //!          row length (stride), rows, peaks (nnz), generation, fingerprint, composite
-//!          exponents, flags, section offsets
+//!          exponents, section offsets, flags, coarse factor
 //! ids      i64 x rows       spectrum ids, ascending
 //! status   u8  x rows       0 pending, 1 verified
 //! scale    f32 x rows       dense: the i8 row's scale (value = scale x i8)
@@ -11,6 +11,10 @@
 //! npos     u32 x rows       peaks with a positive height
 //! f32      f32 x rows x stride   dense rows, zero-padded
 //! i8       i8  x rows x stride   the same rows quantised per row
+//! c_scale  f32 x rows       dense: the coarse row's scale
+//! c_l1     f32 x rows       dense: L1 norm of the dequantised coarse row
+//! c_rest   f32 x rows       dense: L2 norm of what the coarse row leaves out, rounded up
+//! c_i8     i8  x rows x coarse_stride   coarse rows quantised per row (see `coarse_row`)
 //! peak_off u64 x (rows + 1) where each row's peaks start
 //! peak_x   f32 x nnz        peak positions
 //! peak_h   f32 x nnz        sparse: peak heights
@@ -36,11 +40,13 @@ use crate::technique::{Grid, Technique};
 /// The cache folder inside a library folder.
 pub const CACHE_DIR: &str = "cache";
 /// The version of the cache file layout; a file of another version is rebuilt.
-pub const FORMAT_VERSION: u32 = 1;
+pub const FORMAT_VERSION: u32 = 2;
 const MAGIC: &[u8; 8] = b"WHORLVC\0";
 const HEADER: usize = 512;
 const ALIGN: usize = 64;
-const SECTIONS: usize = 12;
+const SECTIONS: usize = 16;
+/// Grid values averaged into one value of a coarse row.
+pub(super) const COARSE: usize = 4;
 /// Dense rows are padded to a multiple of this many values, so kernels need no tail loop.
 pub(super) const LANES: usize = 32;
 
@@ -86,9 +92,15 @@ pub fn file_name(technique: Technique, kind: Kind) -> String {
 struct Layout {
     rows: usize,
     stride: usize,
+    coarse_stride: usize,
     nnz: usize,
     offsets: [usize; SECTIONS],
     len: usize,
+}
+
+/// The padded length of the coarse rows of dense rows of length `stride`.
+pub(super) fn coarse_stride(stride: usize) -> usize {
+    stride.div_ceil(COARSE).div_ceil(LANES) * LANES
 }
 
 // Section indices.
@@ -104,6 +116,10 @@ const PX: usize = 8;
 const PH: usize = 9;
 const PBIN: usize = 10;
 const PW: usize = 11;
+const CSCALE: usize = 12;
+const CL1: usize = 13;
+const CREST: usize = 14;
+const CI8: usize = 15;
 
 impl Layout {
     fn new(kind: Kind, dim: usize, rows: usize, nnz: usize) -> Layout {
@@ -113,6 +129,7 @@ impl Layout {
             0
         };
         let sparse = if kind.dense() { 0 } else { nnz };
+        let coarse_stride = coarse_stride(stride);
         let sizes = [
             8 * rows,
             rows,
@@ -126,6 +143,10 @@ impl Layout {
             4 * sparse,
             2 * sparse,
             4 * sparse,
+            4 * rows,
+            4 * rows,
+            4 * rows,
+            rows * coarse_stride,
         ];
         let mut offsets = [0; SECTIONS];
         let mut at = HEADER;
@@ -136,6 +157,7 @@ impl Layout {
         Layout {
             rows,
             stride,
+            coarse_stride,
             nnz,
             offsets,
             len: at,
@@ -223,6 +245,31 @@ impl VectorCache {
             &self.map,
             self.layout.offsets[I8],
             self.layout.rows * self.layout.stride,
+        )
+    }
+
+    /// Padded length of the coarse rows.
+    pub fn coarse_stride(&self) -> usize {
+        self.layout.coarse_stride
+    }
+
+    /// The coarse i8 matrix, row-major, `rows x coarse_stride`.
+    pub fn coarse_matrix(&self) -> &[i8] {
+        section(
+            &self.map,
+            self.layout.offsets[CI8],
+            self.layout.rows * self.layout.coarse_stride,
+        )
+    }
+
+    /// Per row: the coarse row's scale, the L1 norm of its dequantised values, and the L2
+    /// norm of what it leaves out (see [`coarse_row`]).
+    pub(super) fn coarse_terms(&self) -> (&[f32], &[f32], &[f32]) {
+        let n = self.layout.rows;
+        (
+            section(&self.map, self.layout.offsets[CSCALE], n),
+            section(&self.map, self.layout.offsets[CL1], n),
+            section(&self.map, self.layout.offsets[CREST], n),
         )
     }
 
@@ -331,7 +378,10 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         mass_exponent: f64::from_bits(u64_at(h, 96)),
         reverse: false,
     };
-    let integer_x = h[264] == 1;
+    if u32_at(h, 300) as usize != COARSE {
+        return Err("cache of another coarse factor".into());
+    }
+    let integer_x = h[296] == 1;
     let c = VectorCache {
         map,
         layout,
@@ -402,6 +452,14 @@ impl Filler<'_> {
                 .copy_from_slice(&q);
             section_mut::<f32>(self.map, l.offsets[SCALE], l.rows)[i] = scale;
             section_mut::<f32>(self.map, l.offsets[L1], l.rows)[i] = l1;
+            let (coarse, rest) = coarse_row(&row, l.coarse_stride);
+            let (q, scale, l1) = quantise(&coarse);
+            let cs = l.coarse_stride;
+            section_mut::<i8>(self.map, l.offsets[CI8], l.rows * cs)[i * cs..(i + 1) * cs]
+                .copy_from_slice(&q);
+            section_mut::<f32>(self.map, l.offsets[CSCALE], l.rows)[i] = scale;
+            section_mut::<f32>(self.map, l.offsets[CL1], l.rows)[i] = l1;
+            section_mut::<f32>(self.map, l.offsets[CREST], l.rows)[i] = rest;
         }
         let start = self.peak;
         let end = start + r.peaks.len();
@@ -459,6 +517,34 @@ pub(super) fn dense_row(v: &[f32], kind: Kind, active: &[bool]) -> Vec<f32> {
     x.iter()
         .map(|&a| if norm > 0.0 { (a / norm) as f32 } else { 0.0 })
         .collect()
+}
+
+/// The coarse row of a dense row, and an upper bound on the L2 norm of what it leaves out.
+///
+/// Let P be the orthogonal projection onto vectors constant over each block of [`COARSE`]
+/// consecutive values. Every vector splits as x = Px + x', with Px and x' orthogonal, so for
+/// two rows q.x = Pq.Px + q'.x', and by the Cauchy-Schwarz inequality
+/// |q'.x'| <= |q'| |x'|. The coarse row holds sqrt(COARSE) times each block mean, so that
+/// the dot product of two coarse rows is Pq.Px; `rest` is |x'|. The scan bounds q.x by the
+/// coarse dot product plus |q'| |x'|, reading a quarter of the bytes of the full i8 row.
+/// Smooth spectra (bands several grid steps wide) leave little out, so the bound is tight
+/// where it matters. The norm is computed in f64 and rounded up, so it is never too small.
+pub(super) fn coarse_row(row: &[f32], coarse_stride: usize) -> (Vec<f32>, f32) {
+    let mut coarse = vec![0f32; coarse_stride];
+    let mut rest = 0f64;
+    let root = (COARSE as f64).sqrt();
+    for (c, block) in coarse.iter_mut().zip(row.chunks(COARSE)) {
+        // A short last block is padded with zeros, as the cache's rows are.
+        let mean = block.iter().map(|&a| f64::from(a)).sum::<f64>() / COARSE as f64;
+        rest += block
+            .iter()
+            .map(|&a| (f64::from(a) - mean).powi(2))
+            .sum::<f64>()
+            + (COARSE - block.len()) as f64 * mean * mean;
+        *c = (mean * root) as f32;
+    }
+    let rest = rest.sqrt();
+    (coarse, (rest * (1.0 + 1e-6) + 1e-7) as f32)
 }
 
 /// Quantises a row to i8 with one scale (value = scale x q): the scale, and the L1 norm of
@@ -531,7 +617,8 @@ fn write_header(map: &mut [u8], c: &Tag<'_>) {
     for (i, &o) in l.offsets.iter().enumerate() {
         h[168 + 8 * i..176 + 8 * i].copy_from_slice(&(o as u64).to_le_bytes());
     }
-    h[264] = u8::from(c.integer_x);
+    h[296] = u8::from(c.integer_x);
+    h[300..304].copy_from_slice(&(COARSE as u32).to_le_bytes());
     // The magic goes in last, so a map that was not completely filled never parses.
     h[0..8].copy_from_slice(MAGIC);
 }

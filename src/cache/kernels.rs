@@ -173,6 +173,22 @@ pub fn i8_dots(rows: &[i8], stride: usize, queries: &[i8], out: &mut [i32]) {
     block_portable(rows, stride, queries, out)
 }
 
+/// The integer dot product of one row with one query of the same length.
+pub fn i8_dot(row: &[i8], query: &[i8]) -> i32 {
+    debug_assert_eq!(row.len(), query.len());
+    #[cfg(target_arch = "x86_64")]
+    if row.len().is_multiple_of(32)
+        && !row.is_empty()
+        && std::arch::is_x86_feature_detected!("avx2")
+    {
+        let mut out = [0i32; 1];
+        // SAFETY: the CPU has AVX2, checked just above.
+        unsafe { avx2::dots(row, row.len(), query, &mut out) };
+        return out[0];
+    }
+    dot_i8_body(row, query)
+}
+
 /// A key with a row index, ordered by key, then by lower row first.
 #[derive(Debug, Clone, Copy)]
 pub struct Entry(pub f32, pub usize);

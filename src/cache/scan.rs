@@ -19,11 +19,12 @@
 //! exact one, not an approximation.
 
 use std::collections::{HashMap, HashSet};
+use std::sync::atomic::{AtomicU32, AtomicUsize, Ordering};
 
 use rayon::prelude::*;
 
-use super::file::{active_bins, dense_row, quantise, weights};
-use super::kernels::{TopK, dot_f32, i8_dots};
+use super::file::{active_bins, coarse_row, dense_row, quantise, weights};
+use super::kernels::{TopK, dot_f32, i8_dot, i8_dots};
 use super::{Kind, VectorCache, get, kind_for};
 use crate::error::Result;
 use crate::library::{Library, Status};
@@ -47,6 +48,10 @@ struct Query<'a> {
     unknown: &'a Prepared,
     dense: Vec<f32>,
     l1: f32,
+    // Dense: the coarse row, its L1 norm, and the L2 norm of what it leaves out.
+    coarse: Vec<f32>,
+    coarse_l1: f32,
+    rest: f32,
     // Sparse: by nominal m/z, the unknown's weight, 1 when it has a peak there, and 1 when
     // that peak's height is above 0.
     table: Vec<[f32; 3]>,
@@ -130,6 +135,9 @@ pub struct Trace {
     pub rescored_rows: usize,
     /// Rows scored exactly from the database, over all unknowns.
     pub exact_rows: usize,
+    /// Dense: row and unknown pairs whose coarse bound reached the worker's smallest kept
+    /// key, so that the full i8 row was read.
+    pub fine_pairs: usize,
 }
 
 fn since(t: std::time::Instant) -> f64 {
@@ -211,7 +219,8 @@ fn rank_keeping(
     let mut out = Vec::with_capacity(unknowns.len());
     for queries in queries.chunks(group) {
         let t0 = std::time::Instant::now();
-        let (heaps, keys) = first_scan(&cache, queries, &mask, m, w, &bins, request);
+        let (heaps, keys, fine) = first_scan(&cache, queries, &mask, m, w, &bins, request);
+        trace.fine_pairs += fine;
         trace.scan_ms += since(t0);
         for (j, (q, heap)) in queries.iter().zip(heaps).enumerate() {
             let t0 = std::time::Instant::now();
@@ -300,6 +309,9 @@ fn make_query<'a>(
         unknown,
         dense: vec![],
         l1: 0.0,
+        coarse: vec![],
+        coarse_l1: 0.0,
+        rest: 0.0,
         table: vec![],
         positive: 0,
         xs: unknown.peaks.iter().map(|p| p.x).collect(),
@@ -324,6 +336,8 @@ fn make_query<'a>(
         let mut row = dense_row(&unknown.vector, cache.kind, active);
         row.resize(cache.stride(), 0.0);
         q.l1 = row.iter().map(|a| a.abs()).sum();
+        (q.coarse, q.rest) = coarse_row(&row, cache.coarse_stride());
+        q.coarse_l1 = q.coarse.iter().map(|a| a.abs()).sum();
         q.dense = row;
         q.near = vec![0u64; NEAR_BINS / 64];
         let t = widened(tolerance);
@@ -349,38 +363,75 @@ fn matched_bound(q: &Query<'_>, bins: &Bins, row_x: &[f32]) -> usize {
     near.min(q.xs.len())
 }
 
-/// The combined-score bound of the first scan for a dense row, from its i8 dot product
-/// (`sx`, `l1x`: the row's scale and L1 norm). When even a peak overlap of 1 would leave the
-/// bound below `floor`, that looser bound is returned without counting the peaks.
+/// A bound on the dot product of a query and a row from the i8 dot product `idot` of their
+/// quantised forms (`qscale`, `sx`: the scales; `ql1`: the query's L1 norm; `l1x`: the
+/// dequantised row's), `|q.x - q'.x'| <= |q|_1 s_x / 2 + s_q |x'|_1 / 2`, plus a margin for
+/// f32 rounding.
+#[inline]
+fn i8_bound(ql1: f32, qscale: f32, sx: f32, l1x: f32, idot: i32) -> f32 {
+    let est = qscale * sx * idot as f32;
+    est + 0.5 * ql1 * sx + 0.5 * qscale * l1x + 1e-5
+}
+
+/// The first scan's bound on the spectral score of a dense row from the coarse rows: the
+/// coarse dot product's bound plus |q'| |x'| (see `file::coarse_row`; `rest` is the row's
+/// |x'|).
+#[inline]
+fn coarse_bound(q: &Query<'_>, qscale: f32, sx: f32, l1x: f32, rest: f32, idot: i32) -> f64 {
+    f64::from(i8_bound(q.coarse_l1, qscale, sx, l1x, idot) + q.rest * rest).clamp(0.0, 1.0)
+}
+
+/// The bound on the peak Jaccard of a dense row whose peaks lie at `row_x`: m / (nu + nr -
+/// m) grows with the matched count m, so a bound on m bounds it.
+#[inline]
+fn jaccard_bound_dense(q: &Query<'_>, bins: &Bins, row_x: &[f32]) -> f64 {
+    let (nu, nr) = (q.xs.len(), row_x.len());
+    let m = matched_bound(q, bins, row_x);
+    if nu + nr == 0 {
+        0.0
+    } else {
+        m as f64 / (nu + nr - m) as f64
+    }
+}
+
+/// A combined-score bound from bounds on the spectral score and the peak Jaccard.
+#[inline]
+fn combined(w: f64, spectral: f64, jaccard: f64) -> f32 {
+    (w * spectral + (1.0 - w) * jaccard + 1e-6) as f32
+}
+
+/// The first-scan key of a dense row, tightened step by step only while it still reaches
+/// the worker's smallest kept key (`floor`): first the coarse bound with peak overlap 1, then
+/// with the peak-overlap bound, then the full i8 row's bound (read from `fine`, the row's
+/// i8 values, only then). Each step is an upper bound on the combined score.
 #[inline]
 #[allow(clippy::too_many_arguments)]
 fn dense_key(
     q: &Query<'_>,
-    qscale: f32,
-    sx: f32,
-    l1x: f32,
-    idot: i32,
+    coarse: (f32, f32, f32, f32, i32),
+    fine: (f32, f32, f32, &[i8], &[i8]),
     bins: &Bins,
     row_x: &[f32],
     w: f64,
     floor: f32,
-) -> f32 {
-    let est = qscale * sx * idot as f32;
-    let err = 0.5 * q.l1 * sx + 0.5 * qscale * l1x + 1e-5;
-    let r = f64::from(est + err).clamp(0.0, 1.0);
-    let loose = (w * r + (1.0 - w) + 1e-6) as f32;
+) -> (f32, bool) {
+    let (qcs, csx, cl1x, rest, cdot) = coarse;
+    let spectral = coarse_bound(q, qcs, csx, cl1x, rest, cdot);
+    let loose = combined(w, spectral, 1.0);
     if loose < floor {
-        return loose;
+        return (loose, false);
     }
-    // The Jaccard m / (nu + nr - m) grows with the matched count m, so a bound on m bounds it.
-    let (nu, nr) = (q.xs.len(), row_x.len());
-    let m = matched_bound(q, bins, row_x);
-    let jaccard = if nu + nr == 0 {
-        0.0
-    } else {
-        m as f64 / (nu + nr - m) as f64
-    };
-    (w * r + (1.0 - w) * jaccard + 1e-6) as f32
+    let jaccard = jaccard_bound_dense(q, bins, row_x);
+    let key = combined(w, spectral, jaccard);
+    if key < floor {
+        return (key, false);
+    }
+    let (qs, sx, l1x, row, query) = fine;
+    let idot = i8_dot(row, query);
+    let spectral = f64::from(i8_bound(q.l1, qs, sx, l1x, idot))
+        .clamp(0.0, 1.0)
+        .min(spectral);
+    (combined(w, spectral, jaccard), true)
 }
 
 /// The combined-score bound of the first scan for a sparse (EI-MS) row. With reverse search,
@@ -582,8 +633,9 @@ fn first_scan(
     w: f64,
     bins: &Bins,
     request: &Request,
-) -> (Vec<TopK>, Keys) {
+) -> (Vec<TopK>, Keys, usize) {
     let n = cache.rows();
+    let fine_pairs = AtomicUsize::new(0);
     let nq = queries.len();
     let quantised: Vec<(Vec<i8>, f32)> = queries
         .iter()
@@ -592,13 +644,22 @@ fn first_scan(
             (v, s)
         })
         .collect();
-    let qmatrix: Vec<i8> = quantised
+    let coarse: Vec<(Vec<i8>, f32)> = queries
         .iter()
-        .flat_map(|(v, _)| v.iter().copied())
+        .map(|q| {
+            let (v, s, _) = quantise(&q.coarse);
+            (v, s)
+        })
         .collect();
+    let cmatrix: Vec<i8> = coarse.iter().flat_map(|(v, _)| v.iter().copied()).collect();
     let tol = request.params.peak_tolerance;
     let reverse = request.params.composite.reverse;
     let mut keys = vec![f32::NEG_INFINITY; n * nq];
+    // Every worker's smallest kept key, once its selection is full, is a lower bound on the
+    // m-th largest key overall (its m keys all reach it); the largest of them, shared
+    // between workers chunk by chunk, tells every worker which keys need not be tight.
+    // Keys are positive, so their bit patterns order as they do.
+    let shared: Vec<AtomicU32> = (0..nq).map(|_| AtomicU32::new(0)).collect();
     let heaps = keys
         .par_chunks_mut(CHUNK * nq)
         .enumerate()
@@ -611,34 +672,59 @@ fn first_scan(
                 if words.iter().all(|&w| w == 0) {
                     return heaps;
                 }
+                let outside: Vec<f32> = shared
+                    .iter()
+                    .map(|a| f32::from_bits(a.load(Ordering::Relaxed)))
+                    .collect();
+                let floor = |heap: &TopK, j: usize| heap.floor().max(outside[j]);
                 let on = |r: usize| mask[r / 64] >> (r % 64) & 1 == 1;
                 if cache.kind == Kind::Sparse {
                     for r in (r0..r1).filter(|&r| on(r)) {
                         for (j, (q, heap)) in queries.iter().zip(heaps.iter_mut()).enumerate() {
-                            let floor = heap.floor();
-                            let key = sparse_key(cache, q, r, w, tol, reverse, floor);
+                            let key = sparse_key(cache, q, r, w, tol, reverse, floor(heap, j));
                             keys[j * len + r - r0] = key;
                             heap.push(key, r);
                         }
                     }
                 } else {
-                    let s = cache.stride();
-                    let rows = &cache.i8_matrix()[r0 * s..r1 * s];
+                    // Every row's coarse dot products first (a quarter of the bytes); the
+                    // full i8 row is read only when the coarse bound reaches the worker's
+                    // smallest kept key.
+                    let (s, cs) = (cache.stride(), cache.coarse_stride());
+                    let crows = &cache.coarse_matrix()[r0 * cs..r1 * cs];
                     let mut dots = vec![0i32; len * nq];
-                    i8_dots(rows, s, &qmatrix, &mut dots);
+                    i8_dots(crows, cs, &cmatrix, &mut dots);
+                    let fine = cache.i8_matrix();
                     let (scales, l1s, px) = (cache.scales(), cache.l1(), cache.peak_x());
+                    let (cscales, cl1s, rests) = cache.coarse_terms();
+                    let mut fine_here = 0;
                     for r in (r0..r1).filter(|&r| on(r)) {
+                        let (csx, cl1x, rest) = (cscales[r], cl1s[r], rests[r]);
+                        let row = &fine[r * s..(r + 1) * s];
                         let rb = &px[cache.peak_range(r)];
-                        let (sx, l1x) = (scales[r], l1s[r]);
                         for (j, heap) in heaps.iter_mut().enumerate() {
-                            let (q, (_, qs)) = (&queries[j], &quantised[j]);
-                            // A key below the worker's smallest kept one need not be tight.
-                            let floor = heap.floor();
-                            let idot = dots[(r - r0) * nq + j];
-                            let key = dense_key(q, *qs, sx, l1x, idot, bins, rb, w, floor);
+                            let cdot = dots[(r - r0) * nq + j];
+                            let (qv, qs) = (&quantised[j].0, quantised[j].1);
+                            let (key, read) = dense_key(
+                                &queries[j],
+                                (coarse[j].1, csx, cl1x, rest, cdot),
+                                (qs, scales[r], l1s[r], row, qv),
+                                bins,
+                                rb,
+                                w,
+                                floor(heap, j),
+                            );
+                            fine_here += usize::from(read);
                             keys[j * len + r - r0] = key;
                             heap.push(key, r);
                         }
+                    }
+                    fine_pairs.fetch_add(fine_here, Ordering::Relaxed);
+                }
+                for (heap, at) in heaps.iter().zip(&shared) {
+                    let f = heap.floor();
+                    if f > 0.0 {
+                        at.fetch_max(f.to_bits(), Ordering::Relaxed);
                     }
                 }
                 heaps
@@ -648,7 +734,8 @@ fn first_scan(
             || vec![TopK::new(m); nq],
             |a, b| a.into_iter().zip(b).map(|(x, y)| x.merge(y)).collect(),
         );
-    (heaps, Keys { keys, rows: n, nq })
+    let fine = fine_pairs.into_inner();
+    (heaps, Keys { keys, rows: n, nq }, fine)
 }
 
 /// The second-stage bound of one row: f32 measure from the cache plus a rounding margin, and
@@ -960,6 +1047,97 @@ mod tests {
         (0u32..1_000_000).prop_map(move |n| lo + (hi - lo) * (f64::from(n) / 1e6))
     }
 
+    /// Two unit rows of length `n` made from drawn values; smooth ones when `smooth` (a
+    /// running sum), the way spectra on a fine grid are.
+    fn unit_rows(a: &[f64], b: &[f64], smooth: bool) -> (Vec<f32>, Vec<f32>) {
+        let make = |v: &[f64]| {
+            let mut x: Vec<f64> = v.to_vec();
+            if smooth {
+                let mut s = 0.0;
+                x.iter_mut().for_each(|a| {
+                    s = 0.8 * s + *a;
+                    *a = s;
+                });
+            }
+            let norm = x.iter().map(|a| a * a).sum::<f64>().sqrt().max(1e-12);
+            x.iter().map(|&a| (a / norm) as f32).collect::<Vec<f32>>()
+        };
+        (make(a), make(b))
+    }
+
+    /// The first scan's coarse bound of two rows: coarse rows, quantised, as the scan makes
+    /// them.
+    fn coarse_bound_of(q: &[f32], x: &[f32]) -> f64 {
+        let cs = super::super::file::coarse_stride(q.len().div_ceil(32) * 32);
+        let (cq, rq) = coarse_row(q, cs);
+        let (cx, rx) = coarse_row(x, cs);
+        let (vq, sq, _) = quantise(&cq);
+        let (vx, sx, l1x) = quantise(&cx);
+        let prepared = Prepared {
+            technique: Technique::Ir,
+            vector: vec![],
+            peaks: vec![],
+            y_unit: crate::spectrum::YUnit::Absorbance,
+            warnings: vec![],
+        };
+        let query = Query {
+            unknown: &prepared,
+            dense: vec![],
+            l1: 0.0,
+            coarse_l1: cq.iter().map(|a| a.abs()).sum(),
+            coarse: cq,
+            rest: rq,
+            table: vec![],
+            positive: 0,
+            xs: vec![],
+            near: vec![],
+        };
+        coarse_bound(&query, sq, sx, l1x, rx, i8_dot(&vx, &vq))
+    }
+
+    #[test]
+    fn the_coarse_split_adds_up_to_the_dot_product() {
+        // q.x = Pq.Px + q'.x' for the orthogonal projection P onto blockwise-constant
+        // vectors (linear algebra, common practice); the coarse rows carry Pq.Px, and the
+        // rest norms are |q'| and |x'|. Values worked by hand: blocks of 4, one block.
+        let q = [1.0f32, 0.0, 0.0, 0.0];
+        let x = [0.5f32, 0.5, 0.5, 0.5];
+        let (cq, rq) = coarse_row(&q, 32);
+        let (cx, rx) = coarse_row(&x, 32);
+        // Block means 1/4 and 1/2, times sqrt(4) = 2: 0.5 and 1.0.
+        assert!((cq[0] - 0.5).abs() < 1e-7 && (cx[0] - 1.0).abs() < 1e-7);
+        assert!(cq[1..].iter().chain(&cx[1..]).all(|&a| a == 0.0));
+        // q' = (3/4, -1/4, -1/4, -1/4): |q'| = sqrt(12/16); x' = 0.
+        assert!((f64::from(rq) - 0.75f64.sqrt()).abs() < 1e-6 && rx < 1e-6);
+        // Pq.Px = 0.5 = q.x, since x' = 0.
+        assert!((cq[0] * cx[0] - 0.5).abs() < 1e-7);
+    }
+
+    proptest::proptest! {
+        /// The coarse bound is never below the dot product of the rows, for rough and smooth
+        /// rows, including lengths that leave a short last block.
+        #[test]
+        fn the_coarse_bound_never_undercuts_the_dot_product(
+            n in 1usize..300,
+            seed in proptest::collection::vec(f64_in(-1.0, 1.0), 600),
+            smooth in proptest::bool::ANY,
+        ) {
+            let (q, x) = unit_rows(&seed[..n], &seed[300..300 + n], smooth);
+            let exact: f64 = q.iter().zip(&x).map(|(&a, &b)| f64::from(a) * f64::from(b)).sum();
+            let mut padded = (q.clone(), x.clone());
+            padded.0.resize(n.div_ceil(32) * 32, 0.0);
+            padded.1.resize(n.div_ceil(32) * 32, 0.0);
+            // Bounds are on scores, which are at most 1 (the rows' f32 rounding can take a
+            // dot product a little past it).
+            let bound = coarse_bound_of(&padded.0, &padded.1);
+            proptest::prop_assert!(bound >= exact.min(1.0), "bound {bound} < {exact}");
+            // A row against itself: its squared norm (1, or 0 for a zero row) is reached.
+            let own: f64 = q.iter().map(|&a| f64::from(a) * f64::from(a)).sum();
+            let b = coarse_bound_of(&padded.0, &padded.0);
+            proptest::prop_assert!(b >= own.min(1.0), "{b} < {own}");
+        }
+    }
+
     proptest::proptest! {
         /// The first scan's bound on matched peaks is never below what one-to-one matching
         /// pairs, for positions anywhere (inside the grid or not), rounded to f32 in the cache.
@@ -991,6 +1169,9 @@ mod tests {
                 unknown: &prepared,
                 dense: vec![],
                 l1: 0.0,
+                coarse: vec![],
+                coarse_l1: 0.0,
+                rest: 0.0,
                 table: vec![],
                 positive: 0,
                 xs: u.clone(),

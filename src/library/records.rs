@@ -492,14 +492,16 @@ impl Library {
 
     /// The stored prepared form of a spectrum.
     pub fn prepared(&self, id: i64) -> Result<Prepared> {
+        // Cached: a search loads the prepared spectra of its best candidates one by one.
         let (technique, vector, peaks, y_unit, warnings): (String, Vec<u8>, String, String, String) = self
             .conn
-            .query_row(
+            .prepare_cached(
                 "SELECT s.technique, p.vector, p.peaks, p.y_unit, p.warnings FROM prepared p JOIN spectrum s ON s.id = p.spectrum_id
                  WHERE p.spectrum_id = ?1",
-                [id],
-                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)),
-            )
+            )?
+            .query_row([id], |r| {
+                Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+            })
             .optional()?
             .ok_or(Error::NotFound { kind: "spectrum", id })?;
         Ok(Prepared {
