@@ -15,6 +15,10 @@
 //! c_l1     f32 x rows       dense: L1 norm of the dequantised coarse row
 //! c_rest   f32 x rows       dense: L2 norm of what the coarse row leaves out, rounded up
 //! c_i8     i8  x rows x coarse_stride   coarse rows quantised per row (see `coarse_row`)
+//! post_off u64 x 65537      sparse: where each nominal m/z's postings start
+//! post_row u32 x nnz        sparse: rows with a peak at that m/z, ascending
+//! post_w   f32 x nnz        sparse: that peak's weight, negated when it cannot be trusted
+//!                           (see `posting_weight`)
 //! peak_off u64 x (rows + 1) where each row's peaks start
 //! peak_x   f32 x nnz        peak positions
 //! peak_h   f32 x nnz        sparse: peak heights
@@ -40,11 +44,13 @@ use crate::technique::{Grid, Technique};
 /// The cache folder inside a library folder.
 pub const CACHE_DIR: &str = "cache";
 /// The version of the cache file layout; a file of another version is rebuilt.
-pub const FORMAT_VERSION: u32 = 2;
+pub const FORMAT_VERSION: u32 = 3;
 const MAGIC: &[u8; 8] = b"WHORLVC\0";
 const HEADER: usize = 512;
 const ALIGN: usize = 64;
-const SECTIONS: usize = 16;
+const SECTIONS: usize = 19;
+/// Nominal m/z values an inverted index covers (peak bins are u16).
+const MZ_BINS: usize = 1 << 16;
 /// Grid values averaged into one value of a coarse row.
 pub(super) const COARSE: usize = 4;
 /// Dense rows are padded to a multiple of this many values, so kernels need no tail loop.
@@ -120,6 +126,9 @@ const CSCALE: usize = 12;
 const CL1: usize = 13;
 const CREST: usize = 14;
 const CI8: usize = 15;
+const POST_OFF: usize = 16;
+const POST_ROW: usize = 17;
+const POST_W: usize = 18;
 
 impl Layout {
     fn new(kind: Kind, dim: usize, rows: usize, nnz: usize) -> Layout {
@@ -147,6 +156,9 @@ impl Layout {
             4 * rows,
             4 * rows,
             rows * coarse_stride,
+            if kind.dense() { 0 } else { 8 * (MZ_BINS + 1) },
+            4 * sparse,
+            4 * sparse,
         ];
         let mut offsets = [0; SECTIONS];
         let mut at = HEADER;
@@ -273,6 +285,22 @@ impl VectorCache {
         )
     }
 
+    /// Sparse: the inverted index entry of one nominal m/z, the rows (ascending) with a peak
+    /// there and that peak's posting weight (see [`posting_weight`]).
+    pub(super) fn postings(&self, mz: usize) -> (&[u32], &[f32]) {
+        if mz >= MZ_BINS {
+            return (&[], &[]);
+        }
+        let off: &[u64] = section(&self.map, self.layout.offsets[POST_OFF], MZ_BINS + 1);
+        let range = off[mz] as usize..off[mz + 1] as usize;
+        let w: &[f32] = section(&self.map, self.layout.offsets[POST_W], self.sparse_nnz());
+        (&self.postings_rows()[range.clone()], &w[range])
+    }
+
+    fn postings_rows(&self) -> &[u32] {
+        section(&self.map, self.layout.offsets[POST_ROW], self.sparse_nnz())
+    }
+
     pub(super) fn peak_range(&self, row: usize) -> std::ops::Range<usize> {
         let off: &[u64] = section(&self.map, self.layout.offsets[POFF], self.layout.rows + 1);
         off[row] as usize..off[row + 1] as usize
@@ -378,10 +406,10 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         mass_exponent: f64::from_bits(u64_at(h, 96)),
         reverse: false,
     };
-    if u32_at(h, 300) as usize != COARSE {
+    if u32_at(h, 324) as usize != COARSE {
         return Err("cache of another coarse factor".into());
     }
-    let integer_x = h[296] == 1;
+    let integer_x = h[320] == 1;
     let c = VectorCache {
         map,
         layout,
@@ -400,6 +428,15 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
     let off: &[u64] = section(&c.map, layout.offsets[POFF], rows + 1);
     if off[0] != 0 || off[rows] as usize != nnz || off.windows(2).any(|w| w[0] > w[1]) {
         return Err("cache peak offsets are damaged".into());
+    }
+    if !kind.dense() {
+        let post: &[u64] = section(&c.map, layout.offsets[POST_OFF], MZ_BINS + 1);
+        if post[0] != 0 || post[MZ_BINS] as usize != nnz || post.windows(2).any(|w| w[0] > w[1]) {
+            return Err("cache postings are damaged".into());
+        }
+        if c.postings_rows().iter().any(|&r| r as usize >= rows) {
+            return Err("cache postings name rows it does not hold".into());
+        }
     }
     Ok(c)
 }
@@ -588,6 +625,49 @@ pub(super) fn weights(peaks: &[crate::prepare::Peak], params: &CompositeParams) 
         .collect()
 }
 
+/// The weight a posting carries: the peak's cached weight, negated (sign bit set, also for
+/// 0) when the cached height or weight may be a positive value lost to f32 rounding, so that
+/// reverse search can leave the row's bound at 1 (see `scan::reverse_sums`).
+pub(super) fn posting_weight(height: f32, weight: f32) -> f32 {
+    if height > 0.0 && weight > 0.0 {
+        weight
+    } else {
+        -weight.abs()
+    }
+}
+
+/// Builds the inverted index of a filled sparse cache: a count per m/z, offsets by prefix
+/// sum, then every row's peaks placed in row order, so each m/z's rows come out ascending.
+fn fill_postings(map: &mut [u8], l: &Layout) {
+    // The postings come after every section they are made from, so the map splits there.
+    let at = l.offsets[POST_OFF];
+    let (src, dst) = map.split_at_mut(at);
+    let off: &[u64] = section(src, l.offsets[POFF], l.rows + 1);
+    let bins: &[u16] = section(src, l.offsets[PBIN], l.nnz);
+    let heights: &[f32] = section(src, l.offsets[PH], l.nnz);
+    let weights: &[f32] = section(src, l.offsets[PW], l.nnz);
+    let mut start = vec![0u64; MZ_BINS + 1];
+    for &b in bins {
+        start[usize::from(b) + 1] += 1;
+    }
+    for i in 0..MZ_BINS {
+        start[i + 1] += start[i];
+    }
+    section_mut::<u64>(dst, 0, MZ_BINS + 1).copy_from_slice(&start);
+    let (rows_at, w_at) = (l.offsets[POST_ROW] - at, l.offsets[POST_W] - at);
+    let (rows_part, w_part) = dst.split_at_mut(w_at);
+    let rows: &mut [u32] = section_mut(rows_part, rows_at, l.nnz);
+    let ws: &mut [f32] = section_mut(w_part, 0, l.nnz);
+    for r in 0..l.rows {
+        for k in off[r] as usize..off[r + 1] as usize {
+            let next = &mut start[usize::from(bins[k])];
+            rows[*next as usize] = r as u32;
+            ws[*next as usize] = posting_weight(heights[k], weights[k]);
+            *next += 1;
+        }
+    }
+}
+
 struct Tag<'a> {
     layout: Layout,
     kind: Kind,
@@ -617,8 +697,8 @@ fn write_header(map: &mut [u8], c: &Tag<'_>) {
     for (i, &o) in l.offsets.iter().enumerate() {
         h[168 + 8 * i..176 + 8 * i].copy_from_slice(&(o as u64).to_le_bytes());
     }
-    h[296] = u8::from(c.integer_x);
-    h[300..304].copy_from_slice(&(COARSE as u32).to_le_bytes());
+    h[320] = u8::from(c.integer_x);
+    h[324..328].copy_from_slice(&(COARSE as u32).to_le_bytes());
     // The magic goes in last, so a map that was not completely filled never parses.
     h[0..8].copy_from_slice(MAGIC);
 }
@@ -676,6 +756,9 @@ fn fill<M: std::ops::DerefMut<Target = [u8]>>(
         ));
     }
     let integer_x = filler.integer_x;
+    if !kind.dense() {
+        fill_postings(&mut map, &layout);
+    }
     write_header(
         &mut map,
         &Tag {

@@ -434,29 +434,30 @@ fn dense_key(
     (combined(w, spectral, jaccard), true)
 }
 
-/// The combined-score bound of the first scan for a sparse (EI-MS) row. With reverse search,
-/// a row whose loose bound (ratio term 1) stays below `floor` keeps that bound without the
-/// ratio term being computed.
+/// The combined-score bound of the first scan for a sparse (EI-MS) row, from its sums over
+/// the m/z it shares with the unknown (see [`accumulate`]). With reverse search, a row whose
+/// loose bound (ratio term 1) stays below `floor` keeps that bound without the ratio term
+/// being computed.
 #[inline]
 #[allow(clippy::too_many_arguments)]
 fn sparse_key(
     cache: &VectorCache,
     q: &Query<'_>,
     row: usize,
+    sums: &RowSums,
     w: f64,
     tolerance: f64,
     reverse: bool,
     floor: f32,
 ) -> f32 {
     let range = cache.peak_range(row);
+    let jaccard = jaccard_bound(q, range.len(), sums.shared as usize, tolerance);
     if reverse {
-        let sums = reverse_sums(cache, q, range.clone());
-        let jaccard = jaccard_bound(q, range.len(), sums.shared, tolerance);
         let key = |composite: f64| (w * composite + (1.0 - w) * jaccard) as f32;
         if !sums.accounted {
             return key(1.0);
         }
-        let dot = sums.dot();
+        let dot = sums.reverse_dot();
         if sums.common < 2 {
             return key((dot + MARGIN).min(1.0));
         }
@@ -467,27 +468,15 @@ fn sparse_key(
         let ratio = reverse_ratio(cache, q, range);
         return key(((dot + ratio) / 2.0 + MARGIN).min(1.0));
     }
-    let (bins, ws) = (
-        &cache.peak_bin()[range.clone()],
-        &cache.peak_w()[range.clone()],
-    );
-    let (mut dot, mut shared) = (0f32, 0f32);
-    for (&b, &x) in bins.iter().zip(ws) {
-        if let Some(t) = q.table.get(usize::from(b)) {
-            dot += t[0] * x;
-            shared += t[1];
-        }
-    }
     // A count of at most 65536 ones: exact in f32.
-    let common = shared as usize;
-    let fd = (f64::from(dot) * f64::from(dot) + MARGIN).min(1.0);
+    let common = sums.shared as usize;
+    let fd = (f64::from(sums.dot) * f64::from(sums.dot) + MARGIN).min(1.0);
     let (nu, nc) = (q.positive as f64, common as f64);
     let composite = if nu + nc > 0.0 {
         ((nu * fd + nc) / (nu + nc)).min(1.0)
     } else {
         fd
     };
-    let jaccard = jaccard_bound(q, range.len(), common, tolerance);
     (w * composite + (1.0 - w) * jaccard) as f32
 }
 
@@ -505,74 +494,94 @@ fn jaccard_bound(q: &Query<'_>, row_peaks: usize, shared: usize, tolerance: f64)
     }
 }
 
-/// The sums of reverse search over one row, from the cached weights (see [`reverse_ratio`]).
-struct ReverseSums {
-    /// sum W_U W_L over the common m/z (normalised weights).
-    ur: f64,
-    /// sum W_U^2 over the common m/z.
-    uu: f64,
+/// One row's sums over the m/z it shares with the unknown, from the cached weights.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct RowSums {
+    /// Forward: sum W_U W_L over the shared m/z (normalised weights, f32 as the cache).
+    dot: f32,
     /// m/z where both have a peak, of any height (for the Jaccard bound).
-    shared: usize,
-    /// m/z where both heights are above 0 (N_common of the composite).
-    common: usize,
-    /// False when a positive height's weight was lost to f32 rounding.
+    shared: u32,
+    /// Reverse: sum W_U W_L over the common m/z.
+    ur: f64,
+    /// Reverse: sum W_U^2 over the common m/z.
+    uu: f64,
+    /// Reverse: m/z where both heights are above 0 (N_common of the composite).
+    common: u32,
+    /// Reverse: false when a positive height's weight may have been lost to f32 rounding.
     accounted: bool,
 }
 
-impl ReverseSums {
+impl RowSums {
+    const ZERO: RowSums = RowSums {
+        dot: 0.0,
+        shared: 0,
+        ur: 0.0,
+        uu: 0.0,
+        common: 0,
+        accounted: true,
+    };
+
     /// F_D of reverse search: (sum W_U W_L)^2 / (sum W_U^2 over the common m/z * sum W_L^2),
     /// the row's sum W_L^2 being 1.
-    fn dot(&self) -> f64 {
+    fn reverse_dot(&self) -> f64 {
         if self.uu > 0.0 {
             (self.ur * self.ur / self.uu).min(1.0)
         } else {
             0.0
         }
     }
+
+    /// Adds one shared m/z: the unknown's entry `t` there (weight, 1, 1 when its height is
+    /// above 0) and the row's posting weight `p` (see `file::posting_weight`).
+    ///
+    /// Reverse search keeps only the unknown's ions at the row's m/z, so its dot-product
+    /// term is taken over the common m/z, exactly as `score::stein_scott` does. Each weight
+    /// is its f64 value rounded to f32 (relative error 6e-8), which moves F_D by at most 8 of
+    /// those, far inside `MARGIN`. A posting marked untrusted (a cached height or weight of 0
+    /// may be a positive one lost to f32) leaves the row not accounted for (bound 1).
+    #[inline]
+    fn add(&mut self, t: &[f32; 3], p: f32, reverse: bool) {
+        self.shared += 1;
+        if !reverse {
+            self.dot += t[0] * p.abs();
+            return;
+        }
+        if t[2] == 0.0 {
+            return; // the unknown's peak has height 0: not common in the composite
+        }
+        let (wu, wl) = (f64::from(t[0]), f64::from(p));
+        if p.is_sign_negative() || wu <= 0.0 || wu.is_nan() {
+            self.accounted = false;
+            return;
+        }
+        self.ur += wu * wl;
+        self.uu += wu * wu;
+        self.common += 1;
+    }
 }
 
-/// Reverse search keeps only the unknown's ions at the row's m/z, so its dot-product term is
-/// taken over the common m/z, exactly as `score::stein_scott` does, here in one pass over the
-/// row's peaks. Each weight is its f64 value rounded to f32 (relative error 6e-8), which
-/// moves F_D by at most 8 of those, far inside `MARGIN`. A cached height or weight of 0 may be
-/// a positive one lost to f32; such a row is marked not accounted for (bound 1).
-#[inline]
-fn reverse_sums(cache: &VectorCache, q: &Query<'_>, range: std::ops::Range<usize>) -> ReverseSums {
-    let bins = &cache.peak_bin()[range.clone()];
-    let ws = &cache.peak_w()[range.clone()];
-    let hs = &cache.peak_h()[range];
-    let mut s = ReverseSums {
-        ur: 0.0,
-        uu: 0.0,
-        shared: 0,
-        common: 0,
-        accounted: true,
-    };
-    for ((&b, &x), &h) in bins.iter().zip(ws).zip(hs) {
-        let Some(t) = q.table.get(usize::from(b)) else {
-            continue; // beyond the unknown's largest m/z: no unknown peak there
-        };
+/// The sums of every row in `r0..r0 + sums.len()` from the inverted index: for each m/z of
+/// the unknown, the rows with a peak there, found by binary search in its ascending postings.
+/// The m/z are taken in ascending order, and each row's postings in its peak order, so a
+/// row's sums add the same terms in the same order as a walk over its peaks would.
+fn accumulate(cache: &VectorCache, q: &Query<'_>, r0: usize, sums: &mut [RowSums], reverse: bool) {
+    sums.fill(RowSums::ZERO);
+    let r1 = r0 + sums.len();
+    for (mz, t) in q.table.iter().enumerate() {
         if t[1] == 0.0 {
             continue;
         }
-        s.shared += 1;
-        if t[2] == 0.0 {
-            continue; // the unknown's peak has height 0: not common in the composite
+        let (rows, ws) = cache.postings(mz);
+        let lo = rows.partition_point(|&r| (r as usize) < r0);
+        let hi = lo + rows[lo..].partition_point(|&r| (r as usize) < r1);
+        for (&r, &p) in rows[lo..hi].iter().zip(&ws[lo..hi]) {
+            sums[r as usize - r0].add(t, p, reverse);
         }
-        let (wu, wl) = (f64::from(t[0]), f64::from(x));
-        if h <= 0.0 || !(wu > 0.0 && wl > 0.0) {
-            s.accounted = false;
-            continue;
-        }
-        s.ur += wu * wl;
-        s.uu += wu * wu;
-        s.common += 1;
     }
-    s
 }
 
 /// The ratio term of reverse search over one row with at least two common m/z (all of them
-/// accounted for, see [`reverse_sums`]): the mean over adjacent common m/z of
+/// accounted for, see [`RowSums::add`]): the mean over adjacent common m/z of
 /// (W_L,i W_U,i-1 / (W_L,i-1 W_U,i))^(+-1), as `score::stein_scott` takes it; the weights'
 /// normalisation cancels, and their rounding moves each ratio by at most 4 x 6e-8.
 fn reverse_ratio(cache: &VectorCache, q: &Query<'_>, range: std::ops::Range<usize>) -> f64 {
@@ -679,9 +688,12 @@ fn first_scan(
                 let floor = |heap: &TopK, j: usize| heap.floor().max(outside[j]);
                 let on = |r: usize| mask[r / 64] >> (r % 64) & 1 == 1;
                 if cache.kind == Kind::Sparse {
-                    for r in (r0..r1).filter(|&r| on(r)) {
-                        for (j, (q, heap)) in queries.iter().zip(heaps.iter_mut()).enumerate() {
-                            let key = sparse_key(cache, q, r, w, tol, reverse, floor(heap, j));
+                    let mut sums = vec![RowSums::ZERO; len];
+                    for (j, (q, heap)) in queries.iter().zip(heaps.iter_mut()).enumerate() {
+                        accumulate(cache, q, r0, &mut sums, reverse);
+                        for r in (r0..r1).filter(|&r| on(r)) {
+                            let s = &sums[r - r0];
+                            let key = sparse_key(cache, q, r, s, w, tol, reverse, floor(heap, j));
                             keys[j * len + r - r0] = key;
                             heap.push(key, r);
                         }
@@ -1000,6 +1012,62 @@ mod tests {
         }
     }
 
+    /// One row's sums through the inverted index, as the first scan takes them.
+    fn sums_of(cache: &VectorCache, q: &Query<'_>, row: usize, reverse: bool) -> RowSums {
+        let mut s = [RowSums::ZERO];
+        accumulate(cache, q, row, &mut s, reverse);
+        s[0]
+    }
+
+    /// One row's sums by walking its own peaks in the cache: what the inverted index must
+    /// reproduce.
+    fn sums_by_walk(cache: &VectorCache, q: &Query<'_>, row: usize, reverse: bool) -> RowSums {
+        let range = cache.peak_range(row);
+        let mut s = RowSums::ZERO;
+        for k in range {
+            let b = usize::from(cache.peak_bin()[k]);
+            if let Some(t) = q.table.get(b).filter(|t| t[1] == 1.0) {
+                let p = super::super::file::posting_weight(cache.peak_h()[k], cache.peak_w()[k]);
+                s.add(t, p, reverse);
+            }
+        }
+        s
+    }
+
+    #[test]
+    fn the_inverted_index_gives_every_row_the_sums_of_its_own_peaks() {
+        let (lib, refs) = random_library(Technique::MsEi, 150, 41);
+        let (cache, _) = get(&lib, Technique::MsEi, Kind::Sparse).unwrap();
+        let grid = lib.recipe(Technique::MsEi).unwrap().grid.clone();
+        let (active, bins) = (active_bins(&grid), Bins::new(&grid));
+        let mut rng = Rng::new(42);
+        let mut shared_seen = 0;
+        for k in 0..6 {
+            let pts = if k % 2 == 0 {
+                perturb(&refs[k * 7], &mut rng, 0.3)
+            } else {
+                ms_points(&mut rng)
+            };
+            let u = unknown(&lib, Technique::MsEi, pts);
+            let q = make_query(&u, &cache, &active, &bins, 0.5);
+            for reverse in [false, true] {
+                // Whole range at once, as a chunk of the scan sees it, and row by row.
+                let mut all = vec![RowSums::ZERO; cache.rows()];
+                accumulate(&cache, &q, 0, &mut all, reverse);
+                for (row, got) in all.iter().enumerate() {
+                    let walked = sums_by_walk(&cache, &q, row, reverse);
+                    assert_eq!(*got, walked, "row {row}, reverse {reverse}");
+                    assert_eq!(sums_of(&cache, &q, row, reverse), walked);
+                    shared_seen += usize::from(walked.shared > 0);
+                }
+            }
+        }
+        assert!(
+            shared_seen > 100,
+            "rows sharing m/z with the unknowns: {shared_seen}"
+        );
+    }
+
     #[test]
     fn the_reverse_scan_bound_is_tight_and_never_below_the_composite() {
         // For every row, the first scan's reverse-search composite lies within MARGIN above
@@ -1025,7 +1093,8 @@ mod tests {
             let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
             for row in 0..cache.rows() {
                 // Spectral weight 1: the key is the composite bound alone.
-                let bound = f64::from(sparse_key(&cache, &q, row, 1.0, 0.5, true, f32::MIN));
+                let s = sums_of(&cache, &q, row, true);
+                let bound = f64::from(sparse_key(&cache, &q, row, &s, 1.0, 0.5, true, f32::MIN));
                 let reference = lib.prepared(cache.ids()[row]).unwrap();
                 let rp: Vec<(f64, f64)> = reference.peaks.iter().map(|p| (p.x, p.height)).collect();
                 let exact = stein_scott(&up, &rp, &params);
