@@ -8,12 +8,14 @@ use tantivy::collector::{DocSetCollector, TopDocs};
 use tantivy::query::QueryParser;
 use tantivy::schema::{
     FAST, Field, INDEXED, IndexRecordOption, STORED, STRING, Schema, TEXT, TextFieldIndexing,
-    TextOptions, Value,
+    TextOptions,
 };
 use tantivy::{Index, IndexReader, IndexWriter, TantivyDocument, Term};
 
 use crate::error::{Error, Result};
 use crate::library::Metadata;
+
+mod prune;
 
 /// What the index holds for one spectrum.
 #[derive(Debug, Clone)]
@@ -261,7 +263,18 @@ impl TextIndex {
         doc
     }
 
-    fn parse(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
+    /// How much a match in `field` counts relative to the other fields.
+    fn boost(&self, field: Field) -> f32 {
+        if field == self.fields.name {
+            3.0
+        } else if field == self.fields.synonym {
+            2.0
+        } else {
+            1.0
+        }
+    }
+
+    fn parser(&self, boosted: bool) -> QueryParser {
         let f = &self.fields;
         let defaults = vec![
             f.name,
@@ -275,14 +288,41 @@ impl TextIndex {
             f.solvent,
             f.extra,
         ];
-        let mut parser = QueryParser::for_index(&self.index, defaults);
-        parser.set_field_boost(f.name, 3.0);
-        parser.set_field_boost(f.synonym, 2.0);
+        let mut parser = QueryParser::for_index(&self.index, defaults.clone());
+        if boosted {
+            for field in defaults {
+                let boost = self.boost(field);
+                if boost != 1.0 {
+                    parser.set_field_boost(field, boost);
+                }
+            }
+        }
+        parser
+    }
+
+    fn parse(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
         let rewritten = route_extra_fields(query);
-        parser.parse_query(&rewritten).map_err(|e| Error::Query {
-            query: query.to_string(),
-            reason: e.to_string(),
-        })
+        self.parser(true)
+            .parse_query(&rewritten)
+            .map_err(|e| Error::Query {
+                query: query.to_string(),
+                reason: e.to_string(),
+            })
+    }
+
+    /// The query for ranking: [`prune::PrunedUnion`] where it applies (a union of terms and
+    /// phrases; no slop, which the parser reads only after `~`), else the parsed query.
+    fn parse_ranked(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
+        if !query.contains('~') {
+            let rewritten = route_extra_fields(query);
+            if let Ok(plain) = self.parser(false).parse_query(&rewritten)
+                && let Some(pruned) =
+                    prune::PrunedUnion::from_parsed(plain.as_ref(), |f| self.boost(f))
+            {
+                return Ok(Box::new(pruned));
+            }
+        }
+        self.parse(query)
     }
 
     /// Every spectrum id matching the query.
@@ -305,16 +345,21 @@ impl TextIndex {
 
     /// The best `limit` matches with their relevance scores, best first.
     pub fn find(&self, query: &str, limit: usize) -> Result<Vec<(f32, i64)>> {
-        let q = self.parse(query)?;
+        self.find_with(self.parse_ranked(query)?.as_ref(), limit)
+    }
+
+    fn find_with(&self, q: &dyn tantivy::query::Query, limit: usize) -> Result<Vec<(f32, i64)>> {
         let searcher = self.reader.searcher();
-        let top = searcher.search(&q, &TopDocs::with_limit(limit.max(1)).order_by_score())?;
+        let top = searcher.search(q, &TopDocs::with_limit(limit.max(1)).order_by_score())?;
+        // The id from the fast field (a column read) rather than the stored document (a
+        // compressed block decoded per hit).
+        let mut columns = Vec::new();
+        for reader in searcher.segment_readers() {
+            columns.push(reader.fast_fields().u64("spectrum_id")?);
+        }
         let mut out = Vec::with_capacity(top.len());
         for (score, address) in top {
-            let doc: TantivyDocument = searcher.doc(address)?;
-            if let Some(id) = doc
-                .get_first(self.fields.spectrum_id)
-                .and_then(|v| v.as_u64())
-            {
+            if let Some(id) = columns[address.segment_ord as usize].first(address.doc_id) {
                 out.push((score, id as i64));
             }
         }
@@ -410,6 +455,70 @@ mod tests {
             idx.matching_ids("name:(unclosed").unwrap_err(),
             Error::Query { .. }
         ));
+    }
+
+    /// The pruned ranking of `find` against tantivy's own ranking of the same parsed query:
+    /// same ids, same scores, same order, ties included, over several segments with
+    /// replaced (deleted) documents.
+    #[test]
+    fn pruned_find_ranks_exactly_as_tantivy() {
+        let idx = TextIndex::in_ram().unwrap();
+        let metas: Vec<Metadata> = (0..600)
+            .map(|i| {
+                let name = match i % 7 {
+                    0 => format!("ms-ei {i} ms-ei"),
+                    1 => format!("ms-ei sample {i} of a longer name"),
+                    2 => format!("ir {i}"),
+                    _ => format!("ms-ei {i}"),
+                };
+                let mut m = meta(&name, "C7H8", &["solvent"], &[("lot", "QR-3727")]);
+                if i % 5 == 0 {
+                    m.synonyms = vec![format!("ms-ei alias {}", i % 11)];
+                }
+                m
+            })
+            .collect();
+        let doc = |i: usize| IndexDoc {
+            spectrum_id: i as i64 + 1,
+            compound_id: i as i64 + 1,
+            technique: "ms-ei",
+            status: "pending",
+            submitted_by: "a.analyst",
+            metadata: &metas[i],
+        };
+        // Several commits make several segments; the second pass replaces documents, which
+        // leaves deleted ones behind in the older segments.
+        for (generation, chunk) in (0..600).collect::<Vec<_>>().chunks(150).enumerate() {
+            idx.upsert(chunk.iter().map(|&i| doc(i)), generation as i64)
+                .unwrap();
+        }
+        idx.upsert((0..600).step_by(13).map(doc), 9).unwrap();
+        let queries = [
+            "ms-ei 500",
+            "ms-ei",
+            "ms-ei 12 alias",
+            "\"ms ei\" 3",
+            "ms-ei sample 8",
+            "name:ms-ei 40",
+            "ms-ei ir",
+            "qr-3727 ms-ei",
+            "lot:QR-3727 ms-ei 7",
+        ];
+        for q in queries {
+            let plain = idx.parse(q).unwrap();
+            let ranked = idx.parse_ranked(q).unwrap();
+            assert!(
+                ranked.downcast_ref::<prune::PrunedUnion>().is_some()
+                    || q.starts_with("lot:")
+                    || q.starts_with("name:"),
+                "{q} should take the pruned path"
+            );
+            for k in [1, 3, 10, 40, 700] {
+                let expected = idx.find_with(plain.as_ref(), k).unwrap();
+                let got = idx.find_with(ranked.as_ref(), k).unwrap();
+                assert_eq!(got, expected, "{q}, top {k}");
+            }
+        }
     }
 
     #[test]
