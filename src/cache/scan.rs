@@ -55,6 +55,8 @@ struct Query<'a> {
     // Sparse: by nominal m/z, the unknown's weight, 1 when it has a peak there, and 1 when
     // that peak's height is above 0.
     table: Vec<[f32; 3]>,
+    // Sparse: the nominal m/z where the unknown has a peak, ascending.
+    mzs: Vec<usize>,
     positive: usize,
     xs: Vec<f64>,
     // Dense: bit b set when some unknown peak lies within the (widened) tolerance of a
@@ -313,6 +315,7 @@ fn make_query<'a>(
         coarse_l1: 0.0,
         rest: 0.0,
         table: vec![],
+        mzs: vec![],
         positive: 0,
         xs: unknown.peaks.iter().map(|p| p.x).collect(),
     };
@@ -332,6 +335,9 @@ fn make_query<'a>(
             q.table[bin] = [w, 1.0, if p.height > 0.0 { 1.0 } else { 0.0 }];
         }
         q.positive = unknown.peaks.iter().filter(|p| p.height > 0.0).count();
+        q.mzs = (0..q.table.len())
+            .filter(|&b| q.table[b][1] == 1.0)
+            .collect();
     } else {
         let mut row = dense_row(&unknown.vector, cache.kind, active);
         row.resize(cache.stride(), 0.0);
@@ -561,22 +567,40 @@ impl RowSums {
 }
 
 /// The sums of every row in `r0..r0 + sums.len()` from the inverted index: for each m/z of
-/// the unknown, the rows with a peak there, found by binary search in its ascending postings.
-/// The m/z are taken in ascending order, and each row's postings in its peak order, so a
-/// row's sums add the same terms in the same order as a walk over its peaks would.
-fn accumulate(cache: &VectorCache, q: &Query<'_>, r0: usize, sums: &mut [RowSums], reverse: bool) {
+/// the unknown, the rows with a peak there, read from its ascending postings. The m/z are
+/// taken in ascending order, and each row's postings in its peak order, so a row's sums add
+/// the same terms in the same order as a walk over its peaks would.
+///
+/// `cursors` holds, per m/z of the unknown, where the previous call stopped: the row it
+/// stopped before and the posting there. A worker mostly takes consecutive chunks, and then
+/// starts where it stopped instead of searching (a binary search over a long posting list
+/// misses the CPU cache at nearly every step).
+fn accumulate(
+    cache: &VectorCache,
+    q: &Query<'_>,
+    r0: usize,
+    sums: &mut [RowSums],
+    reverse: bool,
+    cursors: &mut Vec<(usize, usize)>,
+) {
     sums.fill(RowSums::ZERO);
     let r1 = r0 + sums.len();
-    for (mz, t) in q.table.iter().enumerate() {
-        if t[1] == 0.0 {
-            continue;
-        }
+    cursors.resize(q.mzs.len(), (usize::MAX, 0));
+    for (&mz, cursor) in q.mzs.iter().zip(cursors.iter_mut()) {
+        let t = &q.table[mz];
         let (rows, ws) = cache.postings(mz);
-        let lo = rows.partition_point(|&r| (r as usize) < r0);
-        let hi = lo + rows[lo..].partition_point(|&r| (r as usize) < r1);
-        for (&r, &p) in rows[lo..hi].iter().zip(&ws[lo..hi]) {
-            sums[r as usize - r0].add(t, p, reverse);
+        let mut k = if cursor.0 == r0 {
+            cursor.1
+        } else {
+            rows.partition_point(|&r| (r as usize) < r0)
+        };
+        while let Some(&r) = rows.get(k)
+            && (r as usize) < r1
+        {
+            sums[r as usize - r0].add(t, ws[k], reverse);
+            k += 1;
         }
+        *cursor = (r1, k);
     }
 }
 
@@ -673,13 +697,13 @@ fn first_scan(
         .par_chunks_mut(CHUNK * nq)
         .enumerate()
         .fold(
-            || vec![TopK::new(m); nq],
-            |mut heaps, (c, keys)| {
+            || (vec![TopK::new(m); nq], vec![Vec::new(); nq]),
+            |(mut heaps, mut cursors), (c, keys)| {
                 let (r0, r1) = (c * CHUNK, ((c + 1) * CHUNK).min(n));
                 let len = r1 - r0;
                 let words = &mask[r0 / 64..r1.div_ceil(64)];
                 if words.iter().all(|&w| w == 0) {
-                    return heaps;
+                    return (heaps, cursors);
                 }
                 let outside: Vec<f32> = shared
                     .iter()
@@ -690,7 +714,7 @@ fn first_scan(
                 if cache.kind == Kind::Sparse {
                     let mut sums = vec![RowSums::ZERO; len];
                     for (j, (q, heap)) in queries.iter().zip(heaps.iter_mut()).enumerate() {
-                        accumulate(cache, q, r0, &mut sums, reverse);
+                        accumulate(cache, q, r0, &mut sums, reverse, &mut cursors[j]);
                         for r in (r0..r1).filter(|&r| on(r)) {
                             let s = &sums[r - r0];
                             let key = sparse_key(cache, q, r, s, w, tol, reverse, floor(heap, j));
@@ -739,9 +763,10 @@ fn first_scan(
                         at.fetch_max(f.to_bits(), Ordering::Relaxed);
                     }
                 }
-                heaps
+                (heaps, cursors)
             },
         )
+        .map(|(heaps, _)| heaps)
         .reduce(
             || vec![TopK::new(m); nq],
             |a, b| a.into_iter().zip(b).map(|(x, y)| x.merge(y)).collect(),
@@ -1015,7 +1040,7 @@ mod tests {
     /// One row's sums through the inverted index, as the first scan takes them.
     fn sums_of(cache: &VectorCache, q: &Query<'_>, row: usize, reverse: bool) -> RowSums {
         let mut s = [RowSums::ZERO];
-        accumulate(cache, q, row, &mut s, reverse);
+        accumulate(cache, q, row, &mut s, reverse, &mut Vec::new());
         s[0]
     }
 
@@ -1053,7 +1078,29 @@ mod tests {
             for reverse in [false, true] {
                 // Whole range at once, as a chunk of the scan sees it, and row by row.
                 let mut all = vec![RowSums::ZERO; cache.rows()];
-                accumulate(&cache, &q, 0, &mut all, reverse);
+                accumulate(&cache, &q, 0, &mut all, reverse, &mut Vec::new());
+                // In pieces, as consecutive chunks of one worker (the cursors carry over),
+                // and out of order.
+                let mut pieces = vec![RowSums::ZERO; cache.rows()];
+                let mut cursors = Vec::new();
+                for start in [0, 37, 80, 140, 10] {
+                    let end = match start {
+                        0 => 37,
+                        37 => 80,
+                        80 => 140,
+                        140 => cache.rows(),
+                        _ => 37,
+                    };
+                    accumulate(
+                        &cache,
+                        &q,
+                        start,
+                        &mut pieces[start..end],
+                        reverse,
+                        &mut cursors,
+                    );
+                }
+                assert_eq!(all, pieces);
                 for (row, got) in all.iter().enumerate() {
                     let walked = sums_by_walk(&cache, &q, row, reverse);
                     assert_eq!(*got, walked, "row {row}, reverse {reverse}");
@@ -1157,6 +1204,7 @@ mod tests {
             coarse: cq,
             rest: rq,
             table: vec![],
+            mzs: vec![],
             positive: 0,
             xs: vec![],
             near: vec![],
@@ -1242,6 +1290,7 @@ mod tests {
                 coarse_l1: 0.0,
                 rest: 0.0,
                 table: vec![],
+                mzs: vec![],
                 positive: 0,
                 xs: u.clone(),
                 near: vec![0; NEAR_BINS / 64],
