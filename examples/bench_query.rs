@@ -101,6 +101,8 @@ fn main() -> anyhow::Result<()> {
         "rows": cache.rows(),
         "cache_bytes": cache.bytes(),
         "i8_bytes": cache.rows() * cache.stride(),
+        "coarse_bytes": cache.rows() * cache.coarse_stride(),
+        "stride": cache.stride(),
         "cache_origin": format!("{origin:?}"),
         "open_ms": open,
         "fingerprint_ms": fingerprint,

@@ -599,10 +599,15 @@ fn accumulate(
         } else {
             rows.partition_point(|&r| (r as usize) < r0)
         };
+        // Postings are ascending, so from the start found every row is at least r0; a
+        // damaged file (not checked row by row at open, that would read every posting) can
+        // only make rows be skipped, never an index go out of range.
         while let Some(&r) = rows.get(k)
             && (r as usize) < r1
         {
-            sums[r as usize - r0].add(t, ws[k], reverse);
+            if let Some(s) = sums.get_mut((r as usize).wrapping_sub(r0)) {
+                s.add(t, ws[k], reverse);
+            }
             k += 1;
         }
         *cursor = (r1, k);
