@@ -51,8 +51,14 @@ const ALIGN: usize = 64;
 const SECTIONS: usize = 19;
 /// Nominal m/z values an inverted index covers (peak bins are u16).
 const MZ_BINS: usize = 1 << 16;
-/// Grid values averaged into one value of a coarse row.
-pub(super) const COARSE: usize = 4;
+/// The block sizes a cache may average its coarse rows over, coarsest first.
+pub(super) const BLOCKS: [usize; 3] = [8, 4, 2];
+/// The block size of caches without dense rows (recorded, never used).
+const NO_BLOCK: usize = 4;
+/// Rows a build samples to choose its block size.
+const BLOCK_SAMPLE: usize = 1000;
+/// The largest median left-out norm (of unit rows) a block size may leave in the sample.
+const BLOCK_REST: f64 = 0.25;
 /// Dense rows are padded to a multiple of this many values, so kernels need no tail loop.
 pub(super) const LANES: usize = 32;
 
@@ -98,15 +104,16 @@ pub fn file_name(technique: Technique, kind: Kind) -> String {
 struct Layout {
     rows: usize,
     stride: usize,
+    block: usize,
     coarse_stride: usize,
     nnz: usize,
     offsets: [usize; SECTIONS],
     len: usize,
 }
 
-/// The padded length of the coarse rows of dense rows of length `stride`.
-pub(super) fn coarse_stride(stride: usize) -> usize {
-    stride.div_ceil(COARSE).div_ceil(LANES) * LANES
+/// The padded length of the coarse rows, over blocks of `block`, of rows of length `stride`.
+pub(super) fn coarse_stride(stride: usize, block: usize) -> usize {
+    stride.div_ceil(block).div_ceil(LANES) * LANES
 }
 
 // Section indices.
@@ -131,14 +138,14 @@ const POST_ROW: usize = 17;
 const POST_W: usize = 18;
 
 impl Layout {
-    fn new(kind: Kind, dim: usize, rows: usize, nnz: usize) -> Layout {
+    fn new(kind: Kind, dim: usize, rows: usize, nnz: usize, block: usize) -> Layout {
         let stride = if kind.dense() {
             dim.div_ceil(LANES) * LANES
         } else {
             0
         };
         let sparse = if kind.dense() { 0 } else { nnz };
-        let coarse_stride = coarse_stride(stride);
+        let coarse_stride = coarse_stride(stride, block);
         let sizes = [
             8 * rows,
             rows,
@@ -169,6 +176,7 @@ impl Layout {
         Layout {
             rows,
             stride,
+            block,
             coarse_stride,
             nnz,
             offsets,
@@ -263,6 +271,11 @@ impl VectorCache {
     /// Padded length of the coarse rows.
     pub fn coarse_stride(&self) -> usize {
         self.layout.coarse_stride
+    }
+
+    /// Grid values averaged into one value of a coarse row.
+    pub fn block(&self) -> usize {
+        self.layout.block
     }
 
     /// The coarse i8 matrix, row-major, `rows x coarse_stride`.
@@ -387,7 +400,11 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
     let dim = u64_at(h, 48) as usize;
     let rows = u64_at(h, 64) as usize;
     let nnz = u64_at(h, 72) as usize;
-    let layout = Layout::new(kind, dim, rows, nnz);
+    let block = u32_at(h, 324) as usize;
+    if !BLOCKS.contains(&block) {
+        return Err("cache of an unknown coarse block size".into());
+    }
+    let layout = Layout::new(kind, dim, rows, nnz, block);
     if u64_at(h, 56) as usize != layout.stride || map.len() != layout.len {
         return Err("cache size does not match its header".into());
     }
@@ -403,9 +420,6 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         mass_exponent: f64::from_bits(u64_at(h, 96)),
         reverse: false,
     };
-    if u32_at(h, 324) as usize != COARSE {
-        return Err("cache of another coarse factor".into());
-    }
     let integer_x = h[320] == 1;
     let c = VectorCache {
         map,
@@ -483,7 +497,7 @@ impl Filler<'_> {
                 .copy_from_slice(&q);
             section_mut::<f32>(self.map, l.offsets[SCALE], l.rows)[i] = scale;
             section_mut::<f32>(self.map, l.offsets[L1], l.rows)[i] = l1;
-            let (coarse, rest) = coarse_row(&row, l.coarse_stride);
+            let (coarse, rest) = coarse_row(&row, l.coarse_stride, l.block);
             let (q, scale, l1) = quantise(&coarse);
             let cs = l.coarse_stride;
             section_mut::<i8>(self.map, l.offsets[CI8], l.rows * cs)[i * cs..(i + 1) * cs]
@@ -552,30 +566,52 @@ pub(super) fn dense_row(v: &[f32], kind: Kind, active: &[bool]) -> Vec<f32> {
 
 /// The coarse row of a dense row, and an upper bound on the L2 norm of what it leaves out.
 ///
-/// Let P be the orthogonal projection onto vectors constant over each block of [`COARSE`]
+/// Let P be the orthogonal projection onto vectors constant over each block of `block`
 /// consecutive values. Every vector splits as x = Px + x', with Px and x' orthogonal, so for
 /// two rows q.x = Pq.Px + q'.x', and by the Cauchy-Schwarz inequality
-/// |q'.x'| <= |q'| |x'|. The coarse row holds sqrt(COARSE) times each block mean, so that
-/// the dot product of two coarse rows is Pq.Px; `rest` is |x'|. The scan bounds q.x by the
-/// coarse dot product plus |q'| |x'|, reading a quarter of the bytes of the full i8 row.
+/// |q'.x'| <= |q'| |x'|. The coarse row holds sqrt(block) times each block mean, so that the
+/// dot product of two coarse rows is Pq.Px; `rest` is |x'|. The scan bounds q.x by the
+/// coarse dot product plus |q'| |x'|, reading 1/block of the bytes of the full i8 row.
 /// Smooth spectra (bands several grid steps wide) leave little out, so the bound is tight
 /// where it matters. The norm is computed in f64 and rounded up, so it is never too small.
-pub(super) fn coarse_row(row: &[f32], coarse_stride: usize) -> (Vec<f32>, f32) {
+pub(super) fn coarse_row(row: &[f32], coarse_stride: usize, block: usize) -> (Vec<f32>, f32) {
     let mut coarse = vec![0f32; coarse_stride];
     let mut rest = 0f64;
-    let root = (COARSE as f64).sqrt();
-    for (c, block) in coarse.iter_mut().zip(row.chunks(COARSE)) {
+    let root = (block as f64).sqrt();
+    for (c, values) in coarse.iter_mut().zip(row.chunks(block)) {
         // A short last block is padded with zeros, as the cache's rows are.
-        let mean = block.iter().map(|&a| f64::from(a)).sum::<f64>() / COARSE as f64;
-        rest += block
+        let mean = values.iter().map(|&a| f64::from(a)).sum::<f64>() / block as f64;
+        rest += values
             .iter()
             .map(|&a| (f64::from(a) - mean).powi(2))
             .sum::<f64>()
-            + (COARSE - block.len()) as f64 * mean * mean;
+            + (block - values.len()) as f64 * mean * mean;
         *c = (mean * root) as f32;
     }
     let rest = rest.sqrt();
     (coarse, (rest * (1.0 + 1e-6) + 1e-7) as f32)
+}
+
+/// The block size of a cache's coarse rows, from a sample of its dense rows: the coarsest of
+/// [`BLOCKS`] whose median left-out norm stays within [`BLOCK_REST`], else the finest. Only
+/// speed depends on it (a looser coarse bound sends more rows to the full i8 row); the hits
+/// never do. Smooth spectra (IR and Raman bands several grid steps wide) take blocks of 8,
+/// spectra with lines one or two grid steps wide (1H NMR) small ones.
+pub(super) fn choose_block(rows: &[Vec<f32>]) -> usize {
+    if rows.is_empty() {
+        return NO_BLOCK;
+    }
+    for block in BLOCKS {
+        let mut rests: Vec<f32> = rows
+            .iter()
+            .map(|r| coarse_row(r, r.len().div_ceil(block), block).1)
+            .collect();
+        rests.sort_by(f32::total_cmp);
+        if f64::from(rests[rests.len() / 2]) <= BLOCK_REST {
+            return block;
+        }
+    }
+    BLOCKS[BLOCKS.len() - 1]
 }
 
 /// Quantises a row to i8 with one scale (value = scale x q): the scale, and the L1 norm of
@@ -692,7 +728,7 @@ fn write_header(map: &mut [u8], c: &Tag<'_>) {
         h[168 + 8 * i..176 + 8 * i].copy_from_slice(&(o as u64).to_le_bytes());
     }
     h[320] = u8::from(c.integer_x);
-    h[324..328].copy_from_slice(&(COARSE as u32).to_le_bytes());
+    h[324..328].copy_from_slice(&(l.block as u32).to_le_bytes());
     // The magic goes in last, so a map that was not completely filled never parses.
     h[0..8].copy_from_slice(MAGIC);
 }
@@ -707,14 +743,26 @@ fn fill<M: std::ops::DerefMut<Target = [u8]>>(
     make: &mut dyn FnMut(usize) -> Result<M>,
 ) -> Result<(M, Layout, Snapshot, bool)> {
     let counts = library.vector_counts(technique)?;
-    let layout = Layout::new(kind, grid.len(), counts.0, counts.1);
+    let active = active_bins(grid);
+    let block = if kind.dense() {
+        let sample: Vec<Vec<f32>> = library
+            .sample_vectors(technique, BLOCK_SAMPLE)?
+            .iter()
+            .filter(|v| v.len() == grid.len())
+            .map(|v| dense_row(v, kind, &active))
+            .collect();
+        choose_block(&sample)
+    } else {
+        NO_BLOCK
+    };
+    let layout = Layout::new(kind, grid.len(), counts.0, counts.1, block);
     let mut map = make(layout.len)?;
     let mut filler = Filler {
         map: &mut map,
         layout,
         kind,
         grid,
-        active: active_bins(grid),
+        active,
         params: *params,
         row: 0,
         peak: 0,

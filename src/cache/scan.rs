@@ -347,7 +347,7 @@ fn make_query<'a>(
         let mut row = dense_row(&unknown.vector, cache.kind, active);
         row.resize(cache.stride(), 0.0);
         q.l1 = row.iter().map(|a| a.abs()).sum();
-        (q.coarse, q.rest) = coarse_row(&row, cache.coarse_stride());
+        (q.coarse, q.rest) = coarse_row(&row, cache.coarse_stride(), cache.block());
         q.coarse_l1 = q.coarse.iter().map(|a| a.abs()).sum();
         q.dense = row;
         q.near = vec![0u64; NEAR_BINS / 64];
@@ -1193,10 +1193,10 @@ mod tests {
 
     /// The first scan's coarse bound of two rows: coarse rows, quantised, as the scan makes
     /// them.
-    fn coarse_bound_of(q: &[f32], x: &[f32]) -> f64 {
-        let cs = super::super::file::coarse_stride(q.len().div_ceil(32) * 32);
-        let (cq, rq) = coarse_row(q, cs);
-        let (cx, rx) = coarse_row(x, cs);
+    fn coarse_bound_of(q: &[f32], x: &[f32], block: usize) -> f64 {
+        let cs = super::super::file::coarse_stride(q.len().div_ceil(32) * 32, block);
+        let (cq, rq) = coarse_row(q, cs, block);
+        let (cx, rx) = coarse_row(x, cs, block);
         let (vq, sq, _) = quantise(&cq);
         let (vx, sx, l1x) = quantise(&cx);
         let prepared = Prepared {
@@ -1229,8 +1229,8 @@ mod tests {
         // rest norms are |q'| and |x'|. Values worked by hand: blocks of 4, one block.
         let q = [1.0f32, 0.0, 0.0, 0.0];
         let x = [0.5f32, 0.5, 0.5, 0.5];
-        let (cq, rq) = coarse_row(&q, 32);
-        let (cx, rx) = coarse_row(&x, 32);
+        let (cq, rq) = coarse_row(&q, 32, 4);
+        let (cx, rx) = coarse_row(&x, 32, 4);
         // Block means 1/4 and 1/2, times sqrt(4) = 2: 0.5 and 1.0.
         assert!((cq[0] - 0.5).abs() < 1e-7 && (cx[0] - 1.0).abs() < 1e-7);
         assert!(cq[1..].iter().chain(&cx[1..]).all(|&a| a == 0.0));
@@ -1238,6 +1238,40 @@ mod tests {
         assert!((f64::from(rq) - 0.75f64.sqrt()).abs() < 1e-6 && rx < 1e-6);
         // Pq.Px = 0.5 = q.x, since x' = 0.
         assert!((cq[0] * cx[0] - 0.5).abs() < 1e-7);
+    }
+
+    #[test]
+    fn the_block_size_follows_how_smooth_the_rows_are() {
+        use super::super::file::choose_block;
+        let unit = |v: Vec<f32>| {
+            let n = v.iter().map(|a| a * a).sum::<f32>().sqrt();
+            v.into_iter().map(|a| a / n).collect::<Vec<f32>>()
+        };
+        // Gaussian bands 20 grid steps wide: blocks of 8 leave little out.
+        let smooth: Vec<Vec<f32>> = (0..9)
+            .map(|k| {
+                let c = 100.0 + 150.0 * k as f32;
+                unit(
+                    (0..1801)
+                        .map(|i| (-((i as f32 - c) / 20.0).powi(2)).exp())
+                        .collect(),
+                )
+            })
+            .collect();
+        assert_eq!(choose_block(&smooth), 8);
+        // Lines one grid step wide (every row a few isolated spikes): the finest block.
+        let spiky: Vec<Vec<f32>> = (0..9)
+            .map(|k| {
+                let mut v = vec![0f32; 1801];
+                for j in 0..5 {
+                    v[37 * k + 301 * j + 3] = 1.0;
+                }
+                unit(v)
+            })
+            .collect();
+        assert_eq!(choose_block(&spiky), 2);
+        // Nothing to sample: the default.
+        assert_eq!(choose_block(&[]), 4);
     }
 
     proptest::proptest! {
@@ -1248,6 +1282,7 @@ mod tests {
             n in 1usize..300,
             seed in proptest::collection::vec(f64_in(-1.0, 1.0), 600),
             smooth in proptest::bool::ANY,
+            block in proptest::sample::select(super::super::file::BLOCKS.to_vec()),
         ) {
             let (q, x) = unit_rows(&seed[..n], &seed[300..300 + n], smooth);
             let exact: f64 = q.iter().zip(&x).map(|(&a, &b)| f64::from(a) * f64::from(b)).sum();
@@ -1256,11 +1291,11 @@ mod tests {
             padded.1.resize(n.div_ceil(32) * 32, 0.0);
             // Bounds are on scores, which are at most 1 (the rows' f32 rounding can take a
             // dot product a little past it).
-            let bound = coarse_bound_of(&padded.0, &padded.1);
+            let bound = coarse_bound_of(&padded.0, &padded.1, block);
             proptest::prop_assert!(bound >= exact.min(1.0), "bound {bound} < {exact}");
             // A row against itself: its squared norm (1, or 0 for a zero row) is reached.
             let own: f64 = q.iter().map(|&a| f64::from(a) * f64::from(a)).sum();
-            let b = coarse_bound_of(&padded.0, &padded.0);
+            let b = coarse_bound_of(&padded.0, &padded.0, block);
             proptest::prop_assert!(b >= own.min(1.0), "{b} < {own}");
         }
     }

@@ -110,6 +110,23 @@ impl Library {
         Ok((n as usize, peaks as usize))
     }
 
+    /// The prepared vectors of the first `n` searchable spectra of a technique, by id: a
+    /// sample a cache build looks at before it lays out its file.
+    pub fn sample_vectors(&self, technique: Technique, n: usize) -> Result<Vec<Vec<f32>>> {
+        let mut stmt = self.conn.prepare(
+            "SELECT p.vector FROM spectrum s JOIN prepared p ON p.spectrum_id = s.id
+             WHERE s.technique = ?1 AND s.status != 'withdrawn' ORDER BY s.id LIMIT ?2",
+        )?;
+        let rows = stmt.query_map(rusqlite::params![technique.name(), n as i64], |r| {
+            r.get::<_, Vec<u8>>(0)
+        })?;
+        let mut out = Vec::new();
+        for blob in rows {
+            out.push(f32_from_bytes(&blob?));
+        }
+        Ok(out)
+    }
+
     /// The stored prepared forms of several spectra, in the order asked.
     pub fn prepared_many(&self, ids: &[i64]) -> Result<Vec<crate::prepare::Prepared>> {
         ids.iter().map(|&id| self.prepared(id)).collect()
