@@ -22,7 +22,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::error::Result;
-use crate::library::{Library, SpectrumRecord, Status};
+use crate::library::{HitRecord, Library, Status};
 use crate::prepare::{Prepared, Solvent};
 use crate::score::{Measure, ScoreParams, Scores, score};
 use crate::technique::Technique;
@@ -254,7 +254,7 @@ pub fn confidence(technique: Technique, params: &ScoreParams) -> Confidence {
 fn hit_notes(
     technique: Technique,
     unknown_solvent: Option<Solvent>,
-    rec: &SpectrumRecord,
+    rec: &HitRecord,
 ) -> Vec<String> {
     let mut notes = Vec::new();
     if !technique.is_nmr() {
@@ -304,7 +304,7 @@ pub fn search_many(
                 let mut hits = Vec::with_capacity(r.scored.len());
                 let ids: Vec<i64> = r.scored.iter().map(|s| s.1).collect();
                 for ((combined, _, components), rec) in
-                    r.scored.into_iter().zip(library.records(&ids)?)
+                    r.scored.into_iter().zip(library.hit_records(&ids)?)
                 {
                     hits.push(make_hit(hits.len() + 1, combined, components, rec, request));
                 }
@@ -340,7 +340,7 @@ fn make_hit(
     rank: usize,
     combined: f64,
     components: Scores,
-    rec: SpectrumRecord,
+    rec: HitRecord,
     request: &Request,
 ) -> Hit {
     Hit {
@@ -404,7 +404,7 @@ pub fn search_exact(library: &Library, unknown: &Prepared, request: &Request) ->
         if hits.len() >= request.top && !check_each {
             break;
         }
-        let rec = match library.records(&[c.spectrum_id])?.pop() {
+        let rec = match library.hit_records(&[c.spectrum_id])?.pop() {
             Some(r) => r,
             None => continue,
         };
