@@ -36,11 +36,17 @@ pub fn run(args: FindArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
     let found = lib.text().find(&args.query, args.top)?;
     let ids: Vec<i64> = found.iter().map(|f| f.1).collect();
-    let records = lib.records(&ids)?;
+    // By id: a hit the database no longer has (the index behind it) is left out, and the
+    // others keep their own records.
+    let mut records: std::collections::HashMap<i64, whorl::library::HitRecord> = lib
+        .hit_records(&ids)?
+        .into_iter()
+        .map(|r| (r.id, r))
+        .collect();
     let rows: Vec<Found> = found
         .iter()
-        .zip(records)
-        .map(|(&(relevance, _), r)| Found {
+        .filter_map(|&(relevance, id)| records.remove(&id).map(|r| (relevance, r)))
+        .map(|(relevance, r)| Found {
             relevance,
             spectrum_id: r.id,
             compound_id: r.compound_id,
