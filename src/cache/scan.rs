@@ -1514,6 +1514,17 @@ mod tests {
             get(&lib, Technique::Ir, Kind::Centred).unwrap().1,
             super::super::Origin::Rebuilt
         );
+        // So is one whose header names a block size the scan does not know (byte 324).
+        drop(lib);
+        let mut bytes = std::fs::read(&file).unwrap();
+        assert!(super::super::file::BLOCKS.contains(&usize::from(bytes[324])));
+        bytes[324] = 3;
+        std::fs::write(&file, &bytes).unwrap();
+        let lib = Library::open(&dir.path().join("lib")).unwrap();
+        assert_eq!(
+            get(&lib, Technique::Ir, Kind::Centred).unwrap().1,
+            super::super::Origin::Rebuilt
+        );
         // Deleting the folder loses nothing.
         std::fs::remove_dir_all(dir.path().join("lib/cache")).unwrap();
         same(
