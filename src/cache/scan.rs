@@ -1098,6 +1098,28 @@ mod tests {
         }
     }
 
+    /// `n` EI-MS unknowns: even ones a library spectrum (every `step`-th) with its heights
+    /// perturbed by 30 %, odd ones random spectra.
+    fn mixed_ms_unknowns(
+        lib: &Library,
+        refs: &[Vec<(f64, f64)>],
+        seed: u64,
+        n: usize,
+        step: usize,
+    ) -> Vec<Prepared> {
+        let mut rng = Rng::new(seed);
+        (0..n)
+            .map(|k| {
+                let pts = if k % 2 == 0 {
+                    perturb(&refs[k * step], &mut rng, 0.3)
+                } else {
+                    ms_points(&mut rng)
+                };
+                unknown(lib, Technique::MsEi, pts)
+            })
+            .collect()
+    }
+
     /// One row's sums through the inverted index, as the first scan takes them.
     fn sums_of(cache: &VectorCache, q: &Query<'_>, row: usize, reverse: bool) -> RowSums {
         let mut s = [RowSums::ZERO];
@@ -1126,15 +1148,8 @@ mod tests {
         let (cache, _) = get(&lib, Technique::MsEi, Kind::Sparse).unwrap();
         let grid = lib.recipe(Technique::MsEi).unwrap().grid.clone();
         let (active, bins) = (active_bins(&grid), Bins::new(&grid));
-        let mut rng = Rng::new(42);
         let mut shared_seen = 0;
-        for k in 0..6 {
-            let pts = if k % 2 == 0 {
-                perturb(&refs[k * 7], &mut rng, 0.3)
-            } else {
-                ms_points(&mut rng)
-            };
-            let u = unknown(&lib, Technique::MsEi, pts);
+        for u in mixed_ms_unknowns(&lib, &refs, 42, 6, 7) {
             let q = make_query(&u, &cache, &active, &bins, 0.5);
             for reverse in [false, true] {
                 // Whole range at once, as a chunk of the scan sees it, and row by row.
@@ -1186,17 +1201,10 @@ mod tests {
         let grid = lib.recipe(Technique::MsEi).unwrap().grid.clone();
         let active = active_bins(&grid);
         let bins = Bins::new(&grid);
-        let mut rng = Rng::new(32);
         let params = crate::score::CompositeParams::default();
         assert!(params.reverse);
         let mut seen_ratio = false;
-        for k in 0..8 {
-            let pts = if k % 2 == 0 {
-                perturb(&refs[k * 11], &mut rng, 0.3)
-            } else {
-                ms_points(&mut rng)
-            };
-            let u = unknown(&lib, Technique::MsEi, pts);
+        for u in mixed_ms_unknowns(&lib, &refs, 32, 8, 11) {
             let q = make_query(&u, &cache, &active, &bins, 0.5);
             let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
             for row in 0..cache.rows() {
