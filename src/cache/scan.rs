@@ -304,6 +304,25 @@ fn row_mask(
     (mask, count, searched)
 }
 
+impl<'a> Query<'a> {
+    /// A query with the unknown's peak positions and nothing else filled in yet.
+    fn blank(unknown: &'a Prepared) -> Query<'a> {
+        Query {
+            near: vec![],
+            unknown,
+            dense: vec![],
+            l1: 0.0,
+            coarse: vec![],
+            coarse_l1: 0.0,
+            rest: 0.0,
+            table: vec![],
+            mzs: vec![],
+            positive: 0,
+            xs: unknown.peaks.iter().map(|p| p.x).collect(),
+        }
+    }
+}
+
 fn make_query<'a>(
     unknown: &'a Prepared,
     cache: &VectorCache,
@@ -311,19 +330,7 @@ fn make_query<'a>(
     bins: &Bins,
     tolerance: f64,
 ) -> Query<'a> {
-    let mut q = Query {
-        near: vec![],
-        unknown,
-        dense: vec![],
-        l1: 0.0,
-        coarse: vec![],
-        coarse_l1: 0.0,
-        rest: 0.0,
-        table: vec![],
-        mzs: vec![],
-        positive: 0,
-        xs: unknown.peaks.iter().map(|p| p.x).collect(),
-    };
+    let mut q = Query::blank(unknown);
     if cache.kind == Kind::Sparse {
         // A table up to the unknown's largest m/z only, so it stays in the L1 cache; a row's
         // m/z beyond it has weight 0 and no unknown peak.
@@ -1250,6 +1257,17 @@ mod tests {
         (make(a), make(b))
     }
 
+    /// An IR unknown with no vector and no peaks, for queries whose fields a test sets itself.
+    fn blank_prepared() -> Prepared {
+        Prepared {
+            technique: Technique::Ir,
+            vector: vec![],
+            peaks: vec![],
+            y_unit: crate::spectrum::YUnit::Absorbance,
+            warnings: vec![],
+        }
+    }
+
     /// The first scan's coarse bound of two rows: coarse rows, quantised, as the scan makes
     /// them.
     fn coarse_bound_of(q: &[f32], x: &[f32], block: usize) -> f64 {
@@ -1258,25 +1276,12 @@ mod tests {
         let (cx, rx) = coarse_row(x, cs, block);
         let (vq, sq, _) = quantise(&cq);
         let (vx, sx, l1x) = quantise(&cx);
-        let prepared = Prepared {
-            technique: Technique::Ir,
-            vector: vec![],
-            peaks: vec![],
-            y_unit: crate::spectrum::YUnit::Absorbance,
-            warnings: vec![],
-        };
+        let prepared = blank_prepared();
         let query = Query {
-            unknown: &prepared,
-            dense: vec![],
-            l1: 0.0,
             coarse_l1: cq.iter().map(|a| a.abs()).sum(),
             coarse: cq,
             rest: rq,
-            table: vec![],
-            mzs: vec![],
-            positive: 0,
-            xs: vec![],
-            near: vec![],
+            ..Query::blank(&prepared)
         };
         coarse_bound(&query, sq, sx, l1x, rx, i8_dot(&vx, &vq))
     }
@@ -1379,25 +1384,11 @@ mod tests {
             }
             let grid = crate::technique::Technique::Ir.default_grid();
             let bins = Bins::new(&grid);
-            let prepared = Prepared {
-                technique: Technique::Ir,
-                vector: vec![],
-                peaks: vec![],
-                y_unit: crate::spectrum::YUnit::Absorbance,
-                warnings: vec![],
-            };
+            let prepared = blank_prepared();
             let mut q = Query {
-                unknown: &prepared,
-                dense: vec![],
-                l1: 0.0,
-                coarse: vec![],
-                coarse_l1: 0.0,
-                rest: 0.0,
-                table: vec![],
-                mzs: vec![],
-                positive: 0,
                 xs: u.clone(),
                 near: vec![0; NEAR_BINS / 64],
+                ..Query::blank(&prepared)
             };
             let t = widened(tol);
             for &x in &u {
