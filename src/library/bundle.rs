@@ -16,12 +16,12 @@ use serde::{Deserialize, Serialize};
 use super::curation::{Review, reweigh};
 use super::manifest::{KNOWN_COLUMNS, read_bundle_manifest, resolve_within};
 use super::records::{
-    Metadata, SpectrumRecord, Status, append_event, find_or_create_compound, insert_prepared,
-    present_by_raw,
+    SpectrumRecord, append_event, find_or_create_compound, insert_prepared, present_by_raw,
 };
 use super::{ContentSum, Library, Outcome, Staged, fingerprint, now, record_hash, stage};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::sha256_hex;
+use crate::spectrum::{Metadata, Status};
 
 /// The bundle format this build writes and reads.
 pub const BUNDLE_FORMAT: &str = "whorl-bundle-1";

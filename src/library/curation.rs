@@ -4,12 +4,13 @@ use rusqlite::{Connection, OptionalExtension, params};
 use serde::{Deserialize, Serialize};
 
 use super::records::{
-    Metadata, SpectrumRecord, Status, append_event, bump_generation, f32_bytes,
-    find_or_create_compound, update_content_sum,
+    SpectrumRecord, append_event, bump_generation, f32_bytes, find_or_create_compound,
+    update_content_sum,
 };
 use super::{Library, now, prepare_raw, record_hash};
 use crate::error::{Error, Result};
 use crate::prepare::Solvent;
+use crate::spectrum::{Metadata, Status};
 use crate::spectrum::{XUnit, YUnit};
 
 /// A reviewer's decision.

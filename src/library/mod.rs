@@ -12,6 +12,7 @@ mod schema;
 mod stage;
 mod vectors;
 
+pub use crate::spectrum::{Metadata, Status};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use check::{CheckReport, Finding};
 pub use curation::{Decision, MetadataPatch, Review, RevisionInfo};
@@ -19,9 +20,7 @@ pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use recipe_change::RecipeChange;
-pub use records::{
-    Candidate, Event, HitRecord, Metadata, Outcome, SpectrumRecord, Stats, Status, Summary,
-};
+pub use records::{Candidate, Event, HitRecord, Outcome, SpectrumRecord, Stats, Summary};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,

@@ -1,8 +1,6 @@
 //! Rows of the library: metadata, spectra, events, and the queries and writes over them.
 
 use std::collections::{BTreeMap, HashMap};
-use std::fmt;
-use std::str::FromStr;
 
 use rusqlite::{Connection, OptionalExtension, params};
 use serde::{Deserialize, Serialize};
@@ -11,96 +9,9 @@ use super::fingerprint::ContentSum;
 use super::{Library, Recipes, Staged, now};
 use crate::error::{Error, Result};
 use crate::prepare::{Peak, Prepared, Recipe};
-use crate::spectrum::sha256_hex;
+use crate::spectrum::{Metadata, Status, sha256_hex};
 use crate::technique::Technique;
 use crate::text::IndexDoc;
-
-/// Descriptive metadata of one spectrum revision.
-#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, Deserialize)]
-pub struct Metadata {
-    /// Compound name.
-    pub name: String,
-    /// Molecular formula, Hill order.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub formula: Option<String>,
-    /// CAS Registry Number.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub cas: Option<String>,
-    /// Other names.
-    #[serde(default, skip_serializing_if = "Vec::is_empty")]
-    pub synonyms: Vec<String>,
-    /// Free labels.
-    #[serde(default, skip_serializing_if = "Vec::is_empty")]
-    pub tags: Vec<String>,
-    /// NMR solvent.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub solvent: Option<String>,
-    /// Where the material came from.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub source: Option<String>,
-    /// The instrument that measured it.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub instrument: Option<String>,
-    /// When it was measured.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub acquired: Option<String>,
-    /// Free notes.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub notes: Option<String>,
-    /// Any other manifest columns.
-    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
-    pub extra: BTreeMap<String, String>,
-}
-
-/// Where a spectrum stands in review.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Status {
-    /// Imported, not yet reviewed.
-    Pending,
-    /// Signed off by a reviewer.
-    Verified,
-    /// Kept for history, not searched.
-    Withdrawn,
-}
-
-impl Status {
-    /// The stored name.
-    pub fn name(self) -> &'static str {
-        match self {
-            Status::Pending => "pending",
-            Status::Verified => "verified",
-            Status::Withdrawn => "withdrawn",
-        }
-    }
-
-    /// Whether spectra in this status count towards the fingerprint.
-    pub fn searchable(self) -> bool {
-        self != Status::Withdrawn
-    }
-}
-
-impl fmt::Display for Status {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(self.name())
-    }
-}
-
-impl FromStr for Status {
-    type Err = Error;
-
-    fn from_str(s: &str) -> Result<Status> {
-        match s {
-            "pending" => Ok(Status::Pending),
-            "verified" => Ok(Status::Verified),
-            "withdrawn" => Ok(Status::Withdrawn),
-            _ => Err(Error::invalid(
-                format!("unknown status '{s}'"),
-                "use pending, verified or withdrawn",
-            )),
-        }
-    }
-}
 
 /// Everything stored about one spectrum at its current revision.
 #[derive(Debug, Clone, Serialize)]

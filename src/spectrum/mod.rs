@@ -1,8 +1,10 @@
 //! Spectra as read from files: raw points, units, and the hashes that name them.
 
+mod metadata;
 mod reader;
 mod units;
 
+pub use metadata::{Metadata, Status};
 pub use reader::{ParsedPoints, check_points, read_points, read_points_from_bytes};
 pub use units::{XUnit, YUnit};
 

@@ -13,7 +13,7 @@ use tantivy::schema::{
 use tantivy::{Index, IndexReader, IndexWriter, TantivyDocument, Term};
 
 use crate::error::{Error, Result};
-use crate::library::Metadata;
+use crate::spectrum::Metadata;
 
 mod prune;
 
