@@ -12,8 +12,8 @@ use std::io::Write;
 use std::path::PathBuf;
 
 use rayon::prelude::*;
-use whorl::cache::synthetic::{Rng, ir_points, ms_points, perturb, staged};
 use whorl::library::Library;
+use whorl::library::synthetic::{Rng, ir_points, ms_points, perturb, staged};
 use whorl::technique::Technique;
 
 fn points(t: Technique, rng: &mut Rng) -> Vec<(f64, f64)> {

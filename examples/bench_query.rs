@@ -6,7 +6,7 @@
 //! Prints one JSON object of medians in milliseconds: open, fingerprint, cache (map or
 //! build), prepare, search (warm, one unknown), rank (scan and rescoring without the hit
 //! list's metadata), batch (all unknowns together), and with `--exact` the exact search; and
-//! the stage breakdown (`whorl::cache::Trace`) of the median single rank and of the batch.
+//! the stage breakdown (`whorl::search::Trace`) of the median single rank and of the batch.
 
 use std::path::PathBuf;
 use std::time::Instant;
@@ -42,7 +42,21 @@ fn main() -> anyhow::Result<()> {
     let fingerprint = ms(t0);
     let kind = whorl::cache::kind_for(t, whorl::score::Measure::default_for(t)).expect("kind");
     let t0 = Instant::now();
-    let (cache, origin) = whorl::cache::get(&lib, t, kind)?;
+    // A rebuild renames a new file into place: a changed inode tells it from a reuse.
+    let file = root
+        .join(whorl::cache::CACHE_DIR)
+        .join(whorl::cache::file_name(t, kind));
+    let inode = || {
+        use std::os::unix::fs::MetadataExt;
+        std::fs::metadata(&file).map(|m| m.ino()).ok()
+    };
+    let before = inode();
+    let cache = lib.vector_cache(t, kind)?;
+    let origin = if inode() == before {
+        "Fresh"
+    } else {
+        "Rebuilt"
+    };
     let cache_ms = ms(t0);
 
     let mut files: Vec<PathBuf> = std::fs::read_dir(&dir)?
@@ -71,8 +85,8 @@ fn main() -> anyhow::Result<()> {
         warm.push(ms(t0));
         top.push(hits.hits.first().map(|h| h.spectrum_id).unwrap_or(0));
         let t0 = Instant::now();
-        let mut trace = whorl::cache::Trace::default();
-        whorl::cache::rank_traced(&lib, std::slice::from_ref(u), &request, &mut trace)?;
+        let mut trace = whorl::search::Trace::default();
+        whorl::search::rank_traced(&lib, std::slice::from_ref(u), &request, &mut trace)?;
         rank.push(ms(t0));
         traces.push(trace);
     }
@@ -81,8 +95,8 @@ fn main() -> anyhow::Result<()> {
     order.sort_by(|&a, &b| rank[a].total_cmp(&rank[b]));
     let stages = traces[order[order.len() / 2]].clone();
     let t0 = Instant::now();
-    let mut batch_trace = whorl::cache::Trace::default();
-    whorl::cache::rank_traced(&lib, &unknowns, &request, &mut batch_trace)?;
+    let mut batch_trace = whorl::search::Trace::default();
+    whorl::search::rank_traced(&lib, &unknowns, &request, &mut batch_trace)?;
     let batch_rank = ms(t0);
     let t0 = Instant::now();
     let lists = search_many(&lib, &unknowns, &request)?;
@@ -103,7 +117,7 @@ fn main() -> anyhow::Result<()> {
         "i8_bytes": cache.rows() * cache.stride(),
         "coarse_bytes": cache.rows() * cache.coarse_stride(),
         "stride": cache.stride(),
-        "cache_origin": format!("{origin:?}"),
+        "cache_origin": origin,
         "open_ms": open,
         "fingerprint_ms": fingerprint,
         "cache_ms": cache_ms,

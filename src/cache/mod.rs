@@ -1,65 +1,55 @@
-//! Vector caches: one derived, memory-mapped file per technique holding every searchable
-//! prepared spectrum as one contiguous matrix, and the scan that ranks an unknown against it.
+//! Vector caches: one derived, memory-mapped file per technique and kind holding every
+//! searchable prepared spectrum as one contiguous matrix, the row transforms that fill it,
+//! and the kernels that read it.
 //!
 //! A cache is derived data. It is tagged with the library fingerprint and generation it was
-//! built from, rebuilt whenever either differs from the database, written to a temporary file
-//! and renamed into place (a crash never leaves half a cache), and deleting the `cache/`
-//! folder loses nothing.
+//! built from ([`Snapshot`]), rebuilt whenever either differs from the database, written to
+//! a temporary file and renamed into place (a crash never leaves half a cache), and deleting
+//! the `cache/` folder loses nothing. This module knows no library and no query: the library
+//! feeds a [`Builder`] the rows it streams, and the search reads a [`VectorCache`].
 
+mod build;
 mod file;
 mod kernels;
-mod scan;
-pub mod synthetic;
+mod layout;
+mod rows;
 
-pub use file::{CACHE_DIR, FORMAT_VERSION, Kind, VectorCache};
-pub use scan::{Trace, rank, rank_traced};
+pub use build::Builder;
+pub use file::VectorCache;
+pub use kernels::{TopK, dot_f32, i8_dot, i8_dots};
+pub use layout::{BLOCK_SAMPLE, BLOCKS, CACHE_DIR, FORMAT_VERSION, Kind, coarse_stride, file_name};
+pub use rows::{
+    active_bins, choose_block, coarse_row, dense_row, posting_weight, quantise, weights,
+};
 
-use std::cell::RefCell;
-use std::collections::HashMap;
-use std::sync::Arc;
-
-use crate::error::Result;
-use crate::library::Library;
-use crate::score::{CompositeParams, Measure};
+use crate::prepare::Peak;
+use crate::score::Measure;
+use crate::spectrum::Status;
 use crate::technique::Technique;
 
-/// Told how far a cache build has come: technique, rows written, rows in all.
-pub type BuildProgress = dyn Fn(Technique, usize, usize) + Send + Sync;
-
-/// The caches a library has opened in this process, so that several searches of one command
-/// map each file once. Each use still checks the tag against the database. Also what to tell
-/// about a build under way (`Library::on_cache_build`).
-#[derive(Default)]
-pub struct Caches(
-    RefCell<HashMap<(Technique, Kind), Arc<VectorCache>>>,
-    pub(crate) RefCell<Option<Box<BuildProgress>>>,
-);
-
-impl Caches {
-    /// Tells the progress callback, if any, how far a build has come.
-    pub(crate) fn progress(&self, technique: Technique, done: usize, total: usize) {
-        if let Some(f) = self.1.borrow().as_ref() {
-            f(technique, done, total);
-        }
-    }
+/// The state of the searchable content a cache was built from: the library fingerprint and
+/// generation, read together with the rows.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Snapshot {
+    /// The library fingerprint.
+    pub fingerprint: String,
+    /// The generation counter.
+    pub generation: i64,
 }
 
-impl std::fmt::Debug for Caches {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str("Caches")
-    }
+/// One searchable spectrum as the library hands it to a [`Builder`].
+pub struct VectorRow {
+    /// Spectrum id (rows come in ascending id order).
+    pub spectrum_id: i64,
+    /// Review status (never withdrawn).
+    pub status: Status,
+    /// The prepared vector.
+    pub vector: Vec<f32>,
+    /// The picked peaks.
+    pub peaks: Vec<Peak>,
 }
 
-/// How a cache was obtained.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Origin {
-    /// Mapped from an up-to-date file (or reused in this process).
-    Fresh,
-    /// Built from the database because it was missing, stale or unreadable.
-    Rebuilt,
-}
-
-/// The kind of cache a technique's default measure uses.
+/// The kind of cache a technique's measure uses, if any.
 pub fn kind_for(technique: Technique, measure: Measure) -> Option<Kind> {
     match (technique, measure) {
         (Technique::MsEi, Measure::Composite) => Some(Kind::Sparse),
@@ -70,77 +60,4 @@ pub fn kind_for(technique: Technique, measure: Measure) -> Option<Kind> {
         (_, Measure::Cosine) => Some(Kind::Unit),
         _ => None,
     }
-}
-
-/// The up-to-date cache of one technique and kind: reused, mapped from its file, or rebuilt.
-pub fn get(
-    library: &Library,
-    technique: Technique,
-    kind: Kind,
-) -> Result<(Arc<VectorCache>, Origin)> {
-    let snapshot = library.snapshot()?;
-    let memo = library.vector_caches();
-    if let Some(c) = memo.0.borrow().get(&(technique, kind))
-        && c.is_current(&snapshot)
-    {
-        return Ok((c.clone(), Origin::Fresh));
-    }
-    let path = library
-        .root()
-        .map(|r| r.join(CACHE_DIR).join(file::file_name(technique, kind)));
-    if let Some(p) = &path
-        && let Ok(c) = VectorCache::open(p, technique, kind)
-        && c.is_current(&snapshot)
-    {
-        let c = Arc::new(c);
-        memo.0.borrow_mut().insert((technique, kind), c.clone());
-        return Ok((c, Origin::Fresh));
-    }
-    let c = Arc::new(build(library, technique, kind)?);
-    memo.0.borrow_mut().insert((technique, kind), c.clone());
-    Ok((c, Origin::Rebuilt))
-}
-
-/// Builds the cache of one technique and kind from the database: into `cache/` when the
-/// library has a folder that can be written, else in memory.
-pub fn build(library: &Library, technique: Technique, kind: Kind) -> Result<VectorCache> {
-    let grid = library.recipe(technique)?.grid.clone();
-    let params = CompositeParams::default();
-    match library.root() {
-        Some(root) => {
-            let dir = root.join(CACHE_DIR);
-            match file::build_file(library, &dir, technique, kind, &grid, &params) {
-                Ok(c) => Ok(c),
-                // A read-only library folder still searches: the cache lives in memory.
-                Err(crate::Error::Io { .. }) => {
-                    file::build_anon(library, technique, kind, &grid, &params)
-                }
-                Err(e) => Err(e),
-            }
-        }
-        None => file::build_anon(library, technique, kind, &grid, &params),
-    }
-}
-
-/// Rebuilds the cache of every technique that has searchable spectra (what `whorl check`
-/// does), returning the techniques rebuilt.
-pub fn rebuild_all(library: &Library) -> Result<Vec<Technique>> {
-    let mut done = Vec::new();
-    for t in Technique::ALL {
-        let Some(kind) = kind_for(t, Measure::default_for(t)) else {
-            continue;
-        };
-        let searchable = library.count(t, crate::library::Status::Verified)?
-            + library.count(t, crate::library::Status::Pending)?;
-        let path = library
-            .root()
-            .map(|r| r.join(CACHE_DIR).join(file::file_name(t, kind)));
-        if searchable == 0 && !path.as_ref().is_some_and(|p| p.exists()) {
-            continue;
-        }
-        let c = Arc::new(build(library, t, kind)?);
-        library.vector_caches().0.borrow_mut().insert((t, kind), c);
-        done.push(t);
-    }
-    Ok(done)
 }

@@ -371,7 +371,7 @@ impl Library {
                 .rebuild(records.iter().map(SpectrumRecord::index_doc), generation)?;
             report.text_index_rebuilt = true;
         }
-        report.caches_rebuilt = crate::cache::rebuild_all(self)?;
+        report.caches_rebuilt = self.rebuild_vector_caches()?;
         Ok(report)
     }
 }

@@ -1,6 +1,7 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
 mod bundle;
+mod caches;
 mod check;
 mod curation;
 mod fingerprint;
@@ -10,10 +11,13 @@ mod recipe_change;
 mod records;
 mod schema;
 mod stage;
+pub mod synthetic;
 mod vectors;
 
+pub use crate::cache::{Snapshot, VectorRow};
 pub use crate::spectrum::{Metadata, Status};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
+pub use caches::BuildProgress;
 pub use check::{CheckReport, Finding};
 pub use curation::{Decision, MetadataPatch, Review, RevisionInfo};
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
@@ -26,7 +30,6 @@ pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,
     stage, usual_x_unit,
 };
-pub use vectors::{Snapshot, VectorRow};
 
 use std::path::{Path, PathBuf};
 
@@ -57,7 +60,7 @@ pub struct Library {
     /// generation of the last commit (see [`Library::defer_text`]).
     text_deferred: std::cell::RefCell<Option<(Vec<i64>, i64)>>,
     /// Vector caches mapped by this process (derived data, see `crate::cache`).
-    caches: crate::cache::Caches,
+    caches: caches::Caches,
 }
 
 /// The default recipe of every technique.
@@ -248,18 +251,6 @@ impl Library {
             })
     }
 
-    /// The vector caches this process has mapped.
-    pub(crate) fn vector_caches(&self) -> &crate::cache::Caches {
-        &self.caches
-    }
-
-    /// Calls `f(technique, rows written, rows in all)` while a vector cache is built (from
-    /// 0 to all, every few thousand rows), so a command can show progress; the library
-    /// itself never prints.
-    pub fn on_cache_build(&self, f: impl Fn(Technique, usize, usize) + Send + Sync + 'static) {
-        *self.caches.1.borrow_mut() = Some(Box::new(f));
-    }
-
     /// The text index.
     pub fn text(&self) -> &TextIndex {
         &self.text
@@ -372,8 +363,8 @@ impl Library {
 
 #[cfg(test)]
 mod tests {
+    use super::synthetic::{Rng, ir_points, staged};
     use super::*;
-    use crate::cache::synthetic::{Rng, ir_points, staged};
 
     #[test]
     fn deferred_text_updates_are_written_once_at_the_flush() {

@@ -1,33 +1,12 @@
 //! Bulk reads for derived data: the prepared vectors of one technique in one read
 //! transaction, so that a vector cache built from them matches one fingerprint exactly.
 
+use crate::cache::{Snapshot, VectorRow};
 use crate::error::Result;
 use crate::library::Library;
+use crate::library::fingerprint;
 use crate::library::records::f32_from_bytes;
-use crate::library::{Status, fingerprint};
-use crate::prepare::Peak;
 use crate::technique::Technique;
-
-/// The state of the searchable content a bulk read saw.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub struct Snapshot {
-    /// The library fingerprint.
-    pub fingerprint: String,
-    /// The generation counter.
-    pub generation: i64,
-}
-
-/// One searchable spectrum as a bulk read hands it over.
-pub struct VectorRow {
-    /// Spectrum id (rows come in ascending id order).
-    pub spectrum_id: i64,
-    /// Review status (never withdrawn).
-    pub status: Status,
-    /// The prepared vector.
-    pub vector: Vec<f32>,
-    /// The picked peaks.
-    pub peaks: Vec<Peak>,
-}
 
 impl Library {
     /// The fingerprint and generation, read together.
@@ -125,10 +104,5 @@ impl Library {
             out.push(f32_from_bytes(&blob?));
         }
         Ok(out)
-    }
-
-    /// The stored prepared forms of several spectra, in the order asked.
-    pub fn prepared_many(&self, ids: &[i64]) -> Result<Vec<crate::prepare::Prepared>> {
-        ids.iter().map(|&id| self.prepared(id)).collect()
     }
 }

@@ -3,6 +3,7 @@
 mod constraints;
 mod fusion;
 mod retention;
+mod scan;
 
 pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow};
 pub use fusion::{
@@ -11,6 +12,7 @@ pub use fusion::{
     judge,
 };
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
+pub use scan::{Trace, rank, rank_traced};
 
 mod replay;
 
@@ -295,7 +297,7 @@ pub fn search_many(
     if request.constraints.is_empty()
         && !request.explain
         && request.top <= 1000
-        && let Some(rankings) = crate::cache::rank(library, unknowns, request)?
+        && let Some(rankings) = scan::rank(library, unknowns, request)?
     {
         return rankings
             .into_iter()

@@ -3,8 +3,8 @@
 
 use std::path::PathBuf;
 
+use super::{Metadata, Recipes, Staged, Submission};
 use crate::error::Result;
-use crate::library::{Metadata, Recipes, Staged, Submission};
 use crate::prepare::{Conditions, prepare};
 use crate::spectrum::{RawSpectrum, XUnit, YUnit, encode_points, sha256_hex};
 use crate::technique::Technique;

@@ -1,0 +1,241 @@
+//! The cache file's layout: a fixed header, then sections aligned to 64 bytes.
+//!
+//! ```text
+//! header   512 bytes: magic, format version, kind, technique, grid length (dim), padded
+//!          row length (stride), rows, peaks (nnz), generation, fingerprint, composite
+//!          exponents, section offsets, flags, coarse factor
+//! ids      i64 x rows       spectrum ids, ascending
+//! status   u8  x rows       0 pending, 1 verified
+//! scale    f32 x rows       dense: the i8 row's scale (value = scale x i8)
+//! l1       f32 x rows       dense: sum of |scale x i8| (for the quantisation error bound)
+//! npos     u32 x rows       peaks with a positive height
+//! f32      f32 x rows x stride   dense rows, zero-padded
+//! i8       i8  x rows x stride   the same rows quantised per row
+//! c_scale  f32 x rows       dense: the coarse row's scale
+//! c_l1     f32 x rows       dense: L1 norm of the dequantised coarse row
+//! c_rest   f32 x rows       dense: L2 norm of what the coarse row leaves out, rounded up
+//! c_i8     i8  x rows x coarse_stride   coarse rows quantised per row (see `coarse_row`)
+//! post_off u64 x 65537      sparse: where each nominal m/z's postings start
+//! post_row u32 x nnz        sparse: rows with a peak at that m/z, ascending
+//! post_w   f32 x nnz        sparse: that peak's weight, negated when it cannot be trusted
+//!                           (see `posting_weight`)
+//! peak_off u64 x (rows + 1) where each row's peaks start
+//! peak_x   f32 x nnz        peak positions
+//! peak_h   f32 x nnz        sparse: peak heights
+//! peak_bin u16 x nnz        sparse: nominal m/z
+//! peak_w   f32 x nnz        sparse: Stein & Scott weights, L2-normalised per row
+//! ```
+//!
+//! Dense rows are stored ready for a dot product. For [`Kind::Centred`] a row is the
+//! prepared vector with its mean over the unmasked bins subtracted, masked bins set to 0 and
+//! then L2-normalised: Pearson's r over the unmasked bins of two spectra equals the dot
+//! product of their rows so transformed. For [`Kind::Unit`] a row is the L2-normalised
+//! vector, whose dot products are cosines. Values are little-endian.
+
+use crate::score::CompositeParams;
+use crate::technique::Technique;
+
+use super::Snapshot;
+
+/// The cache folder inside a library folder.
+pub const CACHE_DIR: &str = "cache";
+/// The version of the cache file layout; a file of another version is rebuilt.
+pub const FORMAT_VERSION: u32 = 3;
+pub(super) const MAGIC: &[u8; 8] = b"WHORLVC\0";
+pub(super) const HEADER: usize = 512;
+pub(super) const ALIGN: usize = 64;
+pub(super) const SECTIONS: usize = 19;
+/// Nominal m/z values an inverted index covers (peak bins are u16).
+pub(super) const MZ_BINS: usize = 1 << 16;
+/// The block sizes a cache may average its coarse rows over, coarsest first.
+pub const BLOCKS: [usize; 3] = [8, 4, 2];
+/// The block size of caches without dense rows (recorded, never used).
+pub(super) const NO_BLOCK: usize = 4;
+/// Rows a build samples to choose its block size.
+pub const BLOCK_SAMPLE: usize = 1000;
+/// The largest median left-out norm (of unit rows) a block size may leave in the sample.
+pub(super) const BLOCK_REST: f64 = 0.25;
+/// Dense rows are padded to a multiple of this many values, so kernels need no tail loop.
+pub const LANES: usize = 32;
+
+/// What the rows of a cache hold.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub enum Kind {
+    /// Mean-centred over unmasked bins, masked bins zeroed, L2-normalised: dot = Pearson r.
+    Centred,
+    /// L2-normalised: dot = cosine.
+    Unit,
+    /// Peak lists with Stein & Scott weights (EI-MS).
+    Sparse,
+}
+
+impl Kind {
+    pub(super) fn code(self) -> u32 {
+        match self {
+            Kind::Centred => 1,
+            Kind::Unit => 2,
+            Kind::Sparse => 3,
+        }
+    }
+
+    pub(super) fn label(self) -> &'static str {
+        match self {
+            Kind::Centred => "corr",
+            Kind::Unit => "cos",
+            Kind::Sparse => "peaks",
+        }
+    }
+
+    pub(super) fn dense(self) -> bool {
+        self != Kind::Sparse
+    }
+}
+
+/// The file name of a technique's cache of one kind.
+pub fn file_name(technique: Technique, kind: Kind) -> String {
+    format!("{}.{}.wvc", technique.name(), kind.label())
+}
+
+#[derive(Debug, Clone, Copy, Default)]
+pub(super) struct Layout {
+    pub(super) rows: usize,
+    pub(super) stride: usize,
+    pub(super) block: usize,
+    pub(super) coarse_stride: usize,
+    pub(super) nnz: usize,
+    pub(super) offsets: [usize; SECTIONS],
+    pub(super) len: usize,
+}
+
+/// The padded length of the coarse rows, over blocks of `block`, of rows of length `stride`.
+pub fn coarse_stride(stride: usize, block: usize) -> usize {
+    stride.div_ceil(block).div_ceil(LANES) * LANES
+}
+
+// Section indices.
+pub(super) const IDS: usize = 0;
+pub(super) const STATUS: usize = 1;
+pub(super) const SCALE: usize = 2;
+pub(super) const L1: usize = 3;
+pub(super) const NPOS: usize = 4;
+pub(super) const F32: usize = 5;
+pub(super) const I8: usize = 6;
+pub(super) const POFF: usize = 7;
+pub(super) const PX: usize = 8;
+pub(super) const PH: usize = 9;
+pub(super) const PBIN: usize = 10;
+pub(super) const PW: usize = 11;
+pub(super) const CSCALE: usize = 12;
+pub(super) const CL1: usize = 13;
+pub(super) const CREST: usize = 14;
+pub(super) const CI8: usize = 15;
+pub(super) const POST_OFF: usize = 16;
+pub(super) const POST_ROW: usize = 17;
+pub(super) const POST_W: usize = 18;
+
+impl Layout {
+    pub(super) fn new(kind: Kind, dim: usize, rows: usize, nnz: usize, block: usize) -> Layout {
+        let stride = if kind.dense() {
+            dim.div_ceil(LANES) * LANES
+        } else {
+            0
+        };
+        let sparse = if kind.dense() { 0 } else { nnz };
+        let coarse_stride = coarse_stride(stride, block);
+        let sizes = [
+            8 * rows,
+            rows,
+            4 * rows,
+            4 * rows,
+            4 * rows,
+            4 * rows * stride,
+            rows * stride,
+            8 * (rows + 1),
+            4 * nnz,
+            4 * sparse,
+            2 * sparse,
+            4 * sparse,
+            4 * rows,
+            4 * rows,
+            4 * rows,
+            rows * coarse_stride,
+            if kind.dense() { 0 } else { 8 * (MZ_BINS + 1) },
+            4 * sparse,
+            4 * sparse,
+        ];
+        let mut offsets = [0; SECTIONS];
+        let mut at = HEADER;
+        for (o, s) in offsets.iter_mut().zip(sizes) {
+            *o = at;
+            at = (at + s).div_ceil(ALIGN) * ALIGN;
+        }
+        Layout {
+            rows,
+            stride,
+            block,
+            coarse_stride,
+            nnz,
+            offsets,
+            len: at,
+        }
+    }
+}
+
+pub(super) fn section<T>(map: &[u8], offset: usize, n: usize) -> &[T] {
+    debug_assert!(offset.is_multiple_of(std::mem::align_of::<T>()));
+    debug_assert!(offset + n * std::mem::size_of::<T>() <= map.len());
+    // SAFETY: the map is page-aligned and every section offset is a multiple of 64, so the
+    // pointer is aligned for T (f32, i8, u8, u16, u32, u64, i64); `open` checked that every
+    // section lies inside the map; all bit patterns are valid values of these types; the
+    // map is never written while mapped read-only (a rebuild writes a new file and renames it).
+    unsafe { std::slice::from_raw_parts(map.as_ptr().add(offset).cast::<T>(), n) }
+}
+
+pub(super) fn section_mut<T>(map: &mut [u8], offset: usize, n: usize) -> &mut [T] {
+    assert!(offset + n * std::mem::size_of::<T>() <= map.len());
+    // SAFETY: as in `section`; the caller holds the only reference to the map.
+    unsafe { std::slice::from_raw_parts_mut(map.as_mut_ptr().add(offset).cast::<T>(), n) }
+}
+
+pub(super) fn u32_at(b: &[u8], at: usize) -> u32 {
+    u32::from_le_bytes(b[at..at + 4].try_into().expect("4 bytes"))
+}
+
+pub(super) fn u64_at(b: &[u8], at: usize) -> u64 {
+    u64::from_le_bytes(b[at..at + 8].try_into().expect("8 bytes"))
+}
+
+pub(super) struct Tag<'a> {
+    pub(super) layout: Layout,
+    pub(super) kind: Kind,
+    pub(super) dim: usize,
+    pub(super) params: CompositeParams,
+    pub(super) integer_x: bool,
+    pub(super) technique: Technique,
+    pub(super) snapshot: &'a Snapshot,
+}
+
+pub(super) fn write_header(map: &mut [u8], c: &Tag<'_>) {
+    let (l, technique, snapshot) = (c.layout, c.technique, c.snapshot);
+    let h = &mut map[..HEADER];
+    h[8..12].copy_from_slice(&FORMAT_VERSION.to_le_bytes());
+    h[12..16].copy_from_slice(&c.kind.code().to_le_bytes());
+    let name = technique.name().as_bytes();
+    h[16..16 + name.len()].copy_from_slice(name);
+    h[48..56].copy_from_slice(&(c.dim as u64).to_le_bytes());
+    h[56..64].copy_from_slice(&(l.stride as u64).to_le_bytes());
+    h[64..72].copy_from_slice(&(l.rows as u64).to_le_bytes());
+    h[72..80].copy_from_slice(&(l.nnz as u64).to_le_bytes());
+    h[80..88].copy_from_slice(&(snapshot.generation as u64).to_le_bytes());
+    h[88..96].copy_from_slice(&c.params.intensity_exponent.to_bits().to_le_bytes());
+    h[96..104].copy_from_slice(&c.params.mass_exponent.to_bits().to_le_bytes());
+    let fp = snapshot.fingerprint.as_bytes();
+    h[104..104 + fp.len().min(64)].copy_from_slice(&fp[..fp.len().min(64)]);
+    for (i, &o) in l.offsets.iter().enumerate() {
+        h[168 + 8 * i..176 + 8 * i].copy_from_slice(&(o as u64).to_le_bytes());
+    }
+    h[320] = u8::from(c.integer_x);
+    h[324..328].copy_from_slice(&(l.block as u32).to_le_bytes());
+    // The magic goes in last, so a map that was not completely filled never parses.
+    h[0..8].copy_from_slice(MAGIC);
+}

@@ -1,0 +1,159 @@
+//! The library drives its derived vector caches: it finds an up-to-date one (reused in this
+//! process or mapped from its file), or streams its rows into a [`cache::Builder`] in one
+//! read transaction. The cache module itself knows nothing of the library.
+
+use std::cell::RefCell;
+use std::collections::HashMap;
+use std::path::Path;
+use std::sync::Arc;
+
+use super::{Library, Status};
+use crate::cache::{self, BLOCK_SAMPLE, Builder, CACHE_DIR, Kind, VectorCache};
+use crate::error::{Error, Result};
+use crate::score::{CompositeParams, Measure};
+use crate::technique::Technique;
+
+/// Told how far a cache build has come: technique, rows written, rows in all.
+pub type BuildProgress = dyn Fn(Technique, usize, usize) + Send + Sync;
+
+/// The caches a library has opened in this process, so that several searches of one command
+/// map each file once (each use still checks the tag against the database), and what to
+/// tell about a build under way ([`Library::on_cache_build`]).
+#[derive(Default)]
+pub(crate) struct Caches {
+    memo: RefCell<HashMap<(Technique, Kind), Arc<VectorCache>>>,
+    progress: RefCell<Option<Box<BuildProgress>>>,
+}
+
+impl Caches {
+    /// Tells the progress callback, if any, how far a build has come.
+    fn progress(&self, technique: Technique, done: usize, total: usize) {
+        if let Some(f) = self.progress.borrow().as_ref() {
+            f(technique, done, total);
+        }
+    }
+}
+
+impl std::fmt::Debug for Caches {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Caches")
+    }
+}
+
+impl Library {
+    /// Calls `f(technique, rows written, rows in all)` while a vector cache is built (from
+    /// 0 to all, every few thousand rows), so a command can show progress; the library
+    /// itself never prints.
+    pub fn on_cache_build(&self, f: impl Fn(Technique, usize, usize) + Send + Sync + 'static) {
+        *self.caches.progress.borrow_mut() = Some(Box::new(f));
+    }
+
+    /// The up-to-date cache of one technique and kind: reused, mapped from its file, or
+    /// rebuilt from the database.
+    pub fn vector_cache(&self, technique: Technique, kind: Kind) -> Result<Arc<VectorCache>> {
+        let snapshot = self.snapshot()?;
+        let memo = &self.caches.memo;
+        if let Some(c) = memo.borrow().get(&(technique, kind))
+            && c.is_current(&snapshot)
+        {
+            return Ok(c.clone());
+        }
+        if let Some(p) = self.cache_path(technique, kind)
+            && let Ok(c) = VectorCache::open(&p, technique, kind)
+            && c.is_current(&snapshot)
+        {
+            let c = Arc::new(c);
+            memo.borrow_mut().insert((technique, kind), c.clone());
+            return Ok(c);
+        }
+        let c = Arc::new(self.build_vector_cache(technique, kind)?);
+        memo.borrow_mut().insert((technique, kind), c.clone());
+        Ok(c)
+    }
+
+    /// Builds the cache of one technique and kind from the database: into `cache/` when the
+    /// library has a folder that can be written, else in memory.
+    pub fn build_vector_cache(&self, technique: Technique, kind: Kind) -> Result<VectorCache> {
+        match self.root() {
+            Some(root) => match self.fill_cache(technique, kind, Some(&root.join(CACHE_DIR))) {
+                Ok(c) => Ok(c),
+                // A read-only library folder still searches: the cache lives in memory.
+                Err(Error::Io { .. }) => self.fill_cache(technique, kind, None),
+                Err(e) => Err(e),
+            },
+            None => self.fill_cache(technique, kind, None),
+        }
+    }
+
+    /// Rebuilds the cache of every technique that has searchable spectra (what `whorl check`
+    /// does), returning the techniques rebuilt.
+    pub fn rebuild_vector_caches(&self) -> Result<Vec<Technique>> {
+        let mut done = Vec::new();
+        for t in Technique::ALL {
+            let Some(kind) = cache::kind_for(t, Measure::default_for(t)) else {
+                continue;
+            };
+            let searchable = self.count(t, Status::Verified)? + self.count(t, Status::Pending)?;
+            if searchable == 0 && !self.cache_path(t, kind).is_some_and(|p| p.exists()) {
+                continue;
+            }
+            let c = Arc::new(self.build_vector_cache(t, kind)?);
+            self.caches.memo.borrow_mut().insert((t, kind), c);
+            done.push(t);
+        }
+        Ok(done)
+    }
+
+    /// Where the cache file of a technique and kind lies (`None` for an in-memory library).
+    fn cache_path(&self, technique: Technique, kind: Kind) -> Option<std::path::PathBuf> {
+        self.root()
+            .map(|r| r.join(CACHE_DIR).join(cache::file_name(technique, kind)))
+    }
+
+    /// Streams the technique's searchable rows into a builder, in one read transaction, and
+    /// seals the cache with the state they were read from.
+    fn fill_cache(
+        &self,
+        technique: Technique,
+        kind: Kind,
+        dir: Option<&Path>,
+    ) -> Result<VectorCache> {
+        let grid = self.recipe(technique)?.grid.clone();
+        let counts = self.vector_counts(technique)?;
+        let sample = if kind == Kind::Sparse {
+            Vec::new()
+        } else {
+            self.sample_vectors(technique, BLOCK_SAMPLE)?
+        };
+        let params = CompositeParams::default();
+        let mut builder = Builder::new(technique, kind, &grid, &params, counts, &sample, dir)?;
+        let (total, progress) = (builder.rows(), &self.caches);
+        progress.progress(technique, 0, total);
+        let snapshot = self.scan_vectors(
+            technique,
+            &mut |n| {
+                if n == total {
+                    Ok(())
+                } else {
+                    Err(changed_while_building())
+                }
+            },
+            &mut |r| {
+                builder.push(r)?;
+                if builder.pushed().is_multiple_of(4096) {
+                    progress.progress(technique, builder.pushed(), total);
+                }
+                Ok(())
+            },
+        )?;
+        progress.progress(technique, total, total);
+        builder.finish(&snapshot)
+    }
+}
+
+fn changed_while_building() -> Error {
+    Error::invalid(
+        "the library changed while its vector cache was built",
+        "search again",
+    )
+}
