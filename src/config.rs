@@ -11,7 +11,6 @@ use serde::{Deserialize, Deserializer, Serialize};
 
 use crate::error::{Error, Location, Result};
 use crate::prepare::Solvent;
-use crate::search::{IdentityPolicy, Request, Thresholds};
 use crate::technique::Technique;
 
 /// The settings file inside a library folder.
@@ -26,7 +25,7 @@ pub struct Config {
     /// Per-technique options, overriding `search` and the technique's built-in defaults.
     pub technique: TechniqueTable,
     /// When a hit list warns.
-    pub thresholds: WarningThresholds,
+    pub thresholds: Thresholds,
     /// HTML reports.
     pub report: ReportDefaults,
     /// What `identify` requires before it reports the evidence as meeting the library's
@@ -114,10 +113,11 @@ pub struct TechniqueOptions {
 }
 
 /// When a hit list warns: the `[thresholds]` table, overriding the thresholds derived by the
-/// evaluation for each technique and measure.
+/// evaluation for each technique and measure (`None` keeps the derived value). A saved search
+/// records the overrides it ran with in the same form.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
 #[serde(default, deny_unknown_fields)]
-pub struct WarningThresholds {
+pub struct Thresholds {
     /// Below this combined score the best hit is reported as a weak match (0..1); unset keeps
     /// the threshold derived for the technique and measure.
     #[serde(
@@ -136,12 +136,46 @@ pub struct WarningThresholds {
     pub close_margin: Option<f64>,
 }
 
-impl From<WarningThresholds> for Thresholds {
-    fn from(t: WarningThresholds) -> Thresholds {
-        Thresholds {
-            weak_score: t.weak_score,
-            close_margin: t.close_margin,
+/// A technique *supports* the fused list's first compound when its own hit list puts that
+/// compound first with a confident hit (not weak and not too close to another compound, by
+/// the technique's thresholds). It *speaks against* it when the library holds a reference of
+/// the compound for that technique and either another compound is confidently first, or the
+/// compound's own score is below the technique's weak-match threshold: the measured spectrum
+/// does not look like the reference. A technique without a reference of the compound is
+/// silent. The default asks for two supporting techniques and none against, following the
+/// common practice of confirming an identification by a second, independent technique. Labs
+/// set their own rule from their accredited procedures; whorl only reports whether it is met.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct IdentityPolicy {
+    /// Techniques that must support the first compound.
+    pub min_techniques: usize,
+    /// Whether techniques that speak against the compound may be outvoted.
+    pub allow_contradiction: bool,
+}
+
+impl Default for IdentityPolicy {
+    fn default() -> IdentityPolicy {
+        IdentityPolicy {
+            min_techniques: 2,
+            allow_contradiction: false,
         }
+    }
+}
+
+impl IdentityPolicy {
+    /// The rule in words, as recorded with every verdict.
+    pub fn rule(&self) -> String {
+        format!(
+            "at least {} technique{} must each rank the compound first with a confident hit{}",
+            self.min_techniques,
+            if self.min_techniques == 1 { "" } else { "s" },
+            if self.allow_contradiction {
+                ""
+            } else {
+                ", and no technique holding a reference of it may speak against it"
+            }
+        )
     }
 }
 
@@ -209,17 +243,14 @@ impl Config {
             .and_then(|s| s.parse().ok())
     }
 
-    /// Sets a request's score parameters and thresholds from the file; `top` is left to the
-    /// caller, which knows whether the user gave one.
-    pub fn apply(&self, request: &mut Request) {
-        let o = self.technique.get(request.technique);
-        if let Some(w) = o.spectral_weight {
-            request.params.spectral_weight = w;
-        }
-        if let Some(t) = o.peak_tolerance {
-            request.params.peak_tolerance = t;
-        }
-        request.thresholds = self.thresholds.into();
+    /// The spectral weight of a technique's combined score, if the file sets one.
+    pub fn spectral_weight(&self, technique: Technique) -> Option<f64> {
+        self.technique.get(technique).spectral_weight
+    }
+
+    /// The peak-matching tolerance of a technique, if the file sets one.
+    pub fn peak_tolerance(&self, technique: Technique) -> Option<f64> {
+        self.technique.get(technique).peak_tolerance
     }
 }
 
@@ -299,7 +330,7 @@ mod tests {
         let c = parse("").unwrap();
         assert_eq!(c, Config::default());
         assert_eq!(c.top(Technique::Ir), 10);
-        assert_eq!(Thresholds::from(c.thresholds), Thresholds::default());
+        assert_eq!(c.thresholds, Thresholds::default());
         assert_eq!(c.report.plots, 5);
     }
 
@@ -312,12 +343,9 @@ mod tests {
         assert_eq!(c.top(Technique::Nmr1h), 3);
         assert_eq!(c.top(Technique::Ir), 7);
         assert_eq!(c.solvent(Technique::Nmr1h), Some(Solvent::Cdcl3));
-        let mut r = Request::new(Technique::Nmr1h);
-        c.apply(&mut r);
-        assert_eq!(r.params.peak_tolerance, 0.05);
-        let mut r = Request::new(Technique::MsEi);
-        c.apply(&mut r);
-        assert_eq!(r.params.spectral_weight, 0.9);
+        assert_eq!(c.peak_tolerance(Technique::Nmr1h), Some(0.05));
+        assert_eq!(c.peak_tolerance(Technique::Ir), None);
+        assert_eq!(c.spectral_weight(Technique::MsEi), Some(0.9));
     }
 
     #[test]

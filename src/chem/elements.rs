@@ -7,6 +7,7 @@
 use std::collections::BTreeMap;
 use std::sync::OnceLock;
 
+use super::formula::Formula;
 use crate::error::{Error, Result};
 
 /// Standard atomic weights, CIAAW 2021: T. Prohaska et al., "Standard atomic weights of the
@@ -302,6 +303,15 @@ pub fn element(symbol: &str) -> Result<&'static ElementData> {
             ),
         )
     })
+}
+
+/// Each element of a formula with its count and its data; fails on the first element without data.
+pub(crate) fn resolve(formula: &Formula) -> Result<Vec<(&'static ElementData, u64)>> {
+    formula
+        .counts
+        .iter()
+        .map(|(symbol, &n)| Ok((element(symbol)?, u64::from(n))))
+        .collect()
 }
 
 #[cfg(test)]

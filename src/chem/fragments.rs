@@ -3,9 +3,10 @@
 
 use serde::Serialize;
 
+use super::elements::resolve;
 use super::formula::Formula;
 use super::isotopes::isotope_pattern;
-use super::mass::{ihd, monoisotopic_mass, nominal_mass, resolve, round_to};
+use super::mass::{ihd, monoisotopic_mass, nominal_mass, round_to};
 use crate::error::{Error, Result};
 use crate::prepare::nominal_mz;
 

@@ -2,8 +2,8 @@
 
 use serde::Serialize;
 
+use super::elements::resolve;
 use super::formula::Formula;
-use super::mass::resolve;
 use crate::error::Result;
 
 /// One peak of a predicted isotope pattern.

@@ -3,19 +3,10 @@
 
 use serde::Serialize;
 
-use super::elements::{ElementData, element};
+use super::elements::resolve;
 use super::formula::Formula;
 use super::isotopes::{IsotopePeak, isotope_pattern, reach_below};
 use crate::error::Result;
-
-/// Each element of a formula with its count and its data; fails on the first element without data.
-pub(crate) fn resolve(formula: &Formula) -> Result<Vec<(&'static ElementData, u64)>> {
-    formula
-        .counts
-        .iter()
-        .map(|(symbol, &n)| Ok((element(symbol)?, u64::from(n))))
-        .collect()
-}
 
 /// The average molar mass in g/mol: the sum of standard atomic weights, CIAAW 2021 (for
 /// elements whose standard atomic weight is an interval, IUPAC/CIAAW's conventional value,

@@ -94,7 +94,7 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         constraints: args.constraints.constraints()?,
         top: args.top.max(1),
         policy: config.identity,
-        configure: &|r| config.apply(r),
+        configure: &|r| r.apply_config(&config),
     };
     let report = identify(&lib, &unknowns, &options)?;
     if let Some(path) = &args.html {

@@ -251,7 +251,7 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut request = Request::new(args.technique);
     request.params = args.scoring.params(args.technique)?;
     // The library's whorl.toml sets defaults; options on the command line win over it.
-    config.apply(&mut request);
+    request.apply_config(&config);
     if let Some(t) = args.scoring.tolerance {
         request.params.peak_tolerance = t;
     }

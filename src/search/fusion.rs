@@ -2,12 +2,13 @@
 
 use std::collections::BTreeMap;
 
-use serde::{Deserialize, Serialize};
+use serde::Serialize;
 
 use super::{
     Confidence, Constraints, Hit, LibraryStamp, Parameters, Request, UnknownStamp, is_confident,
     run_search,
 };
+use crate::config::IdentityPolicy;
 use crate::error::{Error, Result};
 use crate::library::Library;
 use crate::prepare::Solvent;
@@ -227,49 +228,6 @@ pub struct IdentifyReport {
 /// What a lab asks of the evidence before a fused result may be reported as meeting its
 /// identification criteria: the `[identity]` table of `whorl.toml`.
 ///
-/// A technique *supports* the fused list's first compound when its own hit list puts that
-/// compound first with a confident hit (not weak and not too close to another compound, by
-/// the technique's thresholds). It *speaks against* it when the library holds a reference of
-/// the compound for that technique and either another compound is confidently first, or the
-/// compound's own score is below the technique's weak-match threshold: the measured spectrum
-/// does not look like the reference. A technique without a reference of the compound is
-/// silent. The default asks for two supporting techniques and none against, following the
-/// common practice of confirming an identification by a second, independent technique. Labs
-/// set their own rule from their accredited procedures; whorl only reports whether it is met.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
-#[serde(default, deny_unknown_fields)]
-pub struct IdentityPolicy {
-    /// Techniques that must support the first compound.
-    pub min_techniques: usize,
-    /// Whether techniques that speak against the compound may be outvoted.
-    pub allow_contradiction: bool,
-}
-
-impl Default for IdentityPolicy {
-    fn default() -> IdentityPolicy {
-        IdentityPolicy {
-            min_techniques: 2,
-            allow_contradiction: false,
-        }
-    }
-}
-
-impl IdentityPolicy {
-    /// The rule in words, as recorded with every verdict.
-    pub fn rule(&self) -> String {
-        format!(
-            "at least {} technique{} must each rank the compound first with a confident hit{}",
-            self.min_techniques,
-            if self.min_techniques == 1 { "" } else { "s" },
-            if self.allow_contradiction {
-                ""
-            } else {
-                ", and no technique holding a reference of it may speak against it"
-            }
-        )
-    }
-}
-
 /// A technique whose evidence speaks against a compound, and why.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Objection {

@@ -5,11 +5,11 @@ mod fusion;
 mod retention;
 mod scan;
 
+pub use crate::config::{IdentityPolicy, Thresholds};
 pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow};
 pub use fusion::{
     DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, IdentifyOptions, IdentifyReport,
-    IdentityPolicy, PolicyVerdict, TechniqueEvidence, TechniqueRun, UnknownInput, fuse, identify,
-    judge,
+    PolicyVerdict, TechniqueEvidence, TechniqueRun, UnknownInput, fuse, identify, judge,
 };
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
 pub use scan::{Trace, rank, rank_traced};
@@ -52,18 +52,6 @@ pub struct Request {
     pub solvent: Option<Solvent>,
 }
 
-/// Overrides of the warning thresholds; `None` keeps the value derived for the technique and
-/// measure (see [`THRESHOLDS`]).
-#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize)]
-pub struct Thresholds {
-    /// Below this combined score the best hit is reported as a weak match.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub weak_score: Option<f64>,
-    /// Top hits of different compounds closer than this are reported as too close to call.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub close_margin: Option<f64>,
-}
-
 impl Request {
     /// A request with the technique's default parameters.
     pub fn new(technique: Technique) -> Request {
@@ -78,6 +66,18 @@ impl Request {
             thresholds: Thresholds::default(),
             solvent: None,
         }
+    }
+
+    /// Takes the score parameters and thresholds a library's `whorl.toml` sets for this
+    /// request's technique; `top` is left to the caller, which knows whether the user gave one.
+    pub fn apply_config(&mut self, config: &crate::config::Config) {
+        if let Some(w) = config.spectral_weight(self.technique) {
+            self.params.spectral_weight = w;
+        }
+        if let Some(t) = config.peak_tolerance(self.technique) {
+            self.params.peak_tolerance = t;
+        }
+        self.thresholds = config.thresholds;
     }
 }
 
