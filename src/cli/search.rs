@@ -424,7 +424,7 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
         w.write_record([
             h.rank.to_string(),
             format!("{:.6}", h.score),
-            measure_label(r.parameters.score.measure).to_string(),
+            r.parameters.score.measure.label().to_string(),
             format!("{:.6}", c.spectral),
             format!("{:.6}", c.cosine),
             opt(c.correlation),
@@ -446,20 +446,9 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// The short column label of a measure.
-pub fn measure_label(m: Measure) -> &'static str {
-    match m {
-        Measure::Cosine => "cosine",
-        Measure::Correlation => "corr",
-        Measure::Derivative => "deriv",
-        Measure::Composite => "composite",
-        Measure::ShiftMatch => "shift",
-    }
-}
-
 /// The ranking measure with the parameters that shape it, for the `ranking` line.
 fn measure_description(p: &ScoreParams, technique: Technique) -> String {
-    let mut s = measure_label(p.measure).to_string();
+    let mut s = p.measure.label().to_string();
     match p.measure {
         Measure::Derivative => s.push_str(&format!(
             " (Savitzky-Golay window {}, order {})",
@@ -572,8 +561,8 @@ pub fn print_report_styled(
     let mut t = output::Table::new(&[
         ">rank",
         ">score",
-        &format!(">{}", measure_label(p.measure)),
-        &format!(">{}", measure_label(second)),
+        &format!(">{}", p.measure.label()),
+        &format!(">{}", second.label()),
         ">peaks",
         ">fwd",
         ">rev",

@@ -11,7 +11,6 @@ use crate::error::{Error, Result};
 use crate::prepare::Prepared;
 use crate::score::Measure;
 use crate::search::{Hit, Report};
-use crate::technique::Technique;
 
 use super::plot;
 
@@ -34,7 +33,7 @@ pub fn search_page(query: &Query<'_>) -> Result<String> {
     let title = format!("Search of {}", file_name(&r.unknown.file));
     let lede = format!(
         "{} unknown searched against {} library spectra; {} hits listed, the first {} laid over the unknown.",
-        technique_title(r.unknown.technique),
+        r.unknown.technique.title(),
         r.candidates,
         r.hits.len(),
         query.references.len().min(r.hits.len())
@@ -60,7 +59,7 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
     let mut s = String::new();
     let heading = heading
         .map(str::to_string)
-        .unwrap_or_else(|| format!("{} search", technique_title(t)));
+        .unwrap_or_else(|| format!("{} search", t.title()));
     w(
         &mut s,
         format_args!("<section class=\"query\" id=\"{id}\">\n"),
@@ -104,10 +103,10 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
         format!(
             "{:.2} \u{D7} {} + {:.2} \u{D7} peak overlap (Jaccard); peaks match within {} {}",
             sp.spectral_weight,
-            measure_name(sp.measure),
+            sp.measure.title(),
             1.0 - sp.spectral_weight,
             sp.peak_tolerance,
-            x_unit(t)
+            t.x_unit_symbol()
         ),
     );
     let statuses: Vec<&str> = p.statuses.iter().map(|s| s.name()).collect();
@@ -136,7 +135,7 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
             "{}\u{2013}{} {} in steps of {}{}",
             g.start,
             g.stop,
-            x_unit(t),
+            t.x_unit_symbol(),
             g.step,
             if masks.is_empty() {
                 String::new()
@@ -285,15 +284,16 @@ pub fn escape(text: &str) -> String {
 fn hit_table(s: &mut String, r: &Report, plotted: usize) {
     let sp = &r.parameters.score;
     let other = if sp.measure == Measure::Cosine {
-        "correlation"
+        Measure::Correlation
     } else {
-        "cosine"
-    };
+        Measure::Cosine
+    }
+    .title();
     w(
         s,
         format_args!(
             "<table class=\"hits\">\n<thead><tr><th class=\"num\">rank</th><th class=\"num\">score</th><th class=\"num\">{}</th><th class=\"num\">{other}</th><th class=\"num\">peaks</th><th>compound</th><th>formula</th><th>CAS RN</th><th class=\"num\">spectrum</th><th>status</th><th>plot</th></tr></thead>\n<tbody>\n",
-            measure_name(sp.measure)
+            sp.measure.title()
         ),
     );
     let id = r.unknown.technique.name();
@@ -338,7 +338,7 @@ fn hit_summary(h: &Hit, measure: Measure) -> String {
     let o = &h.components.peak_overlap;
     let mut parts = vec![
         format!("score {:.3}", h.score),
-        format!("{} {:.3}", measure_name(measure), h.components.spectral),
+        format!("{} {:.3}", measure.title(), h.components.spectral),
         format!(
             "{} of {} reference peaks matched",
             o.matched, o.reference_peaks
@@ -350,34 +350,6 @@ fn hit_summary(h: &Hit, measure: Measure) -> String {
         parts.insert(0, escape(f));
     }
     parts.join(" \u{B7} ")
-}
-
-fn measure_name(m: Measure) -> &'static str {
-    match m {
-        Measure::Cosine => "cosine",
-        Measure::Correlation => "correlation",
-        Measure::Composite => "composite",
-        Measure::Derivative => "derivative correlation",
-        Measure::ShiftMatch => "shift match",
-    }
-}
-
-fn technique_title(t: Technique) -> &'static str {
-    match t {
-        Technique::Ir => "IR",
-        Technique::Raman => "Raman",
-        Technique::MsEi => "EI mass spectrum",
-        Technique::Nmr1h => "\u{B9}H NMR",
-        Technique::Nmr13c => "\u{B9}\u{B3}C NMR",
-    }
-}
-
-fn x_unit(t: Technique) -> &'static str {
-    match t {
-        Technique::Ir | Technique::Raman => "cm\u{207B}\u{B9}",
-        Technique::MsEi => "m/z",
-        Technique::Nmr1h | Technique::Nmr13c => "ppm",
-    }
 }
 
 fn code(text: &str) -> String {
@@ -516,7 +488,7 @@ pub fn identify_page(r: &crate::search::IdentifyReport, queries: &[Query<'_>]) -
     s.push_str("</tbody>\n</table>\n</section>\n");
     let mut sections = vec![s];
     for q in queries {
-        let heading = format!("{} unknown", technique_title(q.report.unknown.technique));
+        let heading = format!("{} unknown", q.report.unknown.technique.title());
         sections.push(query_section(q, Some(&heading))?);
     }
     Ok(page(
@@ -533,6 +505,7 @@ mod tests {
     use super::*;
     use crate::library::{Library, Metadata, Submission, read_and_prepare, stage};
     use crate::search::{Request, search_file};
+    use crate::technique::Technique;
 
     fn ir_file(dir: &std::path::Path, name: &str, bands: &[(f64, f64)]) -> std::path::PathBuf {
         let rows: String = (0..=1800)

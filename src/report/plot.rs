@@ -322,26 +322,6 @@ impl Axis {
     fn span(self) -> f64 {
         self.hi - self.lo
     }
-
-    fn x_title(self) -> &'static str {
-        match self.technique {
-            Technique::Ir => "wavenumber / cm\u{207B}\u{B9}",
-            Technique::Raman => "Raman shift / cm\u{207B}\u{B9}",
-            Technique::MsEi => "m/z",
-            Technique::Nmr1h | Technique::Nmr13c => "chemical shift \u{3B4} / ppm",
-        }
-    }
-
-    fn y_title(self, mirrored: bool) -> &'static str {
-        match self.technique {
-            Technique::MsEi if mirrored => "relative abundance / %  (reference below)",
-            Technique::MsEi => "relative abundance / %",
-            Technique::Ir => "absorbance, scaled to 1",
-            Technique::Raman => "intensity, scaled to 1",
-            Technique::Nmr1h => "area per bin, scaled to 1",
-            Technique::Nmr13c => "line intensity, scaled to 1",
-        }
-    }
 }
 
 type Chart<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
@@ -443,6 +423,11 @@ fn frame<'a, 'b>(area: &'a Area<'b>, axis: &Axis, y: (f64, f64)) -> DrawResult<C
         .y_label_area_size(72)
         .build_cartesian_2d(x0..x1, y.0..y.1)?;
     let mirrored = y.0 < 0.0;
+    let y_title = if mirrored {
+        format!("{}  (reference below)", axis.technique.y_axis_title())
+    } else {
+        axis.technique.y_axis_title().to_string()
+    };
     let descending = axis.descending;
     let x_fmt = move |v: &f64| tick(if descending { -v } else { *v });
     let y_fmt = move |v: &f64| {
@@ -463,8 +448,8 @@ fn frame<'a, 'b>(area: &'a Area<'b>, axis: &Axis, y: (f64, f64)) -> DrawResult<C
         .y_label_formatter(&y_fmt)
         .label_style((FONT, TICK_SIZE).into_font().color(&INK))
         .axis_desc_style((FONT, AXIS_SIZE).into_font().color(&INK))
-        .x_desc(axis.x_title())
-        .y_desc(axis.y_title(mirrored))
+        .x_desc(axis.technique.x_axis_title())
+        .y_desc(y_title)
         .draw()?;
     Ok(chart)
 }
