@@ -10,7 +10,8 @@ use whorl::search::{IdentifyOptions, IdentifyReport, UnknownInput, identify};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
-use super::search::{ConstraintArgs, constraint_summary};
+use super::hits::constraint_summary;
+use super::options::ConstraintArgs;
 use super::{Context, output};
 
 #[derive(Debug, Args)]
