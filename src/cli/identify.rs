@@ -136,7 +136,7 @@ fn write_html(
         request.constraints = options.constraints.clone();
         let (r, prepared) =
             whorl::search::search_file(lib, &u.file, u.x_unit, u.y_unit, u.solvent, &request)?;
-        let refs = whorl::report::references(lib, &r, plots)?;
+        let refs = whorl::search::references(lib, &r, plots)?;
         runs.push((r, prepared, refs));
     }
     let queries: Vec<whorl::report::Query<'_>> = runs

@@ -98,7 +98,7 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             .map_err(|e| whorl::Error::io(format!("writing {}", path.display()), e))?;
     }
     if let Some(path) = &args.html {
-        let references = whorl::report::references(&lib, &report, config.report.plots)?;
+        let references = whorl::search::references(&lib, &report, config.report.plots)?;
         let html = whorl::report::search_page(&whorl::report::Query {
             report: &report,
             unknown: &unknown,

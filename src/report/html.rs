@@ -503,62 +503,15 @@ pub fn identify_page(r: &crate::search::IdentifyReport, queries: &[Query<'_>]) -
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::library::{Library, Metadata, Submission, read_and_prepare, stage};
-    use crate::search::{Request, search_file};
-    use crate::technique::Technique;
+    use crate::report::fixtures::{FINGERPRINT, SHA256, ir, report};
 
-    fn ir_file(dir: &std::path::Path, name: &str, bands: &[(f64, f64)]) -> std::path::PathBuf {
-        let rows: String = (0..=1800)
-            .map(|i| {
-                let x = 4000.0 - 2.0 * f64::from(i);
-                let y: f64 = bands
-                    .iter()
-                    .map(|&(c, h)| h * (-((x - c) / 10.0f64).powi(2)).exp())
-                    .sum();
-                format!("{x},{}\n", y + 0.01)
-            })
-            .collect();
-        let path = dir.join(name);
-        std::fs::write(&path, format!("wavenumber,absorbance\n{rows}")).unwrap();
-        path
-    }
-
-    fn library_with(names: &[(&str, &[(f64, f64)])]) -> (tempfile::TempDir, Library) {
-        let dir = tempfile::tempdir().unwrap();
-        let mut lib = Library::in_memory("a.analyst").unwrap();
-        for (i, (name, bands)) in names.iter().enumerate() {
-            let path = ir_file(dir.path(), &format!("r{i}.csv"), bands);
-            let staged = stage(
-                lib.recipes(),
-                Submission {
-                    path,
-                    technique: Technique::Ir,
-                    metadata: Metadata {
-                        name: (*name).into(),
-                        ..Metadata::default()
-                    },
-                    x_unit: None,
-                    y_unit: None,
-                    submitted_by: "a.analyst".into(),
-                },
-            )
-            .unwrap();
-            lib.store(&[staged], "a.analyst", false).unwrap();
-        }
-        (dir, lib)
-    }
-
-    fn render(lib: &Library, unknown: &std::path::Path, filter: Option<&str>) -> String {
-        let mut request = Request::new(Technique::Ir);
-        request.filter = filter.map(str::to_string);
-        // The test library's spectra are not reviewed.
-        request.statuses.push(crate::library::Status::Pending);
-        let (report, prepared) = search_file(lib, unknown, None, None, None, &request).unwrap();
-        let refs = super::super::references(lib, &report, 5).unwrap();
+    fn render(file: &str, refs: &[(&str, &Prepared)], filter: Option<&str>) -> String {
+        let unknown = ir(&[(1715.0, 0.9), (2950.0, 0.3)]);
+        let (report, references) = report(file, &unknown, refs, filter);
         search_page(&Query {
             report: &report,
-            unknown: &prepared,
-            references: &refs,
+            unknown: &unknown,
+            references: &references,
         })
         .unwrap()
     }
@@ -566,36 +519,36 @@ mod tests {
     #[test]
     fn metadata_never_becomes_markup() {
         let evil = "<script>alert(1)</script>";
-        let (dir, lib) = library_with(&[
-            (evil, &[(1715.0, 1.0)]),
-            ("\" onload=\"alert(2)", &[(1600.0, 1.0)]),
-        ]);
-        let unknown = ir_file(dir.path(), "<img src=x>.csv", &[(1715.0, 0.9)]);
-        let html = render(&lib, &unknown, None);
+        let (a, b) = (ir(&[(1715.0, 1.0)]), ir(&[(1600.0, 1.0)]));
+        let refs = [(evil, &a), ("\" onload=\"alert(2)", &b)];
+        let html = render("/data/<img src=x>.csv", &refs, None);
         assert!(!html.contains("<script"), "a script element got through");
         assert!(!html.contains("<img"), "an img element got through");
         assert!(!html.contains("\" onload=\""), "an attribute got through");
         assert!(html.contains("&lt;script&gt;alert(1)&lt;/script&gt;"));
+        assert!(html.contains("&lt;img src=x&gt;.csv"));
         // And a query string with markup in it.
-        let html = render(&lib, &unknown, Some("name:script OR \"<b>\""));
+        let html = render("u.csv", &refs, Some("name:script OR \"<b>\""));
+        assert!(html.contains("&lt;b&gt;"), "the query is shown");
         assert!(!html.contains("<b>"));
     }
 
     #[test]
     fn a_page_holds_facts_hits_overlays_and_the_caution() {
-        let (dir, lib) = library_with(&[
-            ("ketone", &[(1715.0, 1.0), (2950.0, 0.4)]),
-            ("ester", &[(1740.0, 1.0), (1240.0, 0.7)]),
-        ]);
-        let unknown = ir_file(dir.path(), "u.csv", &[(1715.0, 0.9), (2950.0, 0.3)]);
-        let html = render(&lib, &unknown, None);
-        let recipe = lib.recipe(Technique::Ir).unwrap().clone();
-        let (raw, _) = read_and_prepare(&unknown, &recipe, None, None, None).unwrap();
-        assert!(html.contains(&raw.file_sha256));
-        assert!(html.contains(&lib.fingerprint().unwrap()));
+        let ketone = ir(&[(1715.0, 1.0), (2950.0, 0.4)]);
+        let ester = ir(&[(1740.0, 1.0), (1240.0, 0.7)]);
+        let html = render("u.csv", &[("ester", &ester), ("ketone", &ketone)], None);
+        assert!(html.contains(SHA256));
+        assert!(html.contains(FINGERPRINT));
         assert!(html.contains(env!("CARGO_PKG_VERSION")));
         assert_eq!(html.matches("<svg").count(), 2, "one overlay per hit");
         assert!(html.contains("id=\"ir-hit-1\"") && html.contains("href=\"#ir-hit-2\""));
+        // The ketone matches the unknown's bands and is listed and plotted first.
+        let (first, second) = (
+            html.find(">ketone<").unwrap(),
+            html.find(">ester<").unwrap(),
+        );
+        assert!(first < second, "hit 1 is the ketone");
         assert_eq!(html.matches(&escape(crate::CAUTION)).count(), 2);
         assert!(html.contains("<tr class=\"first\"><td class=\"num\">1</td>"));
         // Nothing is fetched: no external references at all.

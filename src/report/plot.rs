@@ -682,44 +682,8 @@ fn shorten(s: &str, most: usize) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::prepare::{Peak, Recipe, prepare};
-
-    fn ir(bands: &[(f64, f64)]) -> Prepared {
-        let recipe = Recipe::default_for(Technique::Ir);
-        let pts: Vec<(f64, f64)> = (0..=1800)
-            .map(|i| {
-                let x = 400.0 + 2.0 * f64::from(i);
-                let y = bands
-                    .iter()
-                    .map(|&(c, h)| h * (-((x - c) / 10.0).powi(2)).exp())
-                    .sum::<f64>();
-                (x, 0.01 + y)
-            })
-            .collect();
-        let cond = crate::prepare::Conditions {
-            y_unit: Some(crate::spectrum::YUnit::Absorbance),
-            solvent: None,
-        };
-        prepare(std::path::Path::new("t"), &recipe, &pts, &cond).unwrap()
-    }
-
-    fn ions(list: &[(f64, f64)]) -> Prepared {
-        Prepared {
-            technique: Technique::MsEi,
-            vector: vec![],
-            peaks: list
-                .iter()
-                .map(|&(x, height)| Peak {
-                    x,
-                    height,
-                    width: 0.0,
-                    area: 0.0,
-                })
-                .collect(),
-            y_unit: crate::spectrum::YUnit::Relative,
-            warnings: vec![],
-        }
-    }
+    use crate::prepare::{Recipe, prepare};
+    use crate::report::fixtures::{ions, ir};
 
     /// (x, y, text) of every `<text>` element.
     fn texts(svg: &str) -> Vec<(f64, f64, String)> {

@@ -12,8 +12,10 @@ pub use fusion::{
 };
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
 
+mod references;
 mod replay;
 
+pub use references::references;
 pub use replay::{Replay, load_saved, replay};
 
 use std::collections::HashSet;
