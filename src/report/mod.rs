@@ -12,4 +12,4 @@ pub mod html;
 pub mod plot;
 
 pub use html::{Query, escape, identify_page, page, query_section, search_page};
-pub use plot::{Trace, overlay, spectra};
+pub use plot::{Series, overlay, spectra};

@@ -68,9 +68,10 @@ const SERIES: [RGBColor; 7] = [
 /// Dash length and gap in pixels of the spectra of a multi-spectrum plot; the first is solid.
 const DASHES: [Option<(u32, u32)>; 4] = [None, Some((9, 5)), Some((3, 4)), Some((16, 5))];
 
-/// One spectrum of a multi-spectrum plot.
+/// One spectrum of a multi-spectrum plot and the legend text it goes by: a line, or sticks
+/// for EI-MS.
 #[derive(Debug, Clone)]
-pub struct Trace<'a> {
+pub struct Series<'a> {
     /// What the legend calls it.
     pub label: String,
     /// The spectrum as prepared with the library's recipe.
@@ -143,15 +144,15 @@ pub fn overlay(
 
 /// Several spectra of one technique on one axis, for `whorl plot`. Two EI-MS spectra are
 /// mirrored like an overlay; more are drawn side by side around each nominal mass.
-pub fn spectra(grid: &Grid, traces: &[Trace<'_>]) -> Result<String> {
-    let Some(first) = traces.first() else {
+pub fn spectra(grid: &Grid, series: &[Series<'_>]) -> Result<String> {
+    let Some(first) = series.first() else {
         return Err(Error::invalid(
             "nothing to plot",
             "name at least one library id or spectrum file",
         ));
     };
     let technique = first.prepared.technique;
-    if let Some(t) = traces.iter().find(|t| t.prepared.technique != technique) {
+    if let Some(t) = series.iter().find(|t| t.prepared.technique != technique) {
         return Err(Error::invalid(
             format!(
                 "'{}' is a {} spectrum, '{}' is {}: one plot holds one technique",
@@ -160,11 +161,11 @@ pub fn spectra(grid: &Grid, traces: &[Trace<'_>]) -> Result<String> {
             "plot each technique separately",
         ));
     }
-    if technique == Technique::MsEi && traces.len() == 2 {
+    if technique == Technique::MsEi && series.len() == 2 {
         return mirror(
             [
-                (&traces[0].label, traces[0].prepared),
-                (&traces[1].label, traces[1].prepared),
+                (&series[0].label, series[0].prepared),
+                (&series[1].label, series[1].prepared),
             ],
             [
                 Swatch::Stick(SERIES[0]),
@@ -175,7 +176,7 @@ pub fn spectra(grid: &Grid, traces: &[Trace<'_>]) -> Result<String> {
         );
     }
     let style = |i: usize| (SERIES[i % SERIES.len()], DASHES[i % DASHES.len()]);
-    let legend: Vec<(Swatch, String)> = traces
+    let legend: Vec<(Swatch, String)> = series
         .iter()
         .enumerate()
         .map(|(i, t)| {
@@ -189,13 +190,13 @@ pub fn spectra(grid: &Grid, traces: &[Trace<'_>]) -> Result<String> {
         })
         .collect();
     if technique == Technique::MsEi {
-        let all: Vec<&Prepared> = traces.iter().map(|t| t.prepared).collect();
+        let all: Vec<&Prepared> = series.iter().map(|t| t.prepared).collect();
         let axis = Axis::for_ions(&all);
-        let n = traces.len() as f64;
+        let n = series.len() as f64;
         return render(&legend, |area| {
             let mut chart = frame(area, &axis, (0.0, 1.18))?;
             let mut cands = Vec::new();
-            for (i, t) in traces.iter().enumerate() {
+            for (i, t) in series.iter().enumerate() {
                 let (c, _) = style(i);
                 let dx = (i as f64 - (n - 1.0) / 2.0) * 0.6 / n.max(1.0);
                 chart.draw_series(t.prepared.peaks.iter().map(|p| {
@@ -220,14 +221,14 @@ pub fn spectra(grid: &Grid, traces: &[Trace<'_>]) -> Result<String> {
             Ok(())
         });
     }
-    let curves: Vec<Vec<(f64, f64)>> = traces.iter().map(|t| curve(grid, t.prepared)).collect();
+    let curves: Vec<Vec<(f64, f64)>> = series.iter().map(|t| curve(grid, t.prepared)).collect();
     let refs: Vec<&Vec<(f64, f64)>> = curves.iter().collect();
     let axis = Axis::for_curves(technique, grid, &refs);
     render(&legend, |area| {
         let mut chart = frame(area, &axis, (0.0, 1.18))?;
         masks(&mut chart, &axis, grid)?;
         let mut cands = Vec::new();
-        for (i, (t, c)) in traces.iter().zip(&curves).enumerate() {
+        for (i, (t, c)) in series.iter().zip(&curves).enumerate() {
             let (colour, dash) = style(i);
             let pts: Vec<(f64, f64)> = c
                 .iter()
@@ -811,7 +812,7 @@ mod tests {
         let u = ions(&[(43.0, 1.0)]);
         let svg = spectra(
             &Technique::MsEi.default_grid(),
-            &[Trace {
+            &[Series {
                 label: "<script>alert(1)</script>".into(),
                 prepared: &u,
             }],
@@ -828,11 +829,11 @@ mod tests {
         let err = spectra(
             &Technique::Ir.default_grid(),
             &[
-                Trace {
+                Series {
                     label: "a".into(),
                     prepared: &a,
                 },
-                Trace {
+                Series {
                     label: "b".into(),
                     prepared: &b,
                 },
