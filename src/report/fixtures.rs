@@ -133,3 +133,20 @@ pub fn report(
     };
     (report, refs)
 }
+
+/// (x, y, text) of every `<text>` element of an SVG.
+pub fn svg_texts(svg: &str) -> Vec<(f64, f64, String)> {
+    svg.split("<text ")
+        .skip(1)
+        .map(|t| {
+            let head = format!(" {}", &t[..t.find('>').unwrap()]);
+            let attr = |name: &str| -> f64 {
+                let key = format!(" {name}=\"");
+                let rest = &head[head.find(&key).unwrap() + key.len()..];
+                rest[..rest.find('"').unwrap()].parse().unwrap()
+            };
+            let body = &t[t.find('>').unwrap() + 1..t.find("</text>").unwrap()];
+            (attr("x"), attr("y"), body.trim().to_string())
+        })
+        .collect()
+}
