@@ -134,6 +134,23 @@ pub fn report(
     (report, refs)
 }
 
+/// The search page of an unknown with two IR bands, searched among the named references as
+/// [`report`] searches.
+pub fn search_page_for(
+    file: &str,
+    references: &[(&str, &Prepared)],
+    filter: Option<&str>,
+) -> String {
+    let unknown = ir(&[(1715.0, 0.9), (2950.0, 0.3)]);
+    let (report, references) = report(file, &unknown, references, filter);
+    crate::report::search_page(&crate::report::Query {
+        report: &report,
+        unknown: &unknown,
+        references: &references,
+    })
+    .unwrap()
+}
+
 /// (x, y, text) of every `<text>` element of an SVG.
 pub fn svg_texts(svg: &str) -> Vec<(f64, f64, String)> {
     svg.split("<text ")
