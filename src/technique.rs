@@ -58,6 +58,48 @@ impl Technique {
         }
     }
 
+    /// The technique's name as reports write it in titles and headings, e.g. `¹H NMR`.
+    pub fn title(self) -> &'static str {
+        match self {
+            Technique::Ir => "IR",
+            Technique::Raman => "Raman",
+            Technique::MsEi => "EI mass spectrum",
+            Technique::Nmr1h => "\u{B9}H NMR",
+            Technique::Nmr13c => "\u{B9}\u{B3}C NMR",
+        }
+    }
+
+    /// The unit of x as reports typeset it: `cm⁻¹`, `m/z` or `ppm` ([`Technique::x_label`]
+    /// writes `cm-1` for terminals).
+    pub fn x_unit_symbol(self) -> &'static str {
+        match self {
+            Technique::Ir | Technique::Raman => "cm\u{207B}\u{B9}",
+            Technique::MsEi => "m/z",
+            Technique::Nmr1h | Technique::Nmr13c => "ppm",
+        }
+    }
+
+    /// The title of a plot's x axis, typeset: the quantity and its unit.
+    pub fn x_axis_title(self) -> &'static str {
+        match self {
+            Technique::Ir => "wavenumber / cm\u{207B}\u{B9}",
+            Technique::Raman => "Raman shift / cm\u{207B}\u{B9}",
+            Technique::MsEi => "m/z",
+            Technique::Nmr1h | Technique::Nmr13c => "chemical shift \u{3B4} / ppm",
+        }
+    }
+
+    /// The title of a plot's y axis for prepared spectra, each drawn scaled to its maximum.
+    pub fn y_axis_title(self) -> &'static str {
+        match self {
+            Technique::MsEi => "relative abundance / %",
+            Technique::Ir => "absorbance, scaled to 1",
+            Technique::Raman => "intensity, scaled to 1",
+            Technique::Nmr1h => "area per bin, scaled to 1",
+            Technique::Nmr13c => "line intensity, scaled to 1",
+        }
+    }
+
     /// The range of x values that can belong to this technique at all; values outside it
     /// mean a wrong file, a wrong unit or a wrong technique.
     pub fn plausible_x(self) -> (f64, f64) {
@@ -250,6 +292,31 @@ mod tests {
         }
         let err = "uv".parse::<Technique>().unwrap_err();
         assert!(err.hint().unwrap().contains("ms-ei"));
+    }
+
+    #[test]
+    fn labels_are_distinct_and_name_the_unit() {
+        // The x unit of each technique (common practice): wavenumber and Raman shift in cm-1,
+        // mass-to-charge ratio as m/z, chemical shift in ppm.
+        let units = |t: Technique| match t {
+            Technique::Ir | Technique::Raman => ("cm-1", "cm\u{207B}\u{B9}"),
+            Technique::MsEi => ("m/z", "m/z"),
+            Technique::Nmr1h | Technique::Nmr13c => ("ppm", "ppm"),
+        };
+        for t in Technique::ALL {
+            let (plain, typeset) = units(t);
+            assert!(t.x_label().contains(plain), "{t}: {}", t.x_label());
+            assert!(
+                t.x_axis_title().contains(typeset),
+                "{t}: {}",
+                t.x_axis_title()
+            );
+            assert_eq!(t.x_unit_symbol(), typeset, "{t}");
+            for u in Technique::ALL.into_iter().filter(|&u| u != t) {
+                assert_ne!(t.title(), u.title());
+                assert_ne!(t.y_axis_title(), u.y_axis_title());
+            }
+        }
     }
 
     #[test]

@@ -10,7 +10,8 @@ use clap::Args;
 use whorl::library::{Decision, Library, resolve_within};
 use whorl::search::{Request, run_search};
 
-use super::{Context, EXIT_FAILURE, search::print_report};
+use super::hits::print_report;
+use super::{Context, EXIT_FAILURE};
 
 #[derive(Debug, Args)]
 pub struct DemoArgs {

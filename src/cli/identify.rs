@@ -10,7 +10,8 @@ use whorl::search::{IdentifyOptions, IdentifyReport, UnknownInput, identify};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
-use super::search::{ConstraintArgs, constraint_summary};
+use super::hits::constraint_summary;
+use super::options::ConstraintArgs;
 use super::{Context, output};
 
 #[derive(Debug, Args)]
@@ -135,7 +136,7 @@ fn write_html(
         request.constraints = options.constraints.clone();
         let (r, prepared) =
             whorl::search::search_file(lib, &u.file, u.x_unit, u.y_unit, u.solvent, &request)?;
-        let refs = whorl::report::references(lib, &r, plots)?;
+        let refs = whorl::search::references(lib, &r, plots)?;
         runs.push((r, prepared, refs));
     }
     let queries: Vec<whorl::report::Query<'_>> = runs

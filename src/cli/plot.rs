@@ -10,7 +10,7 @@ use serde::Serialize;
 use whorl::Error;
 use whorl::library::read_and_prepare;
 use whorl::prepare::{Prepared, Solvent};
-use whorl::report::{Trace, spectra};
+use whorl::report::{Series, spectra};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
@@ -137,15 +137,15 @@ pub fn run(args: PlotArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             }
         }
     }
-    let traces: Vec<Trace<'_>> = plotted
+    let series: Vec<Series<'_>> = plotted
         .iter()
         .zip(&prepared)
-        .map(|(p, prep)| Trace {
+        .map(|(p, prep)| Series {
             label: p.label.clone(),
             prepared: prep,
         })
         .collect();
-    let svg = spectra(&recipe.grid, &traces)?;
+    let svg = spectra(&recipe.grid, &series)?;
     let to_stdout = args.svg.as_os_str() == "-";
     if to_stdout {
         std::io::stdout().lock().write_all(svg.as_bytes())?;

@@ -68,6 +68,28 @@ impl Measure {
         }
     }
 
+    /// The short label of a hit-list column and of the CSV `measure` field, e.g. `corr`.
+    pub fn label(self) -> &'static str {
+        match self {
+            Measure::Cosine => "cosine",
+            Measure::Correlation => "corr",
+            Measure::Derivative => "deriv",
+            Measure::Composite => "composite",
+            Measure::ShiftMatch => "shift",
+        }
+    }
+
+    /// The measure's name as reports write it in prose, e.g. `derivative correlation`.
+    pub fn title(self) -> &'static str {
+        match self {
+            Measure::Cosine => "cosine",
+            Measure::Correlation => "correlation",
+            Measure::Composite => "composite",
+            Measure::Derivative => "derivative correlation",
+            Measure::ShiftMatch => "shift match",
+        }
+    }
+
     /// Whether this measure can rank spectra of `technique`.
     pub fn applies_to(self, technique: Technique) -> bool {
         match self {
@@ -437,6 +459,18 @@ mod tests {
             stop: (n - 1) as f64,
             step: 1.0,
             masks: vec![],
+        }
+    }
+
+    #[test]
+    fn measure_labels_are_distinct_and_abbreviate_the_title() {
+        for a in Measure::ALL {
+            // The short column label is the start of the prose title ("corr", "correlation").
+            assert!(a.title().starts_with(a.label()), "{a:?}");
+            for b in Measure::ALL.into_iter().filter(|&b| b != a) {
+                assert_ne!(a.label(), b.label());
+                assert_ne!(a.title(), b.title());
+            }
         }
     }
 

@@ -14,8 +14,10 @@ pub use fusion::{
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
 pub use scan::{Trace, rank, rank_traced};
 
+mod references;
 mod replay;
 
+pub use references::references;
 pub use replay::{Replay, load_saved, replay};
 
 use std::collections::HashSet;

@@ -1,0 +1,290 @@
+//! The hit list of one search, for people (a table with its facts and warnings) and as CSV.
+//! `search` and `demo` print hit lists through it; `identify` shares its constraint summary.
+
+use std::io::Write;
+
+use whorl::score::{Measure, ScoreParams};
+use whorl::search::{Constraints, Report};
+use whorl::technique::Technique;
+
+use super::output;
+
+/// A CSV field, quoted when it holds a comma, a quote or a line break.
+pub(super) fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+/// The hit list as CSV: one row per hit, every score component in its own column.
+pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
+    let mut w = csv::Writer::from_writer(out);
+    w.write_record([
+        "rank",
+        "score",
+        "measure",
+        "spectral",
+        "cosine",
+        "correlation",
+        "composite",
+        "peaks_matched",
+        "unknown_peaks",
+        "reference_peaks",
+        "peak_jaccard",
+        "name",
+        "formula",
+        "cas",
+        "spectrum_id",
+        "compound_id",
+        "technique",
+        "status",
+    ])?;
+    let opt = |v: Option<f64>| v.map(|v| format!("{v:.6}")).unwrap_or_default();
+    for h in &r.hits {
+        let c = &h.components;
+        let o = &c.peak_overlap;
+        w.write_record([
+            h.rank.to_string(),
+            format!("{:.6}", h.score),
+            r.parameters.score.measure.label().to_string(),
+            format!("{:.6}", c.spectral),
+            format!("{:.6}", c.cosine),
+            opt(c.correlation),
+            opt(c.composite.as_ref().map(|x| x.composite)),
+            o.matched.to_string(),
+            o.unknown_peaks.to_string(),
+            o.reference_peaks.to_string(),
+            format!("{:.6}", o.jaccard),
+            h.name.clone(),
+            h.formula.clone().unwrap_or_default(),
+            h.cas.clone().unwrap_or_default(),
+            h.spectrum_id.to_string(),
+            h.compound_id.to_string(),
+            h.technique.to_string(),
+            h.status.to_string(),
+        ])?;
+    }
+    w.flush()?;
+    Ok(())
+}
+
+/// The ranking measure with the parameters that shape it, for the `ranking` line.
+fn measure_description(p: &ScoreParams, technique: Technique) -> String {
+    let mut s = p.measure.label().to_string();
+    match p.measure {
+        Measure::Derivative => s.push_str(&format!(
+            " (Savitzky-Golay window {}, order {})",
+            p.derivative.window, p.derivative.order
+        )),
+        Measure::Composite => {
+            let c = &p.composite;
+            s.push_str(&format!(
+                " (weights intensity^{} x (m/z)^{}{}",
+                c.intensity_exponent,
+                c.mass_exponent,
+                if c.reverse {
+                    ", reverse search"
+                } else {
+                    ", forward search"
+                }
+            ));
+            if let Some(m) = p.min_mz {
+                s.push_str(&format!(", m/z >= {m}"));
+            }
+            s.push(')');
+        }
+        Measure::ShiftMatch if p.referencing_correction || p.weak_line_discount => {
+            let on: Vec<&str> = [
+                (p.referencing_correction, "referencing correction"),
+                (p.weak_line_discount, "weak-line discount"),
+            ]
+            .iter()
+            .filter(|(yes, _)| *yes)
+            .map(|(_, what)| *what)
+            .collect();
+            s.push_str(&format!(" ({})", on.join(", ")));
+        }
+        _ => {}
+    }
+    if technique == Technique::MsEi
+        && p.measure != Measure::Composite
+        && let Some(m) = p.min_mz
+    {
+        s.push_str(&format!(" (m/z >= {m})"));
+    }
+    s
+}
+
+/// The whole-spectrum measure shown beside the ranking one.
+fn second_measure(m: Measure, technique: Technique) -> Measure {
+    match m {
+        Measure::Cosine if technique.is_nmr() && technique != Technique::Nmr13c => {
+            Measure::Correlation
+        }
+        Measure::Cosine if technique == Technique::Nmr13c => Measure::ShiftMatch,
+        Measure::Cosine if technique == Technique::MsEi => Measure::Composite,
+        Measure::Cosine => Measure::Correlation,
+        Measure::Derivative => Measure::Correlation,
+        _ => Measure::Cosine,
+    }
+}
+
+/// Prints a hit list for people; shared with `demo`.
+pub fn print_report(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
+    print_report_styled(out, r, output::Paint::OFF)
+}
+
+/// [`print_report`] with colour: the first hit in bold, warnings in yellow.
+pub fn print_report_styled(
+    out: &mut impl Write,
+    r: &Report,
+    paint: output::Paint,
+) -> anyhow::Result<()> {
+    let p = &r.parameters.score;
+    let technique = r.unknown.technique;
+    let solvent = r
+        .unknown
+        .solvent
+        .as_deref()
+        .map(|s| format!(", in {s}"))
+        .unwrap_or_default();
+    writeln!(
+        out,
+        "unknown   {}  ({technique}{solvent}, sha256 {})",
+        r.unknown.file,
+        output::short(&r.unknown.sha256)
+    )?;
+    writeln!(
+        out,
+        "library   {}  (fingerprint {})",
+        r.library.path,
+        output::short(&r.library.fingerprint)
+    )?;
+    let filter = r
+        .parameters
+        .filter
+        .as_deref()
+        .map(|q| format!(", where {q}"))
+        .unwrap_or_default();
+    writeln!(
+        out,
+        "ranking   {:.2} x {} + {:.2} x peak overlap (tolerance {}); {} spectra compared{filter}",
+        p.spectral_weight,
+        measure_description(p, technique),
+        1.0 - p.spectral_weight,
+        p.peak_tolerance,
+        r.candidates
+    )?;
+    if let Some(c) = constraint_summary(&r.parameters.constraints) {
+        writeln!(out, "limits    {c}; {} ruled out", r.excluded_count)?;
+    }
+    writeln!(out)?;
+    let second = second_measure(p.measure, technique);
+    let mut t = output::Table::new(&[
+        ">rank",
+        ">score",
+        &format!(">{}", p.measure.label()),
+        &format!(">{}", second.label()),
+        ">peaks",
+        ">fwd",
+        ">rev",
+        ">jacc",
+        "compound",
+        "formula",
+        ">id",
+        "status",
+    ]);
+    for h in &r.hits {
+        let o = &h.components.peak_overlap;
+        let c = &h.components;
+        let other = c
+            .value(second)
+            .map_or_else(|| "-".to_string(), |v| format!("{v:.3}"));
+        t.row(vec![
+            h.rank.to_string(),
+            format!("{:.3}", h.score),
+            format!("{:.3}", c.spectral),
+            other,
+            format!("{}/{}", o.matched, o.reference_peaks),
+            format!("{:.2}", o.forward),
+            format!("{:.2}", o.reverse),
+            format!("{:.2}", o.jaccard),
+            h.name.clone(),
+            h.formula.clone().unwrap_or_default(),
+            h.spectrum_id.to_string(),
+            h.status.to_string(),
+        ]);
+    }
+    t.write_styled(out, paint, Some(0))?;
+    writeln!(out)?;
+    for h in &r.hits {
+        for n in &h.notes {
+            writeln!(out, "note      hit {} ({}): {n}", h.rank, h.name)?;
+        }
+    }
+    if r.parameters.explain && r.excluded.is_empty() && r.excluded_count > 0 {
+        writeln!(
+            out,
+            "ruled out: {} candidate(s), none scoring above the last hit listed",
+            r.excluded_count
+        )?;
+        writeln!(out)?;
+    }
+    if !r.excluded.is_empty() {
+        writeln!(out, "ruled out (scored above the last hit):")?;
+        let mut t = output::Table::new(&[">score", "compound", "formula", ">id", "reason"]);
+        for e in &r.excluded {
+            t.row(vec![
+                format!("{:.3}", e.score),
+                e.name.clone(),
+                e.formula.clone().unwrap_or_default(),
+                e.spectrum_id.to_string(),
+                e.reason.clone(),
+            ]);
+        }
+        t.write(out)?;
+        writeln!(out)?;
+    }
+    if let Some(m) = r.margin {
+        writeln!(
+            out,
+            "margin    {m:.3} between hits 1 and 2   (peaks = matched / reference peaks; fwd = matched / unknown peaks, rev = matched / reference peaks, jacc = Jaccard)"
+        )?;
+    }
+    for w in &r.warnings {
+        writeln!(out, "{}   {w}", paint.warn("warning"))?;
+    }
+    writeln!(out, "caution   {}", r.caution)?;
+    Ok(())
+}
+
+/// The constraints in one line, or `None` when there are none.
+pub fn constraint_summary(c: &Constraints) -> Option<String> {
+    let mut parts = Vec::new();
+    if let Some(f) = &c.formula {
+        parts.push(format!("formula {f}"));
+    }
+    if let Some(m) = c.mass {
+        parts.push(format!("nominal mass {m}"));
+    }
+    if let Some(i) = c.ihd {
+        parts.push(format!("IHD {i}"));
+    }
+    if let Some(e) = &c.elements {
+        parts.push(format!(
+            "elements {}",
+            e.iter().cloned().collect::<Vec<_>>().join(",")
+        ));
+    }
+    if let Some(ri) = &c.ri {
+        let phase = ri
+            .phase
+            .as_deref()
+            .map(|p| format!(" on {p}"))
+            .unwrap_or_default();
+        parts.push(format!("RI {:.0} +- {}{phase}", ri.value, ri.window));
+    }
+    (!parts.is_empty()).then(|| parts.join(", "))
+}
