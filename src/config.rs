@@ -136,6 +136,9 @@ pub struct Thresholds {
     pub close_margin: Option<f64>,
 }
 
+/// What a lab asks of the evidence before a fused result may be reported as meeting its
+/// identification criteria: the `[identity]` table of `whorl.toml`.
+///
 /// A technique *supports* the fused list's first compound when its own hit list puts that
 /// compound first with a confident hit (not weak and not too close to another compound, by
 /// the technique's thresholds). It *speaks against* it when the library holds a reference of

@@ -282,3 +282,244 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
     }
     Ok(c)
 }
+
+#[cfg(test)]
+mod tests {
+    //! Cache files as a reader meets them: whole, cut short, shifted, or edited. A file that
+    //! does not parse is an error (the library then rebuilds it), never a cache that reads
+    //! past its sections.
+
+    use super::*;
+    use crate::cache::{Builder, VectorRow};
+    use crate::prepare::Peak;
+    use crate::technique::Grid;
+
+    fn peak(x: f64, height: f64) -> Peak {
+        Peak {
+            x,
+            height,
+            width: 1.0,
+            area: 0.0,
+        }
+    }
+
+    fn snapshot() -> Snapshot {
+        Snapshot {
+            fingerprint: "f".repeat(64),
+            generation: 7,
+        }
+    }
+
+    /// A small IR cache file of three rows and an EI-MS one of three peak lists, in `dir`.
+    fn build(dir: &Path, kind: Kind) -> (PathBuf, Technique) {
+        let (technique, grid) = match kind {
+            Kind::Sparse => (Technique::MsEi, Technique::MsEi.default_grid()),
+            _ => (
+                Technique::Ir,
+                Grid {
+                    start: 3800.0,
+                    stop: 4000.0,
+                    step: 2.0,
+                    masks: vec![],
+                },
+            ),
+        };
+        let rows: Vec<VectorRow> = (0..3)
+            .map(|i| VectorRow {
+                spectrum_id: 10 + i,
+                status: if i == 1 {
+                    crate::spectrum::Status::Verified
+                } else {
+                    crate::spectrum::Status::Pending
+                },
+                vector: (0..grid.len())
+                    .map(|k| ((k as f32 + i as f32) * 0.1).sin().abs())
+                    .collect(),
+                peaks: vec![peak(41.0 + i as f64, 100.0), peak(58.0, 20.0 + i as f64)],
+            })
+            .collect();
+        let nnz = rows.iter().map(|r| r.peaks.len()).sum();
+        let sample: Vec<Vec<f32>> = rows.iter().map(|r| r.vector.clone()).collect();
+        let params = CompositeParams::default();
+        let mut b = Builder::new(
+            technique,
+            kind,
+            &grid,
+            &params,
+            (3, nnz),
+            &sample,
+            Some(dir),
+        )
+        .unwrap();
+        for r in rows {
+            b.push(r).unwrap();
+        }
+        let c = b.finish(&snapshot()).unwrap();
+        (c.path.clone().unwrap(), technique)
+    }
+
+    fn reason(path: &Path, technique: Technique, kind: Kind) -> String {
+        match VectorCache::open(path, technique, kind) {
+            Ok(_) => "opened".into(),
+            Err(Error::Library { reason, .. }) => reason,
+            Err(e) => format!("other error: {e}"),
+        }
+    }
+
+    #[test]
+    fn a_built_file_opens_with_what_was_pushed() {
+        let dir = tempfile::tempdir().unwrap();
+        for kind in [Kind::Centred, Kind::Sparse] {
+            let (path, technique) = build(dir.path(), kind);
+            let c = VectorCache::open(&path, technique, kind).unwrap();
+            assert_eq!(c.ids(), &[10, 11, 12]);
+            assert_eq!(c.status(), &[0, 1, 0]);
+            assert_eq!(c.built_from, snapshot());
+            assert_eq!(c.peak_range(2), 4..6);
+            assert_eq!(c.peak_x()[4], 43.0);
+            assert!(c.is_current(&snapshot()));
+            if kind == Kind::Sparse {
+                // m/z 58 is in every row: its postings list them in order.
+                assert_eq!(c.postings(58).0, &[0, 1, 2]);
+                assert!(c.integer_x);
+            } else {
+                // Each dense row is L2-normalised (Pearson r of a row with itself is 1).
+                let s = c.stride();
+                let norm: f32 = c.f32_matrix()[..s].iter().map(|a| a * a).sum();
+                assert!((norm - 1.0).abs() < 1e-5, "{norm}");
+            }
+        }
+    }
+
+    #[test]
+    fn a_truncated_or_extended_file_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        for kind in [Kind::Centred, Kind::Sparse] {
+            let (path, technique) = build(dir.path(), kind);
+            let bytes = std::fs::read(&path).unwrap();
+            for len in [0, 8, HEADER - 1, HEADER, bytes.len() / 2, bytes.len() - 1] {
+                std::fs::write(&path, &bytes[..len]).unwrap();
+                let why = reason(&path, technique, kind);
+                assert!(
+                    why == "not a whorl vector cache" || why.contains("size does not match"),
+                    "{kind:?} cut to {len}: {why}"
+                );
+            }
+            let mut longer = bytes.clone();
+            longer.extend_from_slice(&[0; 64]);
+            std::fs::write(&path, &longer).unwrap();
+            assert_eq!(
+                reason(&path, technique, kind),
+                "cache size does not match its header"
+            );
+        }
+    }
+
+    #[test]
+    fn a_header_that_disagrees_with_its_sections_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let (path, technique) = build(dir.path(), Kind::Centred);
+        let good = std::fs::read(&path).unwrap();
+        let edit = |at: usize, value: &[u8]| {
+            let mut b = good.clone();
+            b[at..at + value.len()].copy_from_slice(value);
+            std::fs::write(&path, &b).unwrap();
+            reason(&path, technique, Kind::Centred)
+        };
+        // A section offset moved by 8 bytes: no longer 64-byte aligned, nor where the
+        // layout puts it.
+        let f32_offset = u64_at(&good, 168 + 8 * F32);
+        assert_eq!(
+            edit(168 + 8 * F32, &(f32_offset + 8).to_le_bytes()),
+            "cache sections do not match its header"
+        );
+        // More rows than the file holds.
+        assert_eq!(
+            edit(64, &4u64.to_le_bytes()),
+            "cache size does not match its header"
+        );
+        assert_eq!(edit(0, b"WHORLVX\0"), "not a whorl vector cache");
+        assert!(edit(8, &(FORMAT_VERSION + 1).to_le_bytes()).starts_with("cache format"));
+        assert_eq!(
+            edit(324, &3u32.to_le_bytes()),
+            "cache of an unknown coarse block size"
+        );
+        std::fs::write(&path, &good).unwrap();
+        assert_eq!(
+            reason(&path, technique, Kind::Unit),
+            "cache of another kind"
+        );
+        assert_eq!(
+            reason(&path, Technique::Raman, Kind::Centred),
+            "cache of another technique"
+        );
+        assert_eq!(reason(&path, technique, Kind::Centred), "opened");
+    }
+
+    #[test]
+    fn damaged_peak_offsets_and_postings_are_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let (path, technique) = build(dir.path(), Kind::Sparse);
+        let good = std::fs::read(&path).unwrap();
+        // The row peak offsets: a descending pair would make a row read backwards.
+        let poff = u64_at(&good, 168 + 8 * POFF) as usize;
+        let mut b = good.clone();
+        b[poff + 8..poff + 16].copy_from_slice(&5u64.to_le_bytes());
+        std::fs::write(&path, &b).unwrap();
+        assert_eq!(
+            reason(&path, technique, Kind::Sparse),
+            "cache peak offsets are damaged"
+        );
+        // The postings offsets must end at the number of peaks.
+        let post = u64_at(&good, 168 + 8 * POST_OFF) as usize;
+        let mut b = good.clone();
+        let last = post + 8 * MZ_BINS;
+        b[last..last + 8].copy_from_slice(&99u64.to_le_bytes());
+        std::fs::write(&path, &b).unwrap();
+        assert_eq!(
+            reason(&path, technique, Kind::Sparse),
+            "cache postings are damaged"
+        );
+    }
+
+    #[test]
+    fn a_builder_refuses_rows_it_was_not_told_of() {
+        let dir = tempfile::tempdir().unwrap();
+        let grid = Technique::MsEi.default_grid();
+        let params = CompositeParams::default();
+        let row = |id| VectorRow {
+            spectrum_id: id,
+            status: crate::spectrum::Status::Verified,
+            vector: vec![],
+            peaks: vec![peak(43.0, 1.0)],
+        };
+        // Told of one row: a second is the library changing under the build.
+        let new = || {
+            Builder::new(
+                Technique::MsEi,
+                Kind::Sparse,
+                &grid,
+                &params,
+                (1, 1),
+                &[],
+                Some(dir.path()),
+            )
+            .unwrap()
+        };
+        let mut b = new();
+        b.push(row(1)).unwrap();
+        assert!(b.push(row(2)).unwrap_err().to_string().contains("changed"));
+        drop(b);
+        // Told of one row and given none: nothing is renamed into place.
+        let b = new();
+        assert!(b.finish(&snapshot()).is_err());
+        assert!(
+            !dir.path()
+                .join(file_name(Technique::MsEi, Kind::Sparse))
+                .exists()
+        );
+        // No temporary file is left behind either.
+        let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();
+        assert!(left.is_empty(), "{left:?}");
+    }
+}

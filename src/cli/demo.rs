@@ -8,7 +8,7 @@ use std::time::Instant;
 use anyhow::Context as _;
 use clap::Args;
 use whorl::library::{Decision, Library, resolve_within};
-use whorl::search::{Request, run_search};
+use whorl::search::{Request, Unknown, run_search};
 
 use super::hits::print_report;
 use super::{Context, EXIT_FAILURE};
@@ -134,7 +134,14 @@ pub fn run(args: DemoArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
             .map(str::parse)
             .transpose()?;
         let t = Instant::now();
-        let r = run_search(&lib, &file, x_unit, y_unit, solvent, &request)?;
+        let unknown = Unknown {
+            technique,
+            file: file.clone(),
+            x_unit,
+            y_unit,
+            solvent,
+        };
+        let r = run_search(&lib, &unknown, &request)?;
         let elapsed = t.elapsed();
         writeln!(
             text,

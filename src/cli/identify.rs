@@ -6,7 +6,9 @@ use std::process::ExitCode;
 
 use clap::Args;
 use whorl::prepare::Solvent;
-use whorl::search::{IdentifyOptions, IdentifyReport, UnknownInput, identify};
+use whorl::search::{
+    Identification, IdentifyOptions, IdentifyReport, Unknown, identify_with_searches,
+};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
@@ -55,7 +57,7 @@ pub struct IdentifyArgs {
 }
 
 impl IdentifyArgs {
-    fn unknowns(&self) -> Vec<UnknownInput> {
+    fn unknowns(&self) -> Vec<Unknown> {
         let given = [
             (Technique::Ir, &self.ir),
             (Technique::Raman, &self.raman),
@@ -66,7 +68,7 @@ impl IdentifyArgs {
         given
             .into_iter()
             .filter_map(|(technique, file)| {
-                file.as_ref().map(|f| UnknownInput {
+                file.as_ref().map(|f| Unknown {
                     technique,
                     file: f.clone(),
                     x_unit: (technique == Technique::Ir)
@@ -95,20 +97,15 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         constraints: args.constraints.constraints()?,
         top: args.top.max(1),
         policy: config.identity,
-        configure: &|r| r.apply_config(&config),
+        config: &config,
     };
-    let report = identify(&lib, &unknowns, &options)?;
+    // One search per unknown: the HTML report's sections are the same searches.
+    let found = identify_with_searches(&lib, &unknowns, &options)?;
     if let Some(path) = &args.html {
-        write_html(
-            &lib,
-            &report,
-            &unknowns,
-            &options,
-            config.report.plots,
-            path,
-        )?;
+        write_html(&lib, &found, config.report.plots, path)?;
         eprintln!("report written to {}", path.display());
     }
+    let report = found.report;
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &report)?;
@@ -118,25 +115,17 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     Ok(ExitCode::SUCCESS)
 }
 
-/// Writes the HTML report: each technique is searched again for its own section (same
-/// scoring and constraints as `identify` used), so that its overlays show the prepared unknown.
+/// Writes the HTML report: the fused list, then each technique's own search (the hit list
+/// `identify` fused, cut to the fused list's length) with overlays of its prepared unknown.
 fn write_html(
     lib: &whorl::library::Library,
-    report: &IdentifyReport,
-    unknowns: &[UnknownInput],
-    options: &IdentifyOptions<'_>,
+    found: &Identification,
     plots: usize,
     path: &std::path::Path,
 ) -> anyhow::Result<()> {
-    let mut runs = Vec::with_capacity(unknowns.len());
-    for u in unknowns {
-        let mut request = whorl::search::Request::new(u.technique);
-        (options.configure)(&mut request);
-        request.top = options.top;
-        request.constraints = options.constraints.clone();
-        let (r, prepared) =
-            whorl::search::search_file(lib, &u.file, u.x_unit, u.y_unit, u.solvent, &request)?;
-        let refs = whorl::search::references(lib, &r, plots)?;
+    let mut runs = Vec::with_capacity(found.searches.len());
+    for (r, prepared) in &found.searches {
+        let refs = whorl::search::references(lib, r, plots)?;
         runs.push((r, prepared, refs));
     }
     let queries: Vec<whorl::report::Query<'_>> = runs
@@ -147,7 +136,7 @@ fn write_html(
             references: refs,
         })
         .collect();
-    let html = whorl::report::identify_page(report, &queries)?;
+    let html = whorl::report::identify_page(&found.report, &queries)?;
     std::fs::write(path, html).map_err(|e| {
         whorl::Error::io(format!("writing the HTML report to {}", path.display()), e)
     })?;

@@ -7,7 +7,7 @@ use std::process::ExitCode;
 use anyhow::Context as _;
 use clap::Args;
 use whorl::prepare::Solvent;
-use whorl::search::{Request, search_file};
+use whorl::search::{Given, Request, Unknown, search_file};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
@@ -68,30 +68,38 @@ pub struct SearchArgs {
 pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
     let config = ctx.config()?;
-    let mut request = Request::new(args.technique);
-    request.params = args.scoring.params(args.technique)?;
-    // The library's whorl.toml sets defaults; options on the command line win over it.
-    request.apply_config(&config);
-    if let Some(t) = args.scoring.tolerance {
-        request.params.peak_tolerance = t;
-    }
-    request.top = args.top.unwrap_or(config.top(args.technique)).max(1);
+    let given = Given {
+        params: Some(args.scoring.params(args.technique)?),
+        peak_tolerance: args.scoring.tolerance,
+        top: args.top,
+        solvent: args.solvent,
+    };
+    let mut request = Request::resolve(args.technique, &given, &config);
+    request.top = request.top.max(1);
     request.filter = args.filter.clone();
     request.constraints = args.constraints.constraints()?;
     request.explain = args.explain;
     if args.include_pending {
         request.statuses.push(whorl::library::Status::Pending);
     }
-    let solvent = args.solvent.or(config.solvent(args.technique));
     let mut files = args.unknown.clone();
     if let Some(dir) = &args.batch {
         files.extend(batch_files(dir)?);
     }
-    if files.len() != 1 {
-        return run_many(&args, &lib, &files, solvent, &request, ctx);
+    let unknowns: Vec<Unknown> = files
+        .into_iter()
+        .map(|file| Unknown {
+            technique: args.technique,
+            file,
+            x_unit: args.x_unit,
+            y_unit: args.y_unit,
+            solvent: request.solvent,
+        })
+        .collect();
+    if unknowns.len() != 1 {
+        return run_many(&args, &lib, &unknowns, &request, ctx);
     }
-    let (report, unknown) =
-        search_file(&lib, &files[0], args.x_unit, args.y_unit, solvent, &request)?;
+    let (report, unknown) = search_file(&lib, &unknowns[0], &request)?;
     if let Some(path) = &args.save {
         let text = serde_json::to_string_pretty(&report)? + "\n";
         std::fs::write(path, text)
@@ -163,8 +171,7 @@ fn batch_files(dir: &std::path::Path) -> anyhow::Result<Vec<PathBuf>> {
 fn run_many(
     args: &SearchArgs,
     lib: &whorl::library::Library,
-    files: &[PathBuf],
-    solvent: Option<Solvent>,
+    unknowns: &[Unknown],
     request: &Request,
     ctx: &Context,
 ) -> anyhow::Result<ExitCode> {
@@ -175,8 +182,7 @@ fn run_many(
         )
         .into());
     }
-    let reports =
-        whorl::search::search_files(lib, files, args.x_unit, args.y_unit, solvent, request)?;
+    let reports = whorl::search::search_files(lib, unknowns, request)?;
     let mut out = std::io::stdout().lock();
     let mut csv_header = true;
     for (i, report) in reports.iter().enumerate() {

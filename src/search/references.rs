@@ -21,7 +21,7 @@ pub fn references(library: &Library, report: &Report, n: usize) -> Result<Vec<Pr
 mod tests {
     use super::*;
     use crate::library::{Metadata, Status, Submission, stage};
-    use crate::search::{Request, search_file};
+    use crate::search::{Request, Unknown, search_file};
     use crate::technique::Technique;
 
     fn ir_file(dir: &std::path::Path, name: &str, bands: &[(f64, f64)]) -> std::path::PathBuf {
@@ -74,7 +74,8 @@ mod tests {
         request.statuses.push(Status::Pending);
         // The unknown is the second reference's own file, so it ranks first and its prepared
         // spectrum is the unknown's.
-        let (report, unknown) = search_file(&lib, &files[1], None, None, None, &request).unwrap();
+        let (report, unknown) =
+            search_file(&lib, &Unknown::new(Technique::Ir, &files[1]), &request).unwrap();
         assert_eq!(report.hits.len(), 3);
         assert_eq!(report.hits[0].name, "compound 1");
 

@@ -4,7 +4,7 @@ use std::path::Path;
 
 use serde::Serialize;
 
-use super::{Report, Request, run_search};
+use super::{Report, Request, Unknown, run_search};
 use crate::error::{Error, Location, Result};
 use crate::library::{Event, Library};
 use crate::spectrum::sha256_hex;
@@ -86,20 +86,14 @@ pub fn replay(library: &Library, saved: &Report) -> Result<Replay> {
             .map(str::parse)
             .transpose()?,
     };
-    let solvent = saved
-        .unknown
-        .solvent
-        .as_deref()
-        .map(str::parse)
-        .transpose()?;
-    let now = run_search(
-        library,
-        file,
-        saved.unknown.x_unit,
-        Some(saved.unknown.y_unit),
-        solvent,
-        &request,
-    )?;
+    let unknown = Unknown {
+        technique: request.technique,
+        file: file.to_path_buf(),
+        x_unit: saved.unknown.x_unit,
+        y_unit: Some(saved.unknown.y_unit),
+        solvent: request.solvent,
+    };
+    let now = run_search(library, &unknown, &request)?;
 
     let mut differences = Vec::new();
     if now.parameters.recipe != p.recipe {

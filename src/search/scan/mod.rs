@@ -36,7 +36,7 @@ use crate::cache::{Kind, VectorCache, active_bins, kind_for};
 use crate::error::Result;
 use crate::library::{Library, Status};
 use crate::prepare::Prepared;
-use crate::search::{Ranking, Request};
+use crate::search::{Plan, Ranking, Request};
 
 /// Rows per parallel task (a multiple of 64, so tasks own whole mask words).
 const CHUNK: usize = 4096;
@@ -95,9 +95,27 @@ pub fn rank_traced(
     request: &Request,
     trace: &mut Trace,
 ) -> Result<Option<Vec<Ranking>>> {
+    rank_plan_traced(library, unknowns, &Plan::new(library, request)?, trace)
+}
+
+/// [`rank`] under a plan already made.
+pub(super) fn rank_plan(
+    library: &Library,
+    unknowns: &[Prepared],
+    plan: &Plan,
+) -> Result<Option<Vec<Ranking>>> {
+    rank_plan_traced(library, unknowns, plan, &mut Trace::default())
+}
+
+fn rank_plan_traced(
+    library: &Library,
+    unknowns: &[Prepared],
+    plan: &Plan,
+    trace: &mut Trace,
+) -> Result<Option<Vec<Ranking>>> {
     // `top` may be "all" (usize::MAX, as `identify` asks): never more than the rows.
-    let keep = RESCORE.max(request.top.saturating_mul(4));
-    rank_keeping(library, unknowns, request, trace, keep)
+    let keep = RESCORE.max(plan.request.top.saturating_mul(4));
+    rank_keeping(library, unknowns, plan, trace, keep)
 }
 
 /// [`rank_traced`] with the first scan keeping `keep` rows per unknown (the tests keep as
@@ -105,10 +123,11 @@ pub fn rank_traced(
 fn rank_keeping(
     library: &Library,
     unknowns: &[Prepared],
-    request: &Request,
+    plan: &Plan,
     trace: &mut Trace,
     keep: usize,
 ) -> Result<Option<Vec<Ranking>>> {
+    let request = &plan.request;
     let t0 = std::time::Instant::now();
     let Some(kind) = kind_for(request.technique, request.params.measure) else {
         return Ok(None);
@@ -119,7 +138,7 @@ fn rank_keeping(
     {
         return Ok(None);
     }
-    let grid = library.recipe(request.technique)?.grid.clone();
+    let grid = &plan.recipe.grid;
     if kind == Kind::Sparse {
         let c = &request.params.composite;
         let d = crate::score::CompositeParams::default();
@@ -141,13 +160,9 @@ fn rank_keeping(
         return Ok(None);
     }
 
-    let allowed: Option<HashSet<i64>> = match &request.filter {
-        Some(q) => Some(library.text().matching_ids(q)?),
-        None => None,
-    };
-    let (mask, compared, searched) = row_mask(&cache, &request.statuses, allowed.as_ref());
-    let active = active_bins(&grid);
-    let bins = Bins::new(&grid);
+    let (mask, compared, searched) = row_mask(&cache, &request.statuses, plan.allowed.as_ref());
+    let active = active_bins(grid);
+    let bins = Bins::new(grid);
     let tol = request.params.peak_tolerance;
     let queries: Vec<Query<'_>> = unknowns
         .iter()
@@ -168,7 +183,7 @@ fn rank_keeping(
         trace.scan_ms += since(t0);
         for (j, (q, heap)) in queries.iter().zip(heaps).enumerate() {
             let t0 = std::time::Instant::now();
-            let mut exact = Exact::new(library, q.unknown, &grid, request);
+            let mut exact = Exact::new(library, q.unknown, grid, request);
             let rows = heap.rows();
             trace.rescored_rows += rows.len();
             let (scored, kth) = finish(&cache, q, &rows, w, request, &mut exact)?;

@@ -140,9 +140,15 @@ fn rows_left_out_by_the_first_scan_are_rescored_from_their_keys() {
         r.statuses.push(Status::Pending);
         r.top = 10;
         let mut trace = Trace::default();
-        let rankings = rank_keeping(&lib, &unknowns, &r, &mut trace, 10)
-            .unwrap()
-            .unwrap();
+        let rankings = rank_keeping(
+            &lib,
+            &unknowns,
+            &Plan::new(&lib, &r).unwrap(),
+            &mut trace,
+            10,
+        )
+        .unwrap()
+        .unwrap();
         assert!(trace.fallbacks > 0, "{technique}: the fallback ran");
         for (u, ranking) in unknowns.iter().zip(&rankings) {
             let exact = search_exact(&lib, u, &r).unwrap();

@@ -1,0 +1,154 @@
+//! A search resolved once: the [`Request`] as asked, the [`Unknown`] as handed over, and the
+//! [`Plan`] every path of a search reads (validated parameters and constraints, the recipe,
+//! the ids a metadata query allows), so that nothing is looked up or checked twice.
+
+use std::collections::HashSet;
+use std::path::PathBuf;
+
+use super::{Constraints, Thresholds};
+use crate::config::Config;
+use crate::error::Result;
+use crate::library::{Library, Status};
+use crate::prepare::{Recipe, Solvent};
+use crate::score::ScoreParams;
+use crate::spectrum::{XUnit, YUnit};
+use crate::technique::Technique;
+
+/// What to search for and how.
+#[derive(Debug, Clone)]
+pub struct Request {
+    /// The technique of the unknown.
+    pub technique: Technique,
+    /// How many hits to return.
+    pub top: usize,
+    /// A metadata text query restricting the candidates.
+    pub filter: Option<String>,
+    /// Formula, mass, IHD, element and retention-index constraints.
+    pub constraints: Constraints,
+    /// List the candidates that the query or the constraints ruled out, with the reason.
+    pub explain: bool,
+    /// Which review statuses are searched.
+    pub statuses: Vec<Status>,
+    /// Scoring parameters.
+    pub params: ScoreParams,
+    /// Overrides of the derived warning thresholds (a library's `whorl.toml`).
+    pub thresholds: Thresholds,
+    /// The unknown's NMR solvent, compared with each hit's.
+    pub solvent: Option<Solvent>,
+}
+
+impl Request {
+    /// A request with the technique's default parameters.
+    pub fn new(technique: Technique) -> Request {
+        Request {
+            technique,
+            top: 10,
+            filter: None,
+            constraints: Constraints::default(),
+            explain: false,
+            statuses: vec![Status::Verified],
+            params: ScoreParams::default_for(technique),
+            thresholds: Thresholds::default(),
+            solvent: None,
+        }
+    }
+
+    /// The request for a technique with every setting taken in one order of precedence:
+    /// what the face was given (`given`), else the library's `whorl.toml` (`config`), else the
+    /// built-in default. Flags that only pick or tune a measure are already in
+    /// `given.params` (built over the technique's defaults); the file sets the spectral
+    /// weight, the peak tolerance, `top` (per technique, then for every search) and the
+    /// warning thresholds.
+    pub fn resolve(technique: Technique, given: &Given, config: &Config) -> Request {
+        let mut r = Request::new(technique);
+        if let Some(p) = &given.params {
+            r.params = p.clone();
+        }
+        if let Some(w) = config.spectral_weight(technique) {
+            r.params.spectral_weight = w;
+        }
+        r.params.peak_tolerance = given
+            .peak_tolerance
+            .or(config.peak_tolerance(technique))
+            .unwrap_or(r.params.peak_tolerance);
+        r.top = given.top.unwrap_or(config.top(technique));
+        r.thresholds = config.thresholds;
+        r.solvent = given.solvent.or(config.solvent(technique));
+        r
+    }
+}
+
+/// What a face (the command line, later a form or an API call) was given for one search;
+/// `None` where it was given nothing, so that [`Request::resolve`] falls back in order.
+#[derive(Debug, Clone, Default)]
+pub struct Given {
+    /// Score parameters: the technique's defaults with the measure flags applied.
+    pub params: Option<ScoreParams>,
+    /// Peak-matching tolerance.
+    pub peak_tolerance: Option<f64>,
+    /// Hits listed.
+    pub top: Option<usize>,
+    /// The unknown's NMR solvent.
+    pub solvent: Option<Solvent>,
+}
+
+/// An unknown spectrum file as the analyst hands it over: its technique and what they
+/// declare about it (units when the file's are not the usual ones, the NMR solvent).
+#[derive(Debug, Clone)]
+pub struct Unknown {
+    /// The technique it is searched as.
+    pub technique: Technique,
+    /// The spectrum file.
+    pub file: PathBuf,
+    /// Declared x unit, if not the technique's usual one.
+    pub x_unit: Option<XUnit>,
+    /// Declared y unit (else detected).
+    pub y_unit: Option<YUnit>,
+    /// NMR solvent.
+    pub solvent: Option<Solvent>,
+}
+
+impl Unknown {
+    /// An unknown file of a technique, with nothing declared.
+    pub fn new(technique: Technique, file: impl Into<PathBuf>) -> Unknown {
+        Unknown {
+            technique,
+            file: file.into(),
+            x_unit: None,
+            y_unit: None,
+            solvent: None,
+        }
+    }
+}
+
+/// A search resolved once: the request with its score parameters and constraints validated,
+/// the technique's recipe (unknowns are prepared with it, and the report records it), and
+/// the ids the metadata query allows. The cached scan, exact scoring and the report all
+/// read this one value.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    /// The request, validated.
+    pub request: Request,
+    /// The technique's preparation recipe.
+    pub recipe: Recipe,
+    /// The spectrum ids the metadata query matches (`None` without a query).
+    pub allowed: Option<HashSet<i64>>,
+}
+
+impl Plan {
+    /// Validates a request against a library and resolves what every stage needs.
+    pub fn new(library: &Library, request: &Request) -> Result<Plan> {
+        request.params.validate(request.technique)?;
+        request.constraints.validate()?;
+        let recipe = library.recipe(request.technique)?.clone();
+        let allowed = match &request.filter {
+            Some(q) => Some(library.text().matching_ids(q)?),
+            None => None,
+        };
+        Ok(Plan {
+            request: request.clone(),
+            recipe,
+            allowed,
+        })
+    }
+}
