@@ -13,11 +13,12 @@ use rayon::prelude::*;
 use rusqlite::params;
 use serde::{Deserialize, Serialize};
 
-use super::curation::{Review, reweigh};
+use super::curation::Review;
+use super::events::append_event;
 use super::manifest::{KNOWN_COLUMNS, read_bundle_manifest, resolve_within};
-use super::records::{
-    SpectrumRecord, append_event, find_or_create_compound, insert_prepared, present_by_raw,
-};
+use super::records::SpectrumRecord;
+use super::state::reweigh;
+use super::store::{find_or_create_compound, insert_prepared, present_by_raw};
 use super::{ContentSum, Library, Outcome, Staged, fingerprint, now, record_hash, stage};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::sha256_hex;

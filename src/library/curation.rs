@@ -3,11 +3,11 @@
 use rusqlite::{Connection, OptionalExtension, params};
 use serde::{Deserialize, Serialize};
 
-use super::records::{
-    SpectrumRecord, append_event, bump_generation, f32_bytes, find_or_create_compound,
-    update_content_sum,
-};
-use super::{Library, now, prepare_raw, record_hash};
+use super::events::append_event;
+use super::records::{SpectrumRecord, f32_bytes};
+use super::state::reweigh;
+use super::store::find_or_create_compound;
+use super::{Library, now, prepare_raw};
 use crate::error::{Error, Result};
 use crate::prepare::Solvent;
 use crate::spectrum::{Metadata, Status};
@@ -136,41 +136,7 @@ fn same_person(a: &str, b: &str) -> bool {
     a.trim().eq_ignore_ascii_case(b.trim())
 }
 
-/// Moves a spectrum's contribution to the fingerprint from its old state to its new one.
-pub(super) fn reweigh(
-    tx: &Connection,
-    technique: &str,
-    raw_sha256: &str,
-    old: Option<(Status, &str)>,
-    new: Option<(Status, &str)>,
-) -> Result<()> {
-    update_content_sum(tx, |sum| {
-        if let Some((status, meta)) = old.filter(|(s, _)| s.searchable()) {
-            sum.remove(&record_hash(technique, status.name(), raw_sha256, meta));
-        }
-        if let Some((status, meta)) = new.filter(|(s, _)| s.searchable()) {
-            sum.add(&record_hash(technique, status.name(), raw_sha256, meta));
-        }
-    })
-}
-
 impl Library {
-    /// Runs `f` in one write transaction, bumps the generation, commits, and refreshes the
-    /// text-index documents of the spectra `f` reports as touched.
-    pub(super) fn write<T>(
-        &mut self,
-        f: impl FnOnce(&Connection) -> Result<(T, Vec<i64>)>,
-    ) -> Result<T> {
-        let tx = self
-            .conn
-            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
-        let (value, touched) = f(&tx)?;
-        let generation = bump_generation(&tx)?;
-        tx.commit()?;
-        self.sync_text(&touched, generation)?;
-        Ok(value)
-    }
-
     /// Whether the library lets a submitter review their own spectra (off by default).
     pub fn allow_self_review(&self) -> Result<bool> {
         Ok(self.setting("allow_self_review")?.as_deref() == Some("true"))
@@ -528,7 +494,7 @@ fn correct_sole_compound(tx: &Connection, id: i64, metadata: &Metadata) -> Resul
     let Some(formula) = &metadata.formula else {
         return Ok(());
     };
-    let key = super::records::compound_key(metadata);
+    let key = super::store::compound_key(metadata);
     let sharing: Option<(i64, i64)> = tx
         .query_row(
             "SELECT c.id, (SELECT count(*) FROM spectrum s WHERE s.compound_id = c.id AND s.id != ?2)

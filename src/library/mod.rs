@@ -3,6 +3,7 @@
 mod bundle;
 mod check;
 mod curation;
+mod events;
 mod fingerprint;
 mod import;
 mod manifest;
@@ -10,22 +11,26 @@ mod recipe_change;
 mod records;
 mod schema;
 mod stage;
+mod state;
+mod store;
 mod vectors;
 
 pub use crate::spectrum::{Metadata, Status};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use check::{CheckReport, Finding};
 pub use curation::{Decision, MetadataPatch, Review, RevisionInfo};
+pub use events::Event;
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use recipe_change::RecipeChange;
-pub use records::{Candidate, Event, HitRecord, Outcome, SpectrumRecord, Stats, Summary};
+pub use records::{Candidate, HitRecord, SpectrumRecord, Stats, Summary};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,
     stage, usual_x_unit,
 };
+pub use store::Outcome;
 pub use vectors::{Snapshot, VectorRow};
 
 use std::path::{Path, PathBuf};

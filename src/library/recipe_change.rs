@@ -11,7 +11,8 @@ use rayon::prelude::*;
 use rusqlite::{Connection, params};
 use serde::Serialize;
 
-use super::records::{append_event, f32_bytes};
+use super::events::append_event;
+use super::records::f32_bytes;
 use super::stage::prepare_stored;
 use super::{Library, Metadata, check_recipes};
 use crate::error::{Error, Result};

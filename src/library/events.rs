@@ -1,0 +1,152 @@
+//! The audit trail: events chained by their hashes, appended inside the caller's transaction.
+
+use rusqlite::{Connection, OptionalExtension, params};
+use serde::{Deserialize, Serialize};
+
+use super::{Library, now};
+use crate::error::Result;
+use crate::spectrum::sha256_hex;
+
+/// One row of the audit trail.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Event {
+    /// Sequence number.
+    pub seq: i64,
+    /// UTC time.
+    pub at: String,
+    /// Who.
+    pub actor: String,
+    /// What.
+    pub action: String,
+    /// Which record.
+    pub record: String,
+    /// The payload (JSON).
+    pub payload: serde_json::Value,
+    /// SHA-256 of the payload text.
+    pub payload_hash: String,
+    /// The previous event's hash.
+    pub prev_hash: String,
+    /// This event's hash.
+    pub hash: String,
+}
+
+/// The hash that starts the chain.
+pub const GENESIS_HASH: &str = "0000000000000000000000000000000000000000000000000000000000000000";
+
+/// The hash of one event: SHA-256 over a JSON array of its fields, which makes the encoding
+/// unambiguous whatever the fields contain.
+pub fn event_hash(
+    seq: i64,
+    at: &str,
+    actor: &str,
+    action: &str,
+    record: &str,
+    payload_hash: &str,
+    prev_hash: &str,
+) -> String {
+    sha256_hex(
+        serde_json::json!([seq, at, actor, action, record, payload_hash, prev_hash])
+            .to_string()
+            .as_bytes(),
+    )
+}
+
+/// Appends one event to the chain inside the caller's transaction.
+pub fn append_event(
+    tx: &Connection,
+    actor: &str,
+    action: &str,
+    record: &str,
+    payload: &serde_json::Value,
+) -> Result<i64> {
+    let (last_seq, prev_hash): (i64, String) = tx
+        .query_row(
+            "SELECT seq, hash FROM event ORDER BY seq DESC LIMIT 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .optional()?
+        .unwrap_or((0, GENESIS_HASH.to_string()));
+    let seq = last_seq + 1;
+    let at = now();
+    let payload_text = payload.to_string();
+    let payload_hash = sha256_hex(payload_text.as_bytes());
+    let hash = event_hash(seq, &at, actor, action, record, &payload_hash, &prev_hash);
+    tx.execute(
+        "INSERT INTO event (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
+        params![
+            seq,
+            at,
+            actor,
+            action,
+            record,
+            payload_text,
+            payload_hash,
+            prev_hash,
+            hash
+        ],
+    )?;
+    // The head of the chain is kept beside it, so that deleting the newest events is found too.
+    tx.execute(
+        "INSERT INTO setting (key, value) VALUES ('event_head', ?1)
+         ON CONFLICT (key) DO UPDATE SET value = excluded.value",
+        [format!("{seq}:{hash}")],
+    )?;
+    Ok(seq)
+}
+
+impl Library {
+    /// Events in sequence order, for the whole library or for one record (e.g. "spectrum:12").
+    pub fn events(&self, record: Option<&str>) -> Result<Vec<Event>> {
+        let mut stmt = self.conn.prepare(
+            "SELECT seq, at, actor, action, record, payload, payload_hash, prev_hash, hash FROM event
+             WHERE ?1 IS NULL OR record = ?1 ORDER BY seq",
+        )?;
+        let rows = stmt.query_map([record], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, String>(1)?,
+                r.get::<_, String>(2)?,
+                r.get::<_, String>(3)?,
+                r.get::<_, String>(4)?,
+                r.get::<_, String>(5)?,
+                r.get::<_, String>(6)?,
+                r.get::<_, String>(7)?,
+                r.get::<_, String>(8)?,
+            ))
+        })?;
+        let mut out = Vec::new();
+        for row in rows {
+            let (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash) = row?;
+            out.push(Event {
+                seq,
+                at,
+                actor,
+                action,
+                record,
+                payload: serde_json::from_str(&payload)?,
+                payload_hash,
+                prev_hash,
+                hash,
+            });
+        }
+        Ok(out)
+    }
+
+    /// The sequence number of the newest event.
+    pub fn last_event(&self) -> Result<i64> {
+        Ok(self
+            .conn
+            .query_row("SELECT coalesce(max(seq), 0) FROM event", [], |r| r.get(0))?)
+    }
+
+    /// Events after the given sequence number.
+    pub fn events_since(&self, seq: i64) -> Result<Vec<Event>> {
+        Ok(self
+            .events(None)?
+            .into_iter()
+            .filter(|e| e.seq > seq)
+            .collect())
+    }
+}
