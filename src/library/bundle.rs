@@ -13,10 +13,10 @@ use rayon::prelude::*;
 use rusqlite::params;
 use serde::{Deserialize, Serialize};
 
-use super::curation::Review;
 use super::events::append_event;
 use super::manifest::{KNOWN_COLUMNS, read_bundle_manifest, resolve_within};
 use super::records::SpectrumRecord;
+use super::review::Review;
 use super::state::reweigh;
 use super::store::{find_or_create_compound, insert_prepared, present_by_raw};
 use super::{ContentSum, Library, Outcome, Staged, fingerprint, now, record_hash, stage};

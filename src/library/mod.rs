@@ -9,6 +9,7 @@ mod import;
 mod manifest;
 mod recipe_change;
 mod records;
+mod review;
 mod schema;
 mod stage;
 mod state;
@@ -18,13 +19,14 @@ mod vectors;
 pub use crate::spectrum::{Metadata, Status};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use check::{CheckReport, Finding};
-pub use curation::{Decision, MetadataPatch, Review, RevisionInfo};
+pub use curation::{MetadataPatch, RevisionInfo};
 pub use events::Event;
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use recipe_change::RecipeChange;
 pub use records::{Candidate, HitRecord, SpectrumRecord, Stats, Summary};
+pub use review::{Decision, Review};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,
