@@ -273,3 +273,139 @@ fn correct_sole_compound(tx: &Connection, id: i64, metadata: &Metadata) -> Resul
 pub(super) fn parse_unit(name: &str) -> Result<XUnit> {
     name.parse()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::testing::{add, ir, rows, submitted};
+    use crate::library::{Decision, prepare_stored};
+    use crate::technique::Technique;
+
+    fn notes(text: &str) -> MetadataPatch {
+        MetadataPatch {
+            notes: Some(text.into()),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn a_revision_adds_a_row_and_goes_back_to_pending() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        lib.review(id, "bob", Decision::Approve, None, None)
+            .unwrap();
+        let before = lib.fingerprint().unwrap();
+        let number = lib
+            .revise(id, &notes("from the 2023 lot"), "alice", Some("lot noted"))
+            .unwrap();
+        assert_eq!(number, 2);
+        let rec = lib.spectrum(id).unwrap();
+        assert_eq!((rec.revision, rec.status), (2, Status::Pending));
+        assert_eq!(rec.metadata.notes.as_deref(), Some("from the 2023 lot"));
+        assert_eq!(rows(&lib, "revision"), 2);
+        // The old revision stays readable as it was, with its sign-off.
+        let (old, _) = lib.spectrum_at(id, 1).unwrap();
+        assert_eq!(old.metadata.notes, None);
+        let (_, info) = lib.spectrum_at(id, 2).unwrap();
+        assert_eq!(
+            (info.created_by.as_str(), info.reason.as_deref()),
+            ("alice", Some("lot noted"))
+        );
+        assert_eq!(lib.reviews(id).unwrap()[0].revision, 1);
+        assert!(lib.spectrum_at(id, 3).is_err());
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(event.action, "revise");
+        assert_eq!(
+            (
+                event.payload["revision"].as_i64(),
+                event.payload["replaces"].as_i64()
+            ),
+            (Some(2), Some(1))
+        );
+        assert_ne!(lib.fingerprint().unwrap(), before);
+        // A revision that changes nothing is refused.
+        let err = lib
+            .revise(id, &notes("from the 2023 lot"), "alice", None)
+            .unwrap_err();
+        assert!(err.to_string().contains("changes nothing"), "{err}");
+    }
+
+    #[test]
+    fn a_new_solvent_prepares_the_spectrum_again() {
+        let mut lib = Library::in_memory("t").unwrap();
+        // A 1H profile with a line at the CDCl3 residual (7.26 ppm) and one at the DMSO-d6
+        // residual (2.50 ppm) (Gottlieb et al., J. Org. Chem. 1997), and one of the compound.
+        let line = |x: f64, at: f64| 1.0 / (1.0 + ((x - at) / 0.01).powi(2));
+        let points: Vec<(f64, f64)> = (0..2600)
+            .map(|i| 12.0 - 0.005 * f64::from(i))
+            .map(|x| (x, line(x, 7.26) + line(x, 2.5) + 3.0 * line(x, 1.2)))
+            .collect();
+        let mut s = submitted(Technique::Nmr1h, points, "sample", "alice");
+        s.submission.metadata.solvent = Some("CDCl3".into());
+        // Staged as the import would have prepared it: with its solvent.
+        s.prepared = prepare_stored(
+            0,
+            lib.recipe(Technique::Nmr1h).unwrap(),
+            &s.raw.canonical_bytes(),
+            s.raw.x_unit.name(),
+            s.raw.y_unit.name(),
+            Some("CDCl3"),
+        )
+        .unwrap();
+        let id = add(&mut lib, &s);
+        let before = lib.prepared(id).unwrap();
+        let patch = MetadataPatch {
+            solvent: Some("DMSO-d6".into()),
+            ..Default::default()
+        };
+        lib.revise(id, &patch, "alice", None).unwrap();
+        let after = lib.prepared(id).unwrap();
+        let expected = prepare_stored(
+            id,
+            lib.recipe(Technique::Nmr1h).unwrap(),
+            &s.raw.canonical_bytes(),
+            s.raw.x_unit.name(),
+            s.raw.y_unit.name(),
+            Some("DMSO-d6"),
+        )
+        .unwrap();
+        assert_ne!(after.vector, before.vector);
+        assert_eq!(after.vector, expected.vector);
+        assert_eq!(after.y_unit, before.y_unit);
+        // `check` prepares every spectrum again and compares vector and peaks as stored.
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    #[test]
+    fn a_withdrawn_spectrum_leaves_search_and_the_fingerprint() {
+        let mut lib = Library::in_memory("t").unwrap();
+        add(&mut lib, &ir(1, "acetone", "alice"));
+        let without = lib.fingerprint().unwrap();
+        let id = add(&mut lib, &ir(2, "butanone", "alice"));
+        assert_ne!(lib.fingerprint().unwrap(), without);
+        let err = lib.withdraw(id, "alice", "  ").unwrap_err();
+        assert!(err.to_string().contains("needs a reason"), "{err}");
+        lib.withdraw(id, "alice", " wrong sample ").unwrap();
+        let rec = lib.spectrum(id).unwrap();
+        assert_eq!(rec.status, Status::Withdrawn);
+        assert_eq!(
+            lib.withdrawn_reason(id).unwrap().as_deref(),
+            Some("wrong sample")
+        );
+        let searchable = lib
+            .candidates(Technique::Ir, &[Status::Pending, Status::Verified])
+            .unwrap();
+        assert!(searchable.iter().all(|c| c.spectrum_id != id));
+        assert_eq!(searchable.len(), 1);
+        // The fingerprint is that of the library without it.
+        assert_eq!(lib.fingerprint().unwrap(), without);
+        let event = lib.events(Some("spectrum:2")).unwrap().pop().unwrap();
+        assert_eq!(event.action, "withdraw");
+        assert_eq!(event.payload["previous_status"], "pending");
+        assert_eq!(event.payload["reason"], "wrong sample");
+        // Kept as it was: neither withdrawn again nor revised.
+        assert!(lib.withdraw(id, "alice", "again").is_err());
+        assert!(lib.revise(id, &notes("x"), "alice", None).is_err());
+    }
+}

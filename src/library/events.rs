@@ -150,3 +150,111 @@ impl Library {
             .collect())
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::Decision;
+    use crate::library::testing::{add, ir};
+
+    /// A library with a few events of different kinds: init, two adds, a review.
+    fn busy_library() -> Library {
+        let mut lib = Library::in_memory("t").unwrap();
+        let a = add(&mut lib, &ir(1, "acetone", "alice"));
+        add(&mut lib, &ir(2, "butanone", "alice"));
+        lib.review(a, "bob", Decision::Approve, None, None).unwrap();
+        lib
+    }
+
+    /// The stored text of each event, as `check` reads it.
+    fn raw_events(lib: &Library) -> Vec<(i64, String, String, String)> {
+        let mut stmt = lib
+            .conn
+            .prepare("SELECT seq, payload, payload_hash, hash FROM event ORDER BY seq")
+            .unwrap();
+        stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)))
+            .unwrap()
+            .collect::<rusqlite::Result<_>>()
+            .unwrap()
+    }
+
+    #[test]
+    fn each_event_links_to_the_one_before() {
+        let lib = busy_library();
+        let events = lib.events(None).unwrap();
+        let actions: Vec<&str> = events.iter().map(|e| e.action.as_str()).collect();
+        assert_eq!(actions, ["init", "add", "add", "review"]);
+        let mut previous = GENESIS_HASH.to_string();
+        for (i, e) in events.iter().enumerate() {
+            assert_eq!(e.seq, i as i64 + 1);
+            assert_eq!(e.prev_hash, previous, "event {}", e.seq);
+            let again = event_hash(
+                e.seq,
+                &e.at,
+                &e.actor,
+                &e.action,
+                &e.record,
+                &e.payload_hash,
+                &e.prev_hash,
+            );
+            assert_eq!(again, e.hash, "event {}", e.seq);
+            previous = e.hash.clone();
+        }
+        // The head kept beside the chain names the newest event.
+        let last = events.last().unwrap();
+        assert_eq!(
+            lib.setting("event_head").unwrap(),
+            Some(format!("{}:{}", last.seq, last.hash))
+        );
+        assert_eq!(lib.last_event().unwrap(), last.seq);
+    }
+
+    #[test]
+    fn recomputing_the_hashes_finds_an_edited_payload() {
+        let lib = busy_library();
+        for (seq, payload, payload_hash, _) in raw_events(&lib) {
+            assert_eq!(sha256_hex(payload.as_bytes()), payload_hash, "event {seq}");
+        }
+        // Edit the second event's payload behind the append-only trigger's back.
+        lib.conn
+            .execute_batch(
+                "DROP TRIGGER event_no_update;
+                 UPDATE event SET payload = replace(payload, 'acetone', 'acetane') WHERE seq = 2;",
+            )
+            .unwrap();
+        let edited: Vec<i64> = raw_events(&lib)
+            .into_iter()
+            .filter(|(_, payload, payload_hash, _)| sha256_hex(payload.as_bytes()) != *payload_hash)
+            .map(|e| e.0)
+            .collect();
+        assert_eq!(edited, [2]);
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(
+            report
+                .findings
+                .iter()
+                .any(|f| f.record == "event:2" && f.problem.contains("payload was edited")),
+            "{:?}",
+            report.findings
+        );
+    }
+
+    #[test]
+    fn events_can_be_read_per_record_and_since_a_point() {
+        let lib = busy_library();
+        let of_first: Vec<String> = lib
+            .events(Some("spectrum:1"))
+            .unwrap()
+            .into_iter()
+            .map(|e| e.action)
+            .collect();
+        assert_eq!(of_first, ["add", "review"]);
+        let since: Vec<i64> = lib
+            .events_since(2)
+            .unwrap()
+            .into_iter()
+            .map(|e| e.seq)
+            .collect();
+        assert_eq!(since, [3, 4]);
+    }
+}

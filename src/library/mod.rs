@@ -14,6 +14,8 @@ mod schema;
 mod stage;
 mod state;
 mod store;
+#[cfg(test)]
+mod testing;
 mod vectors;
 
 pub use crate::spectrum::{Metadata, Status};

@@ -255,3 +255,136 @@ impl Library {
         Ok(rec)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::MetadataPatch;
+    use crate::library::testing::{add, ir, rows};
+
+    fn approve(lib: &mut Library, id: i64, by: &str) -> Result<Review> {
+        lib.review(id, by, Decision::Approve, None, None)
+    }
+
+    #[test]
+    fn a_submitter_cannot_approve_their_own_spectrum() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        let events = lib.last_event().unwrap();
+        // The same person whatever the case and spacing of the name.
+        for who in ["alice", " Alice "] {
+            let err = approve(&mut lib, id, who).unwrap_err().to_string();
+            assert!(err.contains("submitted spectrum 1"), "{err}");
+        }
+        assert_eq!(lib.spectrum(id).unwrap().status, Status::Pending);
+        assert_eq!(rows(&lib, "review"), 0);
+        assert_eq!(lib.last_event().unwrap(), events);
+    }
+
+    #[test]
+    fn another_reviewer_can_approve() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        let before = lib.fingerprint().unwrap();
+        let review = approve(&mut lib, id, "bob").unwrap();
+        assert_eq!(lib.spectrum(id).unwrap().status, Status::Verified);
+        let stored = lib.reviews(id).unwrap();
+        assert_eq!(stored.len(), 1);
+        assert_eq!(stored[0].id, review.id);
+        assert_eq!(
+            (stored[0].reviewer.as_str(), stored[0].decision.as_str()),
+            ("bob", "approved")
+        );
+        assert_eq!(stored[0].meaning, Decision::Approve.default_meaning());
+        assert_eq!(stored[0].imported_from, None);
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(
+            (event.action.as_str(), event.actor.as_str()),
+            ("review", "bob")
+        );
+        // The status is part of what the fingerprint covers.
+        assert_ne!(lib.fingerprint().unwrap(), before);
+        // Approved once is enough.
+        let err = approve(&mut lib, id, "carol").unwrap_err().to_string();
+        assert!(err.contains("already verified"), "{err}");
+    }
+
+    #[test]
+    fn the_author_of_the_current_revision_cannot_approve_it() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        let patch = MetadataPatch {
+            notes: Some("dried over sieves".into()),
+            ..Default::default()
+        };
+        lib.revise(id, &patch, "carol", None).unwrap();
+        let err = approve(&mut lib, id, "carol").unwrap_err().to_string();
+        assert!(err.contains("current revision"), "{err}");
+        approve(&mut lib, id, "bob").unwrap();
+    }
+
+    #[test]
+    fn the_policy_switch_lets_a_submitter_approve_and_is_audited() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let a = add(&mut lib, &ir(1, "acetone", "alice"));
+        let b = add(&mut lib, &ir(2, "butanone", "alice"));
+        assert!(!lib.allow_self_review().unwrap());
+        lib.set_self_review(true, "admin").unwrap();
+        assert!(lib.allow_self_review().unwrap());
+        approve(&mut lib, a, "alice").unwrap();
+        let policy = lib.events(Some("library")).unwrap().pop().unwrap();
+        assert_eq!(
+            (policy.action.as_str(), policy.actor.as_str()),
+            ("policy", "admin")
+        );
+        assert_eq!(policy.payload["allow_self_review"], true);
+        lib.set_self_review(false, "admin").unwrap();
+        assert!(approve(&mut lib, b, "alice").is_err());
+    }
+
+    #[test]
+    fn a_rejected_revision_is_not_approved_later() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        lib.review(id, "bob", Decision::Reject, None, Some("baseline drifts"))
+            .unwrap();
+        assert_eq!(lib.spectrum(id).unwrap().status, Status::Pending);
+        let err = approve(&mut lib, id, "carol").unwrap_err().to_string();
+        assert!(err.contains("was rejected by bob"), "{err}");
+        // A new revision is reviewed in turn.
+        let patch = MetadataPatch {
+            notes: Some("baseline corrected at the instrument".into()),
+            ..Default::default()
+        };
+        lib.revise(id, &patch, "alice", Some("rejected")).unwrap();
+        approve(&mut lib, id, "carol").unwrap();
+    }
+
+    #[test]
+    fn one_refusal_refuses_the_whole_batch_of_sign_offs() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let a = add(&mut lib, &ir(1, "acetone", "alice"));
+        let b = add(&mut lib, &ir(2, "butanone", "bob"));
+        let err = lib
+            .review_many(&[a, b], "bob", Decision::Approve, None, None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("spectrum 2"), "{err}");
+        assert_eq!(lib.spectrum(a).unwrap().status, Status::Pending);
+        assert_eq!(rows(&lib, "review"), 0);
+        let done = lib
+            .review_many(&[a, b], "carol", Decision::Approve, Some("checked"), None)
+            .unwrap();
+        assert_eq!(done.len(), 2);
+        assert!(done.iter().all(|r| r.meaning == "checked"));
+    }
+
+    #[test]
+    fn a_withdrawn_spectrum_cannot_be_reviewed() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        lib.withdraw(id, "alice", "wrong sample").unwrap();
+        let err = approve(&mut lib, id, "bob").unwrap_err().to_string();
+        assert!(err.contains("withdrawn"), "{err}");
+    }
+}

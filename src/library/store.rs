@@ -211,3 +211,166 @@ pub(super) fn insert_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -
     )?;
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::testing::{add, ir, rows};
+
+    #[test]
+    fn the_same_raw_points_are_stored_once() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let a = ir(1, "acetone", "alice");
+        let id = add(&mut lib, &a);
+        let (events, generation) = (lib.last_event().unwrap(), lib.generation().unwrap());
+        // Found again by their raw points, whatever the metadata says; nothing is written.
+        let mut again = a.clone();
+        again.submission.metadata.name = "propanone".into();
+        let out = lib.store(&[again], "t", false).unwrap();
+        assert_eq!(
+            out[0].as_ref().unwrap(),
+            &Outcome::AlreadyPresent { spectrum_id: id }
+        );
+        assert_eq!(rows(&lib, "spectrum"), 1);
+        assert_eq!(lib.last_event().unwrap(), events);
+        assert_eq!(lib.generation().unwrap(), generation);
+        // A batch holding the same points twice stores the first only.
+        let b = ir(2, "butanone", "alice");
+        let out = lib.store(&[b.clone(), b], "t", false).unwrap();
+        let Ok(Outcome::Added { spectrum_id, .. }) = out[0] else {
+            panic!("{out:?}")
+        };
+        assert_eq!(
+            out[1].as_ref().unwrap(),
+            &Outcome::AlreadyPresent { spectrum_id }
+        );
+        assert_eq!(rows(&lib, "spectrum"), 2);
+    }
+
+    #[test]
+    fn spectra_of_one_compound_share_its_row() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let compound = |lib: &Library, id| lib.spectrum(id).unwrap().compound_id;
+        let a = add(&mut lib, &ir(1, "Acetone", "alice"));
+        // The name key ignores case.
+        let b = add(&mut lib, &ir(2, "acetone", "bob"));
+        assert_eq!(compound(&lib, a), compound(&lib, b));
+        // A CAS RN is the key when given, whatever the name (67-64-1 is acetone, from memory).
+        let mut c = ir(3, "propanone", "alice");
+        c.submission.metadata.cas = Some("67-64-1".into());
+        let c = add(&mut lib, &c);
+        let mut d = ir(4, "dimethyl ketone", "alice");
+        d.submission.metadata.cas = Some("67-64-1".into());
+        let d = add(&mut lib, &d);
+        assert_eq!(compound(&lib, c), compound(&lib, d));
+        assert_ne!(compound(&lib, a), compound(&lib, c));
+        assert_eq!(rows(&lib, "compound"), 2);
+    }
+
+    #[test]
+    fn a_formula_contradicting_the_compound_is_refused_and_leaves_nothing() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let with_formula = |seed, formula: &str| {
+            let mut s = ir(seed, "acetone", "alice");
+            s.submission.metadata.formula = Some(formula.into());
+            s
+        };
+        let batch = [
+            with_formula(1, "C3H6O"),
+            with_formula(2, "C3H8O"),
+            ir(3, "ethanol", "alice"),
+        ];
+        // All or nothing: the refusal rolls the batch back, events included.
+        let events = lib.last_event().unwrap();
+        let out = lib.store(&batch, "t", true).unwrap();
+        assert!(out[0].is_ok() && out[2].is_ok());
+        let err = out[1].as_ref().unwrap_err().to_string();
+        assert!(err.contains("formula C3H6O"), "{err}");
+        assert_eq!(rows(&lib, "spectrum"), 0);
+        assert_eq!(rows(&lib, "compound"), 0);
+        assert_eq!(lib.last_event().unwrap(), events);
+        // Otherwise the refused spectrum leaves nothing of itself and the others are stored.
+        let out = lib.store(&batch, "t", false).unwrap();
+        assert!(out[1].is_err());
+        assert_eq!(rows(&lib, "spectrum"), 2);
+        assert_eq!(rows(&lib, "revision"), 2);
+        assert_eq!(rows(&lib, "prepared"), 2);
+        assert_eq!(lib.events(None).unwrap().len() as i64, events + 2);
+    }
+
+    #[test]
+    fn each_new_spectrum_has_its_add_event() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let s = ir(1, "acetone", "alice");
+        let out = lib.store(std::slice::from_ref(&s), "clerk", false).unwrap();
+        let Ok(Outcome::Added {
+            spectrum_id,
+            compound_id,
+        }) = out[0]
+        else {
+            panic!("{out:?}")
+        };
+        let events = lib
+            .events(Some(&format!("spectrum:{spectrum_id}")))
+            .unwrap();
+        assert_eq!(events.len(), 1);
+        let e = &events[0];
+        assert_eq!((e.action.as_str(), e.actor.as_str()), ("add", "clerk"));
+        assert_eq!(e.payload["spectrum"], spectrum_id);
+        assert_eq!(e.payload["compound"], compound_id);
+        assert_eq!(e.payload["raw_sha256"], s.raw.raw_sha256());
+        assert_eq!(e.payload["submitted_by"], "alice");
+        assert_eq!(e.payload["metadata"]["name"], "acetone");
+    }
+
+    /// Pins the rows a new spectrum is stored as, which the bundle import and the store share
+    /// one set of INSERTs for.
+    #[test]
+    fn a_new_spectrum_is_stored_pending_at_revision_one() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let s = ir(1, "acetone", "alice");
+        let id = add(&mut lib, &s);
+        type Row = (String, i64, Option<String>, String, String, String, Vec<u8>);
+        let row: Row = lib
+            .conn
+            .query_row(
+                "SELECT status, current_revision, withdrawn_reason, file_name, file_sha256,
+                        submitted_by, raw FROM spectrum WHERE id = ?1",
+                [id],
+                |r| {
+                    Ok((
+                        r.get(0)?,
+                        r.get(1)?,
+                        r.get(2)?,
+                        r.get(3)?,
+                        r.get(4)?,
+                        r.get(5)?,
+                        r.get(6)?,
+                    ))
+                },
+            )
+            .unwrap();
+        assert_eq!(row.0, "pending");
+        assert_eq!(row.1, 1);
+        assert_eq!(row.2, None);
+        assert_eq!(row.3, "acetone.csv");
+        assert_eq!(row.4, s.raw.file_sha256);
+        assert_eq!(row.5, "alice");
+        assert_eq!(row.6, s.raw.canonical_bytes());
+        let revision: (i64, Option<String>, String, i64, bool) = lib
+            .conn
+            .query_row(
+                "SELECT r.number, r.reason, r.created_by, r.compound_id, r.created_at = s.created_at
+                 FROM revision r JOIN spectrum s ON s.id = r.spectrum_id WHERE s.id = ?1",
+                [id],
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)),
+            )
+            .unwrap();
+        let compound = lib.spectrum(id).unwrap().compound_id;
+        assert_eq!(revision, (1, None, "alice".into(), compound, true));
+        let stored = lib.prepared(id).unwrap();
+        assert_eq!(stored.vector, s.prepared.vector);
+        assert_eq!(stored.y_unit, s.prepared.y_unit);
+        assert_eq!(stored.warnings, s.prepared.warnings);
+    }
+}
