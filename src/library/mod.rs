@@ -1,6 +1,7 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
 mod bundle;
+mod bundle_import;
 mod check;
 mod curation;
 mod events;

@@ -1,0 +1,178 @@
+//! Importing a bundle: every checksum verified first, then the spectra stored with their
+//! revisions, sign-offs and status in one transaction.
+
+use std::collections::BTreeMap;
+use std::path::Path;
+
+use rayon::prelude::*;
+use rusqlite::params;
+
+use super::bundle::{BundleInfo, RevisionEntry, verify_bundle};
+use super::events::append_event;
+use super::manifest::read_bundle_manifest;
+use super::review::Review;
+use super::state::reweigh;
+use super::store::{find_or_create_compound, insert_prepared, present_by_raw};
+use super::{Library, Outcome, Staged, stage};
+use crate::error::{Error, Location, Result};
+use crate::spectrum::Status;
+
+impl Library {
+    /// Imports a bundle folder. Every checksum is verified first; if any file is missing,
+    /// altered or outside the folder, nothing is imported. The whole bundle is one
+    /// transaction. Spectra already present (same technique and raw points) are skipped.
+    pub fn import_bundle(&mut self, dir: &Path, actor: &str) -> Result<(BundleInfo, Vec<Outcome>)> {
+        let info = verify_bundle(dir)?;
+        let manifest = dir.join("manifest.csv");
+        let rows = read_bundle_manifest(&manifest)?;
+        let recipes = self.recipes.clone();
+        let staged: Vec<(usize, Result<Staged>, BTreeMap<String, String>)> = rows
+            .into_par_iter()
+            .map(|row| {
+                (
+                    row.line,
+                    row.submission.and_then(|s| stage(&recipes, s)),
+                    row.provenance,
+                )
+            })
+            .collect();
+        let mut good = Vec::with_capacity(staged.len());
+        for (line, s, provenance) in staged {
+            match s {
+                Ok(s) => good.push((line, s, provenance)),
+                Err(e) => {
+                    return Err(Error::input(
+                        Location::line(&manifest, line),
+                        format!("this bundle row cannot be imported: {e}"),
+                        "the bundle is damaged or was written by an incompatible whorl; nothing was imported",
+                    ));
+                }
+            }
+        }
+        let source = format!("bundle {} ({})", &info.fingerprint[..16], dir.display());
+        let outcomes = self.write(|tx| {
+            let mut outcomes = Vec::with_capacity(good.len());
+            let mut touched = Vec::new();
+            for (line, staged, provenance) in &good {
+                let at = || Location::line(&manifest, *line);
+                let o = import_one(tx, staged, provenance, actor, &source, &info, at)?;
+                if let Outcome::Added { spectrum_id, .. } = o {
+                    touched.push(spectrum_id);
+                }
+                outcomes.push(o);
+            }
+            Ok((outcomes, touched))
+        })?;
+        Ok((info, outcomes))
+    }
+}
+
+fn import_one(
+    tx: &rusqlite::Connection,
+    staged: &Staged,
+    provenance: &BTreeMap<String, String>,
+    actor: &str,
+    source: &str,
+    info: &BundleInfo,
+    at: impl Fn() -> Location,
+) -> Result<Outcome> {
+    let technique = staged.submission.technique.name();
+    let raw_sha256 = staged.raw.raw_sha256();
+    let field = |k: &str| provenance.get(k).map(String::as_str).unwrap_or("");
+    let bad = |what: &str| {
+        Error::input(
+            at(),
+            format!("bundle row has an unreadable {what}"),
+            "export the bundle again",
+        )
+    };
+    if field("whorl_raw_sha256") != raw_sha256 {
+        return Err(Error::input(
+            at(),
+            "the raw points do not hash to the value the bundle records",
+            "export the bundle again",
+        ));
+    }
+    if let Some(spectrum_id) = present_by_raw(tx, technique, &raw_sha256)? {
+        return Ok(Outcome::AlreadyPresent { spectrum_id });
+    }
+    let status: Status = field("whorl_status").parse().map_err(|_| bad("status"))?;
+    let revisions: Vec<RevisionEntry> =
+        serde_json::from_str(field("whorl_revisions")).map_err(|_| bad("revision history"))?;
+    let reviews: Vec<Review> =
+        serde_json::from_str(field("whorl_reviews")).map_err(|_| bad("review history"))?;
+    let current: i64 = field("whorl_revision")
+        .parse()
+        .map_err(|_| bad("revision number"))?;
+    let metadata = &staged.submission.metadata;
+    if revisions.last().map(|r| r.number) != Some(current)
+        || revisions.last().map(|r| &r.metadata) != Some(metadata)
+    {
+        return Err(bad("current revision (it differs from the row's metadata)"));
+    }
+    let compound_id = find_or_create_compound(tx, metadata)?;
+    let withdrawn = Some(field("whorl_withdrawn_reason").to_string()).filter(|s| !s.is_empty());
+    tx.execute(
+        "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
+                               x_unit, y_unit, submitted_by, created_at, withdrawn_reason)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+        params![
+            compound_id,
+            technique,
+            status.name(),
+            current,
+            field("whorl_original_file"),
+            field("whorl_original_file_sha256"),
+            raw_sha256,
+            staged.raw.canonical_bytes(),
+            staged.raw.x_unit.name(),
+            staged.raw.y_unit.name(),
+            staged.submission.submitted_by,
+            field("whorl_created_at"),
+            withdrawn,
+        ],
+    )?;
+    let spectrum_id = tx.last_insert_rowid();
+    for r in &revisions {
+        let compound = (r.number == current).then_some(compound_id);
+        tx.execute(
+            "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+            params![spectrum_id, r.number, serde_json::to_string(&r.metadata)?, r.created_at, r.created_by, r.reason, compound],
+        )?;
+    }
+    let imported_from = format!("{source}, spectrum {}", field("whorl_original_id"));
+    for r in &reviews {
+        tx.execute(
+            "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning, note, imported_from)
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
+            params![spectrum_id, r.revision, r.reviewer, r.at, r.decision, r.meaning, r.note, imported_from],
+        )?;
+    }
+    insert_prepared(tx, spectrum_id, &staged.prepared)?;
+    let meta_json = serde_json::to_string(metadata)?;
+    reweigh(tx, technique, &raw_sha256, None, Some((status, &meta_json)))?;
+    let payload = serde_json::json!({
+        "spectrum": spectrum_id,
+        "compound": compound_id,
+        "technique": technique,
+        "raw_sha256": raw_sha256,
+        "file_sha256": field("whorl_original_file_sha256"),
+        "status": status,
+        "current_revision": current,
+        "revisions": revisions,
+        "reviews": reviews,
+        "bundle": { "fingerprint": info.fingerprint, "original_id": field("whorl_original_id"), "exported_by": info.exported_by, "exported_at": info.exported_at },
+    });
+    append_event(
+        tx,
+        actor,
+        "import",
+        &format!("spectrum:{spectrum_id}"),
+        &payload,
+    )?;
+    Ok(Outcome::Added {
+        spectrum_id,
+        compound_id,
+    })
+}
