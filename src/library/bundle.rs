@@ -363,3 +363,127 @@ pub fn verify_bundle(dir: &Path) -> Result<BundleInfo> {
     }
     Ok(info)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::testing::{curated, rows};
+
+    fn export(lib: &Library, dir: &Path) -> ExportReport {
+        lib.export(dir, None, None, "carol", &|_, _| {}).unwrap()
+    }
+
+    /// The SHA256SUMS location and reason of a refused bundle.
+    fn refusal(dir: &Path) -> (Option<usize>, String) {
+        match verify_bundle(dir) {
+            Err(Error::Input { at, reason, .. }) => {
+                assert_eq!(at.file, dir.join("SHA256SUMS"));
+                (at.line, reason)
+            }
+            other => panic!("expected a refusal, got {other:?}"),
+        }
+    }
+
+    /// The line of SHA256SUMS that lists `file`.
+    fn listed_at(dir: &Path, file: &str) -> usize {
+        let sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        1 + sums
+            .lines()
+            .position(|l| l.ends_with(&format!("  {file}")))
+            .unwrap()
+    }
+
+    #[test]
+    fn an_exported_bundle_verifies_and_names_what_it_holds() {
+        let lib = curated();
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        let report = export(&lib, &dir);
+        let info = verify_bundle(&dir).unwrap();
+        assert_eq!(info.spectra, 3);
+        assert_eq!(info.format, BUNDLE_FORMAT);
+        assert_eq!(info.exported_by, "carol");
+        // Everything exported: the bundle's fingerprint is the library's.
+        assert_eq!(info.fingerprint, lib.fingerprint().unwrap());
+        assert_eq!(report.info.fingerprint, info.fingerprint);
+        let mut files: Vec<String> = std::fs::read_dir(dir.join("spectra"))
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        files.sort();
+        assert_eq!(files, ["1.ir.csv", "2.ir.csv", "3.ir.csv"]);
+        // Nothing is left beside the bundle.
+        assert_eq!(std::fs::read_dir(tmp.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn a_file_changed_after_export_is_refused_by_name() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        let file = dir.join("spectra/2.ir.csv");
+        let mut text = std::fs::read_to_string(&file).unwrap();
+        text = text.replacen("\n4000,", "\n4000.5,", 1);
+        std::fs::write(&file, text).unwrap();
+        let (line, reason) = refusal(&dir);
+        assert_eq!(reason, "spectra/2.ir.csv does not match its checksum");
+        assert_eq!(line, Some(listed_at(&dir, "spectra/2.ir.csv")));
+        // Nothing is imported from it.
+        let mut other = Library::in_memory("t").unwrap();
+        assert!(other.import_bundle(&dir, "dave").is_err());
+        assert_eq!(rows(&other, "spectrum"), 0);
+    }
+
+    #[test]
+    fn a_changed_checksum_line_is_refused_by_name() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        let sums_path = dir.join("SHA256SUMS");
+        let sums = std::fs::read_to_string(&sums_path).unwrap();
+        let at = listed_at(&dir, "manifest.csv");
+        let changed: Vec<String> = sums
+            .lines()
+            .enumerate()
+            .map(|(i, l)| {
+                if i + 1 != at {
+                    return l.to_string();
+                }
+                let flipped = if l.starts_with('0') { "1" } else { "0" };
+                format!("{flipped}{}", &l[1..])
+            })
+            .collect();
+        std::fs::write(&sums_path, changed.join("\n") + "\n").unwrap();
+        assert_eq!(
+            refusal(&dir),
+            (Some(at), "manifest.csv does not match its checksum".into())
+        );
+    }
+
+    #[test]
+    fn a_file_the_checksums_do_not_list_is_refused_by_name() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        std::fs::write(dir.join("spectra/9.ir.csv"), "x,y\n1000,1\n").unwrap();
+        let (line, reason) = refusal(&dir);
+        assert_eq!(line, None);
+        assert_eq!(
+            reason,
+            "spectra/9.ir.csv is in the bundle but has no checksum"
+        );
+    }
+
+    #[test]
+    fn a_checksum_line_pointing_outside_the_bundle_is_refused() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        let sums_path = dir.join("SHA256SUMS");
+        let mut sums = std::fs::read_to_string(&sums_path).unwrap();
+        sums.push_str(&format!("{}  ../secret.csv\n", "0".repeat(64)));
+        std::fs::write(&sums_path, sums).unwrap();
+        let (_, reason) = refusal(&dir);
+        assert!(reason.contains("outside"), "{reason}");
+    }
+}

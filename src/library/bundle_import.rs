@@ -176,3 +176,96 @@ fn import_one(
         compound_id,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::testing::{add, curated, ir, rows};
+
+    fn exported(lib: &Library) -> (tempfile::TempDir, std::path::PathBuf) {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        lib.export(&dir, None, None, "carol", &|_, _| {}).unwrap();
+        (tmp, dir)
+    }
+
+    fn added(outcomes: &[Outcome]) -> Vec<i64> {
+        outcomes
+            .iter()
+            .filter_map(|o| match o {
+                Outcome::Added { spectrum_id, .. } => Some(*spectrum_id),
+                Outcome::AlreadyPresent { .. } => None,
+            })
+            .collect()
+    }
+
+    #[test]
+    fn an_imported_bundle_keeps_history_status_and_fingerprint() {
+        let source = curated();
+        let (_tmp, dir) = exported(&source);
+        let mut lib = Library::in_memory("t").unwrap();
+        let (info, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        assert_eq!(added(&outcomes), [1, 2, 3]);
+        assert_eq!(lib.fingerprint().unwrap(), info.fingerprint);
+        assert_eq!(lib.fingerprint().unwrap(), source.fingerprint().unwrap());
+        let status = |id| lib.spectrum(id).unwrap().status;
+        assert_eq!(
+            [status(1), status(2), status(3)],
+            [Status::Verified, Status::Pending, Status::Withdrawn]
+        );
+        // The sign-off comes along, saying where from.
+        let reviews = lib.reviews(1).unwrap();
+        assert_eq!(reviews.len(), 1);
+        assert_eq!(reviews[0].reviewer, "bob");
+        assert_eq!(reviews[0].note.as_deref(), Some("matches the CoA"));
+        let from = reviews[0].imported_from.as_deref().unwrap();
+        assert!(
+            from.starts_with(&format!("bundle {}", &info.fingerprint[..16])),
+            "{from}"
+        );
+        assert!(from.ends_with("spectrum 1"), "{from}");
+        // Both revisions, the old one as it was; the withdrawal reason.
+        assert_eq!(lib.spectrum(2).unwrap().revision, 2);
+        assert!(lib.spectrum_at(2, 1).unwrap().0.metadata.tags.is_empty());
+        assert_eq!(
+            lib.spectrum_at(2, 2).unwrap().1.reason.as_deref(),
+            Some("tagged")
+        );
+        assert_eq!(
+            lib.withdrawn_reason(3).unwrap().as_deref(),
+            Some("wrong sample")
+        );
+        let imports = lib
+            .events(None)
+            .unwrap()
+            .into_iter()
+            .filter(|e| e.action == "import" && e.actor == "dave")
+            .count();
+        assert_eq!(imports, 3);
+        // The events describe the tables: check replays them and finds nothing.
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    #[test]
+    fn spectra_already_present_are_skipped() {
+        let (_tmp, dir) = exported(&curated());
+        let mut lib = Library::in_memory("t").unwrap();
+        // The library already holds the second spectrum's raw points under its own name.
+        let own = add(&mut lib, &ir(2, "methyl ethyl ketone", "erin"));
+        let (_, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        assert_eq!(outcomes[1], Outcome::AlreadyPresent { spectrum_id: own });
+        assert_eq!(added(&outcomes).len(), 2);
+        assert_eq!(
+            lib.spectrum(own).unwrap().metadata.name,
+            "methyl ethyl ketone"
+        );
+        // Imported again, nothing is added and nothing is recorded.
+        let (events, spectra) = (lib.last_event().unwrap(), rows(&lib, "spectrum"));
+        let (_, again) = lib.import_bundle(&dir, "dave").unwrap();
+        assert!(added(&again).is_empty());
+        assert_eq!(lib.last_event().unwrap(), events);
+        assert_eq!(rows(&lib, "spectrum"), spectra);
+        assert_eq!(rows(&lib, "review"), 1);
+    }
+}

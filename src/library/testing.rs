@@ -1,6 +1,6 @@
 //! Helpers for the library's unit tests: in-memory libraries holding seeded synthetic spectra.
 
-use super::{Library, Outcome, Staged, default_recipes};
+use super::{Decision, Library, MetadataPatch, Outcome, Staged, default_recipes};
 use crate::cache::synthetic::{Rng, ir_points, ms_points, staged};
 use crate::technique::Technique;
 
@@ -11,7 +11,6 @@ pub(super) fn ir(seed: u64, name: &str, by: &str) -> Staged {
 }
 
 /// A seeded synthetic EI mass spectrum named `name`, submitted by `by`, as [`ir`].
-#[allow(dead_code)]
 pub(super) fn ms(seed: u64, name: &str, by: &str) -> Staged {
     submitted(Technique::MsEi, ms_points(&mut Rng::new(seed)), name, by)
 }
@@ -45,4 +44,21 @@ pub(super) fn rows(lib: &Library, table: &str) -> i64 {
     lib.conn
         .query_row(&format!("SELECT count(*) FROM {table}"), [], |r| r.get(0))
         .unwrap()
+}
+
+/// A library with one spectrum of each kind of history: approved, revised, withdrawn.
+pub(super) fn curated() -> Library {
+    let mut lib = Library::in_memory("t").unwrap();
+    let a = add(&mut lib, &ir(1, "acetone", "alice"));
+    let b = add(&mut lib, &ir(2, "butanone", "alice"));
+    let c = add(&mut lib, &ir(3, "cyclohexanone", "alice"));
+    lib.review(a, "bob", Decision::Approve, None, Some("matches the CoA"))
+        .unwrap();
+    let patch = MetadataPatch {
+        tags: Some(vec!["solvent".into()]),
+        ..Default::default()
+    };
+    lib.revise(b, &patch, "alice", Some("tagged")).unwrap();
+    lib.withdraw(c, "alice", "wrong sample").unwrap();
+    lib
 }
