@@ -5,14 +5,16 @@ use std::collections::BTreeMap;
 use std::path::Path;
 
 use rayon::prelude::*;
-use rusqlite::params;
 
 use super::bundle::{BundleInfo, RevisionEntry, verify_bundle};
 use super::events::append_event;
 use super::manifest::read_bundle_manifest;
 use super::review::Review;
 use super::state::reweigh;
-use super::store::{find_or_create_compound, insert_prepared, present_by_raw};
+use super::store::{
+    NewRevision, NewSpectrum, find_or_create_compound, insert_prepared, insert_review,
+    insert_revision, insert_spectrum, present_by_raw,
+};
 use super::{Library, Outcome, Staged, stage};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::Status;
@@ -111,42 +113,47 @@ fn import_one(
         return Err(bad("current revision (it differs from the row's metadata)"));
     }
     let compound_id = find_or_create_compound(tx, metadata)?;
-    let withdrawn = Some(field("whorl_withdrawn_reason").to_string()).filter(|s| !s.is_empty());
-    tx.execute(
-        "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
-                               x_unit, y_unit, submitted_by, created_at, withdrawn_reason)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
-        params![
+    let withdrawn = Some(field("whorl_withdrawn_reason")).filter(|s| !s.is_empty());
+    let spectrum_id = insert_spectrum(
+        tx,
+        &NewSpectrum {
             compound_id,
             technique,
-            status.name(),
-            current,
-            field("whorl_original_file"),
-            field("whorl_original_file_sha256"),
-            raw_sha256,
-            staged.raw.canonical_bytes(),
-            staged.raw.x_unit.name(),
-            staged.raw.y_unit.name(),
-            staged.submission.submitted_by,
-            field("whorl_created_at"),
-            withdrawn,
-        ],
+            status,
+            current_revision: current,
+            file_name: field("whorl_original_file"),
+            file_sha256: field("whorl_original_file_sha256"),
+            raw_sha256: &raw_sha256,
+            raw: &staged.raw,
+            submitted_by: &staged.submission.submitted_by,
+            created_at: field("whorl_created_at"),
+            withdrawn_reason: withdrawn,
+        },
     )?;
-    let spectrum_id = tx.last_insert_rowid();
     for r in &revisions {
-        let compound = (r.number == current).then_some(compound_id);
-        tx.execute(
-            "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-            params![spectrum_id, r.number, serde_json::to_string(&r.metadata)?, r.created_at, r.created_by, r.reason, compound],
+        insert_revision(
+            tx,
+            &NewRevision {
+                spectrum_id,
+                number: r.number,
+                metadata_json: &serde_json::to_string(&r.metadata)?,
+                created_at: &r.created_at,
+                created_by: &r.created_by,
+                reason: r.reason.as_deref(),
+                compound_id: (r.number == current).then_some(compound_id),
+            },
         )?;
     }
     let imported_from = format!("{source}, spectrum {}", field("whorl_original_id"));
     for r in &reviews {
-        tx.execute(
-            "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning, note, imported_from)
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-            params![spectrum_id, r.revision, r.reviewer, r.at, r.decision, r.meaning, r.note, imported_from],
+        // The sign-off is kept as given, on the new spectrum, saying where it came from.
+        insert_review(
+            tx,
+            &Review {
+                spectrum_id,
+                imported_from: Some(imported_from.clone()),
+                ..r.clone()
+            },
         )?;
     }
     insert_prepared(tx, spectrum_id, &staged.prepared)?;

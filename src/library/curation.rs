@@ -4,9 +4,11 @@ use rusqlite::{Connection, OptionalExtension, params};
 use serde::Serialize;
 
 use super::events::append_event;
-use super::records::{SpectrumRecord, f32_bytes};
+use super::records::SpectrumRecord;
 use super::state::reweigh;
-use super::store::find_or_create_compound;
+use super::store::{
+    NewRevision, find_or_create_compound, insert_revision, set_status, update_prepared,
+};
 use super::{Library, now, prepare_raw};
 use crate::error::{Error, Result};
 use crate::prepare::Solvent;
@@ -135,20 +137,25 @@ impl Library {
         self.write(|tx| {
             correct_sole_compound(tx, id, &metadata)?;
             let compound_id = find_or_create_compound(tx, &metadata)?;
-            tx.execute(
-                "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
-                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-                params![id, number, new_json, now(), actor, reason, compound_id],
+            insert_revision(
+                tx,
+                &NewRevision {
+                    spectrum_id: id,
+                    number,
+                    metadata_json: &new_json,
+                    created_at: &now(),
+                    created_by: actor,
+                    reason: reason.as_deref(),
+                    compound_id: Some(compound_id),
+                },
             )?;
             tx.execute(
                 "UPDATE spectrum SET current_revision = ?2, status = 'pending', compound_id = ?3 WHERE id = ?1",
                 params![id, number, compound_id],
             )?;
             if let Some(p) = &reprepared {
-                tx.execute(
-                    "UPDATE prepared SET vector = ?2, peaks = ?3, warnings = ?4 WHERE spectrum_id = ?1",
-                    params![id, f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?, serde_json::to_string(&p.warnings)?],
-                )?;
+                // Prepared with the stored y unit, so the y unit written is the one stored.
+                update_prepared(tx, id, p)?;
             }
             reweigh(tx, rec.technique.name(), &rec.raw_sha256, Some((rec.status, &old_json)), Some((Status::Pending, &new_json)))?;
             let payload = serde_json::json!({
@@ -178,7 +185,7 @@ impl Library {
         }
         let meta = serde_json::to_string(&rec.metadata)?;
         self.write(|tx| {
-            tx.execute("UPDATE spectrum SET status = 'withdrawn', withdrawn_reason = ?2 WHERE id = ?1", params![id, reason])?;
+            set_status(tx, id, Status::Withdrawn, Some(reason))?;
             reweigh(tx, rec.technique.name(), &rec.raw_sha256, Some((rec.status, &meta)), None)?;
             let payload = serde_json::json!({ "spectrum": id, "revision": rec.revision, "reason": reason, "previous_status": rec.status });
             append_event(tx, actor, "withdraw", &format!("spectrum:{id}"), &payload)?;

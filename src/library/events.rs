@@ -3,6 +3,7 @@
 use rusqlite::{Connection, OptionalExtension, params};
 use serde::{Deserialize, Serialize};
 
+use super::state::put_setting;
 use super::{Library, now};
 use crate::error::Result;
 use crate::spectrum::sha256_hex;
@@ -88,11 +89,7 @@ pub fn append_event(
         ],
     )?;
     // The head of the chain is kept beside it, so that deleting the newest events is found too.
-    tx.execute(
-        "INSERT INTO setting (key, value) VALUES ('event_head', ?1)
-         ON CONFLICT (key) DO UPDATE SET value = excluded.value",
-        [format!("{seq}:{hash}")],
-    )?;
+    put_setting(tx, "event_head", &format!("{seq}:{hash}"))?;
     Ok(seq)
 }
 

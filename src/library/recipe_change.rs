@@ -12,8 +12,8 @@ use rusqlite::{Connection, params};
 use serde::Serialize;
 
 use super::events::append_event;
-use super::records::f32_bytes;
 use super::stage::prepare_stored;
+use super::store::update_prepared;
 use super::{Library, Metadata, check_recipes};
 use crate::error::{Error, Result};
 use crate::prepare::{Prepared, Recipe};
@@ -146,17 +146,8 @@ fn reprepare_all(
                 again.map(|p| (*id, p))
             })
             .collect::<Result<_>>()?;
-        let mut update = tx.prepare_cached(
-            "UPDATE prepared SET vector = ?2, peaks = ?3, y_unit = ?4, warnings = ?5 WHERE spectrum_id = ?1",
-        )?;
         for (id, p) in &prepared {
-            update.execute(params![
-                id,
-                f32_bytes(&p.vector),
-                serde_json::to_string(&p.peaks)?,
-                p.y_unit.name(),
-                serde_json::to_string(&p.warnings)?
-            ])?;
+            update_prepared(tx, *id, p)?;
         }
     }
     Ok(total)

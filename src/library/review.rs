@@ -6,7 +6,8 @@ use serde::{Deserialize, Serialize};
 
 use super::events::append_event;
 use super::records::SpectrumRecord;
-use super::state::reweigh;
+use super::state::{put_setting, reweigh};
+use super::store::{insert_review, set_status};
 use super::{Library, now};
 use crate::error::{Error, Result};
 use crate::spectrum::Status;
@@ -76,11 +77,7 @@ impl Library {
     /// Sets the self-review policy, recording who changed it.
     pub fn set_self_review(&mut self, allow: bool, actor: &str) -> Result<()> {
         self.write(|tx| {
-            tx.execute(
-                "INSERT INTO setting (key, value) VALUES ('allow_self_review', ?1)
-                 ON CONFLICT (key) DO UPDATE SET value = excluded.value",
-                [allow.to_string()],
-            )?;
+            put_setting(tx, "allow_self_review", &allow.to_string())?;
             append_event(
                 tx,
                 actor,
@@ -158,14 +155,20 @@ impl Library {
             let mut reviews = Vec::with_capacity(checked.len());
             for (rec, metadata_json) in &checked {
                 let id = rec.id;
-                tx.execute(
-                    "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning, note)
-                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-                    params![id, rec.revision, reviewer, at, decision.name(), meaning, note],
-                )?;
-                let review_id = tx.last_insert_rowid();
+                let mut review = Review {
+                    id: 0,
+                    spectrum_id: id,
+                    revision: rec.revision,
+                    reviewer: reviewer.to_string(),
+                    at: at.clone(),
+                    decision: decision.name().to_string(),
+                    meaning: meaning.clone(),
+                    note: note.clone(),
+                    imported_from: None,
+                };
+                review.id = insert_review(tx, &review)?;
                 if decision == Decision::Approve {
-                    tx.execute("UPDATE spectrum SET status = 'verified' WHERE id = ?1", [id])?;
+                    set_status(tx, id, Status::Verified, None)?;
                     reweigh(
                         tx,
                         rec.technique.name(),
@@ -179,17 +182,7 @@ impl Library {
                     "meaning": meaning, "note": note, "reviewer": reviewer,
                 });
                 append_event(tx, reviewer, "review", &format!("spectrum:{id}"), &payload)?;
-                reviews.push(Review {
-                    id: review_id,
-                    spectrum_id: id,
-                    revision: rec.revision,
-                    reviewer: reviewer.to_string(),
-                    at: at.clone(),
-                    decision: decision.name().to_string(),
-                    meaning: meaning.clone(),
-                    note: note.clone(),
-                    imported_from: None,
-                });
+                reviews.push(review);
             }
             Ok((reviews, ids.to_vec()))
         })

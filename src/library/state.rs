@@ -20,6 +20,16 @@ pub(super) fn load_recipes(conn: &Connection) -> Result<Recipes> {
     Ok(out)
 }
 
+/// Sets a setting, whether or not it was set before.
+pub(super) fn put_setting(tx: &Connection, key: &str, value: &str) -> Result<()> {
+    tx.execute(
+        "INSERT INTO setting (key, value) VALUES (?1, ?2)
+         ON CONFLICT (key) DO UPDATE SET value = excluded.value",
+        [key, value],
+    )?;
+    Ok(())
+}
+
 pub(super) fn bump_generation(tx: &Connection) -> Result<i64> {
     tx.execute("UPDATE setting SET value = CAST(CAST(value AS INTEGER) + 1 AS TEXT) WHERE key = 'generation'", [])?;
     Ok(tx.query_row(

@@ -6,11 +6,12 @@ use serde::Serialize;
 
 use super::events::append_event;
 use super::records::f32_bytes;
+use super::review::Review;
 use super::state::{bump_generation, reweigh};
 use super::{Library, Staged, now};
 use crate::error::{Error, Result};
 use crate::prepare::Prepared;
-use crate::spectrum::{Metadata, Status};
+use crate::spectrum::{Metadata, RawSpectrum, Status};
 
 /// What storing one staged spectrum did.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -93,29 +94,34 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
         .map(|s| s.to_string_lossy().into_owned())
         .unwrap_or_default();
     let created_at = now();
-    tx.execute(
-        "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
-                               x_unit, y_unit, submitted_by, created_at)
-         VALUES (?1, ?2, 'pending', 1, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
-        params![
+    let spectrum_id = insert_spectrum(
+        tx,
+        &NewSpectrum {
             compound_id,
             technique,
-            file_name,
-            staged.raw.file_sha256,
-            raw_sha256,
-            staged.raw.canonical_bytes(),
-            staged.raw.x_unit.name(),
-            staged.raw.y_unit.name(),
-            sub.submitted_by,
-            created_at,
-        ],
+            status: Status::Pending,
+            current_revision: 1,
+            file_name: &file_name,
+            file_sha256: &staged.raw.file_sha256,
+            raw_sha256: &raw_sha256,
+            raw: &staged.raw,
+            submitted_by: &sub.submitted_by,
+            created_at: &created_at,
+            withdrawn_reason: None,
+        },
     )?;
-    let spectrum_id = tx.last_insert_rowid();
     let metadata_json = serde_json::to_string(m)?;
-    tx.execute(
-        "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
-         VALUES (?1, 1, ?2, ?3, ?4, NULL, ?5)",
-        params![spectrum_id, metadata_json, created_at, sub.submitted_by, compound_id],
+    insert_revision(
+        tx,
+        &NewRevision {
+            spectrum_id,
+            number: 1,
+            metadata_json: &metadata_json,
+            created_at: &created_at,
+            created_by: &sub.submitted_by,
+            reason: None,
+            compound_id: Some(compound_id),
+        },
     )?;
     insert_prepared(tx, spectrum_id, &staged.prepared)?;
     reweigh(
@@ -197,6 +203,81 @@ pub(super) fn present_by_raw(
         .optional()?)
 }
 
+// The writes below are the only place each row is written from: storing, the bundle import,
+// curation and recipe changes all go through them.
+
+/// A new `spectrum` row: the raw points as staged, and what the caller knows of their history
+/// (a new spectrum is pending at revision 1; one imported from a bundle keeps its own).
+pub(super) struct NewSpectrum<'a> {
+    pub(super) compound_id: i64,
+    pub(super) technique: &'a str,
+    pub(super) status: Status,
+    pub(super) current_revision: i64,
+    pub(super) file_name: &'a str,
+    pub(super) file_sha256: &'a str,
+    pub(super) raw_sha256: &'a str,
+    pub(super) raw: &'a RawSpectrum,
+    pub(super) submitted_by: &'a str,
+    pub(super) created_at: &'a str,
+    pub(super) withdrawn_reason: Option<&'a str>,
+}
+
+/// Inserts a spectrum row and returns its id.
+pub(super) fn insert_spectrum(tx: &Connection, s: &NewSpectrum<'_>) -> Result<i64> {
+    tx.execute(
+        "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
+                               x_unit, y_unit, submitted_by, created_at, withdrawn_reason)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+        params![
+            s.compound_id,
+            s.technique,
+            s.status.name(),
+            s.current_revision,
+            s.file_name,
+            s.file_sha256,
+            s.raw_sha256,
+            s.raw.canonical_bytes(),
+            s.raw.x_unit.name(),
+            s.raw.y_unit.name(),
+            s.submitted_by,
+            s.created_at,
+            s.withdrawn_reason,
+        ],
+    )?;
+    Ok(tx.last_insert_rowid())
+}
+
+/// A new `revision` row: one version of a spectrum's metadata.
+pub(super) struct NewRevision<'a> {
+    pub(super) spectrum_id: i64,
+    pub(super) number: i64,
+    pub(super) metadata_json: &'a str,
+    pub(super) created_at: &'a str,
+    pub(super) created_by: &'a str,
+    /// Why (none for the first revision).
+    pub(super) reason: Option<&'a str>,
+    /// The compound the revision names (a bundle carries it for the current revision only).
+    pub(super) compound_id: Option<i64>,
+}
+
+/// Inserts a revision row.
+pub(super) fn insert_revision(tx: &Connection, r: &NewRevision<'_>) -> Result<()> {
+    tx.execute(
+        "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+        params![
+            r.spectrum_id,
+            r.number,
+            r.metadata_json,
+            r.created_at,
+            r.created_by,
+            r.reason,
+            r.compound_id
+        ],
+    )?;
+    Ok(())
+}
+
 /// Stores the prepared form of a new spectrum.
 pub(super) fn insert_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -> Result<()> {
     tx.execute(
@@ -209,6 +290,61 @@ pub(super) fn insert_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -
             serde_json::to_string(&p.warnings)?
         ],
     )?;
+    Ok(())
+}
+
+/// Replaces the prepared form of a spectrum prepared again (a new solvent, a new recipe).
+pub(super) fn update_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -> Result<()> {
+    // Cached: a recipe change runs it once per spectrum of the technique.
+    tx.prepare_cached(
+        "UPDATE prepared SET vector = ?2, peaks = ?3, y_unit = ?4, warnings = ?5 WHERE spectrum_id = ?1",
+    )?
+    .execute(params![
+        spectrum_id,
+        f32_bytes(&p.vector),
+        serde_json::to_string(&p.peaks)?,
+        p.y_unit.name(),
+        serde_json::to_string(&p.warnings)?
+    ])?;
+    Ok(())
+}
+
+/// Inserts a sign-off row (its `id` is not read) and returns its id.
+pub(super) fn insert_review(tx: &Connection, r: &Review) -> Result<i64> {
+    tx.execute(
+        "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning, note, imported_from)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
+        params![
+            r.spectrum_id,
+            r.revision,
+            r.reviewer,
+            r.at,
+            r.decision,
+            r.meaning,
+            r.note,
+            r.imported_from
+        ],
+    )?;
+    Ok(tx.last_insert_rowid())
+}
+
+/// Changes a spectrum's status; a withdrawal records its reason beside it.
+pub(super) fn set_status(
+    tx: &Connection,
+    spectrum_id: i64,
+    status: Status,
+    withdrawn_reason: Option<&str>,
+) -> Result<()> {
+    match withdrawn_reason {
+        None => tx.execute(
+            "UPDATE spectrum SET status = ?2 WHERE id = ?1",
+            params![spectrum_id, status.name()],
+        )?,
+        Some(reason) => tx.execute(
+            "UPDATE spectrum SET status = ?2, withdrawn_reason = ?3 WHERE id = ?1",
+            params![spectrum_id, status.name(), reason],
+        )?,
+    };
     Ok(())
 }
 
