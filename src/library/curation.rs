@@ -113,7 +113,7 @@ impl Library {
                 .as_deref()
                 .map(str::parse::<Solvent>)
                 .transpose()?;
-            let x_unit: XUnit = parse_unit(&rec.x_unit)?;
+            let x_unit: XUnit = rec.x_unit.parse()?;
             let y_unit: YUnit = rec.y_unit.parse()?;
             let label = std::path::PathBuf::from(format!("spectrum {id}"));
             Some(prepare_raw(
@@ -274,11 +274,6 @@ fn correct_sole_compound(tx: &Connection, id: i64, metadata: &Metadata) -> Resul
         )?;
     }
     Ok(())
-}
-
-/// Parses a stored x unit name.
-pub(super) fn parse_unit(name: &str) -> Result<XUnit> {
-    name.parse()
 }
 
 #[cfg(test)]

@@ -1,20 +1,21 @@
 //! Rows of the library as read: spectrum records, hit-list rows, summaries, counts and
 //! search candidates, and the queries that read them.
 
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
 
 use rusqlite::{OptionalExtension, params};
 use serde::Serialize;
 
-// `mod.rs` reaches these through `records::`; they live with the events and the state.
 use super::Library;
-pub(super) use super::events::append_event;
-pub(super) use super::state::load_recipes;
 use crate::error::{Error, Result};
 use crate::prepare::{Peak, Prepared, Recipe};
 use crate::spectrum::{Metadata, Status};
 use crate::technique::Technique;
 use crate::text::IndexDoc;
+
+// `mod.rs` reaches these through `records::`; they live with the events and the state.
+pub(super) use super::events::append_event;
+pub(super) use super::state::load_recipes;
 
 /// Everything stored about one spectrum at its current revision.
 #[derive(Debug, Clone, Serialize)]
@@ -121,10 +122,6 @@ pub struct Stats {
 pub struct Candidate {
     /// Spectrum id.
     pub spectrum_id: i64,
-    /// Compound id.
-    pub compound_id: i64,
-    /// Status.
-    pub status: Status,
     /// Prepared form.
     pub prepared: Prepared,
 }
@@ -361,22 +358,21 @@ impl Library {
     /// The spectra of one technique in the given statuses, with their prepared forms, in id order.
     pub fn candidates(&self, technique: Technique, statuses: &[Status]) -> Result<Vec<Candidate>> {
         let mut stmt = self.conn.prepare(
-            "SELECT s.id, s.compound_id, s.status, p.vector, p.peaks, p.y_unit FROM spectrum s
+            "SELECT s.id, s.status, p.vector, p.peaks, p.y_unit FROM spectrum s
              JOIN prepared p ON p.spectrum_id = s.id WHERE s.technique = ?1 ORDER BY s.id",
         )?;
         let rows = stmt.query_map([technique.name()], |r| {
             Ok((
                 r.get::<_, i64>(0)?,
-                r.get::<_, i64>(1)?,
-                r.get::<_, String>(2)?,
-                r.get::<_, Vec<u8>>(3)?,
+                r.get::<_, String>(1)?,
+                r.get::<_, Vec<u8>>(2)?,
+                r.get::<_, String>(3)?,
                 r.get::<_, String>(4)?,
-                r.get::<_, String>(5)?,
             ))
         })?;
         let mut out = Vec::new();
         for row in rows {
-            let (spectrum_id, compound_id, status, vector, peaks, y_unit) = row?;
+            let (spectrum_id, status, vector, peaks, y_unit) = row?;
             let status: Status = status.parse()?;
             if !statuses.contains(&status) {
                 continue;
@@ -384,8 +380,6 @@ impl Library {
             let peaks: Vec<Peak> = serde_json::from_str(&peaks)?;
             out.push(Candidate {
                 spectrum_id,
-                compound_id,
-                status,
                 prepared: Prepared {
                     technique,
                     vector: f32_from_bytes(&vector),
@@ -416,19 +410,5 @@ impl Library {
             params![technique.name(), status.name()],
             |r| r.get(0),
         )?)
-    }
-
-    /// Compound names by id, for labelling hits.
-    pub fn compound_names(&self, ids: &[i64]) -> Result<HashMap<i64, String>> {
-        let mut stmt = self
-            .conn
-            .prepare_cached("SELECT name FROM compound WHERE id = ?1")?;
-        let mut out = HashMap::new();
-        for &id in ids {
-            if let Some(name) = stmt.query_row([id], |r| r.get::<_, String>(0)).optional()? {
-                out.insert(id, name);
-            }
-        }
-        Ok(out)
     }
 }
