@@ -175,6 +175,27 @@ mod tests {
             .unwrap()
     }
 
+    /// Pins the event hash encoding, which existing libraries' chains depend on. The value is
+    /// SHA-256 of the fields as a compact JSON array, computed independently with Python's
+    /// `hashlib.sha256(json.dumps(fields, separators=(",", ":")).encode())`.
+    #[test]
+    fn the_event_hash_is_sha256_of_its_fields_as_a_json_array() {
+        let payload_hash = sha256_hex(br#"{"a":1}"#);
+        let hash = event_hash(
+            7,
+            "2024-05-01T12:00:00.000Z",
+            "alice",
+            "add",
+            "spectrum:3",
+            &payload_hash,
+            GENESIS_HASH,
+        );
+        assert_eq!(
+            hash,
+            "7362aafbf64acfcbf9237c69049c86b5538ae90b80061c2808290bf0d2f31735"
+        );
+    }
+
     #[test]
     fn each_event_links_to_the_one_before() {
         let lib = busy_library();
