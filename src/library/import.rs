@@ -311,6 +311,15 @@ mod tests {
         assert_eq!((again.imported(), again.already_present()), (0, 3));
         assert_eq!(ids(&again), ids(&first));
         assert_eq!(lib.last_event().unwrap(), events);
+        // Found before they are read and prepared: a CAS RN with a wrong check digit, which
+        // staging refuses, does not matter for a file already stored.
+        std::fs::write(
+            &manifest,
+            "file,technique,name,cas\ns1.csv,ir,acetone,67-64-2\n",
+        )
+        .unwrap();
+        let skipped = import(&mut lib, &manifest, false);
+        assert_eq!(ids(&skipped), [ids(&first)[0]]);
         // Other bytes holding the same points: found by the raw points when stored.
         std::fs::write(
             tmp.path().join("copy.csv"),
