@@ -1,4 +1,5 @@
-//! Portable bundles: export spectra with their full history, import them elsewhere.
+//! Portable bundles: export spectra with their full history, and verify a bundle before it is
+//! imported elsewhere (`bundle_import`).
 //!
 //! A bundle is a folder: `spectra/<id>.<technique>.csv` (raw points exactly as imported),
 //! `manifest.csv` (metadata, provenance, revision and review history), `bundle.json` (format,
@@ -9,16 +10,11 @@ use std::collections::{BTreeMap, BTreeSet, HashSet};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use rayon::prelude::*;
-use rusqlite::params;
 use serde::{Deserialize, Serialize};
 
-use super::curation::{Review, reweigh};
-use super::manifest::{KNOWN_COLUMNS, read_bundle_manifest, resolve_within};
-use super::records::{
-    SpectrumRecord, append_event, find_or_create_compound, insert_prepared, present_by_raw,
-};
-use super::{ContentSum, Library, Outcome, Staged, fingerprint, now, record_hash, stage};
+use super::manifest::{KNOWN_COLUMNS, resolve_within};
+use super::records::SpectrumRecord;
+use super::{ContentSum, Library, fingerprint, now, record_hash};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::sha256_hex;
 use crate::spectrum::{Metadata, Status};
@@ -53,12 +49,12 @@ pub struct BundleInfo {
 
 /// One earlier or current revision, as carried in a bundle.
 #[derive(Debug, Clone, Serialize, Deserialize)]
-struct RevisionEntry {
-    number: i64,
-    metadata: Metadata,
-    created_at: String,
-    created_by: String,
-    reason: Option<String>,
+pub(super) struct RevisionEntry {
+    pub(super) number: i64,
+    pub(super) metadata: Metadata,
+    pub(super) created_at: String,
+    pub(super) created_by: String,
+    pub(super) reason: Option<String>,
 }
 
 /// What an export wrote.
@@ -277,54 +273,6 @@ impl Library {
         }
         Ok(out)
     }
-
-    /// Imports a bundle folder. Every checksum is verified first; if any file is missing,
-    /// altered or outside the folder, nothing is imported. The whole bundle is one
-    /// transaction. Spectra already present (same technique and raw points) are skipped.
-    pub fn import_bundle(&mut self, dir: &Path, actor: &str) -> Result<(BundleInfo, Vec<Outcome>)> {
-        let info = verify_bundle(dir)?;
-        let manifest = dir.join("manifest.csv");
-        let rows = read_bundle_manifest(&manifest)?;
-        let recipes = self.recipes.clone();
-        let staged: Vec<(usize, Result<Staged>, BTreeMap<String, String>)> = rows
-            .into_par_iter()
-            .map(|row| {
-                (
-                    row.line,
-                    row.submission.and_then(|s| stage(&recipes, s)),
-                    row.provenance,
-                )
-            })
-            .collect();
-        let mut good = Vec::with_capacity(staged.len());
-        for (line, s, provenance) in staged {
-            match s {
-                Ok(s) => good.push((line, s, provenance)),
-                Err(e) => {
-                    return Err(Error::input(
-                        Location::line(&manifest, line),
-                        format!("this bundle row cannot be imported: {e}"),
-                        "the bundle is damaged or was written by an incompatible whorl; nothing was imported",
-                    ));
-                }
-            }
-        }
-        let source = format!("bundle {} ({})", &info.fingerprint[..16], dir.display());
-        let outcomes = self.write(|tx| {
-            let mut outcomes = Vec::with_capacity(good.len());
-            let mut touched = Vec::new();
-            for (line, staged, provenance) in &good {
-                let at = || Location::line(&manifest, *line);
-                let o = import_one(tx, staged, provenance, actor, &source, &info, at)?;
-                if let Outcome::Added { spectrum_id, .. } = o {
-                    touched.push(spectrum_id);
-                }
-                outcomes.push(o);
-            }
-            Ok((outcomes, touched))
-        })?;
-        Ok((info, outcomes))
-    }
 }
 
 fn csv_error(e: csv::Error) -> Error {
@@ -416,112 +364,126 @@ pub fn verify_bundle(dir: &Path) -> Result<BundleInfo> {
     Ok(info)
 }
 
-fn import_one(
-    tx: &rusqlite::Connection,
-    staged: &Staged,
-    provenance: &BTreeMap<String, String>,
-    actor: &str,
-    source: &str,
-    info: &BundleInfo,
-    at: impl Fn() -> Location,
-) -> Result<Outcome> {
-    let technique = staged.submission.technique.name();
-    let raw_sha256 = staged.raw.raw_sha256();
-    let field = |k: &str| provenance.get(k).map(String::as_str).unwrap_or("");
-    let bad = |what: &str| {
-        Error::input(
-            at(),
-            format!("bundle row has an unreadable {what}"),
-            "export the bundle again",
-        )
-    };
-    if field("whorl_raw_sha256") != raw_sha256 {
-        return Err(Error::input(
-            at(),
-            "the raw points do not hash to the value the bundle records",
-            "export the bundle again",
-        ));
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::testing::{curated, rows};
+
+    fn export(lib: &Library, dir: &Path) -> ExportReport {
+        lib.export(dir, None, None, "carol", &|_, _| {}).unwrap()
     }
-    if let Some(spectrum_id) = present_by_raw(tx, technique, &raw_sha256)? {
-        return Ok(Outcome::AlreadyPresent { spectrum_id });
+
+    /// The SHA256SUMS location and reason of a refused bundle.
+    fn refusal(dir: &Path) -> (Option<usize>, String) {
+        match verify_bundle(dir) {
+            Err(Error::Input { at, reason, .. }) => {
+                assert_eq!(at.file, dir.join("SHA256SUMS"));
+                (at.line, reason)
+            }
+            other => panic!("expected a refusal, got {other:?}"),
+        }
     }
-    let status: Status = field("whorl_status").parse().map_err(|_| bad("status"))?;
-    let revisions: Vec<RevisionEntry> =
-        serde_json::from_str(field("whorl_revisions")).map_err(|_| bad("revision history"))?;
-    let reviews: Vec<Review> =
-        serde_json::from_str(field("whorl_reviews")).map_err(|_| bad("review history"))?;
-    let current: i64 = field("whorl_revision")
-        .parse()
-        .map_err(|_| bad("revision number"))?;
-    let metadata = &staged.submission.metadata;
-    if revisions.last().map(|r| r.number) != Some(current)
-        || revisions.last().map(|r| &r.metadata) != Some(metadata)
-    {
-        return Err(bad("current revision (it differs from the row's metadata)"));
+
+    /// The line of SHA256SUMS that lists `file`.
+    fn listed_at(dir: &Path, file: &str) -> usize {
+        let sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        1 + sums
+            .lines()
+            .position(|l| l.ends_with(&format!("  {file}")))
+            .unwrap()
     }
-    let compound_id = find_or_create_compound(tx, metadata)?;
-    let withdrawn = Some(field("whorl_withdrawn_reason").to_string()).filter(|s| !s.is_empty());
-    tx.execute(
-        "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
-                               x_unit, y_unit, submitted_by, created_at, withdrawn_reason)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
-        params![
-            compound_id,
-            technique,
-            status.name(),
-            current,
-            field("whorl_original_file"),
-            field("whorl_original_file_sha256"),
-            raw_sha256,
-            staged.raw.canonical_bytes(),
-            staged.raw.x_unit.name(),
-            staged.raw.y_unit.name(),
-            staged.submission.submitted_by,
-            field("whorl_created_at"),
-            withdrawn,
-        ],
-    )?;
-    let spectrum_id = tx.last_insert_rowid();
-    for r in &revisions {
-        let compound = (r.number == current).then_some(compound_id);
-        tx.execute(
-            "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-            params![spectrum_id, r.number, serde_json::to_string(&r.metadata)?, r.created_at, r.created_by, r.reason, compound],
-        )?;
+
+    #[test]
+    fn an_exported_bundle_verifies_and_names_what_it_holds() {
+        let lib = curated();
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        let report = export(&lib, &dir);
+        let info = verify_bundle(&dir).unwrap();
+        assert_eq!(info.spectra, 3);
+        assert_eq!(info.format, BUNDLE_FORMAT);
+        assert_eq!(info.exported_by, "carol");
+        // Everything exported: the bundle's fingerprint is the library's.
+        assert_eq!(info.fingerprint, lib.fingerprint().unwrap());
+        assert_eq!(report.info.fingerprint, info.fingerprint);
+        let mut files: Vec<String> = std::fs::read_dir(dir.join("spectra"))
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .collect();
+        files.sort();
+        assert_eq!(files, ["1.ir.csv", "2.ir.csv", "3.ir.csv"]);
+        // Nothing is left beside the bundle.
+        assert_eq!(std::fs::read_dir(tmp.path()).unwrap().count(), 1);
     }
-    let imported_from = format!("{source}, spectrum {}", field("whorl_original_id"));
-    for r in &reviews {
-        tx.execute(
-            "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning, note, imported_from)
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-            params![spectrum_id, r.revision, r.reviewer, r.at, r.decision, r.meaning, r.note, imported_from],
-        )?;
+
+    #[test]
+    fn a_file_changed_after_export_is_refused_by_name() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        let file = dir.join("spectra/2.ir.csv");
+        let mut text = std::fs::read_to_string(&file).unwrap();
+        text = text.replacen("\n4000,", "\n4000.5,", 1);
+        std::fs::write(&file, text).unwrap();
+        let (line, reason) = refusal(&dir);
+        assert_eq!(reason, "spectra/2.ir.csv does not match its checksum");
+        assert_eq!(line, Some(listed_at(&dir, "spectra/2.ir.csv")));
+        // Nothing is imported from it.
+        let mut other = Library::in_memory("t").unwrap();
+        assert!(other.import_bundle(&dir, "dave").is_err());
+        assert_eq!(rows(&other, "spectrum"), 0);
     }
-    insert_prepared(tx, spectrum_id, &staged.prepared)?;
-    let meta_json = serde_json::to_string(metadata)?;
-    reweigh(tx, technique, &raw_sha256, None, Some((status, &meta_json)))?;
-    let payload = serde_json::json!({
-        "spectrum": spectrum_id,
-        "compound": compound_id,
-        "technique": technique,
-        "raw_sha256": raw_sha256,
-        "file_sha256": field("whorl_original_file_sha256"),
-        "status": status,
-        "current_revision": current,
-        "revisions": revisions,
-        "reviews": reviews,
-        "bundle": { "fingerprint": info.fingerprint, "original_id": field("whorl_original_id"), "exported_by": info.exported_by, "exported_at": info.exported_at },
-    });
-    append_event(
-        tx,
-        actor,
-        "import",
-        &format!("spectrum:{spectrum_id}"),
-        &payload,
-    )?;
-    Ok(Outcome::Added {
-        spectrum_id,
-        compound_id,
-    })
+
+    #[test]
+    fn a_changed_checksum_line_is_refused_by_name() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        let sums_path = dir.join("SHA256SUMS");
+        let sums = std::fs::read_to_string(&sums_path).unwrap();
+        let at = listed_at(&dir, "manifest.csv");
+        let changed: Vec<String> = sums
+            .lines()
+            .enumerate()
+            .map(|(i, l)| {
+                if i + 1 != at {
+                    return l.to_string();
+                }
+                let flipped = if l.starts_with('0') { "1" } else { "0" };
+                format!("{flipped}{}", &l[1..])
+            })
+            .collect();
+        std::fs::write(&sums_path, changed.join("\n") + "\n").unwrap();
+        assert_eq!(
+            refusal(&dir),
+            (Some(at), "manifest.csv does not match its checksum".into())
+        );
+    }
+
+    #[test]
+    fn a_file_the_checksums_do_not_list_is_refused_by_name() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        std::fs::write(dir.join("spectra/9.ir.csv"), "x,y\n1000,1\n").unwrap();
+        let (line, reason) = refusal(&dir);
+        assert_eq!(line, None);
+        assert_eq!(
+            reason,
+            "spectra/9.ir.csv is in the bundle but has no checksum"
+        );
+    }
+
+    #[test]
+    fn a_checksum_line_pointing_outside_the_bundle_is_refused() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        let sums_path = dir.join("SHA256SUMS");
+        let mut sums = std::fs::read_to_string(&sums_path).unwrap();
+        sums.push_str(&format!("{}  ../secret.csv\n", "0".repeat(64)));
+        std::fs::write(&sums_path, sums).unwrap();
+        let (_, reason) = refusal(&dir);
+        assert!(reason.contains("outside"), "{reason}");
+    }
 }

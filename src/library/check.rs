@@ -7,7 +7,8 @@ use rayon::prelude::*;
 use serde::Serialize;
 use serde_json::Value;
 
-use super::records::{GENESIS_HASH, SpectrumRecord, event_hash, f32_bytes};
+use super::events::{GENESIS_HASH, event_hash};
+use super::records::{SpectrumRecord, f32_bytes};
 use super::{ContentSum, Library, Recipes, prepare_stored, record_hash};
 use crate::error::Result;
 use crate::spectrum::sha256_hex;

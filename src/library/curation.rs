@@ -1,69 +1,19 @@
-//! Curation: review sign-off, revisions, withdrawal.
+//! Curation: revisions and withdrawal.
 
 use rusqlite::{Connection, OptionalExtension, params};
-use serde::{Deserialize, Serialize};
+use serde::Serialize;
 
-use super::records::{
-    SpectrumRecord, append_event, bump_generation, f32_bytes, find_or_create_compound,
-    update_content_sum,
+use super::events::append_event;
+use super::records::SpectrumRecord;
+use super::state::reweigh;
+use super::store::{
+    NewRevision, find_or_create_compound, insert_revision, set_status, update_prepared,
 };
-use super::{Library, now, prepare_raw, record_hash};
+use super::{Library, now, prepare_raw};
 use crate::error::{Error, Result};
 use crate::prepare::Solvent;
 use crate::spectrum::{Metadata, Status};
 use crate::spectrum::{XUnit, YUnit};
-
-/// A reviewer's decision.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Decision {
-    /// The spectrum is fit to be a reference: it becomes `verified`.
-    Approve,
-    /// It is not: it stays `pending` and needs a revision (or withdrawal).
-    Reject,
-}
-
-impl Decision {
-    fn name(self) -> &'static str {
-        match self {
-            Decision::Approve => "approved",
-            Decision::Reject => "rejected",
-        }
-    }
-
-    /// What the signature means when the reviewer does not say (21 CFR 11.50 asks that a
-    /// signature state its meaning).
-    pub fn default_meaning(self) -> &'static str {
-        match self {
-            Decision::Approve => {
-                "reviewed against its source records and approved as a reference spectrum"
-            }
-            Decision::Reject => "reviewed and not approved as a reference spectrum",
-        }
-    }
-}
-
-/// One sign-off.
-#[derive(Debug, Clone, Serialize, Deserialize)]
-pub struct Review {
-    /// Row id.
-    pub id: i64,
-    /// The spectrum.
-    pub spectrum_id: i64,
-    /// The revision reviewed.
-    pub revision: i64,
-    /// Who signed.
-    pub reviewer: String,
-    /// When (UTC).
-    pub at: String,
-    /// "approved" or "rejected".
-    pub decision: String,
-    /// What the signature means.
-    pub meaning: String,
-    /// The reviewer's note.
-    pub note: Option<String>,
-    /// Set when the sign-off came in with a bundle: where from.
-    pub imported_from: Option<String>,
-}
 
 /// Changes to metadata in a revision; `None` leaves a field as it is, an empty string clears it.
 #[derive(Debug, Clone, Default)]
@@ -132,232 +82,7 @@ impl MetadataPatch {
     }
 }
 
-fn same_person(a: &str, b: &str) -> bool {
-    a.trim().eq_ignore_ascii_case(b.trim())
-}
-
-/// Moves a spectrum's contribution to the fingerprint from its old state to its new one.
-pub(super) fn reweigh(
-    tx: &Connection,
-    technique: &str,
-    raw_sha256: &str,
-    old: Option<(Status, &str)>,
-    new: Option<(Status, &str)>,
-) -> Result<()> {
-    update_content_sum(tx, |sum| {
-        if let Some((status, meta)) = old.filter(|(s, _)| s.searchable()) {
-            sum.remove(&record_hash(technique, status.name(), raw_sha256, meta));
-        }
-        if let Some((status, meta)) = new.filter(|(s, _)| s.searchable()) {
-            sum.add(&record_hash(technique, status.name(), raw_sha256, meta));
-        }
-    })
-}
-
 impl Library {
-    /// Runs `f` in one write transaction, bumps the generation, commits, and refreshes the
-    /// text-index documents of the spectra `f` reports as touched.
-    pub(super) fn write<T>(
-        &mut self,
-        f: impl FnOnce(&Connection) -> Result<(T, Vec<i64>)>,
-    ) -> Result<T> {
-        let tx = self
-            .conn
-            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
-        let (value, touched) = f(&tx)?;
-        let generation = bump_generation(&tx)?;
-        tx.commit()?;
-        self.sync_text(&touched, generation)?;
-        Ok(value)
-    }
-
-    /// Whether the library lets a submitter review their own spectra (off by default).
-    pub fn allow_self_review(&self) -> Result<bool> {
-        Ok(self.setting("allow_self_review")?.as_deref() == Some("true"))
-    }
-
-    /// Sets the self-review policy, recording who changed it.
-    pub fn set_self_review(&mut self, allow: bool, actor: &str) -> Result<()> {
-        self.write(|tx| {
-            tx.execute(
-                "INSERT INTO setting (key, value) VALUES ('allow_self_review', ?1)
-                 ON CONFLICT (key) DO UPDATE SET value = excluded.value",
-                [allow.to_string()],
-            )?;
-            append_event(
-                tx,
-                actor,
-                "policy",
-                "library",
-                &serde_json::json!({ "allow_self_review": allow }),
-            )?;
-            Ok(((), vec![]))
-        })
-    }
-
-    /// Sign-offs of a spectrum, oldest first.
-    pub fn reviews(&self, spectrum_id: i64) -> Result<Vec<Review>> {
-        let mut stmt = self.conn.prepare(
-            "SELECT id, spectrum_id, revision, reviewer, at, decision, meaning, note, imported_from
-             FROM review WHERE spectrum_id = ?1 ORDER BY id",
-        )?;
-        let rows = stmt.query_map([spectrum_id], |r| {
-            Ok(Review {
-                id: r.get(0)?,
-                spectrum_id: r.get(1)?,
-                revision: r.get(2)?,
-                reviewer: r.get(3)?,
-                at: r.get(4)?,
-                decision: r.get(5)?,
-                meaning: r.get(6)?,
-                note: r.get(7)?,
-                imported_from: r.get(8)?,
-            })
-        })?;
-        Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
-    }
-
-    /// Records a reviewer's sign-off on the current revision of a pending spectrum.
-    pub fn review(
-        &mut self,
-        id: i64,
-        reviewer: &str,
-        decision: Decision,
-        meaning: Option<&str>,
-        note: Option<&str>,
-    ) -> Result<Review> {
-        let mut done = self.review_many(&[id], reviewer, decision, meaning, note)?;
-        Ok(done.pop().expect("one sign-off per spectrum"))
-    }
-
-    /// Records the same sign-off on several spectra in one transaction; refuses all of them if
-    /// any one cannot be signed (see [`Library::review`] for the rules).
-    pub fn review_many(
-        &mut self,
-        ids: &[i64],
-        reviewer: &str,
-        decision: Decision,
-        meaning: Option<&str>,
-        note: Option<&str>,
-    ) -> Result<Vec<Review>> {
-        let allow_self = self.allow_self_review()?;
-        let mut checked = Vec::with_capacity(ids.len());
-        for &id in ids {
-            let rec = self.reviewable(id, reviewer, allow_self)?;
-            let metadata_json = serde_json::to_string(&rec.metadata)?;
-            checked.push((rec, metadata_json));
-        }
-        let meaning = meaning
-            .map(str::trim)
-            .filter(|m| !m.is_empty())
-            .unwrap_or(decision.default_meaning())
-            .to_string();
-        let note = note
-            .map(str::trim)
-            .filter(|n| !n.is_empty())
-            .map(str::to_string);
-        let at = now();
-        self.write(|tx| {
-            let mut reviews = Vec::with_capacity(checked.len());
-            for (rec, metadata_json) in &checked {
-                let id = rec.id;
-                tx.execute(
-                    "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning, note)
-                     VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-                    params![id, rec.revision, reviewer, at, decision.name(), meaning, note],
-                )?;
-                let review_id = tx.last_insert_rowid();
-                if decision == Decision::Approve {
-                    tx.execute("UPDATE spectrum SET status = 'verified' WHERE id = ?1", [id])?;
-                    reweigh(
-                        tx,
-                        rec.technique.name(),
-                        &rec.raw_sha256,
-                        Some((Status::Pending, metadata_json)),
-                        Some((Status::Verified, metadata_json)),
-                    )?;
-                }
-                let payload = serde_json::json!({
-                    "spectrum": id, "revision": rec.revision, "decision": decision.name(),
-                    "meaning": meaning, "note": note, "reviewer": reviewer,
-                });
-                append_event(tx, reviewer, "review", &format!("spectrum:{id}"), &payload)?;
-                reviews.push(Review {
-                    id: review_id,
-                    spectrum_id: id,
-                    revision: rec.revision,
-                    reviewer: reviewer.to_string(),
-                    at: at.clone(),
-                    decision: decision.name().to_string(),
-                    meaning: meaning.clone(),
-                    note: note.clone(),
-                    imported_from: None,
-                });
-            }
-            Ok((reviews, ids.to_vec()))
-        })
-    }
-
-    /// The spectrum's current record, if `reviewer` may sign it off now.
-    fn reviewable(&self, id: i64, reviewer: &str, allow_self: bool) -> Result<SpectrumRecord> {
-        let rec = self.spectrum(id)?;
-        let revision_author: String = self.conn.query_row(
-            "SELECT created_by FROM revision WHERE spectrum_id = ?1 AND number = ?2",
-            params![id, rec.revision],
-            |r| r.get(0),
-        )?;
-        match rec.status {
-            Status::Withdrawn => {
-                return Err(Error::invalid(
-                    format!(
-                        "spectrum {id} is withdrawn; withdrawn spectra are kept for history and cannot be reviewed"
-                    ),
-                    "add a new measurement with `whorl add` if the compound needs a reference again",
-                ));
-            }
-            Status::Verified => {
-                return Err(Error::invalid(
-                    format!(
-                        "spectrum {id} (revision {}) is already verified",
-                        rec.revision
-                    ),
-                    "to change it, make a new revision with `whorl revise`; that revision is reviewed in turn",
-                ));
-            }
-            Status::Pending => {}
-        }
-        if let Some(r) = self
-            .reviews(id)?
-            .into_iter()
-            .rev()
-            .find(|r| r.revision == rec.revision && r.decision == "rejected")
-        {
-            return Err(Error::invalid(
-                format!(
-                    "revision {} of spectrum {id} was rejected by {} at {}",
-                    rec.revision, r.reviewer, r.at
-                ),
-                "correct it with `whorl revise` (the new revision is reviewed in turn) or `whorl withdraw` it",
-            ));
-        }
-        if !allow_self
-            && (same_person(reviewer, &rec.submitted_by) || same_person(reviewer, &revision_author))
-        {
-            return Err(Error::invalid(
-                format!(
-                    "{reviewer} submitted spectrum {id}{}; the reviewer must be someone else",
-                    if same_person(reviewer, &rec.submitted_by) {
-                        ""
-                    } else {
-                        "'s current revision"
-                    }
-                ),
-                "ask a second analyst to review it (--by WHO); self-review is off by library policy",
-            ));
-        }
-        Ok(rec)
-    }
-
     /// Adds a revision with changed metadata. The new revision replaces the old one in search
     /// and goes back to `pending`; the old one stays readable. Returns the new revision number.
     pub fn revise(
@@ -388,7 +113,7 @@ impl Library {
                 .as_deref()
                 .map(str::parse::<Solvent>)
                 .transpose()?;
-            let x_unit: XUnit = parse_unit(&rec.x_unit)?;
+            let x_unit: XUnit = rec.x_unit.parse()?;
             let y_unit: YUnit = rec.y_unit.parse()?;
             let label = std::path::PathBuf::from(format!("spectrum {id}"));
             Some(prepare_raw(
@@ -412,20 +137,25 @@ impl Library {
         self.write(|tx| {
             correct_sole_compound(tx, id, &metadata)?;
             let compound_id = find_or_create_compound(tx, &metadata)?;
-            tx.execute(
-                "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
-                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
-                params![id, number, new_json, now(), actor, reason, compound_id],
+            insert_revision(
+                tx,
+                &NewRevision {
+                    spectrum_id: id,
+                    number,
+                    metadata_json: &new_json,
+                    created_at: &now(),
+                    created_by: actor,
+                    reason: reason.as_deref(),
+                    compound_id: Some(compound_id),
+                },
             )?;
             tx.execute(
                 "UPDATE spectrum SET current_revision = ?2, status = 'pending', compound_id = ?3 WHERE id = ?1",
                 params![id, number, compound_id],
             )?;
             if let Some(p) = &reprepared {
-                tx.execute(
-                    "UPDATE prepared SET vector = ?2, peaks = ?3, warnings = ?4 WHERE spectrum_id = ?1",
-                    params![id, f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?, serde_json::to_string(&p.warnings)?],
-                )?;
+                // Prepared with the stored y unit, so the y unit written is the one stored.
+                update_prepared(tx, id, p)?;
             }
             reweigh(tx, rec.technique.name(), &rec.raw_sha256, Some((rec.status, &old_json)), Some((Status::Pending, &new_json)))?;
             let payload = serde_json::json!({
@@ -455,7 +185,7 @@ impl Library {
         }
         let meta = serde_json::to_string(&rec.metadata)?;
         self.write(|tx| {
-            tx.execute("UPDATE spectrum SET status = 'withdrawn', withdrawn_reason = ?2 WHERE id = ?1", params![id, reason])?;
+            set_status(tx, id, Status::Withdrawn, Some(reason))?;
             reweigh(tx, rec.technique.name(), &rec.raw_sha256, Some((rec.status, &meta)), None)?;
             let payload = serde_json::json!({ "spectrum": id, "revision": rec.revision, "reason": reason, "previous_status": rec.status });
             append_event(tx, actor, "withdraw", &format!("spectrum:{id}"), &payload)?;
@@ -528,7 +258,7 @@ fn correct_sole_compound(tx: &Connection, id: i64, metadata: &Metadata) -> Resul
     let Some(formula) = &metadata.formula else {
         return Ok(());
     };
-    let key = super::records::compound_key(metadata);
+    let key = super::store::compound_key(metadata);
     let sharing: Option<(i64, i64)> = tx
         .query_row(
             "SELECT c.id, (SELECT count(*) FROM spectrum s WHERE s.compound_id = c.id AND s.id != ?2)
@@ -546,7 +276,138 @@ fn correct_sole_compound(tx: &Connection, id: i64, metadata: &Metadata) -> Resul
     Ok(())
 }
 
-/// Parses a stored x unit name.
-pub(super) fn parse_unit(name: &str) -> Result<XUnit> {
-    name.parse()
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::testing::{add, ir, rows, submitted};
+    use crate::library::{Decision, prepare_stored};
+    use crate::technique::Technique;
+
+    fn notes(text: &str) -> MetadataPatch {
+        MetadataPatch {
+            notes: Some(text.into()),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn a_revision_adds_a_row_and_goes_back_to_pending() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        lib.review(id, "bob", Decision::Approve, None, None)
+            .unwrap();
+        let before = lib.fingerprint().unwrap();
+        let number = lib
+            .revise(id, &notes("from the 2023 lot"), "alice", Some("lot noted"))
+            .unwrap();
+        assert_eq!(number, 2);
+        let rec = lib.spectrum(id).unwrap();
+        assert_eq!((rec.revision, rec.status), (2, Status::Pending));
+        assert_eq!(rec.metadata.notes.as_deref(), Some("from the 2023 lot"));
+        assert_eq!(rows(&lib, "revision"), 2);
+        // The old revision stays readable as it was, with its sign-off.
+        let (old, _) = lib.spectrum_at(id, 1).unwrap();
+        assert_eq!(old.metadata.notes, None);
+        let (_, info) = lib.spectrum_at(id, 2).unwrap();
+        assert_eq!(
+            (info.created_by.as_str(), info.reason.as_deref()),
+            ("alice", Some("lot noted"))
+        );
+        assert_eq!(lib.reviews(id).unwrap()[0].revision, 1);
+        assert!(lib.spectrum_at(id, 3).is_err());
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(event.action, "revise");
+        assert_eq!(
+            (
+                event.payload["revision"].as_i64(),
+                event.payload["replaces"].as_i64()
+            ),
+            (Some(2), Some(1))
+        );
+        assert_ne!(lib.fingerprint().unwrap(), before);
+        // A revision that changes nothing is refused.
+        let err = lib
+            .revise(id, &notes("from the 2023 lot"), "alice", None)
+            .unwrap_err();
+        assert!(err.to_string().contains("changes nothing"), "{err}");
+    }
+
+    #[test]
+    fn a_new_solvent_prepares_the_spectrum_again() {
+        let mut lib = Library::in_memory("t").unwrap();
+        // A 1H profile with a line at the CDCl3 residual (7.26 ppm) and one at the DMSO-d6
+        // residual (2.50 ppm) (Gottlieb et al., J. Org. Chem. 1997), and one of the compound.
+        let line = |x: f64, at: f64| 1.0 / (1.0 + ((x - at) / 0.01).powi(2));
+        let points: Vec<(f64, f64)> = (0..2600)
+            .map(|i| 12.0 - 0.005 * f64::from(i))
+            .map(|x| (x, line(x, 7.26) + line(x, 2.5) + 3.0 * line(x, 1.2)))
+            .collect();
+        let mut s = submitted(Technique::Nmr1h, points, "sample", "alice");
+        s.submission.metadata.solvent = Some("CDCl3".into());
+        // Staged as the import would have prepared it: with its solvent.
+        s.prepared = prepare_stored(
+            0,
+            lib.recipe(Technique::Nmr1h).unwrap(),
+            &s.raw.canonical_bytes(),
+            s.raw.x_unit.name(),
+            s.raw.y_unit.name(),
+            Some("CDCl3"),
+        )
+        .unwrap();
+        let id = add(&mut lib, &s);
+        let before = lib.prepared(id).unwrap();
+        let patch = MetadataPatch {
+            solvent: Some("DMSO-d6".into()),
+            ..Default::default()
+        };
+        lib.revise(id, &patch, "alice", None).unwrap();
+        let after = lib.prepared(id).unwrap();
+        let expected = prepare_stored(
+            id,
+            lib.recipe(Technique::Nmr1h).unwrap(),
+            &s.raw.canonical_bytes(),
+            s.raw.x_unit.name(),
+            s.raw.y_unit.name(),
+            Some("DMSO-d6"),
+        )
+        .unwrap();
+        assert_ne!(after.vector, before.vector);
+        assert_eq!(after.vector, expected.vector);
+        assert_eq!(after.y_unit, before.y_unit);
+        // `check` prepares every spectrum again and compares vector and peaks as stored.
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    #[test]
+    fn a_withdrawn_spectrum_leaves_search_and_the_fingerprint() {
+        let mut lib = Library::in_memory("t").unwrap();
+        add(&mut lib, &ir(1, "acetone", "alice"));
+        let without = lib.fingerprint().unwrap();
+        let id = add(&mut lib, &ir(2, "butanone", "alice"));
+        assert_ne!(lib.fingerprint().unwrap(), without);
+        let err = lib.withdraw(id, "alice", "  ").unwrap_err();
+        assert!(err.to_string().contains("needs a reason"), "{err}");
+        lib.withdraw(id, "alice", " wrong sample ").unwrap();
+        let rec = lib.spectrum(id).unwrap();
+        assert_eq!(rec.status, Status::Withdrawn);
+        assert_eq!(
+            lib.withdrawn_reason(id).unwrap().as_deref(),
+            Some("wrong sample")
+        );
+        let searchable = lib
+            .candidates(Technique::Ir, &[Status::Pending, Status::Verified])
+            .unwrap();
+        assert!(searchable.iter().all(|c| c.spectrum_id != id));
+        assert_eq!(searchable.len(), 1);
+        // The fingerprint is that of the library without it.
+        assert_eq!(lib.fingerprint().unwrap(), without);
+        let event = lib.events(Some("spectrum:2")).unwrap().pop().unwrap();
+        assert_eq!(event.action, "withdraw");
+        assert_eq!(event.payload["previous_status"], "pending");
+        assert_eq!(event.payload["reason"], "wrong sample");
+        // Kept as it was: neither withdrawn again nor revised.
+        assert!(lib.withdraw(id, "alice", "again").is_err());
+        assert!(lib.revise(id, &notes("x"), "alice", None).is_err());
+    }
 }

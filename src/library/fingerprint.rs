@@ -78,6 +78,38 @@ mod tests {
     use super::*;
     use proptest::prelude::*;
 
+    /// Pins the record hash, the sum and the fingerprint, which existing libraries and
+    /// bundles record. The values were computed independently with Python: `hashlib.sha256`
+    /// over `json.dumps([technique, status, raw_sha256, metadata_json], separators=(",", ":"))`,
+    /// the two record hashes added as 256-bit big-endian integers modulo 2^256, and SHA-256
+    /// over `b"whorl fingerprint v1\n" + recipes + b"\n" + sum`.
+    #[test]
+    fn hashes_and_fingerprint_match_their_documented_encoding() {
+        let a = record_hash("ir", "verified", &"ab".repeat(32), r#"{"name":"acetone"}"#);
+        assert_eq!(
+            hex::encode(a),
+            "599510fbb46e94303ba161b4c70df2fc4877318d8d99e7c3203f61de93f4e050"
+        );
+        let b = record_hash(
+            "ms-ei",
+            "pending",
+            &"cd".repeat(32),
+            r#"{"name":"ethanol"}"#,
+        );
+        let mut sum = ContentSum::default();
+        sum.add(&a);
+        sum.add(&b);
+        assert_eq!(
+            sum.to_hex(),
+            "806f8f52776edad2290ba9698e7cabe425ff31f4bb03fc2ed1177b9c65e80356"
+        );
+        assert_eq!(ContentSum::from_hex(&sum.to_hex()), Some(sum));
+        assert_eq!(
+            fingerprint(r#"[{"technique":"ir"}]"#, sum),
+            "0c918d886831f71b2cef9953e2e635d653e37e8c219f00381d7e9edf373483f6"
+        );
+    }
+
     proptest! {
         #[test]
         fn sum_is_order_free_and_removable(a in any::<[u8; 32]>(), b in any::<[u8; 32]>(), c in any::<[u8; 32]>()) {

@@ -250,3 +250,111 @@ fn store_batch(
     }
     Ok(batch.rows)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::read_manifest;
+    use crate::library::synthetic::{Rng, ir_points};
+    use crate::library::testing::rows;
+    use std::path::Path;
+
+    /// Writes seeded IR spectra as CSV files and returns their text.
+    fn write_spectra(dir: &Path, seeds: &[u64]) -> Vec<String> {
+        seeds
+            .iter()
+            .map(|&seed| {
+                let mut text = "x,y\n".to_string();
+                for (x, y) in ir_points(&mut Rng::new(seed)) {
+                    text.push_str(&format!("{x},{y}\n"));
+                }
+                std::fs::write(dir.join(format!("s{seed}.csv")), &text).unwrap();
+                text
+            })
+            .collect()
+    }
+
+    fn import(lib: &mut Library, manifest: &Path, all_or_nothing: bool) -> ImportReport {
+        let rows = read_manifest(manifest, "alice").unwrap();
+        import_rows(lib, rows, "alice", all_or_nothing, &|_| {}).unwrap()
+    }
+
+    fn ids(report: &ImportReport) -> Vec<i64> {
+        report
+            .rows
+            .iter()
+            .map(|r| match r.outcome.as_ref().unwrap() {
+                Outcome::Added { spectrum_id, .. } | Outcome::AlreadyPresent { spectrum_id } => {
+                    *spectrum_id
+                }
+            })
+            .collect()
+    }
+
+    #[test]
+    fn rows_already_stored_are_skipped() {
+        let tmp = tempfile::tempdir().unwrap();
+        let texts = write_spectra(tmp.path(), &[1, 2, 3]);
+        let manifest = tmp.path().join("manifest.csv");
+        std::fs::write(
+            &manifest,
+            "file,technique,name\ns1.csv,ir,acetone\ns2.csv,ir,butanone\ns3.csv,ir,ethanol\n",
+        )
+        .unwrap();
+        let mut lib = Library::in_memory("t").unwrap();
+        let first = import(&mut lib, &manifest, false);
+        assert_eq!((first.imported(), first.already_present()), (3, 0));
+        assert_eq!(lib.text().len(), 3);
+        let events = lib.last_event().unwrap();
+        // The same files again: found by their bytes, nothing written.
+        let again = import(&mut lib, &manifest, false);
+        assert_eq!((again.imported(), again.already_present()), (0, 3));
+        assert_eq!(ids(&again), ids(&first));
+        assert_eq!(lib.last_event().unwrap(), events);
+        // Found before they are read and prepared: a CAS RN with a wrong check digit, which
+        // staging refuses, does not matter for a file already stored.
+        std::fs::write(
+            &manifest,
+            "file,technique,name,cas\ns1.csv,ir,acetone,67-64-2\n",
+        )
+        .unwrap();
+        let skipped = import(&mut lib, &manifest, false);
+        assert_eq!(ids(&skipped), [ids(&first)[0]]);
+        // Other bytes holding the same points: found by the raw points when stored.
+        std::fs::write(
+            tmp.path().join("copy.csv"),
+            format!("# measured again\n{}", texts[1]),
+        )
+        .unwrap();
+        let copy = tmp.path().join("copy-manifest.csv");
+        std::fs::write(&copy, "file,technique,name\ncopy.csv,ir,butanone\n").unwrap();
+        let report = import(&mut lib, &copy, false);
+        assert_eq!(ids(&report), [ids(&first)[1]]);
+        assert_eq!(report.already_present(), 1);
+        assert_eq!(rows(&lib, "spectrum"), 3);
+        assert_eq!(lib.last_event().unwrap(), events);
+    }
+
+    #[test]
+    fn all_or_nothing_stores_nothing_when_one_row_is_bad() {
+        let tmp = tempfile::tempdir().unwrap();
+        write_spectra(tmp.path(), &[1, 2]);
+        std::fs::write(tmp.path().join("bad.csv"), "x,y\n4000,abc\n").unwrap();
+        let manifest = tmp.path().join("manifest.csv");
+        std::fs::write(
+            &manifest,
+            "file,technique,name\ns1.csv,ir,acetone\nbad.csv,ir,broken\ns2.csv,ir,butanone\n",
+        )
+        .unwrap();
+        let mut lib = Library::in_memory("t").unwrap();
+        let report = import(&mut lib, &manifest, true);
+        assert!(report.rolled_back);
+        let refused: Vec<usize> = report.rejected().map(|(r, _)| r.line).collect();
+        assert_eq!(refused, [3]);
+        assert_eq!(rows(&lib, "spectrum"), 0);
+        // Without it, the good rows are stored and the bad one reported.
+        let report = import(&mut lib, &manifest, false);
+        assert!(!report.rolled_back);
+        assert_eq!((report.imported(), report.rejected().count()), (2, 1));
+    }
+}

@@ -301,4 +301,102 @@ mod tests {
         assert_eq!(extra_key("Lot No."), "lot_no_");
         assert_eq!(extra_key("class"), "class");
     }
+
+    /// Reads `text` as a manifest file (bytes as given) in a fresh folder.
+    fn read(text: &[u8]) -> (tempfile::TempDir, Result<Vec<ManifestRow>>) {
+        let tmp = tempfile::tempdir().unwrap();
+        let path = tmp.path().join("list.csv");
+        std::fs::write(&path, text).unwrap();
+        let rows = read_manifest(&path, "default.submitter");
+        (tmp, rows)
+    }
+
+    /// The manifest-level refusal of `text`: its line and reason.
+    fn refused(text: &str) -> (Option<usize>, String) {
+        match read(text.as_bytes()).1 {
+            Err(Error::Input { at, reason, .. }) => (at.line, reason),
+            other => panic!("expected a refusal, got {other:?}"),
+        }
+    }
+
+    /// The submission of each row, or its error message.
+    fn submissions(text: &[u8]) -> Vec<std::result::Result<Submission, String>> {
+        let (_tmp, rows) = read(text);
+        rows.unwrap()
+            .into_iter()
+            .map(|r| r.submission.map_err(|e| e.to_string()))
+            .collect()
+    }
+
+    #[test]
+    fn a_manifest_is_refused_as_a_whole_with_its_line() {
+        assert_eq!(
+            refused("file,name\na.csv,x\n"),
+            (Some(1), "the manifest has no 'technique' column".into())
+        );
+        assert_eq!(
+            refused("file,technique,name\n"),
+            (None, "the manifest has a header but no rows".into())
+        );
+        let (line, reason) = refused("file,technique,name,whorl_status\na.csv,ir,x,pending\n");
+        assert_eq!(line, Some(1));
+        assert!(reason.contains("exported bundle"), "{reason}");
+        let (line, reason) = refused("file,technique,name\na.csv,ir\n");
+        assert_eq!(line, Some(2));
+        assert!(reason.contains("not valid CSV"), "{reason}");
+    }
+
+    #[test]
+    fn a_byte_order_mark_and_spaces_around_headers_are_ignored() {
+        let rows = submissions(b"\xEF\xBB\xBFfile , technique,name\na.csv,ir,acetone\n");
+        let s = rows[0].as_ref().unwrap();
+        assert_eq!(
+            (s.technique, s.metadata.name.as_str()),
+            (Technique::Ir, "acetone")
+        );
+        assert!(s.path.ends_with("a.csv"));
+    }
+
+    #[test]
+    fn fields_become_metadata() {
+        let text = "file,technique,name,synonyms,tags,Lot No.,submitted_by,x_unit\n\
+                    a.csv,ir,acetone,\"propanone; dimethyl ketone;\",solvent;;ketone,L-7,,um\n\
+                    b.csv,ir,butanone,,,,b.analyst,\n";
+        let rows = submissions(text.as_bytes());
+        let a = rows[0].as_ref().unwrap();
+        assert_eq!(a.metadata.synonyms, ["propanone", "dimethyl ketone"]);
+        assert_eq!(a.metadata.tags, ["solvent", "ketone"]);
+        assert_eq!(
+            a.metadata.extra.get("lot_no_").map(String::as_str),
+            Some("L-7")
+        );
+        assert_eq!(a.submitted_by, "default.submitter");
+        assert_eq!(a.x_unit, Some(XUnit::Micrometre));
+        let b = rows[1].as_ref().unwrap();
+        assert!(b.metadata.extra.is_empty() && b.metadata.synonyms.is_empty());
+        assert_eq!(b.submitted_by, "b.analyst");
+        assert_eq!(b.x_unit, None);
+    }
+
+    #[test]
+    fn a_bad_row_is_refused_alone_with_its_line() {
+        let text = "file,technique,name,y_unit\n\
+                    a.csv,ir,acetone,\n\
+                    a.csv,IR,acetone again,\n\
+                    a.csv,raman,acetone,\n\
+                    b.csv,uv,x,\n\
+                    ../c.csv,ir,x,\n\
+                    d.csv,ir,x,furlongs\n";
+        let rows = submissions(text.as_bytes());
+        assert!(rows[0].is_ok());
+        // The same file and technique, whatever the case of the technique's name.
+        let repeat = rows[1].as_ref().unwrap_err();
+        assert!(repeat.contains(":3: this row repeats line 2"), "{repeat}");
+        // The same file under another technique is another spectrum.
+        assert!(rows[2].is_ok());
+        for (i, part) in [(3, ":5:"), (4, ":6: '../c.csv' leads outside"), (5, ":7:")] {
+            let err = rows[i].as_ref().unwrap_err();
+            assert!(err.contains(part), "row {i}: {err}");
+        }
+    }
 }

@@ -1,17 +1,24 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
 mod bundle;
+mod bundle_import;
 mod caches;
 mod check;
 mod curation;
+mod events;
 mod fingerprint;
 mod import;
 mod manifest;
 mod recipe_change;
 mod records;
+mod review;
 mod schema;
 mod stage;
+mod state;
+mod store;
 pub mod synthetic;
+#[cfg(test)]
+mod testing;
 mod vectors;
 
 pub use crate::cache::{Snapshot, VectorRow};
@@ -19,17 +26,20 @@ pub use crate::spectrum::{Metadata, Status};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use caches::BuildProgress;
 pub use check::{CheckReport, Finding};
-pub use curation::{Decision, MetadataPatch, Review, RevisionInfo};
+pub use curation::{MetadataPatch, RevisionInfo};
+pub use events::Event;
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use recipe_change::RecipeChange;
-pub use records::{Candidate, Event, HitRecord, Outcome, SpectrumRecord, Stats, Summary};
+pub use records::{Candidate, HitRecord, SpectrumRecord, Stats, Summary};
+pub use review::{Decision, Review};
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,
     stage, usual_x_unit,
 };
+pub use store::Outcome;
 
 use std::path::{Path, PathBuf};
 
@@ -177,7 +187,7 @@ impl Library {
             )?;
         }
         let payload = serde_json::json!({ "recipes": recipes.values().collect::<Vec<_>>() });
-        records::append_event(&tx, actor, "init", "library", &payload)?;
+        events::append_event(&tx, actor, "init", "library", &payload)?;
         tx.commit()?;
         self.recipes = recipes;
         self.text.rebuild([], 0)?;
@@ -212,7 +222,7 @@ impl Library {
             });
         }
         schema::migrate(&mut conn)?;
-        let recipes = records::load_recipes(&conn)?;
+        let recipes = state::load_recipes(&conn)?;
         let text = TextIndex::open_or_create(&root.join(TEXT_INDEX_DIR))?;
         let lib = Library {
             root: Some(root.to_path_buf()),

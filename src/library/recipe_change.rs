@@ -11,8 +11,9 @@ use rayon::prelude::*;
 use rusqlite::{Connection, params};
 use serde::Serialize;
 
-use super::records::{append_event, f32_bytes};
+use super::events::append_event;
 use super::stage::prepare_stored;
+use super::store::update_prepared;
 use super::{Library, Metadata, check_recipes};
 use crate::error::{Error, Result};
 use crate::prepare::{Prepared, Recipe};
@@ -145,17 +146,8 @@ fn reprepare_all(
                 again.map(|p| (*id, p))
             })
             .collect::<Result<_>>()?;
-        let mut update = tx.prepare_cached(
-            "UPDATE prepared SET vector = ?2, peaks = ?3, y_unit = ?4, warnings = ?5 WHERE spectrum_id = ?1",
-        )?;
         for (id, p) in &prepared {
-            update.execute(params![
-                id,
-                f32_bytes(&p.vector),
-                serde_json::to_string(&p.peaks)?,
-                p.y_unit.name(),
-                serde_json::to_string(&p.warnings)?
-            ])?;
+            update_prepared(tx, *id, p)?;
         }
     }
     Ok(total)
@@ -178,4 +170,97 @@ fn prepare_one(
     };
     let metadata: Metadata = serde_json::from_str(metadata)?;
     prepare_stored(id, recipe, raw, x_unit, y_unit, metadata.solvent.as_deref()).map_err(why)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::library::testing::{add, ir, ms};
+
+    /// Two IR spectra (one approved) and one EI mass spectrum.
+    fn mixed() -> Library {
+        let mut lib = Library::in_memory("t").unwrap();
+        let a = add(&mut lib, &ir(1, "acetone", "alice"));
+        add(&mut lib, &ir(2, "butanone", "alice"));
+        add(&mut lib, &ms(3, "ethanol", "alice"));
+        lib.review(a, "bob", crate::library::Decision::Approve, None, None)
+            .unwrap();
+        lib
+    }
+
+    /// The default IR recipe on a grid half as fine, which changes every IR vector's length.
+    fn coarser() -> Recipe {
+        let mut r = Recipe::default_for(Technique::Ir);
+        r.grid.step = 4.0;
+        r
+    }
+
+    #[test]
+    fn every_spectrum_of_the_technique_is_prepared_again() {
+        let mut lib = mixed();
+        let ms_before = lib.prepared(3).unwrap().vector;
+        let fingerprint = lib.fingerprint().unwrap();
+        let change = lib
+            .change_recipe(coarser(), "admin", "coarser grid", &|_, _| {})
+            .unwrap();
+        assert_eq!(change.spectra, 2);
+        assert_eq!(change.fingerprint_before, fingerprint);
+        assert_ne!(change.fingerprint_after, fingerprint);
+        assert_eq!(lib.recipe(Technique::Ir).unwrap(), &coarser());
+        for id in [1, 2] {
+            let p = lib.prepared(id).unwrap();
+            assert_eq!(p.vector.len(), coarser().grid.len(), "spectrum {id}");
+        }
+        assert_eq!(lib.prepared(3).unwrap().vector, ms_before);
+        // Statuses and sign-offs stay.
+        assert_eq!(
+            lib.spectrum(1).unwrap().status,
+            crate::library::Status::Verified
+        );
+        let event = lib.events(Some("recipe:ir")).unwrap().pop().unwrap();
+        assert_eq!(
+            (event.action.as_str(), event.actor.as_str()),
+            ("recipe", "admin")
+        );
+        assert_eq!(event.payload["spectra"], 2);
+        assert_eq!(event.payload["reason"], "coarser grid");
+        assert_eq!(event.payload["to"]["grid"]["step"], 4.0);
+        // Stored vectors, recipes and events agree: check prepares everything again.
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    #[test]
+    fn a_recipe_one_spectrum_cannot_take_changes_nothing() {
+        let mut lib = mixed();
+        let (events, before) = (lib.last_event().unwrap(), lib.prepared(1).unwrap());
+        // Masking the whole grid leaves no signal in any spectrum.
+        let mut blind = Recipe::default_for(Technique::Ir);
+        blind.grid.masks = vec![(0.0, 5000.0)];
+        let err = lib
+            .change_recipe(blind, "admin", "test", &|_, _| {})
+            .unwrap_err()
+            .to_string();
+        // Either IR spectrum may be the one named: they are prepared in parallel.
+        assert!(
+            err.contains("cannot be prepared with the new recipe"),
+            "{err}"
+        );
+        assert_eq!(
+            lib.recipe(Technique::Ir).unwrap(),
+            &Recipe::default_for(Technique::Ir)
+        );
+        assert_eq!(lib.prepared(1).unwrap().vector, before.vector);
+        assert_eq!(lib.last_event().unwrap(), events);
+        // Nor does the same recipe, or a change without a reason.
+        let same = Recipe::default_for(Technique::Ir);
+        assert!(
+            lib.change_recipe(same, "admin", "again", &|_, _| {})
+                .is_err()
+        );
+        assert!(
+            lib.change_recipe(coarser(), "admin", " ", &|_, _| {})
+                .is_err()
+        );
+    }
 }

@@ -1,17 +1,19 @@
-//! Rows of the library: metadata, spectra, events, and the queries and writes over them.
+//! Rows of the library as read: spectrum records, hit-list rows, summaries, counts and
+//! search candidates, and the queries that read them.
 
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
 
-use rusqlite::{Connection, OptionalExtension, params};
-use serde::{Deserialize, Serialize};
+use rusqlite::{OptionalExtension, params};
+use serde::Serialize;
 
-use super::fingerprint::ContentSum;
-use super::{Library, Recipes, Staged, now};
+use super::Library;
 use crate::error::{Error, Result};
 use crate::prepare::{Peak, Prepared, Recipe};
-use crate::spectrum::{Metadata, Status, sha256_hex};
+use crate::spectrum::{Metadata, Status};
 use crate::technique::Technique;
 use crate::text::IndexDoc;
+
+// `mod.rs` reaches these through `records::`; they live with the events and the state.
 
 /// Everything stored about one spectrum at its current revision.
 #[derive(Debug, Clone, Serialize)]
@@ -118,162 +120,8 @@ pub struct Stats {
 pub struct Candidate {
     /// Spectrum id.
     pub spectrum_id: i64,
-    /// Compound id.
-    pub compound_id: i64,
-    /// Status.
-    pub status: Status,
     /// Prepared form.
     pub prepared: Prepared,
-}
-
-/// What storing one staged spectrum did.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(tag = "outcome", rename_all = "snake_case")]
-pub enum Outcome {
-    /// A new spectrum.
-    Added {
-        /// Its id.
-        spectrum_id: i64,
-        /// Its compound.
-        compound_id: i64,
-    },
-    /// The same raw points were already in the library for this technique.
-    AlreadyPresent {
-        /// The id already holding them.
-        spectrum_id: i64,
-    },
-}
-
-/// One row of the audit trail.
-#[derive(Debug, Clone, Serialize, Deserialize)]
-pub struct Event {
-    /// Sequence number.
-    pub seq: i64,
-    /// UTC time.
-    pub at: String,
-    /// Who.
-    pub actor: String,
-    /// What.
-    pub action: String,
-    /// Which record.
-    pub record: String,
-    /// The payload (JSON).
-    pub payload: serde_json::Value,
-    /// SHA-256 of the payload text.
-    pub payload_hash: String,
-    /// The previous event's hash.
-    pub prev_hash: String,
-    /// This event's hash.
-    pub hash: String,
-}
-
-/// The hash that starts the chain.
-pub const GENESIS_HASH: &str = "0000000000000000000000000000000000000000000000000000000000000000";
-
-/// The hash of one event: SHA-256 over a JSON array of its fields, which makes the encoding
-/// unambiguous whatever the fields contain.
-pub fn event_hash(
-    seq: i64,
-    at: &str,
-    actor: &str,
-    action: &str,
-    record: &str,
-    payload_hash: &str,
-    prev_hash: &str,
-) -> String {
-    sha256_hex(
-        serde_json::json!([seq, at, actor, action, record, payload_hash, prev_hash])
-            .to_string()
-            .as_bytes(),
-    )
-}
-
-/// Appends one event to the chain inside the caller's transaction.
-pub fn append_event(
-    tx: &Connection,
-    actor: &str,
-    action: &str,
-    record: &str,
-    payload: &serde_json::Value,
-) -> Result<i64> {
-    let (last_seq, prev_hash): (i64, String) = tx
-        .query_row(
-            "SELECT seq, hash FROM event ORDER BY seq DESC LIMIT 1",
-            [],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )
-        .optional()?
-        .unwrap_or((0, GENESIS_HASH.to_string()));
-    let seq = last_seq + 1;
-    let at = now();
-    let payload_text = payload.to_string();
-    let payload_hash = sha256_hex(payload_text.as_bytes());
-    let hash = event_hash(seq, &at, actor, action, record, &payload_hash, &prev_hash);
-    tx.execute(
-        "INSERT INTO event (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-        params![
-            seq,
-            at,
-            actor,
-            action,
-            record,
-            payload_text,
-            payload_hash,
-            prev_hash,
-            hash
-        ],
-    )?;
-    // The head of the chain is kept beside it, so that deleting the newest events is found too.
-    tx.execute(
-        "INSERT INTO setting (key, value) VALUES ('event_head', ?1)
-         ON CONFLICT (key) DO UPDATE SET value = excluded.value",
-        [format!("{seq}:{hash}")],
-    )?;
-    Ok(seq)
-}
-
-pub(super) fn load_recipes(conn: &Connection) -> Result<Recipes> {
-    let mut stmt = conn.prepare("SELECT recipe FROM recipe")?;
-    let rows = stmt.query_map([], |r| r.get::<_, String>(0))?;
-    let mut out = Recipes::new();
-    for row in rows {
-        let recipe: Recipe = serde_json::from_str(&row?)?;
-        out.insert(recipe.technique, recipe);
-    }
-    Ok(out)
-}
-
-pub(super) fn bump_generation(tx: &Connection) -> Result<i64> {
-    tx.execute("UPDATE setting SET value = CAST(CAST(value AS INTEGER) + 1 AS TEXT) WHERE key = 'generation'", [])?;
-    Ok(tx.query_row(
-        "SELECT CAST(value AS INTEGER) FROM setting WHERE key = 'generation'",
-        [],
-        |r| r.get(0),
-    )?)
-}
-
-pub(super) fn update_content_sum(tx: &Connection, f: impl FnOnce(&mut ContentSum)) -> Result<()> {
-    let text: String = tx.query_row(
-        "SELECT value FROM setting WHERE key = 'content_sum'",
-        [],
-        |r| r.get(0),
-    )?;
-    let mut sum = ContentSum::from_hex(&text).unwrap_or_default();
-    f(&mut sum);
-    tx.execute(
-        "UPDATE setting SET value = ?1 WHERE key = 'content_sum'",
-        [sum.to_hex()],
-    )?;
-    Ok(())
-}
-
-/// The identity key of a compound: its CAS RN when known, else its lower-cased name.
-pub(super) fn compound_key(m: &Metadata) -> String {
-    match &m.cas {
-        Some(cas) => format!("cas:{cas}"),
-        None => format!("name:{}", m.name.to_lowercase()),
-    }
 }
 
 pub(super) fn f32_bytes(v: &[f32]) -> Vec<u8> {
@@ -318,44 +166,6 @@ fn record_from_row(row: &rusqlite::Row<'_>) -> rusqlite::Result<(SpectrumRecord,
 }
 
 impl Library {
-    /// Stores staged spectra in one transaction. Each entry of the result says what happened
-    /// to the staged spectrum at the same position, or why it was refused (for example a
-    /// formula that contradicts the compound already on record). With `all_or_nothing`, one
-    /// refusal rolls the whole batch back. Already-present spectra are not refusals.
-    pub fn store(
-        &mut self,
-        batch: &[Staged],
-        actor: &str,
-        all_or_nothing: bool,
-    ) -> Result<Vec<Result<Outcome>>> {
-        let mut tx = self
-            .conn
-            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
-        let mut outcomes = Vec::with_capacity(batch.len());
-        let mut added = Vec::new();
-        for staged in batch {
-            // A savepoint per spectrum: a refusal halfway through one leaves nothing of it behind.
-            let sp = tx.savepoint()?;
-            let outcome = store_one(&sp, staged, actor);
-            if outcome.is_ok() {
-                sp.commit()?;
-            }
-            if let Ok(Outcome::Added { spectrum_id, .. }) = outcome {
-                added.push(spectrum_id);
-            }
-            outcomes.push(outcome);
-        }
-        let refused = outcomes.iter().any(|o| o.is_err());
-        if added.is_empty() || (all_or_nothing && refused) {
-            drop(tx); // rolls back
-            return Ok(outcomes);
-        }
-        let generation = bump_generation(&tx)?;
-        tx.commit()?;
-        self.sync_text(&added, generation)?;
-        Ok(outcomes)
-    }
-
     /// The current record of one spectrum.
     pub fn spectrum(&self, id: i64) -> Result<SpectrumRecord> {
         self.records(&[id])?.pop().ok_or(Error::NotFound {
@@ -546,22 +356,21 @@ impl Library {
     /// The spectra of one technique in the given statuses, with their prepared forms, in id order.
     pub fn candidates(&self, technique: Technique, statuses: &[Status]) -> Result<Vec<Candidate>> {
         let mut stmt = self.conn.prepare(
-            "SELECT s.id, s.compound_id, s.status, p.vector, p.peaks, p.y_unit FROM spectrum s
+            "SELECT s.id, s.status, p.vector, p.peaks, p.y_unit FROM spectrum s
              JOIN prepared p ON p.spectrum_id = s.id WHERE s.technique = ?1 ORDER BY s.id",
         )?;
         let rows = stmt.query_map([technique.name()], |r| {
             Ok((
                 r.get::<_, i64>(0)?,
-                r.get::<_, i64>(1)?,
-                r.get::<_, String>(2)?,
-                r.get::<_, Vec<u8>>(3)?,
+                r.get::<_, String>(1)?,
+                r.get::<_, Vec<u8>>(2)?,
+                r.get::<_, String>(3)?,
                 r.get::<_, String>(4)?,
-                r.get::<_, String>(5)?,
             ))
         })?;
         let mut out = Vec::new();
         for row in rows {
-            let (spectrum_id, compound_id, status, vector, peaks, y_unit) = row?;
+            let (spectrum_id, status, vector, peaks, y_unit) = row?;
             let status: Status = status.parse()?;
             if !statuses.contains(&status) {
                 continue;
@@ -569,8 +378,6 @@ impl Library {
             let peaks: Vec<Peak> = serde_json::from_str(&peaks)?;
             out.push(Candidate {
                 spectrum_id,
-                compound_id,
-                status,
                 prepared: Prepared {
                     technique,
                     vector: f32_from_bytes(&vector),
@@ -578,43 +385,6 @@ impl Library {
                     y_unit: y_unit.parse()?,
                     warnings: vec![],
                 },
-            });
-        }
-        Ok(out)
-    }
-
-    /// Events in sequence order, for the whole library or for one record (e.g. "spectrum:12").
-    pub fn events(&self, record: Option<&str>) -> Result<Vec<Event>> {
-        let mut stmt = self.conn.prepare(
-            "SELECT seq, at, actor, action, record, payload, payload_hash, prev_hash, hash FROM event
-             WHERE ?1 IS NULL OR record = ?1 ORDER BY seq",
-        )?;
-        let rows = stmt.query_map([record], |r| {
-            Ok((
-                r.get::<_, i64>(0)?,
-                r.get::<_, String>(1)?,
-                r.get::<_, String>(2)?,
-                r.get::<_, String>(3)?,
-                r.get::<_, String>(4)?,
-                r.get::<_, String>(5)?,
-                r.get::<_, String>(6)?,
-                r.get::<_, String>(7)?,
-                r.get::<_, String>(8)?,
-            ))
-        })?;
-        let mut out = Vec::new();
-        for row in rows {
-            let (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash) = row?;
-            out.push(Event {
-                seq,
-                at,
-                actor,
-                action,
-                record,
-                payload: serde_json::from_str(&payload)?,
-                payload_hash,
-                prev_hash,
-                hash,
             });
         }
         Ok(out)
@@ -631,13 +401,6 @@ impl Library {
             .optional()?)
     }
 
-    /// The sequence number of the newest event.
-    pub fn last_event(&self) -> Result<i64> {
-        Ok(self
-            .conn
-            .query_row("SELECT coalesce(max(seq), 0) FROM event", [], |r| r.get(0))?)
-    }
-
     /// Number of spectra of a technique in a status.
     pub fn count(&self, technique: Technique, status: Status) -> Result<i64> {
         Ok(self.conn.query_row(
@@ -646,161 +409,4 @@ impl Library {
             |r| r.get(0),
         )?)
     }
-
-    /// Events after the given sequence number.
-    pub fn events_since(&self, seq: i64) -> Result<Vec<Event>> {
-        Ok(self
-            .events(None)?
-            .into_iter()
-            .filter(|e| e.seq > seq)
-            .collect())
-    }
-
-    /// Compound names by id, for labelling hits.
-    pub fn compound_names(&self, ids: &[i64]) -> Result<HashMap<i64, String>> {
-        let mut stmt = self
-            .conn
-            .prepare_cached("SELECT name FROM compound WHERE id = ?1")?;
-        let mut out = HashMap::new();
-        for &id in ids {
-            if let Some(name) = stmt.query_row([id], |r| r.get::<_, String>(0)).optional()? {
-                out.insert(id, name);
-            }
-        }
-        Ok(out)
-    }
-}
-
-fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
-    let sub = &staged.submission;
-    let technique = sub.technique.name();
-    let raw_sha256 = staged.raw.raw_sha256();
-    if let Some(spectrum_id) = present_by_raw(tx, technique, &raw_sha256)? {
-        return Ok(Outcome::AlreadyPresent { spectrum_id });
-    }
-    let m = &sub.metadata;
-    let compound_id = find_or_create_compound(tx, m)?;
-    let file_name = sub
-        .path
-        .file_name()
-        .map(|s| s.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    let created_at = now();
-    tx.execute(
-        "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
-                               x_unit, y_unit, submitted_by, created_at)
-         VALUES (?1, ?2, 'pending', 1, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
-        params![
-            compound_id,
-            technique,
-            file_name,
-            staged.raw.file_sha256,
-            raw_sha256,
-            staged.raw.canonical_bytes(),
-            staged.raw.x_unit.name(),
-            staged.raw.y_unit.name(),
-            sub.submitted_by,
-            created_at,
-        ],
-    )?;
-    let spectrum_id = tx.last_insert_rowid();
-    let metadata_json = serde_json::to_string(m)?;
-    tx.execute(
-        "INSERT INTO revision (spectrum_id, number, metadata, created_at, created_by, reason, compound_id)
-         VALUES (?1, 1, ?2, ?3, ?4, NULL, ?5)",
-        params![spectrum_id, metadata_json, created_at, sub.submitted_by, compound_id],
-    )?;
-    insert_prepared(tx, spectrum_id, &staged.prepared)?;
-    super::curation::reweigh(
-        tx,
-        technique,
-        &raw_sha256,
-        None,
-        Some((Status::Pending, &metadata_json)),
-    )?;
-    let payload = serde_json::json!({
-        "spectrum": spectrum_id,
-        "compound": compound_id,
-        "technique": technique,
-        "file": file_name,
-        "file_sha256": staged.raw.file_sha256,
-        "raw_sha256": raw_sha256,
-        "submitted_by": sub.submitted_by,
-        "metadata": m,
-    });
-    append_event(
-        tx,
-        actor,
-        "add",
-        &format!("spectrum:{spectrum_id}"),
-        &payload,
-    )?;
-    Ok(Outcome::Added {
-        spectrum_id,
-        compound_id,
-    })
-}
-
-/// The compound a metadata record names: found by its identity key, or created. Refuses a
-/// formula that contradicts the compound already on record.
-pub(super) fn find_or_create_compound(tx: &Connection, m: &Metadata) -> Result<i64> {
-    let key = compound_key(m);
-    let found: Option<(i64, Option<String>)> = tx
-        .query_row(
-            "SELECT id, formula FROM compound WHERE key = ?1",
-            [&key],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )
-        .optional()?;
-    match found {
-        Some((id, Some(formula))) if m.formula.as_ref().is_some_and(|f| f != &formula) => {
-            Err(Error::invalid(
-                format!(
-                    "compound {id} ('{}') is on record with formula {formula}, but this spectrum says {}",
-                    m.name,
-                    m.formula.as_deref().unwrap_or("")
-                ),
-                "correct the formula, or give the CAS RN if this is a different substance",
-            ))
-        }
-        Some((id, _)) => Ok(id),
-        None => {
-            tx.execute(
-                "INSERT INTO compound (key, name, formula, cas, created_at) VALUES (?1, ?2, ?3, ?4, ?5)",
-                params![key, m.name, m.formula, m.cas, now()],
-            )?;
-            Ok(tx.last_insert_rowid())
-        }
-    }
-}
-
-/// The spectrum holding exactly these raw points for this technique, if any: the identity
-/// that makes imports idempotent.
-pub(super) fn present_by_raw(
-    tx: &Connection,
-    technique: &str,
-    raw_sha256: &str,
-) -> Result<Option<i64>> {
-    Ok(tx
-        .query_row(
-            "SELECT id FROM spectrum WHERE technique = ?1 AND raw_sha256 = ?2",
-            params![technique, raw_sha256],
-            |r| r.get(0),
-        )
-        .optional()?)
-}
-
-/// Stores the prepared form of a new spectrum.
-pub(super) fn insert_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -> Result<()> {
-    tx.execute(
-        "INSERT INTO prepared (spectrum_id, vector, peaks, y_unit, warnings) VALUES (?1, ?2, ?3, ?4, ?5)",
-        params![
-            spectrum_id,
-            f32_bytes(&p.vector),
-            serde_json::to_string(&p.peaks)?,
-            p.y_unit.name(),
-            serde_json::to_string(&p.warnings)?
-        ],
-    )?;
-    Ok(())
 }
