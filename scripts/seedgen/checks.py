@@ -6,6 +6,7 @@ import re
 
 from .base import (C, CARBON_GAP, CARBON_SOLVENTS, COMPOUNDS, M, META, MULT_LINES, ALL_MULTS,
                    SOLVENT_GAP, SOLVENTS, TMS_GAP, fail)
+from .synthesis import IR_X, ir_absorbance
 
 
 def cas_ok(cas):
@@ -133,6 +134,7 @@ def check_tables():
         check_carbon(c, atoms, meta)
     if len(COMPOUNDS) < 42:
         fail(f"only {len(COMPOUNDS)} compounds")
+    check_trade_facts(COMPOUNDS)
 
 
 def check_carbon(c, atoms, meta):
@@ -175,3 +177,69 @@ def check_solvent_clear(name, solvent, ppms):
         if abs(p) <= TMS_GAP:
             fail(f"{name}: signal {p} ppm too close to TMS")
 
+
+# ---------------------------------------------------------------------------
+# Facts of the trade checked by class of compound (the class written in the
+# tables), each with its source. They look only at the tables and at the
+# noise-free spectra synthesised from them.
+# ---------------------------------------------------------------------------
+def has_carbonyl(cls):
+    return any(k in cls for k in ("ketone", "aldehyde", "ester", "acid", "amide"))
+
+
+def saturated_carbonyl(cls):
+    return cls in ("ketone", "aldehyde", "ester", "carboxylic acid")
+
+
+def check_carbonyl_window(compounds):
+    # Common practice: a strong C=O stretch of saturated ketones, aldehydes, esters and
+    # carboxylic acids lies at 1700-1750 cm-1; compounds without C=O show no strong band there.
+    for c in compounds:
+        n, cls, bands = c["name"], c["class"], c["ir"]["bands"]
+        strong_co = any(1700 <= b["pos"] <= 1750 and b["height"] >= 0.6 for b in bands)
+        in_window = any(1680 <= b["pos"] <= 1760 and b["height"] > 0.15 for b in bands)
+        if saturated_carbonyl(cls) and not strong_co:
+            fail(f"{n} ({cls}) lacks a strong C=O band at 1700-1750 cm-1")
+        if not has_carbonyl(cls) and in_window:
+            fail(f"{n} ({cls}) has a strong band in the C=O window 1680-1760 cm-1")
+
+
+def check_acid_oh(compounds):
+    # Common practice: the H-bonded O-H stretch of a carboxylic acid is a broad band from
+    # about 2500 to above 3000 cm-1; other classes do not absorb broadly below 2800 cm-1.
+    # Checked on the synthesised absorbance (the reference spectra add noise of sd 0.002).
+    for c in compounds:
+        n, cls = c["name"], c["class"]
+        a = dict(zip(IR_X, ir_absorbance(c["ir"]["bands"])))
+        if cls == "carboxylic acid":
+            below = [a[2500 + 50 * i] for i in range(12)]
+            if not all(v >= 0.15 for v in below):
+                fail(f"{n}: acid O-H absorbance at 2500-3050 cm-1 falls below 0.15: {below}")
+        elif any(a[x] >= 0.15 for x in (2500, 2600, 2700)):
+            fail(f"{n} ({cls}) absorbs broadly at 2500-2700 cm-1")
+
+
+# Compounds whose alkyl chain ends in a CH3.
+CHAIN_ENDS = ("1-propanol", "1-butanol", "butanal", "butanoic acid", "butyl acetate",
+              "n-hexane", "n-heptane")
+
+
+def check_chain_methyl_and_aldehyde_h(compounds):
+    # Common practice: a CH3 at the end of an alkyl chain appears near 0.9-1.0 ppm; an aldehyde
+    # H near 9-10 ppm, and nothing else of these compounds does.
+    missing = set(CHAIN_ENDS) - {c["name"] for c in compounds}
+    if missing:
+        fail(f"chain-end compounds not in the tables: {sorted(missing)}")
+    for c in compounds:
+        n, cls = c["name"], c["class"]
+        shifts = [s["ppm"] for s in c["nmr_1h"]["signals"]]
+        if n in CHAIN_ENDS and not any(0.85 <= p <= 1.05 for p in shifts):
+            fail(f"{n}: no chain-end CH3 at 0.85-1.05 ppm in {shifts}")
+        if any(9.0 <= p <= 10.1 for p in shifts) != ("aldehyde" in cls):
+            fail(f"{n} ({cls}): an H at 9.0-10.1 ppm if and only if an aldehyde, got {shifts}")
+
+
+def check_trade_facts(compounds):
+    check_carbonyl_window(compounds)
+    check_acid_oh(compounds)
+    check_chain_methyl_and_aldehyde_h(compounds)
