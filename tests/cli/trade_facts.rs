@@ -1,5 +1,8 @@
 //! Facts of the trade, used as check values (each marked with its source), against the demo
-//! generator's tables, the generated spectra, and the ranking of unknowns that show them.
+//! generator's tables and the ranking of unknowns that show them. Three facts the generator's
+//! tables and spectra must obey on their own (the C=O window, the acid O-H band, the chain-end
+//! CH3 and aldehyde 1H shifts) are checked by the generator itself
+//! (`scripts/seedgen/checks.py`, `check_trade_facts`), since no change to whorl could break them.
 
 use std::collections::HashMap;
 
@@ -29,123 +32,6 @@ fn has_carbonyl(class: &str) -> bool {
     ["ketone", "aldehyde", "ester", "acid", "amide"]
         .iter()
         .any(|k| class.contains(k))
-}
-
-fn saturated_carbonyl(class: &str) -> bool {
-    matches!(class, "ketone" | "aldehyde" | "ester" | "carboxylic acid")
-}
-
-/// Absorbance of a generated IR file at a given wavenumber (the files step by 2 cm-1).
-fn ir_absorbance(name: &str, at: f64) -> f64 {
-    let mut manifest = csv::Reader::from_path(seed().join("manifest.csv")).unwrap();
-    let file = manifest
-        .records()
-        .map(|r| r.unwrap())
-        .find(|r| &r[1] == "ir" && &r[2] == name)
-        .map(|r| r[0].to_string())
-        .unwrap();
-    let text = std::fs::read_to_string(seed().join(file)).unwrap();
-    text.lines()
-        .filter(|l| l.starts_with(|c: char| c.is_ascii_digit()))
-        .map(|l| {
-            let (x, y) = l.split_once(',').unwrap();
-            (x.parse::<f64>().unwrap(), y.parse::<f64>().unwrap())
-        })
-        .find(|(x, _)| (x - at).abs() < 0.5)
-        .map(|p| p.1)
-        .unwrap()
-}
-
-#[test]
-fn strong_carbonyl_stretch_lies_at_1700_to_1750() {
-    // Common practice: a strong C=O stretch of saturated ketones, aldehydes, esters and
-    // carboxylic acids lies at 1700-1750 cm-1; compounds without C=O show no strong band there.
-    for c in compounds() {
-        let class = c["class"].as_str().unwrap();
-        let bands = c["ir"]["bands"].as_array().unwrap();
-        let strong_co = bands.iter().any(|b| {
-            let (pos, h) = (b["pos"].as_f64().unwrap(), b["height"].as_f64().unwrap());
-            (1700.0..=1750.0).contains(&pos) && h >= 0.6
-        });
-        let any_in_window = bands.iter().any(|b| {
-            let (pos, h) = (b["pos"].as_f64().unwrap(), b["height"].as_f64().unwrap());
-            (1680.0..=1760.0).contains(&pos) && h > 0.15
-        });
-        if saturated_carbonyl(class) {
-            assert!(
-                strong_co,
-                "{} ({class}) lacks a strong C=O band at 1700-1750",
-                c["name"]
-            );
-        }
-        if !has_carbonyl(class) {
-            assert!(
-                !any_in_window,
-                "{} ({class}) has a strong band in the C=O window",
-                c["name"]
-            );
-        }
-    }
-}
-
-#[test]
-fn carboxylic_acid_oh_is_broad_from_2500_to_above_3000() {
-    // Common practice: the H-bonded O-H stretch of a carboxylic acid is a broad band from
-    // about 2500 to above 3000 cm-1; other classes do not absorb broadly below 2800 cm-1.
-    for (name, class) in classes() {
-        let below: Vec<f64> = (0..=11)
-            .map(|i| ir_absorbance(&name, 2500.0 + 50.0 * i as f64))
-            .collect();
-        if class == "carboxylic acid" {
-            assert!(below.iter().all(|&a| a >= 0.15), "{name}: {below:?}");
-        } else {
-            let broad = [2500.0, 2600.0, 2700.0]
-                .iter()
-                .filter(|&&x| ir_absorbance(&name, x) >= 0.15)
-                .count();
-            assert_eq!(
-                broad, 0,
-                "{name} ({class}) absorbs broadly at 2500-2700 cm-1"
-            );
-        }
-    }
-}
-
-#[test]
-fn alkyl_chain_methyl_near_0_9_ppm_and_aldehyde_h_near_9_to_10() {
-    // Common practice: a CH3 at the end of an alkyl chain appears near 0.9-1.0 ppm; an aldehyde
-    // H near 9-10 ppm, and nothing else of these compounds does.
-    let chain_ends = [
-        "1-propanol",
-        "1-butanol",
-        "butanal",
-        "butanoic acid",
-        "butyl acetate",
-        "n-hexane",
-        "n-heptane",
-    ];
-    for c in compounds() {
-        let name = c["name"].as_str().unwrap();
-        let class = c["class"].as_str().unwrap();
-        let shifts: Vec<f64> = c["nmr_1h"]["signals"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|s| s["ppm"].as_f64().unwrap())
-            .collect();
-        if chain_ends.contains(&name) {
-            assert!(
-                shifts.iter().any(|&p| (0.85..=1.05).contains(&p)),
-                "{name}: {shifts:?}"
-            );
-        }
-        let aldehyde_h = shifts.iter().any(|&p| (9.0..=10.1).contains(&p));
-        assert_eq!(
-            aldehyde_h,
-            class.contains("aldehyde"),
-            "{name} ({class}): {shifts:?}"
-        );
-    }
 }
 
 #[test]
