@@ -52,7 +52,7 @@ const fn row(
 }
 
 /// The confidence thresholds: the weak-score and close-margin thresholds of every technique
-/// and measure, derived by the evaluation harness (`examples/evaluate.rs`; its output, with
+/// and measure, derived by the evaluation harness (`examples/evaluate/`; its output, with
 /// the derivation written out, is `docs/evaluation.md`) from degraded unknowns at the
 /// moderate level, with the default preparation and otherwise default parameters:
 ///
@@ -158,7 +158,7 @@ mod tests {
 
     #[test]
     fn thresholds_match_the_evaluation() {
-        // docs/evaluation.md is the output of examples/evaluate.rs; its threshold table has
+        // docs/evaluation.md is the output of examples/evaluate/; its threshold table has
         // the technique, the measure, then the weak score and close margin in bold.
         let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/evaluation.md");
         let text = std::fs::read_to_string(path).expect("docs/evaluation.md");
