@@ -9,7 +9,7 @@ use rayon::prelude::*;
 use super::bundle::{BundleInfo, RevisionEntry, verify_bundle};
 use super::events::append_event;
 use super::manifest::read_bundle_manifest;
-use super::review::Review;
+use super::records::Review;
 use super::state::reweigh;
 use super::store::{
     NewRevision, NewSpectrum, find_or_create_compound, insert_prepared, insert_review,

@@ -32,8 +32,8 @@ pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use recipe_change::RecipeChange;
-pub use records::{Candidate, HitRecord, SpectrumRecord, Stats, Summary};
-pub use review::{Decision, Review};
+pub use records::{Candidate, HitRecord, Review, SpectrumRecord, Stats, Summary};
+pub use review::Decision;
 pub use schema::{OLDEST_READABLE, SCHEMA_VERSION};
 pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,

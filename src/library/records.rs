@@ -4,7 +4,7 @@
 use std::collections::BTreeMap;
 
 use rusqlite::{OptionalExtension, params};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::Library;
 use crate::error::{Error, Result};
@@ -409,4 +409,26 @@ impl Library {
             |r| r.get(0),
         )?)
     }
+}
+/// One sign-off.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Review {
+    /// Row id.
+    pub id: i64,
+    /// The spectrum.
+    pub spectrum_id: i64,
+    /// The revision reviewed.
+    pub revision: i64,
+    /// Who signed.
+    pub reviewer: String,
+    /// When (UTC).
+    pub at: String,
+    /// "approved" or "rejected".
+    pub decision: String,
+    /// What the signature means.
+    pub meaning: String,
+    /// The reviewer's note.
+    pub note: Option<String>,
+    /// Set when the sign-off came in with a bundle: where from.
+    pub imported_from: Option<String>,
 }

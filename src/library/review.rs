@@ -2,10 +2,9 @@
 //! under the library's self-review policy.
 
 use rusqlite::params;
-use serde::{Deserialize, Serialize};
 
 use super::events::append_event;
-use super::records::SpectrumRecord;
+use super::records::{Review, SpectrumRecord};
 use super::state::{put_setting, reweigh};
 use super::store::{insert_review, set_status};
 use super::{Library, now};
@@ -39,29 +38,6 @@ impl Decision {
             Decision::Reject => "reviewed and not approved as a reference spectrum",
         }
     }
-}
-
-/// One sign-off.
-#[derive(Debug, Clone, Serialize, Deserialize)]
-pub struct Review {
-    /// Row id.
-    pub id: i64,
-    /// The spectrum.
-    pub spectrum_id: i64,
-    /// The revision reviewed.
-    pub revision: i64,
-    /// Who signed.
-    pub reviewer: String,
-    /// When (UTC).
-    pub at: String,
-    /// "approved" or "rejected".
-    pub decision: String,
-    /// What the signature means.
-    pub meaning: String,
-    /// The reviewer's note.
-    pub note: Option<String>,
-    /// Set when the sign-off came in with a bundle: where from.
-    pub imported_from: Option<String>,
 }
 
 fn same_person(a: &str, b: &str) -> bool {

@@ -5,8 +5,7 @@ use rusqlite::{Connection, OptionalExtension, params};
 use serde::Serialize;
 
 use super::events::append_event;
-use super::records::f32_bytes;
-use super::review::Review;
+use super::records::{Review, f32_bytes};
 use super::state::{bump_generation, reweigh};
 use super::{Library, Staged, now};
 use crate::error::{Error, Result};

@@ -3,7 +3,7 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::rank::Hit;
+use super::hit::Hit;
 use crate::score::{Measure, ScoreParams};
 use crate::technique::Technique;
 

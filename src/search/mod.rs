@@ -5,6 +5,7 @@
 mod confidence;
 mod constraints;
 mod fusion;
+mod hit;
 mod identify;
 mod plan;
 mod policy;
@@ -19,12 +20,13 @@ pub use crate::config::{IdentityPolicy, Thresholds};
 pub use confidence::{Confidence, THRESHOLDS, Threshold, confidence, is_confident};
 pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow};
 pub use fusion::{DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, TechniqueEvidence, fuse};
+pub use hit::{Excluded, Hit};
 pub use identify::{
     Identification, IdentifyOptions, IdentifyReport, TechniqueRun, identify, identify_with_searches,
 };
 pub use plan::{Given, Plan, Request, Unknown};
 pub use policy::{Objection, PolicyVerdict, judge};
-pub use rank::{Excluded, Hit, HitList, Ranking, search, search_exact, search_many};
+pub use rank::{HitList, Ranking, search, search_exact, search_many};
 pub use references::references;
 pub use replay::{Replay, load_saved, replay};
 pub use report::{

@@ -5,6 +5,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::confidence::{Confidence, confidence, list_warnings};
+use super::hit::{Excluded, Hit};
 use super::plan::{Plan, Request};
 use super::scan;
 use crate::error::Result;
@@ -12,54 +13,6 @@ use crate::library::{HitRecord, Library, Status};
 use crate::prepare::{Prepared, Solvent};
 use crate::score::{Scores, score};
 use crate::technique::Technique;
-
-/// One ranked library entry.
-#[derive(Debug, Clone, Serialize, Deserialize)]
-pub struct Hit {
-    /// 1 for the best.
-    pub rank: usize,
-    /// The combined score, 0..1.
-    pub score: f64,
-    /// The parts of the score.
-    pub components: Scores,
-    /// Library spectrum id.
-    pub spectrum_id: i64,
-    /// Compound id.
-    pub compound_id: i64,
-    /// Compound name.
-    pub name: String,
-    /// Formula.
-    pub formula: Option<String>,
-    /// CAS RN.
-    pub cas: Option<String>,
-    /// Technique.
-    pub technique: Technique,
-    /// Review status.
-    pub status: Status,
-    /// NMR solvent of the reference.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub solvent: Option<String>,
-    /// Things to know about this hit (for example a solvent that differs from the unknown's).
-    #[serde(default, skip_serializing_if = "Vec::is_empty")]
-    pub notes: Vec<String>,
-}
-
-/// A candidate that scored high enough to be listed but was ruled out.
-#[derive(Debug, Clone, Serialize, Deserialize)]
-pub struct Excluded {
-    /// The combined score it had.
-    pub score: f64,
-    /// Library spectrum id.
-    pub spectrum_id: i64,
-    /// Compound id.
-    pub compound_id: i64,
-    /// Compound name.
-    pub name: String,
-    /// Formula.
-    pub formula: Option<String>,
-    /// Why it was ruled out.
-    pub reason: String,
-}
 
 /// A ranked hit list with what the analyst needs to judge it.
 #[derive(Debug, Clone, Serialize, Deserialize)]

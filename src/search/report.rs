@@ -6,8 +6,9 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use super::confidence::Confidence;
+use super::hit::{Excluded, Hit};
 use super::plan::{Plan, Request, Unknown};
-use super::rank::{Excluded, Hit, HitList};
+use super::rank::HitList;
 use super::{Constraints, Thresholds};
 use crate::error::Result;
 use crate::library::{Library, Status};

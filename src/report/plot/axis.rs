@@ -6,8 +6,7 @@ use plotters::prelude::*;
 use crate::prepare::Prepared;
 use crate::technique::{Grid, Technique};
 
-use super::render::{Area, Chart, DrawResult};
-use super::{AXIS_SIZE, FONT, GRID_LINE, INK, TICK_SIZE};
+use super::{AXIS_SIZE, Area, Chart, DrawResult, FONT, GRID_LINE, INK, TICK_SIZE};
 
 /// The x range shown and its direction.
 #[derive(Debug, Clone, Copy)]

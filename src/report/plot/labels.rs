@@ -8,7 +8,7 @@ use crate::prepare::Prepared;
 use crate::technique::Grid;
 
 use super::axis::{Axis, tick_for};
-use super::render::{Chart, DrawResult};
+use super::{Chart, DrawResult};
 use super::{FONT, PEAK_SIZE};
 
 /// A peak label waiting for a place.

@@ -38,6 +38,15 @@ use labels::{Candidate, draw_labels, peak_candidates, pick_labels, pick_labels_b
 use mirror::mirror;
 use render::{Swatch, masks, render};
 
+/// The chart, drawing area and result types every part of the plot draws with.
+pub(super) type Chart<'a, 'b> = ChartContext<
+    'a,
+    SVGBackend<'b>,
+    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+>;
+pub(super) type Area<'b> = DrawingArea<SVGBackend<'b>, plotters::coord::Shift>;
+pub(super) type DrawResult<T = ()> = std::result::Result<T, Box<dyn std::error::Error>>;
+
 /// Width of every plot in SVG pixels; the page scales it down on narrow screens.
 pub const WIDTH: u32 = 1000;
 const PLOT_HEIGHT: u32 = 390;

@@ -1,8 +1,6 @@
 //! Drawing into an SVG string: the legend band above the plot area, and the shading of the
 //! grid's masked regions.
 
-use plotters::coord::Shift;
-use plotters::coord::types::RangedCoordf64;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -12,13 +10,9 @@ use crate::technique::Grid;
 
 use super::axis::Axis;
 use super::{
-    AXIS_SIZE, BLUE, FONT, INK, LEGEND_ROW, MASK_FILL, MUTED, PEAK_SIZE, PLOT_HEIGHT, SKY, WIDTH,
+    AXIS_SIZE, Area, BLUE, Chart, DrawResult, FONT, INK, LEGEND_ROW, MASK_FILL, MUTED, PEAK_SIZE,
+    PLOT_HEIGHT, SKY, WIDTH,
 };
-
-pub(super) type Chart<'a, 'b> =
-    ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
-pub(super) type Area<'b> = DrawingArea<SVGBackend<'b>, Shift>;
-pub(super) type DrawResult<T = ()> = std::result::Result<T, Box<dyn std::error::Error>>;
 
 /// What a legend row shows beside its text.
 #[derive(Debug, Clone, Copy)]
