@@ -2,7 +2,9 @@
 //!
 //! Accepted: an optional header line, `#` comments, comma / semicolon / tab / whitespace
 //! delimiters, a decimal comma with any delimiter but the comma, UTF-8 with or without a
-//! byte-order mark, and x in any order.
+//! byte-order mark, and x in any order. A technique whose files may be bare position lists
+//! ([`Technique::reads_position_list`], 13C shift lists) also accepts one column, read as
+//! lines of equal height [`LIST_HEIGHT`].
 
 use std::path::Path;
 
@@ -21,7 +23,13 @@ pub struct ParsedPoints {
     pub header: Option<String>,
     /// SHA-256 of the file bytes, hex.
     pub file_sha256: String,
+    /// True when the file had one column (positions only) and every y is [`LIST_HEIGHT`].
+    pub one_column: bool,
 }
+
+/// The height given to every line of a one-column position list: the list says where the
+/// lines are, not how tall, so all are read as equal.
+pub const LIST_HEIGHT: f64 = 1.0;
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Delimiter {
@@ -68,8 +76,9 @@ impl Delimiter {
     }
 }
 
-/// Reads a two-column spectrum file from disk.
-pub fn read_points(path: &Path) -> Result<ParsedPoints> {
+/// Reads a spectrum file of `technique` from disk: two columns, or one for a technique whose
+/// files may be position lists.
+pub fn read_points(path: &Path, technique: Technique) -> Result<ParsedPoints> {
     let bytes = std::fs::read(path).map_err(|e| {
         let hint = if e.kind() == std::io::ErrorKind::NotFound {
             "check the path; manifest paths are relative to the manifest's folder"
@@ -82,11 +91,15 @@ pub fn read_points(path: &Path) -> Result<ParsedPoints> {
             hint,
         )
     })?;
-    read_points_from_bytes(path, &bytes)
+    read_points_from_bytes(path, &bytes, technique)
 }
 
-/// Reads a two-column spectrum from bytes; `path` is used in messages only.
-pub fn read_points_from_bytes(path: &Path, bytes: &[u8]) -> Result<ParsedPoints> {
+/// Reads a spectrum of `technique` from bytes; `path` is used in messages only.
+pub fn read_points_from_bytes(
+    path: &Path,
+    bytes: &[u8],
+    technique: Technique,
+) -> Result<ParsedPoints> {
     let file_sha256 = sha256_hex(bytes);
     let text = decode_text(path, bytes)?;
 
@@ -94,6 +107,9 @@ pub fn read_points_from_bytes(path: &Path, bytes: &[u8]) -> Result<ParsedPoints>
     let mut lines = Vec::new();
     let mut header: Option<String> = None;
     let mut delimiter: Option<Delimiter> = None;
+    // Decided by the first data line: one field there makes a position list, if the
+    // technique allows one.
+    let mut one_column: Option<bool> = None;
 
     for (index, raw_line) in text.split('\n').enumerate() {
         let line_no = index + 1;
@@ -114,7 +130,33 @@ pub fn read_points_from_bytes(path: &Path, bytes: &[u8]) -> Result<ParsedPoints>
             continue;
         }
         let delim = *delimiter.get_or_insert_with(|| Delimiter::detect(line));
-        let fields = delim.split(line);
+        let mut fields = delim.split(line);
+        // "12.5," from a spreadsheet leaves one empty field.
+        if technique.reads_position_list()
+            && one_column != Some(false)
+            && fields.len() == 2
+            && fields[1].is_empty()
+        {
+            fields.pop();
+        }
+        let list = *one_column.get_or_insert(technique.reads_position_list() && fields.len() == 1);
+        if list {
+            if fields.len() != 1 {
+                return Err(Error::input(
+                    at(),
+                    format!(
+                        "expected 1 field (a position), found {}: '{}'",
+                        fields.len(),
+                        shorten(line)
+                    ),
+                    "the first data line has one number, so the file is read as a list of \
+                     positions; give one number per line, or x and y on every line",
+                ));
+            }
+            points.push((parse_number(fields[0], delim, &at)?, LIST_HEIGHT));
+            lines.push(line_no);
+            continue;
+        }
         if fields.len() != 2 {
             let hint = if delim == Delimiter::Comma && fields.len() == 4 {
                 "this looks like decimal commas in a comma-delimited file; use ';' as the delimiter"
@@ -160,6 +202,7 @@ pub fn read_points_from_bytes(path: &Path, bytes: &[u8]) -> Result<ParsedPoints>
         lines,
         header,
         file_sha256,
+        one_column: one_column == Some(true),
     })
 }
 
@@ -341,7 +384,11 @@ mod tests {
     use super::*;
 
     fn parse(text: &str) -> Result<ParsedPoints> {
-        read_points_from_bytes(Path::new("t.csv"), text.as_bytes())
+        read_points_from_bytes(Path::new("t.csv"), text.as_bytes(), Technique::Ir)
+    }
+
+    fn parse_13c(text: &str) -> Result<ParsedPoints> {
+        read_points_from_bytes(Path::new("t.csv"), text.as_bytes(), Technique::Nmr13c)
     }
 
     fn check(text: &str, expected: &[(f64, f64)]) {
@@ -393,9 +440,76 @@ mod tests {
     }
 
     #[test]
+    fn a_13c_shift_list_may_have_one_column() {
+        // Shifts of 2-butanone in CDCl3 (from memory: about 209, 37, 29, 8 ppm); a list of
+        // shifts says where the lines are, so every line gets the same height.
+        let want = [(209.3, 1.0), (36.9, 1.0), (29.4, 1.0), (7.9, 1.0)];
+        for text in [
+            "209.3\n36.9\n29.4\n7.9\n",
+            "shift_ppm\n209.3\n36.9\n29.4\n7.9\n",
+            "# CDCl3\r\n209.3\r\n36.9\r\n29.4\r\n7.9\r\n",
+            "209.3,\n36.9,\n29.4,\n7.9,\n",
+            "209,3\n36,9\n29,4\n7,9\n",
+        ] {
+            let p = parse_13c(text).unwrap();
+            if text.starts_with("209,3") {
+                // A decimal comma cannot be told from a comma delimiter: two columns.
+                assert!(!p.one_column);
+                continue;
+            }
+            assert_eq!(p.points, want, "input: {text:?}");
+            assert!(p.one_column);
+        }
+        // Two columns stay two columns for 13C.
+        let p = parse_13c("209.3,0.4\n36.9,1\n").unwrap();
+        assert_eq!(p.points, [(209.3, 0.4), (36.9, 1.0)]);
+        assert!(!p.one_column);
+        // A list that turns into x,y (or the reverse) is refused at the line that breaks it.
+        for (text, part) in [
+            ("209.3\n36.9 1\n", "expected 1 field"),
+            ("209.3\n36.9,1\n", "not a number"),
+        ] {
+            match parse_13c(text) {
+                Err(Error::Input { at, reason, .. }) => {
+                    assert_eq!(at.line, Some(2));
+                    assert!(reason.contains(part), "{reason}");
+                }
+                other => panic!("{other:?}"),
+            }
+        }
+        match parse_13c("209.3,1\n36.9\n") {
+            Err(Error::Input { at, reason, .. }) => {
+                assert_eq!(at.line, Some(2));
+                assert!(reason.contains("found 1"), "{reason}");
+            }
+            other => panic!("{other:?}"),
+        }
+    }
+
+    #[test]
+    fn other_techniques_refuse_one_column() {
+        for t in Technique::ALL
+            .into_iter()
+            .filter(|&t| t != Technique::Nmr13c)
+        {
+            match read_points_from_bytes(Path::new("t.csv"), b"x\n1715\n1600\n", t) {
+                Err(Error::Input { at, reason, hint }) => {
+                    assert_eq!(at.line, Some(2), "{t}");
+                    assert!(
+                        reason.contains("expected 2 fields (x, y), found 1"),
+                        "{t}: {reason}"
+                    );
+                    assert!(hint.contains("exactly two numbers"), "{t}: {hint}");
+                }
+                other => panic!("{t}: {other:?}"),
+            }
+        }
+    }
+
+    #[test]
     fn non_utf8_is_refused_with_its_line() {
         let bytes = b"1,2\n3,\xff\n";
-        let err = read_points_from_bytes(Path::new("t.csv"), bytes).unwrap_err();
+        let err = read_points_from_bytes(Path::new("t.csv"), bytes, Technique::Ir).unwrap_err();
         assert!(
             matches!(
                 err,
@@ -415,6 +529,7 @@ mod tests {
             points: pts,
             header: None,
             file_sha256: String::new(),
+            one_column: false,
         }
     }
 
@@ -514,13 +629,15 @@ mod properties {
 
         #[test]
         fn the_reader_never_panics(bytes in prop::collection::vec(any::<u8>(), 0..400)) {
-            let _ = read_points_from_bytes(Path::new("fuzz.csv"), &bytes);
+            for t in [Technique::Ir, Technique::Nmr13c] {
+                let _ = read_points_from_bytes(Path::new("fuzz.csv"), &bytes, t);
+            }
         }
 
         #[test]
         fn the_reader_never_panics_on_near_valid_text(lines in prop::collection::vec("[0-9.,;eE+\\-\\t #a-z]{0,24}", 0..30)) {
             let text = lines.join("\n");
-            if let Ok(p) = read_points_from_bytes(Path::new("fuzz.csv"), text.as_bytes()) {
+            if let Ok(p) = read_points_from_bytes(Path::new("fuzz.csv"), text.as_bytes(), Technique::Nmr13c) {
                 prop_assert!(p.points.iter().all(|(x, y)| x.is_finite() && y.is_finite()));
                 for t in Technique::ALL {
                     let _ = check_points(Path::new("fuzz.csv"), &p, t, XUnit::Wavenumber);
