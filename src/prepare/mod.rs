@@ -304,7 +304,7 @@ fn pick(x: &[f64], y: &[f64], recipe: &Recipe, noise: f64) -> Vec<(Maximum, Peak
                     x: x[m.index],
                     height: y[m.index],
                     width,
-                    area: 0.0,
+                    area: peaks::area_between(x, y, m.left_half, m.right_half),
                 },
             )
         })
