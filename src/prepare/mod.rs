@@ -14,7 +14,7 @@ mod spectrometry;
 pub use baseline::{ALS_DEFAULT, Baseline, asls, rubber_band};
 pub use carbon::PROFILE_POINTS;
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
-pub use peaks::{Maximum, Peak, find_maxima};
+pub use peaks::{Maximum, Peak, area_between, find_maxima};
 pub use solvent::Solvent;
 pub use spectrometry::nominal_mass as nominal_mz;
 

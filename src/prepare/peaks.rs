@@ -125,8 +125,9 @@ fn measure(y: &[f64], index: usize) -> Maximum {
 
 /// The area under `(x, y)` between two fractional sample indices, by the trapezoidal rule
 /// over the samples strictly inside and the two end points interpolated linearly (common
-/// practice; equal to `numpy.trapezoid` of the same points). Positive whatever the direction
-/// of x.
+/// practice; equal to `numpy.trapezoid` of the same points for ascending x). Stretches of y
+/// below zero count negative, as in `numpy.trapezoid`; descending x gives the same value as
+/// ascending.
 pub fn area_between(x: &[f64], y: &[f64], from: f64, to: f64) -> f64 {
     let (from, to) = (from.min(to), from.max(to));
     let mut xs = vec![x_at(x, from)];
@@ -144,9 +145,9 @@ pub fn area_between(x: &[f64], y: &[f64], from: f64, to: f64) -> f64 {
     let area: f64 = xs
         .windows(2)
         .zip(ys.windows(2))
-        .map(|(xw, yw)| (xw[1] - xw[0]) * (yw[0] + yw[1]) / 2.0)
+        .map(|(xw, yw)| (xw[1] - xw[0]).abs() * (yw[0] + yw[1]) / 2.0)
         .sum();
-    area.abs()
+    area
 }
 
 /// Linear interpolation of `x` at a fractional sample index.
@@ -204,6 +205,9 @@ mod tests {
         // (406, 3), (406.5, 3.25); numpy.trapezoid([1.5, 2, 3, 3.25], [403, 404, 406, 406.5])
         // = 1 x 1.75 + 2 x 2.5 + 0.5 x 3.125 = 8.3125 (numpy 2.4 gives 8.3125).
         assert_eq!(area_between(&x, &y, 1.5, 3.25), 8.3125);
+        // Below zero counts negative, as numpy.trapezoid([-2, -3, -4, -3, -2], dx=2) = -24.
+        let below: Vec<f64> = y.iter().map(|v| -v).collect();
+        assert_eq!(area_between(&x, &below, 2.0, 6.0), -24.0);
     }
 
     #[test]
