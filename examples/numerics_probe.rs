@@ -13,7 +13,7 @@ use std::io::Read;
 
 use serde::Deserialize;
 use serde_json::{Value, json};
-use whorl::prepare::{absorbance_from, asls, find_maxima, resample, rubber_band};
+use whorl::prepare::{absorbance_from, area_between, asls, find_maxima, resample, rubber_band};
 use whorl::score::{CompositeParams, cosine, peak_overlap, pearson, stein_scott};
 use whorl::spectrum::YUnit;
 use whorl::technique::Grid;
@@ -83,6 +83,8 @@ fn run(case: Case) -> Value {
         Case::Cosine { a, b } => json!({ "value": cosine(&a, &b) }),
         Case::Pearson { a, b, active } => json!({ "value": pearson(&a, &b, active.as_deref()) }),
         Case::FindMaxima { y } => {
+            // x is the sample index, so areas are in height x samples.
+            let x: Vec<f64> = (0..y.len()).map(|i| i as f64).collect();
             let maxima: Vec<Value> = find_maxima(&y, 0.0)
                 .iter()
                 .map(|m| {
@@ -93,6 +95,7 @@ fn run(case: Case) -> Value {
                         "right_base": m.right_base,
                         "left_half": m.left_half,
                         "right_half": m.right_half,
+                        "area": area_between(&x, &y, m.left_half, m.right_half),
                     })
                 })
                 .collect();

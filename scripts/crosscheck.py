@@ -311,6 +311,27 @@ def check_widths(cases, results):
     return n, dev
 
 
+def check_areas(cases, results):
+    # The area between SciPy's half-prominence crossings (peak_widths, rel_height=0.5) by
+    # numpy.trapezoid over the crossings (y interpolated with numpy.interp) and the samples
+    # between them, x the sample index. Deviation: max |whorl - numpy| / (max y - min y).
+    dev, n = 0.0, 0
+    for c, r in zip(cases, results):
+        y = np.array(c["y"])
+        s = scipy_peaks(y)
+        if [x["index"] for x in r["maxima"]] != s[0].tolist():
+            continue
+        n += 1
+        idx = np.arange(len(y), dtype=float)
+        span = max(float(np.ptp(y)), 1e-300) if len(y) else 1.0
+        for m, lo, hi in zip(r["maxima"], s[4], s[5]):
+            inside = idx[(idx > lo) & (idx < hi)]
+            xs = np.concatenate([[lo], inside, [hi]])
+            ref = float(np.trapezoid(np.interp(xs, idx, y), xs))
+            dev = max(dev, abs(m["area"] - ref) / span)
+    return n, dev
+
+
 def check_asls(cases, results):
     # pybaselines.Baseline().asls (pybaselines documentation, whittaker.asls): same model,
     # weights (p above the baseline, 1 - p elsewhere), start (all weights 1), stopping rule
@@ -405,6 +426,7 @@ CHECKS = [
     ("find_maxima", "peak indices, bases vs find_peaks (cases differing)", SCIPY, check_peak_indices, 0),
     ("find_maxima", "peak prominences vs peak_prominences", SCIPY, check_prominences, 1e-9),
     ("find_maxima", "half-prominence crossings vs peak_widths (samples)", SCIPY, check_widths, 1e-6),
+    ("find_maxima", "area between the crossings vs numpy.trapezoid, / range", NUMPY, check_areas, 1e-6),
     ("asls", "ALS baseline vs Baseline().asls, / range of y", PYBASELINES, check_asls, 1e-6),
     ("rubber_band", "rubber band vs ConvexHull lower hull, / range", SCIPY, check_rubber_band, 1e-9),
     ("absorbance", "absorbance vs -numpy.log10(T)", NUMPY, check_absorbance, 1e-12),

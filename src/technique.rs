@@ -114,6 +114,13 @@ impl Technique {
         }
     }
 
+    /// True when a file of this technique may be a bare list of positions, one per line
+    /// (a 13C shift list: broadband-decoupled 13C heights are not compared, so a list of
+    /// shifts is a complete spectrum). Every other technique needs x and y.
+    pub fn reads_position_list(self) -> bool {
+        self == Technique::Nmr13c
+    }
+
     /// The fewest points a usable spectrum of this technique has.
     pub fn min_points(self) -> usize {
         match self {

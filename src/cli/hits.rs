@@ -18,6 +18,24 @@ pub(super) fn csv_field(s: &str) -> String {
     }
 }
 
+/// Decimals shown for the scores of a hit list: three, or as many more (up to
+/// [`MAX_SCORE_DIGITS`]) as it takes for every two different scores to print differently,
+/// so that the table shows why hits that agree to three decimals are ranked as they are.
+/// Equal scores print alike at any precision (their order is the spectrum id's).
+pub(super) fn score_digits(scores: &[f64]) -> usize {
+    (3..MAX_SCORE_DIGITS)
+        .find(|&d| {
+            scores
+                .windows(2)
+                .all(|w| w[0] == w[1] || format!("{:.d$}", w[0]) != format!("{:.d$}", w[1]))
+        })
+        .unwrap_or(MAX_SCORE_DIGITS)
+}
+
+/// The most decimals a hit list's scores are shown with; beyond it scores that differ are
+/// differences of rounding, not of spectra.
+const MAX_SCORE_DIGITS: usize = 9;
+
 /// The hit list as CSV: one row per hit, every score component in its own column.
 pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
     let mut w = csv::Writer::from_writer(out);
@@ -41,22 +59,24 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
         "technique",
         "status",
     ])?;
-    let opt = |v: Option<f64>| v.map(|v| format!("{v:.6}")).unwrap_or_default();
+    // Full precision: the shortest text that reads back as the same f64, as the JSON has it,
+    // so that hits the table can only tell apart with more digits stay apart here too.
+    let opt = |v: Option<f64>| v.map(|v| v.to_string()).unwrap_or_default();
     for h in &r.hits {
         let c = &h.components;
         let o = &c.peak_overlap;
         w.write_record([
             h.rank.to_string(),
-            format!("{:.6}", h.score),
+            h.score.to_string(),
             r.parameters.score.measure.label().to_string(),
-            format!("{:.6}", c.spectral),
-            format!("{:.6}", c.cosine),
+            c.spectral.to_string(),
+            c.cosine.to_string(),
             opt(c.correlation),
             opt(c.composite.as_ref().map(|x| x.composite)),
             o.matched.to_string(),
             o.unknown_peaks.to_string(),
             o.reference_peaks.to_string(),
-            format!("{:.6}", o.jaccard),
+            o.jaccard.to_string(),
             h.name.clone(),
             h.formula.clone().unwrap_or_default(),
             h.cas.clone().unwrap_or_default(),
@@ -182,6 +202,8 @@ pub fn print_report_styled(
     }
     writeln!(out)?;
     let second = second_measure(p.measure, technique);
+    let scores: Vec<f64> = r.hits.iter().map(|h| h.score).collect();
+    let digits = score_digits(&scores);
     let mut t = output::Table::new(&[
         ">rank",
         ">score",
@@ -204,7 +226,7 @@ pub fn print_report_styled(
             .map_or_else(|| "-".to_string(), |v| format!("{v:.3}"));
         t.row(vec![
             h.rank.to_string(),
-            format!("{:.3}", h.score),
+            format!("{:.digits$}", h.score),
             format!("{:.3}", c.spectral),
             other,
             format!("{}/{}", o.matched, o.reference_peaks),
@@ -250,7 +272,7 @@ pub fn print_report_styled(
     if let Some(m) = r.margin {
         writeln!(
             out,
-            "margin    {m:.3} between hits 1 and 2   (peaks = matched / reference peaks; fwd = matched / unknown peaks, rev = matched / reference peaks, jacc = Jaccard)"
+            "margin    {m:.digits$} between hits 1 and 2   (peaks = matched / reference peaks; fwd = matched / unknown peaks, rev = matched / reference peaks, jacc = Jaccard)"
         )?;
     }
     for w in &r.warnings {
@@ -287,4 +309,27 @@ pub fn constraint_summary(c: &Constraints) -> Option<String> {
         parts.push(format!("RI {:.0} +- {}{phase}", ri.value, ri.window));
     }
     (!parts.is_empty()).then(|| parts.join(", "))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::score_digits;
+
+    #[test]
+    fn scores_get_the_decimals_that_tell_them_apart() {
+        let check =
+            |scores: &[f64], digits: usize| assert_eq!(score_digits(scores), digits, "{scores:?}");
+        check(&[], 3);
+        check(&[0.91], 3);
+        check(&[0.912, 0.875, 0.5], 3);
+        // 0.99974 and 0.99962 both print 1.000; at four decimals 0.9997 and 0.9996.
+        check(&[0.99974, 0.99962], 4);
+        // 0.99962 and 0.99958 still agree at four (0.9996): five.
+        check(&[0.99962, 0.99958], 5);
+        check(&[1.0, 0.9999997684711847], 7);
+        // Equal scores (ranked by spectrum id) never widen the column.
+        check(&[0.75, 0.75, 0.5], 3);
+        // Beyond nine decimals, differences are rounding: nine is the most.
+        check(&[0.5, 0.5 + 1e-12], 9);
+    }
 }

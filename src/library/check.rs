@@ -12,6 +12,7 @@ use super::records::{SpectrumRecord, f32_bytes};
 use super::{ContentSum, Library, Recipes, prepare_stored, record_hash};
 use crate::error::Result;
 use crate::spectrum::sha256_hex;
+use crate::technique::Technique;
 
 /// One inconsistency, with the record it concerns.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -411,7 +412,7 @@ fn verify_blob(
         });
         return out;
     }
-    let again = (|| -> Result<(Vec<u8>, String)> {
+    let again = (|| -> Result<(Vec<u8>, String, String)> {
         let recipe = recipes.get(&rec.technique).ok_or_else(|| {
             crate::Error::invalid(
                 format!("no recipe for {}", rec.technique),
@@ -426,10 +427,20 @@ fn verify_blob(
             &rec.y_unit,
             rec.metadata.solvent.as_deref(),
         )?;
-        Ok((f32_bytes(&p.vector), serde_json::to_string(&p.peaks)?))
+        // Libraries prepared before IR and Raman peaks had areas stored 0 for every area;
+        // areas enter no score, so those peak lists still agree.
+        let mut without_areas = p.peaks.clone();
+        if matches!(rec.technique, Technique::Ir | Technique::Raman) {
+            without_areas.iter_mut().for_each(|peak| peak.area = 0.0);
+        }
+        Ok((
+            f32_bytes(&p.vector),
+            serde_json::to_string(&p.peaks)?,
+            serde_json::to_string(&without_areas)?,
+        ))
     })();
     match again {
-        Ok((v, p)) if v == vector && p == peaks => {}
+        Ok((v, p, before_areas)) if v == vector && (p == peaks || before_areas == peaks) => {}
         Ok(_) => out.push(Finding {
             record: id,
             problem:
@@ -455,6 +466,33 @@ mod tests {
         let report = lib.check(&|_, _| {}).unwrap();
         assert!(report.findings.is_empty(), "{:?}", report.findings);
         assert_eq!(report.events, 1);
+    }
+
+    #[test]
+    fn ir_peaks_stored_without_areas_still_check_clean_and_other_edits_do_not() {
+        use crate::library::testing::{add, ir};
+        let mut lib = Library::in_memory("t").unwrap();
+        let staged = ir(7, "band", "a");
+        let id = add(&mut lib, &staged);
+        // The peaks as prepared (not parsed back from JSON, which need not round-trip f64).
+        let mut peaks = staged.prepared.peaks.clone();
+        assert!(peaks.iter().all(|p| p.area > 0.0), "{peaks:?}");
+        let set = |peaks: &[crate::prepare::Peak]| {
+            lib.conn
+                .execute(
+                    "UPDATE prepared SET peaks = ?2 WHERE spectrum_id = ?1",
+                    rusqlite::params![id, serde_json::to_string(peaks).unwrap()],
+                )
+                .unwrap();
+            lib.check(&|_, _| {}).unwrap().findings
+        };
+        // As a library prepared before IR areas stored them: every area 0.
+        peaks.iter_mut().for_each(|p| p.area = 0.0);
+        let found = set(&peaks);
+        assert!(found.is_empty(), "{found:?}");
+        // Any other change to the peaks is still found.
+        peaks[0].area = 1.0;
+        assert_eq!(set(&peaks).len(), 1);
     }
 
     #[test]

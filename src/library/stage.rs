@@ -73,7 +73,7 @@ pub fn read_and_prepare(
             ),
         ));
     }
-    let parsed = read_points(path)?;
+    let parsed = read_points(path, technique)?;
     let converted = check_points(path, &parsed, technique, x_unit)?;
     let conditions = Conditions { y_unit, solvent };
     let prepared = prepare(path, recipe, &converted, &conditions)?;

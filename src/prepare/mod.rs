@@ -14,7 +14,7 @@ mod spectrometry;
 pub use baseline::{ALS_DEFAULT, Baseline, asls, rubber_band};
 pub use carbon::PROFILE_POINTS;
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
-pub use peaks::{Maximum, Peak, find_maxima};
+pub use peaks::{Maximum, Peak, area_between, find_maxima};
 pub use solvent::Solvent;
 pub use spectrometry::nominal_mass as nominal_mz;
 
@@ -304,7 +304,7 @@ fn pick(x: &[f64], y: &[f64], recipe: &Recipe, noise: f64) -> Vec<(Maximum, Peak
                     x: x[m.index],
                     height: y[m.index],
                     width,
-                    area: 0.0,
+                    area: peaks::area_between(x, y, m.left_half, m.right_half),
                 },
             )
         })

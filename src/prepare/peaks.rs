@@ -11,7 +11,10 @@ pub struct Peak {
     pub height: f64,
     /// Full width at half prominence, in x units (0 for MS sticks).
     pub width: f64,
-    /// Integral as a fraction of the spectrum's total area (1H NMR), else 0.
+    /// Integral of the peak. IR and Raman: the area under the prepared curve between the
+    /// half-prominence crossings (the stretch `width` spans), trapezoidal rule on the grid, in
+    /// height units times x units. 1H NMR: the line's integral as a fraction of the spectrum's
+    /// total area. EI-MS sticks and 13C lines: 0 (a stick has no extent).
     pub area: f64,
 }
 
@@ -120,6 +123,33 @@ fn measure(y: &[f64], index: usize) -> Maximum {
     }
 }
 
+/// The area under `(x, y)` between two fractional sample indices, by the trapezoidal rule
+/// over the samples strictly inside and the two end points interpolated linearly (common
+/// practice; equal to `numpy.trapezoid` of the same points for ascending x). Stretches of y
+/// below zero count negative, as in `numpy.trapezoid`; descending x gives the same value as
+/// ascending.
+pub fn area_between(x: &[f64], y: &[f64], from: f64, to: f64) -> f64 {
+    let (from, to) = (from.min(to), from.max(to));
+    let mut xs = vec![x_at(x, from)];
+    let mut ys = vec![x_at(y, from)];
+    let first = from.floor() as usize + 1;
+    let last = (to.ceil() as usize).min(x.len());
+    for i in first..last {
+        if (i as f64) < to {
+            xs.push(x[i]);
+            ys.push(y[i]);
+        }
+    }
+    xs.push(x_at(x, to));
+    ys.push(x_at(y, to));
+    let area: f64 = xs
+        .windows(2)
+        .zip(ys.windows(2))
+        .map(|(xw, yw)| (xw[1] - xw[0]).abs() * (yw[0] + yw[1]) / 2.0)
+        .sum();
+    area
+}
+
 /// Linear interpolation of `x` at a fractional sample index.
 pub fn x_at(x: &[f64], fractional: f64) -> f64 {
     let i = fractional.floor().clamp(0.0, (x.len() - 1) as f64) as usize;
@@ -156,6 +186,28 @@ mod tests {
         let y = [0.0, 2.0, 2.0, 2.0, 0.0, 1.0, 1.0, 0.0];
         let idx: Vec<_> = find_maxima(&y, 0.0).iter().map(|m| m.index).collect();
         assert_eq!(idx, [2, 5]);
+    }
+
+    #[test]
+    fn area_between_the_half_height_crossings() {
+        // The triangle below on a 2 cm-1 grid crosses half its prominence (2) at samples 2
+        // and 6; the trapezoidal rule over [2, 3, 4, 3, 2] at spacing 2 gives
+        // 2 x (2/2 + 3 + 4 + 3 + 2/2) = 24, as numpy.trapezoid([2, 3, 4, 3, 2], dx=2) does.
+        let y = [0.0, 1.0, 2.0, 3.0, 4.0, 3.0, 2.0, 1.0, 0.0];
+        let x: Vec<f64> = (0..9).map(|i| 400.0 + 2.0 * i as f64).collect();
+        let m = find_maxima(&y, 0.0)[0];
+        assert_eq!((m.left_half, m.right_half), (2.0, 6.0));
+        assert_eq!(area_between(&x, &y, m.left_half, m.right_half), 24.0);
+        // x descending (a file from 4000 down) gives the same, positive, area.
+        let down: Vec<f64> = x.iter().rev().copied().collect();
+        assert_eq!(area_between(&down, &y, 2.0, 6.0), 24.0);
+        // Fractional ends: from sample 1.5 to 3.25 the points are (403, 1.5), (404, 2),
+        // (406, 3), (406.5, 3.25); numpy.trapezoid([1.5, 2, 3, 3.25], [403, 404, 406, 406.5])
+        // = 1 x 1.75 + 2 x 2.5 + 0.5 x 3.125 = 8.3125 (numpy 2.4 gives 8.3125).
+        assert_eq!(area_between(&x, &y, 1.5, 3.25), 8.3125);
+        // Below zero counts negative, as numpy.trapezoid([-2, -3, -4, -3, -2], dx=2) = -24.
+        let below: Vec<f64> = y.iter().map(|v| -v).collect();
+        assert_eq!(area_between(&x, &below, 2.0, 6.0), -24.0);
     }
 
     #[test]

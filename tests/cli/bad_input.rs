@@ -385,3 +385,30 @@ fn a_library_from_a_newer_whorl() {
     assert!(hint(&text).contains("newer whorl"), "{text}");
     assert_eq!(sha256_of(&db), before, "the database file changed");
 }
+
+#[test]
+fn a_file_of_another_technique_is_refused_saying_what_it_looks_like() {
+    // The demo's IR unknown (4000-400 cm-1 at 2 cm-1) searched as EI-MS once scored 0.000
+    // against everything; now it is refused, with what the file looks like.
+    let lab = lab();
+    let ir = crate::util::seed().join("unknowns/u01.ir.csv");
+    let ir = ir.to_str().unwrap();
+    let text = lab.refuses(&["search", ir, "--technique", "ms-ei"], 3);
+    contains(
+        &text,
+        "u01.ir.csv: x runs from 400 to 4000 in 1801 evenly spaced points: \
+         this looks like an IR or Raman spectrum (cm-1), not ms-ei data",
+    );
+    contains(hint(&text), "give the technique as ir or raman");
+    // Adding it as 1H NMR names the first point outside the ppm range and the same shape.
+    let text = refused_add(std::fs::read(ir).unwrap(), "nmr-1h", &[], "bad.csv:5");
+    contains(&text, "this looks like an IR or Raman spectrum");
+    // A 1H NMR unknown given as IR.
+    let proton = crate::util::seed().join("unknowns/u12.nmr-1h.csv");
+    let text = refused_add(std::fs::read(proton).unwrap(), "ir", &[], "bad.csv");
+    contains(
+        &text,
+        "this looks like a 1H NMR spectrum (ppm), not ir data",
+    );
+    contains(hint(&text), "give the technique as nmr-1h");
+}

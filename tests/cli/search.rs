@@ -432,3 +432,64 @@ fn a_search_writes_the_vector_cache_and_check_rebuilds_it() {
     assert!(out.contains("vector cache for ir rebuilt"), "{out}");
     assert!(std::fs::metadata(&cache).unwrap().len() > 512);
 }
+
+#[test]
+fn near_identical_hits_print_with_the_digits_that_rank_them() {
+    // Two references that differ in one point's absorbance by 0.002: searched with the first
+    // as the unknown, both score 1.000 to three decimals. The table widens the score column
+    // until the two differ; JSON and CSV carry the scores at full precision.
+    let lab = Lab::new();
+    let bands = [(1715.0, 0.9, 10.0), (1360.0, 0.4, 10.0)];
+    let exact = ir_csv(&bands);
+    let nudged: String = exact
+        .lines()
+        .map(|line| match line.strip_prefix("1716,") {
+            Some(y) => format!("1716,{:.6}\n", y.parse::<f64>().unwrap() + 0.002),
+            None => format!("{line}\n"),
+        })
+        .collect();
+    assert_ne!(exact, nudged);
+    lab.add("a.csv", &exact, "ir", "original", &[]);
+    lab.add("b.csv", &nudged, "ir", "nudged", &[]);
+    lab.approve_all();
+    let path = lab.path("a.csv");
+    let args = ["search", path.to_str().unwrap(), "-t", "ir", "--top", "2"];
+    let json = lab.json(&args);
+    let scores: Vec<f64> = json["hits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|h| h["score"].as_f64().unwrap())
+        .collect();
+    assert_eq!(scores.len(), 2, "{json}");
+    assert!(scores[0] > scores[1], "{scores:?}");
+    assert_eq!(format!("{:.3}", scores[0]), format!("{:.3}", scores[1]));
+    // The digits the table needs: the fewest, from three up, at which the two differ.
+    let digits = (3..=9)
+        .find(|&d| format!("{:.d$}", scores[0]) != format!("{:.d$}", scores[1]))
+        .unwrap();
+    assert!(digits > 3);
+    let table = lab.ok(&args);
+    for s in &scores {
+        let shown = format!("{s:.digits$}");
+        assert!(table.contains(&shown), "{shown} not in\n{table}");
+    }
+    let margin = format!("margin    {:.digits$} between", scores[0] - scores[1]);
+    assert!(table.contains(&margin), "{margin:?} not in\n{table}");
+    // CSV: the same f64 as the JSON (serde_json's default float reader, used here to read the
+    // JSON, may be one unit in the last place off; Rust's own parse of the CSV is exact).
+    let mut csv_args = args.to_vec();
+    csv_args.push("--csv");
+    let text = lab.ok(&csv_args);
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    let headers = reader.headers().unwrap().clone();
+    let col = headers.iter().position(|h| h == "score").unwrap();
+    let csv_scores: Vec<f64> = reader
+        .records()
+        .map(|r| r.unwrap()[col].parse().unwrap())
+        .collect();
+    for (c, j) in csv_scores.iter().zip(&scores) {
+        assert!((c - j).abs() <= 2.0 * f64::EPSILON, "{c} against {j}");
+    }
+    assert!(csv_scores[0] > csv_scores[1]);
+}

@@ -698,3 +698,23 @@ fn searches_saved_with_the_earlier_defaults_replay_with_them() {
         assert_eq!(r["now"]["parameters"]["score"][key], false, "{key}");
     }
 }
+
+#[test]
+fn a_one_column_13c_shift_list_is_searched_and_other_techniques_refuse_it() {
+    let lab = seeded();
+    // Acetophenone in CDCl3 (from memory: C=O 198.1, ipso 137.1, para 133.0, meta/ortho
+    // 128.5 and 128.2, CH3 26.5 ppm), as a bare list of shifts under a header.
+    let list = lab.write(
+        "acetophenone-shifts.txt",
+        "shift_ppm\n198.1\n137.1\n133.0\n128.5\n128.2\n26.5\n",
+    );
+    let path = list.to_str().unwrap();
+    let report = lab.json(&["search", path, "-t", "nmr-13c", "--solvent", "CDCl3"]);
+    assert_eq!(names(&report)[0], "acetophenone", "{report}");
+    // One column stays refused for a technique that needs x and y.
+    let text = lab.refuses(&["search", path, "-t", "nmr-1h"], 3);
+    assert!(
+        text.contains("acetophenone-shifts.txt:2: expected 2 fields (x, y), found 1"),
+        "{text}"
+    );
+}
