@@ -134,6 +134,14 @@ pub struct Thresholds {
         skip_serializing_if = "Option::is_none"
     )]
     pub close_margin: Option<f64>,
+    /// At or above this combined score (and clear of other compounds by the close margin) the
+    /// best hit is a strong candidate (0..1); unset keeps the derived threshold.
+    #[serde(
+        default,
+        deserialize_with = "some_unit_interval",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub strong_score: Option<f64>,
 }
 
 /// What a lab asks of the evidence before a fused result may be reported as meeting its

@@ -71,8 +71,10 @@ pub fn print_markdown(
          (runs {}-{}, {} unknowns per technique and level) and the *reported* set (run 0, the streams of every earlier \
          version of this document). Defaults are chosen among the scoring variants by their top-1 accuracy at the \
          moderate level on the tuning set; every other section reports the reported set, which plays no part in the \
-         choice. The chosen defaults: EI-MS reverse search (forward search was the default before) and the 13C shift \
-         match with the referencing correction and the weak-line discount (both new; `neither` is the earlier default).",
+         choice. The tuning parts of the real spectra (`docs/evaluation-real.md`) count as well. The chosen defaults: \
+         EI-MS ranks by the entropy similarity alone (Li et al. 2021; before it, the Stein & Scott composite in \
+         reverse search with 0.2 peak Jaccard), and the 13C shift match with the referencing correction and the \
+         weak-line discount.",
         TUNING_RUNS[0],
         TUNING_RUNS[TUNING_RUNS.len() - 1],
         n * REPLICATES as usize * TUNING_RUNS.len()
@@ -222,15 +224,22 @@ pub fn print_markdown(
     println!(
         "- **close margin** (`close_margin`): how far apart hits 1 and 2 must be before a repeat measurement of the same sample would not swap them. For every moderate unknown, a repeat is made with the same systematic degradations (shift, missing bands, contaminant, solvent, offset) and fresh random noise, and the score difference of the two compounds ranked first and second in the unknown is computed again. With d the change of that difference between the two measurements, the difference itself scatters with standard deviation s = sd(d) / sqrt(2), and 1.96 s is the two-sided 95 % limit of a difference that is only measurement noise. Two top hits of different compounds closer than that are reported as too close to tell apart."
     );
-    println!();
     println!(
-        "Both are rounded up to two decimals and copied into `THRESHOLDS` in `src/search/mod.rs`; a unit test checks that the two agree. Rows are kept per technique, measure and EI-MS search direction; the 13C shift match's variants without the referencing correction or the weak-line discount have none of their own and use the default shift match's. To show their effect, the table also gives the fraction of correct first hits scoring below the weak score (warned about needlessly), and the number of wrong first hits with the median margin by which they led."
+        "- **strong score** (`strong_score`): the 99th percentile of the best combined score of a wrong compound (at least the weak score). A best hit at or above it, clear of every other compound by the close margin, is a strong candidate; between the weak and the strong score, a probable match."
     );
     println!();
     println!(
-        "| technique | measure | best wrong score, 95th pct | repeat sd of the top-two difference | **weak score** | **close margin** | correct first hits below the weak score | wrong first hits: count, median lead |"
+        "The three thresholds decide the verdict that ends every hit list (`search::Verdict`): no acceptable match below the weak score; ambiguous when another compound scores within the close margin of the best; else strong candidate or probable match by the strong score."
     );
-    println!("|---|---|---|---|---|---|---|---|");
+    println!();
+    println!(
+        "All three are rounded up to two decimals and copied into `THRESHOLDS` in `src/search/confidence.rs`; a unit test checks that they agree. Rows are kept per technique, measure and EI-MS search direction; the 13C shift match's variants without the referencing correction or the weak-line discount have none of their own and use the default shift match's. To show their effect, the table also gives the fraction of correct first hits scoring below the weak score (warned about needlessly), and the number of wrong first hits with the median margin by which they led."
+    );
+    println!();
+    println!(
+        "| technique | measure | best wrong score, 95th pct | repeat sd of the top-two difference | **weak score** | **close margin** | best wrong score, 99th pct | **strong score** | correct first hits below the weak score | wrong first hits: count, median lead |"
+    );
+    println!("|---|---|---|---|---|---|---|---|---|---|");
     for (s, outs, moves) in results {
         let first_prep = results
             .iter()
@@ -245,6 +254,8 @@ pub fn print_markdown(
         let wrong_best: Vec<f64> = moderate.iter().map(|o| o.best_wrong).collect();
         let p95 = percentile(&wrong_best, 95.0);
         let weak = round_up(p95);
+        let p99 = percentile(&wrong_best, 99.0);
+        let strong = round_up(p99).max(weak);
         let n = moves.len() as f64;
         let mean = moves.iter().sum::<f64>() / n;
         let sd_d = (moves.iter().map(|d| (d - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
@@ -264,8 +275,8 @@ pub fn print_markdown(
             format!("{}, {:.3}", wrong.len(), percentile(&wrong, 50.0))
         };
         println!(
-            "| {} | {} | {:.3} | {:.3} | **{:.2}** | **{:.2}** | {:.3} | {lead} |",
-            s.technique, s.label, p95, sd, weak, close, below
+            "| {} | {} | {:.3} | {:.3} | **{:.2}** | **{:.2}** | {:.3} | **{:.2}** | {:.3} | {lead} |",
+            s.technique, s.label, p95, sd, weak, close, p99, strong, below
         );
     }
     println!();

@@ -22,7 +22,10 @@ pub struct Scoring {
 /// Whether THRESHOLDS has a row of this scoring's own: rows are keyed by technique, measure
 /// and EI-MS direction, so the 13C shift match's variants share the default's row.
 pub fn keyed(s: &Scoring) -> bool {
+    let d = whorl::score::CompositeParams::default();
+    let c = &s.params.composite;
     !(s.technique == Technique::Nmr13c && s.params.measure == Measure::ShiftMatch && !s.default)
+        && (c.intensity_exponent, c.mass_exponent) == (d.intensity_exponent, d.mass_exponent)
 }
 
 pub fn scorings() -> Vec<Scoring> {
@@ -73,6 +76,12 @@ pub fn scorings() -> Vec<Scoring> {
                         let dir = if reverse { "reverse" } else { "forward" };
                         variants.push((format!("composite, {dir}"), p.clone()));
                     }
+                    // Square-root intensities without a mass weight (the real-data
+                    // baseline's weighting), forward; it has no thresholds of its own.
+                    p.composite.reverse = false;
+                    p.composite.intensity_exponent = 0.5;
+                    p.composite.mass_exponent = 0.0;
+                    variants.push(("composite, forward, I^0.5, no m/z weight".into(), p.clone()));
                 } else if t == Technique::Nmr13c && m == Measure::ShiftMatch {
                     // The default, each of its two refinements left out, and both (the
                     // earlier default).

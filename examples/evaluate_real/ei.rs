@@ -6,13 +6,13 @@ use std::path::Path;
 
 use whorl::prepare::{Conditions, Prepared, prepare};
 use whorl::score::{Measure, ScoreParams};
-use whorl::search::{HitList, search_many};
+use whorl::search::{Hit, HitList, search_many, verdict};
 use whorl::technique::Technique;
 
 use crate::baseline::{ei_cosine, ei_vector, ranked};
 use crate::data::{Entry, entries, import, request, split};
 use crate::rng::Rng;
-use crate::tally::{Row, Table, rank};
+use crate::tally::{Row, Table, Verdicts, rank};
 
 pub const SOURCE: &str = "PNNL GC-MS metabolite library (2019-10-15 release), as shipped in the `corems` 4.1.0 package; \
      one half of it, split by compound (`real-spectra/ei-ms/`). Licence: BSD-2-Clause style, Battelle Memorial Institute \
@@ -22,15 +22,54 @@ pub const SOURCE: &str = "PNNL GC-MS metabolite library (2019-10-15 release), as
 const DEGRADED_STREAM: u64 = 11;
 
 /// The scorings compared: whorl's default first.
+/// Each published alternative names its source: the entropy similarity (Li et al., Nature
+/// Methods 2021); the composite with Stein & Scott's weights (J. Am. Soc. Mass Spectrom.
+/// 1994); the weights intensity^0.53 (m/z)^1.3 that S. Kim, I. Koo et al. found optimal for
+/// GC-MS library search (Bioinformatics 2012, from memory); square-root intensities without a
+/// mass weight (the baseline's weighting, inside the composite).
 fn variants() -> Vec<(&'static str, bool, ScoreParams)> {
     let default = ScoreParams::default_for(Technique::MsEi);
-    let mut forward = default.clone();
+    let mut jaccard = default.clone();
+    jaccard.spectral_weight = 0.8;
+    let mut composite = default.clone();
+    composite.measure = Measure::Composite;
+    composite.composite.reverse = true;
+    let mut earlier = composite.clone();
+    earlier.spectral_weight = 0.8;
+    let mut forward = composite.clone();
     forward.composite.reverse = false;
+    let mut kim = forward.clone();
+    kim.composite.intensity_exponent = 0.53;
+    kim.composite.mass_exponent = 1.3;
+    let mut root = forward.clone();
+    root.composite.intensity_exponent = 0.5;
+    root.composite.mass_exponent = 0.0;
     let mut cosine = default.clone();
     cosine.measure = Measure::Cosine;
     vec![
-        ("whorl: composite, reverse search (default)", true, default),
+        ("whorl: entropy similarity (default)", true, default),
+        (
+            "whorl: entropy similarity, 0.2 peak Jaccard",
+            false,
+            jaccard,
+        ),
+        (
+            "whorl: composite, reverse search, 0.2 peak Jaccard (the earlier default)",
+            false,
+            earlier,
+        ),
+        ("whorl: composite, reverse search", false, composite),
         ("whorl: composite, forward search", false, forward),
+        (
+            "whorl: composite, forward, weights I^0.53 (m/z)^1.3 (Kim et al. 2012)",
+            false,
+            kim,
+        ),
+        (
+            "whorl: composite, forward, weights I^0.5, no m/z weight",
+            false,
+            root,
+        ),
         ("whorl: `--measure cosine`", false, cosine),
     ]
 }
@@ -104,19 +143,38 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         .map(|&i| imported.prepared[i].clone())
         .collect();
     let mut rows = Vec::new();
+    let mut loo_verdicts = None;
     for (label, default, params) in variants() {
-        let mut req = request(Technique::MsEi, 6);
+        let mut req = request(Technique::MsEi, VERDICT_DEPTH);
         req.params = params;
         let lists: Vec<HitList> = search_many(lib, &prepared, &req).expect("search");
         let mut row = Row::new(label, default);
+        let mut verdicts: [Verdicts; 2] = Default::default();
         for (&i, list) in queries.iter().zip(&lists) {
             let own = imported.ids[i];
-            let labels = list
+            let hits: Vec<Hit> = list
                 .hits
                 .iter()
                 .filter(|h| h.spectrum_id != own)
-                .map(|h| label_of[&h.spectrum_id]);
-            row.add(parts[&entries[i].label], rank(labels, &entries[i].label));
+                .cloned()
+                .collect();
+            let labels = hits.iter().map(|h| label_of[&h.spectrum_id]);
+            let r = rank(labels, &entries[i].label);
+            let part = parts[&entries[i].label];
+            row.add(part, r);
+            if default {
+                tally_verdicts(
+                    &mut verdicts[part as usize],
+                    list,
+                    hits,
+                    r,
+                    &label_of,
+                    &entries[i].label,
+                );
+            }
+        }
+        if default {
+            loo_verdicts = Some(verdicts);
         }
         rows.push(row);
     }
@@ -146,6 +204,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         ),
         source: SOURCE,
         rows,
+        verdicts: loo_verdicts,
     };
 
     // Degraded: every stored spectrum, degraded, against the full library.
@@ -174,14 +233,32 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         })
         .collect();
     let mut rows = Vec::new();
+    let mut deg_verdicts = None;
     for (label, default, params) in variants() {
-        let mut req = request(Technique::MsEi, 5);
+        let mut req = request(Technique::MsEi, VERDICT_DEPTH);
         req.params = params;
         let lists = search_many(lib, &prepared, &req).expect("search");
         let mut row = Row::new(label, default);
+        let mut verdicts: [Verdicts; 2] = Default::default();
         for (&i, list) in distinct.iter().zip(&lists) {
             let labels = list.hits.iter().map(|h| label_of[&h.spectrum_id]);
-            row.add(parts[&entries[i].label], rank(labels, &entries[i].label));
+            let r = rank(labels, &entries[i].label);
+            let part = parts[&entries[i].label];
+            row.add(part, r);
+            if default {
+                let hits = list.hits.clone();
+                tally_verdicts(
+                    &mut verdicts[part as usize],
+                    list,
+                    hits,
+                    r,
+                    &label_of,
+                    &entries[i].label,
+                );
+            }
+        }
+        if default {
+            deg_verdicts = Some(verdicts);
         }
         rows.push(row);
     }
@@ -207,6 +284,30 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         ),
         source: SOURCE,
         rows,
+        verdicts: deg_verdicts,
     };
     vec![loo, deg]
+}
+
+/// Hits asked for per query: enough that withdrawing every spectrum of the true InChIKey
+/// still leaves the list's first hits.
+const VERDICT_DEPTH: usize = 40;
+
+/// Counts the verdict on one query's list (`hits`: the list as the protocol sees it) and on
+/// the same list with every spectrum of the true InChIKey withdrawn.
+fn tally_verdicts(
+    v: &mut Verdicts,
+    list: &HitList,
+    hits: Vec<Hit>,
+    rank: Option<usize>,
+    label_of: &BTreeMap<i64, &str>,
+    truth: &str,
+) {
+    let on_list = verdict(&hits, &list.confidence);
+    let absent: Vec<Hit> = hits
+        .into_iter()
+        .filter(|h| label_of[&h.spectrum_id] != truth)
+        .collect();
+    let without = verdict(&absent, &list.confidence);
+    v.add(rank == Some(1), on_list.word(), without.word());
 }

@@ -6,14 +6,14 @@ use std::path::Path;
 
 use whorl::prepare::{ALS_DEFAULT, Baseline, Conditions, Prepared, Recipe, prepare};
 use whorl::score::{Measure, ScoreParams};
-use whorl::search::search_many;
+use whorl::search::{Hit, search_many, verdict};
 use whorl::spectrum::YUnit;
 use whorl::technique::Technique;
 
 use crate::baseline::{raman_cosine, raman_vector, ranked};
 use crate::data::{Entry, Imported, entries, import, request, split};
 use crate::rng::Rng;
-use crate::tally::{Row, Table, rank};
+use crate::tally::{Row, Table, Verdicts, rank};
 
 pub const SOURCE: &str = "Raman round-robin spectra of the CHARISMA project, as shipped in the `ramanchada2` 1.5.0 \
      package (`real-spectra/raman/`): four materials on six instrument set-ups, raw counts. Licence: MIT \
@@ -88,8 +88,9 @@ fn table(
     libs: &[(&'static str, Imported)],
     queries: &Queries,
     parts: &BTreeMap<String, crate::data::Part>,
-) -> Vec<Row> {
+) -> (Vec<Row>, Option<[Verdicts; 2]>) {
     let mut rows = Vec::new();
+    let mut verdicts: Option<[Verdicts; 2]> = None;
     let default = ScoreParams::default_for(Technique::Raman);
     for (p, (prep, imported)) in libs.iter().enumerate() {
         let of_id: BTreeMap<i64, usize> = imported
@@ -108,14 +109,31 @@ fn table(
                 if is_default { " (default)" } else { "" }
             );
             let mut row = Row::new(label, is_default);
+            let mut tallies: [Verdicts; 2] = Default::default();
             for (k, list) in lists.iter().enumerate() {
-                let labels = list
+                let entry = |h: &Hit| &entries[of_id[&h.spectrum_id]];
+                let hits: Vec<Hit> = list
                     .hits
                     .iter()
-                    .map(|h| &entries[of_id[&h.spectrum_id]])
-                    .filter(|e| e.instrument != entries[k].instrument)
-                    .map(|e| e.label.as_str());
-                row.add(parts[&entries[k].label], rank(labels, &entries[k].label));
+                    .filter(|h| entry(h).instrument != entries[k].instrument)
+                    .cloned()
+                    .collect();
+                let labels = hits.iter().map(|h| entry(h).label.as_str());
+                let r = rank(labels, &entries[k].label);
+                let part = parts[&entries[k].label];
+                row.add(part, r);
+                if is_default {
+                    let on_list = verdict(&hits, &list.confidence);
+                    let absent: Vec<Hit> = hits
+                        .into_iter()
+                        .filter(|h| entry(h).label != entries[k].label)
+                        .collect();
+                    let without = verdict(&absent, &list.confidence);
+                    tallies[part as usize].add(r == Some(1), on_list.word(), without.word());
+                }
+            }
+            if is_default {
+                verdicts = Some(tallies);
             }
             rows.push(row);
         }
@@ -130,7 +148,7 @@ fn table(
         row.add(parts[&entries[k].label], rank(labels, &entries[k].label));
     }
     rows.push(row);
-    rows
+    (rows, verdicts)
 }
 
 /// The two Raman protocols.
@@ -163,6 +181,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             .map(|(_, imported)| imported.prepared.clone())
             .collect(),
     };
+    let (measured_rows, measured_verdicts) = table(&entries, &libs, &measured, &parts);
     let across = Table {
         title: "Raman: across instruments",
         protocol: format!(
@@ -178,7 +197,8 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             instruments.len()
         ),
         source: SOURCE,
-        rows: table(&entries, &libs, &measured, &parts),
+        rows: measured_rows,
+        verdicts: measured_verdicts,
     };
 
     let degraded: Vec<Vec<(f64, f64)>> = entries
@@ -206,6 +226,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             })
             .collect(),
     };
+    let (degraded_rows, degraded_verdicts) = table(&entries, &libs, &queries, &parts);
     let deg = Table {
         title: "Raman: degraded, across instruments",
         protocol: format!(
@@ -217,7 +238,8 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             entries.len()
         ),
         source: SOURCE,
-        rows: table(&entries, &libs, &queries, &parts),
+        rows: degraded_rows,
+        verdicts: degraded_verdicts,
     };
     vec![across, deg]
 }

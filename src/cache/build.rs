@@ -9,7 +9,8 @@ use memmap2::MmapMut;
 use super::file::VectorCache;
 use super::layout::*;
 use super::rows::{
-    active_bins, choose_block, coarse_row, dense_row, posting_weight, quantise, weights,
+    active_bins, choose_block, coarse_row, dense_row, entropy_row, posting_weight, quantise,
+    weights,
 };
 use super::{Snapshot, VectorRow};
 use crate::error::{Error, Result};
@@ -226,7 +227,10 @@ impl Builder {
             self.integer_x &= p.x.fract() == 0.0 && (0.0..65536.0).contains(&p.x);
         }
         if !self.kind.dense() {
-            let w = weights(&r.peaks, &self.params);
+            let w = match self.kind {
+                Kind::Entropy => entropy_row(&r.peaks),
+                _ => weights(&r.peaks, &self.params),
+            };
             for (k, p) in r.peaks.iter().enumerate() {
                 section_mut::<f32>(&mut self.map, l.offsets[PH], l.nnz)[start + k] =
                     p.height as f32;

@@ -313,7 +313,7 @@ mod tests {
     /// A small IR cache file of three rows and an EI-MS one of three peak lists, in `dir`.
     fn build(dir: &Path, kind: Kind) -> (PathBuf, Technique) {
         let (technique, grid) = match kind {
-            Kind::Sparse => (Technique::MsEi, Technique::MsEi.default_grid()),
+            Kind::Sparse | Kind::Entropy => (Technique::MsEi, Technique::MsEi.default_grid()),
             _ => (
                 Technique::Ir,
                 Grid {
@@ -369,7 +369,7 @@ mod tests {
     #[test]
     fn a_built_file_opens_with_what_was_pushed() {
         let dir = tempfile::tempdir().unwrap();
-        for kind in [Kind::Centred, Kind::Sparse] {
+        for kind in [Kind::Centred, Kind::Sparse, Kind::Entropy] {
             let (path, technique) = build(dir.path(), kind);
             let c = VectorCache::open(&path, technique, kind).unwrap();
             assert_eq!(c.ids(), &[10, 11, 12]);
@@ -378,7 +378,7 @@ mod tests {
             assert_eq!(c.peak_range(2), 4..6);
             assert_eq!(c.peak_x()[4], 43.0);
             assert!(c.is_current(&snapshot()));
-            if kind == Kind::Sparse {
+            if !kind.dense() {
                 // m/z 58 is in every row: its postings list them in order.
                 assert_eq!(c.postings(58).0, &[0, 1, 2]);
                 assert!(c.integer_x);
@@ -394,7 +394,7 @@ mod tests {
     #[test]
     fn a_truncated_or_extended_file_is_refused() {
         let dir = tempfile::tempdir().unwrap();
-        for kind in [Kind::Centred, Kind::Sparse] {
+        for kind in [Kind::Centred, Kind::Sparse, Kind::Entropy] {
             let (path, technique) = build(dir.path(), kind);
             let bytes = std::fs::read(&path).unwrap();
             for len in [0, 8, HEADER - 1, HEADER, bytes.len() / 2, bytes.len() - 1] {

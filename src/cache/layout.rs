@@ -65,8 +65,11 @@ pub enum Kind {
     Centred,
     /// L2-normalised: dot = cosine.
     Unit,
-    /// Peak lists with Stein & Scott weights (EI-MS).
+    /// Peak lists with Stein & Scott weights (EI-MS, composite).
     Sparse,
+    /// Peak lists with entropy-weighted probabilities (EI-MS, entropy similarity): the same
+    /// layout as `Sparse`, its weight section holding each row's `score::entropy_weights`.
+    Entropy,
 }
 
 impl Kind {
@@ -75,6 +78,7 @@ impl Kind {
             Kind::Centred => 1,
             Kind::Unit => 2,
             Kind::Sparse => 3,
+            Kind::Entropy => 4,
         }
     }
 
@@ -83,11 +87,13 @@ impl Kind {
             Kind::Centred => "corr",
             Kind::Unit => "cos",
             Kind::Sparse => "peaks",
+            Kind::Entropy => "entropy",
         }
     }
 
-    pub(super) fn dense(self) -> bool {
-        self != Kind::Sparse
+    /// Dense rows on the grid (else peak lists with an inverted index by nominal m/z).
+    pub fn dense(self) -> bool {
+        !matches!(self, Kind::Sparse | Kind::Entropy)
     }
 }
 

@@ -19,7 +19,8 @@ pub use file::VectorCache;
 pub use kernels::{TopK, dot_f32, i8_dot, i8_dots};
 pub use layout::{BLOCK_SAMPLE, BLOCKS, CACHE_DIR, FORMAT_VERSION, Kind, coarse_stride, file_name};
 pub use rows::{
-    active_bins, choose_block, coarse_row, dense_row, posting_weight, quantise, weights,
+    active_bins, choose_block, coarse_row, dense_row, entropy_row, posting_weight, quantise,
+    weights,
 };
 
 use crate::prepare::Peak;
@@ -53,6 +54,7 @@ pub struct VectorRow {
 pub fn kind_for(technique: Technique, measure: Measure) -> Option<Kind> {
     match (technique, measure) {
         (Technique::MsEi, Measure::Composite) => Some(Kind::Sparse),
+        (Technique::MsEi, Measure::Entropy) => Some(Kind::Entropy),
         (Technique::MsEi, _) => None,
         // 13C ranks by its own shift match; it is searched without a cache.
         (Technique::Nmr13c, _) => None,

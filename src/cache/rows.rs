@@ -3,7 +3,7 @@
 
 use super::layout::{BLOCK_REST, BLOCKS, Kind, NO_BLOCK};
 use crate::prepare::Peak;
-use crate::score::CompositeParams;
+use crate::score::{CompositeParams, entropy_weights};
 use crate::technique::Grid;
 
 /// The unmasked bins of a grid.
@@ -124,6 +124,16 @@ pub fn weights(peaks: &[Peak], params: &CompositeParams) -> Vec<f32> {
     let norm = w.iter().map(|a| a * a).sum::<f64>().sqrt();
     w.iter()
         .map(|&a| if norm > 0.0 { (a / norm) as f32 } else { 0.0 })
+        .collect()
+}
+
+/// The entropy-weighted probabilities of a peak list (`score::entropy_weights`), in f32: what
+/// the entropy similarity sums over the common m/z.
+pub fn entropy_row(peaks: &[Peak]) -> Vec<f32> {
+    let heights: Vec<f64> = peaks.iter().map(|p| p.height).collect();
+    entropy_weights(&heights)
+        .iter()
+        .map(|&a| a as f32)
         .collect()
 }
 

@@ -47,6 +47,7 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
         "cosine",
         "correlation",
         "composite",
+        "entropy",
         "peaks_matched",
         "unknown_peaks",
         "reference_peaks",
@@ -73,6 +74,7 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
             c.cosine.to_string(),
             opt(c.correlation),
             opt(c.composite.as_ref().map(|x| x.composite)),
+            opt(c.entropy),
             o.matched.to_string(),
             o.unknown_peaks.to_string(),
             o.reference_peaks.to_string(),
@@ -144,7 +146,9 @@ fn second_measure(m: Measure, technique: Technique) -> Measure {
             Measure::Correlation
         }
         Measure::Cosine if technique == Technique::Nmr13c => Measure::ShiftMatch,
-        Measure::Cosine if technique == Technique::MsEi => Measure::Composite,
+        Measure::Cosine if technique == Technique::MsEi => Measure::Entropy,
+        Measure::Entropy => Measure::Composite,
+        Measure::Composite => Measure::Entropy,
         Measure::Cosine => Measure::Correlation,
         Measure::Derivative => Measure::Correlation,
         _ => Measure::Cosine,
@@ -277,6 +281,9 @@ pub fn print_report_styled(
     }
     for w in &r.warnings {
         writeln!(out, "{}   {w}", paint.warn("warning"))?;
+    }
+    if let Some(v) = &r.verdict {
+        writeln!(out, "verdict   {}", v.sentence(&r.confidence))?;
     }
     writeln!(out, "caution   {}", r.caution)?;
     Ok(())

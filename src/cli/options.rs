@@ -9,28 +9,27 @@ use whorl::technique::Technique;
 #[derive(Debug, Args)]
 pub struct ScoringArgs {
     /// Ranking measure: correlation or derivative (IR, Raman), correlation (1H NMR),
-    /// composite (EI-MS), shift-match (13C NMR), or cosine (every technique)
+    /// entropy or composite (EI-MS), shift-match (13C NMR), or cosine (every technique)
     #[arg(long, value_name = "M")]
     pub measure: Option<Measure>,
     /// Peak matching tolerance in the technique's x unit [default: IR/Raman 6 cm-1, MS 0.5,
     /// 1H 0.03 ppm, 13C 1.0 ppm]
     #[arg(long, value_name = "X")]
     pub tolerance: Option<f64>,
-    /// EI-MS reverse search, the default: only m/z present in the reference count, so
-    /// co-eluting and background ions in the unknown do not lower the score
+    /// EI-MS composite measure, reverse search (its default): only m/z present in the
+    /// reference count, so co-eluting and background ions in the unknown do not lower the score
     #[arg(long, conflicts_with = "forward")]
     pub reverse: bool,
-    /// EI-MS forward search: every m/z of the unknown counts (the earlier default; see
-    /// docs/evaluation.md)
+    /// EI-MS composite measure, forward search: every m/z of the unknown counts
     #[arg(long)]
     pub forward: bool,
     /// EI-MS: leave out ions below this m/z, in the unknown and the references
     #[arg(long, value_name = "MZ")]
     pub min_mz: Option<f64>,
-    /// EI-MS: exponent of m/z in the peak weight [default: 3]
+    /// EI-MS composite measure: exponent of m/z in the peak weight [default: 3]
     #[arg(long, value_name = "N")]
     pub mz_exponent: Option<f64>,
-    /// EI-MS: exponent of the abundance in the peak weight [default: 0.6]
+    /// EI-MS composite measure: exponent of the abundance in the peak weight [default: 0.6]
     #[arg(long, value_name = "M")]
     pub intensity_exponent: Option<f64>,
     /// 13C NMR: match the shifts as given, without removing a common referencing offset
@@ -70,6 +69,21 @@ impl ScoringArgs {
             return Err(whorl::Error::invalid(
                 format!("{flag} applies to ms-ei searches, not {technique}"),
                 "leave it out, or search an EI mass spectrum with --technique ms-ei",
+            ));
+        }
+        let composite_only = [
+            ("--reverse", self.reverse),
+            ("--forward", self.forward),
+            ("--mz-exponent", self.mz_exponent.is_some()),
+            ("--intensity-exponent", self.intensity_exponent.is_some()),
+        ];
+        if technique == Technique::MsEi
+            && p.measure != Measure::Composite
+            && let Some((flag, _)) = composite_only.iter().find(|(_, given)| *given)
+        {
+            return Err(whorl::Error::invalid(
+                format!("{flag} shapes the composite measure, not {}", p.measure),
+                "add --measure composite to rank by the Stein & Scott composite",
             ));
         }
         let carbon_only = [

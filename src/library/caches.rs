@@ -120,7 +120,7 @@ impl Library {
     ) -> Result<VectorCache> {
         let grid = self.recipe(technique)?.grid.clone();
         let counts = self.vector_counts(technique)?;
-        let sample = if kind == Kind::Sparse {
+        let sample = if !kind.dense() {
             Vec::new()
         } else {
             self.sample_vectors(technique, BLOCK_SAMPLE)?

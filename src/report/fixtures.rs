@@ -129,6 +129,7 @@ pub fn report(
         margin,
         confidence: confidence(technique, &params),
         warnings: vec![],
+        verdict: None,
         caution: crate::CAUTION.to_string(),
     };
     (report, refs)

@@ -16,6 +16,10 @@ pub struct Confidence {
     pub weak_score: f64,
     /// Too-close threshold for the margin between hits 1 and 2.
     pub close_margin: f64,
+    /// Strong-candidate threshold for the best combined score (0 in results saved before it
+    /// existed, whose lists carried no verdict).
+    #[serde(default)]
+    pub strong_score: f64,
     /// Whether the thresholds were derived for this scoring (else the fallback values).
     pub derived: bool,
 }
@@ -33,6 +37,8 @@ pub struct Threshold {
     pub weak_score: f64,
     /// See [`Confidence::close_margin`].
     pub close_margin: f64,
+    /// See [`Confidence::strong_score`].
+    pub strong_score: f64,
 }
 
 const fn row(
@@ -41,6 +47,7 @@ const fn row(
     reverse: bool,
     weak_score: f64,
     close_margin: f64,
+    strong_score: f64,
 ) -> Threshold {
     Threshold {
         technique,
@@ -48,6 +55,7 @@ const fn row(
         reverse,
         weak_score,
         close_margin,
+        strong_score,
     }
 }
 
@@ -60,24 +68,56 @@ const fn row(
 ///   best hit below it scores no better than wrong compounds do in one unknown in twenty;
 /// - close margin: 1.96 times the standard deviation with which the score difference of the
 ///   first two compounds changes between repeat measurements of the same sample, so two top
-///   hits closer than it may swap places in a repeat.
+///   hits closer than it may swap places in a repeat;
+/// - strong score: the 99th percentile of the best combined score of a wrong compound (at
+///   least the weak score), so a best hit above it outscores the best wrong compound in all
+///   but one unknown in a hundred.
 ///
 /// Both are rounded up to two decimals. The unit test `thresholds_match_the_evaluation`
 /// checks this table against `docs/evaluation.md`.
-pub const THRESHOLDS: [Threshold; 13] = [
-    row(Technique::Ir, Measure::Correlation, false, 0.82, 0.03),
-    row(Technique::Ir, Measure::Cosine, false, 0.83, 0.03),
-    row(Technique::Ir, Measure::Derivative, false, 0.76, 0.03),
-    row(Technique::Raman, Measure::Correlation, false, 0.85, 0.03),
-    row(Technique::Raman, Measure::Cosine, false, 0.85, 0.04),
-    row(Technique::Raman, Measure::Derivative, false, 0.81, 0.04),
-    row(Technique::MsEi, Measure::Composite, false, 0.77, 0.02),
-    row(Technique::MsEi, Measure::Composite, true, 0.88, 0.02),
-    row(Technique::MsEi, Measure::Cosine, false, 0.88, 0.02),
-    row(Technique::Nmr1h, Measure::Cosine, false, 0.92, 0.03),
-    row(Technique::Nmr1h, Measure::Correlation, false, 0.93, 0.03),
-    row(Technique::Nmr13c, Measure::ShiftMatch, false, 0.67, 0.26),
-    row(Technique::Nmr13c, Measure::Cosine, false, 0.67, 0.50),
+pub const THRESHOLDS: [Threshold; 14] = [
+    row(Technique::Ir, Measure::Correlation, false, 0.82, 0.03, 0.82),
+    row(Technique::Ir, Measure::Cosine, false, 0.83, 0.03, 0.83),
+    row(Technique::Ir, Measure::Derivative, false, 0.76, 0.03, 0.76),
+    row(
+        Technique::Raman,
+        Measure::Correlation,
+        false,
+        0.85,
+        0.03,
+        0.85,
+    ),
+    row(Technique::Raman, Measure::Cosine, false, 0.85, 0.04, 0.85),
+    row(
+        Technique::Raman,
+        Measure::Derivative,
+        false,
+        0.81,
+        0.04,
+        0.81,
+    ),
+    row(Technique::MsEi, Measure::Composite, false, 0.77, 0.02, 0.77),
+    row(Technique::MsEi, Measure::Composite, true, 0.88, 0.02, 0.88),
+    row(Technique::MsEi, Measure::Cosine, false, 0.88, 0.02, 0.88),
+    row(Technique::MsEi, Measure::Entropy, false, 0.80, 0.02, 0.80),
+    row(Technique::Nmr1h, Measure::Cosine, false, 0.92, 0.03, 0.92),
+    row(
+        Technique::Nmr1h,
+        Measure::Correlation,
+        false,
+        0.93,
+        0.03,
+        0.93,
+    ),
+    row(
+        Technique::Nmr13c,
+        Measure::ShiftMatch,
+        false,
+        0.67,
+        0.26,
+        0.67,
+    ),
+    row(Technique::Nmr13c, Measure::Cosine, false, 0.67, 0.50, 0.67),
 ];
 
 /// The thresholds for a technique and its score parameters: the derived row for this
@@ -105,7 +145,155 @@ pub fn confidence(technique: Technique, params: &ScoreParams) -> Confidence {
     Confidence {
         weak_score: row.weak_score,
         close_margin: row.close_margin,
+        strong_score: row.strong_score,
         derived,
+    }
+}
+
+/// What a hit list comes to, in one machine-readable word and plain wording
+/// ([`Verdict::sentence`]). Derived from the best hit's score and its lead over the next
+/// compound against the technique's [`Confidence`] thresholds; a library match is evidence,
+/// not proof of identity, whatever the verdict.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "verdict", rename_all = "kebab-case")]
+pub enum Verdict {
+    /// The best hit clears the strong score and leads every other compound by at least the
+    /// close margin: a confident identification candidate, to be confirmed.
+    StrongCandidate {
+        /// The compound.
+        name: String,
+        /// Its combined score.
+        score: f64,
+    },
+    /// The best hit clears the weak score, not the strong one, and leads every other
+    /// compound by at least the close margin.
+    Probable {
+        /// The compound.
+        name: String,
+        /// Its combined score.
+        score: f64,
+    },
+    /// The best hit clears the weak score, but other compounds score within the close margin
+    /// of it: this spectrum alone cannot tell them apart.
+    Ambiguous {
+        /// The compounds within the close margin of the best, best first.
+        candidates: Vec<String>,
+        /// Best score minus the lowest score among them.
+        spread: f64,
+    },
+    /// No hit clears the weak score: the compound is probably not in the library (or the
+    /// spectrum is too poor to match).
+    NoAcceptableMatch {
+        /// The best combined score, if anything was compared.
+        best: Option<f64>,
+        /// The weak score it fell below.
+        threshold: f64,
+    },
+    /// A combination of library spectra explains the unknown clearly better than its best
+    /// hit alone.
+    PossibleMixture {
+        /// The components, largest share first.
+        components: Vec<String>,
+    },
+}
+
+impl Verdict {
+    /// The machine-readable word, as the JSON's `verdict` field and the CSV have it.
+    pub fn word(&self) -> &'static str {
+        match self {
+            Verdict::StrongCandidate { .. } => "strong-candidate",
+            Verdict::Probable { .. } => "probable",
+            Verdict::Ambiguous { .. } => "ambiguous",
+            Verdict::NoAcceptableMatch { .. } => "no-acceptable-match",
+            Verdict::PossibleMixture { .. } => "possible-mixture",
+        }
+    }
+
+    /// The verdict in plain words, for the end of a hit list.
+    pub fn sentence(&self, c: &Confidence) -> String {
+        match self {
+            Verdict::StrongCandidate { name, score } => format!(
+                "strong candidate: {name} (score {score:.3}, at or above {:.2}, and clear of every other compound by {:.2} or more); confirm it by the lab's own procedure",
+                c.strong_score, c.close_margin
+            ),
+            Verdict::Probable { name, score } => format!(
+                "probable match: {name} (score {score:.3}, between {:.2} and {:.2}); look for corroborating evidence before relying on it",
+                c.weak_score, c.strong_score
+            ),
+            Verdict::Ambiguous { candidates, spread } => format!(
+                "ambiguous: {} score within {spread:.3} of each other (less than {:.2}); this spectrum alone cannot tell them apart",
+                join_names(candidates),
+                c.close_margin
+            ),
+            Verdict::NoAcceptableMatch {
+                best: Some(best),
+                threshold,
+            } => format!(
+                "no acceptable match: the best score {best:.3} is below {threshold:.2}; the compound is probably not in the library"
+            ),
+            Verdict::NoAcceptableMatch { best: None, .. } => {
+                "no acceptable match: no library spectrum was compared".to_string()
+            }
+            Verdict::PossibleMixture { components } => format!(
+                "possibly a mixture: {} together explain the unknown clearly better than any one of them",
+                join_names(components)
+            ),
+        }
+    }
+}
+
+/// `a`, `a and b`, `a, b and c`.
+fn join_names(names: &[String]) -> String {
+    match names {
+        [] => String::new(),
+        [one] => one.clone(),
+        [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
+    }
+}
+
+/// The verdict on a hit list (best first) under thresholds `c`; see [`Verdict`]. Mixtures are
+/// judged elsewhere (they need the spectra, not only the scores).
+pub fn verdict(hits: &[Hit], c: &Confidence) -> Verdict {
+    let Some(best) = hits.first() else {
+        return Verdict::NoAcceptableMatch {
+            best: None,
+            threshold: c.weak_score,
+        };
+    };
+    if best.score < c.weak_score {
+        return Verdict::NoAcceptableMatch {
+            best: Some(best.score),
+            threshold: c.weak_score,
+        };
+    }
+    // Every other compound within the close margin, each once, at its best hit.
+    let mut close: Vec<&Hit> = Vec::new();
+    for h in &hits[1..] {
+        if best.score - h.score < c.close_margin
+            && h.compound_id != best.compound_id
+            && !close.iter().any(|o| o.compound_id == h.compound_id)
+        {
+            close.push(h);
+        }
+    }
+    if let Some(last) = close.last() {
+        let mut candidates = vec![best.name.clone()];
+        candidates.extend(close.iter().map(|h| h.name.clone()));
+        return Verdict::Ambiguous {
+            candidates,
+            spread: best.score - last.score,
+        };
+    }
+    if best.score >= c.strong_score {
+        Verdict::StrongCandidate {
+            name: best.name.clone(),
+            score: best.score,
+        }
+    } else {
+        Verdict::Probable {
+            name: best.name.clone(),
+            score: best.score,
+        }
     }
 }
 
@@ -169,7 +357,7 @@ mod tests {
             .expect("a thresholds section");
         for line in section
             .lines()
-            .filter(|l| l.matches("**").count() == 4 && !l.starts_with("| technique"))
+            .filter(|l| l.matches("**").count() == 6 && !l.starts_with("| technique"))
         {
             let cells: Vec<&str> = line.trim_matches('|').split('|').map(str::trim).collect();
             let technique: Technique = cells[0].parse().unwrap();
@@ -187,7 +375,11 @@ mod tests {
                 .iter()
                 .find(|t| t.technique == technique && t.measure == measure && t.reverse == reverse)
                 .unwrap_or_else(|| panic!("no THRESHOLDS row for {line}"));
-            assert_eq!((t.weak_score, t.close_margin), (bold[0], bold[1]), "{line}");
+            assert_eq!(
+                (t.weak_score, t.close_margin, t.strong_score),
+                (bold[0], bold[1], bold[2]),
+                "{line}"
+            );
             rows += 1;
         }
         assert_eq!(
@@ -195,6 +387,42 @@ mod tests {
             THRESHOLDS.len(),
             "every row of THRESHOLDS is in the evaluation"
         );
+    }
+
+    #[test]
+    fn each_verdict_follows_from_the_scores_and_thresholds() {
+        use crate::search::hit::test_hit as hit;
+        let c = Confidence {
+            weak_score: 0.80,
+            close_margin: 0.03,
+            strong_score: 0.90,
+            derived: true,
+        };
+        let word = |hits: &[Hit]| verdict(hits, &c).word();
+        assert_eq!(word(&[]), "no-acceptable-match");
+        // Below the weak score: not in the library, whatever the lead.
+        assert_eq!(word(&[hit(1, "a", 0.79), hit(2, "b", 0.40)]), "no-acceptable-match");
+        // A second spectrum of the same compound close behind is no ambiguity.
+        let same = [hit(1, "a", 0.95), hit(1, "a", 0.94), hit(2, "b", 0.80)];
+        assert_eq!(word(&same), "strong-candidate");
+        assert_eq!(word(&[hit(1, "a", 0.85), hit(2, "b", 0.70)]), "probable");
+        // Two other compounds within the close margin: all three named, best first.
+        let close = [
+            hit(1, "a", 0.95),
+            hit(2, "b", 0.94),
+            hit(3, "c", 0.93),
+            hit(4, "d", 0.91),
+        ];
+        match verdict(&close, &c) {
+            Verdict::Ambiguous { candidates, spread } => {
+                assert_eq!(candidates, ["a", "b", "c"]);
+                assert!((spread - 0.02).abs() < 1e-12);
+            }
+            v => panic!("{v:?}"),
+        }
+        assert!(verdict(&close, &c).sentence(&c).contains("a, b and c"));
+        // Exactly at the thresholds counts as reaching them.
+        assert_eq!(word(&[hit(1, "a", 0.90), hit(2, "b", 0.87)]), "strong-candidate");
     }
 
     #[test]

@@ -194,41 +194,10 @@ fn disagreements(evidence: &[TechniqueEvidence]) -> Vec<String> {
 mod tests {
     use super::*;
     use crate::config::IdentityPolicy;
-    use crate::library::Status;
-    use crate::score::{Overlap, Scores};
     use crate::search::{Confidence, judge};
 
     fn hit(compound_id: i64, name: &str, score: f64) -> Hit {
-        Hit {
-            rank: 0,
-            score,
-            components: Scores {
-                combined: score,
-                spectral: score,
-                cosine: score,
-                correlation: None,
-                derivative: None,
-                composite: None,
-                shift_match: None,
-                peak_overlap: Overlap {
-                    matched: 0,
-                    unknown_peaks: 0,
-                    reference_peaks: 0,
-                    forward: 0.0,
-                    reverse: 0.0,
-                    jaccard: 0.0,
-                },
-            },
-            spectrum_id: compound_id * 10,
-            compound_id,
-            name: name.into(),
-            formula: None,
-            cas: None,
-            technique: Technique::Ir,
-            status: Status::Pending,
-            solvent: None,
-            notes: vec![],
-        }
+        crate::search::hit::test_hit(compound_id, name, score)
     }
 
     #[test]
@@ -262,6 +231,7 @@ mod tests {
         Confidence {
             weak_score,
             close_margin,
+            strong_score: weak_score,
             derived: false,
         }
     }

@@ -53,3 +53,40 @@ pub struct Excluded {
     /// Why it was ruled out.
     pub reason: String,
 }
+
+/// A hit with every score equal to `score`, for tests.
+#[cfg(test)]
+pub(crate) fn test_hit(compound_id: i64, name: &str, score: f64) -> Hit {
+    use crate::score::Overlap;
+    Hit {
+        rank: 0,
+        score,
+        components: Scores {
+            combined: score,
+            spectral: score,
+            cosine: score,
+            correlation: None,
+            derivative: None,
+            composite: None,
+            entropy: None,
+            shift_match: None,
+            peak_overlap: Overlap {
+                matched: 0,
+                unknown_peaks: 0,
+                reference_peaks: 0,
+                forward: 0.0,
+                reverse: 0.0,
+                jaccard: 0.0,
+            },
+        },
+        spectrum_id: compound_id * 10,
+        compound_id,
+        name: name.into(),
+        formula: None,
+        cas: None,
+        technique: Technique::Ir,
+        status: Status::Pending,
+        solvent: None,
+        notes: vec![],
+    }
+}

@@ -4,7 +4,7 @@
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use super::confidence::{Confidence, confidence, list_warnings};
+use super::confidence::{Confidence, Verdict, confidence, list_warnings, verdict};
 use super::hit::{Excluded, Hit};
 use super::plan::{Plan, Request};
 use super::scan;
@@ -33,6 +33,9 @@ pub struct HitList {
     pub confidence: Confidence,
     /// Plain-language warnings about how far to trust the list.
     pub warnings: Vec<String>,
+    /// What the list comes to (absent in lists saved before verdicts existed).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub verdict: Option<Verdict>,
 }
 
 /// Notes about one hit for an unknown measured in `unknown_solvent`.
@@ -279,7 +282,14 @@ fn finish(
         confidence.close_margin = c;
         confidence.derived = false;
     }
+    if let Some(s) = request.thresholds.strong_score {
+        confidence.strong_score = s;
+        confidence.derived = false;
+    }
+    // A configured weak score above the derived strong one leaves no room for "probable".
+    confidence.strong_score = confidence.strong_score.max(confidence.weak_score);
     let mut warnings = list_warnings(&hits, &confidence);
+    let verdict = Some(verdict(&hits, &confidence));
     if request.filter.is_some() && library.text_index_behind() {
         warnings.push(
             "the metadata index is behind the database (another process is writing); the --where filter may miss the newest spectra".to_string(),
@@ -302,5 +312,6 @@ fn finish(
         margin,
         confidence,
         warnings,
+        verdict,
     })
 }

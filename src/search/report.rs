@@ -112,6 +112,9 @@ pub struct Report {
     pub confidence: Confidence,
     /// Warnings about the unknown's preparation and about the hit list.
     pub warnings: Vec<String>,
+    /// What the hit list comes to (absent in reports saved before verdicts existed).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub verdict: Option<crate::search::Verdict>,
     /// The caution that goes with every hit list.
     pub caution: String,
 }
@@ -257,6 +260,7 @@ fn make_report(
         margin: list.margin,
         confidence: list.confidence,
         warnings,
+        verdict: list.verdict,
         caution: crate::CAUTION.to_string(),
     };
     Ok(report)

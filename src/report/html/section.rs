@@ -126,6 +126,16 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
         }
         s.push_str("</ul>\n");
     }
+    if let Some(v) = &r.verdict {
+        w(
+            &mut s,
+            format_args!(
+                "<p class=\"verdict\" data-verdict=\"{}\"><strong>Verdict:</strong> {}</p>\n",
+                v.word(),
+                escape(&v.sentence(&r.confidence))
+            ),
+        );
+    }
 
     s.push_str("<h3>Hits</h3>\n");
     hit_table(&mut s, r, query.references.len());

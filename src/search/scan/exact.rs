@@ -11,7 +11,7 @@ use crate::cache::{Kind, VectorCache, dot_f32};
 use crate::error::Result;
 use crate::library::Library;
 use crate::prepare::Prepared;
-use crate::score::{Scores, peak_overlap, score, stein_scott};
+use crate::score::{Scores, entropy_similarity, peak_overlap, score, stein_scott};
 use crate::search::Request;
 use crate::technique::Grid;
 
@@ -30,14 +30,18 @@ pub(super) fn rescore_bound(
         .iter()
         .map(|&x| f64::from(x))
         .collect();
-    let spectral = if cache.kind == Kind::Sparse {
+    let spectral = if !cache.kind.dense() {
         let r: Vec<(f64, f64)> = xs
             .iter()
             .zip(&cache.peak_h()[range])
             .map(|(&x, &h)| (x, f64::from(h)))
             .collect();
         let u: Vec<(f64, f64)> = q.unknown.peaks.iter().map(|p| (p.x, p.height)).collect();
-        stein_scott(&u, &r, &request.params.composite).composite
+        if cache.kind == Kind::Entropy {
+            entropy_similarity(&u, &r)
+        } else {
+            stein_scott(&u, &r, &request.params.composite).composite
+        }
     } else {
         let s = cache.stride();
         f64::from(dot_f32(

@@ -8,7 +8,7 @@ use rayon::prelude::*;
 use super::CHUNK;
 use super::dense::dense_key;
 use super::query::{Bins, Query};
-use super::sparse::{RowSums, accumulate, sparse_key};
+use super::sparse::{RowSums, Sums, accumulate, sparse_key};
 use crate::cache::{Kind, TopK, VectorCache, i8_dots, quantise};
 use crate::search::Request;
 
@@ -52,7 +52,8 @@ pub(super) struct Scan<'a> {
     pub(super) bins: &'a Bins,
     pub(super) w: f64,
     pub(super) tolerance: f64,
-    pub(super) reverse: bool,
+    /// Sparse: what the sums are for.
+    pub(super) sums: Sums,
 }
 
 /// One worker's state: its selection per unknown, and (EI-MS) where its postings cursors
@@ -83,12 +84,12 @@ impl Scan<'_> {
         let mut sums = vec![RowSums::ZERO; len];
         for (j, q) in self.queries.iter().enumerate() {
             let cursors = &mut worker.cursors[j];
-            accumulate(self.cache, q, r0, &mut sums, self.reverse, cursors);
+            accumulate(self.cache, q, r0, &mut sums, self.sums, cursors);
             let heap = &mut worker.heaps[j];
             for r in (r0..r0 + len).filter(|&r| self.on(r)) {
                 let floor = heap.floor().max(outside[j]);
-                let (w, tol, reverse) = (self.w, self.tolerance, self.reverse);
-                let key = sparse_key(self.cache, q, r, &sums[r - r0], w, tol, reverse, floor);
+                let (w, tol, mode) = (self.w, self.tolerance, self.sums);
+                let key = sparse_key(self.cache, q, r, &sums[r - r0], w, tol, mode, floor);
                 keys[j * len + r - r0] = key;
                 heap.push(key, r);
             }
@@ -168,7 +169,11 @@ pub(super) fn first_scan(
         bins,
         w,
         tolerance: request.params.peak_tolerance,
-        reverse: request.params.composite.reverse,
+        sums: match (cache.kind, request.params.composite.reverse) {
+            (Kind::Entropy, _) => Sums::Entropy,
+            (_, true) => Sums::Reverse,
+            (_, false) => Sums::Forward,
+        },
     };
     let mut keys = vec![f32::NEG_INFINITY; n * nq];
     // Every worker's smallest kept key, once its selection is full, is a lower bound on the
@@ -195,7 +200,7 @@ pub(super) fn first_scan(
                 .iter()
                 .map(|a| f32::from_bits(a.load(Ordering::Relaxed)))
                 .collect();
-            if cache.kind == Kind::Sparse {
+            if !cache.kind.dense() {
                 scan.sparse_chunk(r0, keys, &outside, &mut worker);
             } else {
                 scan.dense_chunk(r0, keys, &outside, &mut worker);

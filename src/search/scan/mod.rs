@@ -139,11 +139,12 @@ fn rank_keeping(
         return Ok(None);
     }
     let grid = &plan.recipe.grid;
-    if kind == Kind::Sparse {
+    if !kind.dense() {
         let c = &request.params.composite;
         let d = crate::score::CompositeParams::default();
-        if c.intensity_exponent != d.intensity_exponent
-            || c.mass_exponent != d.mass_exponent
+        let composite = kind == Kind::Sparse;
+        if (composite
+            && (c.intensity_exponent != d.intensity_exponent || c.mass_exponent != d.mass_exponent))
             || unknowns.iter().any(|u| {
                 u.peaks
                     .iter()
@@ -156,7 +157,7 @@ fn rank_keeping(
         return Ok(None);
     }
     let cache = library.vector_cache(request.technique, kind)?;
-    if kind == Kind::Sparse && !cache.integer_x {
+    if !kind.dense() && !cache.integer_x {
         return Ok(None);
     }
 

@@ -2,7 +2,7 @@
 //! m/z table, and the bins that map peak positions to the bitmap.
 
 use super::NEAR_BINS;
-use crate::cache::{Kind, VectorCache, coarse_row, dense_row, weights};
+use crate::cache::{Kind, VectorCache, coarse_row, dense_row, entropy_row, weights};
 use crate::prepare::Prepared;
 use crate::technique::Grid;
 
@@ -97,7 +97,7 @@ pub(super) fn make_query<'a>(
     tolerance: f64,
 ) -> Query<'a> {
     let mut q = Query::blank(unknown);
-    if cache.kind == Kind::Sparse {
+    if !cache.kind.dense() {
         // A table up to the unknown's largest m/z only, so it stays in the L1 cache; a row's
         // m/z beyond it has weight 0 and no unknown peak.
         let len = unknown
@@ -107,7 +107,11 @@ pub(super) fn make_query<'a>(
             .max()
             .unwrap_or(0);
         q.table = vec![[0.0; 3]; len];
-        let w = weights(&unknown.peaks, &cache.composite);
+        let w = if cache.kind == Kind::Entropy {
+            entropy_row(&unknown.peaks)
+        } else {
+            weights(&unknown.peaks, &cache.composite)
+        };
         for (p, w) in unknown.peaks.iter().zip(w) {
             let bin = p.x as usize;
             q.table[bin] = [w, 1.0, if p.height > 0.0 { 1.0 } else { 0.0 }];

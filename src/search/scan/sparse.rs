@@ -4,11 +4,25 @@
 use super::MARGIN;
 use super::query::Query;
 use crate::cache::VectorCache;
+use crate::score::{LN_4, common_term};
+
+/// What a sparse row's sums are summed for: the composite, forward or in reverse search, or
+/// the entropy similarity (whose weights are entropy-weighted probabilities).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Sums {
+    /// Composite, forward search.
+    Forward,
+    /// Composite, reverse search.
+    Reverse,
+    /// Entropy similarity.
+    Entropy,
+}
 
 /// The combined-score bound of the first scan for a sparse (EI-MS) row, from its sums over
 /// the m/z it shares with the unknown (see [`accumulate`]). With reverse search, a row whose
 /// loose bound (ratio term 1) stays below `floor` keeps that bound without the ratio term
-/// being computed.
+/// being computed. The entropy similarity is its sum itself: exact but for the f32 rounding
+/// of the probabilities, which `MARGIN` covers.
 #[inline]
 #[allow(clippy::too_many_arguments)]
 pub(super) fn sparse_key(
@@ -18,12 +32,20 @@ pub(super) fn sparse_key(
     sums: &RowSums,
     w: f64,
     tolerance: f64,
-    reverse: bool,
+    mode: Sums,
     floor: f32,
 ) -> f32 {
     let range = cache.peak_range(row);
     let jaccard = jaccard_bound(q, range.len(), sums.shared as usize, tolerance);
-    if reverse {
+    if mode == Sums::Entropy {
+        let entropy = if sums.accounted {
+            (sums.ur / LN_4 + MARGIN).min(1.0)
+        } else {
+            1.0
+        };
+        return (w * entropy + (1.0 - w) * jaccard) as f32;
+    }
+    if mode == Sums::Reverse {
         let key = |composite: f64| (w * composite + (1.0 - w) * jaccard) as f32;
         if !sums.accounted {
             return key(1.0);
@@ -72,7 +94,8 @@ pub(super) struct RowSums {
     pub(super) dot: f32,
     /// m/z where both have a peak, of any height (for the Jaccard bound).
     pub(super) shared: u32,
-    /// Reverse: sum W_U W_L over the common m/z.
+    /// Reverse: sum W_U W_L over the common m/z. Entropy: the sum of
+    /// `score::common_term` over the common m/z.
     pub(super) ur: f64,
     /// Reverse: sum W_U^2 over the common m/z.
     pub(super) uu: f64,
@@ -111,9 +134,9 @@ impl RowSums {
     /// those, far inside `MARGIN`. A posting marked untrusted (a cached height or weight of 0
     /// may be a positive one lost to f32) leaves the row not accounted for (bound 1).
     #[inline]
-    pub(super) fn add(&mut self, t: &[f32; 3], p: f32, reverse: bool) {
+    pub(super) fn add(&mut self, t: &[f32; 3], p: f32, mode: Sums) {
         self.shared += 1;
-        if !reverse {
+        if mode == Sums::Forward {
             self.dot += t[0] * p.abs();
             return;
         }
@@ -125,8 +148,12 @@ impl RowSums {
             self.accounted = false;
             return;
         }
-        self.ur += wu * wl;
-        self.uu += wu * wu;
+        if mode == Sums::Entropy {
+            self.ur += common_term(wu, wl);
+        } else {
+            self.ur += wu * wl;
+            self.uu += wu * wu;
+        }
         self.common += 1;
     }
 }
@@ -145,7 +172,7 @@ pub(super) fn accumulate(
     q: &Query<'_>,
     r0: usize,
     sums: &mut [RowSums],
-    reverse: bool,
+    mode: Sums,
     cursors: &mut Vec<(usize, usize)>,
 ) {
     sums.fill(RowSums::ZERO);
@@ -166,7 +193,7 @@ pub(super) fn accumulate(
             && (r as usize) < r1
         {
             if let Some(s) = sums.get_mut((r as usize).wrapping_sub(r0)) {
-                s.add(t, ws[k], reverse);
+                s.add(t, ws[k], mode);
             }
             k += 1;
         }

@@ -78,19 +78,29 @@ fn check_equivalence(technique: Technique, seed: u64) {
         unknowns.push(unknown(&lib, technique, pts));
     }
     let mut requests = Vec::new();
-    for (pending, filter, top, reverse) in [
-        (false, None, 10, true),
-        (true, None, 10, true),
-        (true, Some("tag:even"), 10, true),
-        (true, None, 1, true),
-        (true, None, 50, true),
-        (false, None, 10, false),
-        (true, Some("tag:even"), 10, false),
-        (true, None, 1, false),
+    // EI-MS: the entropy similarity (the default), the composite in reverse and in forward
+    // search; the other techniques ignore both.
+    let entropy = crate::score::Measure::Entropy;
+    let composite = crate::score::Measure::Composite;
+    for (pending, filter, top, measure, reverse) in [
+        (false, None, 10, entropy, false),
+        (true, None, 10, entropy, false),
+        (true, Some("tag:even"), 10, entropy, false),
+        (true, None, 1, entropy, false),
+        (true, None, 50, entropy, false),
+        (false, None, 10, composite, true),
+        (true, None, 10, composite, true),
+        (true, Some("tag:even"), 10, composite, true),
+        (true, None, 1, composite, true),
+        (false, None, 10, composite, false),
+        (true, Some("tag:even"), 10, composite, false),
+        (true, None, 1, composite, false),
     ] {
         let mut r = Request::new(technique);
-        // EI-MS: reverse search (the default) and forward search.
-        r.params.composite.reverse = reverse;
+        if technique == Technique::MsEi {
+            r.params.measure = measure;
+            r.params.composite.reverse = reverse;
+        }
         if pending {
             r.statuses.push(Status::Pending);
         }
@@ -185,22 +195,22 @@ fn mixed_ms_unknowns(
 }
 
 /// One row's sums through the inverted index, as the first scan takes them.
-fn sums_of(cache: &VectorCache, q: &Query<'_>, row: usize, reverse: bool) -> RowSums {
+fn sums_of(cache: &VectorCache, q: &Query<'_>, row: usize, mode: Sums) -> RowSums {
     let mut s = [RowSums::ZERO];
-    accumulate(cache, q, row, &mut s, reverse, &mut Vec::new());
+    accumulate(cache, q, row, &mut s, mode, &mut Vec::new());
     s[0]
 }
 
 /// One row's sums by walking its own peaks in the cache: what the inverted index must
 /// reproduce.
-fn sums_by_walk(cache: &VectorCache, q: &Query<'_>, row: usize, reverse: bool) -> RowSums {
+fn sums_by_walk(cache: &VectorCache, q: &Query<'_>, row: usize, mode: Sums) -> RowSums {
     let range = cache.peak_range(row);
     let mut s = RowSums::ZERO;
     for k in range {
         let b = usize::from(cache.peak_bin()[k]);
         if let Some(t) = q.table.get(b).filter(|t| t[1] == 1.0) {
             let p = posting_weight(cache.peak_h()[k], cache.peak_w()[k]);
-            s.add(t, p, reverse);
+            s.add(t, p, mode);
         }
     }
     s
@@ -209,48 +219,54 @@ fn sums_by_walk(cache: &VectorCache, q: &Query<'_>, row: usize, reverse: bool) -
 #[test]
 fn the_inverted_index_gives_every_row_the_sums_of_its_own_peaks() {
     let (lib, refs) = random_library(Technique::MsEi, 150, 41);
-    let cache = lib.vector_cache(Technique::MsEi, Kind::Sparse).unwrap();
     let grid = lib.recipe(Technique::MsEi).unwrap().grid.clone();
     let (active, bins) = (active_bins(&grid), Bins::new(&grid));
     let mut shared_seen = 0;
-    for u in mixed_ms_unknowns(&lib, &refs, 42, 6, 7) {
-        let q = make_query(&u, &cache, &active, &bins, 0.5);
-        for reverse in [false, true] {
-            // Whole range at once, as a chunk of the scan sees it, and row by row.
-            let mut all = vec![RowSums::ZERO; cache.rows()];
-            accumulate(&cache, &q, 0, &mut all, reverse, &mut Vec::new());
-            // In pieces, as consecutive chunks of one worker (the cursors carry over),
-            // and out of order.
-            let mut pieces = vec![RowSums::ZERO; cache.rows()];
-            let mut cursors = Vec::new();
-            for start in [0, 37, 80, 140, 10] {
-                let end = match start {
-                    0 => 37,
-                    37 => 80,
-                    80 => 140,
-                    140 => cache.rows(),
-                    _ => 37,
-                };
-                accumulate(
-                    &cache,
-                    &q,
-                    start,
-                    &mut pieces[start..end],
-                    reverse,
-                    &mut cursors,
-                );
-            }
-            assert_eq!(all, pieces);
-            for (row, got) in all.iter().enumerate() {
-                let walked = sums_by_walk(&cache, &q, row, reverse);
-                assert_eq!(*got, walked, "row {row}, reverse {reverse}");
-                assert_eq!(sums_of(&cache, &q, row, reverse), walked);
-                shared_seen += usize::from(walked.shared > 0);
+    for (kind, reverse) in [
+        (Kind::Sparse, Sums::Forward),
+        (Kind::Sparse, Sums::Reverse),
+        (Kind::Entropy, Sums::Entropy),
+    ] {
+        let cache = lib.vector_cache(Technique::MsEi, kind).unwrap();
+        for u in mixed_ms_unknowns(&lib, &refs, 42, 6, 7) {
+            let q = make_query(&u, &cache, &active, &bins, 0.5);
+            {
+                // Whole range at once, as a chunk of the scan sees it, and row by row.
+                let mut all = vec![RowSums::ZERO; cache.rows()];
+                accumulate(&cache, &q, 0, &mut all, reverse, &mut Vec::new());
+                // In pieces, as consecutive chunks of one worker (the cursors carry over),
+                // and out of order.
+                let mut pieces = vec![RowSums::ZERO; cache.rows()];
+                let mut cursors = Vec::new();
+                for start in [0, 37, 80, 140, 10] {
+                    let end = match start {
+                        0 => 37,
+                        37 => 80,
+                        80 => 140,
+                        140 => cache.rows(),
+                        _ => 37,
+                    };
+                    accumulate(
+                        &cache,
+                        &q,
+                        start,
+                        &mut pieces[start..end],
+                        reverse,
+                        &mut cursors,
+                    );
+                }
+                assert_eq!(all, pieces);
+                for (row, got) in all.iter().enumerate() {
+                    let walked = sums_by_walk(&cache, &q, row, reverse);
+                    assert_eq!(*got, walked, "row {row}, {reverse:?}");
+                    assert_eq!(sums_of(&cache, &q, row, reverse), walked);
+                    shared_seen += usize::from(walked.shared > 0);
+                }
             }
         }
     }
     assert!(
-        shared_seen > 100,
+        shared_seen > 300,
         "rows sharing m/z with the unknowns: {shared_seen}"
     );
 }
@@ -273,8 +289,17 @@ fn the_reverse_scan_bound_is_tight_and_never_below_the_composite() {
         let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
         for row in 0..cache.rows() {
             // Spectral weight 1: the key is the composite bound alone.
-            let s = sums_of(&cache, &q, row, true);
-            let bound = f64::from(sparse_key(&cache, &q, row, &s, 1.0, 0.5, true, f32::MIN));
+            let s = sums_of(&cache, &q, row, Sums::Reverse);
+            let bound = f64::from(sparse_key(
+                &cache,
+                &q,
+                row,
+                &s,
+                1.0,
+                0.5,
+                Sums::Reverse,
+                f32::MIN,
+            ));
             let reference = lib.prepared(cache.ids()[row]).unwrap();
             let rp: Vec<(f64, f64)> = reference.peaks.iter().map(|p| (p.x, p.height)).collect();
             let exact = stein_scott(&up, &rp, &params);
@@ -287,6 +312,36 @@ fn the_reverse_scan_bound_is_tight_and_never_below_the_composite() {
         }
     }
     assert!(seen_ratio, "the ratio term was exercised");
+}
+
+#[test]
+fn the_entropy_scan_sum_is_the_entropy_similarity_within_the_margin() {
+    // The first scan's entropy sum over the inverted index (f32 probabilities) lies within
+    // MARGIN above the exact similarity (`score::entropy_similarity` on the stored f64
+    // peaks): a valid bound that is nearly the score itself.
+    let (lib, refs) = random_library(Technique::MsEi, 120, 33);
+    let cache = lib.vector_cache(Technique::MsEi, Kind::Entropy).unwrap();
+    let grid = lib.recipe(Technique::MsEi).unwrap().grid.clone();
+    let (active, bins) = (active_bins(&grid), Bins::new(&grid));
+    let mut high = 0;
+    for u in mixed_ms_unknowns(&lib, &refs, 34, 8, 11) {
+        let q = make_query(&u, &cache, &active, &bins, 0.5);
+        let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
+        for row in 0..cache.rows() {
+            let s = sums_of(&cache, &q, row, Sums::Entropy);
+            let key = sparse_key(&cache, &q, row, &s, 1.0, 0.5, Sums::Entropy, f32::MIN);
+            let bound = f64::from(key);
+            let reference = lib.prepared(cache.ids()[row]).unwrap();
+            let rp: Vec<(f64, f64)> = reference.peaks.iter().map(|p| (p.x, p.height)).collect();
+            let exact = crate::score::entropy_similarity(&up, &rp);
+            high += usize::from(exact > 0.5);
+            assert!(
+                bound >= exact && bound <= exact + 2.0 * MARGIN,
+                "row {row}: bound {bound}, exact {exact}"
+            );
+        }
+    }
+    assert!(high >= 4, "perturbed library spectra score high: {high}");
 }
 
 /// Uniform f64 values in `lo..hi` on a grid of a million steps (proptest's float range
