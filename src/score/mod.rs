@@ -3,6 +3,7 @@
 
 mod composite;
 mod derivative;
+mod nnls;
 mod overlap;
 mod vector;
 
@@ -10,6 +11,7 @@ pub use composite::{Composite, CompositeParams, stein_scott};
 pub use derivative::{
     DerivativeParams, derivative_correlation, first_derivative, savgol_coefficients,
 };
+pub use nnls::{Nnls, nnls};
 pub use overlap::{
     Overlap, peak_overlap, shift_match, shift_match_costed, shift_match_referenced, weak_line_costs,
 };
