@@ -14,7 +14,7 @@ use std::io::Read;
 use serde::Deserialize;
 use serde_json::{Value, json};
 use whorl::prepare::{absorbance_from, area_between, asls, find_maxima, resample, rubber_band};
-use whorl::score::{CompositeParams, cosine, peak_overlap, pearson, stein_scott};
+use whorl::score::{CompositeParams, cosine, nnls, peak_overlap, pearson, stein_scott};
 use whorl::spectrum::YUnit;
 use whorl::technique::Grid;
 
@@ -75,6 +75,11 @@ enum Case {
         reference: Vec<f64>,
         tolerance: f64,
     },
+    /// min |A x - b| with x >= 0; A given by its columns, each as long as `b`.
+    Nnls {
+        columns: Vec<Vec<f64>>,
+        b: Vec<f64>,
+    },
 }
 
 fn run(case: Case) -> Value {
@@ -132,6 +137,10 @@ fn run(case: Case) -> Value {
             tolerance,
         } => serde_json::to_value(peak_overlap(&unknown, &reference, tolerance))
             .expect("Overlap serialises"),
+        Case::Nnls { columns, b } => {
+            let r = nnls(&columns, &b);
+            json!({ "x": r.x, "residual_norm": r.residual_norm, "converged": r.converged })
+        }
     }
 }
 

@@ -26,6 +26,7 @@ from pathlib import Path
 
 import numpy as np
 import pybaselines
+import scipy.optimize
 import scipy.sparse
 import scipy.sparse.csgraph
 import scipy.spatial
@@ -211,6 +212,33 @@ def build_cases(rng):
         "tolerance": 4.0,
     })
     g["peak_overlap"] = ov
+
+    nn = []
+    # Overdetermined with noise first (--mutate disturbs the first two: a fit that leaves a
+    # residual, so that moving b moves both x and the residual norm).
+    for m, n in [(200, 6), (60, 4), (1000, 3), (40, 12), (12, 12), (8, 1), (1, 1), (6, 9), (3, 7)]:
+        a = q(rng.standard_normal((m, n)))
+        b = q(rng.standard_normal(m))
+        nn.append({"op": "nnls", "columns": a.T.tolist(), "b": b.tolist()})
+    # Mixtures of non-negative spectra, as the mixture fit sees them: sticks of EI spectra
+    # (nominal m/z 1-300) and Gaussian bands (an optical grid), mixed with positive weights,
+    # plus noise and a column that is not in the mixture.
+    for n, kind in [(3, "sticks"), (5, "sticks"), (4, "bands"), (6, "bands")]:
+        if kind == "sticks":
+            a = np.zeros((300, n))
+            for j in range(n):
+                ions = rng.choice(300, size=rng.integers(8, 40), replace=False)
+                a[ions, j] = rng.uniform(0.01, 1.0, len(ions)) ** 2
+        else:
+            a = np.column_stack([spectrum(rng, 900, 6, 0.0, "none") for _ in range(n)])
+        w = rng.uniform(0.1, 2.0, n)
+        w[-1] = 0.0
+        b = a @ w + 0.01 * rng.standard_normal(a.shape[0])
+        nn.append({"op": "nnls", "columns": q(a).T.tolist(), "b": q(b).tolist()})
+    # Every column opposite to b: the solution is x = 0.
+    a = q(rng.uniform(0.0, 1.0, (30, 4)))
+    nn.append({"op": "nnls", "columns": a.T.tolist(), "b": q(-a @ np.ones(4)).tolist()})
+    g["nnls"] = nn
     return g
 
 
@@ -417,6 +445,37 @@ def check_peak_overlap(cases, results):
     return len(cases), dev
 
 
+def scipy_nnls(c):
+    # scipy.optimize.nnls (SciPy reference guide): Lawson & Hanson's active-set NNLS.
+    a, b = np.array(c["columns"]).T, np.array(c["b"])
+    return scipy.optimize.nnls(a, b)
+
+
+def check_nnls_x(cases, results):
+    # The solution vector, where it is unique: A of full column rank (m >= n). Deviation:
+    # max |x_whorl - x_scipy| / max(1, max |x_scipy|).
+    devs, n = [0.0], 0
+    for c, r in zip(cases, results):
+        a = np.array(c["columns"]).T
+        if a.shape[0] < a.shape[1] or np.linalg.matrix_rank(a) < a.shape[1]:
+            continue
+        n += 1
+        x, _ = scipy_nnls(c)
+        devs.append(float(np.max(np.abs(np.array(r["x"]) - x))) / max(1.0, float(np.max(np.abs(x)))))
+    return n, max(devs)
+
+
+def check_nnls_residual(cases, results):
+    # The residual norm |A x - b| (unique even where x is not), relative to |b|; and whorl's
+    # x must be feasible (x >= 0) and converged, else the deviation is 1.
+    devs = []
+    for c, r in zip(cases, results):
+        _, rnorm = scipy_nnls(c)
+        feasible = r["converged"] and min(r["x"], default=0.0) >= 0.0
+        devs.append(abs(r["residual_norm"] - rnorm) / max(float(np.linalg.norm(c["b"])), 1e-300) if feasible else 1.0)
+    return len(devs), max(devs)
+
+
 CHECKS = [
     # (group, what is compared, source, check, tolerance on the deviation it returns)
     ("echo", "JSON inputs reach whorl bit for bit (values differing)", "Python json", check_echo, 0),
@@ -433,6 +492,8 @@ CHECKS = [
     ("resample", "linear resampling vs numpy.interp, / range", NUMPY, check_resample, 1e-12),
     ("stein_scott", "Stein & Scott F_D vs NumPy weighted dot, relative", NUMPY, check_stein_scott, 1e-9),
     ("peak_overlap", "peak overlap count vs maximum_bipartite_matching", SCIPY, check_peak_overlap, 0),
+    ("nnls", "NNLS solution vs scipy.optimize.nnls, / max(1, |x|)", SCIPY, check_nnls_x, 1e-9),
+    ("nnls", "NNLS residual norm vs scipy.optimize.nnls, / |b|", SCIPY, check_nnls_residual, 1e-9),
 ]
 
 
@@ -465,6 +526,8 @@ def mutate(case, k):
         c["unknown"][0][1] *= 1.01
     elif op == "peak_overlap":
         c["unknown"] = c["unknown"] + [c["reference"][0]]  # one more certain match
+    elif op == "nnls":
+        c["b"][0] += 1e-2 * (max(c["b"]) - min(c["b"]))  # a fit with a residual moves with b
     return c
 
 

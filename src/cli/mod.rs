@@ -16,6 +16,7 @@ mod init;
 mod list;
 mod log;
 mod man;
+mod mixture;
 mod options;
 mod output;
 mod plot;

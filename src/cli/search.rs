@@ -13,7 +13,7 @@ use whorl::technique::Technique;
 
 use super::hits::{csv_field, print_report_styled, write_csv};
 use super::options::{ConstraintArgs, ScoringArgs};
-use super::{Context, output};
+use super::{Context, mixture, output};
 
 #[derive(Debug, Args)]
 pub struct SearchArgs {
@@ -63,6 +63,12 @@ pub struct SearchArgs {
     /// Also write a self-contained HTML report with overlay plots to FILE
     #[arg(long, value_name = "FILE")]
     pub html: Option<PathBuf>,
+    /// Also fit the unknown as a non-negative mixture of up to N library spectra (2 to 5),
+    /// each further one found by searching what the ones before leave unexplained, and list
+    /// them after the hit list (with --csv as a second table after a blank line; with --json
+    /// under "mixture"). Not for nmr-13c
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u8).range(2..=5))]
+    pub components: Option<u8>,
 }
 
 pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
@@ -100,6 +106,10 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         return run_many(&args, &lib, &unknowns, &request, ctx);
     }
     let (report, unknown) = search_file(&lib, &unknowns[0], &request)?;
+    let mixture = match args.components {
+        Some(n) => Some(mixture::fit(&lib, &report, &unknown, &request, n.into())?),
+        None => None,
+    };
     if let Some(path) = &args.save {
         let text = serde_json::to_string_pretty(&report)? + "\n";
         std::fs::write(path, text)
@@ -118,11 +128,22 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     }
     let mut out = std::io::stdout().lock();
     if args.json {
-        output::json(&mut out, &report)?;
+        match &mixture {
+            Some(m) => output::json(&mut out, &mixture::with_report(&report, m)?)?,
+            None => output::json(&mut out, &report)?,
+        }
     } else if args.csv {
         write_csv(&mut out, &report)?;
+        if let Some(m) = &mixture {
+            writeln!(out)?;
+            mixture::write_csv(&mut out, m)?;
+        }
     } else {
         print_report_styled(&mut out, &report, ctx.paint)?;
+        if let Some(m) = &mixture {
+            writeln!(out)?;
+            mixture::print(&mut out, m, report.unknown.technique)?;
+        }
     }
     Ok(ExitCode::SUCCESS)
 }
@@ -175,10 +196,10 @@ fn run_many(
     request: &Request,
     ctx: &Context,
 ) -> anyhow::Result<ExitCode> {
-    if args.save.is_some() || args.html.is_some() {
+    if args.save.is_some() || args.html.is_some() || args.components.is_some() {
         return Err(whorl::Error::invalid(
-            "--save and --html take one unknown",
-            "search the unknowns one at a time to save or plot each",
+            "--save, --html and --components take one unknown",
+            "search the unknowns one at a time to save, plot or fit each",
         )
         .into());
     }

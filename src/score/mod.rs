@@ -4,6 +4,7 @@
 mod composite;
 mod derivative;
 mod entropy;
+mod nnls;
 mod overlap;
 mod vector;
 
@@ -12,6 +13,7 @@ pub use derivative::{
     DerivativeParams, derivative_correlation, first_derivative, savgol_coefficients,
 };
 pub use entropy::{LN_4, common_term, entropy_similarity, entropy_weights, spectral_entropy};
+pub use nnls::{Nnls, nnls};
 pub use overlap::{
     Overlap, peak_overlap, shift_match, shift_match_costed, shift_match_referenced, weak_line_costs,
 };

@@ -401,7 +401,10 @@ mod tests {
         let word = |hits: &[Hit]| verdict(hits, &c).word();
         assert_eq!(word(&[]), "no-acceptable-match");
         // Below the weak score: not in the library, whatever the lead.
-        assert_eq!(word(&[hit(1, "a", 0.79), hit(2, "b", 0.40)]), "no-acceptable-match");
+        assert_eq!(
+            word(&[hit(1, "a", 0.79), hit(2, "b", 0.40)]),
+            "no-acceptable-match"
+        );
         // A second spectrum of the same compound close behind is no ambiguity.
         let same = [hit(1, "a", 0.95), hit(1, "a", 0.94), hit(2, "b", 0.80)];
         assert_eq!(word(&same), "strong-candidate");
@@ -422,7 +425,10 @@ mod tests {
         }
         assert!(verdict(&close, &c).sentence(&c).contains("a, b and c"));
         // Exactly at the thresholds counts as reaching them.
-        assert_eq!(word(&[hit(1, "a", 0.90), hit(2, "b", 0.87)]), "strong-candidate");
+        assert_eq!(
+            word(&[hit(1, "a", 0.90), hit(2, "b", 0.87)]),
+            "strong-candidate"
+        );
     }
 
     #[test]

@@ -1,12 +1,13 @@
 //! Ranking library spectra against an unknown: a search is planned once ([`Plan`]), ranked
 //! through the vector cache or by scoring every candidate, limited by constraints, judged for
-//! confidence, reported, fused across techniques, and replayed.
+//! confidence, reported, fused across techniques, fitted as a mixture, and replayed.
 
 mod confidence;
 mod constraints;
 mod fusion;
 mod hit;
 mod identify;
+mod mixture;
 mod plan;
 mod policy;
 mod rank;
@@ -25,6 +26,11 @@ pub use fusion::{DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, Technique
 pub use hit::{Excluded, Hit};
 pub use identify::{
     Identification, IdentifyOptions, IdentifyReport, TechniqueRun, identify, identify_with_searches,
+};
+pub use mixture::{
+    CANDIDATES, COELUTION_MIN_ABUNDANCE, COELUTION_UNEXPLAINED, Component, DEFAULT_COMPONENTS,
+    MAX_COMPONENTS, MIN_GAIN, MIN_RELATIVE_GAIN, Mixture, MixtureSettings, UnexplainedIon,
+    fit_mixture, fit_mixture_with, two_explain_more,
 };
 pub use plan::{Given, Plan, Request, Unknown};
 pub use policy::{Objection, PolicyVerdict, judge};

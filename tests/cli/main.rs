@@ -17,6 +17,7 @@ mod import;
 mod init;
 mod integrity;
 mod list;
+mod mixture;
 mod plot;
 mod recipe;
 mod replay;
