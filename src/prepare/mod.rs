@@ -6,6 +6,7 @@
 mod baseline;
 mod carbon;
 mod despike;
+mod masking;
 mod nmr;
 mod optical;
 mod peaks;
@@ -15,6 +16,7 @@ mod spectrometry;
 pub use baseline::{ALS_DEFAULT, Baseline, asls, rubber_band};
 pub use carbon::PROFILE_POINTS;
 pub use despike::{DESPIKE_THRESHOLD, despike, modified_z_scores};
+pub use masking::{mask_prepared, shared_solvent_regions};
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
 pub use peaks::{Maximum, Peak, area_between, find_maxima};
 pub use solvent::Solvent;
