@@ -13,7 +13,9 @@ use std::io::Read;
 
 use serde::Deserialize;
 use serde_json::{Value, json};
-use whorl::prepare::{absorbance_from, area_between, asls, find_maxima, resample, rubber_band};
+use whorl::prepare::{
+    absorbance_from, area_between, asls, despike, find_maxima, resample, rubber_band,
+};
 use whorl::score::{CompositeParams, cosine, peak_overlap, pearson, stein_scott};
 use whorl::spectrum::YUnit;
 use whorl::technique::Grid;
@@ -75,6 +77,11 @@ enum Case {
         reference: Vec<f64>,
         tolerance: f64,
     },
+    /// Raman despiking of `y` with a modified Z-score threshold.
+    Despike {
+        y: Vec<f64>,
+        threshold: f64,
+    },
 }
 
 fn run(case: Case) -> Value {
@@ -132,6 +139,10 @@ fn run(case: Case) -> Value {
             tolerance,
         } => serde_json::to_value(peak_overlap(&unknown, &reference, tolerance))
             .expect("Overlap serialises"),
+        Case::Despike { y, threshold } => {
+            let (fixed, replaced) = despike(&y, threshold);
+            json!({ "y": fixed, "replaced": replaced })
+        }
     }
 }
 
