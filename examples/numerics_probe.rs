@@ -13,7 +13,9 @@ use std::io::Read;
 
 use serde::Deserialize;
 use serde_json::{Value, json};
-use whorl::prepare::{absorbance_from, area_between, asls, find_maxima, resample, rubber_band};
+use whorl::prepare::{
+    absorbance_from, area_between, asls, despike, find_maxima, resample, rubber_band,
+};
 use whorl::score::{CompositeParams, cosine, nnls, peak_overlap, pearson, stein_scott};
 use whorl::spectrum::YUnit;
 use whorl::technique::Grid;
@@ -80,6 +82,11 @@ enum Case {
         columns: Vec<Vec<f64>>,
         b: Vec<f64>,
     },
+    /// Raman despiking of `y` with a modified Z-score threshold.
+    Despike {
+        y: Vec<f64>,
+        threshold: f64,
+    },
 }
 
 fn run(case: Case) -> Value {
@@ -140,6 +147,10 @@ fn run(case: Case) -> Value {
         Case::Nnls { columns, b } => {
             let r = nnls(&columns, &b);
             json!({ "x": r.x, "residual_norm": r.residual_norm, "converged": r.converged })
+        }
+        Case::Despike { y, threshold } => {
+            let (fixed, replaced) = despike(&y, threshold);
+            json!({ "y": fixed, "replaced": replaced })
         }
     }
 }

@@ -239,6 +239,27 @@ def build_cases(rng):
     a = q(rng.uniform(0.0, 1.0, (30, 4)))
     nn.append({"op": "nnls", "columns": a.T.tolist(), "b": q(-a @ np.ones(4)).tolist()})
     g["nnls"] = nn
+    # Raman-like spectra with one- and two-point spikes (up and down) of several sizes, on
+    # flat stretches and on band flanks, including bands as narrow as three points.
+    ds = []
+    for n, narrow, spikes in [(1500, 0.002, 6), (1000, 0.0015, 4), (3000, 0.001, 10), (400, 0.004, 2), (50, 0.02, 1)]:
+        y = 1000.0 * spectrum(rng, n, 10, 0.0, "curve") + 5.0 * rng.standard_normal(n)
+        # A few narrow bands: Lorentzians a few samples wide, as the silicon line on a coarse grid.
+        for c in rng.uniform(0.1, 0.9, 3):
+            y += 5000.0 * narrow**2 / ((np.linspace(0.0, 1.0, n) - c) ** 2 + narrow**2)
+        for _ in range(spikes):
+            k = int(rng.integers(2, n - 3))
+            h = rng.choice([-1.0, 1.0]) * rng.uniform(50.0, 3000.0)
+            y[k] += h
+            if rng.random() < 0.3:
+                y[k + 1] += h * rng.uniform(0.5, 1.0)
+        for threshold in (8.0, 5.0):
+            ds.append({"op": "despike", "y": q(y).tolist(), "threshold": threshold})
+    # Quantised counts, where the median absolute deviation of the differences is 0.
+    y = np.round(1030.0 + rng.standard_normal(800) * 0.4)
+    y[400] += 25.0
+    ds.append({"op": "despike", "y": y.tolist(), "threshold": 8.0})
+    g["despike"] = ds
     return g
 
 
@@ -474,6 +495,68 @@ def check_nnls_residual(cases, results):
         feasible = r["converged"] and min(r["x"], default=0.0) >= 0.0
         devs.append(abs(r["residual_norm"] - rnorm) / max(float(np.linalg.norm(c["b"])), 1e-300) if feasible else 1.0)
     return len(devs), max(devs)
+def whitaker_hayes(y, threshold, max_width=2, quiet=1.0 / 3.0, m=3):
+    """Despiking as Whitaker & Hayes, Chemometr. Intell. Lab. Syst. 179 (2018) 82-84 describe
+    it (modified Z-scores of the first differences, Iglewicz & Hoaglin 1993; spike points
+    replaced by the mean of the non-spike points within m either side), with the shape test
+    whorl documents in prepare::despike: points k..k+w-1 (w <= max_width) are a spike when
+    the difference entering them and the one leaving them both exceed the threshold with
+    opposite signs and the differences just outside are at most `quiet` times the smaller.
+    Written from those descriptions, in NumPy."""
+    y = np.asarray(y, dtype=float)
+    n = len(y)
+    if n < 4:
+        return y.copy(), []
+    d = np.diff(y)
+    med = np.median(d)
+    mad = np.median(np.abs(d - med))
+    if mad > 0:
+        z = 0.6745 * (d - med) / mad
+    else:
+        mean_ad = np.mean(np.abs(d - med))
+        z = (d - med) / (np.sqrt(np.pi / 2) * mean_ad) if mean_ad > 0 else np.zeros_like(d)
+    spike = np.zeros(n, dtype=bool)
+    k = 1
+    while k + 1 < n:
+        width = None
+        if abs(z[k - 1]) > threshold:
+            for w in range(1, max_width + 1):
+                out = k + w - 1
+                if out >= len(d):
+                    break
+                if abs(z[out]) > threshold and np.sign(z[out]) != np.sign(z[k - 1]):
+                    flank = min(abs(z[k - 1]), abs(z[out]))
+                    before = abs(z[k - 2]) if k >= 2 else 0.0
+                    after = abs(z[out + 1]) if out + 1 < len(d) else 0.0
+                    if before <= quiet * flank and after <= quiet * flank:
+                        width = w
+                        break
+        if width:
+            spike[k:k + width] = True
+            k += width
+        else:
+            k += 1
+    out = y.copy()
+    replaced = np.flatnonzero(spike)
+    for i in replaced:
+        window = np.arange(max(0, i - m), min(n, i + m + 1))
+        keep = window[~spike[window]]
+        if len(keep):
+            out[i] = np.mean(y[keep])
+    return out, replaced.tolist()
+
+
+def check_despike(cases, results):
+    # No reference library: the algorithm written in NumPy from the paper and whorl's
+    # documented shape test. Deviation: cases whose replaced points differ, plus the largest
+    # difference of the despiked values relative to the range of y.
+    dev = 0.0
+    for c, r in zip(cases, results):
+        ref, idx = whitaker_hayes(c["y"], c["threshold"])
+        if idx != r["replaced"]:
+            dev += 1.0
+        dev += float(np.max(np.abs(np.array(r["y"]) - ref)) / max(np.ptp(c["y"]), 1e-300))
+    return len(cases), dev
 
 
 CHECKS = [
@@ -494,6 +577,7 @@ CHECKS = [
     ("peak_overlap", "peak overlap count vs maximum_bipartite_matching", SCIPY, check_peak_overlap, 0),
     ("nnls", "NNLS solution vs scipy.optimize.nnls, / max(1, |x|)", SCIPY, check_nnls_x, 1e-9),
     ("nnls", "NNLS residual norm vs scipy.optimize.nnls, / |b|", SCIPY, check_nnls_residual, 1e-9),
+    ("despike", "Whitaker-Hayes despiking, points and values / range", NUMPY, check_despike, 1e-12),
 ]
 
 
@@ -528,6 +612,10 @@ def mutate(case, k):
         c["unknown"] = c["unknown"] + [c["reference"][0]]  # one more certain match
     elif op == "nnls":
         c["b"][0] += 1e-2 * (max(c["b"]) - min(c["b"]))  # a fit with a residual moves with b
+    elif op == "despike":
+        y = c["y"]  # one more spike, on the quietest stretch
+        i = int(np.argmin(np.abs(np.diff(y[1:-2])))) + 2
+        y[i] += 100.0 * (max(y) - min(y))
     return c
 
 

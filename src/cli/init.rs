@@ -102,6 +102,9 @@ pub fn print_recipes<'a>(
         if let Some(b) = r.baseline {
             extra.push_str(&format!("; baseline {}", b.name()));
         }
+        if let Some(z) = r.despike {
+            extra.push_str(&format!("; spikes removed above modified z {z}"));
+        }
         if !g.masks.is_empty() {
             let masks: Vec<String> = g
                 .masks

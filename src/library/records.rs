@@ -353,6 +353,20 @@ impl Library {
         })
     }
 
+    /// The NMR solvent on record (current revision) of every spectrum of one technique, by
+    /// spectrum id: the solvent its prepared form masks (`None` without one).
+    pub fn solvents(&self, technique: Technique) -> Result<BTreeMap<i64, Option<String>>> {
+        let mut stmt = self.conn.prepare(
+            "SELECT s.id, json_extract(r.metadata, '$.solvent') FROM spectrum s
+             JOIN revision r ON r.spectrum_id = s.id AND r.number = s.current_revision
+             WHERE s.technique = ?1",
+        )?;
+        let rows = stmt.query_map([technique.name()], |r| {
+            Ok((r.get::<_, i64>(0)?, r.get::<_, Option<String>>(1)?))
+        })?;
+        Ok(rows.collect::<rusqlite::Result<_>>()?)
+    }
+
     /// The spectra of one technique in the given statuses, with their prepared forms, in id order.
     pub fn candidates(&self, technique: Technique, statuses: &[Status]) -> Result<Vec<Candidate>> {
         let mut stmt = self.conn.prepare(

@@ -42,7 +42,7 @@ pub(super) fn prepare(
         let xs: Vec<f64> = sorted.iter().map(|p| p.0).collect();
         let ys: Vec<f64> = sorted.iter().map(|p| p.1.max(0.0)).collect();
         let raw: Vec<f64> = sorted.iter().map(|p| p.1).collect();
-        let picked: Vec<(f64, f64)> = pick(&xs, &ys, recipe, noise_sd(&raw))
+        let picked: Vec<(f64, f64)> = pick(&xs, &ys, recipe, noise_sd(&raw), None)
             .into_iter()
             .map(|(_, p)| (p.x, p.height))
             .collect();

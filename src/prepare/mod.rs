@@ -5,6 +5,8 @@
 
 mod baseline;
 mod carbon;
+mod despike;
+mod masking;
 mod nmr;
 mod optical;
 mod peaks;
@@ -13,6 +15,8 @@ mod spectrometry;
 
 pub use baseline::{ALS_DEFAULT, Baseline, asls, rubber_band};
 pub use carbon::PROFILE_POINTS;
+pub use despike::{DESPIKE_THRESHOLD, despike, modified_z_scores};
+pub use masking::{mask_prepared, shared_solvent_regions};
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
 pub use peaks::{Maximum, Peak, area_between, find_maxima};
 pub use solvent::Solvent;
@@ -48,6 +52,43 @@ pub struct Recipe {
     /// nearest-bin binning, so their stored vectors stay comparable with their unknowns.
     #[serde(default, skip_serializing_if = "Binning::is_nearest")]
     pub binning: Binning,
+    /// Raman: spikes (cosmic rays, bad detector pixels) are removed from the file's own
+    /// points before anything else, with this modified Z-score threshold ([`despike`],
+    /// Whitaker & Hayes 2018). `None` in libraries made before despiking existed, which keep
+    /// preparing as they did; new Raman libraries use [`DESPIKE_THRESHOLD`].
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub despike: Option<f64>,
+    /// IR, Raman, 1H NMR: where peaks are picked and how the noise floor's noise is
+    /// estimated ([`Picking`]). Libraries made before [`Picking::Measured`] existed keep
+    /// [`Picking::Whole`].
+    #[serde(default, skip_serializing_if = "Picking::is_whole")]
+    pub picking: Picking,
+}
+
+/// Where peaks are picked.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Picking {
+    /// Over the whole prepared curve, with the noise estimated on the grid. A maximum can then
+    /// sit where a file's range ends inside the grid (the step down to the zeros beyond it)
+    /// or beside a masked region, and interpolating a coarse file onto a finer grid makes the
+    /// noise look smaller than it is (an interpolated point averages its neighbours), so a
+    /// coarse file gets noise maxima as peaks.
+    #[default]
+    Whole,
+    /// Only where the file measured and nothing is masked, and never at the first or last
+    /// point of such a stretch (a band cut there has no top and no prominence to measure).
+    /// IR and Raman estimate the noise on the file's own points and carry it through the
+    /// resampling and the normalisation, so the noise floor does not depend on the file's
+    /// point spacing.
+    Measured,
+}
+
+impl Picking {
+    /// True for [`Picking::Whole`] (the value older recipes imply).
+    pub fn is_whole(&self) -> bool {
+        *self == Picking::Whole
+    }
 }
 
 /// How 1H NMR points are gathered into grid bins.
@@ -115,6 +156,14 @@ impl Recipe {
             binning: match technique {
                 Technique::Nmr1h => Binning::Linear,
                 _ => Binning::Nearest,
+            },
+            despike: match technique {
+                Technique::Raman => Some(DESPIKE_THRESHOLD),
+                _ => None,
+            },
+            picking: match technique {
+                Technique::Ir | Technique::Raman | Technique::Nmr1h => Picking::Measured,
+                Technique::MsEi | Technique::Nmr13c => Picking::Whole,
             },
         }
     }
@@ -289,8 +338,19 @@ fn nmr_masks(
 /// reaches the recipe's fraction of the strongest one and, when the recipe has a noise floor,
 /// that many times `noise` (the noise standard deviation, which the caller estimates from
 /// the data before clipping or masking: runs of zeros would make [`noise_sd`] too small).
-fn pick(x: &[f64], y: &[f64], recipe: &Recipe, noise: f64) -> Vec<(Maximum, Peak)> {
-    let all = find_maxima(y, 0.0);
+/// With `measured` (one flag per sample: measured and not masked), a maximum on or beside
+/// a sample that is not is dropped ([`Picking::Measured`]).
+fn pick(
+    x: &[f64],
+    y: &[f64],
+    recipe: &Recipe,
+    noise: f64,
+    measured: Option<&[bool]>,
+) -> Vec<(Maximum, Peak)> {
+    let mut all = find_maxima(y, 0.0);
+    if let Some(ok) = measured {
+        all.retain(|m| ok[m.index - 1] && ok[m.index] && ok[m.index + 1]);
+    }
     let strongest = all.iter().map(|m| m.prominence).fold(0.0, f64::max);
     let floor = recipe.noise_floor.map_or(0.0, |k| k * noise);
     let least = (recipe.min_peak_prominence * strongest).max(floor);
@@ -362,14 +422,23 @@ mod tests {
         let r: Recipe = serde_json::from_str(old).unwrap();
         assert_eq!(r.noise_floor, None);
         assert_eq!(r.binning, Binning::Nearest);
+        assert_eq!(r.despike, None);
+        assert_eq!(r.picking, Picking::Whole);
         // ... and serialise without the new fields, so the library fingerprint is unchanged.
         let text = serde_json::to_string(&r).unwrap();
-        assert!(
-            !text.contains("noise_floor") && !text.contains("binning"),
-            "{text}"
-        );
+        for field in ["noise_floor", "binning", "despike", "picking"] {
+            assert!(!text.contains(field), "{text}");
+        }
         let new = Recipe::default_for(Technique::Nmr1h);
         assert_eq!(new.binning, Binning::Linear);
         assert_eq!(new.noise_floor, Some(NOISE_FLOOR));
+        assert_eq!(new.picking, Picking::Measured);
+        // New Raman libraries despike; the fields round-trip.
+        let raman = Recipe::default_for(Technique::Raman);
+        assert_eq!(raman.despike, Some(DESPIKE_THRESHOLD));
+        let text = serde_json::to_string(&raman).unwrap();
+        assert!(text.contains(r#""despike":8.0"#) && text.contains(r#""picking":"measured""#));
+        assert_eq!(serde_json::from_str::<Recipe>(&text).unwrap(), raman);
+        assert_eq!(Recipe::default_for(Technique::Ir).despike, None);
     }
 }

@@ -1,6 +1,6 @@
 //! 1H NMR: solvent masks, area binning, normalisation to total area, peaks with integrals.
 
-use super::{Binning, Conditions, Prepared, Recipe, Solvent, nmr_masks, noise_sd, pick};
+use super::{Binning, Conditions, Picking, Prepared, Recipe, Solvent, nmr_masks, noise_sd, pick};
 use crate::error::Result;
 use crate::spectrum::YUnit;
 
@@ -81,7 +81,9 @@ pub(super) fn prepare(
             .filter(|p| !masked(p.0))
             .map(|p| p.1)
             .collect();
-        for (m, mut peak) in pick(&xs, &ys, recipe, noise_sd(&raw)) {
+        let measured: Vec<bool> = xs.iter().map(|&x| !masked(x)).collect();
+        let measured = (recipe.picking == Picking::Measured).then_some(&measured[..]);
+        for (m, mut peak) in pick(&xs, &ys, recipe, noise_sd(&raw), measured) {
             let (lo, hi) = valley_bounds(&ys, m.index);
             peak.area = areas[lo..=hi].iter().sum::<f64>() / total;
             peaks.push(peak);
@@ -165,5 +167,40 @@ mod tests {
             .unwrap()
             .area;
         assert!((big / small - 1.5).abs() < 0.1, "{big} {small}");
+    }
+
+    #[test]
+    fn a_line_cut_by_the_solvent_mask_leaves_no_peak_at_the_mask_edge() {
+        // A broad analyte line at 7.30 ppm under the CDCl3 residual mask (7.21..7.31): its
+        // flank rises towards the mask from above 7.31, so the first point past the mask is
+        // higher than the next one. It is not a peak: the line's top is inside the mask.
+        let recipe = Recipe::default_for(Technique::Nmr1h);
+        let pts: Vec<(f64, f64)> = (0..3000)
+            .map(|i| {
+                let x = -0.5 + i as f64 * 0.004;
+                (
+                    x,
+                    lorentzian(x, 7.30, 0.03) * 5.0 + lorentzian(x, 2.10, 0.006) * 3.0,
+                )
+            })
+            .collect();
+        let cond = Conditions {
+            solvent: Some(Solvent::Cdcl3),
+            ..Conditions::default()
+        };
+        let edge = |p: &Prepared| p.peaks.iter().any(|q| (q.x - 7.31).abs() < 0.01);
+        let p = prepare(&recipe, &pts, &cond).unwrap();
+        assert!(!edge(&p), "{:?}", p.peaks);
+        assert!(
+            p.peaks.iter().any(|q| (q.x - 2.10).abs() < 0.005),
+            "{:?}",
+            p.peaks
+        );
+        // The old picking lists the mask's edge.
+        let whole = Recipe {
+            picking: Picking::Whole,
+            ..recipe
+        };
+        assert!(edge(&prepare(&whole, &pts, &cond).unwrap()));
     }
 }

@@ -1,6 +1,7 @@
 //! IR and Raman: absorbance, resampling onto the grid, masks, L2 normalisation, peaks.
 
-use super::{Conditions, Prepared, Recipe, l2_normalise, noise_sd, pick};
+use super::despike::{self, despike};
+use super::{Conditions, Picking, Prepared, Recipe, l2_normalise, noise_sd, pick};
 use crate::error::Result;
 use crate::spectrum::YUnit;
 use crate::technique::{Grid, Technique};
@@ -103,8 +104,18 @@ pub(super) fn prepare(
     sorted: &[(f64, f64)],
     conditions: &Conditions,
 ) -> Result<Prepared> {
-    let ys: Vec<f64> = sorted.iter().map(|p| p.1).collect();
+    let mut ys: Vec<f64> = sorted.iter().map(|p| p.1).collect();
     let mut warnings = Vec::new();
+    if recipe.technique == Technique::Raman
+        && let Some(threshold) = recipe.despike
+    {
+        let (fixed, replaced) = despike(&ys, threshold);
+        if !replaced.is_empty() {
+            let xs: Vec<f64> = sorted.iter().map(|p| p.0).collect();
+            warnings.push(despike::warning(&xs, &replaced));
+        }
+        ys = fixed;
+    }
     let y_unit = match conditions.y_unit {
         Some(u) => u,
         None => {
@@ -117,7 +128,8 @@ pub(super) fn prepare(
     };
     let converted: Vec<(f64, f64)> = sorted
         .iter()
-        .map(|&(x, y)| (x, absorbance_from(y, y_unit)))
+        .zip(&ys)
+        .map(|(&(x, _), &y)| (x, absorbance_from(y, y_unit)))
         .collect();
     let grid = &recipe.grid;
     let mut values = resample(&converted, grid);
@@ -132,39 +144,83 @@ pub(super) fn prepare(
             *v = 0.0;
         }
     }
-    let covered = converted[0].0 <= grid.start + grid.step
-        && converted[converted.len() - 1].0 >= grid.stop - grid.step;
+    let (first, last) = (converted[0].0, converted[converted.len() - 1].0);
+    let covered = first <= grid.start + grid.step && last >= grid.stop - grid.step;
     if !covered {
         warnings.push(format!(
             "the spectrum covers {:.0}..{:.0} cm-1, less than the grid's {:.0}..{:.0}; the rest counts as zero",
-            converted[0].0,
-            converted[converted.len() - 1].0,
-            grid.start,
-            grid.stop
+            first, last, grid.start, grid.stop
         ));
     }
     let xs: Vec<f64> = (0..grid.len()).map(|i| grid.x(i)).collect();
     let mut vector: Vec<f32> = values.iter().map(|&v| v as f32).collect();
+    let norm = vector
+        .iter()
+        .map(|&a| f64::from(a) * f64::from(a))
+        .sum::<f64>()
+        .sqrt();
     l2_normalise(&mut vector);
     let normalised: Vec<f64> = vector.iter().map(|&v| f64::from(v)).collect();
-    // Noise from the unmasked stretch only: masked bins are runs of zeros.
-    let unmasked: Vec<f64> = normalised
-        .iter()
-        .enumerate()
-        .filter(|(i, _)| !grid.masked(grid.x(*i)))
-        .map(|(_, &v)| v)
-        .collect();
-    let peaks = pick(&xs, &normalised, recipe, noise_sd(&unmasked))
-        .into_iter()
-        .map(|(_, p)| p)
-        .collect();
+    let picked = match recipe.picking {
+        Picking::Whole => {
+            // Noise from the unmasked stretch only: masked bins are runs of zeros.
+            let unmasked: Vec<f64> = normalised
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| !grid.masked(grid.x(*i)))
+                .map(|(_, &v)| v)
+                .collect();
+            pick(&xs, &normalised, recipe, noise_sd(&unmasked), None)
+        }
+        Picking::Measured => {
+            let measured: Vec<bool> = xs
+                .iter()
+                .map(|&x| x >= first && x <= last && !grid.masked(x))
+                .collect();
+            let noise = if norm > 0.0 {
+                noise_on_grid(&converted, grid) / norm
+            } else {
+                0.0
+            };
+            pick(&xs, &normalised, recipe, noise, Some(&measured))
+        }
+    };
     Ok(Prepared {
         technique: recipe.technique,
         vector,
-        peaks,
+        peaks: picked.into_iter().map(|(_, p)| p).collect(),
         y_unit,
         warnings,
     })
+}
+
+/// The noise standard deviation of the values [`resample`] puts on the grid, estimated on
+/// the file's own points (those on the grid's span and outside its masks) with [`noise_sd`].
+/// Where the file is coarser than the grid, the grid values between two file points are
+/// interpolated and the noise maxima stay at the file's points, so the noise is the file's;
+/// where the file is finer, each grid value averages about step / spacing points, which
+/// divides the noise standard deviation by the square root of that number (the standard
+/// error of a mean). Estimated on the grid instead, interpolation would halve it: two
+/// interpolated steps each cover half of one step of the file.
+fn noise_on_grid(points: &[(f64, f64)], grid: &Grid) -> f64 {
+    let own: Vec<f64> = points
+        .iter()
+        .filter(|p| p.0 >= grid.start && p.0 <= grid.stop && !grid.masked(p.0))
+        .map(|p| p.1)
+        .collect();
+    let noise = noise_sd(&own);
+    let mut spacings: Vec<f64> = points.windows(2).map(|w| w[1].0 - w[0].0).collect();
+    if spacings.is_empty() {
+        return noise;
+    }
+    spacings.sort_by(f64::total_cmp);
+    let spacing = spacings[spacings.len() / 2];
+    // The same test as `resample`: finer sources are bin-averaged.
+    if spacing < 0.75 * grid.step {
+        noise * (spacing / grid.step).sqrt()
+    } else {
+        noise
+    }
 }
 
 #[cfg(test)]
@@ -258,5 +314,168 @@ mod tests {
         // Outside the source's span stays zero.
         let short: Vec<(f64, f64)> = (0..=2).map(|i| (i as f64 * 2.0 + 4.0, 1.0)).collect();
         assert_eq!(resample(&short, &grid), vec![0.0, 0.0, 1.0, 1.0, 1.0, 0.0]);
+    }
+
+    /// Seeded white Gaussian noise of sd 1 (xorshift64* and Box-Muller).
+    fn gaussian_noise(seed: u64) -> impl FnMut() -> f64 {
+        let mut state = seed;
+        let mut uniform = move || {
+            state ^= state >> 12;
+            state ^= state << 25;
+            state ^= state >> 27;
+            (state.wrapping_mul(0x2545_F491_4F6C_DD1D) >> 11) as f64 / (1u64 << 53) as f64
+        };
+        move || {
+            let (u1, u2) = (uniform().max(1e-300), uniform());
+            (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+        }
+    }
+
+    /// Nine Gaussian bands (centre, FWHM, height), all at least 15 noise sd tall for the
+    /// noise of [`same_bands_at`].
+    const NINE: [(f64, f64, f64); 9] = [
+        (620.0, 14.0, 0.5),
+        (830.0, 12.0, 0.3),
+        (1030.0, 16.0, 1.0),
+        (1250.0, 14.0, 0.4),
+        (1460.0, 12.0, 0.6),
+        (1715.0, 16.0, 0.9),
+        (2120.0, 14.0, 0.35),
+        (2930.0, 16.0, 0.7),
+        (3300.0, 14.0, 0.45),
+    ];
+
+    /// The bands of [`NINE`] sampled every `spacing` cm-1 over 400..4000 with noise of sd
+    /// 0.02 on every point (the same noise per point whatever the spacing, as when one
+    /// instrument records at another resolution setting).
+    fn same_bands_at(spacing: f64, seed: u64) -> Vec<(f64, f64)> {
+        let mut noise = gaussian_noise(seed);
+        let n = ((4000.0 - 400.0) / spacing) as usize;
+        (0..=n)
+            .map(|i| {
+                let x = 400.0 + spacing * i as f64;
+                let y: f64 = NINE
+                    .iter()
+                    .map(|&(c, w, h)| {
+                        let sigma = w / (2.0 * (2.0 * 2f64.ln()).sqrt());
+                        h * (-(x - c).powi(2) / (2.0 * sigma * sigma)).exp()
+                    })
+                    .sum();
+                (x, y + 0.02 * noise())
+            })
+            .collect()
+    }
+
+    fn absorbance() -> Conditions {
+        Conditions {
+            y_unit: Some(YUnit::Absorbance),
+            solvent: None,
+        }
+    }
+
+    #[test]
+    fn the_same_spectrum_gives_the_same_peaks_at_any_point_spacing() {
+        // Issue 12: a 4 cm-1 file with the same noise gave 12-14 peaks instead of 9, because
+        // the noise was estimated on the 2 cm-1 grid, where every other value is interpolated.
+        let recipe = Recipe::default_for(Technique::Ir);
+        assert_eq!(recipe.picking, Picking::Measured);
+        for seed in [1u64, 2, 3, 4, 5] {
+            for spacing in [1.0, 2.0, 4.0] {
+                let points = same_bands_at(spacing, 0x9E37_79B9_7F4A_7C15 ^ seed);
+                let p = super::super::prepare(
+                    std::path::Path::new("t"),
+                    &recipe,
+                    &points,
+                    &absorbance(),
+                )
+                .unwrap();
+                let xs: Vec<f64> = p.peaks.iter().map(|q| q.x).collect();
+                // The nine bands and nothing else, each within 4 cm-1 (two grid steps: the
+                // top of a noisy band sampled every 4 cm-1 can move by a step either way).
+                assert_eq!(xs.len(), 9, "{spacing} cm-1, seed {seed}: {xs:?}");
+                for (x, band) in xs.iter().zip(NINE) {
+                    assert!((x - band.0).abs() <= 4.0, "{spacing} cm-1: {xs:?}");
+                }
+            }
+        }
+        // The old picking, noise estimated on the grid, finds noise maxima in the coarse file.
+        let whole = Recipe {
+            picking: Picking::Whole,
+            ..recipe
+        };
+        let points = same_bands_at(4.0, 0x9E37_79B9_7F4A_7C15 ^ 1);
+        let p = super::super::prepare(std::path::Path::new("t"), &whole, &points, &absorbance())
+            .unwrap();
+        assert!(p.peaks.len() > 9, "{:?}", p.peaks);
+    }
+
+    #[test]
+    fn range_and_mask_edges_are_not_peaks() {
+        // A file covering 700..3600 cm-1 of the 400..4000 grid that starts on a falling
+        // slope (the step down to the zeros beyond it makes its first point a maximum), and a
+        // band at 2300 cm-1 inside the CO2 mask (2280..2400) whose flanks rise towards the
+        // mask from both sides. Two real bands at 1200 and 3000 cm-1.
+        let recipe = Recipe::default_for(Technique::Ir);
+        let mut noise = gaussian_noise(7);
+        let points: Vec<(f64, f64)> = (0..=1450)
+            .map(|i| {
+                let x = 700.0 + 2.0 * i as f64;
+                let band = |c: f64, sigma: f64, h: f64| {
+                    h * (-(x - c).powi(2) / (2.0 * sigma * sigma)).exp()
+                };
+                let y = 0.6 * (-(x - 700.0) / 150.0).exp()
+                    + band(1200.0, 8.0, 0.5)
+                    + band(3000.0, 8.0, 0.7)
+                    + band(2300.0, 17.0, 0.8)
+                    + 0.002 * noise();
+                (x, y)
+            })
+            .collect();
+        let at = |p: &Prepared, x: f64| p.peaks.iter().any(|q| (q.x - x).abs() <= 4.0);
+        let p = super::super::prepare(std::path::Path::new("t"), &recipe, &points, &absorbance())
+            .unwrap();
+        let xs: Vec<f64> = p.peaks.iter().map(|q| q.x).collect();
+        assert_eq!(xs, [1200.0, 3000.0], "{xs:?}");
+        // The old picking takes the first point of the range and the mask's edge as peaks.
+        let whole = Recipe {
+            picking: Picking::Whole,
+            ..recipe
+        };
+        let old = super::super::prepare(std::path::Path::new("t"), &whole, &points, &absorbance())
+            .unwrap();
+        assert!(at(&old, 700.0) && at(&old, 2278.0), "{:?}", old.peaks);
+    }
+
+    #[test]
+    fn real_raman_files_get_no_peak_at_their_range_ends() {
+        // The measured spectra of real-spectra/raman (CHARISMA round-robin, via ramanchada2;
+        // 150-3400 cm-1 at most, so the 100..3500 grid is zero beyond them, and the baseline
+        // removal bends at the step). No peak may sit on the first or last grid point a file
+        // covers (calcite's lattice band at 155 cm-1, 4 cm-1 inside raman123.csv, may).
+        let recipe = Recipe::default_for(Technique::Raman);
+        let whole = Recipe {
+            picking: Picking::Whole,
+            ..recipe.clone()
+        };
+        let (mut old_edges, mut files) = (0, 0);
+        for spectrum in super::super::despike::real::spectra() {
+            let (name, points) = (spectrum.file, spectrum.points);
+            let path = std::path::Path::new(&name);
+            let (first, last) = (points[0].0, points[points.len() - 1].0);
+            let edge = |p: &Prepared| {
+                p.peaks
+                    .iter()
+                    .any(|q| q.x - first < recipe.grid.step || last - q.x < recipe.grid.step)
+            };
+            let conditions = Conditions::default();
+            let p = super::super::prepare(path, &recipe, &points, &conditions).unwrap();
+            assert!(!edge(&p), "{name}: {first}..{last} {:?}", p.peaks);
+            let old = super::super::prepare(path, &whole, &points, &conditions).unwrap();
+            old_edges += usize::from(edge(&old));
+            files += 1;
+        }
+        assert_eq!(files, 124);
+        // With the old picking 97 of the 124 files had a peak at an end of their range.
+        assert!(old_edges > 60, "{old_edges}");
     }
 }

@@ -182,6 +182,13 @@ pub struct ScoreParams {
     /// false.
     #[serde(default)]
     pub weak_line_discount: bool,
+    /// 1H NMR: when the unknown's solvent and a reference's differ, the comparison masks
+    /// both solvents' residual and water windows in both spectra
+    /// ([`crate::prepare::shared_solvent_regions`]), so that declaring a solvent cannot turn
+    /// a match into a mismatch. Absent in results saved before it existed, which compared
+    /// each spectrum with only its own solvent masked, so it reads as false.
+    #[serde(default)]
+    pub shared_solvent_masks: bool,
 }
 
 impl ScoreParams {
@@ -204,6 +211,7 @@ impl ScoreParams {
             // Chosen on the evaluation's tuning set (docs/evaluation.md).
             referencing_correction: technique == Technique::Nmr13c,
             weak_line_discount: technique == Technique::Nmr13c,
+            shared_solvent_masks: technique == Technique::Nmr1h,
         }
     }
 

@@ -2,14 +2,14 @@
 //! [`Plan`] every path of a search reads (validated parameters and constraints, the recipe,
 //! the ids a metadata query allows), so that nothing is looked up or checked twice.
 
-use std::collections::HashSet;
+use std::collections::{BTreeMap, HashSet};
 use std::path::PathBuf;
 
 use super::{Constraints, Thresholds};
 use crate::config::Config;
 use crate::error::Result;
 use crate::library::{Library, Status};
-use crate::prepare::{Recipe, Solvent};
+use crate::prepare::{Recipe, Solvent, shared_solvent_regions};
 use crate::score::ScoreParams;
 use crate::spectrum::{XUnit, YUnit};
 use crate::technique::Technique;
@@ -133,6 +133,10 @@ pub struct Plan {
     pub recipe: Recipe,
     /// The spectrum ids the metadata query matches (`None` without a query).
     pub allowed: Option<HashSet<i64>>,
+    /// 1H NMR with [`ScoreParams::shared_solvent_masks`]: the solvent on record of every
+    /// reference, by spectrum id (empty otherwise), for the masks a comparison shares
+    /// ([`Plan::shared_masks`]).
+    pub solvents: BTreeMap<i64, Option<Solvent>>,
 }
 
 impl Plan {
@@ -145,10 +149,81 @@ impl Plan {
             Some(q) => Some(library.text().matching_ids(q)?),
             None => None,
         };
+        let mut solvents = BTreeMap::new();
+        if request.technique == Technique::Nmr1h && request.params.shared_solvent_masks {
+            for (id, name) in library.solvents(request.technique)? {
+                // Names are checked when they are stored; one this whorl does not know
+                // masked nothing when it was prepared.
+                solvents.insert(id, name.and_then(|n| n.parse::<Solvent>().ok()));
+            }
+        }
         Ok(Plan {
             request: request.clone(),
             recipe,
             allowed,
+            solvents,
         })
+    }
+
+    /// The regions a comparison of the unknown with reference `spectrum_id` masks in both
+    /// spectra: both solvents' signals when the two were measured in different solvents
+    /// (or only one solvent is known), else none.
+    pub fn shared_masks(&self, spectrum_id: i64) -> Vec<(f64, f64)> {
+        if !(self.request.technique == Technique::Nmr1h && self.request.params.shared_solvent_masks)
+        {
+            return Vec::new();
+        }
+        let reference = self.solvents.get(&spectrum_id).copied().flatten();
+        shared_solvent_regions(self.request.solvent, reference)
+    }
+
+    /// True when some comparison masks regions its two spectra were not both prepared with,
+    /// so that scores are not the dot products of the stored vectors and the vector cache
+    /// cannot bound them: the search then scores every candidate.
+    pub fn masks_vary(&self) -> bool {
+        self.request.technique == Technique::Nmr1h
+            && self.request.params.shared_solvent_masks
+            && self.solvents.values().any(|&s| s != self.request.solvent)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn searches_saved_before_shared_solvent_masks_replay_without_them() {
+        // A saved search's parameters from before the field existed: each spectrum was
+        // compared with only its own solvent masked, and a replay must do the same.
+        let mut value = serde_json::to_value(ScoreParams::default_for(Technique::Nmr1h)).unwrap();
+        assert_eq!(
+            value
+                .as_object_mut()
+                .unwrap()
+                .remove("shared_solvent_masks"),
+            Some(serde_json::Value::Bool(true))
+        );
+        let old: ScoreParams = serde_json::from_value(value).unwrap();
+        assert!(!old.shared_solvent_masks);
+        assert!(!ScoreParams::default_for(Technique::Ir).shared_solvent_masks);
+    }
+
+    #[test]
+    fn shared_masks_follow_the_two_solvents() {
+        let library = Library::in_memory("t.tester").unwrap();
+        let mut request = Request::new(Technique::Nmr1h);
+        request.solvent = Some(Solvent::DmsoD6);
+        let mut plan = Plan::new(&library, &request).unwrap();
+        plan.solvents = BTreeMap::from([(1, Some(Solvent::Cdcl3)), (2, Some(Solvent::DmsoD6))]);
+        // Different solvents: both solvents' windows; the same solvent: none.
+        assert_eq!(plan.shared_masks(1).len(), 4);
+        assert!(plan.shared_masks(2).is_empty());
+        assert!(plan.masks_vary());
+        plan.solvents.remove(&1);
+        assert!(!plan.masks_vary());
+        // Without the parameter nothing is shared.
+        plan.request.params.shared_solvent_masks = false;
+        plan.solvents.insert(1, Some(Solvent::Cdcl3));
+        assert!(plan.shared_masks(1).is_empty() && !plan.masks_vary());
     }
 }

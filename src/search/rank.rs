@@ -10,7 +10,7 @@ use super::plan::{Plan, Request};
 use super::scan;
 use crate::error::Result;
 use crate::library::{HitRecord, Library, Status};
-use crate::prepare::{Prepared, Solvent};
+use crate::prepare::{Prepared, Solvent, mask_prepared};
 use crate::score::{Scores, score};
 use crate::technique::Technique;
 
@@ -99,6 +99,7 @@ impl Plan {
         if request.constraints.is_empty()
             && !request.explain
             && request.top <= 1000
+            && !self.masks_vary()
             && let Some(rankings) = scan::rank_plan(library, unknowns, self)?
         {
             return rankings
@@ -181,7 +182,14 @@ impl Plan {
                 !prefilter || allowed.as_ref().is_none_or(|a| a.contains(&c.spectrum_id))
             })
             .map(|(i, c)| {
-                let s = score(unknown, &c.prepared, grid, &request.params);
+                let regions = self.shared_masks(c.spectrum_id);
+                let s = if regions.is_empty() {
+                    score(unknown, &c.prepared, grid, &request.params)
+                } else {
+                    let u = mask_prepared(unknown, grid, &regions);
+                    let r = mask_prepared(&c.prepared, grid, &regions);
+                    score(&u, &r, grid, &request.params)
+                };
                 (s.combined, i, s)
             })
             .collect();

@@ -202,6 +202,70 @@ fn nmr_hits_note_a_solvent_that_differs() {
     );
 }
 
+#[test]
+fn declaring_a_solvent_never_loses_a_library_compound() {
+    // Issue 12: a solvent mask applies to both the unknown and the reference. Each 1H seed
+    // spectrum searched as an unknown, without a solvent and in each solvent whorl knows,
+    // must find itself first; its score may drop only where the declared solvent's residual
+    // or water window (Gottlieb et al., J. Org. Chem. 1997) hides one of its lines, which
+    // then counts in neither peak list. Before the masks were shared, a reference in CDCl3
+    // searched without a solvent kept its CDCl3 residual in the unknown only (methanol scored
+    // 0.899 against itself), and acetone and acetonitrile in CD3CN lost their first place.
+    let lab = seeded();
+    let solvents = [
+        "CDCl3",
+        "DMSO-d6",
+        "D2O",
+        "CD3OD",
+        "acetone-d6",
+        "C6D6",
+        "CD3CN",
+    ];
+    let mut dropped = Vec::new();
+    for row in crate::util::csv_rows(&seed().join("manifest.csv")) {
+        if row["technique"] != "nmr-1h" {
+            continue;
+        }
+        let file = seed().join(&row["file"]).display().to_string();
+        let search = |solvent: Option<&str>| -> Value {
+            let mut args = vec!["search", file.as_str(), "-t", "nmr-1h", "--top", "2"];
+            args.extend(solvent.iter().flat_map(|s| ["--solvent", s]));
+            lab.json(&args)["hits"][0].clone()
+        };
+        let plain = search(None);
+        assert_eq!(plain["name"], row["name"].as_str());
+        // Without a solvent the unknown is compared with its own solvent's signals masked.
+        assert!(plain["score"].as_f64().unwrap() > 0.999, "{plain}");
+        let lines = |hit: &Value| hit["components"]["peak_overlap"]["reference_peaks"].as_u64();
+        for s in solvents {
+            let hit = search(Some(s));
+            assert_eq!(hit["name"], row["name"].as_str(), "{} in {s}", row["name"]);
+            let (before, after) = (
+                plain["score"].as_f64().unwrap(),
+                hit["score"].as_f64().unwrap(),
+            );
+            if after < before - 1e-9 {
+                assert!(
+                    lines(&hit) < lines(&plain),
+                    "{} in {s}: {before} -> {after}",
+                    row["name"]
+                );
+                dropped.push(format!("{} in {s}", row["name"]));
+            }
+        }
+    }
+    // Acetone (2.17 ppm in CDCl3) under CD3CN's water (2.13 ppm), acetonitrile (2.10 ppm) under
+    // acetone-d6's residual (2.05 ppm) and CD3CN's water (Gottlieb et al. 1997, from memory).
+    assert_eq!(
+        dropped,
+        [
+            "acetone in CD3CN",
+            "acetonitrile in acetone-d6",
+            "acetonitrile in CD3CN"
+        ]
+    );
+}
+
 /// A 13C peak list `(ppm, intensity)` with a header.
 fn c13(lines: &[f64]) -> String {
     let mut s = String::from("ppm,intensity\n");
