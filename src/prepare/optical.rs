@@ -1,6 +1,6 @@
 //! IR and Raman: absorbance, resampling onto the grid, masks, L2 normalisation, peaks.
 
-use super::{Conditions, Prepared, Recipe, l2_normalise, noise_sd, pick};
+use super::{Conditions, Coverage, Prepared, Recipe, l2_normalise, noise_sd, pick};
 use crate::error::Result;
 use crate::spectrum::YUnit;
 use crate::technique::{Grid, Technique};
@@ -132,17 +132,9 @@ pub(super) fn prepare(
             *v = 0.0;
         }
     }
-    let covered = converted[0].0 <= grid.start + grid.step
-        && converted[converted.len() - 1].0 >= grid.stop - grid.step;
-    if !covered {
-        warnings.push(format!(
-            "the spectrum covers {:.0}..{:.0} cm-1, less than the grid's {:.0}..{:.0}; the rest counts as zero",
-            converted[0].0,
-            converted[converted.len() - 1].0,
-            grid.start,
-            grid.stop
-        ));
-    }
+    // What the file does not cover stays zero on the grid; the coverage says so, and scores
+    // leave those bins out. An import tells once how many of its files cover less.
+    let coverage = Coverage::measured(converted[0].0, converted[converted.len() - 1].0, grid);
     let xs: Vec<f64> = (0..grid.len()).map(|i| grid.x(i)).collect();
     let mut vector: Vec<f32> = values.iter().map(|&v| v as f32).collect();
     l2_normalise(&mut vector);
@@ -164,6 +156,7 @@ pub(super) fn prepare(
         peaks,
         y_unit,
         warnings,
+        coverage,
     })
 }
 
