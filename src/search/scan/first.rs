@@ -8,6 +8,7 @@ use rayon::prelude::*;
 use super::CHUNK;
 use super::dense::{Counts, dense_key};
 use super::query::{Bins, Query};
+use super::shared::Shared;
 use super::sparse::{RowSums, accumulate, sparse_key};
 use crate::cache::{Kind, TopK, VectorCache, i8_dots, quantise};
 use crate::search::Request;
@@ -115,18 +116,29 @@ impl Scan<'_> {
         let (scales, l1s, px) = (cache.scales(), cache.l1(), cache.peak_x());
         let (cscales, cl1s, rests) = cache.coarse_terms();
         let (covers, values) = (cache.covers(), cache.f32_matrix());
+        // Unknowns covering the whole grid against a row covering it: the dot product is
+        // the measure and every peak counts, with nothing to look up per unknown.
+        let dim = cache.dim;
+        let whole = (0, dim);
+        let all_whole = self.queries.iter().all(|q| q.cover.bins == whole);
         for r in (r0..r0 + len).filter(|&r| self.on(r)) {
             let (csx, cl1x, rest) = (cscales[r], cl1s[r], rests[r]);
             let row = &fine[r * s..(r + 1) * s];
             let row_x = &px[cache.peak_range(r)];
             let c = &covers[4 * r..4 * r + 4];
             let cover = (c[0] as usize, c[1] as usize, c[2], c[3]);
+            let mut memo = None;
             for (j, heap) in worker.heaps.iter_mut().enumerate() {
                 let q = &self.queries[j];
                 let cdot = dots[(r - r0) * nq + j];
                 let (qv, qs) = (&self.full[j].0, self.full[j].1);
-                let shared = q.cover.shared(cover, &values[r * s..(r + 1) * s]);
-                let counts = shared_counts(q, (cover.0, cover.1), row_x);
+                let (shared, counts) = if all_whole && (cover.0, cover.1) == whole {
+                    (Shared::Same, Counts::All)
+                } else {
+                    let values = &values[r * s..(r + 1) * s];
+                    let shared = q.cover.shared_memo(cover, values, &mut memo);
+                    (shared, shared_counts(q, (cover.0, cover.1), row_x))
+                };
                 let (key, read) = dense_key(
                     q,
                     (self.coarse[j].1, csx, cl1x, rest, cdot),

@@ -133,6 +133,18 @@ impl QueryCover {
     /// the cache (bins a..b, sum and sum of squares of its f32 values); `row` its f32 values,
     /// read only when the query covers less than the row.
     pub(super) fn shared(&self, cover: (usize, usize, f64, f64), row: &[f32]) -> Shared {
+        self.shared_memo(cover, row, &mut None)
+    }
+
+    /// [`QueryCover::shared`], reusing the row's sums over the shared bins from `memo` when
+    /// the last query asked for the same bins of the same row (a batch of unknowns measured
+    /// over one range reads each row once).
+    pub(super) fn shared_memo(
+        &self,
+        cover: (usize, usize, f64, f64),
+        row: &[f32],
+        memo: &mut Option<(Range<usize>, (f64, f64))>,
+    ) -> Shared {
         let (a, b, x1, x2) = cover;
         if (a, b) == self.bins {
             return Shared::Same;
@@ -147,6 +159,8 @@ impl QueryCover {
         let q2 = self.p2[s.end] - self.p2[s.start];
         let (x1, x2) = if s == (a..b) {
             (x1, x2)
+        } else if let Some((_, sums)) = memo.as_ref().filter(|(m, _)| *m == s) {
+            *sums
         } else {
             let sum = |r: Range<usize>| {
                 row[r].iter().fold((0f64, 0f64), |(s, q), &v| {
@@ -156,13 +170,15 @@ impl QueryCover {
             };
             // Over the shared bins, or the row's sums less the bins it covers beyond them,
             // whichever reads fewer values.
-            if 2 * s.len() <= b - a {
-                sum(s)
+            let sums = if 2 * s.len() <= b - a {
+                sum(s.clone())
             } else {
                 let (l1, l2) = sum(a..s.start);
                 let (h1, h2) = sum(s.end..b);
                 (x1 - l1 - h1, x2 - l2 - h2)
-            }
+            };
+            *memo = Some((s.clone(), sums));
+            sums
         };
         let (c, dq, dx) = if self.centred {
             (q1 * x1 / n, q2 - q1 * q1 / n, x2 - x1 * x1 / n)
