@@ -9,11 +9,12 @@ use memmap2::MmapMut;
 use super::file::VectorCache;
 use super::layout::*;
 use super::rows::{
-    active_bins, choose_block, coarse_row, dense_row, entropy_row, posting_weight, quantise,
-    weights,
+    active_bins, choose_block, coarse_row, covered_row, dense_row, entropy_row, posting_weight,
+    quantise, weights,
 };
 use super::{Snapshot, VectorRow};
 use crate::error::{Error, Result};
+use crate::prepare::covered_bins;
 use crate::score::CompositeParams;
 use crate::spectrum::Status;
 use crate::technique::{Grid, Technique};
@@ -199,7 +200,15 @@ impl Builder {
                     "run `whorl check`: the stored prepared vector does not match the recipe",
                 ));
             }
-            let row = dense_row(&r.vector, self.kind, &self.active);
+            // The row over its own active bins: the unmasked bins its spectrum covers.
+            let bins = covered_bins(r.coverage.as_ref(), &self.grid);
+            let row = covered_row(&r.vector, self.kind, &self.active, bins.clone());
+            let (sum, squares) = row.iter().fold((0f64, 0f64), |(s, q), &a| {
+                let a = f64::from(a);
+                (s + a, q + a * a)
+            });
+            section_mut::<f64>(&mut self.map, l.offsets[COVER], 4 * l.rows)[4 * i..4 * i + 4]
+                .copy_from_slice(&[bins.start as f64, bins.end as f64, sum, squares]);
             let (q, scale, l1) = quantise(&row);
             let s = l.stride;
             section_mut::<f32>(&mut self.map, l.offsets[F32], l.rows * s)[i * s..i * s + row.len()]

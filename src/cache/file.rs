@@ -110,6 +110,26 @@ impl VectorCache {
         )
     }
 
+    /// Dense: one row's covered bins `a..b` and the sum and the sum of squares (in f64) of
+    /// its f32 values, which are zero outside them.
+    pub fn cover(&self, row: usize) -> (usize, usize, f64, f64) {
+        let c = &self.covers()[4 * row..4 * row + 4];
+        (c[0] as usize, c[1] as usize, c[2], c[3])
+    }
+
+    /// Dense: every row's [`VectorCache::cover`], four values a row.
+    pub fn covers(&self) -> &[f64] {
+        section(&self.map, self.layout.offsets[COVER], 4 * self.layout.rows)
+    }
+
+    /// Dense: true when some row covers less than the whole grid.
+    pub fn any_partial(&self) -> bool {
+        (0..self.layout.rows).any(|r| {
+            let (a, b, _, _) = self.cover(r);
+            a != 0 || b != self.dim
+        })
+    }
+
     /// Sparse: the inverted index entry of one nominal m/z, the rows (ascending) with a peak
     /// there and that peak's posting weight (see [`posting_weight`]).
     pub fn postings(&self, mz: usize) -> (&[u32], &[f32]) {
@@ -234,7 +254,7 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
     let dim = u64_at(h, 48) as usize;
     let rows = u64_at(h, 64) as usize;
     let nnz = u64_at(h, 72) as usize;
-    let block = u32_at(h, 324) as usize;
+    let block = u32_at(h, BLOCK_AT) as usize;
     if !BLOCKS.contains(&block) {
         return Err("cache of an unknown coarse block size".into());
     }
@@ -254,7 +274,7 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         mass_exponent: f64::from_bits(u64_at(h, 96)),
         reverse: false,
     };
-    let integer_x = h[320] == 1;
+    let integer_x = h[FLAGS_AT] == 1;
     let c = VectorCache {
         map,
         layout,
@@ -274,6 +294,16 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
     if off[0] != 0 || off[rows] as usize != nnz || off.windows(2).any(|w| w[0] > w[1]) {
         return Err("cache peak offsets are damaged".into());
     }
+    if kind.dense() {
+        // Covered bins are read as ranges of a row: they must lie inside it.
+        let cover: &[f64] = section(&c.map, layout.offsets[COVER], 4 * rows);
+        let inside = |a: f64, b: f64| {
+            a >= 0.0 && a <= b && b <= dim as f64 && a.fract() == 0.0 && b.fract() == 0.0
+        };
+        if cover.chunks(4).any(|c| !inside(c[0], c[1])) {
+            return Err("cache coverage is damaged".into());
+        }
+    }
     if !kind.dense() {
         let post: &[u64] = section(&c.map, layout.offsets[POST_OFF], MZ_BINS + 1);
         if post[0] != 0 || post[MZ_BINS] as usize != nnz || post.windows(2).any(|w| w[0] > w[1]) {
@@ -291,7 +321,7 @@ mod tests {
 
     use super::*;
     use crate::cache::{Builder, VectorRow};
-    use crate::prepare::Peak;
+    use crate::prepare::{Coverage, Peak};
     use crate::technique::Grid;
 
     fn peak(x: f64, height: f64) -> Peak {
@@ -336,6 +366,11 @@ mod tests {
                     .map(|k| ((k as f32 + i as f32) * 0.1).sin().abs())
                     .collect(),
                 peaks: vec![peak(41.0 + i as f64, 100.0), peak(58.0, 20.0 + i as f64)],
+                // The last IR row was measured from 3850 cm-1 only.
+                coverage: (i == 2 && kind != Kind::Sparse).then_some(Coverage {
+                    lo: 3850.0,
+                    hi: 4000.0,
+                }),
             })
             .collect();
         let nnz = rows.iter().map(|r| r.peaks.len()).sum();
@@ -387,6 +422,17 @@ mod tests {
                 let s = c.stride();
                 let norm: f32 = c.f32_matrix()[..s].iter().map(|a| a * a).sum();
                 assert!((norm - 1.0).abs() < 1e-5, "{norm}");
+                // The last row covers 3850-4000 cm-1: bins 25..101, zero outside, centred
+                // over them (its sum is 0 and its sum of squares 1, as the cache records).
+                let (a, b, sum, squares) = c.cover(2);
+                assert_eq!((a, b), (25, 101));
+                assert_eq!(c.cover(0).0..c.cover(0).1, 0..101);
+                let row = &c.f32_matrix()[2 * s..3 * s];
+                assert!(row[..25].iter().chain(&row[101..]).all(|&v| v == 0.0));
+                assert!(sum.abs() < 1e-5 && (squares - 1.0).abs() < 1e-5);
+                let f64_sum: f64 = row.iter().map(|&v| f64::from(v)).sum();
+                assert_eq!(f64_sum, sum);
+                assert!(c.any_partial());
             }
         }
     }
@@ -441,8 +487,14 @@ mod tests {
         assert_eq!(edit(0, b"WHORLVX\0"), "not a whorl vector cache");
         assert!(edit(8, &(FORMAT_VERSION + 1).to_le_bytes()).starts_with("cache format"));
         assert_eq!(
-            edit(324, &3u32.to_le_bytes()),
+            edit(BLOCK_AT, &3u32.to_le_bytes()),
             "cache of an unknown coarse block size"
+        );
+        // A row's covered bins reaching past its end (grid of 101 bins).
+        let cover = u64_at(&good, 168 + 8 * COVER) as usize;
+        assert_eq!(
+            edit(cover + 8, &102f64.to_le_bytes()),
+            "cache coverage is damaged"
         );
         std::fs::write(&path, &good).unwrap();
         assert_eq!(
@@ -492,6 +544,7 @@ mod tests {
             status: crate::spectrum::Status::Verified,
             vector: vec![],
             peaks: vec![peak(43.0, 1.0)],
+            coverage: None,
         };
         // Told of one row: a second is the library changing under the build.
         let new = || {

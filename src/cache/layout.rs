@@ -3,7 +3,7 @@
 //! ```text
 //! header   512 bytes: magic, format version, kind, technique, grid length (dim), padded
 //!          row length (stride), rows, peaks (nnz), generation, fingerprint, composite
-//!          exponents, section offsets, flags, coarse factor
+//!          exponents, section offsets, flags (byte 400), coarse factor (bytes 404-407)
 //! ids      i64 x rows       spectrum ids, ascending
 //! status   u8  x rows       0 pending, 1 verified
 //! scale    f32 x rows       dense: the i8 row's scale (value = scale x i8)
@@ -19,6 +19,8 @@
 //! post_row u32 x nnz        sparse: rows with a peak at that m/z, ascending
 //! post_w   f32 x nnz        sparse: that peak's weight, negated when it cannot be trusted
 //!                           (see `posting_weight`)
+//! cover    f64 x 4 x rows   dense: the row's covered bins a..b (see `prepare::Coverage`),
+//!                           and the sum and the sum of squares of its f32 values
 //! peak_off u64 x (rows + 1) where each row's peaks start
 //! peak_x   f32 x nnz        peak positions
 //! peak_h   f32 x nnz        sparse: peak heights
@@ -26,11 +28,15 @@
 //! peak_w   f32 x nnz        sparse: Stein & Scott weights, L2-normalised per row
 //! ```
 //!
-//! Dense rows are stored ready for a dot product. For [`Kind::Centred`] a row is the
-//! prepared vector with its mean over the unmasked bins subtracted, masked bins set to 0 and
-//! then L2-normalised: Pearson's r over the unmasked bins of two spectra equals the dot
-//! product of their rows so transformed. For [`Kind::Unit`] a row is the L2-normalised
-//! vector, whose dot products are cosines. Values are little-endian.
+//! Dense rows are stored ready for a dot product, over the row's own active bins: the
+//! unmasked bins its spectrum covers (all unmasked bins for a spectrum covering the grid).
+//! For [`Kind::Centred`] a row is the prepared vector with its mean over its active bins
+//! subtracted, every other bin set to 0, and then L2-normalised: Pearson's r over the
+//! unmasked bins of two spectra covering the same bins equals the dot product of their
+//! rows so transformed. For [`Kind::Unit`] a row is the vector with the bins it does not
+//! cover set to 0, L2-normalised, whose dot products are cosines. Where two spectra cover
+//! different bins, the scan corrects the dot product with the sums over the shared bins
+//! (`search::scan`). Values are little-endian.
 
 use crate::score::CompositeParams;
 use crate::technique::Technique;
@@ -40,11 +46,15 @@ use super::Snapshot;
 /// The cache folder inside a library folder.
 pub const CACHE_DIR: &str = "cache";
 /// The version of the cache file layout; a file of another version is rebuilt.
-pub const FORMAT_VERSION: u32 = 3;
+pub const FORMAT_VERSION: u32 = 4;
 pub(super) const MAGIC: &[u8; 8] = b"WHORLVC\0";
 pub(super) const HEADER: usize = 512;
 pub(super) const ALIGN: usize = 64;
-pub(super) const SECTIONS: usize = 19;
+pub(super) const SECTIONS: usize = 20;
+/// Where the header keeps its flags (1: every peak position is a whole number) and the
+/// coarse block size (u32), after the section offsets.
+pub(super) const FLAGS_AT: usize = 400;
+pub(super) const BLOCK_AT: usize = 404;
 /// Nominal m/z values an inverted index covers (peak bins are u16).
 pub(super) const MZ_BINS: usize = 1 << 16;
 /// The block sizes a cache may average its coarse rows over, coarsest first.
@@ -138,6 +148,7 @@ pub(super) const CI8: usize = 15;
 pub(super) const POST_OFF: usize = 16;
 pub(super) const POST_ROW: usize = 17;
 pub(super) const POST_W: usize = 18;
+pub(super) const COVER: usize = 19;
 
 impl Layout {
     pub(super) fn new(kind: Kind, dim: usize, rows: usize, nnz: usize, block: usize) -> Layout {
@@ -168,6 +179,7 @@ impl Layout {
             if kind.dense() { 0 } else { 8 * (MZ_BINS + 1) },
             4 * sparse,
             4 * sparse,
+            if kind.dense() { 32 * rows } else { 0 },
         ];
         let mut offsets = [0; SECTIONS];
         let mut at = HEADER;
@@ -240,8 +252,8 @@ pub(super) fn write_header(map: &mut [u8], c: &Tag<'_>) {
     for (i, &o) in l.offsets.iter().enumerate() {
         h[168 + 8 * i..176 + 8 * i].copy_from_slice(&(o as u64).to_le_bytes());
     }
-    h[320] = u8::from(c.integer_x);
-    h[324..328].copy_from_slice(&(l.block as u32).to_le_bytes());
+    h[FLAGS_AT] = u8::from(c.integer_x);
+    h[BLOCK_AT..BLOCK_AT + 4].copy_from_slice(&(l.block as u32).to_le_bytes());
     // The magic goes in last, so a map that was not completely filled never parses.
     h[0..8].copy_from_slice(MAGIC);
 }

@@ -19,11 +19,11 @@ pub use file::VectorCache;
 pub use kernels::{TopK, dot_f32, i8_dot, i8_dots};
 pub use layout::{BLOCK_SAMPLE, BLOCKS, CACHE_DIR, FORMAT_VERSION, Kind, coarse_stride, file_name};
 pub use rows::{
-    active_bins, choose_block, coarse_row, dense_row, entropy_row, posting_weight, quantise,
-    weights,
+    active_bins, choose_block, coarse_row, covered_row, dense_row, entropy_row, posting_weight,
+    quantise, weights,
 };
 
-use crate::prepare::Peak;
+use crate::prepare::{Coverage, Peak};
 use crate::score::Measure;
 use crate::spectrum::Status;
 use crate::technique::Technique;
@@ -48,6 +48,8 @@ pub struct VectorRow {
     pub vector: Vec<f32>,
     /// The picked peaks.
     pub peaks: Vec<Peak>,
+    /// The part of the grid the spectrum covers (`None`: all of it).
+    pub coverage: Option<Coverage>,
 }
 
 /// The kind of cache a technique's measure uses, if any.

@@ -1,6 +1,8 @@
 //! Row transforms: a prepared spectrum made ready for the cache's dot products, its coarse
 //! row, its i8 quantisation, and the Stein & Scott weights of a peak list.
 
+use std::ops::Range;
+
 use super::layout::{BLOCK_REST, BLOCKS, Kind, NO_BLOCK};
 use crate::prepare::Peak;
 use crate::score::{CompositeParams, entropy_weights};
@@ -34,6 +36,23 @@ pub fn dense_row(v: &[f32], kind: Kind, active: &[bool]) -> Vec<f32> {
     x.iter()
         .map(|&a| if norm > 0.0 { (a / norm) as f32 } else { 0.0 })
         .collect()
+}
+
+/// The dense row of a prepared vector covering only the bins `covered` (see
+/// `prepare::Coverage`): the vector over its own active bins, the unmasked bins it covers,
+/// with every other bin 0. For a vector covering the whole grid it is [`dense_row`].
+pub fn covered_row(v: &[f32], kind: Kind, active: &[bool], covered: Range<usize>) -> Vec<f32> {
+    if covered == (0..v.len()) {
+        return dense_row(v, kind, active);
+    }
+    let inside = |i: usize| covered.contains(&i);
+    let vector: Vec<f32> = (v.iter().enumerate())
+        .map(|(i, &a)| if inside(i) { a } else { 0.0 })
+        .collect();
+    let active: Vec<bool> = (active.iter().enumerate())
+        .map(|(i, &on)| on && inside(i))
+        .collect();
+    dense_row(&vector, kind, &active)
 }
 
 /// The coarse row of a dense row, and an upper bound on the L2 norm of what it leaves out.

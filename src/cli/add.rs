@@ -95,6 +95,14 @@ pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     for w in &warnings {
         eprintln!("warning: {}: {w}", args.file.display());
     }
+    if let Some(c) = staged.prepared.coverage {
+        eprintln!(
+            "note: {} covers {:.0}-{:.0} cm-1, less than the grid; scores compare it with an unknown over the range both cover",
+            args.file.display(),
+            c.lo,
+            c.hi
+        );
+    }
     if args.json {
         super::output::json(&mut out, &outcome)?;
     } else {

@@ -48,6 +48,9 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             );
         }
     }
+    if let Some(note) = report.coverage_note() {
+        eprintln!("note: {note}");
+    }
     let mut out = std::io::stdout().lock();
     if args.json {
         let rejected: Vec<_> = report
@@ -70,6 +73,7 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                 "already_present": report.already_present(),
                 "rejected": rejected,
                 "warnings": warnings,
+                "coverage_note": report.coverage_note(),
                 "rolled_back": report.rolled_back,
             }),
         )?;

@@ -346,19 +346,19 @@ impl Library {
         for chunk in records.chunks(512) {
             let mut inputs = Vec::with_capacity(chunk.len());
             for rec in chunk {
-                let (blob, vector, peaks): (Vec<u8>, Vec<u8>, String) = self.conn.query_row(
-                    "SELECT s.raw, p.vector, p.peaks FROM spectrum s JOIN prepared p ON p.spectrum_id = s.id WHERE s.id = ?1",
+                let (blob, vector, peaks, coverage): (Vec<u8>, Vec<u8>, String, Option<String>) = self.conn.query_row(
+                    "SELECT s.raw, p.vector, p.peaks, p.coverage FROM spectrum s JOIN prepared p ON p.spectrum_id = s.id WHERE s.id = ?1",
                     [rec.id],
-                    |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+                    |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?)),
                 )?;
-                inputs.push((rec, blob, vector, peaks));
+                inputs.push((rec, blob, vector, (peaks, coverage)));
             }
             let found: Vec<Finding> = inputs
                 .par_iter()
-                .flat_map_iter(|(rec, blob, vector, peaks)| {
+                .flat_map_iter(|(rec, blob, vector, (peaks, coverage))| {
                     let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
                     progress(n, total);
-                    verify_blob(&recipes, rec, blob, vector, peaks)
+                    verify_blob(&recipes, rec, blob, vector, (peaks, coverage.as_deref()))
                 })
                 .collect();
             report.findings.extend(found);
@@ -401,7 +401,7 @@ fn verify_blob(
     rec: &SpectrumRecord,
     blob: &[u8],
     vector: &[u8],
-    peaks: &str,
+    (peaks, coverage): (&str, Option<&str>),
 ) -> Vec<Finding> {
     let id = format!("spectrum:{}", rec.id);
     let mut out = Vec::new();
@@ -412,7 +412,7 @@ fn verify_blob(
         });
         return out;
     }
-    let again = (|| -> Result<(Vec<u8>, String, String)> {
+    let again = (|| -> Result<(Vec<u8>, String, String, Option<String>)> {
         let recipe = recipes.get(&rec.technique).ok_or_else(|| {
             crate::Error::invalid(
                 format!("no recipe for {}", rec.technique),
@@ -437,10 +437,16 @@ fn verify_blob(
             f32_bytes(&p.vector),
             serde_json::to_string(&p.peaks)?,
             serde_json::to_string(&without_areas)?,
+            super::store::coverage_json(&p)?,
         ))
     })();
     match again {
-        Ok((v, p, before_areas)) if v == vector && (p == peaks || before_areas == peaks) => {}
+        // Libraries prepared before coverage was recorded hold NULL for every spectrum,
+        // which reads as the whole grid; a recorded coverage must be the one prepared again.
+        Ok((v, p, before_areas, c))
+            if v == vector
+                && (p == peaks || before_areas == peaks)
+                && (coverage.is_none() || coverage == c.as_deref()) => {}
         Ok(_) => out.push(Finding {
             record: id,
             problem:
@@ -493,6 +499,35 @@ mod tests {
         // Any other change to the peaks is still found.
         peaks[0].area = 1.0;
         assert_eq!(set(&peaks).len(), 1);
+    }
+
+    #[test]
+    fn coverage_is_checked_and_spectra_stored_before_it_was_recorded_check_clean() {
+        use crate::library::synthetic::{Rng, ir_points, staged};
+        let mut lib = Library::in_memory("t").unwrap();
+        let pts: Vec<(f64, f64)> = ir_points(&mut Rng::new(3))
+            .into_iter()
+            .filter(|p| p.0 >= 1000.0)
+            .collect();
+        let s = staged(lib.recipes(), Technique::Ir, pts, "short", &[]).unwrap();
+        assert_eq!(s.prepared.coverage.map(|c| c.lo), Some(1000.0));
+        let id = crate::library::testing::add(&mut lib, &s);
+        assert_eq!(lib.prepared(id).unwrap().coverage, s.prepared.coverage);
+        let set = |value: Option<&str>| {
+            lib.conn
+                .execute(
+                    "UPDATE prepared SET coverage = ?2 WHERE spectrum_id = ?1",
+                    rusqlite::params![id, value],
+                )
+                .unwrap();
+            lib.check(&|_, _| {}).unwrap().findings
+        };
+        assert!(set(Some(r#"{"lo":1000.0,"hi":4000.0}"#)).is_empty());
+        // As a library prepared before coverage was recorded: NULL, read as the whole grid.
+        assert!(set(None).is_empty());
+        assert_eq!(lib.prepared(id).unwrap().coverage, None);
+        // A coverage other than the raw points give is found.
+        assert_eq!(set(Some(r#"{"lo":900.0,"hi":4000.0}"#)).len(), 1);
     }
 
     #[test]

@@ -4,6 +4,7 @@ use rayon::prelude::*;
 
 use crate::error::{Error, Result};
 use crate::library::{Library, ManifestRow, Outcome, Staged, stage};
+use crate::prepare::Coverage;
 use crate::spectrum::sha256_hex;
 use crate::technique::Technique;
 
@@ -32,6 +33,9 @@ pub struct RowReport {
     pub outcome: Result<Outcome>,
     /// What preparation warned about (stored with a new spectrum).
     pub warnings: Vec<String>,
+    /// A new IR or Raman spectrum measured over less than its grid: its technique and the
+    /// range it covers.
+    pub coverage: Option<(Technique, Coverage)>,
 }
 
 /// The result of a bulk import.
@@ -58,6 +62,36 @@ impl ImportReport {
             .iter()
             .filter(|r| matches!(r.outcome, Ok(Outcome::AlreadyPresent { .. })))
             .count()
+    }
+
+    /// The new spectra measured over less than their grid, as one note for the whole import
+    /// (a lab importing 600 ATR spectra reads one line, not 600): how many of the files
+    /// stored, and their ranges, most frequent first. `None` when every one covers its grid.
+    pub fn coverage_note(&self) -> Option<String> {
+        let mut ranges: Vec<((Technique, i64, i64), usize)> = Vec::new();
+        for (t, c) in self.rows.iter().filter_map(|r| r.coverage.as_ref()) {
+            let key = (*t, c.lo.round() as i64, c.hi.round() as i64);
+            match ranges.iter_mut().find(|(k, _)| *k == key) {
+                Some((_, n)) => *n += 1,
+                None => ranges.push((key, 1)),
+            }
+        }
+        if ranges.is_empty() {
+            return None;
+        }
+        ranges.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.cmp(&b.0)));
+        let partial: usize = ranges.iter().map(|r| r.1).sum();
+        let mut listed: Vec<String> = (ranges.iter().take(4))
+            .map(|((t, lo, hi), n)| format!("{t} {lo}-{hi} cm-1 ({n})"))
+            .collect();
+        if ranges.len() > 4 {
+            listed.push(format!("{} other ranges", ranges.len() - 4));
+        }
+        Some(format!(
+            "{partial} of {} files stored cover less than their grid: {}; scores compare each with an unknown over the range both cover",
+            self.imported(),
+            listed.join(", ")
+        ))
     }
 
     /// Rows refused, with their reasons.
@@ -188,6 +222,7 @@ fn present_files(
                 file: row.file,
                 outcome: Ok(Outcome::AlreadyPresent { spectrum_id }),
                 warnings: Vec::new(),
+                coverage: None,
             }),
             None => rest.push(row),
         }
@@ -230,19 +265,24 @@ fn store_batch(
     };
     stored.reverse();
     for (line, file, s) in staged {
-        let (outcome, warnings) = match s {
+        let (outcome, warnings, coverage) = match s {
             Ok(_) if all_or_nothing && any_bad => continue,
-            Ok(staged) => (
-                stored.pop().expect("one outcome per staged spectrum"),
-                staged.prepared.warnings,
-            ),
-            Err(e) => (Err(e), Vec::new()),
+            Ok(staged) => {
+                let outcome = stored.pop().expect("one outcome per staged spectrum");
+                let added = matches!(outcome, Ok(Outcome::Added { .. }));
+                let coverage = (staged.prepared.coverage)
+                    .filter(|_| added)
+                    .map(|c| (staged.submission.technique, c));
+                (outcome, staged.prepared.warnings, coverage)
+            }
+            Err(e) => (Err(e), Vec::new(), None),
         };
         report.rows.push(RowReport {
             line,
             file,
             outcome,
             warnings,
+            coverage,
         });
     }
     if all_or_nothing && (any_bad || report.rejected().next().is_some()) {
@@ -333,6 +373,46 @@ mod tests {
         assert_eq!(report.already_present(), 1);
         assert_eq!(rows(&lib, "spectrum"), 3);
         assert_eq!(lib.last_event().unwrap(), events);
+    }
+
+    #[test]
+    fn spectra_covering_less_than_the_grid_make_one_note_per_import() {
+        // Twelve IR files, nine measured from 650 cm-1 only (a diamond ATR accessory's range,
+        // common practice), one from 1000 to 3000 cm-1: one note for the import, counting
+        // them by range. Before, each file carried its own warning line.
+        let tmp = tempfile::tempdir().unwrap();
+        let mut manifest = "file,technique,name\n".to_string();
+        for seed in 1..=12u64 {
+            let range = match seed {
+                1 | 2 => (400.0, 4000.0),
+                3 => (1000.0, 3000.0),
+                _ => (650.0, 4000.0),
+            };
+            let mut text = "x,y\n".to_string();
+            for (x, y) in ir_points(&mut Rng::new(seed)) {
+                if x >= range.0 && x <= range.1 {
+                    text.push_str(&format!("{x},{y}\n"));
+                }
+            }
+            std::fs::write(tmp.path().join(format!("s{seed}.csv")), text).unwrap();
+            manifest.push_str(&format!("s{seed}.csv,ir,c{seed}\n"));
+        }
+        let path = tmp.path().join("manifest.csv");
+        std::fs::write(&path, manifest).unwrap();
+        let mut lib = Library::in_memory("t").unwrap();
+        let report = import(&mut lib, &path, false);
+        assert_eq!(report.imported(), 12);
+        assert!(
+            report.rows.iter().all(|r| r.warnings.is_empty()),
+            "no per-file warnings"
+        );
+        assert_eq!(
+            report.coverage_note().unwrap(),
+            "10 of 12 files stored cover less than their grid: ir 652-4000 cm-1 (9), \
+             ir 1000-3000 cm-1 (1); scores compare each with an unknown over the range both cover"
+        );
+        // Imported again: nothing new is stored, so nothing to note.
+        assert_eq!(import(&mut lib, &path, false).coverage_note(), None);
     }
 
     #[test]

@@ -8,7 +8,7 @@ use serde::{Deserialize, Serialize};
 
 use super::Library;
 use crate::error::{Error, Result};
-use crate::prepare::{Peak, Prepared, Recipe};
+use crate::prepare::{Coverage, Peak, Prepared, Recipe};
 use crate::spectrum::{Metadata, Status};
 use crate::technique::Technique;
 use crate::text::IndexDoc;
@@ -126,6 +126,14 @@ pub struct Candidate {
 
 pub(super) fn f32_bytes(v: &[f32]) -> Vec<u8> {
     v.iter().flat_map(|x| x.to_le_bytes()).collect()
+}
+
+/// A prepared spectrum's stored coverage (NULL: the whole grid).
+pub(super) fn coverage_from(text: Option<&str>) -> Result<Option<Coverage>> {
+    Ok(match text {
+        Some(t) => Some(serde_json::from_str(t)?),
+        None => None,
+    })
 }
 
 pub(super) fn f32_from_bytes(b: &[u8]) -> Vec<f32> {
@@ -265,14 +273,15 @@ impl Library {
     /// The stored prepared form of a spectrum.
     pub fn prepared(&self, id: i64) -> Result<Prepared> {
         // Cached: a search loads the prepared spectra of its best candidates one by one.
-        let (technique, vector, peaks, y_unit, warnings): (String, Vec<u8>, String, String, String) = self
+        type Row = (String, Vec<u8>, String, String, String, Option<String>);
+        let (technique, vector, peaks, y_unit, warnings, coverage): Row = self
             .conn
             .prepare_cached(
-                "SELECT s.technique, p.vector, p.peaks, p.y_unit, p.warnings FROM prepared p JOIN spectrum s ON s.id = p.spectrum_id
+                "SELECT s.technique, p.vector, p.peaks, p.y_unit, p.warnings, p.coverage FROM prepared p JOIN spectrum s ON s.id = p.spectrum_id
                  WHERE p.spectrum_id = ?1",
             )?
             .query_row([id], |r| {
-                Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+                Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?, r.get(5)?))
             })
             .optional()?
             .ok_or(Error::NotFound { kind: "spectrum", id })?;
@@ -282,6 +291,7 @@ impl Library {
             peaks: serde_json::from_str(&peaks)?,
             y_unit: y_unit.parse()?,
             warnings: serde_json::from_str(&warnings)?,
+            coverage: coverage_from(coverage.as_deref())?,
         })
     }
 
@@ -370,7 +380,7 @@ impl Library {
     /// The spectra of one technique in the given statuses, with their prepared forms, in id order.
     pub fn candidates(&self, technique: Technique, statuses: &[Status]) -> Result<Vec<Candidate>> {
         let mut stmt = self.conn.prepare(
-            "SELECT s.id, s.status, p.vector, p.peaks, p.y_unit FROM spectrum s
+            "SELECT s.id, s.status, p.vector, p.peaks, p.y_unit, p.coverage FROM spectrum s
              JOIN prepared p ON p.spectrum_id = s.id WHERE s.technique = ?1 ORDER BY s.id",
         )?;
         let rows = stmt.query_map([technique.name()], |r| {
@@ -380,11 +390,12 @@ impl Library {
                 r.get::<_, Vec<u8>>(2)?,
                 r.get::<_, String>(3)?,
                 r.get::<_, String>(4)?,
+                r.get::<_, Option<String>>(5)?,
             ))
         })?;
         let mut out = Vec::new();
         for row in rows {
-            let (spectrum_id, status, vector, peaks, y_unit) = row?;
+            let (spectrum_id, status, vector, peaks, y_unit, coverage) = row?;
             let status: Status = status.parse()?;
             if !statuses.contains(&status) {
                 continue;
@@ -398,6 +409,7 @@ impl Library {
                     peaks,
                     y_unit: y_unit.parse()?,
                     warnings: vec![],
+                    coverage: coverage_from(coverage.as_deref())?,
                 },
             });
         }

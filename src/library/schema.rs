@@ -5,9 +5,10 @@ use rusqlite::Connection;
 use crate::error::Result;
 
 /// The migrations, in order; migration `i` takes the database from version `i` to `i + 1`.
-const MIGRATIONS: [&str; 2] = [
+const MIGRATIONS: [&str; 3] = [
     include_str!("../../schema/0001_init.sql"),
     include_str!("../../schema/0002_curation.sql"),
+    include_str!("../../schema/0003_coverage.sql"),
 ];
 
 /// The schema version this build writes.

@@ -280,13 +280,14 @@ pub(super) fn insert_revision(tx: &Connection, r: &NewRevision<'_>) -> Result<()
 /// Stores the prepared form of a new spectrum.
 pub(super) fn insert_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -> Result<()> {
     tx.execute(
-        "INSERT INTO prepared (spectrum_id, vector, peaks, y_unit, warnings) VALUES (?1, ?2, ?3, ?4, ?5)",
+        "INSERT INTO prepared (spectrum_id, vector, peaks, y_unit, warnings, coverage) VALUES (?1, ?2, ?3, ?4, ?5, ?6)",
         params![
             spectrum_id,
             f32_bytes(&p.vector),
             serde_json::to_string(&p.peaks)?,
             p.y_unit.name(),
-            serde_json::to_string(&p.warnings)?
+            serde_json::to_string(&p.warnings)?,
+            coverage_json(p)?
         ],
     )?;
     Ok(())
@@ -296,16 +297,25 @@ pub(super) fn insert_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -
 pub(super) fn update_prepared(tx: &Connection, spectrum_id: i64, p: &Prepared) -> Result<()> {
     // Cached: a recipe change runs it once per spectrum of the technique.
     tx.prepare_cached(
-        "UPDATE prepared SET vector = ?2, peaks = ?3, y_unit = ?4, warnings = ?5 WHERE spectrum_id = ?1",
+        "UPDATE prepared SET vector = ?2, peaks = ?3, y_unit = ?4, warnings = ?5, coverage = ?6 WHERE spectrum_id = ?1",
     )?
     .execute(params![
         spectrum_id,
         f32_bytes(&p.vector),
         serde_json::to_string(&p.peaks)?,
         p.y_unit.name(),
-        serde_json::to_string(&p.warnings)?
+        serde_json::to_string(&p.warnings)?,
+        coverage_json(p)?
     ])?;
     Ok(())
+}
+
+/// The stored form of a prepared spectrum's coverage: JSON, or NULL for the whole grid.
+pub(super) fn coverage_json(p: &Prepared) -> Result<Option<String>> {
+    Ok(match &p.coverage {
+        Some(c) => Some(serde_json::to_string(c)?),
+        None => None,
+    })
 }
 
 /// Inserts a sign-off row (its `id` is not read) and returns its id.

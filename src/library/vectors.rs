@@ -5,7 +5,7 @@ use crate::cache::{Snapshot, VectorRow};
 use crate::error::Result;
 use crate::library::Library;
 use crate::library::fingerprint;
-use crate::library::records::f32_from_bytes;
+use crate::library::records::{coverage_from, f32_from_bytes};
 use crate::technique::Technique;
 
 impl Library {
@@ -55,7 +55,7 @@ impl Library {
         // ORDER BY needs no temporary B-tree: through the (technique, status) index SQLite
         // would sort every row, vectors included, before handing over the first.
         let mut stmt = tx.prepare(
-            "SELECT s.id, s.status, p.vector, p.peaks FROM spectrum s NOT INDEXED
+            "SELECT s.id, s.status, p.vector, p.peaks, p.coverage FROM spectrum s NOT INDEXED
              CROSS JOIN prepared p ON p.spectrum_id = s.id
              WHERE s.technique = ?1 AND s.status != 'withdrawn' ORDER BY s.id",
         )?;
@@ -69,6 +69,11 @@ impl Library {
                 status: status.parse()?,
                 vector: f32_from_bytes(vector),
                 peaks: serde_json::from_str(peaks)?,
+                coverage: coverage_from(
+                    r.get_ref(4)?
+                        .as_str_or_null()
+                        .map_err(rusqlite::Error::from)?,
+                )?,
             })?;
         }
         drop(rows);

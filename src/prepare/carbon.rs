@@ -96,6 +96,7 @@ pub(super) fn prepare(
         peaks,
         y_unit: conditions.y_unit.unwrap_or(YUnit::Intensity),
         warnings,
+        coverage: None,
     })
 }
 

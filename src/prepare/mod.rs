@@ -5,6 +5,7 @@
 
 mod baseline;
 mod carbon;
+mod coverage;
 mod despike;
 mod masking;
 mod nmr;
@@ -15,6 +16,7 @@ mod spectrometry;
 
 pub use baseline::{ALS_DEFAULT, Baseline, asls, rubber_band};
 pub use carbon::PROFILE_POINTS;
+pub use coverage::{Coverage, covered_bins, peak_in, shared_bins};
 pub use despike::{DESPIKE_THRESHOLD, despike, modified_z_scores};
 pub use masking::{mask_prepared, shared_solvent_regions};
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
@@ -269,6 +271,19 @@ pub struct Prepared {
     pub y_unit: YUnit,
     /// Things the analyst should know about this preparation.
     pub warnings: Vec<String>,
+    /// IR, Raman: the part of the grid the spectrum was measured on, when it is less than
+    /// the whole grid; scores compare two spectra only over the bins both cover
+    /// ([`shared_bins`]). `None`: the whole grid (every spectrum of the other techniques,
+    /// and spectra stored before coverage was recorded, which read as they did).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub coverage: Option<Coverage>,
+}
+
+impl Prepared {
+    /// The bins of `grid` this spectrum covers.
+    pub fn covered_bins(&self, grid: &Grid) -> std::ops::Range<usize> {
+        covered_bins(self.coverage.as_ref(), grid)
+    }
 }
 
 /// Prepares checked points (x already in the technique's unit) with a library's recipe.

@@ -1,7 +1,7 @@
 //! IR and Raman: absorbance, resampling onto the grid, masks, L2 normalisation, peaks.
 
 use super::despike::{self, despike};
-use super::{Conditions, Picking, Prepared, Recipe, l2_normalise, noise_sd, pick};
+use super::{Conditions, Coverage, Picking, Prepared, Recipe, l2_normalise, noise_sd, pick};
 use crate::error::Result;
 use crate::spectrum::YUnit;
 use crate::technique::{Grid, Technique};
@@ -144,14 +144,10 @@ pub(super) fn prepare(
             *v = 0.0;
         }
     }
+    // What the file does not cover stays zero on the grid; the coverage says so, and scores
+    // leave those bins out. An import tells once how many of its files cover less.
     let (first, last) = (converted[0].0, converted[converted.len() - 1].0);
-    let covered = first <= grid.start + grid.step && last >= grid.stop - grid.step;
-    if !covered {
-        warnings.push(format!(
-            "the spectrum covers {:.0}..{:.0} cm-1, less than the grid's {:.0}..{:.0}; the rest counts as zero",
-            first, last, grid.start, grid.stop
-        ));
-    }
+    let coverage = Coverage::measured(first, last, grid);
     let xs: Vec<f64> = (0..grid.len()).map(|i| grid.x(i)).collect();
     let mut vector: Vec<f32> = values.iter().map(|&v| v as f32).collect();
     let norm = vector
@@ -191,6 +187,7 @@ pub(super) fn prepare(
         peaks: picked.into_iter().map(|(_, p)| p).collect(),
         y_unit,
         warnings,
+        coverage,
     })
 }
 

@@ -55,6 +55,7 @@ pub(super) fn prepare(
         peaks,
         y_unit: conditions.y_unit.unwrap_or(YUnit::Relative),
         warnings,
+        coverage: None,
     })
 }
 

@@ -51,6 +51,7 @@ pub fn ions(list: &[(f64, f64)]) -> Prepared {
             .collect(),
         y_unit: YUnit::Relative,
         warnings: vec![],
+        coverage: None,
     }
 }
 

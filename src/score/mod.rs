@@ -25,7 +25,7 @@ use std::str::FromStr;
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
-use crate::prepare::Prepared;
+use crate::prepare::{Prepared, peak_in, shared_bins};
 use crate::technique::{Grid, Technique};
 
 /// The spectral measure a technique ranks by.
@@ -189,6 +189,13 @@ pub struct ScoreParams {
     /// each spectrum with only its own solvent masked, so it reads as false.
     #[serde(default)]
     pub shared_solvent_masks: bool,
+    /// IR, Raman: compare two spectra only over the bins both were measured on
+    /// ([`crate::prepare::shared_bins`]): cosine, correlation and derivative correlation over
+    /// those bins, peak overlap over the peaks inside them. Absent in results saved before
+    /// it existed, which compared over the whole grid (zeros where a spectrum had no data),
+    /// so it reads as false.
+    #[serde(default)]
+    pub shared_range: bool,
 }
 
 impl ScoreParams {
@@ -212,6 +219,7 @@ impl ScoreParams {
             referencing_correction: technique == Technique::Nmr13c,
             weak_line_discount: technique == Technique::Nmr13c,
             shared_solvent_masks: technique == Technique::Nmr1h,
+            shared_range: true,
         }
     }
 
@@ -314,6 +322,14 @@ impl Scores {
 }
 
 /// Scores a library spectrum against an unknown prepared with the same recipe.
+///
+/// With [`ScoreParams::shared_range`], the measures see only the bins both spectra cover
+/// (IR and Raman record their coverage; the other techniques cover the whole grid): cosine,
+/// Pearson correlation and derivative correlation over those bins (masked ones left out as
+/// always), peak overlap over the peaks of each spectrum that lie in them. A reference
+/// measured 650-4000 cm-1 is then compared with a 400-4000 unknown over 650-4000, and the
+/// bins it has no data for neither lower nor raise its score. Every measure stays in 0..1
+/// and symmetric (the shared bins are).
 pub fn score(
     unknown: &Prepared,
     reference: &Prepared,
@@ -325,10 +341,22 @@ pub fn score(
         Technique::MsEi => params.min_mz,
         _ => None,
     };
-    let keep = |x: f64| cutoff.is_none_or(|lo| x >= lo);
-    let cos = match cutoff {
-        None => cosine(&unknown.vector, &reference.vector),
-        Some(_) => {
+    let whole = 0..grid.len();
+    let range = if params.shared_range {
+        shared_bins(unknown.coverage.as_ref(), reference.coverage.as_ref(), grid)
+    } else {
+        whole.clone()
+    };
+    let restricted = range != whole;
+    let keep =
+        |x: f64| cutoff.is_none_or(|lo| x >= lo) && (!restricted || peak_in(x, grid, &range));
+    let cos = match (cutoff, restricted) {
+        (None, false) => cosine(&unknown.vector, &reference.vector),
+        (None, true) => {
+            let part = |v: &[f32]| v[range.start.min(v.len())..range.end.min(v.len())].to_vec();
+            cosine(&part(&unknown.vector), &part(&reference.vector))
+        }
+        (Some(_), _) => {
             let cut = |p: &Prepared| -> Vec<f32> {
                 p.vector
                     .iter()
@@ -377,7 +405,10 @@ pub fn score(
             );
         }
         Technique::Ir | Technique::Raman | Technique::Nmr1h => {
-            let masked: Vec<bool> = (0..grid.len()).map(|i| grid.masked(grid.x(i))).collect();
+            // Bins outside the shared range are left out as masked bins are.
+            let masked: Vec<bool> = (0..grid.len())
+                .map(|i| grid.masked(grid.x(i)) || !range.contains(&i))
+                .collect();
             let active: Vec<bool> = masked.iter().map(|m| !m).collect();
             correlation =
                 Some(pearson(&unknown.vector, &reference.vector, Some(&active)).clamp(0.0, 1.0));
@@ -440,6 +471,7 @@ mod tests {
                 .collect(),
             y_unit: YUnit::Absorbance,
             warnings: vec![],
+            coverage: None,
         }
     }
 
@@ -478,6 +510,7 @@ mod tests {
             peaks,
             y_unit: YUnit::Relative,
             warnings: vec![],
+            coverage: None,
         }
     }
 
@@ -504,6 +537,91 @@ mod tests {
                 assert_ne!(a.title(), b.title());
             }
         }
+    }
+
+    /// `p` measured over grid points `lo..=hi` only: zero elsewhere, peaks outside dropped.
+    fn measured_over(p: &Prepared, lo: usize, hi: usize) -> Prepared {
+        let mut q = p.clone();
+        for (i, v) in q.vector.iter_mut().enumerate() {
+            if i < lo || i > hi {
+                *v = 0.0;
+            }
+        }
+        q.peaks
+            .retain(|peak| peak.x >= lo as f64 && peak.x <= hi as f64);
+        q.coverage =
+            crate::prepare::Coverage::measured(lo as f64, hi as f64, &grid(q.vector.len()));
+        q
+    }
+
+    /// A smooth, non-constant spectrum of 64 points from drawn band heights, so that the
+    /// derivative correlation has windows to work with.
+    fn smooth(heights: &[f32]) -> Vec<f32> {
+        (0..64)
+            .map(|i| {
+                heights
+                    .iter()
+                    .enumerate()
+                    .map(|(k, &h)| h * (-((i as f32 - 6.0 * k as f32 - 3.0) / 3.0).powi(2)).exp())
+                    .sum::<f32>()
+                    + 0.01 * i as f32
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_spectrum_and_its_shorter_measurement_match_in_full() {
+        // IR prepared from 400-4000 cm-1 and from the same points within 650-4000 cm-1 (the
+        // range of a diamond ATR accessory, common practice): over the bins both cover they
+        // are the same spectrum. Compared over the whole grid, the zeros below 650 counted
+        // as data and lowered the score.
+        let recipe = Recipe::default_for(Technique::Ir);
+        let band = |x: f64, c: f64, w: f64| (-((x - c) / w).powi(2)).exp();
+        let pts: Vec<(f64, f64)> = (0..=900)
+            .map(|i| {
+                let x = 400.0 + 4.0 * f64::from(i);
+                (
+                    x,
+                    0.02 + band(x, 520.0, 15.0)
+                        + band(x, 1715.0, 12.0)
+                        + 0.4 * band(x, 2950.0, 20.0),
+                )
+            })
+            .collect();
+        let short: Vec<(f64, f64)> = pts.iter().copied().filter(|p| p.0 >= 650.0).collect();
+        let cond = crate::prepare::Conditions {
+            y_unit: Some(YUnit::Absorbance),
+            solvent: None,
+        };
+        let path = std::path::Path::new("t");
+        let full = crate::prepare::prepare(path, &recipe, &pts, &cond).unwrap();
+        let part = crate::prepare::prepare(path, &recipe, &short, &cond).unwrap();
+        assert_eq!(full.coverage, None);
+        // Points every 4 cm-1 from 400: the first one kept is 652 cm-1, grid point 126.
+        assert_eq!(part.coverage.unwrap().bins(&recipe.grid), 126..1801);
+        let params = ScoreParams::default_for(Technique::Ir);
+        let s = score(&full, &part, &recipe.grid, &params);
+        for v in [
+            s.combined,
+            s.cosine,
+            s.correlation.unwrap(),
+            s.derivative.unwrap(),
+        ] {
+            assert!((v - 1.0).abs() < 1e-6, "{s:?}");
+        }
+        assert_eq!(
+            s.peak_overlap.matched, 2,
+            "the band at 520 cm-1 lies outside: {s:?}"
+        );
+        let whole = ScoreParams {
+            shared_range: false,
+            ..params
+        };
+        let before = score(&full, &part, &recipe.grid, &whole);
+        assert!(
+            before.correlation.unwrap() < 0.99 && before.peak_overlap.jaccard < 1.0,
+            "{before:?}"
+        );
     }
 
     proptest! {
@@ -558,6 +676,58 @@ mod tests {
             prop_assert!((cosine(&a, &b) - cosine(&scaled, &b)).abs() < 1e-5);
             prop_assert!((cosine(&a, &b) - cosine(&b, &a)).abs() < 1e-12);
             prop_assert!((pearson(&a, &b, None) - pearson(&b, &a, None)).abs() < 1e-12);
+        }
+
+        #[test]
+        fn a_spectrum_against_itself_measured_over_less_scores_1(
+            heights in prop::collection::vec(f32_in(0.05, 10.0), 10),
+            lo in 0usize..20,
+            hi in 44usize..64,
+        ) {
+            // Measured over grid points lo..=hi only (common practice: an ATR accessory or a
+            // detector cuts the range); every measure over the shared bins is 1 (the
+            // derivative to within f32 rounding of the vector).
+            let peaks: Vec<f64> = (0..10).map(|k| 6.0 * k as f64 + 3.0).collect();
+            let p = optical(&smooth(&heights), &peaks);
+            let q = measured_over(&p, lo, hi);
+            let s = score(&p, &q, &grid(64), &ScoreParams::default_for(Technique::Ir));
+            prop_assert!((s.cosine - 1.0).abs() < 1e-6 && (s.correlation.unwrap() - 1.0).abs() < 1e-6, "{s:?}");
+            prop_assert!((s.derivative.unwrap() - 1.0).abs() < 1e-5, "{s:?}");
+            prop_assert!((s.peak_overlap.jaccard - 1.0).abs() < 1e-12, "{s:?}");
+            prop_assert!((s.combined - 1.0).abs() < 1e-5, "{s:?}");
+        }
+
+        #[test]
+        fn what_a_spectrum_does_not_cover_never_counts(
+            a in prop::collection::vec(f32_in(0.0, 10.0), 64),
+            b in prop::collection::vec(f32_in(0.0, 10.0), 64),
+            filler in prop::collection::vec(f32_in(-1.0, 10.0), 64),
+            (lo_a, hi_a, lo_b, hi_b) in (0usize..25, 40usize..64, 0usize..25, 40usize..64),
+            pa in prop::collection::vec(f64_in(0.0, 63.0), 0..8),
+            pb in prop::collection::vec(f64_in(0.0, 63.0), 0..8),
+        ) {
+            // Zeros where a spectrum has no data (or anything else there) change no score,
+            // every score stays in 0..1, and swapping the two gives the same scores.
+            let g = grid(64);
+            let params = ScoreParams::default_for(Technique::Ir);
+            let u = measured_over(&optical(&a, &pa.iter().map(|x| x.round()).collect::<Vec<_>>()), lo_a, hi_a);
+            let r = measured_over(&optical(&b, &pb.iter().map(|x| x.round()).collect::<Vec<_>>()), lo_b, hi_b);
+            let mut filled = r.clone();
+            for (i, v) in filled.vector.iter_mut().enumerate() {
+                if i < lo_b || i > hi_b {
+                    *v = filler[i];
+                }
+            }
+            let s = score(&u, &r, &g, &params);
+            prop_assert_eq!(&s, &score(&u, &filled, &g, &params));
+            let t = score(&r, &u, &g, &params);
+            prop_assert!((s.combined - t.combined).abs() < 1e-12 && (s.cosine - t.cosine).abs() < 1e-12);
+            prop_assert!((s.correlation.unwrap() - t.correlation.unwrap()).abs() < 1e-12);
+            prop_assert!((s.derivative.unwrap() - t.derivative.unwrap()).abs() < 1e-12);
+            prop_assert_eq!(s.peak_overlap.jaccard, t.peak_overlap.jaccard);
+            for v in [s.combined, s.cosine, s.correlation.unwrap(), s.derivative.unwrap(), s.peak_overlap.jaccard] {
+                prop_assert!(in_unit(v), "{s:?}");
+            }
         }
 
         #[test]

@@ -143,6 +143,7 @@ fn import_json_summary_has_counts_and_rejected_rows() {
         keys(&summary),
         [
             "already_present",
+            "coverage_note",
             "imported",
             "rejected",
             "rolled_back",
@@ -289,5 +290,46 @@ fn a_bulk_import_leaves_the_text_index_merged() {
     assert!(
         segments <= 16 && segments * 4 < batches,
         "{segments} segments after {batches} commits"
+    );
+}
+
+#[test]
+fn files_covering_less_than_the_grid_make_one_note() {
+    // Three IR files measured from 650 cm-1 only (a diamond ATR accessory's range, common
+    // practice) and one over the whole grid: one note line for the import, none per file.
+    let lab = Lab::new();
+    let atr = |bands: &[(f64, f64, f64)]| -> String {
+        let full = ir_csv(bands);
+        let mut lines = full.lines();
+        let mut text = format!("{}\n", lines.next().unwrap());
+        for line in lines.filter(|l| l.split(',').next().unwrap().parse::<f64>().unwrap() >= 650.0)
+        {
+            text.push_str(line);
+            text.push('\n');
+        }
+        text
+    };
+    let mut manifest = String::from("file,technique,name\n");
+    for k in 0..3 {
+        lab.write(
+            &format!("m/atr{k}.csv"),
+            atr(&[(1000.0 + 300.0 * k as f64, 0.7, 12.0)]),
+        );
+        manifest.push_str(&format!("atr{k}.csv,ir,atr {k}\n"));
+    }
+    lab.write("m/full.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    manifest.push_str("full.csv,ir,full\n");
+    lab.write("m/manifest.csv", manifest);
+    let out = lab.run(&["import", "m/manifest.csv"]);
+    assert_eq!(out.status.code(), Some(0));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    let notes: Vec<&str> = stderr.lines().filter(|l| l.contains("less than")).collect();
+    assert_eq!(
+        notes,
+        [
+            "note: 3 of 4 files stored cover less than their grid: ir 650-4000 cm-1 (3); \
+          scores compare each with an unknown over the range both cover"
+        ],
+        "{stderr}"
     );
 }

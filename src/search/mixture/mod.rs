@@ -455,6 +455,8 @@ fn residual_of(
         peaks,
         y_unit: unknown.y_unit,
         warnings: Vec::new(),
+        // What is left of the unknown was measured where the unknown was.
+        coverage: unknown.coverage,
     })
 }
 

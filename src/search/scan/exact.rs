@@ -38,20 +38,36 @@ pub(super) fn rescore_bound(
             .collect();
         let u: Vec<(f64, f64)> = q.unknown.peaks.iter().map(|p| (p.x, p.height)).collect();
         if cache.kind == Kind::Entropy {
-            entropy_similarity(&u, &r)
+            entropy_similarity(&u, &r) + MARGIN
         } else {
-            stein_scott(&u, &r, &request.params.composite).composite
+            stein_scott(&u, &r, &request.params.composite).composite + MARGIN
         }
     } else {
         let s = cache.stride();
-        f64::from(dot_f32(
-            &q.dense,
-            &cache.f32_matrix()[row * s..(row + 1) * s],
-        ))
+        let values = &cache.f32_matrix()[row * s..(row + 1) * s];
+        let dot = f64::from(dot_f32(&q.dense, values));
+        // Over the bins query and row share (the dot product itself when they cover the
+        // same bins); see `shared`.
+        q.cover.shared(cache.cover(row), values).bound(dot + MARGIN)
     };
-    let spectral = (spectral + MARGIN).clamp(0.0, 1.0);
-    let jaccard = peak_overlap(&q.xs, &xs, widened(tol)).jaccard;
+    let spectral = spectral.clamp(0.0, 1.0);
+    let jaccard = if !cache.kind.dense() || q.cover.whole(bins_of(cache, row)) {
+        peak_overlap(&q.xs, &xs, widened(tol)).jaccard
+    } else {
+        // The peaks inside the shared bins, as `score::score` compares them.
+        let s = q.cover.shared_bins(bins_of(cache, row));
+        match q.cover.row_xs_in(&s, &xs) {
+            Some(rx) => peak_overlap(&q.cover.unknown_xs_in(&s, &q.xs), &rx, widened(tol)).jaccard,
+            None => 1.0,
+        }
+    };
     w * spectral + (1.0 - w) * jaccard + 1e-6
+}
+
+/// A dense row's covered bins.
+fn bins_of(cache: &VectorCache, row: usize) -> (usize, usize) {
+    let (a, b, _, _) = cache.cover(row);
+    (a, b)
 }
 
 /// Exact hits: `(combined score, spectrum id, scores)`, best first.

@@ -6,8 +6,9 @@ use std::sync::atomic::{AtomicU32, AtomicUsize, Ordering};
 use rayon::prelude::*;
 
 use super::CHUNK;
-use super::dense::dense_key;
+use super::dense::{Counts, dense_key};
 use super::query::{Bins, Query};
+use super::shared::Shared;
 use super::sparse::{RowSums, Sums, accumulate, sparse_key};
 use crate::cache::{Kind, TopK, VectorCache, i8_dots, quantise};
 use crate::search::Request;
@@ -115,19 +116,37 @@ impl Scan<'_> {
         let fine = cache.i8_matrix();
         let (scales, l1s, px) = (cache.scales(), cache.l1(), cache.peak_x());
         let (cscales, cl1s, rests) = cache.coarse_terms();
+        let (covers, values) = (cache.covers(), cache.f32_matrix());
+        // Unknowns covering the whole grid against a row covering it: the dot product is
+        // the measure and every peak counts, with nothing to look up per unknown.
+        let dim = cache.dim;
+        let whole = (0, dim);
+        let all_whole = self.queries.iter().all(|q| q.cover.bins == whole);
         for r in (r0..r0 + len).filter(|&r| self.on(r)) {
             let (csx, cl1x, rest) = (cscales[r], cl1s[r], rests[r]);
             let row = &fine[r * s..(r + 1) * s];
             let row_x = &px[cache.peak_range(r)];
+            let c = &covers[4 * r..4 * r + 4];
+            let cover = (c[0] as usize, c[1] as usize, c[2], c[3]);
+            let mut memo = None;
             for (j, heap) in worker.heaps.iter_mut().enumerate() {
+                let q = &self.queries[j];
                 let cdot = dots[(r - r0) * nq + j];
                 let (qv, qs) = (&self.full[j].0, self.full[j].1);
+                let (shared, counts) = if all_whole && (cover.0, cover.1) == whole {
+                    (Shared::Same, Counts::All)
+                } else {
+                    let values = &values[r * s..(r + 1) * s];
+                    let shared = q.cover.shared_memo(cover, values, &mut memo);
+                    (shared, shared_counts(q, (cover.0, cover.1), row_x))
+                };
                 let (key, read) = dense_key(
-                    &self.queries[j],
+                    q,
                     (self.coarse[j].1, csx, cl1x, rest, cdot),
                     (qs, scales[r], l1s[r], row, qv),
                     self.bins,
                     row_x,
+                    (shared, counts),
                     self.w,
                     heap.floor().max(outside[j]),
                 );
@@ -136,6 +155,19 @@ impl Scan<'_> {
                 heap.push(key, r);
             }
         }
+    }
+}
+
+/// The peaks the Jaccard bound of a row covering `bins` counts (see [`Counts`]).
+#[inline]
+fn shared_counts(q: &Query<'_>, bins: (usize, usize), row_x: &[f32]) -> Counts {
+    if q.cover.whole(bins) {
+        return Counts::All;
+    }
+    let s = q.cover.shared_bins(bins);
+    match q.cover.row_peaks_in(&s, row_x) {
+        Some(nr) => Counts::Inside(q.cover.unknown_peaks_in(&s), nr),
+        None => Counts::Unsure,
     }
 }
 

@@ -22,6 +22,7 @@ mod dense;
 mod exact;
 mod first;
 mod query;
+mod shared;
 mod sparse;
 #[cfg(test)]
 mod tests;
@@ -160,6 +161,14 @@ fn rank_keeping(
     if !kind.dense() && !cache.integer_x {
         return Ok(None);
     }
+    // Results saved before scores compared over the shared bins are replayed over the whole
+    // grid, which the rows of spectra covering less than the grid do not hold.
+    if kind.dense()
+        && !request.params.shared_range
+        && (cache.any_partial() || unknowns.iter().any(|u| u.coverage.is_some()))
+    {
+        return Ok(None);
+    }
 
     let (mask, compared, searched) = row_mask(&cache, &request.statuses, plan.allowed.as_ref());
     let active = active_bins(grid);
@@ -167,7 +176,7 @@ fn rank_keeping(
     let tol = request.params.peak_tolerance;
     let queries: Vec<Query<'_>> = unknowns
         .iter()
-        .map(|u| make_query(u, &cache, &active, &bins, tol))
+        .map(|u| make_query(u, &cache, grid, &active, &bins, tol))
         .collect();
     let w = request.params.spectral_weight.clamp(0.0, 1.0);
     let m = keep.min(cache.rows().max(1));

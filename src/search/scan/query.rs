@@ -2,7 +2,8 @@
 //! m/z table, and the bins that map peak positions to the bitmap.
 
 use super::NEAR_BINS;
-use crate::cache::{Kind, VectorCache, coarse_row, dense_row, entropy_row, weights};
+use super::shared::QueryCover;
+use crate::cache::{Kind, VectorCache, coarse_row, covered_row, entropy_row, weights};
 use crate::prepare::Prepared;
 use crate::technique::Grid;
 
@@ -25,6 +26,8 @@ pub(super) struct Query<'a> {
     // Dense: bit b set when some unknown peak lies within the (widened) tolerance of a
     // position in bin b.
     pub(super) near: Vec<u64>,
+    // Dense: the bins the unknown covers and what the measure over shared bins needs.
+    pub(super) cover: QueryCover,
 }
 
 /// Peak positions to bitmap bins: `NEAR_BINS` equal bins over the grid's range, positions
@@ -85,6 +88,7 @@ impl<'a> Query<'a> {
             mzs: vec![],
             positive: 0,
             xs: unknown.peaks.iter().map(|p| p.x).collect(),
+            cover: QueryCover::default(),
         }
     }
 }
@@ -92,6 +96,7 @@ impl<'a> Query<'a> {
 pub(super) fn make_query<'a>(
     unknown: &'a Prepared,
     cache: &VectorCache,
+    grid: &Grid,
     active: &[bool],
     bins: &Bins,
     tolerance: f64,
@@ -121,7 +126,10 @@ pub(super) fn make_query<'a>(
             .filter(|&b| q.table[b][1] == 1.0)
             .collect();
     } else {
-        let mut row = dense_row(&unknown.vector, cache.kind, active);
+        // The unknown over its own active bins, as the cache holds each row over its own.
+        let covered = unknown.covered_bins(grid);
+        let mut row = covered_row(&unknown.vector, cache.kind, active, covered.clone());
+        q.cover = QueryCover::new(&row, active, covered, grid, cache.kind, &q.xs);
         row.resize(cache.stride(), 0.0);
         q.l1 = row.iter().map(|a| a.abs()).sum();
         (q.coarse, q.rest) = coarse_row(&row, cache.coarse_stride(), cache.block());

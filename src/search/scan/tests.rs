@@ -229,7 +229,7 @@ fn the_inverted_index_gives_every_row_the_sums_of_its_own_peaks() {
     ] {
         let cache = lib.vector_cache(Technique::MsEi, kind).unwrap();
         for u in mixed_ms_unknowns(&lib, &refs, 42, 6, 7) {
-            let q = make_query(&u, &cache, &active, &bins, 0.5);
+            let q = make_query(&u, &cache, &grid, &active, &bins, 0.5);
             {
                 // Whole range at once, as a chunk of the scan sees it, and row by row.
                 let mut all = vec![RowSums::ZERO; cache.rows()];
@@ -285,7 +285,7 @@ fn the_reverse_scan_bound_is_tight_and_never_below_the_composite() {
     assert!(params.reverse);
     let mut seen_ratio = false;
     for u in mixed_ms_unknowns(&lib, &refs, 32, 8, 11) {
-        let q = make_query(&u, &cache, &active, &bins, 0.5);
+        let q = make_query(&u, &cache, &grid, &active, &bins, 0.5);
         let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
         for row in 0..cache.rows() {
             // Spectral weight 1: the key is the composite bound alone.
@@ -325,7 +325,7 @@ fn the_entropy_scan_sum_is_the_entropy_similarity_within_the_margin() {
     let (active, bins) = (active_bins(&grid), Bins::new(&grid));
     let mut high = 0;
     for u in mixed_ms_unknowns(&lib, &refs, 34, 8, 11) {
-        let q = make_query(&u, &cache, &active, &bins, 0.5);
+        let q = make_query(&u, &cache, &grid, &active, &bins, 0.5);
         let up: Vec<(f64, f64)> = u.peaks.iter().map(|p| (p.x, p.height)).collect();
         for row in 0..cache.rows() {
             let s = sums_of(&cache, &q, row, Sums::Entropy);
@@ -377,6 +377,7 @@ fn blank_prepared() -> Prepared {
         peaks: vec![],
         y_unit: crate::spectrum::YUnit::Absorbance,
         warnings: vec![],
+        coverage: None,
     }
 }
 
@@ -395,7 +396,15 @@ fn coarse_bound_of(q: &[f32], x: &[f32], block: usize) -> f64 {
         rest: rq,
         ..Query::blank(&prepared)
     };
-    coarse_bound(&query, sq, sx, l1x, rx, i8_dot(&vx, &vq))
+    coarse_bound(
+        &query,
+        sq,
+        sx,
+        l1x,
+        rx,
+        i8_dot(&vx, &vq),
+        super::shared::Shared::Same,
+    )
 }
 
 proptest::proptest! {
@@ -574,11 +583,11 @@ fn every_change_of_the_searchable_content_rebuilds_the_cache() {
     std::fs::write(&file, b"not a cache").unwrap();
     let lib = Library::open(&dir.path().join("lib")).unwrap();
     assert!(rebuilt(&lib, &file));
-    // So is one whose header names a block size the scan does not know (byte 324).
+    // So is one whose header names a block size the scan does not know (byte 404).
     drop(lib);
     let mut bytes = std::fs::read(&file).unwrap();
-    assert!(BLOCKS.contains(&usize::from(bytes[324])));
-    bytes[324] = 3;
+    assert!(BLOCKS.contains(&usize::from(bytes[404])));
+    bytes[404] = 3;
     std::fs::write(&file, &bytes).unwrap();
     let lib = Library::open(&dir.path().join("lib")).unwrap();
     assert!(rebuilt(&lib, &file));
@@ -588,4 +597,211 @@ fn every_change_of_the_searchable_content_rebuilds_the_cache() {
         &search(&lib, &u, &r).unwrap(),
         &search_exact(&lib, &u, &r).unwrap(),
     );
+}
+
+/// The points of `pts` within `lo..=hi` cm-1: a spectrum measured over a shorter range.
+fn truncated(pts: &[(f64, f64)], (lo, hi): (f64, f64)) -> Vec<(f64, f64)> {
+    pts.iter()
+        .copied()
+        .filter(|p| p.0 >= lo && p.0 <= hi)
+        .collect()
+}
+
+/// Ranges references are measured over: transmission (400-4000 cm-1), diamond ATR
+/// (650-4000 cm-1; both common practice for mid-IR benches), and odd ones.
+const REFERENCE_RANGES: [(f64, f64); 5] = [
+    (400.0, 4000.0),
+    (650.0, 4000.0),
+    (400.0, 4000.0),
+    (523.0, 3711.0),
+    (1001.0, 2999.0),
+];
+
+/// Ranges unknowns are measured over: both of the usual ones, and odd ones on either side.
+const UNKNOWN_RANGES: [(f64, f64); 6] = [
+    (400.0, 4000.0),
+    (650.0, 4000.0),
+    (700.0, 3500.0),
+    (1200.0, 4000.0),
+    (400.0, 1800.0),
+    (2500.0, 2700.0),
+];
+
+/// An in-memory IR library of `n` random spectra measured over the reference ranges in turn,
+/// every other one tagged `even`; with the full raw points.
+fn mixed_library(n: usize, seed: u64) -> (Library, Vec<Vec<(f64, f64)>>) {
+    let mut lib = Library::in_memory("t").unwrap();
+    let mut rng = Rng::new(seed);
+    let all: Vec<Vec<(f64, f64)>> = (0..n).map(|_| ir_points(&mut rng)).collect();
+    let batch: Vec<_> = all
+        .iter()
+        .enumerate()
+        .map(|(i, pts)| {
+            let tags: &[&str] = if i % 2 == 0 { &["even"] } else { &["odd"] };
+            let range = REFERENCE_RANGES[i % REFERENCE_RANGES.len()];
+            staged(
+                lib.recipes(),
+                Technique::Ir,
+                truncated(pts, range),
+                &format!("c{i}"),
+                tags,
+            )
+            .unwrap()
+        })
+        .collect();
+    for r in lib.store(&batch, "t", false).unwrap() {
+        r.unwrap();
+    }
+    (lib, all)
+}
+
+/// Unknowns over every unknown range: noisy copies of library spectra, and spectra unlike
+/// any in the library.
+fn mixed_unknowns(lib: &Library, refs: &[Vec<(f64, f64)>], seed: u64) -> Vec<Prepared> {
+    let mut rng = Rng::new(seed);
+    let mut out = Vec::new();
+    for (k, &range) in UNKNOWN_RANGES.iter().enumerate() {
+        let copy = perturb(&refs[(k * 7 + 3) % refs.len()], &mut rng, 0.1);
+        out.push(unknown(lib, Technique::Ir, truncated(&copy, range)));
+        let other = ir_points(&mut rng);
+        out.push(unknown(lib, Technique::Ir, truncated(&other, range)));
+    }
+    out
+}
+
+/// References and unknowns measured over different ranges: the cached scan (correlation
+/// and cosine caches) still returns exactly the hits of scoring every candidate over the
+/// bins both cover.
+#[test]
+fn mixed_coverages_give_the_exact_hits() {
+    let (lib, refs) = mixed_library(250, 51);
+    let unknowns = mixed_unknowns(&lib, &refs, 52);
+    assert!(unknowns.iter().filter(|u| u.coverage.is_some()).count() >= 8);
+    for (measure, filter, top) in [
+        (crate::score::Measure::Correlation, None, 10),
+        (crate::score::Measure::Correlation, Some("tag:even"), 1),
+        (crate::score::Measure::Correlation, None, 40),
+        (crate::score::Measure::Cosine, None, 10),
+        (crate::score::Measure::Cosine, Some("tag:odd"), 3),
+    ] {
+        let mut r = Request::new(Technique::Ir);
+        r.statuses.push(Status::Pending);
+        r.params.measure = measure;
+        r.filter = filter.map(str::to_string);
+        r.top = top;
+        assert!(
+            rank(&lib, &unknowns[..1], &r).unwrap().is_some(),
+            "the cache serves {measure}"
+        );
+        let kind = crate::cache::kind_for(Technique::Ir, measure).unwrap();
+        assert!(lib.vector_cache(Technique::Ir, kind).unwrap().any_partial());
+        let batch = search_many(&lib, &unknowns, &r).unwrap();
+        for (u, b) in unknowns.iter().zip(&batch) {
+            let exact = search_exact(&lib, u, &r).unwrap();
+            same(&search(&lib, u, &r).unwrap(), &exact);
+            same(b, &exact);
+        }
+    }
+    // With 10 rows kept by the first scan, the rows left out are rescored from their keys.
+    let mut r = Request::new(Technique::Ir);
+    r.statuses.push(Status::Pending);
+    let mut trace = Trace::default();
+    let plan = Plan::new(&lib, &r).unwrap();
+    let rankings = rank_keeping(&lib, &unknowns, &plan, &mut trace, 10)
+        .unwrap()
+        .unwrap();
+    assert!(trace.fallbacks > 0, "the fallback ran");
+    for (u, ranking) in unknowns.iter().zip(&rankings) {
+        let exact = search_exact(&lib, u, &r).unwrap();
+        let ids: Vec<i64> = ranking.scored.iter().map(|s| s.1).collect();
+        let want: Vec<i64> = exact.hits.iter().map(|h| h.spectrum_id).collect();
+        assert_eq!(ids, want);
+    }
+}
+
+/// Searches replayed from results saved before the shared range existed compare over the
+/// whole grid; the cache, whose rows hold each spectrum over its own bins, then steps aside.
+#[test]
+fn whole_grid_comparisons_of_partial_spectra_score_every_candidate() {
+    let (lib, refs) = mixed_library(40, 53);
+    let unknowns = mixed_unknowns(&lib, &refs, 54);
+    let mut r = Request::new(Technique::Ir);
+    r.statuses.push(Status::Pending);
+    r.params.shared_range = false;
+    assert!(rank(&lib, &unknowns[..1], &r).unwrap().is_none());
+    let list = search(&lib, &unknowns[1], &r).unwrap();
+    same(&list, &search_exact(&lib, &unknowns[1], &r).unwrap());
+}
+
+proptest::proptest! {
+    #![proptest_config(proptest::prelude::ProptestConfig::with_cases(8))]
+    /// Every bound the scan puts on a row (the loose coarse key, the tightest first-scan key
+    /// and the rescoring bound) is at least the row's exact combined score over the bins
+    /// query and row share, for references and unknowns over any of the ranges.
+    #[test]
+    fn the_bounds_never_undercut_the_exact_score_over_shared_bins(
+        seed in 0u64..1_000_000,
+        w in proptest::sample::select(vec![1.0, 0.8, 0.5]),
+        cosine in proptest::bool::ANY,
+    ) {
+        let (lib, refs) = mixed_library(30, seed);
+        let unknowns = mixed_unknowns(&lib, &refs, seed ^ 0x55);
+        let mut request = Request::new(Technique::Ir);
+        request.params.spectral_weight = w;
+        if cosine {
+            request.params.measure = crate::score::Measure::Cosine;
+        }
+        let kind = crate::cache::kind_for(Technique::Ir, request.params.measure).unwrap();
+        let cache = lib.vector_cache(Technique::Ir, kind).unwrap();
+        let grid = lib.recipe(Technique::Ir).unwrap().grid.clone();
+        let (active, bins) = (active_bins(&grid), Bins::new(&grid));
+        let tol = request.params.peak_tolerance;
+        let s = cache.stride();
+        let (cscales, cl1s, rests) = cache.coarse_terms();
+        let mut scaled = 0;
+        for u in &unknowns {
+            let q = make_query(u, &cache, &grid, &active, &bins, tol);
+            let (qv, qs, _) = quantise(&q.dense);
+            let (cq, cqs, _) = quantise(&q.coarse);
+            let cs = cache.coarse_stride();
+            for row in 0..cache.rows() {
+                let reference = lib.prepared(cache.ids()[row]).unwrap();
+                let exact = crate::score::score(u, &reference, &grid, &request.params).combined;
+                let cover = cache.cover(row);
+                let values = &cache.f32_matrix()[row * s..(row + 1) * s];
+                let shared = q.cover.shared(cover, values);
+                scaled += usize::from(matches!(shared, super::shared::Shared::Scaled { .. }));
+                let row_x = &cache.peak_x()[cache.peak_range(row)];
+                let counts = if q.cover.whole((cover.0, cover.1)) {
+                    super::dense::Counts::All
+                } else {
+                    let sb = q.cover.shared_bins((cover.0, cover.1));
+                    match q.cover.row_peaks_in(&sb, row_x) {
+                        Some(nr) => super::dense::Counts::Inside(q.cover.unknown_peaks_in(&sb), nr),
+                        None => super::dense::Counts::Unsure,
+                    }
+                };
+                let cdot = i8_dot(&cache.coarse_matrix()[row * cs..(row + 1) * cs], &cq);
+                let key = |floor: f32| {
+                    dense_key(
+                        &q,
+                        (cqs, cscales[row], cl1s[row], rests[row], cdot),
+                        (qs, cache.scales()[row], cache.l1()[row], &cache.i8_matrix()[row * s..(row + 1) * s], &qv),
+                        &bins,
+                        row_x,
+                        (shared, counts),
+                        w,
+                        floor,
+                    )
+                    .0
+                };
+                let (loose, tight) = (key(f32::INFINITY), key(f32::MIN));
+                let rescored = super::exact::rescore_bound(&cache, &q, row, w, &request);
+                proptest::prop_assert!(f64::from(loose) >= exact, "row {row}: loose {loose} < {exact}");
+                proptest::prop_assert!(f64::from(tight) >= exact, "row {row}: key {tight} < {exact}");
+                proptest::prop_assert!(rescored >= exact, "row {row}: rescored {rescored} < {exact}");
+            }
+        }
+        proptest::prop_assert!(scaled > 0, "some rows were scaled to the shared bins");
+    }
 }
