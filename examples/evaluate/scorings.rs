@@ -41,11 +41,9 @@ pub fn scorings() -> Vec<Scoring> {
                 }),
             ],
             Technique::Raman => vec![
-                ("baseline als", |_| {}),
+                ("baseline rubber-band", |_| {}),
+                ("baseline als", |r| r.baseline = Some(ALS_DEFAULT)),
                 ("baseline none", |r| r.baseline = None),
-                ("baseline rubber-band", |r| {
-                    r.baseline = Some(Baseline::RubberBand)
-                }),
             ],
             // The 1H preparation before the evaluation led to linear binning and the noise
             // floor, and each change on its own.

@@ -28,16 +28,16 @@ type Tweak = fn(&mut Recipe);
 /// The library preparations compared: whorl's default (ALS baseline removal) first.
 fn preparations() -> Vec<(&'static str, Tweak)> {
     vec![
-        ("ALS baseline", |r| r.baseline = Some(ALS_DEFAULT)),
-        ("no baseline removal", |r| r.baseline = None),
         ("rubber-band baseline", |r| {
             r.baseline = Some(Baseline::RubberBand)
         }),
+        ("ALS baseline", |r| r.baseline = Some(ALS_DEFAULT)),
+        ("no baseline removal", |r| r.baseline = None),
     ]
 }
 
-/// The measures compared: whorl's default (correlation) first.
-const MEASURES: [Measure; 3] = [Measure::Correlation, Measure::Derivative, Measure::Cosine];
+/// The measures compared: whorl's default (derivative) first.
+const MEASURES: [Measure; 3] = [Measure::Derivative, Measure::Correlation, Measure::Cosine];
 
 const BASELINE: &str =
     "baseline: cosine after a smoothed running-minimum baseline, 200-1800 cm-1 (raw points)";

@@ -22,7 +22,7 @@ pub struct InitArgs {
     #[arg(long, value_name = "METHOD", default_value = "none")]
     pub ir_baseline: String,
     /// Raman baseline removal: none, als or rubber-band
-    #[arg(long, value_name = "METHOD", default_value = "als")]
+    #[arg(long, value_name = "METHOD", default_value = "rubber-band")]
     pub raman_baseline: String,
     /// Asymmetric least squares smoothness lambda, for the techniques using als
     #[arg(long, value_name = "LAMBDA")]
@@ -39,6 +39,17 @@ impl InitArgs {
     /// The recipes these options ask for.
     pub fn recipes(&self) -> whorl::Result<Recipes> {
         let mut recipes = default_recipes();
+        let uses_als =
+            |c: &str| matches!(Baseline::parse_choice(c), Ok(Some(Baseline::Als { .. })));
+        if (self.als_lambda.is_some() || self.als_p.is_some())
+            && !uses_als(&self.ir_baseline)
+            && !uses_als(&self.raman_baseline)
+        {
+            return Err(whorl::Error::invalid(
+                "--als-lambda and --als-p apply to a technique using als, and none does",
+                "add --ir-baseline als or --raman-baseline als, or leave the ALS parameters out",
+            ));
+        }
         for (technique, choice) in [
             (Technique::Ir, &self.ir_baseline),
             (Technique::Raman, &self.raman_baseline),
@@ -205,6 +216,17 @@ mod tests {
         );
         assert!(init_args(&["--ir-mask", "4000"]).recipes().is_err());
         assert!(init_args(&["--ir-baseline", "spline"]).recipes().is_err());
-        assert!(init_args(&["--als-p", "2"]).recipes().is_err());
+        assert!(
+            init_args(&["--raman-baseline", "als", "--als-p", "2"])
+                .recipes()
+                .is_err()
+        );
+        // ALS parameters without a technique using ALS would silently do nothing.
+        assert!(init_args(&["--als-p", "0.05"]).recipes().is_err());
+        // Raman defaults to the rubber band (chosen on the tuning evidence).
+        assert_eq!(
+            init_args(&[]).recipes().unwrap()[&Technique::Raman].baseline,
+            Some(Baseline::RubberBand)
+        );
     }
 }

@@ -100,6 +100,7 @@ fn search_json_has_the_documented_keys() {
             "searched_at",
             "tool_version",
             "unknown",
+            "verdict",
             "warnings",
         ]
     );

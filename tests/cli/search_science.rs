@@ -29,17 +29,29 @@ fn names(report: &Value) -> Vec<String> {
 fn ms_exponents_reverse_and_cutoff_are_parameters_of_the_result() {
     let lab = seeded();
     let u = unknown("u09.ms-ei.csv"); // ethylbenzene with column-bleed ions 207 and 281
-    let rev = lab.json(&["search", &u, "-t", "ms-ei"]);
+    // The default ranks by the entropy similarity; the composite is asked for by name.
+    let default = lab.json(&["search", &u, "-t", "ms-ei"]);
+    assert_eq!(default["parameters"]["score"]["measure"], "entropy");
+    assert_eq!(names(&default)[0], "ethylbenzene");
+    // The composite's own options are refused with another measure, with the way out.
+    let err = lab.fails(&["search", &u, "-t", "ms-ei", "--forward"], 3);
+    assert!(
+        err.contains("--forward shapes the composite measure")
+            && err.contains("--measure composite"),
+        "{err}"
+    );
+    let c = ["search", &u, "-t", "ms-ei", "--measure", "composite"];
+    let rev = lab.json(&c);
     let composite = &rev["parameters"]["score"]["composite"];
     // Stein & Scott 1994 defaults: intensity^0.6 x (m/z)^3; reverse search by default.
     assert_eq!(composite["intensity_exponent"], 0.6);
     assert_eq!(composite["mass_exponent"], 3.0);
     assert_eq!(composite["reverse"], true);
     assert_eq!(
-        lab.json(&["search", &u, "-t", "ms-ei", "--reverse"])["parameters"],
+        lab.json(&[&c[..], &["--reverse"]].concat())["parameters"],
         rev["parameters"]
     );
-    let fwd = lab.json(&["search", &u, "-t", "ms-ei", "--forward"]);
+    let fwd = lab.json(&[&c[..], &["--forward"]].concat());
     assert_eq!(fwd["parameters"]["score"]["composite"]["reverse"], false);
     assert_eq!(names(&fwd)[0], "ethylbenzene");
     assert_eq!(names(&rev)[0], "ethylbenzene");
@@ -55,6 +67,8 @@ fn ms_exponents_reverse_and_cutoff_are_parameters_of_the_result() {
         &u,
         "-t",
         "ms-ei",
+        "--measure",
+        "composite",
         "--mz-exponent",
         "1",
         "--intensity-exponent",
@@ -703,9 +717,17 @@ fn a_co_eluting_contaminant_does_not_take_the_first_place() {
     lab.write("mix.csv", csv);
     let default = lab.json(&["search", "mix.csv", "-t", "ms-ei"]);
     assert_eq!(names(&default)[0], "1-propanol", "{default}");
-    // Forward search, the default before, puts the contaminant first: its heavy ions (91,
-    // 92) outweigh 1-propanol's light ones under the (m/z)^3 weight.
-    let forward = lab.json(&["search", "mix.csv", "-t", "ms-ei", "--forward"]);
+    // The composite in forward search puts the contaminant first: its heavy ions (91, 92)
+    // outweigh 1-propanol's light ones under the (m/z)^3 weight.
+    let forward = lab.json(&[
+        "search",
+        "mix.csv",
+        "-t",
+        "ms-ei",
+        "--measure",
+        "composite",
+        "--forward",
+    ]);
     assert_eq!(names(&forward)[0], "toluene", "{forward}");
 }
 
@@ -719,6 +741,8 @@ fn searches_saved_with_the_earlier_defaults_replay_with_them() {
         "ms.csv",
         "-t",
         "ms-ei",
+        "--measure",
+        "composite",
         "--forward",
         "--save",
         "ms.json",
