@@ -6,7 +6,7 @@ use std::path::Path;
 
 use whorl::prepare::{Conditions, Prepared, prepare};
 use whorl::score::{Measure, ScoreParams};
-use whorl::search::{Hit, HitList, search_many, verdict};
+use whorl::search::{Hit, HitList, search_many};
 use whorl::technique::Technique;
 
 use crate::baseline::{ei_cosine, ei_vector, ranked};
@@ -163,14 +163,10 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             let part = parts[&entries[i].label];
             row.add(part, r);
             if default {
-                tally_verdicts(
-                    &mut verdicts[part as usize],
-                    list,
-                    hits,
-                    r,
-                    &label_of,
-                    &entries[i].label,
-                );
+                let truth = entries[i].label.as_str();
+                verdicts[part as usize].add_hits(hits, &list.confidence, r == Some(1), |h| {
+                    label_of[&h.spectrum_id] == truth
+                });
             }
         }
         if default {
@@ -247,14 +243,10 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             row.add(part, r);
             if default {
                 let hits = list.hits.clone();
-                tally_verdicts(
-                    &mut verdicts[part as usize],
-                    list,
-                    hits,
-                    r,
-                    &label_of,
-                    &entries[i].label,
-                );
+                let truth = entries[i].label.as_str();
+                verdicts[part as usize].add_hits(hits, &list.confidence, r == Some(1), |h| {
+                    label_of[&h.spectrum_id] == truth
+                });
             }
         }
         if default {
@@ -292,22 +284,3 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
 /// Hits asked for per query: enough that withdrawing every spectrum of the true InChIKey
 /// still leaves the list's first hits.
 const VERDICT_DEPTH: usize = 40;
-
-/// Counts the verdict on one query's list (`hits`: the list as the protocol sees it) and on
-/// the same list with every spectrum of the true InChIKey withdrawn.
-fn tally_verdicts(
-    v: &mut Verdicts,
-    list: &HitList,
-    hits: Vec<Hit>,
-    rank: Option<usize>,
-    label_of: &BTreeMap<i64, &str>,
-    truth: &str,
-) {
-    let on_list = verdict(&hits, &list.confidence);
-    let absent: Vec<Hit> = hits
-        .into_iter()
-        .filter(|h| label_of[&h.spectrum_id] != truth)
-        .collect();
-    let without = verdict(&absent, &list.confidence);
-    v.add(rank == Some(1), on_list.word(), without.word());
-}

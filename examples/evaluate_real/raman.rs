@@ -6,7 +6,7 @@ use std::path::Path;
 
 use whorl::prepare::{ALS_DEFAULT, Baseline, Conditions, Prepared, Recipe, prepare};
 use whorl::score::{Measure, ScoreParams};
-use whorl::search::{Hit, search_many, verdict};
+use whorl::search::{Hit, search_many};
 use whorl::spectrum::YUnit;
 use whorl::technique::Technique;
 
@@ -123,13 +123,9 @@ fn table(
                 let part = parts[&entries[k].label];
                 row.add(part, r);
                 if is_default {
-                    let on_list = verdict(&hits, &list.confidence);
-                    let absent: Vec<Hit> = hits
-                        .into_iter()
-                        .filter(|h| entry(h).label != entries[k].label)
-                        .collect();
-                    let without = verdict(&absent, &list.confidence);
-                    tallies[part as usize].add(r == Some(1), on_list.word(), without.word());
+                    tallies[part as usize].add_hits(hits, &list.confidence, r == Some(1), |h| {
+                        entry(h).label == entries[k].label
+                    });
                 }
             }
             if is_default {

@@ -69,7 +69,23 @@ pub struct Verdicts {
 impl Verdicts {
     /// Counts one query: whether its first hit was right, the verdict on its list, and the
     /// verdict with the true identity withdrawn.
-    pub fn add(&mut self, right_first: bool, list: &str, absent: &'static str) {
+    /// Counts one query from the hits the protocol sees (best first), whether its first hit
+    /// was right, and which hits are of the true identity.
+    pub fn add_hits(
+        &mut self,
+        hits: Vec<whorl::search::Hit>,
+        confidence: &whorl::search::Confidence,
+        right_first: bool,
+        is_truth: impl Fn(&whorl::search::Hit) -> bool,
+    ) {
+        use whorl::search::verdict;
+        let on_list = verdict(&hits, confidence);
+        let absent: Vec<_> = hits.into_iter().filter(|h| !is_truth(h)).collect();
+        let without = verdict(&absent, confidence);
+        self.add(right_first, on_list.word(), without.word());
+    }
+
+    fn add(&mut self, right_first: bool, list: &str, absent: &'static str) {
         if right_first {
             self.correct += 1;
             self.correct_no_match += usize::from(list == "no-acceptable-match");

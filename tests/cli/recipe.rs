@@ -97,9 +97,16 @@ fn bad_recipe_changes_are_refused_and_change_nothing() {
         3,
     );
     assert!(text.contains("do not apply to nmr-1h"), "{text}");
-    // The recipe it already has.
+    // The recipe it already has (Raman defaults to the rubber band).
     let text = lab.refuses(
-        &["recipe", "raman", "--baseline", "als", "--reason", "x"],
+        &[
+            "recipe",
+            "raman",
+            "--baseline",
+            "rubber-band",
+            "--reason",
+            "x",
+        ],
         3,
     );
     assert!(text.contains("already is"), "{text}");
