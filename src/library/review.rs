@@ -4,6 +4,7 @@
 use rusqlite::params;
 
 use super::events::append_event;
+use super::identity::same_person;
 use super::records::{Review, SpectrumRecord};
 use super::state::{put_setting, reweigh};
 use super::store::{insert_review, set_status};
@@ -38,10 +39,6 @@ impl Decision {
             Decision::Reject => "reviewed and not approved as a reference spectrum",
         }
     }
-}
-
-fn same_person(a: &str, b: &str) -> bool {
-    a.trim().eq_ignore_ascii_case(b.trim())
 }
 
 impl Library {
