@@ -233,7 +233,7 @@ pub fn print_markdown(
     );
     println!();
     println!(
-        "All three are rounded up to two decimals and copied into `THRESHOLDS` in `src/search/confidence.rs`; a unit test checks that they agree. Rows are kept per technique, measure and EI-MS search direction; the 13C shift match's variants without the referencing correction or the weak-line discount have none of their own and use the default shift match's. To show their effect, the table also gives the fraction of correct first hits scoring below the weak score (warned about needlessly), and the number of wrong first hits with the median margin by which they led."
+        "All three are rounded up to two decimals and copied into `THRESHOLDS` in `src/search/confidence.rs`; a unit test checks that they agree. The two default scorings measured on real spectra (Raman, derivative; EI-MS, entropy) take their weak score from the real tuning parts instead (`docs/evaluation-real.md`, section *Verdict thresholds from the real tuning parts*), since generated spectra cannot show how far a real second instrument moves a true match. Rows are kept per technique, measure and EI-MS search direction; the 13C shift match's variants without the referencing correction or the weak-line discount have none of their own and use the default shift match's. To show their effect, the table also gives the fraction of correct first hits scoring below the weak score (warned about needlessly), and the number of wrong first hits with the median margin by which they led."
     );
     println!();
     println!(

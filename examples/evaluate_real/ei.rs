@@ -164,9 +164,13 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             row.add(part, r);
             if default {
                 let truth = entries[i].label.as_str();
-                verdicts[part as usize].add_hits(hits, &list.confidence, r == Some(1), |h| {
-                    label_of[&h.spectrum_id] == truth
-                });
+                verdicts[part as usize].add_hits(
+                    hits,
+                    &list.confidence,
+                    &format!("ei-loo/{part:?}"),
+                    r == Some(1),
+                    |h| label_of[&h.spectrum_id] == truth,
+                );
             }
         }
         if default {
@@ -244,9 +248,13 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             if default {
                 let hits = list.hits.clone();
                 let truth = entries[i].label.as_str();
-                verdicts[part as usize].add_hits(hits, &list.confidence, r == Some(1), |h| {
-                    label_of[&h.spectrum_id] == truth
-                });
+                verdicts[part as usize].add_hits(
+                    hits,
+                    &list.confidence,
+                    &format!("ei-degraded/{part:?}"),
+                    r == Some(1),
+                    |h| label_of[&h.spectrum_id] == truth,
+                );
             }
         }
         if default {

@@ -79,6 +79,8 @@ struct Queries<'a> {
     points: Vec<&'a [(f64, f64)]>,
     /// Per preparation, each query prepared with its recipe.
     prepared: Vec<Vec<Prepared>>,
+    /// The protocol's short name.
+    tag: &'static str,
 }
 
 /// Every variant and the baseline over one set of queries (query k is entry k), each searched
@@ -123,9 +125,13 @@ fn table(
                 let part = parts[&entries[k].label];
                 row.add(part, r);
                 if is_default {
-                    tallies[part as usize].add_hits(hits, &list.confidence, r == Some(1), |h| {
-                        entry(h).label == entries[k].label
-                    });
+                    tallies[part as usize].add_hits(
+                        hits,
+                        &list.confidence,
+                        &format!("{}/{part:?}", queries.tag),
+                        r == Some(1),
+                        |h| entry(h).label == entries[k].label,
+                    );
                 }
             }
             if is_default {
@@ -171,6 +177,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         entries.iter().map(|e| e.label.as_str()).collect();
 
     let measured = Queries {
+        tag: "raman-across",
         points: entries.iter().map(|e| e.points.as_slice()).collect(),
         prepared: libs
             .iter()
@@ -207,6 +214,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         solvent: None,
     };
     let queries = Queries {
+        tag: "raman-degraded",
         points: degraded.iter().map(Vec::as_slice).collect(),
         prepared: libs
             .iter()

@@ -27,7 +27,7 @@ pub struct SearchArgs {
     #[arg(long, short)]
     pub technique: Technique,
     /// Number of hits to list [default: from whorl.toml, else 10]
-    #[arg(long)]
+    #[arg(long, short = 'n')]
     pub top: Option<usize>,
     /// Metadata query restricting the candidates, e.g. 'tag:solvent AND formula:C7H8'
     #[arg(long = "where", value_name = "QUERY")]
@@ -66,7 +66,8 @@ pub struct SearchArgs {
     /// Also fit the unknown as a non-negative mixture of up to N library spectra (2 to 5),
     /// each further one found by searching what the ones before leave unexplained, and list
     /// them after the hit list (with --csv as a second table after a blank line; with --json
-    /// under "mixture"). Not for nmr-13c
+    /// under "mixture"). When a second spectrum explains clearly more than the best hit
+    /// alone, the verdict is "possibly a mixture". Not for nmr-13c
     #[arg(long, value_name = "N", value_parser = clap::value_parser!(u8).range(2..=5))]
     pub components: Option<u8>,
 }
@@ -105,11 +106,16 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     if unknowns.len() != 1 {
         return run_many(&args, &lib, &unknowns, &request, ctx);
     }
-    let (report, unknown) = search_file(&lib, &unknowns[0], &request)?;
+    let (mut report, unknown) = search_file(&lib, &unknowns[0], &request)?;
     let mixture = match args.components {
         Some(n) => Some(mixture::fit(&lib, &report, &unknown, &request, n.into())?),
         None => None,
     };
+    // A fit that needed a second component ends the hit list in "possibly a mixture",
+    // whatever the single best hit would have come to.
+    if let Some(verdict) = mixture.as_ref().and_then(whorl::search::Mixture::verdict) {
+        report.verdict = Some(verdict);
+    }
     if let Some(path) = &args.save {
         let text = serde_json::to_string_pretty(&report)? + "\n";
         std::fs::write(path, text)

@@ -73,8 +73,16 @@ const fn row(
 ///   least the weak score), so a best hit above it outscores the best wrong compound in all
 ///   but one unknown in a hundred.
 ///
-/// Both are rounded up to two decimals. The unit test `thresholds_match_the_evaluation`
-/// checks this table against `docs/evaluation.md`.
+/// Both are rounded up to two decimals.
+///
+/// The weak score of the two default scorings measured on real spectra (Raman, derivative;
+/// EI-MS, entropy) comes instead from the real tuning parts (`examples/evaluate_real/`; its
+/// output is `docs/evaluation-real.md`): a generated library cannot show how far a real
+/// second instrument moves a true match, nor how close real isomers come. There it is the
+/// threshold that best meets both verdict targets: at least 90 % of searches with the true
+/// compound withdrawn below it, at most 5 % of right first hits below it.
+///
+/// The unit test `thresholds_match_the_evaluation` checks this table against both files.
 pub const THRESHOLDS: [Threshold; 14] = [
     row(Technique::Ir, Measure::Correlation, false, 0.82, 0.03, 0.93),
     row(Technique::Ir, Measure::Cosine, false, 0.83, 0.03, 0.90),
@@ -83,7 +91,7 @@ pub const THRESHOLDS: [Threshold; 14] = [
         Technique::Raman,
         Measure::Derivative,
         false,
-        0.81,
+        0.58,
         0.04,
         0.91,
     ),
@@ -96,7 +104,7 @@ pub const THRESHOLDS: [Threshold; 14] = [
         0.68,
     ),
     row(Technique::Raman, Measure::Cosine, false, 0.53, 0.04, 0.58),
-    row(Technique::MsEi, Measure::Entropy, false, 0.83, 0.01, 0.88),
+    row(Technique::MsEi, Measure::Entropy, false, 0.78, 0.01, 0.88),
     row(Technique::MsEi, Measure::Composite, false, 0.85, 0.02, 0.96),
     row(Technique::MsEi, Measure::Composite, true, 0.98, 0.02, 1.00),
     row(Technique::MsEi, Measure::Cosine, false, 0.94, 0.03, 0.96),
@@ -348,8 +356,31 @@ mod tests {
     fn thresholds_match_the_evaluation() {
         // docs/evaluation.md is the output of examples/evaluate/; its threshold table has
         // the technique, the measure, then the weak score and close margin in bold.
-        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/evaluation.md");
-        let text = std::fs::read_to_string(path).expect("docs/evaluation.md");
+        let docs = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("docs");
+        let text = std::fs::read_to_string(docs.join("evaluation.md")).expect("docs/evaluation.md");
+        // docs/evaluation-real.md is the output of examples/evaluate_real/; its thresholds
+        // table has the technique, the measure and the weak score in bold, which overrides
+        // the generated spectra's weak score for that row.
+        let real = std::fs::read_to_string(docs.join("evaluation-real.md"))
+            .expect("docs/evaluation-real.md");
+        let real_weak: Vec<(Technique, Measure, f64)> = real
+            .split("## Verdict thresholds from the real tuning parts")
+            .nth(1)
+            .expect("a real thresholds section")
+            .lines()
+            .filter(|l| l.starts_with("| ") && l.matches("**").count() == 2)
+            .filter(|l| !l.starts_with("| technique"))
+            .map(|line| {
+                let cells: Vec<&str> = line.trim_matches('|').split('|').map(str::trim).collect();
+                let weak = cells
+                    .iter()
+                    .find_map(|c| c.strip_prefix("**")?.strip_suffix("**")?.parse().ok())
+                    .unwrap_or_else(|| panic!("a bold weak score in {line}"));
+                (cells[0].parse().unwrap(), cells[1].parse().unwrap(), weak)
+            })
+            .collect();
+        assert_eq!(real_weak.len(), 2, "EI-MS and Raman rows from real spectra");
+        let mut real_rows = 0;
         let mut rows = 0;
         let section = text
             .split("## Confidence thresholds")
@@ -375,13 +406,28 @@ mod tests {
                 .iter()
                 .find(|t| t.technique == technique && t.measure == measure && t.reverse == reverse)
                 .unwrap_or_else(|| panic!("no THRESHOLDS row for {line}"));
+            let weak = match real_weak
+                .iter()
+                .find(|(tq, m, _)| *tq == technique && *m == measure && !reverse)
+            {
+                Some(&(_, _, w)) => {
+                    real_rows += 1;
+                    w
+                }
+                None => bold[0],
+            };
             assert_eq!(
                 (t.weak_score, t.close_margin, t.strong_score),
-                (bold[0], bold[1], bold[2]),
+                (weak, bold[1], bold[2]),
                 "{line}"
             );
             rows += 1;
         }
+        assert_eq!(
+            real_rows,
+            real_weak.len(),
+            "each real row is a THRESHOLDS row"
+        );
         assert_eq!(
             rows,
             THRESHOLDS.len(),

@@ -115,6 +115,11 @@ fn a_three_to_one_mixture_gives_both_references_and_their_shares() {
         "{explained} {by_best}"
     );
     assert_eq!(report["mixture"]["unexplained_ions"], serde_json::json!([]));
+    // The hit list ends in "possibly a mixture", naming the larger share first.
+    assert_eq!(
+        report["verdict"],
+        serde_json::json!({"verdict": "possible-mixture", "components": ["aromatic a", "ketone b"]})
+    );
 
     // For people: the section after the hit list, with the shares and the verdict.
     let text = lab.ok(&["search", "mix.csv", "-t", "ms-ei", "--components", "3"]);
@@ -160,8 +165,12 @@ fn the_hit_list_is_the_same_with_or_without_the_fit() {
     let mut with = lab.json(&["search", "mix.csv", "-t", "ms-ei", "--components", "2"]);
     let mut without = lab.json(&["search", "mix.csv", "-t", "ms-ei"]);
     assert!(with.as_object_mut().unwrap().remove("mixture").is_some());
+    // Only the verdict follows the fit: a 1:1 mixture is possibly a mixture.
+    assert_eq!(with["verdict"]["verdict"], "possible-mixture");
+    assert_ne!(without["verdict"]["verdict"], "possible-mixture");
     for r in [&mut with, &mut without] {
         r.as_object_mut().unwrap().remove("searched_at");
+        r.as_object_mut().unwrap().remove("verdict");
     }
     assert_eq!(with, without);
 }
@@ -174,6 +183,7 @@ fn a_pure_reference_gives_one_component() {
     let c = components(&report);
     assert_eq!(c.len(), 1, "{c:#?}");
     assert_eq!(c[0]["name"], "benzoyl c");
+    assert_ne!(report["verdict"]["verdict"], "possible-mixture");
     let text = lab.ok(&["search", "pure.csv", "-t", "ms-ei", "--components", "3"]);
     assert!(!text.contains("possibly a mixture"), "{text}");
 }

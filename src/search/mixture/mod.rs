@@ -16,6 +16,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use super::confidence::Verdict;
 use super::hit::Hit;
 use super::plan::Plan;
 use super::rank::HitList;
@@ -121,6 +122,24 @@ impl Mixture {
     /// what the best hit left, and [`MIN_GAIN`] of the whole).
     pub fn has_several(&self) -> bool {
         self.components.len() > 1
+    }
+
+    /// The verdict a hit list takes when the fit needed more than one component
+    /// ([`Mixture::has_several`]): possibly a mixture, naming each compound once, largest
+    /// share first. `None` for a fit that kept to the best hit.
+    pub fn verdict(&self) -> Option<Verdict> {
+        if !self.has_several() {
+            return None;
+        }
+        let mut by_share: Vec<&Component> = self.components.iter().collect();
+        by_share.sort_by(|a, b| b.share.total_cmp(&a.share).then(a.step.cmp(&b.step)));
+        let mut seen = std::collections::HashSet::new();
+        let components = by_share
+            .into_iter()
+            .filter(|c| seen.insert(c.compound_id))
+            .map(|c| c.name.clone())
+            .collect();
+        Some(Verdict::PossibleMixture { components })
     }
 
     /// EI: whether some abundant ion is left unexplained ([`Mixture::unexplained_ions`]), a
