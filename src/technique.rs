@@ -211,8 +211,15 @@ impl FromStr for Technique {
             _ => None,
         };
         found.ok_or_else(|| {
+            // clap shows only the message of a value parser's error, so the message itself
+            // names the techniques.
+            let which = if wanted.contains("nmr") {
+                " (NMR is nmr-1h or nmr-13c)"
+            } else {
+                ""
+            };
             Error::invalid(
-                format!("unknown technique '{s}'"),
+                format!("unknown technique '{s}'{which}: use ir, raman, ms-ei, nmr-1h or nmr-13c"),
                 "use one of: ir, raman, ms-ei, nmr-1h, nmr-13c",
             )
         })

@@ -211,14 +211,13 @@ pub fn print_report_styled(
     let mut t = output::Table::new(&[
         ">rank",
         ">score",
+        "compound",
+        "formula",
         &format!(">{}", p.measure.label()),
         &format!(">{}", second.label()),
         ">peaks",
-        ">fwd",
-        ">rev",
+        ">covered",
         ">jacc",
-        "compound",
-        "formula",
         ">id",
         "status",
     ]);
@@ -231,14 +230,13 @@ pub fn print_report_styled(
         t.row(vec![
             h.rank.to_string(),
             format!("{:.digits$}", h.score),
+            h.name.clone(),
+            h.formula.clone().unwrap_or_default(),
             format!("{:.3}", c.spectral),
             other,
             format!("{}/{}", o.matched, o.reference_peaks),
             format!("{:.2}", o.forward),
-            format!("{:.2}", o.reverse),
             format!("{:.2}", o.jaccard),
-            h.name.clone(),
-            h.formula.clone().unwrap_or_default(),
             h.spectrum_id.to_string(),
             h.status.to_string(),
         ]);
@@ -276,7 +274,7 @@ pub fn print_report_styled(
     if let Some(m) = r.margin {
         writeln!(
             out,
-            "margin    {m:.digits$} between hits 1 and 2   (peaks = matched / reference peaks; fwd = matched / unknown peaks, rev = matched / reference peaks, jacc = Jaccard)"
+            "margin    {m:.digits$} between hits 1 and 2   (peaks = reference peaks matched / all of them; covered = share of the unknown's peaks matched; jacc = Jaccard)"
         )?;
     }
     for w in &r.warnings {

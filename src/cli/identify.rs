@@ -42,9 +42,9 @@ pub struct IdentifyArgs {
     /// x unit of the IR file when given as wavelength: um or nm
     #[arg(long, value_name = "UNIT")]
     pub ir_x_unit: Option<XUnit>,
-    /// Number of compounds to list
-    #[arg(long, default_value_t = 10)]
-    pub top: usize,
+    /// Number of compounds to list [default: `[search] top` of whorl.toml, else 10]
+    #[arg(long, short = 'n')]
+    pub top: Option<usize>,
     #[command(flatten)]
     pub constraints: ConstraintArgs,
     /// Print the full report as JSON
@@ -95,7 +95,7 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
     let options = IdentifyOptions {
         constraints: args.constraints.constraints()?,
-        top: args.top.max(1),
+        top: args.top.unwrap_or(config.search.top).max(1),
         policy: config.identity,
         config: &config,
     };

@@ -17,6 +17,8 @@ pub fn run(_args: ManArgs) -> anyhow::Result<ExitCode> {
     let mut out = std::io::stdout().lock();
     out.write_all(&page)?;
     out.write_all(EXTRA.as_bytes())?;
+    out.write_all(exit_status().as_bytes())?;
+    out.write_all(CAUTION.as_bytes())?;
     Ok(ExitCode::SUCCESS)
 }
 
@@ -38,22 +40,37 @@ The library: spectra, metadata, recipes and the audit trail.
 .TP
 \fILIBRARY\fR/whorl.toml
 Optional settings: default search options per technique, warning thresholds, identity policy, report options. See \fBwhorl config\fR.
-.SH EXIT STATUS
-.TP
-0
-success
-.TP
-1
-unexpected failure (I/O, database)
-.TP
-2
-the command line could not be parsed
-.TP
-3
-an input was rejected (bad file, manifest row, value, query, settings file, unknown id)
-.TP
-4
-the library is missing, already exists (init), or was made by an incompatible version
-.SH CAUTION
+"#;
+
+/// The caution every page of whorl carries.
+const CAUTION: &str = r#".SH CAUTION
 A library match is evidence for an identity, not proof of it: confirm by the laboratory's validated procedure, and have a qualified analyst review it.
 "#;
+
+/// The EXIT STATUS section, from [`super::EXIT_CODES`].
+fn exit_status() -> String {
+    let mut text = String::from(".SH EXIT STATUS\n");
+    for (code, meaning) in super::EXIT_CODES {
+        // The README's code marks (backquotes) are dropped; hyphens become roff's minus.
+        text.push_str(&format!(
+            ".TP\n{code}\n{}\n",
+            meaning.replace('`', "").replace('-', "\\-")
+        ));
+    }
+    text
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn the_page_lists_every_exit_code() {
+        let text = super::exit_status();
+        for (code, _) in super::super::EXIT_CODES {
+            assert!(text.contains(&format!(".TP\n{code}\n")), "{code}: {text}");
+        }
+        assert!(
+            text.contains("busy past the timeout (WHORL_BUSY_TIMEOUT_MS)"),
+            "{text}"
+        );
+    }
+}

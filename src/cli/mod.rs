@@ -49,6 +49,30 @@ pub const EXIT_MISMATCH: u8 = 5;
 /// Exit code: another process kept the library busy past the timeout.
 pub const EXIT_BUSY: u8 = 6;
 
+/// Every exit code with its meaning: the one definition the manual page's EXIT STATUS is
+/// generated from and the README's table is checked against (`exit_codes_match_the_readme`).
+pub const EXIT_CODES: [(u8, &str); 7] = [
+    (0, "success"),
+    (EXIT_FAILURE, "unexpected failure (I/O, database)"),
+    (2, "the command line could not be parsed"),
+    (
+        EXIT_INPUT,
+        "an input was rejected (bad file, bad manifest row, bad value, bad query, bad `whorl.toml`, unknown id)",
+    ),
+    (
+        EXIT_LIBRARY,
+        "the library is missing, already exists (`init`), or was made by an incompatible version",
+    ),
+    (
+        EXIT_MISMATCH,
+        "`check` found an inconsistency, or `replay` found different hits",
+    ),
+    (
+        EXIT_BUSY,
+        "another process kept the library busy past the timeout (`WHORL_BUSY_TIMEOUT_MS`)",
+    ),
+];
+
 /// whorl: a lab's own library of verified reference spectra, and search against it.
 #[derive(Debug, Parser)]
 #[command(name = "whorl", version, about, long_about = None)]
@@ -116,7 +140,8 @@ pub enum Command {
     Fragments(fragments::FragmentsArgs),
     /// Plot spectra (library ids and/or files) on one axis as SVG.
     Plot(plot::PlotArgs),
-    /// Show the library's settings (whorl.toml) with the defaults filled in.
+    /// Show the library's settings (whorl.toml), with the built-in default of each setting the
+    /// file leaves out and the derived thresholds that apply where it sets none.
     Config(config::ConfigArgs),
     /// Print a shell completion script: bash, zsh, fish, elvish or powershell.
     Completions(completions::CompletionsArgs),
@@ -267,6 +292,33 @@ mod tests {
     use super::*;
 
     #[test]
+    fn exit_codes_match_the_readme() {
+        let readme = include_str!("../../README.md");
+        let table = readme
+            .split("### Exit codes")
+            .nth(1)
+            .expect("an exit-codes section");
+        let rows: Vec<(u8, String)> = table
+            .lines()
+            .skip_while(|l| !l.starts_with("|---"))
+            .skip(1)
+            .take_while(|l| l.starts_with('|'))
+            .map(|l| {
+                let cells: Vec<&str> = l.trim_matches('|').split('|').map(str::trim).collect();
+                (cells[0].parse().expect("a code"), cells[1].to_string())
+            })
+            .collect();
+        let want: Vec<(u8, String)> = EXIT_CODES
+            .iter()
+            .map(|&(c, m)| (c, m.to_string()))
+            .collect();
+        assert_eq!(rows, want);
+        // The codes are distinct and in order, 0 to 6.
+        let codes: Vec<u8> = EXIT_CODES.iter().map(|&(c, _)| c).collect();
+        assert_eq!(codes, (0..=6).collect::<Vec<u8>>());
+    }
+
+    #[test]
     fn parses_a_search() {
         let cli = Cli::try_parse_from([
             "whorl",
@@ -294,6 +346,14 @@ mod tests {
         let err =
             Cli::try_parse_from(["whorl", "search", "u.csv", "--technique", "uv"]).unwrap_err();
         assert!(err.to_string().contains("unknown technique"), "{err}");
+        // The message clap shows names the valid techniques, and what "nmr" may mean.
+        assert!(err.to_string().contains("nmr-13c"), "{err}");
+        let err =
+            Cli::try_parse_from(["whorl", "search", "u.csv", "--technique", "nmr"]).unwrap_err();
+        assert!(
+            err.to_string().contains("NMR is nmr-1h or nmr-13c"),
+            "{err}"
+        );
     }
 
     #[test]

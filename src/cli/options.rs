@@ -8,8 +8,9 @@ use whorl::technique::Technique;
 /// How hits are scored; every option defaults to the technique's documented default.
 #[derive(Debug, Args)]
 pub struct ScoringArgs {
-    /// Ranking measure: correlation or derivative (IR, Raman), correlation (1H NMR),
-    /// entropy or composite (EI-MS), shift-match (13C NMR), or cosine (every technique)
+    /// Ranking measure: correlation, derivative or cosine (IR, Raman); cosine or correlation
+    /// (1H NMR); entropy, composite or cosine (EI-MS); shift-match or cosine (13C NMR)
+    /// [default: IR correlation, Raman derivative, EI-MS entropy, 1H cosine, 13C shift-match]
     #[arg(long, value_name = "M")]
     pub measure: Option<Measure>,
     /// Peak matching tolerance in the technique's x unit [default: IR/Raman 6 cm-1, MS 0.5,
@@ -154,9 +155,7 @@ pub struct ConstraintArgs {
     /// n-alkane retention times for --rt, e.g. 9:8.20,10:10.60 (carbon number:time)
     #[arg(long, value_name = "LIST", requires = "rt")]
     pub alkanes: Option<String>,
-    /// Half-width of the retention-index window. The default, 20 units, allows for the
-    /// spread of published indices of one compound on one phase type between laboratories
-    /// and temperature programmes (from memory: typically 10-20 units)
+    /// Half-width of the retention-index window, in index units
     #[arg(long, value_name = "W", default_value_t = 20.0)]
     pub ri_window: f64,
     /// Column phase of the retention index; hits' `ri_phase` must match

@@ -25,8 +25,8 @@ pub struct PlotArgs {
     #[arg(long, short)]
     pub technique: Option<Technique>,
     /// Write the SVG here ('-' for stdout)
-    #[arg(long, value_name = "FILE")]
-    pub svg: PathBuf,
+    #[arg(long, short, value_name = "FILE", visible_alias = "svg")]
+    pub output: PathBuf,
     /// NMR solvent of the files [default: from whorl.toml]
     #[arg(long)]
     pub solvent: Option<Solvent>,
@@ -146,18 +146,18 @@ pub fn run(args: PlotArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         })
         .collect();
     let svg = spectra(&recipe.grid, &series)?;
-    let to_stdout = args.svg.as_os_str() == "-";
+    let to_stdout = args.output.as_os_str() == "-";
     if to_stdout {
         std::io::stdout().lock().write_all(svg.as_bytes())?;
     } else {
-        std::fs::write(&args.svg, &svg)
-            .with_context(|| format!("writing the plot to {}", args.svg.display()))?;
+        std::fs::write(&args.output, &svg)
+            .with_context(|| format!("writing the plot to {}", args.output.display()))?;
     }
     if args.json && !to_stdout {
         output::json(
             &mut std::io::stdout().lock(),
             &serde_json::json!({
-                "svg": args.svg.display().to_string(),
+                "svg": args.output.display().to_string(),
                 "technique": technique,
                 "spectra": plotted,
             }),
@@ -166,7 +166,7 @@ pub fn run(args: PlotArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         eprintln!(
             "plot of {} {technique} spectra written to {}",
             plotted.len(),
-            args.svg.display()
+            args.output.display()
         );
     }
     Ok(ExitCode::SUCCESS)

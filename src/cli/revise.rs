@@ -45,9 +45,9 @@ pub struct ReviseArgs {
     /// Set an extra field, KEY=VALUE (KEY= removes it; repeatable)
     #[arg(long = "set", value_name = "KEY=VALUE")]
     pub set: Vec<String>,
-    /// Why the revision is made
+    /// Why the revision is made (recorded in the audit trail)
     #[arg(long)]
-    pub reason: Option<String>,
+    pub reason: String,
     /// Who revises [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
@@ -86,7 +86,7 @@ pub fn run(args: ReviseArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         args.id,
         &patch,
         &identity(args.by.as_deref()),
-        args.reason.as_deref(),
+        Some(args.reason.as_str()),
     )?;
     writeln!(
         std::io::stdout().lock(),

@@ -230,6 +230,19 @@ fn present_files(
     Ok((skipped, rest))
 }
 
+/// A row whose file does not exist gets a reason and hint about manifest paths, which the
+/// spectrum reader (also used for a search's unknown) cannot give.
+fn missing(err: Error, entry: &str, path: &std::path::Path) -> Error {
+    if path.exists() {
+        return err;
+    }
+    Error::input(
+        crate::error::Location::file(path),
+        format!("the file '{entry}' does not exist"),
+        "check the name; a manifest's paths are read relative to the manifest's folder",
+    )
+}
+
 /// Reads and prepares rows in parallel.
 fn stage_rows(
     recipes: &crate::library::Recipes,
@@ -237,8 +250,12 @@ fn stage_rows(
 ) -> Vec<(usize, String, Result<Staged>)> {
     rows.into_par_iter()
         .map(|row| {
-            let staged = row.submission.and_then(|s| stage(recipes, s));
-            (row.line, row.file, staged)
+            let file = row.file;
+            let staged = row.submission.and_then(|s| {
+                let path = s.path.clone();
+                stage(recipes, s).map_err(|e| missing(e, &file, &path))
+            });
+            (row.line, file, staged)
         })
         .collect()
 }

@@ -150,7 +150,7 @@ impl FromStr for Measure {
             .ok_or_else(|| {
                 Error::invalid(
                     format!("unknown measure '{s}'"),
-                    "use correlation, derivative or cosine (IR, Raman, 1H NMR), entropy or composite (EI-MS), shift-match (13C NMR)",
+                    "use correlation, derivative or cosine (IR, Raman); cosine or correlation (1H NMR); entropy, composite or cosine (EI-MS); shift-match or cosine (13C NMR)",
                 )
             })
     }

@@ -268,7 +268,13 @@ fn an_unknown_technique_in_a_manifest_row() {
 fn a_manifest_row_naming_a_missing_file() {
     let text = refused_row("file,technique,name\nmissing.csv,ir,x\n", &[]);
     contains(&text, "(missing.csv)");
-    contains(&text, "m/missing.csv: cannot read the file");
+    contains(
+        &text,
+        "m/missing.csv: the file 'missing.csv' does not exist",
+    );
+    // The hint speaks of manifest paths here, and only here (a search's missing file gets
+    // a plain one).
+    contains(hint(&text), "relative to the manifest's folder");
 }
 
 #[test]
@@ -411,4 +417,16 @@ fn a_file_of_another_technique_is_refused_saying_what_it_looks_like() {
         "this looks like a 1H NMR spectrum (ppm), not ir data",
     );
     contains(hint(&text), "give the technique as nmr-1h");
+}
+
+#[test]
+fn a_search_of_a_missing_file() {
+    let lab = lab();
+    let text = lab.refuses(&["search", "nowhere.csv", "-t", "ir"], 3);
+    contains(&text, "nowhere.csv: cannot read the file");
+    let h = hint(&text);
+    assert!(
+        h.contains("check the path") && !h.contains("manifest"),
+        "{text}"
+    );
 }

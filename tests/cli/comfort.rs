@@ -293,6 +293,30 @@ fn the_man_page_covers_commands_exit_codes_and_settings() {
     ] {
         assert!(page.contains(needle), "man page lacks {needle}");
     }
+    // Every exit code, 5 and 6 among them, in the EXIT STATUS section.
+    let status = page.split(".SH EXIT STATUS").nth(1).unwrap();
+    for code in 0..=6 {
+        assert!(
+            status.contains(&format!(".TP\n{code}\n")),
+            "exit {code}:\n{status}"
+        );
+    }
+}
+
+#[test]
+fn config_names_the_thresholds_in_use_when_the_file_sets_none() {
+    let text = Lab::new().ok(&["config"]);
+    let at = text.find("[thresholds]").expect("a thresholds table");
+    let after = &text[at..];
+    assert!(after.contains("# not set"), "{text}");
+    for technique in [
+        "ir correlation:",
+        "raman derivative:",
+        "ms-ei entropy:",
+        "nmr-1h cosine:",
+    ] {
+        assert!(after.contains(technique), "{technique}: {text}");
+    }
 }
 
 #[test]
@@ -328,9 +352,22 @@ fn whorl_toml_sets_search_defaults() {
             .any(|w| w.as_str().unwrap().contains("below 0.99")),
         "{r}"
     );
-    // --top on the command line wins over the file.
+    // --top (or -n) on the command line wins over the file.
     let r = lab.json(&["search", &u, "-t", "ir", "--top", "3"]);
     assert_eq!(r["hits"].as_array().unwrap().len(), 3);
+    let r = lab.json(&["search", &u, "-t", "ir", "-n", "1"]);
+    assert_eq!(r["hits"].as_array().unwrap().len(), 1);
+    // identify lists `[search] top` compounds by default, as search lists hits.
+    let fused = |extra: &[&str]| {
+        let mut args = vec!["identify", "--ir", u.as_str()];
+        args.extend_from_slice(extra);
+        lab.json(&args)["fusion"]["compounds"]
+            .as_array()
+            .unwrap()
+            .len()
+    };
+    assert_eq!(fused(&[]), 3);
+    assert_eq!(fused(&["-n", "2"]), 2);
     // The NMR solvent default applies when --solvent is not given.
     let r = lab.json(&["search", &unknown("u14.nmr-1h.csv"), "-t", "nmr-1h"]);
     assert_eq!(r["unknown"]["solvent"], "CDCl3");

@@ -162,7 +162,7 @@ fn a_revision_replaces_the_old_one_and_the_old_one_stays_readable() {
     );
     let err = lab.fails(&["show", &id, "--revision", "7"], 3);
     assert!(err.contains("no revision 7"), "{err}");
-    let err = lab.fails(&["revise", &id, "--by", "e.editor"], 3);
+    let err = lab.fails(&["revise", &id, "--by", "e.editor", "--reason", "none"], 3);
     assert!(err.contains("changes nothing"), "{err}");
 }
 
@@ -209,7 +209,7 @@ fn an_unknown_id_is_a_clear_error() {
         vec!["show", "99"],
         vec!["review", "99", "--approve", "--by", "r"],
         vec!["withdraw", "99", "--reason", "x"],
-        vec!["revise", "99", "--name", "x"],
+        vec!["revise", "99", "--name", "x", "--reason", "x"],
         vec!["log", "99"],
     ] {
         let err = lab.fails(&args, 3);
@@ -316,7 +316,9 @@ fn the_fingerprint_changes_exactly_when_the_searchable_content_changes() {
     );
     changed(
         &lab,
-        &["revise", &id, "--note", "lot 2", "--by", "e.editor"],
+        &[
+            "revise", &id, "--note", "lot 2", "--by", "e.editor", "--reason", "lot",
+        ],
         true,
     );
     changed(&lab, &["add", u, "-t", "ir", "--name", "other"], true);

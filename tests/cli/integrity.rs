@@ -16,6 +16,8 @@ fn library() -> Lab {
         "re-measured lot",
         "--by",
         "e.editor",
+        "--reason",
+        "re-measured",
     ]);
     lab.ok(&["withdraw", "3", "--reason", "recalled", "--by", "q.manager"]);
     lab

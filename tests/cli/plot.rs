@@ -22,7 +22,7 @@ fn library_ids_and_files_share_one_axis() {
     let ir = ids(&lab, "ir");
     let (a, b) = (ir[0].0.to_string(), ir[1].0.to_string());
     let u = unknown("u01.ir.csv");
-    let v = lab.json(&["plot", &a, &b, &u, "--svg", "p.svg"]);
+    let v = lab.json(&["plot", &a, &b, &u, "-o", "p.svg"]);
     assert_eq!(v["technique"], "ir");
     let spectra = v["spectra"].as_array().unwrap();
     assert_eq!(spectra.len(), 3);

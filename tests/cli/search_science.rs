@@ -180,7 +180,7 @@ fn every_technique_reports_peak_overlap_per_hit() {
         }
         let text = lab.ok(&args);
         assert!(
-            text.contains(" fwd ") && text.contains(" rev ") && text.contains("jacc"),
+            text.contains(" peaks ") && text.contains(" covered ") && text.contains("jacc"),
             "{text}"
         );
     }

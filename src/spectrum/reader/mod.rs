@@ -89,7 +89,7 @@ impl Delimiter {
 pub fn read_points(path: &Path, technique: Technique) -> Result<ParsedPoints> {
     let bytes = std::fs::read(path).map_err(|e| {
         let hint = if e.kind() == std::io::ErrorKind::NotFound {
-            "check the path; manifest paths are relative to the manifest's folder"
+            "check the path and the file name"
         } else {
             "check the file's permissions"
         };
