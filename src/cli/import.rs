@@ -113,6 +113,12 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
             out,
             "imported {added}, already present {present}, rejected 0"
         )?;
+        if added > 0 {
+            writeln!(
+                out,
+                "references arrive pending local review; their sign-offs elsewhere are kept as history"
+            )?;
+        }
         writeln!(out, "bundle fingerprint  {}", info.fingerprint)?;
         writeln!(out, "library fingerprint {}", lib.fingerprint()?)?;
     }

@@ -12,7 +12,7 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use super::manifest::{KNOWN_COLUMNS, resolve_within};
+use super::manifest::{KNOWN_COLUMNS, ManifestRow, resolve_within};
 use super::records::SpectrumRecord;
 use super::{ContentSum, Library, fingerprint, now, record_hash};
 use crate::error::{Error, Location, Result};
@@ -280,6 +280,54 @@ fn csv_error(e: csv::Error) -> Error {
         format!("writing the bundle manifest: {e}"),
         "check the free space and permissions of the folder",
     )
+}
+
+/// The state hash of what a bundle holds, recomputed from its manifest as the export computed
+/// it: the recipes of `bundle.json` and, for every searchable row, its technique, status, raw
+/// hash (each row's points are checked against it when stored) and metadata.
+pub(super) fn content_state_hash(
+    dir: &Path,
+    info: &BundleInfo,
+    rows: &[ManifestRow],
+) -> Result<String> {
+    let info_path = || Location::file(dir.join("bundle.json"));
+    let recipes: Vec<crate::prepare::Recipe> = serde_json::from_value(info.recipes.clone())
+        .map_err(|e| {
+            Error::input(
+                info_path(),
+                format!("the recipes cannot be read: {e}"),
+                "export the bundle again",
+            )
+        })?;
+    let mut content = ContentSum::default();
+    for row in rows {
+        let Ok(sub) = &row.submission else { continue };
+        let status: Status = row
+            .provenance
+            .get("whorl_status")
+            .map(String::as_str)
+            .unwrap_or("")
+            .parse()
+            .map_err(|_| {
+                Error::input(
+                    Location::line(dir.join("manifest.csv"), row.line),
+                    "the bundle row has an unreadable whorl_status",
+                    "export the bundle again",
+                )
+            })?;
+        if status.searchable() {
+            content.add(&record_hash(
+                sub.technique.name(),
+                status.name(),
+                row.provenance
+                    .get("whorl_raw_sha256")
+                    .map(String::as_str)
+                    .unwrap_or(""),
+                &serde_json::to_string(&sub.metadata)?,
+            ));
+        }
+    }
+    Ok(fingerprint(&serde_json::to_string(&recipes)?, content))
 }
 
 /// Checks `SHA256SUMS` against every file it lists, and that every file in the bundle is listed.

@@ -6,7 +6,7 @@ use std::path::Path;
 
 use rayon::prelude::*;
 
-use super::bundle::{BundleInfo, RevisionEntry, verify_bundle};
+use super::bundle::{BundleInfo, RevisionEntry, content_state_hash, verify_bundle};
 use super::events::append_event;
 use super::manifest::read_bundle_manifest;
 use super::records::Review;
@@ -27,6 +27,20 @@ impl Library {
         let info = verify_bundle(dir)?;
         let manifest = dir.join("manifest.csv");
         let rows = read_bundle_manifest(&manifest)?;
+        // The state hash written at export must be the one its content gives: a bundle edited
+        // and re-summed but not re-hashed (a status changed, a sign-off added) is refused here.
+        let recomputed = content_state_hash(dir, &info, &rows)?;
+        if recomputed != info.fingerprint {
+            return Err(Error::input(
+                Location::file(dir.join("bundle.json")),
+                format!(
+                    "the bundle's state hash {} does not match its content, which hashes to {}",
+                    short(&info.fingerprint),
+                    short(&recomputed)
+                ),
+                "the manifest or bundle.json was changed after export; export the bundle again from its source; nothing was imported",
+            ));
+        }
         let recipes = self.recipes.clone();
         let staged: Vec<(usize, Result<Staged>, BTreeMap<String, String>)> = rows
             .into_par_iter()
@@ -51,7 +65,7 @@ impl Library {
                 }
             }
         }
-        let source = format!("bundle {} ({})", &info.fingerprint[..16], dir.display());
+        let source = format!("bundle {} ({})", short(&info.fingerprint), dir.display());
         let outcomes = self.write(|tx| {
             let mut outcomes = Vec::with_capacity(good.len());
             let mut touched = Vec::new();
@@ -114,18 +128,26 @@ fn import_one(
     }
     let compound_id = find_or_create_compound(tx, metadata)?;
     let withdrawn = Some(field("whorl_withdrawn_reason")).filter(|s| !s.is_empty());
+    // A reference from another library is pending local acceptance whatever its status there:
+    // its sign-offs were given under another library's policy, by people this one does not
+    // know, possibly for a name it no longer has. A withdrawal grants nothing and is kept.
+    let arrives = match status {
+        Status::Withdrawn => Status::Withdrawn,
+        Status::Pending | Status::Verified => Status::Pending,
+    };
     let spectrum_id = insert_spectrum(
         tx,
         &NewSpectrum {
             compound_id,
             technique,
-            status,
+            status: arrives,
             current_revision: current,
             file_name: field("whorl_original_file"),
             file_sha256: field("whorl_original_file_sha256"),
             raw_sha256: &raw_sha256,
             raw: &staged.raw,
             submitted_by: &staged.submission.submitted_by,
+            imported_by: actor,
             created_at: field("whorl_created_at"),
             withdrawn_reason: withdrawn,
         },
@@ -146,7 +168,8 @@ fn import_one(
     }
     let imported_from = format!("{source}, spectrum {}", field("whorl_original_id"));
     for r in &reviews {
-        // The sign-off is kept as given, on the new spectrum, saying where it came from.
+        // The sign-off is kept as given, on the new spectrum, saying where it came from: history,
+        // never a local approval.
         insert_review(
             tx,
             &Review {
@@ -158,14 +181,23 @@ fn import_one(
     }
     insert_prepared(tx, spectrum_id, &staged.prepared)?;
     let meta_json = serde_json::to_string(metadata)?;
-    reweigh(tx, technique, &raw_sha256, None, Some((status, &meta_json)))?;
+    reweigh(
+        tx,
+        technique,
+        &raw_sha256,
+        None,
+        Some((arrives, &meta_json)),
+    )?;
     let payload = serde_json::json!({
         "spectrum": spectrum_id,
         "compound": compound_id,
         "technique": technique,
         "raw_sha256": raw_sha256,
         "file_sha256": field("whorl_original_file_sha256"),
-        "status": status,
+        "status": arrives,
+        "status_in_bundle": status,
+        "submitted_by": staged.submission.submitted_by,
+        "imported_from": imported_from,
         "current_revision": current,
         "revisions": revisions,
         "reviews": reviews,
@@ -184,10 +216,17 @@ fn import_one(
     })
 }
 
+/// The first 16 hex digits of a hash, or all of a shorter (damaged) one.
+fn short(hash: &str) -> &str {
+    hash.get(..16).unwrap_or(hash)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::library::Decision;
     use crate::library::testing::{add, curated, ir, rows};
+    use std::path::Path;
 
     fn exported(lib: &Library) -> (tempfile::TempDir, std::path::PathBuf) {
         let tmp = tempfile::tempdir().unwrap();
@@ -213,13 +252,14 @@ mod tests {
         let mut lib = Library::in_memory("t").unwrap();
         let (info, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
         assert_eq!(added(&outcomes), [1, 2, 3]);
-        assert_eq!(lib.fingerprint().unwrap(), info.fingerprint);
-        assert_eq!(lib.fingerprint().unwrap(), source.fingerprint().unwrap());
+        assert_eq!(info.fingerprint, source.fingerprint().unwrap());
         let status = |id| lib.spectrum(id).unwrap().status;
+        // Verified at home, pending local acceptance here.
         assert_eq!(
             [status(1), status(2), status(3)],
-            [Status::Verified, Status::Pending, Status::Withdrawn]
+            [Status::Pending, Status::Pending, Status::Withdrawn]
         );
+        assert_ne!(lib.fingerprint().unwrap(), info.fingerprint);
         // The sign-off comes along, saying where from.
         let reviews = lib.reviews(1).unwrap();
         assert_eq!(reviews.len(), 1);
@@ -252,6 +292,161 @@ mod tests {
         // The events describe the tables: check replays them and finds nothing.
         let report = lib.check(&|_, _| {}).unwrap();
         assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    /// Rewrites `SHA256SUMS` for the files as they are now, as anyone editing a bundle can.
+    fn reseal(dir: &Path) {
+        let sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        let mut out = String::new();
+        for line in sums.lines() {
+            let (_, file) = line.split_once("  ").unwrap();
+            let bytes = std::fs::read(dir.join(file)).unwrap();
+            out.push_str(&format!(
+                "{}  {file}\n",
+                crate::spectrum::sha256_hex(&bytes)
+            ));
+        }
+        std::fs::write(dir.join("SHA256SUMS"), out).unwrap();
+    }
+
+    /// Edits the manifest cell `column` of the row of original spectrum `id`.
+    fn edit_manifest(dir: &Path, id: &str, column: &str, value: &str) {
+        let path = dir.join("manifest.csv");
+        let mut r = csv::Reader::from_path(&path).unwrap();
+        let header = r.headers().unwrap().clone();
+        let at = |name: &str| header.iter().position(|h| h == name).unwrap();
+        let mut w = csv::Writer::from_writer(Vec::new());
+        w.write_record(&header).unwrap();
+        for rec in r.records() {
+            let mut row: Vec<String> = rec.unwrap().iter().map(str::to_string).collect();
+            if row[at("whorl_original_id")] == id {
+                row[at(column)] = value.to_string();
+            }
+            w.write_record(&row).unwrap();
+        }
+        std::fs::write(&path, w.into_inner().unwrap()).unwrap();
+    }
+
+    /// Sets the state hash written in `bundle.json`.
+    fn set_state_hash(dir: &Path, hash: &str) {
+        let path = dir.join("bundle.json");
+        let mut info: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(&path).unwrap()).unwrap();
+        info["fingerprint"] = hash.into();
+        std::fs::write(&path, serde_json::to_string_pretty(&info).unwrap() + "\n").unwrap();
+    }
+
+    fn refused_at_bundle_json(lib: &mut Library, dir: &Path) -> String {
+        match lib.import_bundle(dir, "dave") {
+            Err(Error::Input { at, reason, hint }) => {
+                assert_eq!(at.file, dir.join("bundle.json"), "{reason}");
+                assert!(!hint.is_empty());
+                reason
+            }
+            other => panic!("expected a refusal, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_zeroed_state_hash_is_refused_naming_bundle_json() {
+        let (_tmp, dir) = exported(&curated());
+        set_state_hash(&dir, &"0".repeat(64));
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        let reason = refused_at_bundle_json(&mut lib, &dir);
+        assert!(reason.contains("state hash"), "{reason}");
+        assert_eq!(rows(&lib, "spectrum"), 0);
+        // A short or empty one too, without a panic.
+        set_state_hash(&dir, "");
+        reseal(&dir);
+        refused_at_bundle_json(&mut lib, &dir);
+    }
+
+    #[test]
+    fn a_status_edited_in_the_manifest_is_refused_by_the_state_hash() {
+        let (_tmp, dir) = exported(&curated());
+        // Spectrum 2 is pending at home; the edit claims it verified by a made-up reviewer.
+        edit_manifest(&dir, "2", "whorl_status", "verified");
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        let reason = refused_at_bundle_json(&mut lib, &dir);
+        assert!(reason.contains("does not match"), "{reason}");
+        assert_eq!(rows(&lib, "spectrum"), 0);
+    }
+
+    #[test]
+    fn foreign_sign_offs_are_history_and_references_arrive_pending() {
+        let source = curated();
+        let (_tmp, dir) = exported(&source);
+        // A consistent forgery: status, a made-up sign-off and a state hash recomputed to match.
+        let forged = serde_json::json!([{
+            "id": 9, "spectrum_id": 2, "revision": 2, "reviewer": "mallory",
+            "at": "2026-01-01T00:00:00.000Z", "decision": "approved",
+            "meaning": "approved", "note": null, "imported_from": null,
+        }]);
+        edit_manifest(&dir, "2", "whorl_status", "verified");
+        edit_manifest(&dir, "2", "whorl_reviews", &forged.to_string());
+        reseal(&dir);
+        let rows_now = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
+        let info = verify_bundle(&dir).unwrap();
+        let recomputed = content_state_hash(&dir, &info, &rows_now).unwrap();
+        set_state_hash(&dir, &recomputed);
+        reseal(&dir);
+
+        let mut lib = Library::in_memory("t").unwrap();
+        let (_, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        assert_eq!(added(&outcomes), [1, 2, 3]);
+        let status = |lib: &Library, id| lib.spectrum(id).unwrap().status;
+        // Verified at home or in the forged manifest, pending here; withdrawn stays withdrawn.
+        assert_eq!(
+            [status(&lib, 1), status(&lib, 2), status(&lib, 3)],
+            [Status::Pending, Status::Pending, Status::Withdrawn]
+        );
+        // The foreign sign-offs are kept, marked as history from elsewhere.
+        let reviews = lib.reviews(2).unwrap();
+        assert_eq!(reviews.len(), 1);
+        assert_eq!(reviews[0].reviewer, "mallory");
+        assert!(reviews[0].imported_from.is_some());
+        // None of them counts here: a local reviewer other than the submitter and the importer
+        // approves; the importer may not.
+        assert!(
+            lib.review(1, "dave", Decision::Approve, None, None)
+                .is_err()
+        );
+        lib.review(1, "erin", Decision::Approve, None, None)
+            .unwrap();
+        assert_eq!(status(&lib, 1), Status::Verified);
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    #[test]
+    fn a_compound_renamed_after_sign_off_does_not_arrive_approved() {
+        let mut source = Library::in_memory("t").unwrap();
+        let id = add(&mut source, &ir(1, "acetone", "alice"));
+        source
+            .review(id, "bob", Decision::Approve, None, None)
+            .unwrap();
+        // Renamed after the sign-off: a forger puts the new name in the current revision
+        // and keeps the old sign-off and status.
+        let (_tmp, dir) = exported(&source);
+        let rows_before = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
+        let mut revisions: serde_json::Value =
+            serde_json::from_str(&rows_before[0].provenance["whorl_revisions"]).unwrap();
+        revisions[0]["metadata"]["name"] = "heroin".into();
+        edit_manifest(&dir, "1", "name", "heroin");
+        edit_manifest(&dir, "1", "whorl_revisions", &revisions.to_string());
+        reseal(&dir);
+        let rows_now = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
+        let info = verify_bundle(&dir).unwrap();
+        set_state_hash(&dir, &content_state_hash(&dir, &info, &rows_now).unwrap());
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        lib.import_bundle(&dir, "dave").unwrap();
+        let rec = lib.spectrum(1).unwrap();
+        assert_eq!(rec.metadata.name, "heroin");
+        assert_eq!(rec.status, Status::Pending);
+        assert_eq!(lib.reviews(1).unwrap()[0].reviewer, "bob");
     }
 
     #[test]

@@ -50,7 +50,8 @@ impl Library {
     /// Sets the self-review policy, recording who changed it.
     pub fn set_self_review(&mut self, allow: bool, actor: &str) -> Result<()> {
         self.write(|tx| {
-            put_setting(tx, "allow_self_review", &allow.to_string())?;
+            // The event first: a trigger lets the setting change only to what the newest
+            // event records.
             append_event(
                 tx,
                 actor,
@@ -58,6 +59,7 @@ impl Library {
                 "library",
                 &serde_json::json!({ "allow_self_review": allow }),
             )?;
+            put_setting(tx, "allow_self_review", &allow.to_string())?;
             Ok(((), vec![]))
         })
     }
@@ -189,12 +191,9 @@ impl Library {
             }
             Status::Pending => {}
         }
-        if let Some(r) = self
-            .reviews(id)?
-            .into_iter()
-            .rev()
-            .find(|r| r.revision == rec.revision && r.decision == "rejected")
-        {
+        if let Some(r) = self.reviews(id)?.into_iter().rev().find(|r| {
+            r.revision == rec.revision && r.decision == "rejected" && r.imported_from.is_none()
+        }) {
             return Err(Error::invalid(
                 format!(
                     "revision {} of spectrum {id} was rejected by {} at {}",
@@ -203,18 +202,21 @@ impl Library {
                 "correct it with `whorl revise` (the new revision is reviewed in turn) or `whorl withdraw` it",
             ));
         }
-        if !allow_self
-            && (same_person(reviewer, &rec.submitted_by) || same_person(reviewer, &revision_author))
-        {
+        // The four-eyes rule: the reviewer is neither who the file says submitted it, nor who
+        // stored it (ran the add or import), nor who wrote the revision under review.
+        let imported_by = rec.imported_by.as_deref().unwrap_or(&rec.submitted_by);
+        let role = if same_person(reviewer, &rec.submitted_by) {
+            Some("submitted spectrum")
+        } else if same_person(reviewer, imported_by) {
+            Some("imported spectrum")
+        } else if same_person(reviewer, &revision_author) {
+            Some("wrote the current revision of spectrum")
+        } else {
+            None
+        };
+        if let (false, Some(role)) = (allow_self, role) {
             return Err(Error::invalid(
-                format!(
-                    "{reviewer} submitted spectrum {id}{}; the reviewer must be someone else",
-                    if same_person(reviewer, &rec.submitted_by) {
-                        ""
-                    } else {
-                        "'s current revision"
-                    }
-                ),
+                format!("{reviewer} {role} {id}; the reviewer must be someone else"),
                 "ask a second analyst to review it (--by WHO); self-review is off by library policy",
             ));
         }
