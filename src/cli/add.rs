@@ -64,7 +64,7 @@ pub struct AddArgs {
 
 pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
-    let actor = identity(args.by.as_deref());
+    let actor = identity(args.by.as_deref())?;
     let submission = Submission {
         path: args.file.clone(),
         technique: args.technique,

@@ -26,7 +26,7 @@ pub struct PolicyArgs {
 pub fn run(args: PolicyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
     if let Some(a) = args.self_review {
-        lib.set_self_review(matches!(a, Allow::Allow), &identity(args.by.as_deref()))?;
+        lib.set_self_review(matches!(a, Allow::Allow), &identity(args.by.as_deref())?)?;
     }
     let state = if lib.allow_self_review()? {
         "allowed"

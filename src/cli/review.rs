@@ -41,7 +41,7 @@ pub fn run(args: ReviewArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     } else {
         Decision::Reject
     };
-    let reviewer = identity(args.by.as_deref());
+    let reviewer = identity(args.by.as_deref())?;
     let reviews = lib.review_many(
         &args.ids,
         &reviewer,

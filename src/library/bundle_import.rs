@@ -6,8 +6,9 @@ use std::path::Path;
 
 use rayon::prelude::*;
 
-use super::bundle::{BundleInfo, RevisionEntry, content_state_hash, verify_bundle};
+use super::bundle::{BundleInfo, RevisionEntry, content_state_hash, read_sums, verify_listing};
 use super::events::append_event;
+use super::keys::{SIGNATURE_FILE, read_signature};
 use super::manifest::read_bundle_manifest;
 use super::records::Review;
 use super::state::reweigh;
@@ -19,12 +20,66 @@ use super::{Library, Outcome, Staged, stage};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::Status;
 
+/// Which bundles an import accepts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Acceptance {
+    /// Only bundles signed by a key the library trusts (`whorl key trust`).
+    Trusted,
+    /// Also unsigned or wrongly signed bundles, recorded as untrusted on every event.
+    Untrusted,
+}
+
+/// What the signature check of a bundle found.
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+#[serde(tag = "trust", rename_all = "snake_case")]
+pub enum Trust {
+    /// Signed by a key the library trusts.
+    Signed {
+        /// The key's name.
+        key: String,
+        /// The public key (hex).
+        public_key: String,
+    },
+    /// Accepted without a trusted signature (`--untrusted`), and why it had none.
+    Untrusted {
+        /// Why: unsigned, signed by a key not trusted here, or a signature that does not verify.
+        why: String,
+    },
+}
+
+/// What a bundle import did.
+#[derive(Debug, Clone)]
+pub struct BundleImport {
+    /// `bundle.json`.
+    pub info: BundleInfo,
+    /// Whose signature it carried.
+    pub trust: Trust,
+    /// One outcome per manifest row.
+    pub outcomes: Vec<Outcome>,
+}
+
 impl Library {
-    /// Imports a bundle folder. Every checksum is verified first; if any file is missing,
-    /// altered or outside the folder, nothing is imported. The whole bundle is one
-    /// transaction. Spectra already present (same technique and raw points) are skipped.
-    pub fn import_bundle(&mut self, dir: &Path, actor: &str) -> Result<(BundleInfo, Vec<Outcome>)> {
-        let info = verify_bundle(dir)?;
+    /// Imports a bundle folder. Its signature is checked against the keys the library trusts
+    /// (an unsigned or wrongly signed bundle is refused unless `accept` is
+    /// [`Acceptance::Untrusted`]); then every checksum, then the state hash; if any fails,
+    /// nothing is imported. The whole bundle is one transaction. Spectra already present (same
+    /// technique and raw points) are skipped; the others arrive pending local review.
+    pub fn import_bundle(
+        &mut self,
+        dir: &Path,
+        actor: &str,
+        accept: Acceptance,
+    ) -> Result<BundleImport> {
+        let sums = read_sums(dir)?;
+        let trust = self.bundle_trust(dir, sums.as_bytes())?;
+        if let (Trust::Untrusted { why }, Acceptance::Trusted) = (&trust, accept) {
+            return Err(Error::input(
+                Location::file(dir.join(SIGNATURE_FILE)),
+                format!("the bundle is not signed by a key this library trusts: {why}"),
+                "ask the exporting lab for its public key and trust it (`whorl key trust NAME.pub --reason ...`), or import with --untrusted (its spectra arrive pending, recorded as untrusted); nothing was imported",
+            ));
+        }
+        let info = verify_listing(dir, &sums)?;
         let manifest = dir.join("manifest.csv");
         let rows = read_bundle_manifest(&manifest)?;
         // The state hash written at export must be the one its content gives: a bundle edited
@@ -65,13 +120,21 @@ impl Library {
                 }
             }
         }
-        let source = format!("bundle {} ({})", short(&info.fingerprint), dir.display());
+        let source = format!(
+            "{} bundle {} ({})",
+            match &trust {
+                Trust::Signed { key, .. } => format!("signed ({key})"),
+                Trust::Untrusted { .. } => "untrusted".to_string(),
+            },
+            short(&info.fingerprint),
+            dir.display()
+        );
         let outcomes = self.write(|tx| {
             let mut outcomes = Vec::with_capacity(good.len());
             let mut touched = Vec::new();
             for (line, staged, provenance) in &good {
                 let at = || Location::line(&manifest, *line);
-                let o = import_one(tx, staged, provenance, actor, &source, &info, at)?;
+                let o = import_one(tx, staged, provenance, actor, (&source, &trust), &info, at)?;
                 if let Outcome::Added { spectrum_id, .. } = o {
                     touched.push(spectrum_id);
                 }
@@ -79,7 +142,46 @@ impl Library {
             }
             Ok((outcomes, touched))
         })?;
-        Ok((info, outcomes))
+        Ok(BundleImport {
+            info,
+            trust,
+            outcomes,
+        })
+    }
+
+    /// Whether `sums` (the bytes of the bundle's `SHA256SUMS`) carry a valid signature by a
+    /// key the library trusts.
+    fn bundle_trust(&self, dir: &Path, sums: &[u8]) -> Result<Trust> {
+        let Some(sig) = read_signature(dir)? else {
+            return Ok(Trust::Untrusted {
+                why: "it is unsigned".into(),
+            });
+        };
+        let public_key = sig.key.hex();
+        if !self
+            .trusted_keys()?
+            .iter()
+            .any(|k| k.public_key == public_key)
+        {
+            return Ok(Trust::Untrusted {
+                why: format!(
+                    "it is signed by key {} ({public_key}), which this library does not trust",
+                    sig.key.name()
+                ),
+            });
+        }
+        if !sig.signs(sums) {
+            return Ok(Trust::Untrusted {
+                why: format!(
+                    "its signature by key {} does not verify: SHA256SUMS was changed after signing",
+                    sig.key.name()
+                ),
+            });
+        }
+        Ok(Trust::Signed {
+            key: sig.key.name().to_string(),
+            public_key,
+        })
     }
 }
 
@@ -88,7 +190,7 @@ fn import_one(
     staged: &Staged,
     provenance: &BTreeMap<String, String>,
     actor: &str,
-    source: &str,
+    (source, trust): (&str, &Trust),
     info: &BundleInfo,
     at: impl Fn() -> Location,
 ) -> Result<Outcome> {
@@ -198,6 +300,7 @@ fn import_one(
         "status_in_bundle": status,
         "submitted_by": staged.submission.submitted_by,
         "imported_from": imported_from,
+        "signature": trust,
         "current_revision": current,
         "revisions": revisions,
         "reviews": reviews,
@@ -224,15 +327,22 @@ fn short(hash: &str) -> &str {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::library::Decision;
     use crate::library::testing::{add, curated, ir, rows};
+    use crate::library::{Decision, KeyPair};
     use std::path::Path;
 
     fn exported(lib: &Library) -> (tempfile::TempDir, std::path::PathBuf) {
         let tmp = tempfile::tempdir().unwrap();
         let dir = tmp.path().join("bundle");
-        lib.export(&dir, None, None, "carol", &|_, _| {}).unwrap();
+        lib.export(&dir, None, None, "carol", None, &|_, _| {})
+            .unwrap();
         (tmp, dir)
+    }
+
+    /// Imports a bundle as untrusted (unsigned bundles need it), as "dave".
+    fn untrusted(lib: &mut Library, dir: &Path) -> Result<(BundleInfo, Vec<Outcome>)> {
+        let done = lib.import_bundle(dir, "dave", Acceptance::Untrusted)?;
+        Ok((done.info, done.outcomes))
     }
 
     fn added(outcomes: &[Outcome]) -> Vec<i64> {
@@ -250,7 +360,7 @@ mod tests {
         let source = curated();
         let (_tmp, dir) = exported(&source);
         let mut lib = Library::in_memory("t").unwrap();
-        let (info, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        let (info, outcomes) = untrusted(&mut lib, &dir).unwrap();
         assert_eq!(added(&outcomes), [1, 2, 3]);
         assert_eq!(info.fingerprint, source.fingerprint().unwrap());
         let status = |id| lib.spectrum(id).unwrap().status;
@@ -267,7 +377,7 @@ mod tests {
         assert_eq!(reviews[0].note.as_deref(), Some("matches the CoA"));
         let from = reviews[0].imported_from.as_deref().unwrap();
         assert!(
-            from.starts_with(&format!("bundle {}", &info.fingerprint[..16])),
+            from.starts_with(&format!("untrusted bundle {}", &info.fingerprint[..16])),
             "{from}"
         );
         assert!(from.ends_with("spectrum 1"), "{from}");
@@ -337,7 +447,7 @@ mod tests {
     }
 
     fn refused_at_bundle_json(lib: &mut Library, dir: &Path) -> String {
-        match lib.import_bundle(dir, "dave") {
+        match untrusted(lib, dir) {
             Err(Error::Input { at, reason, hint }) => {
                 assert_eq!(at.file, dir.join("bundle.json"), "{reason}");
                 assert!(!hint.is_empty());
@@ -388,13 +498,13 @@ mod tests {
         edit_manifest(&dir, "2", "whorl_reviews", &forged.to_string());
         reseal(&dir);
         let rows_now = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
-        let info = verify_bundle(&dir).unwrap();
+        let info = crate::library::verify_bundle(&dir).unwrap();
         let recomputed = content_state_hash(&dir, &info, &rows_now).unwrap();
         set_state_hash(&dir, &recomputed);
         reseal(&dir);
 
         let mut lib = Library::in_memory("t").unwrap();
-        let (_, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        let (_, outcomes) = untrusted(&mut lib, &dir).unwrap();
         assert_eq!(added(&outcomes), [1, 2, 3]);
         let status = |lib: &Library, id| lib.spectrum(id).unwrap().status;
         // Verified at home or in the forged manifest, pending here; withdrawn stays withdrawn.
@@ -438,15 +548,95 @@ mod tests {
         edit_manifest(&dir, "1", "whorl_revisions", &revisions.to_string());
         reseal(&dir);
         let rows_now = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
-        let info = verify_bundle(&dir).unwrap();
+        let info = crate::library::verify_bundle(&dir).unwrap();
         set_state_hash(&dir, &content_state_hash(&dir, &info, &rows_now).unwrap());
         reseal(&dir);
         let mut lib = Library::in_memory("t").unwrap();
-        lib.import_bundle(&dir, "dave").unwrap();
+        untrusted(&mut lib, &dir).unwrap();
         let rec = lib.spectrum(1).unwrap();
         assert_eq!(rec.metadata.name, "heroin");
         assert_eq!(rec.status, Status::Pending);
         assert_eq!(lib.reviews(1).unwrap()[0].reviewer, "bob");
+    }
+
+    fn signed_by(lib: &Library, key: &KeyPair) -> (tempfile::TempDir, std::path::PathBuf) {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        lib.export(&dir, None, None, "carol", Some(key), &|_, _| {})
+            .unwrap();
+        (tmp, dir)
+    }
+
+    fn refused_for_trust(lib: &mut Library, dir: &Path) -> String {
+        match lib.import_bundle(dir, "dave", Acceptance::Trusted) {
+            Err(Error::Input { at, reason, hint }) => {
+                assert_eq!(at.file, dir.join("SIGNATURE"), "{reason}");
+                assert!(hint.contains("--untrusted"), "{hint}");
+                assert_eq!(rows(lib, "spectrum"), 0);
+                reason
+            }
+            other => panic!("expected a refusal, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_bundle_signed_by_a_trusted_key_imports_and_others_need_untrusted() {
+        let key = KeyPair::generate("lab-a").unwrap();
+        let (_tmp, dir) = signed_by(&curated(), &key);
+        let mut lib = Library::in_memory("t").unwrap();
+        // Not trusted yet.
+        let reason = refused_for_trust(&mut lib, &dir);
+        assert!(reason.contains("does not trust"), "{reason}");
+        lib.trust_key(&key.public(), "our own key", "admin")
+            .unwrap();
+        let done = lib
+            .import_bundle(&dir, "dave", Acceptance::Trusted)
+            .unwrap();
+        assert_eq!(
+            done.trust,
+            Trust::Signed {
+                key: "lab-a".into(),
+                public_key: key.public().hex()
+            }
+        );
+        assert_eq!(added(&done.outcomes), [1, 2, 3]);
+        // Signed and trusted, still pending local review.
+        assert_eq!(lib.spectrum(1).unwrap().status, Status::Pending);
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(event.payload["signature"]["trust"], "signed");
+    }
+
+    #[test]
+    fn unsigned_and_wrongly_signed_bundles_are_refused_unless_untrusted() {
+        let key = KeyPair::generate("lab-a").unwrap();
+        let mut lib = Library::in_memory("t").unwrap();
+        lib.trust_key(&key.public(), "partner", "admin").unwrap();
+        // Unsigned.
+        let (_tmp, plain) = exported(&curated());
+        let reason = refused_for_trust(&mut lib, &plain);
+        assert!(reason.contains("unsigned"), "{reason}");
+        // Signed, then SHA256SUMS changed (a blank line: every checksum still holds).
+        let (_tmp2, dir) = signed_by(&curated(), &key);
+        let mut sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        sums.push('\n');
+        std::fs::write(dir.join("SHA256SUMS"), sums).unwrap();
+        let reason = refused_for_trust(&mut lib, &dir);
+        assert!(reason.contains("does not verify"), "{reason}");
+        // Accepted as untrusted: pending, and recorded so on the event and the sign-offs.
+        let done = lib
+            .import_bundle(&dir, "dave", Acceptance::Untrusted)
+            .unwrap();
+        assert!(matches!(done.trust, Trust::Untrusted { .. }));
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(event.payload["signature"]["trust"], "untrusted");
+        assert!(
+            lib.reviews(1).unwrap()[0]
+                .imported_from
+                .as_deref()
+                .unwrap()
+                .starts_with("untrusted bundle")
+        );
+        assert_eq!(lib.spectrum(1).unwrap().status, Status::Pending);
     }
 
     #[test]
@@ -455,7 +645,7 @@ mod tests {
         let mut lib = Library::in_memory("t").unwrap();
         // The library already holds the second spectrum's raw points under its own name.
         let own = add(&mut lib, &ir(2, "methyl ethyl ketone", "erin"));
-        let (_, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        let (_, outcomes) = untrusted(&mut lib, &dir).unwrap();
         assert_eq!(outcomes[1], Outcome::AlreadyPresent { spectrum_id: own });
         assert_eq!(added(&outcomes).len(), 2);
         assert_eq!(
@@ -464,7 +654,7 @@ mod tests {
         );
         // Imported again, nothing is added and nothing is recorded.
         let (events, spectra) = (lib.last_event().unwrap(), rows(&lib, "spectrum"));
-        let (_, again) = lib.import_bundle(&dir, "dave").unwrap();
+        let (_, again) = untrusted(&mut lib, &dir).unwrap();
         assert!(added(&again).is_empty());
         assert_eq!(lib.last_event().unwrap(), events);
         assert_eq!(rows(&lib, "spectrum"), spectra);

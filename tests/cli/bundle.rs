@@ -71,6 +71,7 @@ fn export_then_import_into_an_empty_library_keeps_fingerprint_and_history() {
         target.to_str().unwrap(),
         "import",
         bundle.to_str().unwrap(),
+        "--untrusted",
     ]);
     assert!(
         out.contains(&format!("imported {all}, already present 0")),
@@ -153,6 +154,7 @@ fn export_then_import_into_an_empty_library_keeps_fingerprint_and_history() {
         target.to_str().unwrap(),
         "import",
         bundle.to_str().unwrap(),
+        "--untrusted",
     ]);
     assert!(
         again.contains(&format!("imported 0, already present {all}")),
@@ -220,6 +222,7 @@ fn import_fails(lab: &Lab, bundle: &Path, words: &str) {
         target.to_str().unwrap(),
         "import",
         bundle.to_str().unwrap(),
+        "--untrusted",
     ]);
     let text = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(3), "{text}");

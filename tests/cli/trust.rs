@@ -1,0 +1,185 @@
+//! Trust: signed bundles and trusted keys, who may sign off what, the policy's history, and
+//! tampering with the database that `check` must find.
+
+use std::process::Output;
+
+use crate::util::{Lab, hint, ir_csv};
+
+fn text(out: &Output) -> String {
+    format!(
+        "{}{}",
+        String::from_utf8_lossy(&out.stderr),
+        String::from_utf8_lossy(&out.stdout)
+    )
+}
+
+/// A library with three IR spectra added by `a.analyst`, and a bundle of them exported from it,
+/// signed with `key` when given.
+fn exported(lab: &Lab, key: Option<&str>) -> std::path::PathBuf {
+    for (i, name) in ["acetone", "butanone", "toluene"].iter().enumerate() {
+        let centre = 1700.0 + 50.0 * i as f64;
+        lab.add(
+            &format!("s{i}.csv"),
+            &ir_csv(&[(centre, 0.8, 12.0), (2950.0, 0.4, 20.0)]),
+            "ir",
+            name,
+            &["--by", "a.analyst"],
+        );
+    }
+    lab.ok(&["review", "1", "--approve", "--by", "b.reviewer"]);
+    let bundle = lab.path("bundle");
+    let mut args = vec!["export", bundle.to_str().unwrap()];
+    if let Some(k) = key {
+        args.extend(["--sign", k]);
+    }
+    lab.ok(&args);
+    bundle
+}
+
+fn other_library(lab: &Lab) -> String {
+    let target = lab.path("other").to_str().unwrap().to_string();
+    lab.ok(&["--library", &target, "init"]);
+    target
+}
+
+#[test]
+fn key_create_writes_a_private_key_only_its_owner_reads_outside_the_library() {
+    let lab = Lab::new();
+    let keys = lab.path("keys");
+    let out = lab.ok(&["key", "create", "lab-a", "--dir", keys.to_str().unwrap()]);
+    assert!(out.contains("lab-a"), "{out}");
+    let secret = keys.join("lab-a.key");
+    let public = std::fs::read_to_string(keys.join("lab-a.pub")).unwrap();
+    assert!(
+        public.starts_with("whorl-ed25519-public lab-a "),
+        "{public}"
+    );
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let mode = std::fs::metadata(&secret).unwrap().permissions().mode();
+        assert_eq!(mode & 0o777, 0o600, "private key mode {mode:o}");
+    }
+    // By default under $XDG_CONFIG_HOME, not in the library.
+    let config = lab.path("config");
+    let out = lab.run_env(
+        &["key", "create", "lab-b"],
+        &[("XDG_CONFIG_HOME", config.to_str().unwrap())],
+    );
+    assert!(out.status.success(), "{}", text(&out));
+    assert!(config.join("whorl/keys/lab-b.key").is_file());
+    // Never inside the library folder.
+    let inside = lab.library().join("keys");
+    let err = lab.fails(
+        &["key", "create", "lab-c", "--dir", inside.to_str().unwrap()],
+        3,
+    );
+    assert!(err.contains("inside the library folder"), "{err}");
+    assert!(!inside.exists());
+}
+
+#[test]
+fn a_signed_bundle_imports_once_its_key_is_trusted_and_a_changed_one_is_refused() {
+    let lab = Lab::new();
+    let keys = lab.path("keys");
+    lab.ok(&["key", "create", "lab-a", "--dir", keys.to_str().unwrap()]);
+    let bundle = exported(&lab, Some(keys.join("lab-a.key").to_str().unwrap()));
+    assert!(bundle.join("SIGNATURE").is_file());
+    let target = other_library(&lab);
+    let import = |extra: &[&str]| {
+        let mut args = vec!["--library", &target, "import", bundle.to_str().unwrap()];
+        args.extend_from_slice(extra);
+        lab.run(&args)
+    };
+    // Not trusted yet: refused, naming the signature file, with a hint.
+    let out = import(&[]);
+    assert_eq!(out.status.code(), Some(3), "{}", text(&out));
+    let t = text(&out);
+    assert!(
+        t.contains("SIGNATURE") && t.contains("does not trust"),
+        "{t}"
+    );
+    assert!(hint(&t).contains("whorl key trust"), "{t}");
+    // A reason is required to trust it; trusting is audited.
+    let public = keys.join("lab-a.pub");
+    lab.fails(
+        &[
+            "--library",
+            &target,
+            "key",
+            "trust",
+            public.to_str().unwrap(),
+        ],
+        2,
+    );
+    lab.ok(&[
+        "--library",
+        &target,
+        "key",
+        "trust",
+        public.to_str().unwrap(),
+        "--reason",
+        "our partner lab; key read back over the phone",
+        "--by",
+        "q.manager",
+    ]);
+    let log = lab.ok(&["--library", &target, "log"]);
+    assert!(log.contains("key-trust"), "{log}");
+    let out = import(&[]);
+    assert!(out.status.success(), "{}", text(&out));
+    assert!(
+        text(&out).contains("signed by trusted key lab-a"),
+        "{}",
+        text(&out)
+    );
+    // Approved at home, pending here.
+    let show: serde_json::Value =
+        serde_json::from_str(&lab.ok(&["--library", &target, "show", "1", "--json"])).unwrap();
+    assert_eq!(show["spectrum"]["status"], "pending");
+    lab.ok(&["--library", &target, "check"]);
+
+    // The same bundle with SHA256SUMS changed after signing: refused, then accepted only as
+    // untrusted, and recorded so.
+    let target2 = lab.path("third").to_str().unwrap().to_string();
+    lab.ok(&["--library", &target2, "init"]);
+    lab.ok(&[
+        "--library",
+        &target2,
+        "key",
+        "trust",
+        public.to_str().unwrap(),
+        "--reason",
+        "partner",
+    ]);
+    let sums = bundle.join("SHA256SUMS");
+    let mut listing = std::fs::read_to_string(&sums).unwrap();
+    listing.push('\n');
+    std::fs::write(&sums, listing).unwrap();
+    let b = bundle.to_str().unwrap();
+    let err = lab.fails(&["--library", &target2, "import", b], 3);
+    assert!(err.contains("does not verify"), "{err}");
+    let out = lab.ok(&["--library", &target2, "import", b, "--untrusted"]);
+    assert!(out.contains("accepted as untrusted"), "{out}");
+    let log = lab.ok(&["--library", &target2, "log", "--json"]);
+    assert!(log.contains("\"untrusted\""), "{log}");
+}
+
+#[test]
+fn an_unsigned_bundle_needs_untrusted_and_its_spectra_arrive_pending() {
+    let lab = Lab::new();
+    let bundle = exported(&lab, None);
+    let target = other_library(&lab);
+    let b = bundle.to_str().unwrap();
+    let err = lab.fails(&["--library", &target, "import", b], 3);
+    assert!(err.contains("unsigned"), "{err}");
+    lab.ok(&["--library", &target, "import", b, "--untrusted"]);
+    let list: serde_json::Value =
+        serde_json::from_str(&lab.ok(&["--library", &target, "list", "--json"])).unwrap();
+    assert!(
+        list.as_array()
+            .unwrap()
+            .iter()
+            .all(|r| r["status"] == "pending"),
+        "{list}"
+    );
+}
