@@ -109,10 +109,41 @@ impl Library {
         meaning: Option<&str>,
         note: Option<&str>,
     ) -> Result<Vec<Review>> {
+        self.review_pinned(ids, None, reviewer, decision, meaning, note)
+    }
+
+    /// [`Library::review_many`], with the revision the reviewer looked at: when `revision` is
+    /// given, a spectrum whose current revision differs (revised between looking and signing)
+    /// is refused. A spectrum named twice is refused: one sign-off per spectrum.
+    pub fn review_pinned(
+        &mut self,
+        ids: &[i64],
+        revision: Option<i64>,
+        reviewer: &str,
+        decision: Decision,
+        meaning: Option<&str>,
+        note: Option<&str>,
+    ) -> Result<Vec<Review>> {
+        let mut seen = std::collections::HashSet::new();
+        if let Some(id) = ids.iter().find(|&&id| !seen.insert(id)) {
+            return Err(Error::invalid(
+                format!("spectrum {id} is named more than once; one sign-off per spectrum"),
+                "name each spectrum once",
+            ));
+        }
         let allow_self = self.allow_self_review()?;
         let mut checked = Vec::with_capacity(ids.len());
         for &id in ids {
             let rec = self.reviewable(id, reviewer, allow_self)?;
+            if let Some(n) = revision.filter(|&n| n != rec.revision) {
+                return Err(Error::invalid(
+                    format!(
+                        "spectrum {id} is at revision {}, not the revision {n} given to sign off",
+                        rec.revision
+                    ),
+                    "look at the current revision (`whorl show ID`) and review that one",
+                ));
+            }
             let metadata_json = serde_json::to_string(&rec.metadata)?;
             checked.push((rec, metadata_json));
         }
@@ -154,7 +185,7 @@ impl Library {
                 }
                 let payload = serde_json::json!({
                     "spectrum": id, "revision": rec.revision, "decision": decision.name(),
-                    "meaning": meaning, "note": note, "reviewer": reviewer,
+                    "meaning": meaning, "note": note, "reviewer": reviewer, "at": at,
                 });
                 append_event(tx, reviewer, "review", &format!("spectrum:{id}"), &payload)?;
                 reviews.push(review);
@@ -345,6 +376,39 @@ mod tests {
             .unwrap();
         assert_eq!(done.len(), 2);
         assert!(done.iter().all(|r| r.meaning == "checked"));
+    }
+
+    #[test]
+    fn a_spectrum_named_twice_gets_one_sign_off_or_none() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        let err = lib
+            .review_many(&[id, id], "bob", Decision::Approve, None, None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("more than once"), "{err}");
+        assert_eq!(rows(&lib, "review"), 0);
+    }
+
+    #[test]
+    fn a_pinned_revision_must_be_the_current_one() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        let patch = MetadataPatch {
+            notes: Some("dried".into()),
+            ..Default::default()
+        };
+        lib.revise(id, &patch, "alice", Some("notes")).unwrap();
+        let err = lib
+            .review_pinned(&[id], Some(1), "bob", Decision::Approve, None, None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("at revision 2"), "{err}");
+        assert_eq!(rows(&lib, "review"), 0);
+        let done = lib
+            .review_pinned(&[id], Some(2), "bob", Decision::Approve, None, None)
+            .unwrap();
+        assert_eq!(done[0].revision, 2);
     }
 
     #[test]

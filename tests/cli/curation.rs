@@ -239,11 +239,13 @@ fn the_log_records_who_did_what_in_order() {
         .iter()
         .map(|e| (e["action"].as_str().unwrap(), e["actor"].as_str().unwrap()))
         .collect();
-    // The identity is the --by of each command.
+    // The identity is the --by of each command; an add is done by whoever ran it
+    // (WHORL_USER here), the submitter it names is in its payload.
+    assert_eq!(events[0]["payload"]["submitted_by"], "s.submitter");
     assert_eq!(
         actions,
         [
-            ("add", "s.submitter"),
+            ("add", "t.tester"),
             ("review", "r.reviewer"),
             ("withdraw", "q.manager")
         ]

@@ -183,3 +183,132 @@ fn an_unsigned_bundle_needs_untrusted_and_its_spectra_arrive_pending() {
         "{list}"
     );
 }
+
+#[test]
+fn whoever_ran_the_import_cannot_approve_what_it_names_as_someone_elses() {
+    let lab = Lab::new();
+    // `add --by` names a colleague as submitter; the person running it (WHORL_USER) is
+    // recorded as importer, and may not approve it.
+    lab.add(
+        "a.csv",
+        &ir_csv(&[(1715.0, 0.9, 10.0)]),
+        "ir",
+        "acetone",
+        &["--by", "c.colleague"],
+    );
+    let err = lab.fails(&["review", "1", "--approve", "--by", "t.tester"], 3);
+    assert!(err.contains("imported spectrum 1"), "{err}");
+    // The same through a manifest whose submitted_by column names someone else.
+    lab.write("m/b.csv", ir_csv(&[(1600.0, 0.9, 10.0)]));
+    lab.write(
+        "m/list.csv",
+        "file,technique,name,submitted_by\nb.csv,ir,benzene,c.colleague\n",
+    );
+    lab.ok(&["import", "m/list.csv", "--by", "d.importer"]);
+    let err = lab.fails(&["review", "2", "--approve", "--by", "D.Importer"], 3);
+    assert!(err.contains("imported spectrum 2"), "{err}");
+    let show = lab.json(&["show", "2"]);
+    assert_eq!(show["spectrum"]["submitted_by"], "c.colleague");
+    assert_eq!(show["spectrum"]["imported_by"], "d.importer");
+    lab.ok(&["review", "1", "2", "--approve", "--by", "r.second"]);
+}
+
+#[test]
+fn blank_and_hidden_names_are_refused_and_the_os_account_is_used_without_one() {
+    let lab = Lab::new();
+    lab.write("a.csv", ir_csv(&[(1715.0, 0.9, 10.0)]));
+    for bad in ["", "   ", "r\u{200B}x", "r\u{1b}[31mx"] {
+        let err = lab.refuses(
+            &[
+                "add",
+                "a.csv",
+                "--technique",
+                "ir",
+                "--name",
+                "acetone",
+                "--by",
+                bad,
+            ],
+            3,
+        );
+        assert!(err.contains("--by name"), "{bad:?}: {err}");
+    }
+    // Neither --by nor WHORL_USER, and USER pointing elsewhere: the account of the process's
+    // user id (as `id -un`, POSIX, reports it) is recorded.
+    let out = lab
+        .command(&["add", "a.csv", "--technique", "ir", "--name", "acetone"])
+        .env_remove("WHORL_USER")
+        .env("USER", "somebody.else")
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", text(&out));
+    let id = std::process::Command::new("id")
+        .arg("-un")
+        .output()
+        .unwrap();
+    let account = String::from_utf8(id.stdout).unwrap().trim().to_string();
+    let show = lab.json(&["show", "1"]);
+    assert_eq!(show["spectrum"]["submitted_by"], account.as_str());
+    assert_eq!(show["spectrum"]["imported_by"], account.as_str());
+    // Full-width letters are stored in NFKC form (UAX #15).
+    lab.write("b.csv", ir_csv(&[(1600.0, 0.9, 10.0)]));
+    lab.ok(&[
+        "add",
+        "b.csv",
+        "--technique",
+        "ir",
+        "--name",
+        "benzene",
+        "--by",
+        "\u{FF44}.x",
+    ]);
+    assert_eq!(lab.json(&["show", "2"])["spectrum"]["submitted_by"], "d.x");
+}
+
+#[test]
+fn review_of_the_same_id_twice_is_refused_and_a_pinned_revision_must_be_current() {
+    let lab = Lab::new();
+    lab.add(
+        "a.csv",
+        &ir_csv(&[(1715.0, 0.9, 10.0)]),
+        "ir",
+        "acetone",
+        &["--by", "a.analyst"],
+    );
+    let err = lab.refuses(&["review", "1", "1", "--approve", "--by", "r.second"], 3);
+    assert!(err.contains("more than once"), "{err}");
+    lab.ok(&[
+        "revise",
+        "1",
+        "--note",
+        "dried",
+        "--reason",
+        "notes",
+        "--by",
+        "a.analyst",
+    ]);
+    let err = lab.refuses(
+        &[
+            "review",
+            "1",
+            "--approve",
+            "--revision",
+            "1",
+            "--by",
+            "r.second",
+        ],
+        3,
+    );
+    assert!(err.contains("at revision 2"), "{err}");
+    lab.ok(&[
+        "review",
+        "1",
+        "--approve",
+        "--revision",
+        "2",
+        "--by",
+        "r.second",
+    ]);
+    let show = lab.json(&["show", "1"]);
+    assert_eq!(show["reviews"].as_array().unwrap().len(), 1);
+}
