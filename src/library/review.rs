@@ -47,8 +47,15 @@ impl Library {
         Ok(self.setting("allow_self_review")?.as_deref() == Some("true"))
     }
 
-    /// Sets the self-review policy, recording who changed it.
-    pub fn set_self_review(&mut self, allow: bool, actor: &str) -> Result<()> {
+    /// Sets the self-review policy, recording who changed it and why (a reason is required).
+    pub fn set_self_review(&mut self, allow: bool, actor: &str, reason: &str) -> Result<()> {
+        let reason = reason.trim();
+        if reason.is_empty() {
+            return Err(Error::invalid(
+                "a change of the review policy needs a reason",
+                "say why, e.g. --reason \"single-analyst site, approved by QA on 2026-03-02\"",
+            ));
+        }
         self.write(|tx| {
             // The event first: a trigger lets the setting change only to what the newest
             // event records.
@@ -57,7 +64,7 @@ impl Library {
                 actor,
                 "policy",
                 "library",
-                &serde_json::json!({ "allow_self_review": allow }),
+                &serde_json::json!({ "allow_self_review": allow, "reason": reason }),
             )?;
             put_setting(tx, "allow_self_review", &allow.to_string())?;
             Ok(((), vec![]))
@@ -328,7 +335,10 @@ mod tests {
         let a = add(&mut lib, &ir(1, "acetone", "alice"));
         let b = add(&mut lib, &ir(2, "butanone", "alice"));
         assert!(!lib.allow_self_review().unwrap());
-        lib.set_self_review(true, "admin").unwrap();
+        assert!(lib.set_self_review(true, "admin", " ").is_err());
+        assert!(!lib.allow_self_review().unwrap());
+        lib.set_self_review(true, "admin", "single-analyst night shift")
+            .unwrap();
         assert!(lib.allow_self_review().unwrap());
         approve(&mut lib, a, "alice").unwrap();
         let policy = lib.events(Some("library")).unwrap().pop().unwrap();
@@ -337,7 +347,8 @@ mod tests {
             ("policy", "admin")
         );
         assert_eq!(policy.payload["allow_self_review"], true);
-        lib.set_self_review(false, "admin").unwrap();
+        assert_eq!(policy.payload["reason"], "single-analyst night shift");
+        lib.set_self_review(false, "admin", "day shift").unwrap();
         assert!(approve(&mut lib, b, "alice").is_err());
     }
 

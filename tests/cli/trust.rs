@@ -312,3 +312,197 @@ fn review_of_the_same_id_twice_is_refused_and_a_pinned_revision_must_be_current(
     let show = lab.json(&["show", "1"]);
     assert_eq!(show["reviews"].as_array().unwrap().len(), 1);
 }
+
+/// A library with a history worth tampering with: spectra added by one person for another,
+/// an approval with a note, a rejection, a policy change and a trusted key.
+fn audited() -> Lab {
+    let lab = Lab::new();
+    for (i, name) in ["acetone", "butanone"].iter().enumerate() {
+        lab.add(
+            &format!("s{i}.csv"),
+            &ir_csv(&[(1700.0 + 60.0 * i as f64, 0.8, 12.0)]),
+            "ir",
+            name,
+            &["--by", "a.analyst"],
+        );
+    }
+    lab.ok(&[
+        "review",
+        "1",
+        "--approve",
+        "--by",
+        "b.reviewer",
+        "--note",
+        "matches the CoA",
+    ]);
+    lab.ok(&["review", "2", "--reject", "--by", "b.reviewer"]);
+    lab.ok(&[
+        "policy",
+        "--self-review",
+        "forbid",
+        "--reason",
+        "confirmed at audit",
+        "--by",
+        "q.manager",
+    ]);
+    let keys = lab.path("keys");
+    lab.ok(&["key", "create", "lab-a", "--dir", keys.to_str().unwrap()]);
+    lab.ok(&[
+        "key",
+        "trust",
+        keys.join("lab-a.pub").to_str().unwrap(),
+        "--reason",
+        "partner lab",
+    ]);
+    lab.ok(&["check"]);
+    lab
+}
+
+fn copy_dir(from: &std::path::Path, to: &std::path::Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for entry in std::fs::read_dir(from).unwrap() {
+        let entry = entry.unwrap();
+        let target = to.join(entry.file_name());
+        if entry.file_type().unwrap().is_dir() {
+            copy_dir(&entry.path(), &target);
+        } else {
+            std::fs::copy(entry.path(), target).unwrap();
+        }
+    }
+}
+
+/// Every trigger in the database, dropped as an attacker with the file would.
+fn drop_triggers(db: &rusqlite::Connection) {
+    let names: Vec<String> = db
+        .prepare("SELECT name FROM sqlite_master WHERE type = 'trigger'")
+        .unwrap()
+        .query_map([], |r| r.get(0))
+        .unwrap()
+        .collect::<rusqlite::Result<_>>()
+        .unwrap();
+    for n in names {
+        db.execute_batch(&format!("DROP TRIGGER \"{n}\"")).unwrap();
+    }
+}
+
+#[test]
+fn the_guarded_columns_refuse_edits_while_their_triggers_stand() {
+    let lab = audited();
+    let db = rusqlite::Connection::open(lab.library().join("library.sqlite")).unwrap();
+    for sql in [
+        "UPDATE spectrum SET submitted_by = 'x' WHERE id = 1",
+        "UPDATE spectrum SET imported_by = 'x' WHERE id = 1",
+        "UPDATE setting SET value = 'true' WHERE key = 'allow_self_review'",
+        "DELETE FROM setting WHERE key = 'allow_self_review'",
+        "UPDATE trusted_key SET reason = 'x'",
+        "DELETE FROM trusted_key",
+        "DELETE FROM spectrum WHERE id = 2",
+        "UPDATE review SET reviewer = 'x'",
+    ] {
+        let err = db.execute_batch(sql).unwrap_err().to_string();
+        assert!(!err.is_empty(), "{sql}");
+    }
+    drop(db);
+    lab.ok(&["check"]);
+}
+
+#[test]
+fn check_finds_every_tampered_sign_off_submitter_policy_and_key() {
+    let lab = audited();
+    // (table.column, edit, what check must name): each edit made directly in SQLite with the
+    // triggers dropped.
+    let cases: [(&str, &str, &str); 14] = [
+        (
+            "review.reviewer",
+            "UPDATE review SET reviewer = 'm.allory' WHERE spectrum_id = 1",
+            "review:1",
+        ),
+        (
+            "review.at",
+            "UPDATE review SET at = '2020-01-01T00:00:00.000Z' WHERE spectrum_id = 1",
+            "review:1",
+        ),
+        (
+            "review.decision",
+            "UPDATE review SET decision = 'approved' WHERE spectrum_id = 2",
+            "review:2",
+        ),
+        (
+            "review.meaning",
+            "UPDATE review SET meaning = 'whatever' WHERE spectrum_id = 1",
+            "review:1",
+        ),
+        (
+            "review.note",
+            "UPDATE review SET note = NULL WHERE spectrum_id = 1",
+            "review:1",
+        ),
+        (
+            "review.revision",
+            "UPDATE review SET revision = 7 WHERE spectrum_id = 1",
+            "review:1",
+        ),
+        (
+            "review (row deleted)",
+            "DELETE FROM review WHERE spectrum_id = 1",
+            "spectrum:1",
+        ),
+        (
+            "review (row forged)",
+            "INSERT INTO review (spectrum_id, revision, reviewer, at, decision, meaning) VALUES (2, 1, 'm.allory', '2026-01-01T00:00:00.000Z', 'approved', 'ok')",
+            "spectrum:2",
+        ),
+        (
+            "spectrum.submitted_by",
+            "UPDATE spectrum SET submitted_by = 'b.reviewer' WHERE id = 2",
+            "spectrum:2",
+        ),
+        (
+            "spectrum.imported_by",
+            "UPDATE spectrum SET imported_by = 'someone' WHERE id = 2",
+            "spectrum:2",
+        ),
+        (
+            "setting.allow_self_review",
+            "UPDATE setting SET value = 'true' WHERE key = 'allow_self_review'",
+            "setting:allow_self_review",
+        ),
+        (
+            "trusted_key.reason",
+            "UPDATE trusted_key SET reason = 'never checked'",
+            "key:",
+        ),
+        (
+            "trusted_key (row forged)",
+            "INSERT INTO trusted_key (name, public_key, trusted_by, trusted_at, reason) VALUES ('evil', 'aa', 'x', 'now', 'x')",
+            "key:aa",
+        ),
+        (
+            "trusted_key (row deleted)",
+            "DELETE FROM trusted_key",
+            "key:",
+        ),
+    ];
+    let mut found = 0;
+    for (what, sql, record) in cases {
+        let copy = lab.path(&format!("tampered-{found}"));
+        copy_dir(&lab.library(), &copy);
+        let db = rusqlite::Connection::open(copy.join("library.sqlite")).unwrap();
+        drop_triggers(&db);
+        db.execute_batch(sql).unwrap();
+        drop(db);
+        let out = lab.run(&["--library", copy.to_str().unwrap(), "check"]);
+        let t = text(&out);
+        assert_eq!(
+            out.status.code(),
+            Some(5),
+            "{what}: check did not fail\n{t}"
+        );
+        assert!(
+            t.lines().any(|l| l.starts_with(record)),
+            "{what}: no finding on {record}\n{t}"
+        );
+        found += 1;
+    }
+    assert_eq!(found, 14);
+}
