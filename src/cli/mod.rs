@@ -30,6 +30,7 @@ mod search;
 mod show;
 mod stats;
 mod withdraw;
+mod witness;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -101,6 +102,8 @@ pub enum Command {
     Log(log::LogArgs),
     /// Verify the audit chain, raw data, prepared data and fingerprint.
     Check(check::CheckArgs),
+    /// Write the audit chain's head to a witness file kept outside the library.
+    Witness(witness::WitnessArgs),
     /// Write a portable bundle (raw points, manifest with history, checksums).
     Export(export::ExportArgs),
     /// Re-run a saved search and compare the hits.
@@ -198,6 +201,7 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Log(a) => log::run(a, &ctx),
         Command::Check(a) => check::run(a, &ctx),
         Command::Export(a) => export::run(a, &ctx),
+        Command::Witness(a) => witness::run(a, &ctx),
         Command::Replay(a) => replay::run(a, &ctx),
         Command::Key(a) => key::run(a, &ctx),
         Command::Policy(a) => policy::run(a, &ctx),

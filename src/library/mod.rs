@@ -22,6 +22,7 @@ pub mod synthetic;
 #[cfg(test)]
 mod testing;
 mod vectors;
+mod witness;
 
 pub use crate::cache::{Snapshot, VectorRow};
 pub use crate::spectrum::{Metadata, Status};
@@ -45,6 +46,7 @@ pub use stage::{
     stage, usual_x_unit,
 };
 pub use store::Outcome;
+pub use witness::{WitnessedHead, read_witness};
 
 use std::path::{Path, PathBuf};
 

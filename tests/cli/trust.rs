@@ -506,3 +506,34 @@ fn check_finds_every_tampered_sign_off_submitter_policy_and_key() {
     }
     assert_eq!(found, 14);
 }
+
+#[test]
+fn check_with_a_witness_finds_a_chain_cut_back_below_a_recorded_head() {
+    let lab = audited();
+    let witness = lab.path("elsewhere/witness");
+    std::fs::create_dir_all(witness.parent().unwrap()).unwrap();
+    let w = witness.to_str().unwrap();
+    let out = lab.ok(&["witness", "write", w]);
+    assert!(out.contains("witnessed event"), "{out}");
+    lab.ok(&["check", "--witness", w]);
+    // The newest events removed and the head on record moved back to match: the chain alone
+    // looks whole, the witness does not.
+    let db = rusqlite::Connection::open(lab.library().join("library.sqlite")).unwrap();
+    drop_triggers(&db);
+    db.execute_batch(
+        "DELETE FROM event WHERE seq = (SELECT max(seq) FROM event);
+         UPDATE setting SET value = (SELECT seq || ':' || hash FROM event ORDER BY seq DESC LIMIT 1)
+             WHERE key = 'event_head';
+         DELETE FROM trusted_key;",
+    )
+    .unwrap();
+    drop(db);
+    let out = lab.run(&["check", "--witness", w]);
+    let t = text(&out);
+    assert_eq!(out.status.code(), Some(5), "{t}");
+    assert!(
+        t.lines()
+            .any(|l| l.starts_with("witness:") && l.contains("no longer holds")),
+        "{t}"
+    );
+}
