@@ -45,7 +45,7 @@ pub struct AddArgs {
     /// Where the material came from
     #[arg(long)]
     pub source: Option<String>,
-    /// Who submits it [default: $WHORL_USER, else the OS user]
+    /// Who submits it [default: $WHORL_USER, else the OS account]; whoever runs the command is recorded as its importer too
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
     /// Instrument
@@ -64,7 +64,10 @@ pub struct AddArgs {
 
 pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
-    let actor = identity(args.by.as_deref());
+    // Who the record says submitted it (`--by`), and who ran the command: the four-eyes rule
+    // keeps both from signing it off.
+    let submitter = identity(args.by.as_deref())?;
+    let actor = identity(None)?;
     let submission = Submission {
         path: args.file.clone(),
         technique: args.technique,
@@ -83,7 +86,7 @@ pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         },
         x_unit: args.x_unit,
         y_unit: args.y_unit,
-        submitted_by: actor.clone(),
+        submitted_by: submitter,
     };
     let staged = stage(lib.recipes(), submission)?;
     let warnings = staged.prepared.warnings.clone();

@@ -9,6 +9,10 @@ use super::{Context, EXIT_MISMATCH, output};
 
 #[derive(Debug, Args)]
 pub struct CheckArgs {
+    /// Also verify that the audit chain extends every head recorded in this witness file
+    /// (written by `whorl witness write`, kept outside the library)
+    #[arg(long, value_name = "FILE")]
+    pub witness: Option<std::path::PathBuf>,
     /// Print the report as JSON
     #[arg(long)]
     pub json: bool,
@@ -17,10 +21,13 @@ pub struct CheckArgs {
 pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
     let bar = output::progress(0, "checking");
-    let report = lib.check(&|done, total| {
+    let mut report = lib.check(&|done, total| {
         bar.set_length(total as u64);
         bar.set_position(done as u64);
     })?;
+    if let Some(file) = &args.witness {
+        report.findings.extend(lib.verify_witness(file)?);
+    }
     bar.finish_and_clear();
     let mut out = std::io::stdout().lock();
     if args.json {

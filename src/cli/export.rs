@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::Args;
-use whorl::library::Status;
+use whorl::library::{KeyPair, Status};
 
 use super::{Context, identity, output};
 
@@ -22,6 +22,9 @@ pub struct ExportArgs {
     /// Who exports [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
+    /// Sign the bundle with this private key (NAME.key from `whorl key create`)
+    #[arg(long, value_name = "KEYFILE")]
+    pub sign: Option<PathBuf>,
     /// Print bundle.json as JSON
     #[arg(long)]
     pub json: bool,
@@ -29,12 +32,14 @@ pub struct ExportArgs {
 
 pub fn run(args: ExportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
+    let signer = args.sign.as_deref().map(KeyPair::read).transpose()?;
     let bar = output::progress(0, "exporting");
     let report = lib.export(
         &args.dir,
         args.filter.as_deref(),
         args.status,
-        &identity(args.by.as_deref()),
+        &identity(args.by.as_deref())?,
+        signer.as_ref(),
         &|done, total| {
             bar.set_length(total as u64);
             bar.set_position(done as u64);
@@ -52,6 +57,13 @@ pub fn run(args: ExportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             report.dir.display()
         )?;
         writeln!(out, "bundle fingerprint {}", report.info.fingerprint)?;
+        match &signer {
+            Some(key) => writeln!(out, "signed with key {} {}", key.name(), key.public().hex())?,
+            None => writeln!(
+                out,
+                "unsigned: a library imports it only with --untrusted (sign with --sign KEYFILE)"
+            )?,
+        }
     }
     Ok(ExitCode::SUCCESS)
 }

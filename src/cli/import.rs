@@ -6,7 +6,9 @@ use std::process::ExitCode;
 
 use clap::Args;
 use serde_json::json;
-use whorl::library::{ImportReport, Library, Outcome, import_rows, read_manifest};
+use whorl::library::{
+    Acceptance, BundleImport, ImportReport, Library, Outcome, Trust, import_rows, read_manifest,
+};
 
 use super::{Context, EXIT_INPUT, identity, output};
 
@@ -21,6 +23,9 @@ pub struct ImportArgs {
     /// Who imports, and the submitter of rows without submitted_by [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
+    /// Accept a bundle that is unsigned or not signed by a trusted key; recorded as untrusted
+    #[arg(long)]
+    pub untrusted: bool,
     /// Print the summary as JSON
     #[arg(long)]
     pub json: bool,
@@ -34,7 +39,7 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let report = import_manifest(
         &mut lib,
         &args.manifest,
-        &identity(args.by.as_deref()),
+        &identity(args.by.as_deref())?,
         args.all_or_nothing,
         true,
     )?;
@@ -88,7 +93,16 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
 }
 
 fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
-    let (info, outcomes) = lib.import_bundle(&args.manifest, &identity(args.by.as_deref()))?;
+    let accept = if args.untrusted {
+        Acceptance::Untrusted
+    } else {
+        Acceptance::Trusted
+    };
+    let BundleImport {
+        info,
+        trust,
+        outcomes,
+    } = lib.import_bundle(&args.manifest, &identity(args.by.as_deref())?, accept)?;
     let added = outcomes
         .iter()
         .filter(|o| matches!(o, Outcome::Added { .. }))
@@ -98,7 +112,7 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
     if args.json {
         output::json(
             &mut out,
-            &json!({ "bundle": info, "imported": added, "already_present": present, "rejected": [], "fingerprint": lib.fingerprint()? }),
+            &json!({ "bundle": info, "signature": trust, "imported": added, "already_present": present, "rejected": [], "fingerprint": lib.fingerprint()? }),
         )?;
     } else {
         writeln!(
@@ -109,10 +123,24 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
             info.exported_by,
             info.exported_at
         )?;
+        match &trust {
+            Trust::Signed { key, public_key } => {
+                writeln!(out, "signed by trusted key {key} {public_key}")?
+            }
+            Trust::Untrusted { why } => {
+                writeln!(out, "accepted as untrusted (--untrusted): {why}")?
+            }
+        }
         writeln!(
             out,
             "imported {added}, already present {present}, rejected 0"
         )?;
+        if added > 0 {
+            writeln!(
+                out,
+                "references arrive pending local review; their sign-offs elsewhere are kept as history"
+            )?;
+        }
         writeln!(out, "bundle fingerprint  {}", info.fingerprint)?;
         writeln!(out, "library fingerprint {}", lib.fingerprint()?)?;
     }

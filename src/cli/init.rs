@@ -139,7 +139,7 @@ pub fn print_recipes<'a>(
 
 pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let recipes = args.recipes()?;
-    let lib = Library::init_with(&ctx.library, &identity(args.by.as_deref()), recipes)?;
+    let lib = Library::init_with(&ctx.library, &identity(args.by.as_deref())?, recipes)?;
     let mut out = std::io::stdout().lock();
     if args.json {
         super::output::json(

@@ -13,6 +13,7 @@ mod hits;
 mod identify;
 mod import;
 mod init;
+mod key;
 mod list;
 mod log;
 mod man;
@@ -29,6 +30,7 @@ mod search;
 mod show;
 mod stats;
 mod withdraw;
+mod witness;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -124,10 +126,14 @@ pub enum Command {
     Log(log::LogArgs),
     /// Verify the audit chain, raw data, prepared data and fingerprint.
     Check(check::CheckArgs),
+    /// Write the audit chain's head to a witness file kept outside the library.
+    Witness(witness::WitnessArgs),
     /// Write a portable bundle (raw points, manifest with history, checksums).
     Export(export::ExportArgs),
     /// Re-run a saved search and compare the hits.
     Replay(replay::ReplayArgs),
+    /// Make a lab key pair, or trust another lab's key for signed bundles.
+    Key(key::KeyArgs),
     /// Show or change the library's review policy.
     Policy(policy::PolicyArgs),
     /// Show the preparation recipes, or change one and prepare its spectra again.
@@ -220,7 +226,9 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Log(a) => log::run(a, &ctx),
         Command::Check(a) => check::run(a, &ctx),
         Command::Export(a) => export::run(a, &ctx),
+        Command::Witness(a) => witness::run(a, &ctx),
         Command::Replay(a) => replay::run(a, &ctx),
+        Command::Key(a) => key::run(a, &ctx),
         Command::Policy(a) => policy::run(a, &ctx),
         Command::Recipe(a) => recipe::run(a, &ctx),
         Command::Demo(a) => demo::run(a, &ctx),
@@ -276,15 +284,71 @@ pub fn exit_code(err: &anyhow::Error) -> u8 {
     }
 }
 
-/// The identity recorded on events: `--by`, else `WHORL_USER`, else the OS user name.
-pub fn identity(by: Option<&str>) -> String {
-    by.map(str::to_string)
-        .or_else(|| std::env::var("WHORL_USER").ok())
-        .or_else(|| std::env::var("USER").ok())
-        .or_else(|| std::env::var("USERNAME").ok())
-        .map(|s| s.trim().to_string())
-        .filter(|s| !s.is_empty())
-        .unwrap_or_else(|| "unknown".to_string())
+/// The identity recorded on events: `--by`, else `WHORL_USER`, else the operating-system
+/// account (looked up from the process's user id, not from `$USER`). The name is checked and
+/// stored in NFKC form (`whorl::library::Person`): empty, blank, control and invisible
+/// characters are refused.
+pub fn identity(by: Option<&str>) -> anyhow::Result<String> {
+    let (raw, what) = match by {
+        Some(b) => (b.to_string(), "--by"),
+        None => match std::env::var("WHORL_USER") {
+            Ok(u) if !u.is_empty() => (u, "WHORL_USER"),
+            _ => (os_account()?, "operating-system account"),
+        },
+    };
+    Ok(whorl::library::Person::new(&raw, what)?.name().to_string())
+}
+
+/// The name of the account the process runs as: `getuid` and its passwd entry
+/// (`getpwuid_r`, POSIX.1-2008).
+#[cfg(unix)]
+fn os_account() -> anyhow::Result<String> {
+    // SAFETY: getuid has no preconditions.
+    let uid = unsafe { libc::getuid() };
+    let mut buf = vec![0u8; 4096];
+    loop {
+        // SAFETY: `pwd` and `result` are valid for writes, `buf` is valid for `buf.len()`
+        // bytes, and the strings `pwd` points to are read only while `buf` lives.
+        let mut pwd: libc::passwd = unsafe { std::mem::zeroed() };
+        let mut result: *mut libc::passwd = std::ptr::null_mut();
+        let rc = unsafe {
+            libc::getpwuid_r(
+                uid,
+                &mut pwd,
+                buf.as_mut_ptr().cast(),
+                buf.len(),
+                &mut result,
+            )
+        };
+        if rc == libc::ERANGE && buf.len() < 1 << 20 {
+            buf.resize(buf.len() * 2, 0);
+            continue;
+        }
+        if rc != 0 || result.is_null() || pwd.pw_name.is_null() {
+            return Err(whorl::Error::invalid(
+                format!(
+                    "the operating-system account (user id {uid}) has no name in the user database"
+                ),
+                "say who you are with --by NAME or WHORL_USER=NAME",
+            )
+            .into());
+        }
+        // SAFETY: getpwuid_r succeeded, so pw_name points to a NUL-terminated string in `buf`.
+        let name = unsafe { std::ffi::CStr::from_ptr(pwd.pw_name) };
+        return Ok(name.to_string_lossy().into_owned());
+    }
+}
+
+/// Elsewhere the account name the system sets for the session.
+#[cfg(not(unix))]
+fn os_account() -> anyhow::Result<String> {
+    std::env::var("USERNAME").map_err(|_| {
+        whorl::Error::invalid(
+            "the operating-system account is unknown",
+            "say who you are with --by NAME or WHORL_USER=NAME",
+        )
+        .into()
+    })
 }
 
 #[cfg(test)]
@@ -364,7 +428,23 @@ mod tests {
     }
 
     #[test]
-    fn identity_prefers_the_flag() {
-        assert_eq!(identity(Some("r.reviewer")), "r.reviewer");
+    fn identity_prefers_the_flag_and_stores_nfkc() {
+        assert_eq!(identity(Some("r.reviewer")).unwrap(), "r.reviewer");
+        // Full-width letters (UAX #15: NFKC maps them to ASCII).
+        assert_eq!(identity(Some("\u{FF52}.x")).unwrap(), "r.x");
+        for bad in ["", "   ", "r\u{200B}x", "r\nx"] {
+            assert!(identity(Some(bad)).is_err(), "{bad:?}");
+        }
+    }
+
+    #[test]
+    fn the_os_account_comes_from_the_user_database() {
+        // The passwd entry of the process's uid, compared with `id -un` (POSIX `id`).
+        let out = std::process::Command::new("id")
+            .arg("-un")
+            .output()
+            .unwrap();
+        let expected = String::from_utf8(out.stdout).unwrap().trim().to_string();
+        assert_eq!(os_account().unwrap(), expected);
     }
 }

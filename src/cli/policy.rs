@@ -18,6 +18,9 @@ pub struct PolicyArgs {
     /// Whether a submitter may review their own spectra (forbidden by default)
     #[arg(long, value_enum)]
     pub self_review: Option<Allow>,
+    /// Why the policy changes (required with --self-review; recorded in the audit trail)
+    #[arg(long, requires = "self_review")]
+    pub reason: Option<String>,
     /// Who changes the policy [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
@@ -26,7 +29,18 @@ pub struct PolicyArgs {
 pub fn run(args: PolicyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
     if let Some(a) = args.self_review {
-        lib.set_self_review(matches!(a, Allow::Allow), &identity(args.by.as_deref()))?;
+        let Some(reason) = args.reason.as_deref() else {
+            return Err(whorl::Error::invalid(
+                "a change of the review policy needs a reason",
+                "add --reason \"why the policy changes\"; it is recorded in the audit trail",
+            )
+            .into());
+        };
+        lib.set_self_review(
+            matches!(a, Allow::Allow),
+            &identity(args.by.as_deref())?,
+            reason,
+        )?;
     }
     let state = if lib.allow_self_review()? {
         "allowed"

@@ -124,7 +124,7 @@ pub fn run(args: RecipeArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     };
     let recipe = args.apply(technique, lib.recipes().get(&technique))?;
     let bar = output::progress(0, "preparing again");
-    let change = lib.change_recipe(recipe, &identity(args.by.as_deref()), reason, &|d, t| {
+    let change = lib.change_recipe(recipe, &identity(args.by.as_deref())?, reason, &|d, t| {
         bar.set_length(t as u64);
         bar.set_position(d as u64);
     })?;

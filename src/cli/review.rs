@@ -26,6 +26,9 @@ pub struct ReviewArgs {
     /// What the signature means [default: a statement of the decision]
     #[arg(long)]
     pub meaning: Option<String>,
+    /// The revision you looked at: refused if the spectrum has been revised since
+    #[arg(long, value_name = "N")]
+    pub revision: Option<i64>,
     /// The reviewer's note
     #[arg(long)]
     pub note: Option<String>,
@@ -41,9 +44,17 @@ pub fn run(args: ReviewArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     } else {
         Decision::Reject
     };
-    let reviewer = identity(args.by.as_deref());
-    let reviews = lib.review_many(
+    let reviewer = identity(args.by.as_deref())?;
+    if args.revision.is_some() && args.ids.len() > 1 {
+        return Err(whorl::Error::invalid(
+            "--revision pins one spectrum's revision, and several spectra were named",
+            "review spectra one at a time with --revision",
+        )
+        .into());
+    }
+    let reviews = lib.review_pinned(
         &args.ids,
+        args.revision,
         &reviewer,
         decision,
         args.meaning.as_deref(),

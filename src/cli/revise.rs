@@ -85,7 +85,7 @@ pub fn run(args: ReviseArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let number = lib.revise(
         args.id,
         &patch,
-        &identity(args.by.as_deref()),
+        &identity(args.by.as_deref())?,
         Some(args.reason.as_str()),
     )?;
     writeln!(

@@ -21,7 +21,7 @@ pub struct WithdrawArgs {
 
 pub fn run(args: WithdrawArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
-    lib.withdraw(args.id, &identity(args.by.as_deref()), &args.reason)?;
+    lib.withdraw(args.id, &identity(args.by.as_deref())?, &args.reason)?;
     writeln!(
         std::io::stdout().lock(),
         "spectrum {} withdrawn: {}",

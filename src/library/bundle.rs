@@ -12,7 +12,8 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
-use super::manifest::{KNOWN_COLUMNS, resolve_within};
+use super::keys::{KeyPair, SIGNATURE_FILE, signature_line};
+use super::manifest::{KNOWN_COLUMNS, ManifestRow, resolve_within};
 use super::records::SpectrumRecord;
 use super::{ContentSum, Library, fingerprint, now, record_hash};
 use crate::error::{Error, Location, Result};
@@ -99,7 +100,8 @@ fn points_csv(rec: &SpectrumRecord, points: &[(f64, f64)]) -> String {
 
 impl Library {
     /// Writes a bundle of the spectra matching `query` and `status` (all when both are `None`)
-    /// into `dir`, which must not exist or be empty. The bundle is written beside `dir` and
+    /// into `dir`, which must not exist or be empty, signed with `signer` if given (a
+    /// `SIGNATURE` over `SHA256SUMS`). The bundle is written beside `dir` and
     /// renamed into place, so a failed export leaves no half bundle. `progress(done, total)`
     /// is called as spectra are written.
     pub fn export(
@@ -108,6 +110,7 @@ impl Library {
         query: Option<&str>,
         status: Option<Status>,
         actor: &str,
+        signer: Option<&KeyPair>,
         progress: &dyn Fn(usize, usize),
     ) -> Result<ExportReport> {
         if dir.exists()
@@ -235,7 +238,14 @@ impl Library {
         for (file, sum) in &sums {
             let _ = writeln!(listing, "{sum}  {file}");
         }
-        std::fs::write(staging.join("SHA256SUMS"), listing).map_err(io("writing SHA256SUMS"))?;
+        std::fs::write(staging.join("SHA256SUMS"), &listing).map_err(io("writing SHA256SUMS"))?;
+        if let Some(key) = signer {
+            std::fs::write(
+                staging.join(SIGNATURE_FILE),
+                signature_line(key, listing.as_bytes()),
+            )
+            .map_err(io("writing SIGNATURE"))?;
+        }
         if dir.exists() {
             std::fs::remove_dir(dir).map_err(io(format!("replacing empty {}", dir.display())))?;
         }
@@ -282,16 +292,74 @@ fn csv_error(e: csv::Error) -> Error {
     )
 }
 
+/// The state hash of what a bundle holds, recomputed from its manifest as the export computed
+/// it: the recipes of `bundle.json` and, for every searchable row, its technique, status, raw
+/// hash (each row's points are checked against it when stored) and metadata.
+pub(super) fn content_state_hash(
+    dir: &Path,
+    info: &BundleInfo,
+    rows: &[ManifestRow],
+) -> Result<String> {
+    let info_path = || Location::file(dir.join("bundle.json"));
+    let recipes: Vec<crate::prepare::Recipe> = serde_json::from_value(info.recipes.clone())
+        .map_err(|e| {
+            Error::input(
+                info_path(),
+                format!("the recipes cannot be read: {e}"),
+                "export the bundle again",
+            )
+        })?;
+    let mut content = ContentSum::default();
+    for row in rows {
+        let Ok(sub) = &row.submission else { continue };
+        let status: Status = row
+            .provenance
+            .get("whorl_status")
+            .map(String::as_str)
+            .unwrap_or("")
+            .parse()
+            .map_err(|_| {
+                Error::input(
+                    Location::line(dir.join("manifest.csv"), row.line),
+                    "the bundle row has an unreadable whorl_status",
+                    "export the bundle again",
+                )
+            })?;
+        if status.searchable() {
+            content.add(&record_hash(
+                sub.technique.name(),
+                status.name(),
+                row.provenance
+                    .get("whorl_raw_sha256")
+                    .map(String::as_str)
+                    .unwrap_or(""),
+                &serde_json::to_string(&sub.metadata)?,
+            ));
+        }
+    }
+    Ok(fingerprint(&serde_json::to_string(&recipes)?, content))
+}
+
 /// Checks `SHA256SUMS` against every file it lists, and that every file in the bundle is listed.
 pub fn verify_bundle(dir: &Path) -> Result<BundleInfo> {
+    verify_listing(dir, &read_sums(dir)?)
+}
+
+/// The text of a bundle's `SHA256SUMS`.
+pub(super) fn read_sums(dir: &Path) -> Result<String> {
     let sums_path = dir.join("SHA256SUMS");
-    let text = std::fs::read_to_string(&sums_path).map_err(|e| {
+    std::fs::read_to_string(&sums_path).map_err(|e| {
         Error::input(
             Location::file(&sums_path),
             format!("cannot read the checksum list: {e}"),
             "a bundle folder holds SHA256SUMS, manifest.csv, bundle.json and spectra/",
         )
-    })?;
+    })
+}
+
+/// [`verify_bundle`] with the text of `SHA256SUMS` already read (and its signature checked).
+pub(super) fn verify_listing(dir: &Path, text: &str) -> Result<BundleInfo> {
+    let sums_path = dir.join("SHA256SUMS");
     let mut listed = BTreeSet::new();
     for (i, line) in text
         .lines()
@@ -370,7 +438,8 @@ mod tests {
     use crate::library::testing::{curated, rows};
 
     fn export(lib: &Library, dir: &Path) -> ExportReport {
-        lib.export(dir, None, None, "carol", &|_, _| {}).unwrap()
+        lib.export(dir, None, None, "carol", None, &|_, _| {})
+            .unwrap()
     }
 
     /// The SHA256SUMS location and reason of a refused bundle.
@@ -430,7 +499,11 @@ mod tests {
         assert_eq!(line, Some(listed_at(&dir, "spectra/2.ir.csv")));
         // Nothing is imported from it.
         let mut other = Library::in_memory("t").unwrap();
-        assert!(other.import_bundle(&dir, "dave").is_err());
+        assert!(
+            other
+                .import_bundle(&dir, "dave", crate::library::Acceptance::Untrusted)
+                .is_err()
+        );
         assert_eq!(rows(&other, "spectrum"), 0);
     }
 

@@ -6,8 +6,9 @@ use std::path::Path;
 
 use rayon::prelude::*;
 
-use super::bundle::{BundleInfo, RevisionEntry, verify_bundle};
+use super::bundle::{BundleInfo, RevisionEntry, content_state_hash, read_sums, verify_listing};
 use super::events::append_event;
+use super::keys::{SIGNATURE_FILE, read_signature};
 use super::manifest::read_bundle_manifest;
 use super::records::Review;
 use super::state::reweigh;
@@ -19,14 +20,82 @@ use super::{Library, Outcome, Staged, stage};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::Status;
 
+/// Which bundles an import accepts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Acceptance {
+    /// Only bundles signed by a key the library trusts (`whorl key trust`).
+    Trusted,
+    /// Also unsigned or wrongly signed bundles, recorded as untrusted on every event.
+    Untrusted,
+}
+
+/// What the signature check of a bundle found.
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+#[serde(tag = "trust", rename_all = "snake_case")]
+pub enum Trust {
+    /// Signed by a key the library trusts.
+    Signed {
+        /// The key's name.
+        key: String,
+        /// The public key (hex).
+        public_key: String,
+    },
+    /// Accepted without a trusted signature (`--untrusted`), and why it had none.
+    Untrusted {
+        /// Why: unsigned, signed by a key not trusted here, or a signature that does not verify.
+        why: String,
+    },
+}
+
+/// What a bundle import did.
+#[derive(Debug, Clone)]
+pub struct BundleImport {
+    /// `bundle.json`.
+    pub info: BundleInfo,
+    /// Whose signature it carried.
+    pub trust: Trust,
+    /// One outcome per manifest row.
+    pub outcomes: Vec<Outcome>,
+}
+
 impl Library {
-    /// Imports a bundle folder. Every checksum is verified first; if any file is missing,
-    /// altered or outside the folder, nothing is imported. The whole bundle is one
-    /// transaction. Spectra already present (same technique and raw points) are skipped.
-    pub fn import_bundle(&mut self, dir: &Path, actor: &str) -> Result<(BundleInfo, Vec<Outcome>)> {
-        let info = verify_bundle(dir)?;
+    /// Imports a bundle folder. Its signature is checked against the keys the library trusts
+    /// (an unsigned or wrongly signed bundle is refused unless `accept` is
+    /// [`Acceptance::Untrusted`]); then every checksum, then the state hash; if any fails,
+    /// nothing is imported. The whole bundle is one transaction. Spectra already present (same
+    /// technique and raw points) are skipped; the others arrive pending local review.
+    pub fn import_bundle(
+        &mut self,
+        dir: &Path,
+        actor: &str,
+        accept: Acceptance,
+    ) -> Result<BundleImport> {
+        let sums = read_sums(dir)?;
+        let trust = self.bundle_trust(dir, sums.as_bytes())?;
+        if let (Trust::Untrusted { why }, Acceptance::Trusted) = (&trust, accept) {
+            return Err(Error::input(
+                Location::file(dir.join(SIGNATURE_FILE)),
+                format!("the bundle is not signed by a key this library trusts: {why}"),
+                "ask the exporting lab for its public key and trust it (`whorl key trust NAME.pub --reason ...`), or import with --untrusted (its spectra arrive pending, recorded as untrusted); nothing was imported",
+            ));
+        }
+        let info = verify_listing(dir, &sums)?;
         let manifest = dir.join("manifest.csv");
         let rows = read_bundle_manifest(&manifest)?;
+        // The state hash written at export must be the one its content gives: a bundle edited
+        // and re-summed but not re-hashed (a status changed, a sign-off added) is refused here.
+        let recomputed = content_state_hash(dir, &info, &rows)?;
+        if recomputed != info.fingerprint {
+            return Err(Error::input(
+                Location::file(dir.join("bundle.json")),
+                format!(
+                    "the bundle's state hash {} does not match its content, which hashes to {}",
+                    short(&info.fingerprint),
+                    short(&recomputed)
+                ),
+                "the manifest or bundle.json was changed after export; export the bundle again from its source; nothing was imported",
+            ));
+        }
         let recipes = self.recipes.clone();
         let staged: Vec<(usize, Result<Staged>, BTreeMap<String, String>)> = rows
             .into_par_iter()
@@ -51,13 +120,21 @@ impl Library {
                 }
             }
         }
-        let source = format!("bundle {} ({})", &info.fingerprint[..16], dir.display());
+        let source = format!(
+            "{} bundle {} ({})",
+            match &trust {
+                Trust::Signed { key, .. } => format!("signed ({key})"),
+                Trust::Untrusted { .. } => "untrusted".to_string(),
+            },
+            short(&info.fingerprint),
+            dir.display()
+        );
         let outcomes = self.write(|tx| {
             let mut outcomes = Vec::with_capacity(good.len());
             let mut touched = Vec::new();
             for (line, staged, provenance) in &good {
                 let at = || Location::line(&manifest, *line);
-                let o = import_one(tx, staged, provenance, actor, &source, &info, at)?;
+                let o = import_one(tx, staged, provenance, actor, (&source, &trust), &info, at)?;
                 if let Outcome::Added { spectrum_id, .. } = o {
                     touched.push(spectrum_id);
                 }
@@ -65,7 +142,46 @@ impl Library {
             }
             Ok((outcomes, touched))
         })?;
-        Ok((info, outcomes))
+        Ok(BundleImport {
+            info,
+            trust,
+            outcomes,
+        })
+    }
+
+    /// Whether `sums` (the bytes of the bundle's `SHA256SUMS`) carry a valid signature by a
+    /// key the library trusts.
+    fn bundle_trust(&self, dir: &Path, sums: &[u8]) -> Result<Trust> {
+        let Some(sig) = read_signature(dir)? else {
+            return Ok(Trust::Untrusted {
+                why: "it is unsigned".into(),
+            });
+        };
+        let public_key = sig.key.hex();
+        if !self
+            .trusted_keys()?
+            .iter()
+            .any(|k| k.public_key == public_key)
+        {
+            return Ok(Trust::Untrusted {
+                why: format!(
+                    "it is signed by key {} ({public_key}), which this library does not trust",
+                    sig.key.name()
+                ),
+            });
+        }
+        if !sig.signs(sums) {
+            return Ok(Trust::Untrusted {
+                why: format!(
+                    "its signature by key {} does not verify: SHA256SUMS was changed after signing",
+                    sig.key.name()
+                ),
+            });
+        }
+        Ok(Trust::Signed {
+            key: sig.key.name().to_string(),
+            public_key,
+        })
     }
 }
 
@@ -74,7 +190,7 @@ fn import_one(
     staged: &Staged,
     provenance: &BTreeMap<String, String>,
     actor: &str,
-    source: &str,
+    (source, trust): (&str, &Trust),
     info: &BundleInfo,
     at: impl Fn() -> Location,
 ) -> Result<Outcome> {
@@ -114,18 +230,26 @@ fn import_one(
     }
     let compound_id = find_or_create_compound(tx, metadata)?;
     let withdrawn = Some(field("whorl_withdrawn_reason")).filter(|s| !s.is_empty());
+    // A reference from another library is pending local acceptance whatever its status there:
+    // its sign-offs were given under another library's policy, by people this one does not
+    // know, possibly for a name it no longer has. A withdrawal grants nothing and is kept.
+    let arrives = match status {
+        Status::Withdrawn => Status::Withdrawn,
+        Status::Pending | Status::Verified => Status::Pending,
+    };
     let spectrum_id = insert_spectrum(
         tx,
         &NewSpectrum {
             compound_id,
             technique,
-            status,
+            status: arrives,
             current_revision: current,
             file_name: field("whorl_original_file"),
             file_sha256: field("whorl_original_file_sha256"),
             raw_sha256: &raw_sha256,
             raw: &staged.raw,
             submitted_by: &staged.submission.submitted_by,
+            imported_by: actor,
             created_at: field("whorl_created_at"),
             withdrawn_reason: withdrawn,
         },
@@ -146,7 +270,8 @@ fn import_one(
     }
     let imported_from = format!("{source}, spectrum {}", field("whorl_original_id"));
     for r in &reviews {
-        // The sign-off is kept as given, on the new spectrum, saying where it came from.
+        // The sign-off is kept as given, on the new spectrum, saying where it came from: history,
+        // never a local approval.
         insert_review(
             tx,
             &Review {
@@ -158,14 +283,24 @@ fn import_one(
     }
     insert_prepared(tx, spectrum_id, &staged.prepared)?;
     let meta_json = serde_json::to_string(metadata)?;
-    reweigh(tx, technique, &raw_sha256, None, Some((status, &meta_json)))?;
+    reweigh(
+        tx,
+        technique,
+        &raw_sha256,
+        None,
+        Some((arrives, &meta_json)),
+    )?;
     let payload = serde_json::json!({
         "spectrum": spectrum_id,
         "compound": compound_id,
         "technique": technique,
         "raw_sha256": raw_sha256,
         "file_sha256": field("whorl_original_file_sha256"),
-        "status": status,
+        "status": arrives,
+        "status_in_bundle": status,
+        "submitted_by": staged.submission.submitted_by,
+        "imported_from": imported_from,
+        "signature": trust,
         "current_revision": current,
         "revisions": revisions,
         "reviews": reviews,
@@ -184,16 +319,30 @@ fn import_one(
     })
 }
 
+/// The first 16 hex digits of a hash, or all of a shorter (damaged) one.
+fn short(hash: &str) -> &str {
+    hash.get(..16).unwrap_or(hash)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::library::testing::{add, curated, ir, rows};
+    use crate::library::{Decision, KeyPair};
+    use std::path::Path;
 
     fn exported(lib: &Library) -> (tempfile::TempDir, std::path::PathBuf) {
         let tmp = tempfile::tempdir().unwrap();
         let dir = tmp.path().join("bundle");
-        lib.export(&dir, None, None, "carol", &|_, _| {}).unwrap();
+        lib.export(&dir, None, None, "carol", None, &|_, _| {})
+            .unwrap();
         (tmp, dir)
+    }
+
+    /// Imports a bundle as untrusted (unsigned bundles need it), as "dave".
+    fn untrusted(lib: &mut Library, dir: &Path) -> Result<(BundleInfo, Vec<Outcome>)> {
+        let done = lib.import_bundle(dir, "dave", Acceptance::Untrusted)?;
+        Ok((done.info, done.outcomes))
     }
 
     fn added(outcomes: &[Outcome]) -> Vec<i64> {
@@ -211,15 +360,16 @@ mod tests {
         let source = curated();
         let (_tmp, dir) = exported(&source);
         let mut lib = Library::in_memory("t").unwrap();
-        let (info, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        let (info, outcomes) = untrusted(&mut lib, &dir).unwrap();
         assert_eq!(added(&outcomes), [1, 2, 3]);
-        assert_eq!(lib.fingerprint().unwrap(), info.fingerprint);
-        assert_eq!(lib.fingerprint().unwrap(), source.fingerprint().unwrap());
+        assert_eq!(info.fingerprint, source.fingerprint().unwrap());
         let status = |id| lib.spectrum(id).unwrap().status;
+        // Verified at home, pending local acceptance here.
         assert_eq!(
             [status(1), status(2), status(3)],
-            [Status::Verified, Status::Pending, Status::Withdrawn]
+            [Status::Pending, Status::Pending, Status::Withdrawn]
         );
+        assert_ne!(lib.fingerprint().unwrap(), info.fingerprint);
         // The sign-off comes along, saying where from.
         let reviews = lib.reviews(1).unwrap();
         assert_eq!(reviews.len(), 1);
@@ -227,7 +377,7 @@ mod tests {
         assert_eq!(reviews[0].note.as_deref(), Some("matches the CoA"));
         let from = reviews[0].imported_from.as_deref().unwrap();
         assert!(
-            from.starts_with(&format!("bundle {}", &info.fingerprint[..16])),
+            from.starts_with(&format!("untrusted bundle {}", &info.fingerprint[..16])),
             "{from}"
         );
         assert!(from.ends_with("spectrum 1"), "{from}");
@@ -254,13 +404,248 @@ mod tests {
         assert!(report.findings.is_empty(), "{:?}", report.findings);
     }
 
+    /// Rewrites `SHA256SUMS` for the files as they are now, as anyone editing a bundle can.
+    fn reseal(dir: &Path) {
+        let sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        let mut out = String::new();
+        for line in sums.lines() {
+            let (_, file) = line.split_once("  ").unwrap();
+            let bytes = std::fs::read(dir.join(file)).unwrap();
+            out.push_str(&format!(
+                "{}  {file}\n",
+                crate::spectrum::sha256_hex(&bytes)
+            ));
+        }
+        std::fs::write(dir.join("SHA256SUMS"), out).unwrap();
+    }
+
+    /// Edits the manifest cell `column` of the row of original spectrum `id`.
+    fn edit_manifest(dir: &Path, id: &str, column: &str, value: &str) {
+        let path = dir.join("manifest.csv");
+        let mut r = csv::Reader::from_path(&path).unwrap();
+        let header = r.headers().unwrap().clone();
+        let at = |name: &str| header.iter().position(|h| h == name).unwrap();
+        let mut w = csv::Writer::from_writer(Vec::new());
+        w.write_record(&header).unwrap();
+        for rec in r.records() {
+            let mut row: Vec<String> = rec.unwrap().iter().map(str::to_string).collect();
+            if row[at("whorl_original_id")] == id {
+                row[at(column)] = value.to_string();
+            }
+            w.write_record(&row).unwrap();
+        }
+        std::fs::write(&path, w.into_inner().unwrap()).unwrap();
+    }
+
+    /// Sets the state hash written in `bundle.json`.
+    fn set_state_hash(dir: &Path, hash: &str) {
+        let path = dir.join("bundle.json");
+        let mut info: serde_json::Value =
+            serde_json::from_slice(&std::fs::read(&path).unwrap()).unwrap();
+        info["fingerprint"] = hash.into();
+        std::fs::write(&path, serde_json::to_string_pretty(&info).unwrap() + "\n").unwrap();
+    }
+
+    fn refused_at_bundle_json(lib: &mut Library, dir: &Path) -> String {
+        match untrusted(lib, dir) {
+            Err(Error::Input { at, reason, hint }) => {
+                assert_eq!(at.file, dir.join("bundle.json"), "{reason}");
+                assert!(!hint.is_empty());
+                reason
+            }
+            other => panic!("expected a refusal, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_zeroed_state_hash_is_refused_naming_bundle_json() {
+        let (_tmp, dir) = exported(&curated());
+        set_state_hash(&dir, &"0".repeat(64));
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        let reason = refused_at_bundle_json(&mut lib, &dir);
+        assert!(reason.contains("state hash"), "{reason}");
+        assert_eq!(rows(&lib, "spectrum"), 0);
+        // A short or empty one too, without a panic.
+        set_state_hash(&dir, "");
+        reseal(&dir);
+        refused_at_bundle_json(&mut lib, &dir);
+    }
+
+    #[test]
+    fn a_status_edited_in_the_manifest_is_refused_by_the_state_hash() {
+        let (_tmp, dir) = exported(&curated());
+        // Spectrum 2 is pending at home; the edit claims it verified by a made-up reviewer.
+        edit_manifest(&dir, "2", "whorl_status", "verified");
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        let reason = refused_at_bundle_json(&mut lib, &dir);
+        assert!(reason.contains("does not match"), "{reason}");
+        assert_eq!(rows(&lib, "spectrum"), 0);
+    }
+
+    #[test]
+    fn foreign_sign_offs_are_history_and_references_arrive_pending() {
+        let source = curated();
+        let (_tmp, dir) = exported(&source);
+        // A consistent forgery: status, a made-up sign-off and a state hash recomputed to match.
+        let forged = serde_json::json!([{
+            "id": 9, "spectrum_id": 2, "revision": 2, "reviewer": "mallory",
+            "at": "2026-01-01T00:00:00.000Z", "decision": "approved",
+            "meaning": "approved", "note": null, "imported_from": null,
+        }]);
+        edit_manifest(&dir, "2", "whorl_status", "verified");
+        edit_manifest(&dir, "2", "whorl_reviews", &forged.to_string());
+        reseal(&dir);
+        let rows_now = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
+        let info = crate::library::verify_bundle(&dir).unwrap();
+        let recomputed = content_state_hash(&dir, &info, &rows_now).unwrap();
+        set_state_hash(&dir, &recomputed);
+        reseal(&dir);
+
+        let mut lib = Library::in_memory("t").unwrap();
+        let (_, outcomes) = untrusted(&mut lib, &dir).unwrap();
+        assert_eq!(added(&outcomes), [1, 2, 3]);
+        let status = |lib: &Library, id| lib.spectrum(id).unwrap().status;
+        // Verified at home or in the forged manifest, pending here; withdrawn stays withdrawn.
+        assert_eq!(
+            [status(&lib, 1), status(&lib, 2), status(&lib, 3)],
+            [Status::Pending, Status::Pending, Status::Withdrawn]
+        );
+        // The foreign sign-offs are kept, marked as history from elsewhere.
+        let reviews = lib.reviews(2).unwrap();
+        assert_eq!(reviews.len(), 1);
+        assert_eq!(reviews[0].reviewer, "mallory");
+        assert!(reviews[0].imported_from.is_some());
+        // None of them counts here: a local reviewer other than the submitter and the importer
+        // approves; the importer may not.
+        assert!(
+            lib.review(1, "dave", Decision::Approve, None, None)
+                .is_err()
+        );
+        lib.review(1, "erin", Decision::Approve, None, None)
+            .unwrap();
+        assert_eq!(status(&lib, 1), Status::Verified);
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    #[test]
+    fn a_compound_renamed_after_sign_off_does_not_arrive_approved() {
+        let mut source = Library::in_memory("t").unwrap();
+        let id = add(&mut source, &ir(1, "acetone", "alice"));
+        source
+            .review(id, "bob", Decision::Approve, None, None)
+            .unwrap();
+        // Renamed after the sign-off: a forger puts the new name in the current revision
+        // and keeps the old sign-off and status.
+        let (_tmp, dir) = exported(&source);
+        let rows_before = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
+        let mut revisions: serde_json::Value =
+            serde_json::from_str(&rows_before[0].provenance["whorl_revisions"]).unwrap();
+        revisions[0]["metadata"]["name"] = "heroin".into();
+        edit_manifest(&dir, "1", "name", "heroin");
+        edit_manifest(&dir, "1", "whorl_revisions", &revisions.to_string());
+        reseal(&dir);
+        let rows_now = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
+        let info = crate::library::verify_bundle(&dir).unwrap();
+        set_state_hash(&dir, &content_state_hash(&dir, &info, &rows_now).unwrap());
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        untrusted(&mut lib, &dir).unwrap();
+        let rec = lib.spectrum(1).unwrap();
+        assert_eq!(rec.metadata.name, "heroin");
+        assert_eq!(rec.status, Status::Pending);
+        assert_eq!(lib.reviews(1).unwrap()[0].reviewer, "bob");
+    }
+
+    fn signed_by(lib: &Library, key: &KeyPair) -> (tempfile::TempDir, std::path::PathBuf) {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        lib.export(&dir, None, None, "carol", Some(key), &|_, _| {})
+            .unwrap();
+        (tmp, dir)
+    }
+
+    fn refused_for_trust(lib: &mut Library, dir: &Path) -> String {
+        match lib.import_bundle(dir, "dave", Acceptance::Trusted) {
+            Err(Error::Input { at, reason, hint }) => {
+                assert_eq!(at.file, dir.join("SIGNATURE"), "{reason}");
+                assert!(hint.contains("--untrusted"), "{hint}");
+                assert_eq!(rows(lib, "spectrum"), 0);
+                reason
+            }
+            other => panic!("expected a refusal, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_bundle_signed_by_a_trusted_key_imports_and_others_need_untrusted() {
+        let key = KeyPair::generate("lab-a").unwrap();
+        let (_tmp, dir) = signed_by(&curated(), &key);
+        let mut lib = Library::in_memory("t").unwrap();
+        // Not trusted yet.
+        let reason = refused_for_trust(&mut lib, &dir);
+        assert!(reason.contains("does not trust"), "{reason}");
+        lib.trust_key(&key.public(), "our own key", "admin")
+            .unwrap();
+        let done = lib
+            .import_bundle(&dir, "dave", Acceptance::Trusted)
+            .unwrap();
+        assert_eq!(
+            done.trust,
+            Trust::Signed {
+                key: "lab-a".into(),
+                public_key: key.public().hex()
+            }
+        );
+        assert_eq!(added(&done.outcomes), [1, 2, 3]);
+        // Signed and trusted, still pending local review.
+        assert_eq!(lib.spectrum(1).unwrap().status, Status::Pending);
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(event.payload["signature"]["trust"], "signed");
+    }
+
+    #[test]
+    fn unsigned_and_wrongly_signed_bundles_are_refused_unless_untrusted() {
+        let key = KeyPair::generate("lab-a").unwrap();
+        let mut lib = Library::in_memory("t").unwrap();
+        lib.trust_key(&key.public(), "partner", "admin").unwrap();
+        // Unsigned.
+        let (_tmp, plain) = exported(&curated());
+        let reason = refused_for_trust(&mut lib, &plain);
+        assert!(reason.contains("unsigned"), "{reason}");
+        // Signed, then SHA256SUMS changed (a blank line: every checksum still holds).
+        let (_tmp2, dir) = signed_by(&curated(), &key);
+        let mut sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        sums.push('\n');
+        std::fs::write(dir.join("SHA256SUMS"), sums).unwrap();
+        let reason = refused_for_trust(&mut lib, &dir);
+        assert!(reason.contains("does not verify"), "{reason}");
+        // Accepted as untrusted: pending, and recorded so on the event and the sign-offs.
+        let done = lib
+            .import_bundle(&dir, "dave", Acceptance::Untrusted)
+            .unwrap();
+        assert!(matches!(done.trust, Trust::Untrusted { .. }));
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(event.payload["signature"]["trust"], "untrusted");
+        assert!(
+            lib.reviews(1).unwrap()[0]
+                .imported_from
+                .as_deref()
+                .unwrap()
+                .starts_with("untrusted bundle")
+        );
+        assert_eq!(lib.spectrum(1).unwrap().status, Status::Pending);
+    }
+
     #[test]
     fn spectra_already_present_are_skipped() {
         let (_tmp, dir) = exported(&curated());
         let mut lib = Library::in_memory("t").unwrap();
         // The library already holds the second spectrum's raw points under its own name.
         let own = add(&mut lib, &ir(2, "methyl ethyl ketone", "erin"));
-        let (_, outcomes) = lib.import_bundle(&dir, "dave").unwrap();
+        let (_, outcomes) = untrusted(&mut lib, &dir).unwrap();
         assert_eq!(outcomes[1], Outcome::AlreadyPresent { spectrum_id: own });
         assert_eq!(added(&outcomes).len(), 2);
         assert_eq!(
@@ -269,7 +654,7 @@ mod tests {
         );
         // Imported again, nothing is added and nothing is recorded.
         let (events, spectra) = (lib.last_event().unwrap(), rows(&lib, "spectrum"));
-        let (_, again) = lib.import_bundle(&dir, "dave").unwrap();
+        let (_, again) = untrusted(&mut lib, &dir).unwrap();
         assert!(added(&again).is_empty());
         assert_eq!(lib.last_event().unwrap(), events);
         assert_eq!(rows(&lib, "spectrum"), spectra);

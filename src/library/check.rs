@@ -8,7 +8,7 @@ use serde::Serialize;
 use serde_json::Value;
 
 use super::events::{GENESIS_HASH, event_hash};
-use super::records::{SpectrumRecord, f32_bytes};
+use super::records::{Review, SpectrumRecord, f32_bytes};
 use super::{ContentSum, Library, Recipes, prepare_stored, record_hash};
 use crate::error::Result;
 use crate::spectrum::sha256_hex;
@@ -47,7 +47,72 @@ struct Expected {
     revisions: BTreeMap<i64, Value>,
     current: i64,
     status: String,
-    reviews: usize,
+    /// Who the file or `--by` named as submitter (absent from events older than it).
+    submitted_by: Option<String>,
+    /// Who ran the add or import: the event's actor.
+    imported_by: Option<String>,
+    /// The sign-offs, in the order they were written.
+    reviews: Vec<ExpectedReview>,
+}
+
+/// One sign-off as its event recorded it; `at` and `imported_from` are absent from events
+/// written before they were recorded there.
+#[derive(Debug)]
+struct ExpectedReview {
+    revision: Option<i64>,
+    reviewer: Option<String>,
+    decision: Option<String>,
+    meaning: Option<String>,
+    note: Option<String>,
+    at: Option<String>,
+    imported_from: Option<Option<String>>,
+}
+
+impl ExpectedReview {
+    fn from_payload(p: &Value) -> ExpectedReview {
+        let text = |k: &str| p.get(k).and_then(Value::as_str).map(str::to_string);
+        ExpectedReview {
+            revision: p.get("revision").and_then(Value::as_i64),
+            reviewer: text("reviewer"),
+            decision: text("decision"),
+            meaning: text("meaning"),
+            note: text("note"),
+            at: text("at"),
+            imported_from: None,
+        }
+    }
+
+    /// The fields of `row` that differ from what the event recorded.
+    fn differences(&self, row: &Review) -> Vec<&'static str> {
+        let mut out = Vec::new();
+        let differs = |want: &Option<String>, got: &str| want.as_deref().is_some_and(|w| w != got);
+        if self.revision.is_some_and(|r| r != row.revision) {
+            out.push("revision");
+        }
+        if differs(&self.reviewer, &row.reviewer) {
+            out.push("reviewer");
+        }
+        if differs(&self.decision, &row.decision) {
+            out.push("decision");
+        }
+        if differs(&self.meaning, &row.meaning) {
+            out.push("meaning");
+        }
+        if self.note.as_deref() != row.note.as_deref()
+            && (self.note.is_some() || row.note.is_some())
+        {
+            out.push("note");
+        }
+        if differs(&self.at, &row.at) {
+            out.push("time");
+        }
+        if let Some(from) = &self.imported_from
+            && from.as_deref() != row.imported_from.as_deref()
+        {
+            out.push("origin");
+        }
+        out
+    }
 }
 
 impl Library {
@@ -137,9 +202,29 @@ impl Library {
         // 2. Replay the events and compare with the tables.
         let mut expected: BTreeMap<i64, Expected> = BTreeMap::new();
         let mut expected_recipes: BTreeMap<String, Value> = BTreeMap::new();
-        for (seq, _, _, action, record, payload, ..) in &events {
+        // The review policy starts forbidden (schema 0002) and changes only by `policy` events.
+        let mut expected_policy = false;
+        let mut expected_keys: Vec<Value> = Vec::new();
+        for (seq, _, actor, action, record, payload, ..) in &events {
             if action == "init" || action == "recipe" {
                 replay_recipes(action, payload, &mut expected_recipes);
+                continue;
+            }
+            if action == "policy" || action == "key-trust" {
+                let Ok(p) = serde_json::from_str::<Value>(payload) else {
+                    find(
+                        format!("event:{seq}"),
+                        "its payload is not valid JSON".into(),
+                    );
+                    continue;
+                };
+                if action == "policy" {
+                    if let Some(allow) = p["allow_self_review"].as_bool() {
+                        expected_policy = allow;
+                    }
+                } else {
+                    expected_keys.push(p);
+                }
                 continue;
             }
             let Some(id) = record
@@ -163,8 +248,12 @@ impl Library {
                     e.revisions.insert(1, p["metadata"].clone());
                     e.current = 1;
                     e.status = "pending".into();
+                    e.submitted_by = p["submitted_by"].as_str().map(str::to_string);
+                    e.imported_by = Some(actor.clone());
                 }
                 "import" => {
+                    e.submitted_by = p["submitted_by"].as_str().map(str::to_string);
+                    e.imported_by = Some(actor.clone());
                     e.technique = p["technique"].as_str().unwrap_or_default().to_string();
                     e.raw_sha256 = p["raw_sha256"].as_str().unwrap_or_default().to_string();
                     for r in p["revisions"].as_array().into_iter().flatten() {
@@ -173,7 +262,14 @@ impl Library {
                     }
                     e.current = p["current_revision"].as_i64().unwrap_or(1);
                     e.status = p["status"].as_str().unwrap_or_default().to_string();
-                    e.reviews += p["reviews"].as_array().map_or(0, Vec::len);
+                    let from = p
+                        .get("imported_from")
+                        .map(|f| f.as_str().map(str::to_string));
+                    for r in p["reviews"].as_array().into_iter().flatten() {
+                        let mut want = ExpectedReview::from_payload(r);
+                        want.imported_from = from.clone();
+                        e.reviews.push(want);
+                    }
                 }
                 "revise" => {
                     let n = p["revision"].as_i64().unwrap_or(0);
@@ -182,7 +278,9 @@ impl Library {
                     e.status = "pending".into();
                 }
                 "review" => {
-                    e.reviews += 1;
+                    let mut want = ExpectedReview::from_payload(&p);
+                    want.imported_from = Some(None);
+                    e.reviews.push(want);
                     if p["decision"] == "approved" {
                         e.status = "verified".into();
                     }
@@ -217,6 +315,39 @@ impl Library {
             }
         }
 
+        let policy = self.setting("allow_self_review")?;
+        if policy.as_deref() != Some(if expected_policy { "true" } else { "false" }) {
+            find(
+                "setting:allow_self_review".into(),
+                format!(
+                    "the self-review policy is {} but its events say {} (changed outside whorl policy)",
+                    policy.as_deref().unwrap_or("absent"),
+                    expected_policy
+                ),
+            );
+        }
+        let keys = self.trusted_keys()?;
+        let on_record: Vec<Value> = keys
+            .iter()
+            .map(serde_json::to_value)
+            .collect::<serde_json::Result<_>>()?;
+        for k in &on_record {
+            if !expected_keys.contains(k) {
+                find(
+                    format!("key:{}", k["public_key"].as_str().unwrap_or("?")),
+                    "a trusted key no event records, or one edited since (trusted outside whorl key trust)".into(),
+                );
+            }
+        }
+        for k in &expected_keys {
+            if !on_record.contains(k) {
+                find(
+                    format!("key:{}", k["public_key"].as_str().unwrap_or("?")),
+                    "its event records a trusted key the table no longer holds as recorded".into(),
+                );
+            }
+        }
+
         let records = self.all_records()?;
         let on_record: HashMap<i64, &SpectrumRecord> = records.iter().map(|r| (r.id, r)).collect();
         for id in expected.keys() {
@@ -244,15 +375,10 @@ impl Library {
                 revision_rows.entry(id).or_default().push((n, m));
             }
         }
-        let mut review_counts: HashMap<i64, usize> = HashMap::new();
-        {
-            let mut stmt = self
-                .conn
-                .prepare("SELECT spectrum_id, count(*) FROM review GROUP BY spectrum_id")?;
-            let rows = stmt.query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, i64>(1)?)))?;
-            for row in rows {
-                let (id, n) = row?;
-                review_counts.insert(id, n as usize);
+        let mut review_rows: HashMap<i64, Vec<Review>> = HashMap::new();
+        for id in expected.keys().chain(records.iter().map(|r| &r.id)) {
+            if !review_rows.contains_key(id) {
+                review_rows.insert(*id, self.reviews(*id)?);
             }
         }
         let mut sum = ContentSum::default();
@@ -312,10 +438,53 @@ impl Library {
                     );
                 }
             }
-            if review_counts.get(&rec.id).copied().unwrap_or(0) != e.reviews {
+            let signed = review_rows
+                .get(&rec.id)
+                .map(Vec::as_slice)
+                .unwrap_or_default();
+            if signed.len() != e.reviews.len() {
                 find(
                     id.clone(),
-                    "its sign-offs differ from those its events recorded".into(),
+                    format!(
+                        "its sign-offs differ from those its events recorded ({} on record, {} in its events)",
+                        signed.len(),
+                        e.reviews.len()
+                    ),
+                );
+            }
+            for (row, want) in signed.iter().zip(&e.reviews) {
+                let fields = want.differences(row);
+                if !fields.is_empty() {
+                    find(
+                        format!("review:{}", row.id),
+                        format!(
+                            "the sign-off of {id} by {} differs from its event in: {} (edited)",
+                            row.reviewer,
+                            fields.join(", ")
+                        ),
+                    );
+                }
+            }
+            if let Some(want) = &e.submitted_by
+                && *want != rec.submitted_by
+            {
+                find(
+                    id.clone(),
+                    format!(
+                        "submitted by {} on record but {want} in its event (edited)",
+                        rec.submitted_by
+                    ),
+                );
+            }
+            if let Some(want) = &e.imported_by
+                && Some(want) != rec.imported_by.as_ref()
+            {
+                find(
+                    id.clone(),
+                    format!(
+                        "imported by {} on record but {want} in its event (edited)",
+                        rec.imported_by.as_deref().unwrap_or("nobody")
+                    ),
                 );
             }
             if rec.status.searchable() {

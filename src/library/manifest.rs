@@ -3,6 +3,7 @@
 use std::collections::BTreeMap;
 use std::path::{Component, Path, PathBuf};
 
+use super::identity::Person;
 use crate::error::{Error, Location, Result};
 use crate::library::{Metadata, Submission};
 use crate::spectrum::{XUnit, YUnit};
@@ -243,7 +244,14 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
                     .map(|s| s.parse::<YUnit>())
                     .transpose()
                     .map_err(|e| located(e, at()))?,
-                submitted_by: opt("submitted_by").unwrap_or_else(|| default_submitter.to_string()),
+                // Stored in NFKC form; a blank, control or invisible character is refused.
+                submitted_by: match opt("submitted_by") {
+                    Some(name) => Person::new(&name, "submitted_by")
+                        .map_err(|e| located(e, at()))?
+                        .name()
+                        .to_string(),
+                    None => default_submitter.to_string(),
+                },
             })
         })();
         let provenance = headers
@@ -344,6 +352,18 @@ mod tests {
         let (line, reason) = refused("file,technique,name\na.csv,ir\n");
         assert_eq!(line, Some(2));
         assert!(reason.contains("not valid CSV"), "{reason}");
+    }
+
+    #[test]
+    fn a_submitter_is_stored_in_nfkc_and_a_hidden_character_refuses_the_row() {
+        // Full-width letters become ASCII under NFKC (UAX #15); a zero-width space is refused.
+        let rows = submissions(
+            "file,technique,name,submitted_by\na.csv,ir,acetone,\u{FF42}.x\nb.csv,ir,butanone,b\u{200B}.x\n"
+                .as_bytes(),
+        );
+        assert_eq!(rows[0].as_ref().unwrap().submitted_by, "b.x");
+        let err = rows[1].as_ref().unwrap_err().to_string();
+        assert!(err.contains("U+200B") && err.contains(":3"), "{err}");
     }
 
     #[test]

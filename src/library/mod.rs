@@ -9,6 +9,7 @@ mod events;
 mod fingerprint;
 mod identity;
 mod import;
+mod keys;
 mod manifest;
 mod recipe_change;
 mod records;
@@ -21,10 +22,12 @@ pub mod synthetic;
 #[cfg(test)]
 mod testing;
 mod vectors;
+mod witness;
 
 pub use crate::cache::{Snapshot, VectorRow};
 pub use crate::spectrum::{Metadata, Status};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
+pub use bundle_import::{Acceptance, BundleImport, Trust};
 pub use caches::BuildProgress;
 pub use check::{CheckReport, Finding};
 pub use curation::{MetadataPatch, RevisionInfo};
@@ -32,6 +35,7 @@ pub use events::Event;
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use identity::{MAX_NAME_CHARS, Person, same_person};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
+pub use keys::{BundleSignature, KeyPair, PublicKey, SIGNATURE_FILE, TrustedKey};
 pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
 pub use recipe_change::RecipeChange;
 pub use records::{Candidate, HitRecord, Review, SpectrumRecord, Stats, Summary};
@@ -42,6 +46,7 @@ pub use stage::{
     stage, usual_x_unit,
 };
 pub use store::Outcome;
+pub use witness::{WitnessedHead, read_witness};
 
 use std::path::{Path, PathBuf};
 

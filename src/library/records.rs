@@ -40,8 +40,10 @@ pub struct SpectrumRecord {
     pub y_unit: String,
     /// Number of raw points.
     pub points: usize,
-    /// Who submitted it.
+    /// Who submitted it (as the file or `--by` says).
     pub submitted_by: String,
+    /// Who ran the command that stored it; `None` only for a spectrum no event records.
+    pub imported_by: Option<String>,
     /// When it was imported.
     pub created_at: String,
     /// Metadata of the current revision.
@@ -143,7 +145,7 @@ pub(super) fn f32_from_bytes(b: &[u8]) -> Vec<f32> {
 }
 
 const RECORD_COLUMNS: &str = "s.id, s.compound_id, s.technique, s.status, s.current_revision, s.file_name, s.file_sha256,
-     s.raw_sha256, s.x_unit, s.y_unit, length(s.raw) / 16, s.submitted_by, s.created_at, r.metadata";
+     s.raw_sha256, s.x_unit, s.y_unit, length(s.raw) / 16, s.submitted_by, s.created_at, r.metadata, s.imported_by";
 
 fn record_from_row(row: &rusqlite::Row<'_>) -> rusqlite::Result<(SpectrumRecord, String)> {
     let technique: String = row.get(2)?;
@@ -167,6 +169,7 @@ fn record_from_row(row: &rusqlite::Row<'_>) -> rusqlite::Result<(SpectrumRecord,
             points: row.get::<_, i64>(10)? as usize,
             submitted_by: row.get(11)?,
             created_at: row.get(12)?,
+            imported_by: row.get(14)?,
             metadata: Metadata::default(),
         },
         metadata,

@@ -47,17 +47,26 @@ impl Library {
         Ok(self.setting("allow_self_review")?.as_deref() == Some("true"))
     }
 
-    /// Sets the self-review policy, recording who changed it.
-    pub fn set_self_review(&mut self, allow: bool, actor: &str) -> Result<()> {
+    /// Sets the self-review policy, recording who changed it and why (a reason is required).
+    pub fn set_self_review(&mut self, allow: bool, actor: &str, reason: &str) -> Result<()> {
+        let reason = reason.trim();
+        if reason.is_empty() {
+            return Err(Error::invalid(
+                "a change of the review policy needs a reason",
+                "say why, e.g. --reason \"single-analyst site, approved by QA on 2026-03-02\"",
+            ));
+        }
         self.write(|tx| {
-            put_setting(tx, "allow_self_review", &allow.to_string())?;
+            // The event first: a trigger lets the setting change only to what the newest
+            // event records.
             append_event(
                 tx,
                 actor,
                 "policy",
                 "library",
-                &serde_json::json!({ "allow_self_review": allow }),
+                &serde_json::json!({ "allow_self_review": allow, "reason": reason }),
             )?;
+            put_setting(tx, "allow_self_review", &allow.to_string())?;
             Ok(((), vec![]))
         })
     }
@@ -107,10 +116,41 @@ impl Library {
         meaning: Option<&str>,
         note: Option<&str>,
     ) -> Result<Vec<Review>> {
+        self.review_pinned(ids, None, reviewer, decision, meaning, note)
+    }
+
+    /// [`Library::review_many`], with the revision the reviewer looked at: when `revision` is
+    /// given, a spectrum whose current revision differs (revised between looking and signing)
+    /// is refused. A spectrum named twice is refused: one sign-off per spectrum.
+    pub fn review_pinned(
+        &mut self,
+        ids: &[i64],
+        revision: Option<i64>,
+        reviewer: &str,
+        decision: Decision,
+        meaning: Option<&str>,
+        note: Option<&str>,
+    ) -> Result<Vec<Review>> {
+        let mut seen = std::collections::HashSet::new();
+        if let Some(id) = ids.iter().find(|&&id| !seen.insert(id)) {
+            return Err(Error::invalid(
+                format!("spectrum {id} is named more than once; one sign-off per spectrum"),
+                "name each spectrum once",
+            ));
+        }
         let allow_self = self.allow_self_review()?;
         let mut checked = Vec::with_capacity(ids.len());
         for &id in ids {
             let rec = self.reviewable(id, reviewer, allow_self)?;
+            if let Some(n) = revision.filter(|&n| n != rec.revision) {
+                return Err(Error::invalid(
+                    format!(
+                        "spectrum {id} is at revision {}, not the revision {n} given to sign off",
+                        rec.revision
+                    ),
+                    "look at the current revision (`whorl show ID`) and review that one",
+                ));
+            }
             let metadata_json = serde_json::to_string(&rec.metadata)?;
             checked.push((rec, metadata_json));
         }
@@ -152,7 +192,7 @@ impl Library {
                 }
                 let payload = serde_json::json!({
                     "spectrum": id, "revision": rec.revision, "decision": decision.name(),
-                    "meaning": meaning, "note": note, "reviewer": reviewer,
+                    "meaning": meaning, "note": note, "reviewer": reviewer, "at": at,
                 });
                 append_event(tx, reviewer, "review", &format!("spectrum:{id}"), &payload)?;
                 reviews.push(review);
@@ -189,12 +229,9 @@ impl Library {
             }
             Status::Pending => {}
         }
-        if let Some(r) = self
-            .reviews(id)?
-            .into_iter()
-            .rev()
-            .find(|r| r.revision == rec.revision && r.decision == "rejected")
-        {
+        if let Some(r) = self.reviews(id)?.into_iter().rev().find(|r| {
+            r.revision == rec.revision && r.decision == "rejected" && r.imported_from.is_none()
+        }) {
             return Err(Error::invalid(
                 format!(
                     "revision {} of spectrum {id} was rejected by {} at {}",
@@ -203,18 +240,21 @@ impl Library {
                 "correct it with `whorl revise` (the new revision is reviewed in turn) or `whorl withdraw` it",
             ));
         }
-        if !allow_self
-            && (same_person(reviewer, &rec.submitted_by) || same_person(reviewer, &revision_author))
-        {
+        // The four-eyes rule: the reviewer is neither who the file says submitted it, nor who
+        // stored it (ran the add or import), nor who wrote the revision under review.
+        let imported_by = rec.imported_by.as_deref().unwrap_or(&rec.submitted_by);
+        let role = if same_person(reviewer, &rec.submitted_by) {
+            Some("submitted spectrum")
+        } else if same_person(reviewer, imported_by) {
+            Some("imported spectrum")
+        } else if same_person(reviewer, &revision_author) {
+            Some("wrote the current revision of spectrum")
+        } else {
+            None
+        };
+        if let (false, Some(role)) = (allow_self, role) {
             return Err(Error::invalid(
-                format!(
-                    "{reviewer} submitted spectrum {id}{}; the reviewer must be someone else",
-                    if same_person(reviewer, &rec.submitted_by) {
-                        ""
-                    } else {
-                        "'s current revision"
-                    }
-                ),
+                format!("{reviewer} {role} {id}; the reviewer must be someone else"),
                 "ask a second analyst to review it (--by WHO); self-review is off by library policy",
             ));
         }
@@ -295,7 +335,10 @@ mod tests {
         let a = add(&mut lib, &ir(1, "acetone", "alice"));
         let b = add(&mut lib, &ir(2, "butanone", "alice"));
         assert!(!lib.allow_self_review().unwrap());
-        lib.set_self_review(true, "admin").unwrap();
+        assert!(lib.set_self_review(true, "admin", " ").is_err());
+        assert!(!lib.allow_self_review().unwrap());
+        lib.set_self_review(true, "admin", "single-analyst night shift")
+            .unwrap();
         assert!(lib.allow_self_review().unwrap());
         approve(&mut lib, a, "alice").unwrap();
         let policy = lib.events(Some("library")).unwrap().pop().unwrap();
@@ -304,7 +347,8 @@ mod tests {
             ("policy", "admin")
         );
         assert_eq!(policy.payload["allow_self_review"], true);
-        lib.set_self_review(false, "admin").unwrap();
+        assert_eq!(policy.payload["reason"], "single-analyst night shift");
+        lib.set_self_review(false, "admin", "day shift").unwrap();
         assert!(approve(&mut lib, b, "alice").is_err());
     }
 
@@ -343,6 +387,39 @@ mod tests {
             .unwrap();
         assert_eq!(done.len(), 2);
         assert!(done.iter().all(|r| r.meaning == "checked"));
+    }
+
+    #[test]
+    fn a_spectrum_named_twice_gets_one_sign_off_or_none() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        let err = lib
+            .review_many(&[id, id], "bob", Decision::Approve, None, None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("more than once"), "{err}");
+        assert_eq!(rows(&lib, "review"), 0);
+    }
+
+    #[test]
+    fn a_pinned_revision_must_be_the_current_one() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        let patch = MetadataPatch {
+            notes: Some("dried".into()),
+            ..Default::default()
+        };
+        lib.revise(id, &patch, "alice", Some("notes")).unwrap();
+        let err = lib
+            .review_pinned(&[id], Some(1), "bob", Decision::Approve, None, None)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("at revision 2"), "{err}");
+        assert_eq!(rows(&lib, "review"), 0);
+        let done = lib
+            .review_pinned(&[id], Some(2), "bob", Decision::Approve, None, None)
+            .unwrap();
+        assert_eq!(done[0].revision, 2);
     }
 
     #[test]

@@ -5,10 +5,11 @@ use rusqlite::Connection;
 use crate::error::Result;
 
 /// The migrations, in order; migration `i` takes the database from version `i` to `i + 1`.
-const MIGRATIONS: [&str; 3] = [
+const MIGRATIONS: [&str; 4] = [
     include_str!("../../schema/0001_init.sql"),
     include_str!("../../schema/0002_curation.sql"),
     include_str!("../../schema/0003_coverage.sql"),
+    include_str!("../../schema/0004_trust.sql"),
 ];
 
 /// The schema version this build writes.
@@ -65,4 +66,50 @@ pub fn busy_timeout() -> std::time::Duration {
         .and_then(|v| v.parse().ok())
         .unwrap_or(10_000);
     std::time::Duration::from_millis(ms)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A database at version 3 (as libraries were before 0004) holding one added spectrum,
+    /// migrated forward: who imported it is taken from its event, and the new guards hold.
+    #[test]
+    fn a_version_3_library_migrates_and_keeps_who_imported_it() {
+        let mut conn = Connection::open_in_memory().unwrap();
+        for sql in &MIGRATIONS[..3] {
+            conn.execute_batch(sql).unwrap();
+        }
+        conn.pragma_update(None, "user_version", 3).unwrap();
+        conn.execute_batch(
+            "INSERT INTO recipe VALUES ('ir', '{}');
+             INSERT INTO compound (id, key, name, created_at) VALUES (1, 'name:acetone', 'acetone', 't');
+             INSERT INTO spectrum (id, compound_id, technique, status, file_name, file_sha256, raw_sha256, raw,
+                                   x_unit, y_unit, submitted_by, created_at)
+                 VALUES (1, 1, 'ir', 'pending', 'a.csv', 'f', 'r', x'00', 'cm-1', 'absorbance', 'a.analyst', 't');
+             INSERT INTO event VALUES (1, 't', 'admin', 'init', 'library', '{}', 'h', 'g', 'h1');
+             INSERT INTO event VALUES (2, 't', 'd.importer', 'add', 'spectrum:1', '{}', 'h', 'h1', 'h2');",
+        )
+        .unwrap();
+        migrate(&mut conn).unwrap();
+        assert_eq!(version(&conn).unwrap(), SCHEMA_VERSION);
+        let imported_by: String = conn
+            .query_row("SELECT imported_by FROM spectrum WHERE id = 1", [], |r| {
+                r.get(0)
+            })
+            .unwrap();
+        assert_eq!(imported_by, "d.importer");
+        assert!(
+            conn.execute("UPDATE spectrum SET submitted_by = 'x'", [])
+                .is_err()
+        );
+        // The policy the migration 0002 set cannot change without its event.
+        assert!(
+            conn.execute(
+                "UPDATE setting SET value = 'true' WHERE key = 'allow_self_review'",
+                []
+            )
+            .is_err()
+        );
+    }
 }

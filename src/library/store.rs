@@ -105,6 +105,7 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
             raw_sha256: &raw_sha256,
             raw: &staged.raw,
             submitted_by: &sub.submitted_by,
+            imported_by: actor,
             created_at: &created_at,
             withdrawn_reason: None,
         },
@@ -217,6 +218,8 @@ pub(super) struct NewSpectrum<'a> {
     pub(super) raw_sha256: &'a str,
     pub(super) raw: &'a RawSpectrum,
     pub(super) submitted_by: &'a str,
+    /// Who ran the command that stored it (the event's actor).
+    pub(super) imported_by: &'a str,
     pub(super) created_at: &'a str,
     pub(super) withdrawn_reason: Option<&'a str>,
 }
@@ -225,8 +228,8 @@ pub(super) struct NewSpectrum<'a> {
 pub(super) fn insert_spectrum(tx: &Connection, s: &NewSpectrum<'_>) -> Result<i64> {
     tx.execute(
         "INSERT INTO spectrum (compound_id, technique, status, current_revision, file_name, file_sha256, raw_sha256, raw,
-                               x_unit, y_unit, submitted_by, created_at, withdrawn_reason)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+                               x_unit, y_unit, submitted_by, created_at, withdrawn_reason, imported_by)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14)",
         params![
             s.compound_id,
             s.technique,
@@ -241,6 +244,7 @@ pub(super) fn insert_spectrum(tx: &Connection, s: &NewSpectrum<'_>) -> Result<i6
             s.submitted_by,
             s.created_at,
             s.withdrawn_reason,
+            s.imported_by,
         ],
     )?;
     Ok(tx.last_insert_rowid())

@@ -79,7 +79,21 @@ fn self_review_is_refused_unless_the_policy_allows_it() {
         "{err}"
     );
     assert_eq!(status(&lab, &id), "pending");
-    lab.ok(&["policy", "--self-review", "allow", "--by", "q.manager"]);
+    // A change of policy needs a reason.
+    let err = lab.refuses(
+        &["policy", "--self-review", "allow", "--by", "q.manager"],
+        3,
+    );
+    assert!(err.contains("needs a reason"), "{err}");
+    lab.ok(&[
+        "policy",
+        "--self-review",
+        "allow",
+        "--by",
+        "q.manager",
+        "--reason",
+        "single-analyst weekend shift",
+    ]);
     lab.ok(&["review", &id, "--approve", "--by", "s.submitter"]);
     assert_eq!(status(&lab, &id), "verified");
     let log = lab.json(&["log"]);
@@ -87,7 +101,9 @@ fn self_review_is_refused_unless_the_policy_allows_it() {
         log.as_array()
             .unwrap()
             .iter()
-            .any(|e| e["action"] == "policy" && e["actor"] == "q.manager")
+            .any(|e| e["action"] == "policy"
+                && e["actor"] == "q.manager"
+                && e["payload"]["reason"] == "single-analyst weekend shift")
     );
 }
 
@@ -239,11 +255,13 @@ fn the_log_records_who_did_what_in_order() {
         .iter()
         .map(|e| (e["action"].as_str().unwrap(), e["actor"].as_str().unwrap()))
         .collect();
-    // The identity is the --by of each command.
+    // The identity is the --by of each command; an add is done by whoever ran it
+    // (WHORL_USER here), the submitter it names is in its payload.
+    assert_eq!(events[0]["payload"]["submitted_by"], "s.submitter");
     assert_eq!(
         actions,
         [
-            ("add", "s.submitter"),
+            ("add", "t.tester"),
             ("review", "r.reviewer"),
             ("withdraw", "q.manager")
         ]

@@ -27,3 +27,4 @@ mod search_science;
 mod show;
 mod stats;
 mod trade_facts;
+mod trust;
