@@ -1,5 +1,6 @@
 //! The command line: one file per subcommand, each with its clap `Args` and `run`.
 
+mod account;
 mod add;
 mod check;
 mod completions;
@@ -26,8 +27,10 @@ mod replay;
 mod review;
 mod revise;
 mod search;
+pub mod serve;
 mod show;
 mod stats;
+mod token;
 mod withdraw;
 
 use std::path::PathBuf;
@@ -106,6 +109,12 @@ pub enum Command {
     Replay(replay::ReplayArgs),
     /// Show or change the library's review policy.
     Policy(policy::PolicyArgs),
+    /// Accounts of the lab server: add, list, disable, password.
+    Account(account::AccountArgs),
+    /// Bearer tokens for programs: create, list, revoke.
+    Token(token::TokenArgs),
+    /// Serve the library to the lab over HTTP: JSON API, sign-in, tokens.
+    Serve(serve::ServeArgs),
     /// Show the preparation recipes, or change one and prepare its spectra again.
     Recipe(recipe::RecipeArgs),
     /// Build a demo library from seed-library/ and search its example unknowns.
@@ -167,8 +176,12 @@ impl Context {
     }
 }
 
-/// Runs a parsed command line.
-pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+/// Runs a parsed command line; `serve` is how `whorl serve` starts the server (another face,
+/// which `main.rs` hands in).
+pub fn run(
+    cli: Cli,
+    serve: impl FnOnce(serve::ServeArgs, &Context) -> anyhow::Result<ExitCode>,
+) -> anyhow::Result<ExitCode> {
     let ctx = Context {
         library: cli
             .global
@@ -197,6 +210,12 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Export(a) => export::run(a, &ctx),
         Command::Replay(a) => replay::run(a, &ctx),
         Command::Policy(a) => policy::run(a, &ctx),
+        Command::Account(a) => account::run(a, &ctx),
+        Command::Token(a) => token::run(a, &ctx),
+        Command::Serve(a) => {
+            a.check()?;
+            serve(a, &ctx)
+        }
         Command::Recipe(a) => recipe::run(a, &ctx),
         Command::Demo(a) => demo::run(a, &ctx),
         Command::Formula(a) => formula::run(a, &ctx),

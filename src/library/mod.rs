@@ -1,5 +1,6 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
+mod accounts;
 mod bundle;
 mod bundle_import;
 mod caches;
@@ -24,6 +25,10 @@ mod vectors;
 
 pub use crate::cache::{Snapshot, VectorRow};
 pub use crate::spectrum::{Metadata, Status};
+pub use accounts::{
+    Account, Capability, MIN_PASSWORD_CHARS, PASSWORD_PARAMS, Role, TOKEN_PREFIX, Token,
+    hash_password, random_bytes, verify_password,
+};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use caches::BuildProgress;
 pub use check::{CheckReport, Finding};
