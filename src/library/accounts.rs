@@ -688,3 +688,140 @@ mod tests {
         assert!(Role::Admin.allows(Administer));
     }
 }
+
+/// An account or token as its events describe it.
+#[derive(Debug, Default, PartialEq)]
+struct Replayed {
+    name: String,
+    role: String,
+    has_password: bool,
+    disabled: bool,
+    locked_until: Option<String>,
+}
+
+/// Replays the `account-*` and `token-*` events (action, record, payload) and compares them
+/// with the account and token tables; returns (record, problem) for each difference, for
+/// `check`.
+pub(super) fn replay<'a>(
+    conn: &Connection,
+    events: impl Iterator<Item = (&'a str, &'a str, &'a str)>,
+) -> Result<Vec<(String, String)>> {
+    let mut accounts: std::collections::BTreeMap<String, Replayed> = Default::default();
+    let mut tokens: std::collections::BTreeMap<String, (String, bool)> = Default::default();
+    for (action, record, payload) in events {
+        let p: serde_json::Value = serde_json::from_str(payload).unwrap_or_default();
+        let text = |k: &str| p[k].as_str().unwrap_or_default().to_string();
+        match action {
+            "account-add" => {
+                accounts.insert(
+                    record.to_string(),
+                    Replayed {
+                        name: text("name"),
+                        role: text("role"),
+                        ..Default::default()
+                    },
+                );
+            }
+            "account-password" => {
+                accounts.entry(record.to_string()).or_default().has_password = true
+            }
+            "account-disable" => accounts.entry(record.to_string()).or_default().disabled = true,
+            "account-lockout" => {
+                accounts.entry(record.to_string()).or_default().locked_until = Some(text("until"))
+            }
+            "token-create" => {
+                tokens.insert(record.to_string(), (text("account"), false));
+            }
+            "token-revoke" => tokens.entry(record.to_string()).or_default().1 = true,
+            _ => {}
+        }
+    }
+    let mut problems = Vec::new();
+    let mut stmt = conn.prepare(&format!("SELECT {ACCOUNT_COLUMNS} FROM account"))?;
+    let stored: Vec<Account> = stmt
+        .query_map([], account_row)?
+        .collect::<rusqlite::Result<_>>()?;
+    for a in &stored {
+        let record = format!("account:{}", a.id);
+        let on_record = Replayed {
+            name: a.name.clone(),
+            role: a.role.as_str().to_string(),
+            has_password: a.has_password,
+            disabled: a.disabled_at.is_some(),
+            locked_until: a.locked_until.clone(),
+        };
+        match accounts.remove(&record) {
+            None => problems.push((
+                record,
+                "the account is in the table but no event records it (added outside whorl)".into(),
+            )),
+            Some(expected) if expected != on_record => problems.push((
+                record,
+                format!(
+                    "the account differs from its events (edited outside whorl): events say {expected:?}, the table {on_record:?}"
+                ),
+            )),
+            Some(_) => {}
+        }
+    }
+    for record in accounts.into_keys() {
+        problems.push((
+            record,
+            "its events record an account the table lacks (deleted)".into(),
+        ));
+    }
+    let mut stmt = conn.prepare(
+        "SELECT t.id, a.name, t.revoked_at IS NOT NULL FROM token t JOIN account a ON a.id = t.account_id",
+    )?;
+    let stored: Vec<(i64, String, bool)> = stmt
+        .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?
+        .collect::<rusqlite::Result<_>>()?;
+    for (id, account, revoked) in stored {
+        let record = format!("token:{id}");
+        match tokens.remove(&record) {
+            None => problems.push((
+                record,
+                "the token is in the table but no event records it (added outside whorl)".into(),
+            )),
+            Some(expected) if expected != (account.clone(), revoked) => problems.push((
+                record,
+                format!(
+                    "the token differs from its events: events say account {} revoked {}, the table account {account} revoked {revoked}",
+                    expected.0, expected.1
+                ),
+            )),
+            Some(_) => {}
+        }
+    }
+    for record in tokens.into_keys() {
+        problems.push((
+            record,
+            "its events record a token the table lacks (deleted)".into(),
+        ));
+    }
+    Ok(problems)
+}
+
+#[cfg(test)]
+mod replay_tests {
+    use super::*;
+
+    #[test]
+    fn check_finds_an_account_changed_outside_whorl() {
+        let mut lib = Library::in_memory("t").unwrap();
+        lib.add_account("erin", Role::Reader, "root").unwrap();
+        lib.create_token("erin", "lims", "2999-01-01T00:00:00Z", "root")
+            .unwrap();
+        assert!(lib.check(&|_, _| {}).unwrap().findings.is_empty());
+        // A role raised by hand in the database, as someone with the file could.
+        lib.conn
+            .execute("UPDATE account SET role = 'admin'", [])
+            .unwrap();
+        lib.conn
+            .execute("UPDATE token SET revoked_at = 'x'", [])
+            .unwrap();
+        let findings = lib.check(&|_, _| {}).unwrap().findings;
+        let records: Vec<&str> = findings.iter().map(|f| f.record.as_str()).collect();
+        assert_eq!(records, ["account:1", "token:1"], "{findings:?}");
+    }
+}

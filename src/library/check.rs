@@ -192,6 +192,15 @@ impl Library {
             }
         }
 
+        for (record, problem) in super::accounts::replay(
+            &self.conn,
+            events
+                .iter()
+                .map(|e| (e.3.as_str(), e.4.as_str(), e.5.as_str())),
+        )? {
+            find(record, problem);
+        }
+
         let stored_recipes: Vec<(String, String)> = {
             let mut stmt = self.conn.prepare("SELECT technique, recipe FROM recipe")?;
             stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?

@@ -21,10 +21,11 @@ use std::net::SocketAddr;
 use anyhow::Context as _;
 use axum::Router;
 use axum::extract::DefaultBodyLimit;
-use axum::http::{Request, StatusCode};
+use axum::http::{HeaderValue, Request, StatusCode, header};
 use tower::ServiceBuilder;
 use tower_http::limit::RequestBodyLimitLayer;
 use tower_http::request_id::{MakeRequestUuid, PropagateRequestIdLayer, SetRequestIdLayer};
+use tower_http::set_header::SetResponseHeaderLayer;
 use tower_http::timeout::TimeoutLayer;
 use tower_http::trace::{DefaultOnResponse, TraceLayer};
 use tracing::Level;
@@ -49,9 +50,10 @@ pub fn route_list() -> Vec<RouteInfo> {
     routes().list().to_vec()
 }
 
-/// The application: routes, limits, timeouts, request ids and request logs. Logs carry the
-/// method, path, status, latency and request id, never headers (so never cookies, tokens or
-/// passwords) nor bodies.
+/// The application: routes, limits, timeouts, request ids, request logs and security headers
+/// (no sniffing, no referrer, a Content-Security-Policy that allows nothing to load and no
+/// framing, no caching of answers). Logs carry the method, path, status, latency and request
+/// id, never headers (so never cookies, tokens or passwords) nor bodies.
 fn app(state: AppState) -> Router {
     let options = state.options.clone();
     let layers = ServiceBuilder::new()
@@ -69,6 +71,22 @@ fn app(state: AppState) -> Router {
                 .on_response(DefaultOnResponse::new().level(Level::INFO)),
         )
         .layer(PropagateRequestIdLayer::x_request_id())
+        .layer(SetResponseHeaderLayer::overriding(
+            header::X_CONTENT_TYPE_OPTIONS,
+            HeaderValue::from_static("nosniff"),
+        ))
+        .layer(SetResponseHeaderLayer::overriding(
+            header::REFERRER_POLICY,
+            HeaderValue::from_static("no-referrer"),
+        ))
+        .layer(SetResponseHeaderLayer::overriding(
+            header::CONTENT_SECURITY_POLICY,
+            HeaderValue::from_static("default-src 'none'; frame-ancestors 'none'"),
+        ))
+        .layer(SetResponseHeaderLayer::if_not_present(
+            header::CACHE_CONTROL,
+            HeaderValue::from_static("no-store"),
+        ))
         .layer(RequestBodyLimitLayer::new(options.max_body))
         .layer(TimeoutLayer::with_status_code(
             StatusCode::REQUEST_TIMEOUT,
@@ -77,6 +95,7 @@ fn app(state: AppState) -> Router {
     routes()
         .into_router()
         .fallback(not_found)
+        .method_not_allowed_fallback(method_not_allowed)
         .layer(DefaultBodyLimit::max(options.max_body))
         .layer(layers)
         .with_state(state)
@@ -89,6 +108,16 @@ async fn not_found() -> error::ApiError {
         "not-found",
         "no route has this path",
         "see /api/v1/openapi.json for the routes",
+    )
+}
+
+/// A path held by a route, with a method it does not take.
+async fn method_not_allowed() -> error::ApiError {
+    error::ApiError::new(
+        StatusCode::METHOD_NOT_ALLOWED,
+        "method-not-allowed",
+        "this route does not take this method",
+        "see /api/v1/openapi.json for the methods of each route",
     )
 }
 

@@ -221,3 +221,72 @@ pub async fn sign_out(
     );
     Ok((StatusCode::NO_CONTENT, headers))
 }
+
+#[cfg(test)]
+mod tests {
+    use std::time::Duration;
+
+    use axum::body::Body;
+    use axum::extract::connect_info::MockConnectInfo;
+    use axum::http::Request;
+    use tower::ServiceExt;
+    use whorl::library::{Library, Role};
+
+    use super::*;
+    use crate::server::state::Options;
+
+    async fn post_sign_in(app: axum::Router, name: &str, password: &str) -> StatusCode {
+        let body = json!({ "name": name, "password": password }).to_string();
+        let request = Request::post("/api/v1/session")
+            .header("content-type", "application/json")
+            .body(Body::from(body))
+            .unwrap();
+        app.oneshot(request).await.unwrap().status()
+    }
+
+    /// The server's router in process over a library on disk, with the lock-out path driven
+    /// without waiting out the back-off: the failures before the last are aged past it.
+    #[tokio::test]
+    async fn the_tenth_failure_in_a_row_locks_the_account_and_is_an_event() {
+        let dir = tempfile::tempdir().unwrap();
+        let root = dir.path().join("lib");
+        let mut lib = Library::init(&root, "setup").unwrap();
+        lib.add_account("erin", Role::Curator, "setup").unwrap();
+        lib.set_password("erin", "the right passphrase", "setup")
+            .unwrap();
+        drop(lib);
+        let state = AppState::new(Options {
+            library: root.clone(),
+            address: "127.0.0.1:0".parse().unwrap(),
+            behind_tls_proxy: false,
+            idle_timeout: Duration::from_secs(60),
+            session_lifetime: Duration::from_secs(3600),
+            max_body: 1 << 20,
+            request_timeout: Duration::from_secs(60),
+        });
+        let app = crate::server::app(state.clone())
+            .layer(MockConnectInfo(SocketAddr::from(([127, 0, 0, 1], 9))));
+        let key = format!("account:{}", Person::new("erin", "account").unwrap().key());
+        for _ in 0..LOCKOUT_AFTER - 1 {
+            record_failure(&state, &key);
+        }
+        let aged = Instant::now() - Duration::from_secs(61);
+        state.failures.lock().unwrap().get_mut(&key).unwrap().last = aged;
+        assert_eq!(
+            post_sign_in(app.clone(), "ERIN", "a wrong passphrase").await,
+            StatusCode::UNAUTHORIZED
+        );
+        // Locked: the right password is refused (423) once the back-off is aged past too.
+        state.failures.lock().unwrap().get_mut(&key).unwrap().last = aged;
+        assert_eq!(
+            post_sign_in(app, "erin", "the right passphrase").await,
+            StatusCode::LOCKED
+        );
+        let lib = Library::open(&root).unwrap();
+        let event = lib.events(None).unwrap().pop().unwrap();
+        assert_eq!(event.action, "account-lockout");
+        assert_eq!(event.payload["failed_sign_ins"], LOCKOUT_AFTER);
+        let account = lib.account("erin").unwrap().unwrap();
+        assert!(account.locked_until.unwrap() > whorl::library::now());
+    }
+}

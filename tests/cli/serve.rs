@@ -312,6 +312,21 @@ fn the_server_signs_in_refuses_backs_off_searches_and_stops_on_sigterm() {
     let health = call(&server, "GET", "/health", Auth::None, None);
     assert_eq!(health.status, 200);
     assert!(health.headers.get("x-request-id").is_some());
+    // Security headers on every answer (OWASP HTTP Headers Cheat Sheet: nosniff, no
+    // referrer, a CSP that loads nothing and forbids framing).
+    assert_eq!(health.headers["x-content-type-options"], "nosniff");
+    assert_eq!(health.headers["referrer-policy"], "no-referrer");
+    let csp = health.headers["content-security-policy"].to_str().unwrap();
+    assert!(csp.contains("default-src 'none'") && csp.contains("frame-ancestors 'none'"));
+    // Unknown paths and methods are JSON errors too.
+    let nowhere = call(&server, "GET", "/api/v1/nowhere", Auth::None, None);
+    assert_eq!(
+        (nowhere.status, nowhere.body["kind"].as_str()),
+        (404, Some("not-found"))
+    );
+    let wrong_method = call(&server, "DELETE", "/health", Auth::None, None);
+    assert_eq!(wrong_method.status, 405);
+    assert!(wrong_method.body["hint"].as_str().is_some());
 
     // Every route that is not public refuses a caller without a session or token.
     let routes = routes(&lab);
