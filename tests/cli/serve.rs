@@ -90,6 +90,11 @@ impl Server {
             .status()
             .unwrap();
         assert!(status.success());
+        self.wait_exit()
+    }
+
+    /// Waits (at most 20 s) for the process to end.
+    fn wait_exit(&mut self) -> std::process::ExitStatus {
         let started = Instant::now();
         loop {
             if let Some(s) = self.child.try_wait().unwrap() {
@@ -554,5 +559,73 @@ fn the_server_signs_in_refuses_backs_off_searches_and_stops_on_sigterm() {
     let status = server.terminate();
     assert!(status.success(), "{status:?}\n{}", server.log());
     assert!(server.log().contains("stopped"), "{}", server.log());
+    lab.ok(&["check"]);
+}
+
+#[test]
+fn a_submission_in_flight_at_sigterm_is_finished_and_kept() {
+    let lab = Lab::new();
+    lab.ok(&["account", "add", "s.submitter", "--role", "submitter"]);
+    let token = lab
+        .ok(&[
+            "token",
+            "create",
+            "--account",
+            "s.submitter",
+            "--label",
+            "instrument",
+        ])
+        .trim()
+        .to_string();
+    let mut server = Server::start(&lab);
+    let file = std::fs::read(seed().join("unknowns").join("u02.ir.csv")).unwrap();
+    let (content_type, body) = multipart(
+        &[("technique", "ir"), ("name", "methyl acetate")],
+        "u02.ir.csv",
+        &file,
+    );
+    let address = server.base.trim_start_matches("http://").to_string();
+    let mut stream = std::net::TcpStream::connect(&address).unwrap();
+    stream
+        .set_read_timeout(Some(Duration::from_secs(30)))
+        .unwrap();
+    write!(
+        stream,
+        "POST /api/v1/spectra HTTP/1.1\r\nHost: {address}\r\nAuthorization: Bearer {token}\r\nContent-Type: {content_type}\r\nContent-Length: {}\r\nConnection: close\r\n\r\n",
+        body.len()
+    )
+    .unwrap();
+    // Half the body, then SIGTERM while the request is in flight, then the rest.
+    let half = body.len() / 2;
+    stream.write_all(&body[..half]).unwrap();
+    stream.flush().unwrap();
+    std::thread::sleep(Duration::from_millis(300));
+    let pid = server.child.id().to_string();
+    assert!(
+        std::process::Command::new("kill")
+            .args(["-TERM", &pid])
+            .status()
+            .unwrap()
+            .success()
+    );
+    std::thread::sleep(Duration::from_millis(300));
+    stream.write_all(&body[half..]).unwrap();
+    let mut answer = String::new();
+    std::io::Read::read_to_string(&mut stream, &mut answer).unwrap();
+    assert!(answer.starts_with("HTTP/1.1 200"), "{answer}");
+    let status = server.wait_exit();
+    let log = server.log();
+    assert!(status.success(), "{status:?}\n{log}");
+    // The request was answered after the shutdown began, so it was in flight at SIGTERM.
+    let began = log.find("shutting down").expect("a shutdown line");
+    let answered = log
+        .find("path=/api/v1/spectra}: tower_http::trace::on_response")
+        .expect("the submission's response line");
+    assert!(began < answered, "{log}");
+    // The acknowledged submission is in the library, submitted by the token's account.
+    let list = lab.json(&["list"]);
+    assert_eq!(list.as_array().unwrap().len(), 1, "{list}");
+    let shown = lab.json(&["show", "1"]);
+    assert_eq!(shown["spectrum"]["submitted_by"], "s.submitter", "{shown}");
     lab.ok(&["check"]);
 }
