@@ -71,6 +71,24 @@ fn backed_off(wait: std::time::Duration) -> ApiError {
     e
 }
 
+/// The client's address: the peer's, or behind a TLS proxy (`--behind-tls-proxy`) the last
+/// entry of `X-Forwarded-For`, the one the proxy itself appended (the entries before it come
+/// from the client and prove nothing).
+fn client_address(state: &AppState, peer: SocketAddr, headers: &HeaderMap) -> String {
+    if state.options.behind_tls_proxy
+        && let Some(last) = headers
+            .get_all("x-forwarded-for")
+            .iter()
+            .filter_map(|v| v.to_str().ok())
+            .flat_map(|v| v.split(','))
+            .map(str::trim)
+            .rfind(|v| v.parse::<std::net::IpAddr>().is_ok())
+    {
+        return last.to_string();
+    }
+    peer.ip().to_string()
+}
+
 /// Signs in with a name and password; answers with the account and sets the session cookie.
 /// Failed sign-ins back off per account and per address; the tenth failure of an account in a
 /// row locks it out for 15 minutes, recorded as an `account-lockout` event.
@@ -82,6 +100,7 @@ fn backed_off(wait: std::time::Duration) -> ApiError {
 pub async fn sign_in(
     State(state): State<AppState>,
     ConnectInfo(peer): ConnectInfo<SocketAddr>,
+    request_headers: HeaderMap,
     body: Result<Json<SignIn>, JsonRejection>,
 ) -> Result<Response, ApiError> {
     let Json(body) = body?;
@@ -91,7 +110,8 @@ pub async fn sign_in(
             .map(|p| p.key().to_string())
             .unwrap_or_else(|_| body.name.trim().to_lowercase())
     );
-    let address_key = format!("address:{}", peer.ip());
+    let client = client_address(&state, peer, &request_headers);
+    let address_key = format!("address:{client}");
     for (key, free) in [
         (&account_key, FREE_FAILURES_ACCOUNT),
         (&address_key, FREE_FAILURES_ADDRESS),
@@ -127,14 +147,14 @@ pub async fn sign_in(
         Ok(None) => {
             let n = record_failure(&state, &account_key);
             record_failure(&state, &address_key);
-            tracing::info!(peer = %peer.ip(), failures = n, "sign-in refused");
+            tracing::info!(client = %client, failures = n, "sign-in refused");
             if n == LOCKOUT_AFTER
                 && let Some(a) = existing
             {
                 let until = (chrono::Utc::now()
                     + chrono::Duration::from_std(LOCKOUT).unwrap_or_default())
                 .to_rfc3339_opts(chrono::SecondsFormat::Millis, true);
-                let by = format!("server (from {})", peer.ip());
+                let by = format!("server (from {client})");
                 state
                     .with_library(move |lib| Ok(lib.lock_account(a.id, &until, n, &by)?))
                     .await?;
