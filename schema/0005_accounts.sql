@@ -48,3 +48,7 @@ CREATE TRIGGER token_is_fixed BEFORE UPDATE OF account_id, label, sha256, create
 BEGIN
     SELECT RAISE(ABORT, 'a token is revoked, never changed');
 END;
+
+-- Whether an event's actor was signed in (a server session or token: the account proved who
+-- it is) or only asserted (a name given on the command line). Older events were asserted.
+ALTER TABLE event ADD COLUMN identity TEXT NOT NULL DEFAULT 'asserted';

@@ -33,7 +33,7 @@ pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use caches::BuildProgress;
 pub use check::{CheckReport, Finding};
 pub use curation::{MetadataPatch, RevisionInfo};
-pub use events::Event;
+pub use events::{ASSERTED, Event, SIGNED_IN};
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use identity::{MAX_NAME_CHARS, Person, same_person};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};

@@ -163,7 +163,7 @@ pub async fn submit(
     let y_unit = form.parsed("y_unit")?;
     let actor = caller.account.name.clone();
     let outcome = state
-        .with_library(move |lib| {
+        .write_as(move |lib| {
             let dir = tempfile::tempdir()
                 .map_err(|e| whorl::Error::io("making a temporary folder", e))?;
             let path = form.save_in(dir.path())?;
@@ -232,7 +232,7 @@ pub async fn withdraw(
     let (Path(id), Json(body)) = (id?, body?);
     let by = caller.account.name.clone();
     state
-        .with_library(move |lib| Ok(lib.withdraw(id, &by, &body.reason)?))
+        .write_as(move |lib| Ok(lib.withdraw(id, &by, &body.reason)?))
         .await?;
     Ok(Json(
         json!({ "spectrum": id, "status": "withdrawn", "by": caller.account.name }),
@@ -284,7 +284,7 @@ pub async fn review(
     };
     let name = caller.account.name.clone();
     let review = state
-        .with_library(move |lib| {
+        .write_as(move |lib| {
             if lib.check_password(&name, &body.password)?.is_none() {
                 return Err(ApiError::new(
                     StatusCode::UNAUTHORIZED,

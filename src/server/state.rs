@@ -86,6 +86,20 @@ impl AppState {
         .await?
     }
 
+    /// As [`AppState::with_library`], for a write made as a signed-in caller: every event the
+    /// write appends says `signed-in`.
+    pub async fn write_as<T, F>(&self, f: F) -> Result<T, ApiError>
+    where
+        T: Send + 'static,
+        F: FnOnce(&mut Library) -> Result<T, ApiError> + Send + 'static,
+    {
+        self.with_library(move |lib| {
+            lib.act_signed_in()?;
+            f(lib)
+        })
+        .await
+    }
+
     /// Whether cookies must be marked Secure (the client reaches us over TLS).
     pub fn secure_cookies(&self) -> bool {
         self.options.behind_tls_proxy

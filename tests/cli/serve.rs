@@ -465,6 +465,26 @@ fn the_server_signs_in_refuses_backs_off_searches_and_stops_on_sigterm() {
     assert_eq!(signed.status, 200, "{}", signed.body);
     assert_eq!(signed.body["reviewer"], "g.signer");
     assert_eq!(signed.body["revision"], 1);
+    // The trail says which events were signed in: the sign-off made through the server, not
+    // the submission made on the command line.
+    let trail = lab.json(&["log", &pending.to_string()]);
+    let kinds: Vec<(&str, &str)> = trail
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|e| {
+            (
+                e["action"].as_str().unwrap(),
+                e["identity"].as_str().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(kinds, [("add", "asserted"), ("review", "signed-in")]);
+    let table = lab.ok(&["log", &pending.to_string()]);
+    assert!(
+        table.contains("identity") && table.contains("signed-in"),
+        "{table}"
+    );
     let shown = lab.json(&["show", &pending.to_string()]);
     assert_eq!(shown["spectrum"]["status"], "verified", "{shown}");
     assert_eq!(shown["reviews"][0]["reviewer"], "g.signer");
