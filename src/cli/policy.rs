@@ -13,11 +13,24 @@ pub enum Allow {
     Forbid,
 }
 
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum SignOffs {
+    Any,
+    SignedOnly,
+}
+
 #[derive(Debug, Args)]
 pub struct PolicyArgs {
     /// Whether a submitter may review their own spectra (forbidden by default)
     #[arg(long, value_enum)]
     pub self_review: Option<Allow>,
+    /// Which sign-offs count: any (the command line's too), or signed-only (through the lab
+    /// server, by a signed-in account with its password); needs --reason
+    #[arg(long, value_enum, requires = "reason")]
+    pub sign_offs: Option<SignOffs>,
+    /// Why the sign-off policy changes
+    #[arg(long)]
+    pub reason: Option<String>,
     /// Who changes the policy [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
@@ -28,11 +41,25 @@ pub fn run(args: PolicyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     if let Some(a) = args.self_review {
         lib.set_self_review(matches!(a, Allow::Allow), &identity(args.by.as_deref()))?;
     }
+    if let Some(s) = args.sign_offs {
+        lib.set_signed_sign_offs_only(
+            matches!(s, SignOffs::SignedOnly),
+            args.reason.as_deref().unwrap_or_default(),
+            &identity(args.by.as_deref()),
+        )?;
+    }
     let state = if lib.allow_self_review()? {
         "allowed"
     } else {
         "forbidden"
     };
-    writeln!(std::io::stdout().lock(), "self-review: {state}")?;
+    let mut out = std::io::stdout().lock();
+    writeln!(out, "self-review: {state}")?;
+    let sign_offs = if lib.signed_sign_offs_only()? {
+        "signed-only (through the lab server)"
+    } else {
+        "any (asserted on the command line, or signed through the server)"
+    };
+    writeln!(out, "sign-offs: {sign_offs}")?;
     Ok(ExitCode::SUCCESS)
 }

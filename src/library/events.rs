@@ -82,7 +82,7 @@ pub fn event_hash_with(
 const SIGNED_IN_MARK: &str = "whorl_signed_in";
 
 /// Whether this connection writes as a signed-in account.
-fn identity_of(tx: &Connection) -> Result<&'static str> {
+pub(super) fn identity_of(tx: &Connection) -> Result<&'static str> {
     let marked: bool = tx.query_row(
         "SELECT count(*) > 0 FROM sqlite_temp_master WHERE type = 'table' AND name = ?1",
         [SIGNED_IN_MARK],

@@ -489,6 +489,55 @@ fn the_server_signs_in_refuses_backs_off_searches_and_stops_on_sigterm() {
     assert_eq!(shown["spectrum"]["status"], "verified", "{shown}");
     assert_eq!(shown["reviews"][0]["reviewer"], "g.signer");
 
+    // With signed sign-offs required, the command line's asserted review is refused and
+    // changes nothing; the same sign-off through the server is accepted.
+    let second_file = seed().join("unknowns").join("u05.ir.csv");
+    let second = lab
+        .ok(&[
+            "add",
+            second_file.to_str().unwrap(),
+            "--technique",
+            "ir",
+            "--name",
+            "second pending",
+        ])
+        .trim()
+        .to_string();
+    lab.fails(&["policy", "--sign-offs", "signed-only"], 2);
+    let policy = lab.ok(&[
+        "policy",
+        "--sign-offs",
+        "signed-only",
+        "--reason",
+        "QA rule 7",
+        "--by",
+        "a.admin",
+    ]);
+    assert!(policy.contains("sign-offs: signed-only"), "{policy}");
+    let text = lab.refuses(&["review", &second, "--approve", "--by", "g.signer"], 3);
+    assert!(text.contains("only signed sign-offs"), "{text}");
+    assert!(hint(&text).contains("/api/v1/spectra/ID/review"), "{text}");
+    let path = format!("/api/v1/spectra/{second}/review");
+    let signed = call(
+        &server,
+        "POST",
+        &path,
+        Auth::Cookie(&signer_cookie),
+        Some(json!({ "decision": "approve", "password": PASSWORDS[2].2 })),
+    );
+    assert_eq!(signed.status, 200, "{}", signed.body);
+    let policy_event = lab
+        .json(&["log"])
+        .as_array()
+        .unwrap()
+        .iter()
+        .rev()
+        .find(|e| e["action"] == "policy")
+        .cloned()
+        .unwrap();
+    assert_eq!(policy_event["payload"]["sign_offs"], "signed-only");
+    assert_eq!(policy_event["payload"]["reason"], "QA rule 7");
+
     // A bearer token: used (and logged by id), then revoked, refused at once.
     let token = lab
         .ok(&[
