@@ -1,15 +1,17 @@
 //! The `whorl` command: parse, dispatch, map errors to exit codes.
 
 mod cli;
+mod server;
 
 use std::process::ExitCode;
+use std::time::Duration;
 
 use clap::Parser;
 
 fn main() -> ExitCode {
     let args = cli::Cli::parse();
     let paint = cli::stderr_paint(args.global.color);
-    match cli::run(args) {
+    match cli::run(args, serve) {
         Ok(code) => code,
         Err(err) => {
             if is_broken_pipe(&err) {
@@ -20,6 +22,28 @@ fn main() -> ExitCode {
             ExitCode::from(cli::exit_code(&err))
         }
     }
+}
+
+/// Starts the lab server for `whorl serve`: the command line's face hands its arguments to
+/// the server's face here, so the two never import each other.
+fn serve(args: cli::serve::ServeArgs, ctx: &cli::Context) -> anyhow::Result<ExitCode> {
+    if args.print_routes {
+        let routes = server::route_list();
+        println!("{}", serde_json::to_string_pretty(&routes)?);
+        return Ok(ExitCode::SUCCESS);
+    }
+    let options = server::Options {
+        library: args.library(ctx),
+        address: args.address,
+        behind_tls_proxy: args.behind_tls_proxy,
+        idle_timeout: Duration::from_secs(args.idle_timeout * 60),
+        session_lifetime: Duration::from_secs(args.session_lifetime * 3600),
+        max_body: args.max_body << 20,
+        request_timeout: Duration::from_secs(args.request_timeout),
+    };
+    server::check_address(&options, args.tls_cert.is_some())?;
+    server::run(options)?;
+    Ok(ExitCode::SUCCESS)
 }
 
 fn is_broken_pipe(err: &anyhow::Error) -> bool {

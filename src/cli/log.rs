@@ -28,13 +28,14 @@ pub fn run(args: LogArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         return Ok(ExitCode::SUCCESS);
     }
     let mut t = output::Table::new(&[
-        ">seq", "at (UTC)", "actor", "action", "record", "detail", "hash",
+        ">seq", "at (UTC)", "actor", "identity", "action", "record", "detail", "hash",
     ]);
     for e in &events {
         t.row(vec![
             e.seq.to_string(),
             e.at.clone(),
             e.actor.clone(),
+            e.identity.clone(),
             e.action.clone(),
             e.record.clone(),
             detail(e),

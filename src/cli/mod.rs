@@ -1,5 +1,6 @@
 //! The command line: one file per subcommand, each with its clap `Args` and `run`.
 
+mod account;
 mod add;
 mod check;
 mod completions;
@@ -27,8 +28,10 @@ mod replay;
 mod review;
 mod revise;
 mod search;
+pub mod serve;
 mod show;
 mod stats;
+mod token;
 mod withdraw;
 mod witness;
 
@@ -136,6 +139,12 @@ pub enum Command {
     Key(key::KeyArgs),
     /// Show or change the library's review policy.
     Policy(policy::PolicyArgs),
+    /// Accounts of the lab server: add, list, disable, password.
+    Account(account::AccountArgs),
+    /// Bearer tokens for programs: create, list, revoke.
+    Token(token::TokenArgs),
+    /// Serve the library to the lab over HTTP: JSON API, sign-in, tokens.
+    Serve(serve::ServeArgs),
     /// Show the preparation recipes, or change one and prepare its spectra again.
     Recipe(recipe::RecipeArgs),
     /// Build a demo library from seed-library/ and search its example unknowns.
@@ -198,8 +207,12 @@ impl Context {
     }
 }
 
-/// Runs a parsed command line.
-pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+/// Runs a parsed command line; `serve` is how `whorl serve` starts the server (another face,
+/// which `main.rs` hands in).
+pub fn run(
+    cli: Cli,
+    serve: impl FnOnce(serve::ServeArgs, &Context) -> anyhow::Result<ExitCode>,
+) -> anyhow::Result<ExitCode> {
     let ctx = Context {
         library: cli
             .global
@@ -230,6 +243,12 @@ pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Command::Replay(a) => replay::run(a, &ctx),
         Command::Key(a) => key::run(a, &ctx),
         Command::Policy(a) => policy::run(a, &ctx),
+        Command::Account(a) => account::run(a, &ctx),
+        Command::Token(a) => token::run(a, &ctx),
+        Command::Serve(a) => {
+            a.check()?;
+            serve(a, &ctx)
+        }
         Command::Recipe(a) => recipe::run(a, &ctx),
         Command::Demo(a) => demo::run(a, &ctx),
         Command::Formula(a) => formula::run(a, &ctx),

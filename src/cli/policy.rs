@@ -13,13 +13,24 @@ pub enum Allow {
     Forbid,
 }
 
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum SignOffs {
+    Any,
+    SignedOnly,
+}
+
 #[derive(Debug, Args)]
 pub struct PolicyArgs {
     /// Whether a submitter may review their own spectra (forbidden by default)
     #[arg(long, value_enum)]
     pub self_review: Option<Allow>,
-    /// Why the policy changes (required with --self-review; recorded in the audit trail)
-    #[arg(long, requires = "self_review")]
+    /// Which sign-offs count: any (the command line's too), or signed-only (through the lab
+    /// server, by a signed-in account with its password)
+    #[arg(long, value_enum)]
+    pub sign_offs: Option<SignOffs>,
+    /// Why the policy changes (required with --self-review or --sign-offs; recorded in the
+    /// audit trail)
+    #[arg(long)]
     pub reason: Option<String>,
     /// Who changes the policy [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
@@ -28,18 +39,30 @@ pub struct PolicyArgs {
 
 pub fn run(args: PolicyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
+    let reason = || {
+        args.reason
+            .as_deref()
+            .map(str::trim)
+            .filter(|r| !r.is_empty())
+            .ok_or_else(|| {
+                whorl::Error::invalid(
+                    "a change of the review policy needs a reason",
+                    "add --reason \"why the policy changes\"; it is recorded in the audit trail",
+                )
+            })
+    };
     if let Some(a) = args.self_review {
-        let Some(reason) = args.reason.as_deref() else {
-            return Err(whorl::Error::invalid(
-                "a change of the review policy needs a reason",
-                "add --reason \"why the policy changes\"; it is recorded in the audit trail",
-            )
-            .into());
-        };
         lib.set_self_review(
             matches!(a, Allow::Allow),
             &identity(args.by.as_deref())?,
-            reason,
+            reason()?,
+        )?;
+    }
+    if let Some(s) = args.sign_offs {
+        lib.set_signed_sign_offs_only(
+            matches!(s, SignOffs::SignedOnly),
+            reason()?,
+            &identity(args.by.as_deref())?,
         )?;
     }
     let state = if lib.allow_self_review()? {
@@ -47,6 +70,13 @@ pub fn run(args: PolicyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     } else {
         "forbidden"
     };
-    writeln!(std::io::stdout().lock(), "self-review: {state}")?;
+    let mut out = std::io::stdout().lock();
+    writeln!(out, "self-review: {state}")?;
+    let sign_offs = if lib.signed_sign_offs_only()? {
+        "signed-only (through the lab server)"
+    } else {
+        "any (asserted on the command line, or signed through the server)"
+    };
+    writeln!(out, "sign-offs: {sign_offs}")?;
     Ok(ExitCode::SUCCESS)
 }

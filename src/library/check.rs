@@ -7,7 +7,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 use serde_json::Value;
 
-use super::events::{GENESIS_HASH, event_hash};
+use super::events::{ASSERTED, GENESIS_HASH, SIGNED_IN, event_hash_with};
 use super::records::{Review, SpectrumRecord, f32_bytes};
 use super::{ContentSum, Library, Recipes, prepare_stored, record_hash};
 use crate::error::Result;
@@ -152,6 +152,11 @@ impl Library {
                 ))
             })?
             .collect::<rusqlite::Result<_>>()?;
+        let identities: HashMap<i64, String> = {
+            let mut stmt = self.conn.prepare("SELECT seq, identity FROM event")?;
+            stmt.query_map([], |r| Ok((r.get(0)?, r.get(1)?)))?
+                .collect::<rusqlite::Result<_>>()?
+        };
         let mut previous_hash = GENESIS_HASH.to_string();
         let mut expected_seq = 1;
         for (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash) in &events {
@@ -176,7 +181,24 @@ impl Library {
             if *prev_hash != previous_hash {
                 find(id.clone(), "it does not follow the event before it (an event was removed, reordered or edited)".into());
             }
-            if event_hash(*seq, at, actor, action, record, payload_hash, prev_hash) != *hash {
+            let identity = identities.get(seq).map_or(ASSERTED, String::as_str);
+            if identity != ASSERTED && identity != SIGNED_IN {
+                find(
+                    id.clone(),
+                    format!("its identity kind '{identity}' is neither asserted nor signed-in"),
+                );
+            }
+            if event_hash_with(
+                *seq,
+                at,
+                actor,
+                action,
+                record,
+                payload_hash,
+                prev_hash,
+                identity,
+            ) != *hash
+            {
                 find(
                     id.clone(),
                     "its fields do not match its hash (the event was edited)".into(),
@@ -288,6 +310,15 @@ impl Library {
                 "withdraw" => e.status = "withdrawn".into(),
                 _ => {}
             }
+        }
+
+        for (record, problem) in super::accounts::replay(
+            &self.conn,
+            events
+                .iter()
+                .map(|e| (e.3.as_str(), e.4.as_str(), e.5.as_str())),
+        )? {
+            find(record, problem);
         }
 
         let stored_recipes: Vec<(String, String)> = {

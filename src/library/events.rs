@@ -29,6 +29,66 @@ pub struct Event {
     pub prev_hash: String,
     /// This event's hash.
     pub hash: String,
+    /// `asserted` (a name given on the command line) or `signed-in` (an account that signed
+    /// in to the server with its password or a token).
+    #[serde(default = "asserted")]
+    pub identity: String,
+}
+
+fn asserted() -> String {
+    ASSERTED.to_string()
+}
+
+/// The identity of an event whose actor is a name given on the command line.
+pub const ASSERTED: &str = "asserted";
+/// The identity of an event whose actor signed in (session or token).
+pub const SIGNED_IN: &str = "signed-in";
+
+/// The hash of one event with its identity kind: asserted events hash as they always have
+/// ([`event_hash`]); a signed-in event adds its kind to the hashed array, so that turning an
+/// asserted event into a signed-in one (or back) breaks the chain.
+#[allow(clippy::too_many_arguments)]
+pub fn event_hash_with(
+    seq: i64,
+    at: &str,
+    actor: &str,
+    action: &str,
+    record: &str,
+    payload_hash: &str,
+    prev_hash: &str,
+    identity: &str,
+) -> String {
+    if identity == ASSERTED {
+        return event_hash(seq, at, actor, action, record, payload_hash, prev_hash);
+    }
+    sha256_hex(
+        serde_json::json!([
+            seq,
+            at,
+            actor,
+            action,
+            record,
+            payload_hash,
+            prev_hash,
+            identity
+        ])
+        .to_string()
+        .as_bytes(),
+    )
+}
+
+/// The name of the connection's temporary table whose presence marks its writes as made by a
+/// signed-in account ([`Library::act_signed_in`]).
+const SIGNED_IN_MARK: &str = "whorl_signed_in";
+
+/// Whether this connection writes as a signed-in account.
+pub(super) fn identity_of(tx: &Connection) -> Result<&'static str> {
+    let marked: bool = tx.query_row(
+        "SELECT count(*) > 0 FROM sqlite_temp_master WHERE type = 'table' AND name = ?1",
+        [SIGNED_IN_MARK],
+        |r| r.get(0),
+    )?;
+    Ok(if marked { SIGNED_IN } else { ASSERTED })
 }
 
 /// The hash that starts the chain.
@@ -72,10 +132,20 @@ pub fn append_event(
     let at = now();
     let payload_text = payload.to_string();
     let payload_hash = sha256_hex(payload_text.as_bytes());
-    let hash = event_hash(seq, &at, actor, action, record, &payload_hash, &prev_hash);
+    let identity = identity_of(tx)?;
+    let hash = event_hash_with(
+        seq,
+        &at,
+        actor,
+        action,
+        record,
+        &payload_hash,
+        &prev_hash,
+        identity,
+    );
     tx.execute(
-        "INSERT INTO event (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash)
-         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
+        "INSERT INTO event (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash, identity)
+         VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
         params![
             seq,
             at,
@@ -85,7 +155,8 @@ pub fn append_event(
             payload_text,
             payload_hash,
             prev_hash,
-            hash
+            hash,
+            identity
         ],
     )?;
     // The head of the chain is kept beside it, so that deleting the newest events is found too.
@@ -94,11 +165,21 @@ pub fn append_event(
 }
 
 impl Library {
+    /// Marks every event this open library writes from now on as made by a signed-in account:
+    /// a face that authenticated the caller (the server) calls it before writing as them. The
+    /// mark lives in a temporary table of this connection, so it ends with the `Library`.
+    pub fn act_signed_in(&self) -> Result<()> {
+        self.conn.execute_batch(&format!(
+            "CREATE TEMP TABLE IF NOT EXISTS {SIGNED_IN_MARK} (x INTEGER)"
+        ))?;
+        Ok(())
+    }
+
     /// Events in sequence order, for the whole library or for one record (e.g. "spectrum:12").
     pub fn events(&self, record: Option<&str>) -> Result<Vec<Event>> {
         let mut stmt = self.conn.prepare(
-            "SELECT seq, at, actor, action, record, payload, payload_hash, prev_hash, hash FROM event
-             WHERE ?1 IS NULL OR record = ?1 ORDER BY seq",
+            "SELECT seq, at, actor, action, record, payload, payload_hash, prev_hash, hash, identity
+             FROM event WHERE ?1 IS NULL OR record = ?1 ORDER BY seq",
         )?;
         let rows = stmt.query_map([record], |r| {
             Ok((
@@ -111,11 +192,13 @@ impl Library {
                 r.get::<_, String>(6)?,
                 r.get::<_, String>(7)?,
                 r.get::<_, String>(8)?,
+                r.get::<_, String>(9)?,
             ))
         })?;
         let mut out = Vec::new();
         for row in rows {
-            let (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash) = row?;
+            let (seq, at, actor, action, record, payload, payload_hash, prev_hash, hash, identity) =
+                row?;
             out.push(Event {
                 seq,
                 at,
@@ -126,6 +209,7 @@ impl Library {
                 payload_hash,
                 prev_hash,
                 hash,
+                identity,
             });
         }
         Ok(out)
@@ -254,6 +338,61 @@ mod tests {
                 .any(|f| f.record == "event:2" && f.problem.contains("payload was edited")),
             "{:?}",
             report.findings
+        );
+    }
+
+    #[test]
+    fn signed_in_events_say_so_and_the_kind_is_held_by_the_chain() {
+        let mut lib = busy_library();
+        let asserted = lib.events(None).unwrap();
+        assert!(asserted.iter().all(|e| e.identity == ASSERTED));
+        lib.act_signed_in().unwrap();
+        let c = add(&mut lib, &ir(3, "toluene", "alice"));
+        let last = lib
+            .events(Some(&format!("spectrum:{c}")))
+            .unwrap()
+            .pop()
+            .unwrap();
+        assert_eq!(last.identity, SIGNED_IN);
+        // An asserted event hashes as before the kind existed; a signed-in one does not.
+        assert_eq!(
+            asserted[0].hash,
+            event_hash(
+                asserted[0].seq,
+                &asserted[0].at,
+                &asserted[0].actor,
+                &asserted[0].action,
+                &asserted[0].record,
+                &asserted[0].payload_hash,
+                &asserted[0].prev_hash
+            )
+        );
+        assert_ne!(
+            last.hash,
+            event_hash(
+                last.seq,
+                &last.at,
+                &last.actor,
+                &last.action,
+                &last.record,
+                &last.payload_hash,
+                &last.prev_hash
+            )
+        );
+        assert!(lib.check(&|_, _| {}).unwrap().findings.is_empty());
+        // Passing an asserted event off as signed in breaks the chain at that event.
+        lib.conn
+            .execute_batch(
+                "DROP TRIGGER event_no_update;
+                 UPDATE event SET identity = 'signed-in' WHERE seq = 2;",
+            )
+            .unwrap();
+        let findings = lib.check(&|_, _| {}).unwrap().findings;
+        assert!(
+            findings
+                .iter()
+                .any(|f| f.record == "event:2" && f.problem.contains("do not match its hash")),
+            "{findings:?}"
         );
     }
 

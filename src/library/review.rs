@@ -3,7 +3,7 @@
 
 use rusqlite::params;
 
-use super::events::append_event;
+use super::events::{SIGNED_IN, append_event, identity_of};
 use super::identity::same_person;
 use super::records::{Review, SpectrumRecord};
 use super::state::{put_setting, reweigh};
@@ -67,6 +67,39 @@ impl Library {
                 &serde_json::json!({ "allow_self_review": allow, "reason": reason }),
             )?;
             put_setting(tx, "allow_self_review", &allow.to_string())?;
+            Ok(((), vec![]))
+        })
+    }
+
+    /// Whether sign-offs must be signed (made through the server by a signed-in account); off
+    /// by default, so the command line's asserted sign-offs are accepted.
+    pub fn signed_sign_offs_only(&self) -> Result<bool> {
+        Ok(self.setting("sign_offs")?.as_deref() == Some("signed-only"))
+    }
+
+    /// Sets whether sign-offs must be signed, with a reason, recorded as a `policy` event.
+    pub fn set_signed_sign_offs_only(
+        &mut self,
+        only: bool,
+        reason: &str,
+        actor: &str,
+    ) -> Result<()> {
+        if reason.trim().is_empty() {
+            return Err(Error::invalid(
+                "a change of the sign-off policy needs a reason",
+                "say why with --reason TEXT",
+            ));
+        }
+        let value = if only { "signed-only" } else { "any" };
+        self.write(|tx| {
+            put_setting(tx, "sign_offs", value)?;
+            append_event(
+                tx,
+                actor,
+                "policy",
+                "library",
+                &serde_json::json!({ "sign_offs": value, "reason": reason.trim() }),
+            )?;
             Ok(((), vec![]))
         })
     }
@@ -136,6 +169,12 @@ impl Library {
             return Err(Error::invalid(
                 format!("spectrum {id} is named more than once; one sign-off per spectrum"),
                 "name each spectrum once",
+            ));
+        }
+        if self.signed_sign_offs_only()? && identity_of(&self.conn)? != SIGNED_IN {
+            return Err(Error::invalid(
+                "this library accepts only signed sign-offs: a reviewer must sign in to the lab server",
+                "sign off through the server (POST /api/v1/spectra/ID/review, with your password); an administrator changes this with `whorl policy --sign-offs any --reason TEXT`",
             ));
         }
         let allow_self = self.allow_self_review()?;

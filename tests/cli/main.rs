@@ -24,6 +24,7 @@ mod replay;
 mod report;
 mod search;
 mod search_science;
+mod serve;
 mod show;
 mod stats;
 mod trade_facts;
