@@ -65,3 +65,10 @@ WHEN OLD.key = 'allow_self_review'
 BEGIN
     SELECT RAISE(ABORT, 'the review policy changes only through whorl policy, recorded in the audit trail');
 END;
+
+-- A withdrawal's reason, once given, stays as recorded.
+CREATE TRIGGER spectrum_withdrawal_reason_is_fixed BEFORE UPDATE OF withdrawn_reason ON spectrum
+WHEN OLD.withdrawn_reason IS NOT NULL
+BEGIN
+    SELECT RAISE(ABORT, 'the reason of a withdrawal is kept as recorded');
+END;

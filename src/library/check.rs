@@ -53,6 +53,10 @@ struct Expected {
     imported_by: Option<String>,
     /// The sign-offs, in the order they were written.
     reviews: Vec<ExpectedReview>,
+    /// Who wrote each revision, where the events say.
+    authors: BTreeMap<i64, String>,
+    /// Why it was withdrawn, when it is.
+    withdrawn_reason: Option<String>,
 }
 
 /// One sign-off as its event recorded it; `at` and `imported_from` are absent from events
@@ -272,6 +276,9 @@ impl Library {
                     e.status = "pending".into();
                     e.submitted_by = p["submitted_by"].as_str().map(str::to_string);
                     e.imported_by = Some(actor.clone());
+                    if let Some(by) = &e.submitted_by {
+                        e.authors.insert(1, by.clone());
+                    }
                 }
                 "import" => {
                     e.submitted_by = p["submitted_by"].as_str().map(str::to_string);
@@ -279,8 +286,11 @@ impl Library {
                     e.technique = p["technique"].as_str().unwrap_or_default().to_string();
                     e.raw_sha256 = p["raw_sha256"].as_str().unwrap_or_default().to_string();
                     for r in p["revisions"].as_array().into_iter().flatten() {
-                        e.revisions
-                            .insert(r["number"].as_i64().unwrap_or(0), r["metadata"].clone());
+                        let n = r["number"].as_i64().unwrap_or(0);
+                        e.revisions.insert(n, r["metadata"].clone());
+                        if let Some(by) = r["created_by"].as_str() {
+                            e.authors.insert(n, by.to_string());
+                        }
                     }
                     e.current = p["current_revision"].as_i64().unwrap_or(1);
                     e.status = p["status"].as_str().unwrap_or_default().to_string();
@@ -296,6 +306,7 @@ impl Library {
                 "revise" => {
                     let n = p["revision"].as_i64().unwrap_or(0);
                     e.revisions.insert(n, p["metadata"].clone());
+                    e.authors.insert(n, actor.clone());
                     e.current = n;
                     e.status = "pending".into();
                 }
@@ -307,7 +318,10 @@ impl Library {
                         e.status = "verified".into();
                     }
                 }
-                "withdraw" => e.status = "withdrawn".into(),
+                "withdraw" => {
+                    e.status = "withdrawn".into();
+                    e.withdrawn_reason = p["reason"].as_str().map(str::to_string);
+                }
                 _ => {}
             }
         }
@@ -389,21 +403,22 @@ impl Library {
                 );
             }
         }
-        let mut revision_rows: HashMap<i64, Vec<(i64, String)>> = HashMap::new();
+        let mut revision_rows: HashMap<i64, Vec<(i64, String, String)>> = HashMap::new();
         {
             let mut stmt = self.conn.prepare(
-                "SELECT spectrum_id, number, metadata FROM revision ORDER BY spectrum_id, number",
+                "SELECT spectrum_id, number, metadata, created_by FROM revision ORDER BY spectrum_id, number",
             )?;
             let rows = stmt.query_map([], |r| {
                 Ok((
                     r.get::<_, i64>(0)?,
                     r.get::<_, i64>(1)?,
                     r.get::<_, String>(2)?,
+                    r.get::<_, String>(3)?,
                 ))
             })?;
             for row in rows {
-                let (id, n, m) = row?;
-                revision_rows.entry(id).or_default().push((n, m));
+                let (id, n, m, by) = row?;
+                revision_rows.entry(id).or_default().push((n, m, by));
             }
         }
         let mut review_rows: HashMap<i64, Vec<Review>> = HashMap::new();
@@ -458,7 +473,17 @@ impl Library {
                     ),
                 );
             }
-            for (n, text) in rows {
+            for (n, text, by) in rows {
+                if let Some(want) = e.authors.get(n)
+                    && want != by
+                {
+                    find(
+                        id.clone(),
+                        format!(
+                            "revision {n} was written by {want} in its event but {by} on record (edited)"
+                        ),
+                    );
+                }
                 let stored: Value = serde_json::from_str(text).unwrap_or(Value::Null);
                 if e.revisions.get(n) != Some(&stored) {
                     find(
@@ -492,6 +517,18 @@ impl Library {
                             "the sign-off of {id} by {} differs from its event in: {} (edited)",
                             row.reviewer,
                             fields.join(", ")
+                        ),
+                    );
+                }
+            }
+            if let Some(want) = &e.withdrawn_reason {
+                let reason = self.withdrawn_reason(rec.id)?;
+                if reason.as_deref() != Some(want.as_str()) {
+                    find(
+                        id.clone(),
+                        format!(
+                            "withdrawn for \"{}\" on record but \"{want}\" in its event (edited)",
+                            reason.as_deref().unwrap_or("")
                         ),
                     );
                 }

@@ -337,6 +337,14 @@ fn audited() -> Lab {
     ]);
     lab.ok(&["review", "2", "--reject", "--by", "b.reviewer"]);
     lab.ok(&[
+        "withdraw",
+        "2",
+        "--reason",
+        "baseline drifts",
+        "--by",
+        "q.manager",
+    ]);
+    lab.ok(&[
         "policy",
         "--self-review",
         "forbid",
@@ -398,6 +406,8 @@ fn the_guarded_columns_refuse_edits_while_their_triggers_stand() {
         "DELETE FROM trusted_key",
         "DELETE FROM spectrum WHERE id = 2",
         "UPDATE review SET reviewer = 'x'",
+        "UPDATE revision SET created_by = 'x'",
+        "UPDATE spectrum SET withdrawn_reason = 'x' WHERE id = 2",
     ] {
         let err = db.execute_batch(sql).unwrap_err().to_string();
         assert!(!err.is_empty(), "{sql}");
@@ -411,7 +421,7 @@ fn check_finds_every_tampered_sign_off_submitter_policy_and_key() {
     let lab = audited();
     // (table.column, edit, what check must name): each edit made directly in SQLite with the
     // triggers dropped.
-    let cases: [(&str, &str, &str); 14] = [
+    let cases: [(&str, &str, &str); 16] = [
         (
             "review.reviewer",
             "UPDATE review SET reviewer = 'm.allory' WHERE spectrum_id = 1",
@@ -455,6 +465,16 @@ fn check_finds_every_tampered_sign_off_submitter_policy_and_key() {
         (
             "spectrum.submitted_by",
             "UPDATE spectrum SET submitted_by = 'b.reviewer' WHERE id = 2",
+            "spectrum:2",
+        ),
+        (
+            "revision.created_by",
+            "UPDATE revision SET created_by = 'b.reviewer' WHERE spectrum_id = 2",
+            "spectrum:2",
+        ),
+        (
+            "spectrum.withdrawn_reason",
+            "UPDATE spectrum SET withdrawn_reason = 'no reason' WHERE id = 2",
             "spectrum:2",
         ),
         (
@@ -504,7 +524,7 @@ fn check_finds_every_tampered_sign_off_submitter_policy_and_key() {
         );
         found += 1;
     }
-    assert_eq!(found, 14);
+    assert_eq!(found, 16);
 }
 
 #[test]
