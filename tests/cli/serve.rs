@@ -503,7 +503,9 @@ fn the_server_signs_in_refuses_backs_off_searches_and_stops_on_sigterm() {
         ])
         .trim()
         .to_string();
-    lab.fails(&["policy", "--sign-offs", "signed-only"], 2);
+    // A policy change without a reason is refused, as every policy change is.
+    let err = lab.fails(&["policy", "--sign-offs", "signed-only"], 3);
+    assert!(err.contains("needs a reason"), "{err}");
     let policy = lab.ok(&[
         "policy",
         "--sign-offs",
