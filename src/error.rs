@@ -180,3 +180,51 @@ impl Error {
         }
     }
 }
+
+/// A short excerpt of text from a file or a user, safe to put in a message: control
+/// characters (a newline, NUL, the ESC that starts a terminal escape sequence) written as
+/// `\n`, `\0`, `\u{1b}` and the like, and at most `max_chars` characters kept, the rest
+/// replaced by `…`. Messages quote file content only through it, so a 2 MB token or a
+/// forged line never reaches the terminal whole.
+pub fn excerpt(text: &str, max_chars: usize) -> String {
+    let mut out = String::new();
+    for (n, c) in text.chars().enumerate() {
+        if n == max_chars {
+            out.push('…');
+            break;
+        }
+        match c {
+            '\n' => out.push_str("\\n"),
+            '\r' => out.push_str("\\r"),
+            '\t' => out.push_str("\\t"),
+            '\0' => out.push_str("\\0"),
+            c if c.is_control() || is_invisible_format(c) => {
+                out.push_str(&c.escape_unicode().to_string())
+            }
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// Characters that change how text reads without showing themselves: bidirectional
+/// overrides and isolates (the "Trojan Source" characters, Boucher & Anderson, 2021) and the
+/// zero-width ones.
+fn is_invisible_format(c: char) -> bool {
+    matches!(c, '\u{200b}'..='\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}' | '\u{feff}')
+}
+
+#[cfg(test)]
+mod excerpt_tests {
+    use super::excerpt;
+
+    #[test]
+    fn control_characters_are_escaped_and_long_text_cut() {
+        // ECMA-48 (5th edition, 1991), section 5.4: a control sequence starts with ESC [.
+        assert_eq!(excerpt("a\u{1b}[31mred", 80), "a\\u{1b}[31mred");
+        assert_eq!(excerpt("x\ny\0", 80), "x\\ny\\0");
+        assert_eq!(excerpt(&"z".repeat(2_000_000), 5), "zzzzz…");
+        assert_eq!(excerpt("abc", 3), "abc");
+        assert_eq!(excerpt("a\u{202e}b", 9), "a\\u{202e}b");
+    }
+}

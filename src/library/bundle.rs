@@ -16,8 +16,8 @@ use super::manifest::{KNOWN_COLUMNS, resolve_within};
 use super::records::SpectrumRecord;
 use super::{ContentSum, Library, fingerprint, now, record_hash};
 use crate::error::{Error, Location, Result};
-use crate::spectrum::sha256_hex;
 use crate::spectrum::{Metadata, Status};
+use crate::spectrum::{csv_cell, sha256_hex};
 
 /// The bundle format this build writes and reads.
 pub const BUNDLE_FORMAT: &str = "whorl-bundle-1";
@@ -151,7 +151,10 @@ impl Library {
             .chain(extra_keys.iter().map(String::as_str))
             .chain(PROVENANCE_COLUMNS.iter().copied())
             .collect();
-        w.write_record(&header).map_err(csv_error)?;
+        // Text from users and files is written through `csv_cell` (OWASP's CSV-injection
+        // guidance), which the bundle reader undoes, so the round trip loses nothing.
+        w.write_record(header.iter().map(|h| csv_cell(h).into_owned()))
+            .map_err(csv_error)?;
         let mut sums: BTreeMap<String, String> = BTreeMap::new();
         let mut content = ContentSum::default();
         for (done, rec) in records.iter().enumerate() {
@@ -197,7 +200,8 @@ impl Library {
                 serde_json::to_string(&revisions)?,
                 serde_json::to_string(&reviews)?,
             ]);
-            w.write_record(&row).map_err(csv_error)?;
+            w.write_record(row.iter().map(|c| csv_cell(c).into_owned()))
+                .map_err(csv_error)?;
             if rec.status.searchable() {
                 content.add(&record_hash(
                     rec.technique.name(),

@@ -104,6 +104,27 @@ impl Library {
         Ok(done)
     }
 
+    /// The cache files that are damaged (see [`cache::damage`]), each with the reason, after
+    /// removing them so that they are rebuilt from the database when next needed. Derived
+    /// data is never repaired in place: `check` reports each one and rebuilds what it uses.
+    pub fn remove_damaged_vector_caches(&self) -> Result<Vec<(String, String)>> {
+        let mut found = Vec::new();
+        for t in Technique::ALL {
+            for kind in [Kind::Centred, Kind::Unit, Kind::Sparse, Kind::Entropy] {
+                let Some(path) = self.cache_path(t, kind) else {
+                    continue;
+                };
+                if let Some(reason) = cache::damage(&path, t, kind) {
+                    self.caches.memo.borrow_mut().remove(&(t, kind));
+                    std::fs::remove_file(&path)
+                        .map_err(|e| Error::io(format!("removing {}", path.display()), e))?;
+                    found.push((cache::file_name(t, kind), reason));
+                }
+            }
+        }
+        Ok(found)
+    }
+
     /// Where the cache file of a technique and kind lies (`None` for an in-memory library).
     fn cache_path(&self, technique: Technique, kind: Kind) -> Option<std::path::PathBuf> {
         self.root()

@@ -5,7 +5,7 @@ use std::path::{Component, Path, PathBuf};
 
 use crate::error::{Error, Location, Result};
 use crate::library::{Metadata, Submission};
-use crate::spectrum::{XUnit, YUnit};
+use crate::spectrum::{XUnit, YUnit, csv_cell_restored};
 use crate::technique::Technique;
 
 /// Columns every manifest must have.
@@ -122,6 +122,13 @@ pub(super) fn read_bundle_manifest(path: &Path) -> Result<Vec<ManifestRow>> {
     read_rows(path, "unknown", true)
 }
 
+/// A manifest cell as read: a bundle's cells were written through `csv_cell` (spreadsheet
+/// formulas neutralised), so one leading quote is removed; a hand-written manifest is read
+/// as it is.
+fn cell(c: &str, bundle: bool) -> &str {
+    if bundle { csv_cell_restored(c) } else { c }
+}
+
 fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<ManifestRow>> {
     let bytes = std::fs::read(path).map_err(|e| {
         Error::input(
@@ -142,7 +149,7 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
             )
         })?
         .iter()
-        .map(|h| h.trim().to_string())
+        .map(|h| cell(h, bundle).trim().to_string())
         .collect();
     for required in REQUIRED_COLUMNS {
         if !headers.iter().any(|h| h == required) {
@@ -177,11 +184,13 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
             )
         })?;
         let line = record.position().map_or(0, |p| p.line() as usize);
+        let record: Vec<&str> = record.iter().map(|c| cell(c, bundle)).collect();
+        let record = &record;
         let field = |name: &str| {
             headers
                 .iter()
                 .position(|h| h == name)
-                .and_then(|i| record.get(i))
+                .and_then(|i| record.get(i).copied())
                 .map(str::trim)
                 .unwrap_or("")
         };
@@ -212,7 +221,7 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
                     && !h.is_empty()
                     && !h.starts_with(PROVENANCE_PREFIX)
                 {
-                    let v = record.get(i).unwrap_or("").trim();
+                    let v = record.get(i).copied().unwrap_or("").trim();
                     if !v.is_empty() {
                         extra.insert(extra_key(h), v.to_string());
                     }
@@ -250,7 +259,7 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
             .iter()
             .enumerate()
             .filter(|(_, h)| h.starts_with(PROVENANCE_PREFIX))
-            .map(|(i, h)| (h.clone(), record.get(i).unwrap_or("").to_string()))
+            .map(|(i, h)| (h.clone(), record.get(i).copied().unwrap_or("").to_string()))
             .collect();
         rows.push(ManifestRow {
             line,

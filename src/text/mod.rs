@@ -111,14 +111,57 @@ pub struct TextIndex {
     index: Index,
     reader: IndexReader,
     fields: Fields,
+    /// Why the index found on disk could not be opened and was started afresh, if it was.
+    damage: Option<String>,
 }
 
 /// Memory budget of the index writer; tantivy needs a few MB per thread at least.
 const WRITER_BUDGET: usize = 50_000_000;
 
 impl TextIndex {
-    /// Opens the index in `dir`, creating it when the folder is empty or missing.
+    /// Opens the index in `dir`, creating it when the folder is empty or missing. An index that
+    /// cannot be opened (a truncated `meta.json`, a missing or unreadable segment file) is
+    /// derived data: it is removed and started afresh, empty, so the library rebuilds it
+    /// from the database; [`TextIndex::damage`] then says why. Only a folder that cannot be
+    /// created or removed is an error.
     pub fn open_or_create(dir: &Path) -> Result<TextIndex> {
+        let first = match TextIndex::open_as_is(dir) {
+            Ok(t) => return Ok(t),
+            Err(e @ Error::Io { .. }) => return Err(e),
+            Err(e) => e,
+        };
+        // Once more after a moment, in case another process was replacing a file just then.
+        std::thread::sleep(std::time::Duration::from_millis(50));
+        if let Ok(t) = TextIndex::open_as_is(dir) {
+            return Ok(t);
+        }
+        std::fs::remove_dir_all(dir)
+            .map_err(|e| Error::io(format!("removing the damaged {}", dir.display()), e))?;
+        let mut t = TextIndex::open_as_is(dir)?;
+        t.damage = Some(first.to_string());
+        Ok(t)
+    }
+
+    /// Why the index found on disk was damaged and started afresh when it was opened, if it
+    /// was (the library then rebuilds it from the database).
+    pub fn damage(&self) -> Option<&str> {
+        self.damage.as_deref()
+    }
+
+    /// The files of the index whose checksums do not match their content (tantivy keeps a
+    /// CRC32 footer in each managed file), read whole: for `check`, not for every command.
+    pub fn corrupted_files(&self) -> Result<Vec<String>> {
+        let mut bad: Vec<String> = self
+            .index
+            .validate_checksum()?
+            .into_iter()
+            .map(|p| p.display().to_string())
+            .collect();
+        bad.sort();
+        Ok(bad)
+    }
+
+    fn open_as_is(dir: &Path) -> Result<TextIndex> {
         std::fs::create_dir_all(dir)
             .map_err(|e| Error::io(format!("creating {}", dir.display()), e))?;
         let (schema, fields) = schema();
@@ -130,7 +173,7 @@ impl TextIndex {
             Err(tantivy::TantivyError::SchemaError(_)) => {
                 std::fs::remove_dir_all(dir)
                     .map_err(|e| Error::io(format!("removing {}", dir.display()), e))?;
-                return TextIndex::open_or_create(dir);
+                return TextIndex::open_as_is(dir);
             }
             Err(e) => return Err(e.into()),
         };
@@ -152,6 +195,7 @@ impl TextIndex {
             index,
             reader,
             fields,
+            damage: None,
         })
     }
 

@@ -412,3 +412,37 @@ fn a_file_of_another_technique_is_refused_saying_what_it_looks_like() {
     );
     contains(hint(&text), "give the technique as nmr-1h");
 }
+
+#[test]
+fn a_y_that_overflows_in_preparation_is_refused_with_its_line() {
+    // 1e200 squared is infinite in IEEE 754 binary64 (largest finite value about 1.8e308).
+    let mut pts = ir_points(30);
+    pts[4].1 = 1e200;
+    let text = refused_add(xy_csv("x,y", &pts), "ir", &[], "bad.csv:6");
+    contains(&text, "far larger than any measured value");
+    // The same file as an unknown: no NaN scores, the same refusal.
+    let lab = lab();
+    lab.write("u.csv", xy_csv("x,y", &pts));
+    let text = lab.refuses(&["search", "u.csv", "--technique", "ir"], 3);
+    contains(&text, "u.csv:6");
+}
+
+#[test]
+fn top_zero_is_refused() {
+    let lab = lab();
+    lab.write("u.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    let text = lab.refuses(
+        &[
+            "search",
+            "u.csv",
+            "--technique",
+            "ir",
+            "--include-pending",
+            "--top",
+            "0",
+        ],
+        3,
+    );
+    contains(&text, "--top 0");
+    assert!(!hint(&text).is_empty());
+}
