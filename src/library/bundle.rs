@@ -17,7 +17,7 @@ use super::records::SpectrumRecord;
 use super::{ContentSum, Library, fingerprint, now, record_hash};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::{Metadata, Status};
-use crate::spectrum::{csv_cell, sha256_hex};
+use crate::spectrum::{csv_cell, sha256_hex, sha256_hex_of};
 
 /// The bundle format this build writes and reads.
 pub const BUNDLE_FORMAT: &str = "whorl-bundle-1";
@@ -317,14 +317,38 @@ pub fn verify_bundle(dir: &Path) -> Result<BundleInfo> {
                 "a bundle may only list files inside its own folder; nothing was imported",
             )
         })?;
-        let bytes = std::fs::read(&path).map_err(|e| {
+        let in_place = file == "manifest.csv"
+            || file == "bundle.json"
+            || file
+                .strip_prefix("spectra/")
+                .is_some_and(|f| !f.is_empty() && !f.contains(['/', '\\']));
+        if !in_place {
+            return Err(Error::input(
+                at,
+                format!(
+                    "'{}' is not a file a bundle holds",
+                    crate::error::excerpt(file, 80)
+                ),
+                "a bundle holds manifest.csv, bundle.json and the files of spectra/, nothing else; nothing was imported",
+            ));
+        }
+        // Only regular files, hashed as they are read: a FIFO would block, a device never end.
+        let unreadable = |e: String| {
             Error::input(
                 at.clone(),
                 format!("{file} is listed but cannot be read: {e}"),
                 "the bundle is incomplete; copy it again from its source; nothing was imported",
             )
-        })?;
-        if sha256_hex(&bytes) != sum.trim() {
+        };
+        match std::fs::metadata(&path) {
+            Ok(m) if m.is_file() => {}
+            Ok(_) => return Err(unreadable("it is not a regular file".into())),
+            Err(e) => return Err(unreadable(e.to_string())),
+        }
+        let digest = std::fs::File::open(&path)
+            .and_then(sha256_hex_of)
+            .map_err(|e| unreadable(e.to_string()))?;
+        if digest != sum.trim() {
             return Err(Error::input(
                 at,
                 format!("{file} does not match its checksum"),

@@ -122,6 +122,36 @@ pub(super) fn read_bundle_manifest(path: &Path) -> Result<Vec<ManifestRow>> {
     read_rows(path, "unknown", true)
 }
 
+/// The line on which a quoted field opens that the file never closes, read as RFC 4180
+/// (Shafranovich, 2005, section 2, rules 5-7) reads quotes: a field that starts with a quote
+/// ends at the next quote that is not doubled. The csv crate would take everything to the
+/// end of the file into that one field.
+fn unterminated_quote(bytes: &[u8]) -> Option<usize> {
+    let (mut line, mut opened, mut quoted, mut field_start) = (1, 0, false, true);
+    let mut i = 0;
+    while i < bytes.len() {
+        let b = bytes[i];
+        if quoted {
+            if b == b'"' {
+                if bytes.get(i + 1) == Some(&b'"') {
+                    i += 1;
+                } else {
+                    quoted = false;
+                }
+            }
+        } else if b == b'"' && field_start {
+            quoted = true;
+            opened = line;
+        }
+        if b == b'\n' {
+            line += 1;
+        }
+        field_start = !quoted && matches!(b, b',' | b'\n' | b'\r');
+        i += 1;
+    }
+    quoted.then_some(opened)
+}
+
 /// A manifest cell as read: a bundle's cells were written through `csv_cell` (spreadsheet
 /// formulas neutralised), so one leading quote is removed; a hand-written manifest is read
 /// as it is.
@@ -138,6 +168,13 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
         )
     })?;
     let bytes = bytes.strip_prefix(&[0xEF, 0xBB, 0xBF]).unwrap_or(&bytes);
+    if let Some(line) = unterminated_quote(bytes) {
+        return Err(Error::input(
+            Location::line(path, line),
+            "a quoted field opened on this line is never closed (the rows after it would be read as part of it)",
+            "close the quote, or double a quote inside a quoted field (\"\")",
+        ));
+    }
     let mut reader = csv::ReaderBuilder::new().flexible(false).from_reader(bytes);
     let headers: Vec<String> = reader
         .headers()

@@ -66,6 +66,19 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
     hex::encode(Sha256::digest(bytes))
 }
 
+/// SHA-256 of everything `reader` gives, hex, read in blocks (never held whole in memory).
+pub fn sha256_hex_of(mut reader: impl std::io::Read) -> std::io::Result<String> {
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = reader.read(&mut buf)?;
+        if n == 0 {
+            return Ok(hex::encode(h.finalize()));
+        }
+        h.update(&buf[..n]);
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

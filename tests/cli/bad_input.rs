@@ -446,3 +446,21 @@ fn top_zero_is_refused() {
     contains(&text, "--top 0");
     assert!(!hint(&text).is_empty());
 }
+
+#[test]
+fn an_unterminated_quote_in_a_manifest_is_refused_with_its_line() {
+    let lab = lab();
+    lab.write("m/a.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    lab.write("m/b.csv", ir_csv(&[(1600.0, 0.8, 10.0)]));
+    lab.write("m/c.csv", ir_csv(&[(1500.0, 0.8, 10.0)]));
+    // RFC 4180, section 2: a quoted field ends at the next single quote; line 3 opens one
+    // that nothing closes, which would swallow the row after it.
+    lab.write(
+        "m/list.csv",
+        "file,technique,name\na.csv,ir,alpha\nb.csv,ir,\"beta\nc.csv,ir,gamma\n",
+    );
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(&text, "m/list.csv:3");
+    contains(&text, "never closed");
+    assert!(!hint(&text).is_empty());
+}

@@ -355,3 +355,34 @@ fn csv_rows_of(text: &str) -> Vec<std::collections::BTreeMap<String, String>> {
         })
         .collect()
 }
+
+#[test]
+fn a_listed_file_outside_spectra_is_refused() {
+    let (lab, bundle) = bundle_of_three();
+    std::fs::write(bundle.join("notes.txt"), "1,2\n").unwrap();
+    let sums = bundle.join("SHA256SUMS");
+    let mut text = std::fs::read_to_string(&sums).unwrap();
+    let digest = whorl::spectrum::sha256_hex(b"1,2\n");
+    text.push_str(&format!("{digest}  notes.txt\n"));
+    std::fs::write(&sums, text).unwrap();
+    import_fails(&lab, &bundle, "is not a file a bundle holds");
+}
+
+#[test]
+fn a_fifo_in_a_bundle_is_refused_without_waiting() {
+    let (lab, bundle) = bundle_of_three();
+    let victim = std::fs::read_dir(bundle.join("spectra"))
+        .unwrap()
+        .next()
+        .unwrap()
+        .unwrap()
+        .path();
+    std::fs::remove_file(&victim).unwrap();
+    // mkfifo (POSIX.1-2017, XCU "mkfifo"): opening it for reading blocks until a writer comes.
+    let made = std::process::Command::new("mkfifo")
+        .arg(&victim)
+        .status()
+        .unwrap();
+    assert!(made.success());
+    import_fails(&lab, &bundle, "not a regular file");
+}
