@@ -82,7 +82,7 @@ pub enum Error {
         id: i64,
     },
     /// The metadata query could not be parsed.
-    #[error("metadata query '{query}' is not valid: {reason}")]
+    #[error("metadata query '{}' is not valid: {reason}", excerpt(query, 80))]
     Query {
         /// The query as given.
         query: String,

@@ -160,6 +160,15 @@ fn cell(c: &str, bundle: bool) -> &str {
 }
 
 fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<ManifestRow>> {
+    if let Ok(m) = std::fs::metadata(path)
+        && !m.is_file()
+    {
+        return Err(Error::input(
+            Location::file(path),
+            "the manifest is not a regular file (a folder, a FIFO or a device)",
+            "give the path of a manifest CSV file",
+        ));
+    }
     let bytes = std::fs::read(path).map_err(|e| {
         Error::input(
             Location::file(path),

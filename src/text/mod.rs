@@ -106,6 +106,44 @@ fn schema() -> (Schema, Fields) {
     (b.build(), fields)
 }
 
+/// The deepest nesting of brackets a query may have. The parser descends once per bracket,
+/// so a query nested thousands deep would overflow the stack; people write a few levels.
+pub const MAX_QUERY_DEPTH: usize = 32;
+/// The longest query accepted, in bytes.
+pub const MAX_QUERY_BYTES: usize = 4096;
+
+/// Refuses a query too long or nested too deep to parse safely.
+fn check_shape(query: &str) -> Result<()> {
+    let refuse = |reason: String| Error::Query {
+        query: query.to_string(),
+        reason,
+    };
+    if query.len() > MAX_QUERY_BYTES {
+        return Err(refuse(format!(
+            "it is {} bytes long; the most is {MAX_QUERY_BYTES}",
+            query.len()
+        )));
+    }
+    let (mut depth, mut deepest, mut quoted) = (0usize, 0usize, false);
+    for c in query.chars() {
+        match c {
+            '"' => quoted = !quoted,
+            '(' if !quoted => {
+                depth += 1;
+                deepest = deepest.max(depth);
+            }
+            ')' if !quoted => depth = depth.saturating_sub(1),
+            _ => {}
+        }
+    }
+    if deepest > MAX_QUERY_DEPTH {
+        return Err(refuse(format!(
+            "brackets nested {deepest} deep; the most is {MAX_QUERY_DEPTH}"
+        )));
+    }
+    Ok(())
+}
+
 /// The tantivy index of one library.
 pub struct TextIndex {
     index: Index,
@@ -345,6 +383,7 @@ impl TextIndex {
     }
 
     fn parse(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
+        check_shape(query)?;
         let rewritten = route_extra_fields(query);
         self.parser(true)
             .parse_query(&rewritten)
@@ -357,6 +396,7 @@ impl TextIndex {
     /// The query for ranking: [`prune::PrunedUnion`] where it applies (a union of terms and
     /// phrases; no slop, which the parser reads only after `~`), else the parsed query.
     fn parse_ranked(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
+        check_shape(query)?;
         if !query.contains('~') {
             let rewritten = route_extra_fields(query);
             if let Ok(plain) = self.parser(false).parse_query(&rewritten)

@@ -464,3 +464,37 @@ fn an_unterminated_quote_in_a_manifest_is_refused_with_its_line() {
     contains(&text, "never closed");
     assert!(!hint(&text).is_empty());
 }
+
+#[test]
+fn a_fifo_or_a_device_is_refused_at_once() {
+    let lab = lab();
+    let fifo = lab.path("pipe.csv");
+    // mkfifo (POSIX.1-2017, XCU "mkfifo"): reading one waits for a writer.
+    assert!(
+        std::process::Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap()
+            .success()
+    );
+    let text = lab.refuses(&["add", "pipe.csv", "-t", "ir", "--name", "p"], 3);
+    contains(&text, "not a regular file");
+    // /dev/zero never ends (POSIX.1-2017 does not define it; Linux's null(4) does).
+    let text = lab.refuses(&["add", "/dev/zero", "-t", "ir", "--name", "z"], 3);
+    contains(&text, "not a regular file");
+    let text = lab.refuses(&["import", "pipe.csv"], 3);
+    contains(&text, "not a regular file");
+}
+
+#[test]
+fn a_query_nested_thousands_deep_is_refused_with_a_hint() {
+    let lab = lab();
+    let deep = format!("{}name:x{}", "(".repeat(9000), ")".repeat(9000));
+    let text = lab.refuses(&["find", &deep[..8192.min(deep.len())]], 3);
+    assert!(!hint(&text).is_empty());
+    let q = format!("{}name:x{}", "(".repeat(100), ")".repeat(100));
+    let text = lab.refuses(&["find", &q], 3);
+    contains(&text, "nested 100 deep");
+    // The query is quoted only in part.
+    assert!(text.len() < 1000, "{text}");
+}
