@@ -89,6 +89,13 @@ pub enum Error {
         /// Parser message.
         reason: String,
     },
+    /// The library kept changing (another process writing) while derived data was built
+    /// from it; treated as a busy library.
+    #[error("the library kept changing while its {what} was built")]
+    Changing {
+        /// What was being built.
+        what: String,
+    },
     /// SQLite failed.
     #[error("database: {0}")]
     Sqlite(#[from] rusqlite::Error),
@@ -123,12 +130,22 @@ impl Error {
                 "another whorl process is writing to this library; wait for it to finish and run the command again \
                  (WHORL_BUSY_TIMEOUT_MS sets how long to wait)",
             ),
+            Error::Changing { .. } => Some(
+                "another whorl process kept writing to this library; run the command again when it has finished",
+            ),
+            Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
+                if f.code == rusqlite::ErrorCode::DiskFull =>
+            {
+                Some(
+                    "the disk is full: nothing was written; free some space and run the command again",
+                )
+            }
             Error::Sqlite(_) => {
                 Some("keep a copy of the library folder, run `whorl check`, and report the message")
             }
-            Error::Tantivy(_) => Some(
-                "the text index is derived data: delete the library's text-index/ folder and run the command again to rebuild it",
-            ),
+            Error::Tantivy(_) => {
+                Some("the text index is derived data: `whorl check` rebuilds it from the database")
+            }
             Error::Io { .. } => Some(
                 "check that the path exists, that you may read and write it, and that the disk has room",
             ),
@@ -140,7 +157,8 @@ impl Error {
 
     /// True when SQLite gave up waiting for another process's write lock.
     pub fn is_busy(&self) -> bool {
-        matches!(self, Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
+        matches!(self, Error::Changing { .. })
+            || matches!(self, Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
             if matches!(f.code, rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked))
     }
 

@@ -40,10 +40,9 @@ pub struct Builder {
 }
 
 fn changed() -> Error {
-    Error::invalid(
-        "the library changed while its vector cache was built",
-        "search again",
-    )
+    Error::Changing {
+        what: "vector cache".into(),
+    }
 }
 
 impl Builder {

@@ -73,7 +73,23 @@ impl Library {
 
     /// Builds the cache of one technique and kind from the database: into `cache/` when the
     /// library has a folder that can be written, else in memory.
+    /// Another process writing while the rows are read makes the build start again, up to
+    /// [`BUILD_ATTEMPTS`] times with a growing pause, then an [`Error::Changing`] (a busy
+    /// library: exit 6).
     pub fn build_vector_cache(&self, technique: Technique, kind: Kind) -> Result<VectorCache> {
+        let mut attempt = 1;
+        loop {
+            match self.build_vector_cache_once(technique, kind) {
+                Err(Error::Changing { .. }) if attempt < BUILD_ATTEMPTS => {
+                    std::thread::sleep(std::time::Duration::from_millis(25 << attempt));
+                    attempt += 1;
+                }
+                other => return other,
+            }
+        }
+    }
+
+    fn build_vector_cache_once(&self, technique: Technique, kind: Kind) -> Result<VectorCache> {
         match self.root() {
             Some(root) => match self.fill_cache(technique, kind, Some(&root.join(CACHE_DIR))) {
                 Ok(c) => Ok(c),
@@ -173,8 +189,10 @@ impl Library {
 }
 
 fn changed_while_building() -> Error {
-    Error::invalid(
-        "the library changed while its vector cache was built",
-        "search again",
-    )
+    Error::Changing {
+        what: "vector cache".into(),
+    }
 }
+
+/// Builds made before giving up on a library that keeps changing under the build.
+const BUILD_ATTEMPTS: u32 = 5;
