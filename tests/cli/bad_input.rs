@@ -498,3 +498,43 @@ fn a_query_nested_thousands_deep_is_refused_with_a_hint() {
     // The query is quoted only in part.
     assert!(text.len() < 1000, "{text}");
 }
+
+#[test]
+fn control_characters_in_metadata_are_refused() {
+    // ECMA-48 (5th edition, 1991), 5.4: ESC [ starts a control sequence; a line feed would
+    // start a line of its own in `whorl log`.
+    let lab = lab();
+    lab.write("c.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    for name in ["two\nlines", "red \u{1b}[31mname", "tab\there"] {
+        let text = lab.refuses(&["add", "c.csv", "-t", "ir", "--name", name], 3);
+        contains(&text, "control character");
+        assert!(!hint(&text).is_empty());
+        assert!(
+            !text.contains('\u{1b}'),
+            "the ESC is not echoed raw: {text:?}"
+        );
+    }
+}
+
+#[test]
+fn reserved_and_colliding_metadata_keys_are_refused() {
+    let lab = lab();
+    for set in ["whorl_status=verified", "Name=x", "submitted by=someone"] {
+        let text = lab.refuses(
+            &[
+                "revise", "1", "--set", set, "--reason", "test", "--by", "e.editor",
+            ],
+            3,
+        );
+        contains(&text, "metadata key");
+    }
+    // A manifest whose extra column spells a known one differently.
+    lab.write("m/a.csv", ir_csv(&[(1600.0, 0.8, 10.0)]));
+    lab.write(
+        "m/list.csv",
+        "file,technique,name,Submitted_By\na.csv,ir,alpha,x\n",
+    );
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(&text, "m/list.csv:2");
+    contains(&text, "metadata key");
+}
