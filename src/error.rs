@@ -82,12 +82,19 @@ pub enum Error {
         id: i64,
     },
     /// The metadata query could not be parsed.
-    #[error("metadata query '{query}' is not valid: {reason}")]
+    #[error("metadata query '{}' is not valid: {reason}", excerpt(query, 80))]
     Query {
         /// The query as given.
         query: String,
         /// Parser message.
         reason: String,
+    },
+    /// The library kept changing (another process writing) while derived data was built
+    /// from it; treated as a busy library.
+    #[error("the library kept changing while its {what} was built")]
+    Changing {
+        /// What was being built.
+        what: String,
     },
     /// SQLite failed.
     #[error("database: {0}")]
@@ -123,12 +130,22 @@ impl Error {
                 "another whorl process is writing to this library; wait for it to finish and run the command again \
                  (WHORL_BUSY_TIMEOUT_MS sets how long to wait)",
             ),
+            Error::Changing { .. } => Some(
+                "another whorl process kept writing to this library; run the command again when it has finished",
+            ),
+            Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
+                if f.code == rusqlite::ErrorCode::DiskFull =>
+            {
+                Some(
+                    "the disk is full: nothing was written; free some space and run the command again",
+                )
+            }
             Error::Sqlite(_) => {
                 Some("keep a copy of the library folder, run `whorl check`, and report the message")
             }
-            Error::Tantivy(_) => Some(
-                "the text index is derived data: delete the library's text-index/ folder and run the command again to rebuild it",
-            ),
+            Error::Tantivy(_) => {
+                Some("the text index is derived data: `whorl check` rebuilds it from the database")
+            }
             Error::Io { .. } => Some(
                 "check that the path exists, that you may read and write it, and that the disk has room",
             ),
@@ -140,7 +157,8 @@ impl Error {
 
     /// True when SQLite gave up waiting for another process's write lock.
     pub fn is_busy(&self) -> bool {
-        matches!(self, Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
+        matches!(self, Error::Changing { .. })
+            || matches!(self, Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
             if matches!(f.code, rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked))
     }
 
@@ -178,5 +196,53 @@ impl Error {
             context: context.into(),
             source,
         }
+    }
+}
+
+/// A short excerpt of text from a file or a user, safe to put in a message: control
+/// characters (a newline, NUL, the ESC that starts a terminal escape sequence) written as
+/// `\n`, `\0`, `\u{1b}` and the like, and at most `max_chars` characters kept, the rest
+/// replaced by `…`. Messages quote file content only through it, so a 2 MB token or a
+/// forged line never reaches the terminal whole.
+pub fn excerpt(text: &str, max_chars: usize) -> String {
+    let mut out = String::new();
+    for (n, c) in text.chars().enumerate() {
+        if n == max_chars {
+            out.push('…');
+            break;
+        }
+        match c {
+            '\n' => out.push_str("\\n"),
+            '\r' => out.push_str("\\r"),
+            '\t' => out.push_str("\\t"),
+            '\0' => out.push_str("\\0"),
+            c if c.is_control() || is_invisible_format(c) => {
+                out.push_str(&c.escape_unicode().to_string())
+            }
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// Characters that change how text reads without showing themselves: bidirectional
+/// overrides and isolates (the "Trojan Source" characters, Boucher & Anderson, 2021) and the
+/// zero-width ones.
+fn is_invisible_format(c: char) -> bool {
+    matches!(c, '\u{200b}'..='\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}' | '\u{feff}')
+}
+
+#[cfg(test)]
+mod excerpt_tests {
+    use super::excerpt;
+
+    #[test]
+    fn control_characters_are_escaped_and_long_text_cut() {
+        // ECMA-48 (5th edition, 1991), section 5.4: a control sequence starts with ESC [.
+        assert_eq!(excerpt("a\u{1b}[31mred", 80), "a\\u{1b}[31mred");
+        assert_eq!(excerpt("x\ny\0", 80), "x\\ny\\0");
+        assert_eq!(excerpt(&"z".repeat(2_000_000), 5), "zzzzz…");
+        assert_eq!(excerpt("abc", 3), "abc");
+        assert_eq!(excerpt("a\u{202e}b", 9), "a\\u{202e}b");
     }
 }

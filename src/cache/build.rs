@@ -40,10 +40,9 @@ pub struct Builder {
 }
 
 fn changed() -> Error {
-    Error::invalid(
-        "the library changed while its vector cache was built",
-        "search again",
-    )
+    Error::Changing {
+        what: "vector cache".into(),
+    }
 }
 
 impl Builder {
@@ -78,13 +77,16 @@ impl Builder {
             Some(dir) => {
                 std::fs::create_dir_all(dir)
                     .map_err(|e| Error::io(format!("creating {}", dir.display()), e))?;
+                remove_abandoned(dir);
                 let tmp = tempfile::Builder::new()
-                    .prefix(".building-")
+                    .prefix(&format!("{BUILDING}{}-", std::process::id()))
                     .tempfile_in(dir)
                     .map_err(|e| Error::io(format!("creating a file in {}", dir.display()), e))?;
-                tmp.as_file()
-                    .set_len(layout.len.max(HEADER) as u64)
-                    .map_err(|e| Error::io("sizing the vector cache", e))?;
+                // Every block is allocated before the file is mapped: writing through a map
+                // into a sparse file on a full disk kills the process with SIGBUS, while a
+                // failed allocation is an error that says so (and the temporary file goes).
+                allocate(tmp.as_file(), layout.len.max(HEADER) as u64)
+                    .map_err(|e| Error::io("allocating the vector cache on disk", e))?;
                 // SAFETY: the temporary file is ours alone until it is renamed into place.
                 let map = unsafe { MmapMut::map_mut(tmp.as_file()) }
                     .map_err(|e| Error::io("mapping the vector cache", e))?;
@@ -252,6 +254,64 @@ impl Builder {
         self.peak = end;
         self.row += 1;
         Ok(())
+    }
+}
+
+/// The prefix of a cache file under construction, followed by the building process's id.
+const BUILDING: &str = ".building-";
+
+/// Gives `file` all `len` bytes on disk, so that writing through a map of it cannot fail.
+fn allocate(file: &std::fs::File, len: u64) -> std::io::Result<()> {
+    #[cfg(unix)]
+    {
+        use rustix::fs::{FallocateFlags, fallocate};
+        match fallocate(file, FallocateFlags::empty(), 0, len) {
+            Ok(()) => return Ok(()),
+            // Filesystems without fallocate: zeros written the ordinary way below.
+            Err(e) if e == rustix::io::Errno::OPNOTSUPP => {}
+            Err(e) => return Err(e.into()),
+        }
+    }
+    use std::io::{Seek, Write};
+    let mut f = file;
+    f.seek(std::io::SeekFrom::Start(0))?;
+    let zeros = vec![0u8; 1 << 20];
+    let mut left = len;
+    while left > 0 {
+        let n = left.min(zeros.len() as u64) as usize;
+        f.write_all(&zeros[..n])?;
+        left -= n as u64;
+    }
+    f.flush()
+}
+
+/// Removes the temporary files of builds that were killed (by a crash, a full disk, a
+/// kill -9) in `dir`: each is named with its process's id, and a process that no longer runs
+/// will not finish its file. Where the running processes cannot be listed (no `/proc`), a
+/// leftover is removed once it is a day old.
+pub fn remove_abandoned(dir: &Path) {
+    let Ok(entries) = std::fs::read_dir(dir) else {
+        return;
+    };
+    let procs = Path::new("/proc/self").exists();
+    for e in entries.flatten() {
+        let name = e.file_name();
+        let Some(rest) = name.to_str().and_then(|n| n.strip_prefix(BUILDING)) else {
+            continue;
+        };
+        let pid: Option<u32> = rest.split('-').next().and_then(|p| p.parse().ok());
+        let abandoned = match pid {
+            Some(pid) if procs => !Path::new(&format!("/proc/{pid}")).exists(),
+            _ => e
+                .metadata()
+                .and_then(|m| m.modified())
+                .ok()
+                .and_then(|t| t.elapsed().ok())
+                .is_some_and(|age| age.as_secs() > 24 * 3600),
+        };
+        if abandoned {
+            let _ = std::fs::remove_file(e.path());
+        }
     }
 }
 

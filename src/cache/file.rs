@@ -230,6 +230,22 @@ impl VectorCache {
     }
 }
 
+/// Why the cache file at `path` cannot be used although it is a cache of this whorl's format
+/// (a checksum that fails, a size or a section that disagrees with its header): `None` when
+/// there is no file, when it opens, or when it is merely of another format version (an
+/// upgrade, not damage). A stale cache is not damaged: the library rebuilds it as usual.
+pub fn damage(path: &Path, technique: Technique, kind: Kind) -> Option<String> {
+    if !path.exists() {
+        return None;
+    }
+    match VectorCache::open(path, technique, kind) {
+        Ok(_) => None,
+        Err(Error::Library { reason, .. }) if reason.starts_with("cache format") => None,
+        Err(Error::Library { reason, .. }) => Some(reason),
+        Err(e) => Some(e.to_string()),
+    }
+}
+
 fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<VectorCache, String> {
     if cfg!(target_endian = "big") {
         return Err("vector caches are little-endian".into());
@@ -243,6 +259,9 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
             "cache format {} (this whorl writes {FORMAT_VERSION})",
             u32_at(h, 8)
         ));
+    }
+    if checksum(&h[..HEADER_SUM_AT]) != u64_at(h, HEADER_SUM_AT) {
+        return Err("the cache header fails its checksum (the file is damaged)".into());
     }
     if u32_at(h, 12) != kind.code() {
         return Err("cache of another kind".into());
@@ -265,6 +284,17 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
     for (i, &o) in layout.offsets.iter().enumerate() {
         if u64_at(h, 168 + 8 * i) as usize != o {
             return Err("cache sections do not match its header".into());
+        }
+    }
+    // Every byte after the header is covered by one section's checksum: a damaged file is
+    // refused before any of it is read as rows, ids or statuses.
+    let sums = section_sums(&map, &layout);
+    for (i, s) in sums.iter().enumerate() {
+        if *s != u64_at(h, SUMS_AT + 8 * i) {
+            return Err(format!(
+                "cache section {} fails its checksum (the file is damaged)",
+                SECTION_NAMES[i]
+            ));
         }
     }
     let generation = u64_at(h, 80) as i64;
@@ -393,6 +423,27 @@ mod tests {
         (c.path.clone().unwrap(), technique)
     }
 
+    /// Recomputes the checksums of an edited file, as a writer that meant the edit would: the
+    /// checks behind the checksums must refuse what the checksums would have let through.
+    fn reseal(b: &mut [u8], kind: Kind) {
+        let h = &b[..HEADER];
+        let layout = Layout::new(
+            kind,
+            u64_at(h, 48) as usize,
+            u64_at(h, 64) as usize,
+            u64_at(h, 72) as usize,
+            u32_at(h, BLOCK_AT) as usize,
+        );
+        if b.len() == layout.len {
+            let sums = section_sums(b, &layout);
+            for (i, s) in sums.iter().enumerate() {
+                b[SUMS_AT + 8 * i..SUMS_AT + 8 * i + 8].copy_from_slice(&s.to_le_bytes());
+            }
+        }
+        let own = checksum(&b[..HEADER_SUM_AT]);
+        b[HEADER_SUM_AT..HEADER].copy_from_slice(&own.to_le_bytes());
+    }
+
     fn reason(path: &Path, technique: Technique, kind: Kind) -> String {
         match VectorCache::open(path, technique, kind) {
             Ok(_) => "opened".into(),
@@ -469,6 +520,11 @@ mod tests {
         let edit = |at: usize, value: &[u8]| {
             let mut b = good.clone();
             b[at..at + value.len()].copy_from_slice(value);
+            // Left as it is, the edit fails the checksums.
+            std::fs::write(&path, &b).unwrap();
+            let why = reason(&path, technique, Kind::Centred);
+            assert!(why.contains("fails its checksum"), "{why}");
+            reseal(&mut b, Kind::Centred);
             std::fs::write(&path, &b).unwrap();
             reason(&path, technique, Kind::Centred)
         };
@@ -484,8 +540,17 @@ mod tests {
             edit(64, &4u64.to_le_bytes()),
             "cache size does not match its header"
         );
-        assert_eq!(edit(0, b"WHORLVX\0"), "not a whorl vector cache");
-        assert!(edit(8, &(FORMAT_VERSION + 1).to_le_bytes()).starts_with("cache format"));
+        let mut b = good.clone();
+        b[0..8].copy_from_slice(b"WHORLVX\0");
+        std::fs::write(&path, &b).unwrap();
+        assert_eq!(
+            reason(&path, technique, Kind::Centred),
+            "not a whorl vector cache"
+        );
+        b = good.clone();
+        b[8..12].copy_from_slice(&(FORMAT_VERSION + 1).to_le_bytes());
+        std::fs::write(&path, &b).unwrap();
+        assert!(reason(&path, technique, Kind::Centred).starts_with("cache format"));
         assert_eq!(
             edit(BLOCK_AT, &3u32.to_le_bytes()),
             "cache of an unknown coarse block size"
@@ -520,6 +585,12 @@ mod tests {
         std::fs::write(&path, &b).unwrap();
         assert_eq!(
             reason(&path, technique, Kind::Sparse),
+            "cache section peak_off fails its checksum (the file is damaged)"
+        );
+        reseal(&mut b, Kind::Sparse);
+        std::fs::write(&path, &b).unwrap();
+        assert_eq!(
+            reason(&path, technique, Kind::Sparse),
             "cache peak offsets are damaged"
         );
         // The postings offsets must end at the number of peaks.
@@ -527,11 +598,33 @@ mod tests {
         let mut b = good.clone();
         let last = post + 8 * MZ_BINS;
         b[last..last + 8].copy_from_slice(&99u64.to_le_bytes());
+        reseal(&mut b, Kind::Sparse);
         std::fs::write(&path, &b).unwrap();
         assert_eq!(
             reason(&path, technique, Kind::Sparse),
             "cache postings are damaged"
         );
+    }
+
+    #[test]
+    fn every_single_byte_change_is_refused() {
+        // Each byte of a small file changed in turn: the header's own checksum or one
+        // section's covers it, padding included.
+        let dir = tempfile::tempdir().unwrap();
+        for kind in [Kind::Centred, Kind::Entropy] {
+            let (path, technique) = build(dir.path(), kind);
+            let good = std::fs::read(&path).unwrap();
+            let step = if kind.dense() { 1 } else { 97 };
+            for at in (0..good.len()).step_by(step) {
+                let mut b = good.clone();
+                b[at] ^= 0x20;
+                std::fs::write(&path, &b).unwrap();
+                let why = reason(&path, technique, kind);
+                assert_ne!(why, "opened", "{kind:?}: byte {at} changed");
+            }
+            std::fs::write(&path, &good).unwrap();
+            assert_eq!(reason(&path, technique, kind), "opened");
+        }
     }
 
     #[test]
@@ -561,7 +654,7 @@ mod tests {
         };
         let mut b = new();
         b.push(row(1)).unwrap();
-        assert!(b.push(row(2)).unwrap_err().to_string().contains("changed"));
+        assert!(b.push(row(2)).unwrap_err().is_busy());
         drop(b);
         // Told of one row and given none: nothing is renamed into place.
         let b = new();

@@ -1,9 +1,11 @@
 //! The cache file's layout: a fixed header, then sections aligned to 64 bytes.
 //!
 //! ```text
-//! header   512 bytes: magic, format version, kind, technique, grid length (dim), padded
+//! header   1024 bytes: magic, format version, kind, technique, grid length (dim), padded
 //!          row length (stride), rows, peaks (nnz), generation, fingerprint, composite
-//!          exponents, section offsets, flags (byte 400), coarse factor (bytes 404-407)
+//!          exponents, section offsets, flags (byte 400), coarse factor (bytes 404-407),
+//!          the XXH3-64 checksum of every section (bytes 512-671, see [`checksum`]) and,
+//!          last, the checksum of the header itself (bytes 1016-1023, over bytes 0-1015)
 //! ids      i64 x rows       spectrum ids, ascending
 //! status   u8  x rows       0 pending, 1 verified
 //! scale    f32 x rows       dense: the i8 row's scale (value = scale x i8)
@@ -46,9 +48,13 @@ use super::Snapshot;
 /// The cache folder inside a library folder.
 pub const CACHE_DIR: &str = "cache";
 /// The version of the cache file layout; a file of another version is rebuilt.
-pub const FORMAT_VERSION: u32 = 4;
+pub const FORMAT_VERSION: u32 = 5;
 pub(super) const MAGIC: &[u8; 8] = b"WHORLVC\0";
-pub(super) const HEADER: usize = 512;
+pub(super) const HEADER: usize = 1024;
+/// Where the header keeps the checksum of each section (u64, in section order).
+pub(super) const SUMS_AT: usize = 512;
+/// Where the header keeps the checksum of its own bytes before it.
+pub(super) const HEADER_SUM_AT: usize = HEADER - 8;
 pub(super) const ALIGN: usize = 64;
 pub(super) const SECTIONS: usize = 20;
 /// Where the header keeps its flags (1: every peak position is a whole number) and the
@@ -149,6 +155,13 @@ pub(super) const POST_OFF: usize = 16;
 pub(super) const POST_ROW: usize = 17;
 pub(super) const POST_W: usize = 18;
 pub(super) const COVER: usize = 19;
+
+/// The sections' names, for messages, in section order.
+pub(super) const SECTION_NAMES: [&str; SECTIONS] = [
+    "ids", "status", "scale", "l1", "npos", "f32", "i8", "peak_off", "peak_x", "peak_h",
+    "peak_bin", "peak_w", "c_scale", "c_l1", "c_rest", "c_i8", "post_off", "post_row", "post_w",
+    "cover",
+];
 
 impl Layout {
     pub(super) fn new(kind: Kind, dim: usize, rows: usize, nnz: usize, block: usize) -> Layout {
@@ -254,6 +267,64 @@ pub(super) fn write_header(map: &mut [u8], c: &Tag<'_>) {
     }
     h[FLAGS_AT] = u8::from(c.integer_x);
     h[BLOCK_AT..BLOCK_AT + 4].copy_from_slice(&(l.block as u32).to_le_bytes());
-    // The magic goes in last, so a map that was not completely filled never parses.
     h[0..8].copy_from_slice(MAGIC);
+    // The checksums go in last: the sections', then the header's over everything before it.
+    let sums = section_sums(map, &l);
+    let h = &mut map[..HEADER];
+    for (i, s) in sums.iter().enumerate() {
+        h[SUMS_AT + 8 * i..SUMS_AT + 8 * i + 8].copy_from_slice(&s.to_le_bytes());
+    }
+    let own = checksum(&h[..HEADER_SUM_AT]);
+    h[HEADER_SUM_AT..HEADER].copy_from_slice(&own.to_le_bytes());
+}
+
+/// The checksum a cache file keeps of each section and of its header: XXH3, 64-bit variant,
+/// seed 0 (Yann Collet, "xxHash - Extremely fast non-cryptographic hash algorithm",
+/// XXH3 specification, `doc/xxhash_spec.md` of the xxHash repository, 2021), through the
+/// `xxhash-rust` crate. It guards against damage (a flipped byte, a torn write), not against
+/// someone who means harm: they could recompute it, and the cache is derived data anyway.
+pub fn checksum(bytes: &[u8]) -> u64 {
+    xxhash_rust::xxh3::xxh3_64(bytes)
+}
+
+/// The byte range each section's checksum covers: from its offset to the next section's (the
+/// alignment padding included, so every byte of the file after the header is covered), the
+/// last one to the end of the file.
+pub(super) fn section_span(l: &Layout, i: usize) -> std::ops::Range<usize> {
+    let end = if i + 1 < SECTIONS {
+        l.offsets[i + 1]
+    } else {
+        l.len
+    };
+    l.offsets[i]..end
+}
+
+/// Every section's checksum, computed in parallel (the sections of a dense cache differ in
+/// size by orders of magnitude, so the largest ones are cut into chunks whose checksums are
+/// combined by a checksum of their checksums).
+pub(super) fn section_sums(map: &[u8], l: &Layout) -> [u64; SECTIONS] {
+    use rayon::prelude::*;
+    let sums: Vec<u64> = (0..SECTIONS)
+        .into_par_iter()
+        .map(|i| chunked_checksum(&map[section_span(l, i)]))
+        .collect();
+    sums.try_into().expect("one checksum per section")
+}
+
+/// Bytes checksummed by one worker at a time.
+const CHUNK: usize = 1 << 22;
+
+/// The checksum of a section: XXH3-64 of the section when it is at most one chunk, else
+/// XXH3-64 of the little-endian XXH3-64 checksums of its 4 MiB chunks (computed in parallel).
+fn chunked_checksum(bytes: &[u8]) -> u64 {
+    use rayon::prelude::*;
+    if bytes.len() <= CHUNK {
+        return checksum(bytes);
+    }
+    let parts: Vec<u8> = bytes
+        .par_chunks(CHUNK)
+        .map(|c| checksum(c).to_le_bytes())
+        .collect::<Vec<_>>()
+        .concat();
+    checksum(&parts)
 }

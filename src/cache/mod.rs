@@ -5,7 +5,9 @@
 //! A cache is derived data. It is tagged with the library fingerprint and generation it was
 //! built from ([`Snapshot`]), rebuilt whenever either differs from the database, written to
 //! a temporary file and renamed into place (a crash never leaves half a cache), and deleting
-//! the `cache/` folder loses nothing. This module knows no library and no query: the library
+//! the `cache/` folder loses nothing. Its header keeps a checksum of every section and of
+//! itself ([`checksum`]), verified when the file is opened, so a damaged file is refused
+//! (and rebuilt by the library) before any of its rows is read. This module knows no library and no query: the library
 //! feeds a [`Builder`] the rows it streams, and the search reads a [`VectorCache`].
 
 mod build;
@@ -14,10 +16,12 @@ mod kernels;
 mod layout;
 mod rows;
 
-pub use build::Builder;
-pub use file::VectorCache;
+pub use build::{Builder, remove_abandoned};
+pub use file::{VectorCache, damage};
 pub use kernels::{TopK, dot_f32, i8_dot, i8_dots};
-pub use layout::{BLOCK_SAMPLE, BLOCKS, CACHE_DIR, FORMAT_VERSION, Kind, coarse_stride, file_name};
+pub use layout::{
+    BLOCK_SAMPLE, BLOCKS, CACHE_DIR, FORMAT_VERSION, Kind, checksum, coarse_stride, file_name,
+};
 pub use rows::{
     active_bins, choose_block, coarse_row, covered_row, dense_row, entropy_row, posting_weight,
     quantise, weights,

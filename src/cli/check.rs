@@ -36,7 +36,13 @@ pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         for f in &report.findings {
             writeln!(out, "{}: {}", f.record, f.problem)?;
         }
-        if report.text_index_rebuilt {
+        if let Some(why) = &report.text_index_damage {
+            writeln!(
+                out,
+                "the text index was damaged ({}) and has been rebuilt from the database (derived data)",
+                whorl::error::excerpt(why, 200)
+            )?;
+        } else if report.text_index_rebuilt {
             writeln!(
                 out,
                 "the text index was behind the database and has been rebuilt (derived data)"

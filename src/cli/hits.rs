@@ -5,6 +5,7 @@ use std::io::Write;
 
 use whorl::score::{Measure, ScoreParams};
 use whorl::search::{Constraints, Report};
+use whorl::spectrum::csv_cell;
 use whorl::technique::Technique;
 
 use super::output;
@@ -79,9 +80,9 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
             o.unknown_peaks.to_string(),
             o.reference_peaks.to_string(),
             o.jaccard.to_string(),
-            h.name.clone(),
-            h.formula.clone().unwrap_or_default(),
-            h.cas.clone().unwrap_or_default(),
+            csv_cell(&h.name).into_owned(),
+            csv_cell(h.formula.as_deref().unwrap_or_default()).into_owned(),
+            csv_cell(h.cas.as_deref().unwrap_or_default()).into_owned(),
             h.spectrum_id.to_string(),
             h.compound_id.to_string(),
             h.technique.to_string(),

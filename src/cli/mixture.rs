@@ -6,6 +6,7 @@ use std::io::Write;
 use whorl::library::Library;
 use whorl::prepare::Prepared;
 use whorl::search::{Mixture, Plan, Report, Request, fit_mixture};
+use whorl::spectrum::csv_cell;
 use whorl::technique::Technique;
 
 use super::output;
@@ -59,8 +60,8 @@ pub(super) fn write_csv(out: &mut impl Write, m: &Mixture) -> anyhow::Result<()>
             c.share.to_string(),
             c.coefficient.to_string(),
             c.score.to_string(),
-            c.name.clone(),
-            c.formula.clone().unwrap_or_default(),
+            csv_cell(&c.name).into_owned(),
+            csv_cell(c.formula.as_deref().unwrap_or_default()).into_owned(),
             c.spectrum_id.to_string(),
             c.compound_id.to_string(),
             m.explained.to_string(),
@@ -89,8 +90,8 @@ pub(super) fn print(out: &mut impl Write, m: &Mixture, technique: Technique) -> 
             c.step.to_string(),
             format!("{:.1} %", 100.0 * c.share),
             format!("{:.3}", c.score),
-            c.name.clone(),
-            c.formula.clone().unwrap_or_default(),
+            csv_cell(&c.name).into_owned(),
+            csv_cell(c.formula.as_deref().unwrap_or_default()).into_owned(),
             c.spectrum_id.to_string(),
         ]);
     }

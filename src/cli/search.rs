@@ -82,7 +82,6 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         solvent: args.solvent,
     };
     let mut request = Request::resolve(args.technique, &given, &config);
-    request.top = request.top.max(1);
     request.filter = args.filter.clone();
     request.constraints = args.constraints.constraints()?;
     request.explain = args.explain;

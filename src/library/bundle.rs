@@ -17,8 +17,8 @@ use super::manifest::{KNOWN_COLUMNS, ManifestRow, resolve_within};
 use super::records::SpectrumRecord;
 use super::{ContentSum, Library, fingerprint, now, record_hash};
 use crate::error::{Error, Location, Result};
-use crate::spectrum::sha256_hex;
 use crate::spectrum::{Metadata, Status};
+use crate::spectrum::{csv_cell, sha256_hex, sha256_hex_of};
 
 /// The bundle format this build writes and reads.
 pub const BUNDLE_FORMAT: &str = "whorl-bundle-1";
@@ -154,7 +154,10 @@ impl Library {
             .chain(extra_keys.iter().map(String::as_str))
             .chain(PROVENANCE_COLUMNS.iter().copied())
             .collect();
-        w.write_record(&header).map_err(csv_error)?;
+        // Text from users and files is written through `csv_cell` (OWASP's CSV-injection
+        // guidance), which the bundle reader undoes, so the round trip loses nothing.
+        w.write_record(header.iter().map(|h| csv_cell(h).into_owned()))
+            .map_err(csv_error)?;
         let mut sums: BTreeMap<String, String> = BTreeMap::new();
         let mut content = ContentSum::default();
         for (done, rec) in records.iter().enumerate() {
@@ -200,7 +203,8 @@ impl Library {
                 serde_json::to_string(&revisions)?,
                 serde_json::to_string(&reviews)?,
             ]);
-            w.write_record(&row).map_err(csv_error)?;
+            w.write_record(row.iter().map(|c| csv_cell(c).into_owned()))
+                .map_err(csv_error)?;
             if rec.status.searchable() {
                 content.add(&record_hash(
                     rec.technique.name(),
@@ -381,14 +385,38 @@ pub(super) fn verify_listing(dir: &Path, text: &str) -> Result<BundleInfo> {
                 "a bundle may only list files inside its own folder; nothing was imported",
             )
         })?;
-        let bytes = std::fs::read(&path).map_err(|e| {
+        let in_place = file == "manifest.csv"
+            || file == "bundle.json"
+            || file
+                .strip_prefix("spectra/")
+                .is_some_and(|f| !f.is_empty() && !f.contains(['/', '\\']));
+        if !in_place {
+            return Err(Error::input(
+                at,
+                format!(
+                    "'{}' is not a file a bundle holds",
+                    crate::error::excerpt(file, 80)
+                ),
+                "a bundle holds manifest.csv, bundle.json and the files of spectra/, nothing else; nothing was imported",
+            ));
+        }
+        // Only regular files, hashed as they are read: a FIFO would block, a device never end.
+        let unreadable = |e: String| {
             Error::input(
                 at.clone(),
                 format!("{file} is listed but cannot be read: {e}"),
                 "the bundle is incomplete; copy it again from its source; nothing was imported",
             )
-        })?;
-        if sha256_hex(&bytes) != sum.trim() {
+        };
+        match std::fs::metadata(&path) {
+            Ok(m) if m.is_file() => {}
+            Ok(_) => return Err(unreadable("it is not a regular file".into())),
+            Err(e) => return Err(unreadable(e.to_string())),
+        }
+        let digest = std::fs::File::open(&path)
+            .and_then(sha256_hex_of)
+            .map_err(|e| unreadable(e.to_string()))?;
+        if digest != sum.trim() {
             return Err(Error::input(
                 at,
                 format!("{file} does not match its checksum"),

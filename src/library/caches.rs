@@ -73,7 +73,23 @@ impl Library {
 
     /// Builds the cache of one technique and kind from the database: into `cache/` when the
     /// library has a folder that can be written, else in memory.
+    /// Another process writing while the rows are read makes the build start again, up to
+    /// [`BUILD_ATTEMPTS`] times with a growing pause, then an [`Error::Changing`] (a busy
+    /// library: exit 6).
     pub fn build_vector_cache(&self, technique: Technique, kind: Kind) -> Result<VectorCache> {
+        let mut attempt = 1;
+        loop {
+            match self.build_vector_cache_once(technique, kind) {
+                Err(Error::Changing { .. }) if attempt < BUILD_ATTEMPTS => {
+                    std::thread::sleep(std::time::Duration::from_millis(25 << attempt));
+                    attempt += 1;
+                }
+                other => return other,
+            }
+        }
+    }
+
+    fn build_vector_cache_once(&self, technique: Technique, kind: Kind) -> Result<VectorCache> {
         match self.root() {
             Some(root) => match self.fill_cache(technique, kind, Some(&root.join(CACHE_DIR))) {
                 Ok(c) => Ok(c),
@@ -102,6 +118,27 @@ impl Library {
             done.push(t);
         }
         Ok(done)
+    }
+
+    /// The cache files that are damaged (see [`cache::damage`]), each with the reason, after
+    /// removing them so that they are rebuilt from the database when next needed. Derived
+    /// data is never repaired in place: `check` reports each one and rebuilds what it uses.
+    pub fn remove_damaged_vector_caches(&self) -> Result<Vec<(String, String)>> {
+        let mut found = Vec::new();
+        for t in Technique::ALL {
+            for kind in [Kind::Centred, Kind::Unit, Kind::Sparse, Kind::Entropy] {
+                let Some(path) = self.cache_path(t, kind) else {
+                    continue;
+                };
+                if let Some(reason) = cache::damage(&path, t, kind) {
+                    self.caches.memo.borrow_mut().remove(&(t, kind));
+                    std::fs::remove_file(&path)
+                        .map_err(|e| Error::io(format!("removing {}", path.display()), e))?;
+                    found.push((cache::file_name(t, kind), reason));
+                }
+            }
+        }
+        Ok(found)
     }
 
     /// Where the cache file of a technique and kind lies (`None` for an in-memory library).
@@ -152,8 +189,10 @@ impl Library {
 }
 
 fn changed_while_building() -> Error {
-    Error::invalid(
-        "the library changed while its vector cache was built",
-        "search again",
-    )
+    Error::Changing {
+        what: "vector cache".into(),
+    }
 }
+
+/// Builds made before giving up on a library that keeps changing under the build.
+const BUILD_ATTEMPTS: u32 = 5;

@@ -34,6 +34,10 @@ pub struct CheckReport {
     pub findings: Vec<Finding>,
     /// True when the text index was behind and has been rebuilt (derived data, not a finding).
     pub text_index_rebuilt: bool,
+    /// Why the text index was found damaged (and rebuilt from the database), if it was:
+    /// derived data, so not a finding.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub text_index_damage: Option<String>,
     /// Techniques whose vector cache was rebuilt from the database (derived data).
     #[serde(default)]
     pub caches_rebuilt: Vec<crate::technique::Technique>,
@@ -602,13 +606,33 @@ impl Library {
         }
         report.spectra = total;
 
-        // 4. Derived data.
+        // 4. Derived data. A text index that was damaged when the library was opened has
+        // been started afresh; one whose files fail their checksums is rebuilt here.
+        let corrupted = match self.text.corrupted_files() {
+            Ok(files) if files.is_empty() => None,
+            Ok(files) => Some(format!(
+                "files failing their checksums: {}",
+                files.join(", ")
+            )),
+            Err(e) => Some(e.to_string()),
+        };
+        report.text_index_damage = self.text.damage().map(str::to_string).or(corrupted);
         report.text_index_rebuilt = self.refresh_text_index()?;
-        if !report.text_index_rebuilt && self.text.len() != records.len() as u64 {
+        if !report.text_index_rebuilt
+            && (self.text.len() != records.len() as u64 || report.text_index_damage.is_some())
+        {
             let generation = self.generation()?;
             self.text
                 .rebuild(records.iter().map(SpectrumRecord::index_doc), generation)?;
             report.text_index_rebuilt = true;
+        }
+        for (file, reason) in self.remove_damaged_vector_caches()? {
+            report.findings.push(Finding {
+                record: format!("cache:{file}"),
+                problem: format!(
+                    "the vector cache is damaged ({reason}); it was removed and is rebuilt from the database"
+                ),
+            });
         }
         report.caches_rebuilt = self.rebuild_vector_caches()?;
         Ok(report)

@@ -6,7 +6,7 @@ use std::path::{Component, Path, PathBuf};
 use super::identity::Person;
 use crate::error::{Error, Location, Result};
 use crate::library::{Metadata, Submission};
-use crate::spectrum::{XUnit, YUnit};
+use crate::spectrum::{XUnit, YUnit, csv_cell_restored};
 use crate::technique::Technique;
 
 /// Columns every manifest must have.
@@ -123,7 +123,53 @@ pub(super) fn read_bundle_manifest(path: &Path) -> Result<Vec<ManifestRow>> {
     read_rows(path, "unknown", true)
 }
 
+/// The line on which a quoted field opens that the file never closes, read as RFC 4180
+/// (Shafranovich, 2005, section 2, rules 5-7) reads quotes: a field that starts with a quote
+/// ends at the next quote that is not doubled. The csv crate would take everything to the
+/// end of the file into that one field.
+fn unterminated_quote(bytes: &[u8]) -> Option<usize> {
+    let (mut line, mut opened, mut quoted, mut field_start) = (1, 0, false, true);
+    let mut i = 0;
+    while i < bytes.len() {
+        let b = bytes[i];
+        if quoted {
+            if b == b'"' {
+                if bytes.get(i + 1) == Some(&b'"') {
+                    i += 1;
+                } else {
+                    quoted = false;
+                }
+            }
+        } else if b == b'"' && field_start {
+            quoted = true;
+            opened = line;
+        }
+        if b == b'\n' {
+            line += 1;
+        }
+        field_start = !quoted && matches!(b, b',' | b'\n' | b'\r');
+        i += 1;
+    }
+    quoted.then_some(opened)
+}
+
+/// A manifest cell as read: a bundle's cells were written through `csv_cell` (spreadsheet
+/// formulas neutralised), so one leading quote is removed; a hand-written manifest is read
+/// as it is.
+fn cell(c: &str, bundle: bool) -> &str {
+    if bundle { csv_cell_restored(c) } else { c }
+}
+
 fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<ManifestRow>> {
+    if let Ok(m) = std::fs::metadata(path)
+        && !m.is_file()
+    {
+        return Err(Error::input(
+            Location::file(path),
+            "the manifest is not a regular file (a folder, a FIFO or a device)",
+            "give the path of a manifest CSV file",
+        ));
+    }
     let bytes = std::fs::read(path).map_err(|e| {
         Error::input(
             Location::file(path),
@@ -132,6 +178,13 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
         )
     })?;
     let bytes = bytes.strip_prefix(&[0xEF, 0xBB, 0xBF]).unwrap_or(&bytes);
+    if let Some(line) = unterminated_quote(bytes) {
+        return Err(Error::input(
+            Location::line(path, line),
+            "a quoted field opened on this line is never closed (the rows after it would be read as part of it)",
+            "close the quote, or double a quote inside a quoted field (\"\")",
+        ));
+    }
     let mut reader = csv::ReaderBuilder::new().flexible(false).from_reader(bytes);
     let headers: Vec<String> = reader
         .headers()
@@ -143,7 +196,7 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
             )
         })?
         .iter()
-        .map(|h| h.trim().to_string())
+        .map(|h| cell(h, bundle).trim().to_string())
         .collect();
     for required in REQUIRED_COLUMNS {
         if !headers.iter().any(|h| h == required) {
@@ -178,11 +231,13 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
             )
         })?;
         let line = record.position().map_or(0, |p| p.line() as usize);
+        let record: Vec<&str> = record.iter().map(|c| cell(c, bundle)).collect();
+        let record = &record;
         let field = |name: &str| {
             headers
                 .iter()
                 .position(|h| h == name)
-                .and_then(|i| record.get(i))
+                .and_then(|i| record.get(i).copied())
                 .map(str::trim)
                 .unwrap_or("")
         };
@@ -213,7 +268,7 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
                     && !h.is_empty()
                     && !h.starts_with(PROVENANCE_PREFIX)
                 {
-                    let v = record.get(i).unwrap_or("").trim();
+                    let v = record.get(i).copied().unwrap_or("").trim();
                     if !v.is_empty() {
                         extra.insert(extra_key(h), v.to_string());
                     }
@@ -258,7 +313,7 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
             .iter()
             .enumerate()
             .filter(|(_, h)| h.starts_with(PROVENANCE_PREFIX))
-            .map(|(i, h)| (h.clone(), record.get(i).unwrap_or("").to_string()))
+            .map(|(i, h)| (h.clone(), record.get(i).copied().unwrap_or("").to_string()))
             .collect();
         rows.push(ManifestRow {
             line,

@@ -248,6 +248,8 @@ impl Library {
         if lib.refresh_text_index().is_err() {
             lib.text_behind.set(true);
         }
+        // Temporary cache files of builds killed before they finished (derived data).
+        crate::cache::remove_abandoned(&root.join(crate::cache::CACHE_DIR));
         Ok(lib)
     }
 

@@ -137,7 +137,87 @@ pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metad
     } else if technique == Technique::Nmr1h {
         // Allowed, but the residual signals then stay in; `prepare` warns.
     }
+    check_characters(&m)?;
+    check_extra_keys(&m)?;
     Ok(m)
+}
+
+/// Refuses control characters in metadata: a newline in a name would forge a line in
+/// `whorl log`, an ESC would drive the terminal or break an SVG. Notes may hold line breaks
+/// and tabs, nothing else of the kind.
+fn check_characters(m: &Metadata) -> Result<()> {
+    let mut fields: Vec<(String, &str)> = vec![("name".into(), m.name.as_str())];
+    for (f, v) in [
+        ("formula", &m.formula),
+        ("cas", &m.cas),
+        ("solvent", &m.solvent),
+        ("source", &m.source),
+        ("instrument", &m.instrument),
+        ("acquired", &m.acquired),
+    ] {
+        if let Some(v) = v {
+            fields.push((f.into(), v.as_str()));
+        }
+    }
+    fields.extend(m.synonyms.iter().map(|s| ("synonym".into(), s.as_str())));
+    fields.extend(m.tags.iter().map(|s| ("tag".into(), s.as_str())));
+    for (k, v) in &m.extra {
+        fields.push((k.clone(), v.as_str()));
+        fields.push(("a metadata key".into(), k.as_str()));
+    }
+    let notes = m.notes.iter().map(|n| ("notes".to_string(), n.as_str()));
+    for (field, value) in fields.into_iter().chain(notes) {
+        let allowed = |c: char| field == "notes" && matches!(c, '\n' | '\t');
+        if let Some(c) = value.chars().find(|&c| c.is_control() && !allowed(c)) {
+            return Err(Error::invalid(
+                format!(
+                    "{} holds a control character (U+{:04X}): '{}'",
+                    crate::error::excerpt(&field, 40),
+                    u32::from(c),
+                    crate::error::excerpt(value, 60)
+                ),
+                "remove line breaks, escape sequences and other control characters from the metadata",
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Refuses extra metadata keys that are empty, that spell one of the manifest's own columns
+/// in another case or with spaces (`Name`, `submitted by`), or that take the prefix of the
+/// columns whorl writes into bundles (`whorl_status`): each would be read back as something
+/// it is not, or lost.
+fn check_extra_keys(m: &Metadata) -> Result<()> {
+    for key in m.extra.keys() {
+        let folded: String = key
+            .trim()
+            .to_lowercase()
+            .chars()
+            .map(|c| if c == ' ' || c == '-' { '_' } else { c })
+            .collect();
+        let reason = if folded.is_empty() {
+            Some("is empty".to_string())
+        } else if folded.starts_with(super::manifest::PROVENANCE_PREFIX) {
+            Some(format!(
+                "starts with '{}', which whorl keeps for the columns it writes",
+                super::manifest::PROVENANCE_PREFIX
+            ))
+        } else if super::manifest::KNOWN_COLUMNS.contains(&folded.as_str()) {
+            Some(format!("is the '{folded}' field in another spelling"))
+        } else {
+            None
+        };
+        if let Some(reason) = reason {
+            return Err(Error::invalid(
+                format!(
+                    "the metadata key '{}' {reason}",
+                    crate::error::excerpt(key, 40)
+                ),
+                "give the value through its own option or column, or name the key differently",
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Stages one submission: metadata checked, file read and prepared with the library's recipe.

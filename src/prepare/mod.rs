@@ -305,6 +305,19 @@ pub fn prepare(
         Technique::Nmr1h => nmr::prepare(recipe, &sorted, conditions),
         Technique::Nmr13c => carbon::prepare(recipe, &sorted, conditions),
     }?;
+    // Values that overflow in preparation (a y of 1e200 squared) would store NaN or infinity
+    // and score as NaN: never stored, never searched.
+    let finite = prepared.vector.iter().all(|v| v.is_finite())
+        && prepared.peaks.iter().all(|p| {
+            p.x.is_finite() && p.height.is_finite() && p.width.is_finite() && p.area.is_finite()
+        });
+    if !finite {
+        return Err(Error::input(
+            Location::file(path),
+            "preparing the spectrum gave values that are not finite numbers (an overflow)",
+            "check the y values: they must be measured values of ordinary size",
+        ));
+    }
     if prepared.vector.iter().all(|&v| v == 0.0) {
         return Err(Error::input(
             Location::file(path),

@@ -142,6 +142,12 @@ pub struct Plan {
 impl Plan {
     /// Validates a request against a library and resolves what every stage needs.
     pub fn new(library: &Library, request: &Request) -> Result<Plan> {
+        if request.top == 0 {
+            return Err(crate::error::Error::invalid(
+                "--top 0 asks for no hits at all",
+                "give --top 1 or more (or set `top` to 1 or more in whorl.toml)",
+            ));
+        }
         request.params.validate(request.technique)?;
         request.constraints.validate()?;
         let recipe = library.recipe(request.technique)?.clone();

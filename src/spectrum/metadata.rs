@@ -97,3 +97,40 @@ impl FromStr for Status {
         }
     }
 }
+
+/// A text cell made safe to open in a spreadsheet, following the OWASP Foundation's "CSV
+/// Injection" guidance (OWASP Cheat Sheet Series, "Injection Prevention", CSV injection
+/// section): a cell starting with `=`, `+`, `-`, `@`, a tab or a carriage return is read by
+/// spreadsheet programs as a formula, so it is written with a leading single quote, which
+/// they show as text. A cell already starting with a quote gets one more, so that
+/// [`csv_cell_restored`] gives back exactly the value written (bundles round-trip losslessly).
+/// Numbers whorl computes are written as they are: only text from users and files passes here.
+pub fn csv_cell(value: &str) -> std::borrow::Cow<'_, str> {
+    match value.chars().next() {
+        Some('=' | '+' | '-' | '@' | '\t' | '\r' | '\'') => format!("'{value}").into(),
+        _ => value.into(),
+    }
+}
+
+/// The value a [`csv_cell`] was made from: one leading single quote removed.
+pub fn csv_cell_restored(cell: &str) -> &str {
+    cell.strip_prefix('\'').unwrap_or(cell)
+}
+
+#[cfg(test)]
+mod csv_cell_tests {
+    use super::{csv_cell, csv_cell_restored};
+
+    #[test]
+    fn formula_triggers_are_neutralised_and_restored() {
+        // The triggers OWASP's CSV-injection guidance lists.
+        for v in ["=1+1", "+SUM(A1)", "-2+3", "@cmd", "\tx", "\rx"] {
+            assert_eq!(csv_cell(v), format!("'{v}"));
+            assert_eq!(csv_cell_restored(&csv_cell(v)), v);
+        }
+        for v in ["acetone", "'quoted'", "''", "", "1-octanol"] {
+            assert_eq!(csv_cell_restored(&csv_cell(v)), v);
+        }
+        assert_eq!(csv_cell("acetone"), "acetone");
+    }
+}

@@ -4,7 +4,7 @@ mod metadata;
 mod reader;
 mod units;
 
-pub use metadata::{Metadata, Status};
+pub use metadata::{Metadata, Status, csv_cell, csv_cell_restored};
 pub use reader::{ParsedPoints, check_points, read_points, read_points_from_bytes};
 pub use units::{XUnit, YUnit};
 
@@ -64,6 +64,19 @@ pub fn decode_points(bytes: &[u8]) -> Option<Vec<(f64, f64)>> {
 /// SHA-256 of bytes as lowercase hex.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     hex::encode(Sha256::digest(bytes))
+}
+
+/// SHA-256 of everything `reader` gives, hex, read in blocks (never held whole in memory).
+pub fn sha256_hex_of(mut reader: impl std::io::Read) -> std::io::Result<String> {
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = reader.read(&mut buf)?;
+        if n == 0 {
+            return Ok(hex::encode(h.finalize()));
+        }
+        h.update(&buf[..n]);
+    }
 }
 
 #[cfg(test)]

@@ -106,19 +106,100 @@ fn schema() -> (Schema, Fields) {
     (b.build(), fields)
 }
 
+/// The deepest nesting of brackets a query may have. The parser descends once per bracket,
+/// so a query nested thousands deep would overflow the stack; people write a few levels.
+pub const MAX_QUERY_DEPTH: usize = 32;
+/// The longest query accepted, in bytes.
+pub const MAX_QUERY_BYTES: usize = 4096;
+
+/// Refuses a query too long or nested too deep to parse safely.
+fn check_shape(query: &str) -> Result<()> {
+    let refuse = |reason: String| Error::Query {
+        query: query.to_string(),
+        reason,
+    };
+    if query.len() > MAX_QUERY_BYTES {
+        return Err(refuse(format!(
+            "it is {} bytes long; the most is {MAX_QUERY_BYTES}",
+            query.len()
+        )));
+    }
+    let (mut depth, mut deepest, mut quoted) = (0usize, 0usize, false);
+    for c in query.chars() {
+        match c {
+            '"' => quoted = !quoted,
+            '(' if !quoted => {
+                depth += 1;
+                deepest = deepest.max(depth);
+            }
+            ')' if !quoted => depth = depth.saturating_sub(1),
+            _ => {}
+        }
+    }
+    if deepest > MAX_QUERY_DEPTH {
+        return Err(refuse(format!(
+            "brackets nested {deepest} deep; the most is {MAX_QUERY_DEPTH}"
+        )));
+    }
+    Ok(())
+}
+
 /// The tantivy index of one library.
 pub struct TextIndex {
     index: Index,
     reader: IndexReader,
     fields: Fields,
+    /// Why the index found on disk could not be opened and was started afresh, if it was.
+    damage: Option<String>,
 }
 
 /// Memory budget of the index writer; tantivy needs a few MB per thread at least.
 const WRITER_BUDGET: usize = 50_000_000;
 
 impl TextIndex {
-    /// Opens the index in `dir`, creating it when the folder is empty or missing.
+    /// Opens the index in `dir`, creating it when the folder is empty or missing. An index that
+    /// cannot be opened (a truncated `meta.json`, a missing or unreadable segment file) is
+    /// derived data: it is removed and started afresh, empty, so the library rebuilds it
+    /// from the database; [`TextIndex::damage`] then says why. Only a folder that cannot be
+    /// created or removed is an error.
     pub fn open_or_create(dir: &Path) -> Result<TextIndex> {
+        let first = match TextIndex::open_as_is(dir) {
+            Ok(t) => return Ok(t),
+            Err(e @ Error::Io { .. }) => return Err(e),
+            Err(e) => e,
+        };
+        // Once more after a moment, in case another process was replacing a file just then.
+        std::thread::sleep(std::time::Duration::from_millis(50));
+        if let Ok(t) = TextIndex::open_as_is(dir) {
+            return Ok(t);
+        }
+        std::fs::remove_dir_all(dir)
+            .map_err(|e| Error::io(format!("removing the damaged {}", dir.display()), e))?;
+        let mut t = TextIndex::open_as_is(dir)?;
+        t.damage = Some(first.to_string());
+        Ok(t)
+    }
+
+    /// Why the index found on disk was damaged and started afresh when it was opened, if it
+    /// was (the library then rebuilds it from the database).
+    pub fn damage(&self) -> Option<&str> {
+        self.damage.as_deref()
+    }
+
+    /// The files of the index whose checksums do not match their content (tantivy keeps a
+    /// CRC32 footer in each managed file), read whole: for `check`, not for every command.
+    pub fn corrupted_files(&self) -> Result<Vec<String>> {
+        let mut bad: Vec<String> = self
+            .index
+            .validate_checksum()?
+            .into_iter()
+            .map(|p| p.display().to_string())
+            .collect();
+        bad.sort();
+        Ok(bad)
+    }
+
+    fn open_as_is(dir: &Path) -> Result<TextIndex> {
         std::fs::create_dir_all(dir)
             .map_err(|e| Error::io(format!("creating {}", dir.display()), e))?;
         let (schema, fields) = schema();
@@ -130,7 +211,7 @@ impl TextIndex {
             Err(tantivy::TantivyError::SchemaError(_)) => {
                 std::fs::remove_dir_all(dir)
                     .map_err(|e| Error::io(format!("removing {}", dir.display()), e))?;
-                return TextIndex::open_or_create(dir);
+                return TextIndex::open_as_is(dir);
             }
             Err(e) => return Err(e.into()),
         };
@@ -152,6 +233,7 @@ impl TextIndex {
             index,
             reader,
             fields,
+            damage: None,
         })
     }
 
@@ -301,6 +383,7 @@ impl TextIndex {
     }
 
     fn parse(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
+        check_shape(query)?;
         let rewritten = route_extra_fields(query);
         self.parser(true)
             .parse_query(&rewritten)
@@ -313,6 +396,7 @@ impl TextIndex {
     /// The query for ranking: [`prune::PrunedUnion`] where it applies (a union of terms and
     /// phrases; no slop, which the parser reads only after `~`), else the parsed query.
     fn parse_ranked(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
+        check_shape(query)?;
         if !query.contains('~') {
             let rewritten = route_extra_fields(query);
             if let Ok(plain) = self.parser(false).parse_query(&rewritten)

@@ -430,3 +430,129 @@ fn a_search_of_a_missing_file() {
         "{text}"
     );
 }
+
+#[test]
+fn a_y_that_overflows_in_preparation_is_refused_with_its_line() {
+    // 1e200 squared is infinite in IEEE 754 binary64 (largest finite value about 1.8e308).
+    let mut pts = ir_points(30);
+    pts[4].1 = 1e200;
+    let text = refused_add(xy_csv("x,y", &pts), "ir", &[], "bad.csv:6");
+    contains(&text, "far larger than any measured value");
+    // The same file as an unknown: no NaN scores, the same refusal.
+    let lab = lab();
+    lab.write("u.csv", xy_csv("x,y", &pts));
+    let text = lab.refuses(&["search", "u.csv", "--technique", "ir"], 3);
+    contains(&text, "u.csv:6");
+}
+
+#[test]
+fn top_zero_is_refused() {
+    let lab = lab();
+    lab.write("u.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    let text = lab.refuses(
+        &[
+            "search",
+            "u.csv",
+            "--technique",
+            "ir",
+            "--include-pending",
+            "--top",
+            "0",
+        ],
+        3,
+    );
+    contains(&text, "--top 0");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn an_unterminated_quote_in_a_manifest_is_refused_with_its_line() {
+    let lab = lab();
+    lab.write("m/a.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    lab.write("m/b.csv", ir_csv(&[(1600.0, 0.8, 10.0)]));
+    lab.write("m/c.csv", ir_csv(&[(1500.0, 0.8, 10.0)]));
+    // RFC 4180, section 2: a quoted field ends at the next single quote; line 3 opens one
+    // that nothing closes, which would swallow the row after it.
+    lab.write(
+        "m/list.csv",
+        "file,technique,name\na.csv,ir,alpha\nb.csv,ir,\"beta\nc.csv,ir,gamma\n",
+    );
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(&text, "m/list.csv:3");
+    contains(&text, "never closed");
+    assert!(!hint(&text).is_empty());
+}
+
+#[test]
+fn a_fifo_or_a_device_is_refused_at_once() {
+    let lab = lab();
+    let fifo = lab.path("pipe.csv");
+    // mkfifo (POSIX.1-2017, XCU "mkfifo"): reading one waits for a writer.
+    assert!(
+        std::process::Command::new("mkfifo")
+            .arg(&fifo)
+            .status()
+            .unwrap()
+            .success()
+    );
+    let text = lab.refuses(&["add", "pipe.csv", "-t", "ir", "--name", "p"], 3);
+    contains(&text, "not a regular file");
+    // /dev/zero never ends (POSIX.1-2017 does not define it; Linux's null(4) does).
+    let text = lab.refuses(&["add", "/dev/zero", "-t", "ir", "--name", "z"], 3);
+    contains(&text, "not a regular file");
+    let text = lab.refuses(&["import", "pipe.csv"], 3);
+    contains(&text, "not a regular file");
+}
+
+#[test]
+fn a_query_nested_thousands_deep_is_refused_with_a_hint() {
+    let lab = lab();
+    let deep = format!("{}name:x{}", "(".repeat(9000), ")".repeat(9000));
+    let text = lab.refuses(&["find", &deep[..8192.min(deep.len())]], 3);
+    assert!(!hint(&text).is_empty());
+    let q = format!("{}name:x{}", "(".repeat(100), ")".repeat(100));
+    let text = lab.refuses(&["find", &q], 3);
+    contains(&text, "nested 100 deep");
+    // The query is quoted only in part.
+    assert!(text.len() < 1000, "{text}");
+}
+
+#[test]
+fn control_characters_in_metadata_are_refused() {
+    // ECMA-48 (5th edition, 1991), 5.4: ESC [ starts a control sequence; a line feed would
+    // start a line of its own in `whorl log`.
+    let lab = lab();
+    lab.write("c.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    for name in ["two\nlines", "red \u{1b}[31mname", "tab\there"] {
+        let text = lab.refuses(&["add", "c.csv", "-t", "ir", "--name", name], 3);
+        contains(&text, "control character");
+        assert!(!hint(&text).is_empty());
+        assert!(
+            !text.contains('\u{1b}'),
+            "the ESC is not echoed raw: {text:?}"
+        );
+    }
+}
+
+#[test]
+fn reserved_and_colliding_metadata_keys_are_refused() {
+    let lab = lab();
+    for set in ["whorl_status=verified", "Name=x", "submitted by=someone"] {
+        let text = lab.refuses(
+            &[
+                "revise", "1", "--set", set, "--reason", "test", "--by", "e.editor",
+            ],
+            3,
+        );
+        contains(&text, "metadata key");
+    }
+    // A manifest whose extra column spells a known one differently.
+    lab.write("m/a.csv", ir_csv(&[(1600.0, 0.8, 10.0)]));
+    lab.write(
+        "m/list.csv",
+        "file,technique,name,Submitted_By\na.csv,ir,alpha,x\n",
+    );
+    let text = lab.refuses(&["import", "m/list.csv"], 3);
+    contains(&text, "m/list.csv:2");
+    contains(&text, "metadata key");
+}

@@ -298,3 +298,102 @@ fn export_refuses_a_folder_that_is_not_empty() {
         "keep me"
     );
 }
+
+#[test]
+fn formula_cells_are_neutralised_in_every_csv_and_bundles_round_trip() {
+    // OWASP Cheat Sheet Series, CSV injection: cells starting with = + - @ (or a tab) are
+    // read as formulas by spreadsheets; written with a leading quote they are text.
+    let lab = Lab::new();
+    let text = crate::util::ir_csv(&[(1715.0, 0.8, 10.0), (1220.0, 0.5, 12.0)]);
+    let name = "=HYPERLINK(\"http://x\",\"y\")";
+    let id = lab.add(
+        "a.csv",
+        &text,
+        "ir",
+        name,
+        &[
+            "--tag",
+            "+tag",
+            "--note",
+            "@note",
+            "--source=-src",
+            "--by",
+            "'quoted",
+        ],
+    );
+    lab.approve_all();
+    // search --csv: the name cell starts with a quote.
+    let csv = lab.ok(&["search", "a.csv", "--technique", "ir", "--csv"]);
+    let rows = csv_rows_of(&csv);
+    assert_eq!(rows[0]["name"], format!("'{name}"));
+    // The bundle manifest: every such cell starts with a quote.
+    let bundle = lab.path("bundle");
+    lab.ok(&["export", bundle.to_str().unwrap()]);
+    let rows = crate::util::csv_rows(&bundle.join("manifest.csv"));
+    let row = &rows[0];
+    assert_eq!(row["name"], format!("'{name}"));
+    assert_eq!(row["tags"], "'+tag");
+    assert_eq!(row["notes"], "'@note");
+    assert_eq!(row["source"], "'-src");
+    assert_eq!(row["submitted_by"], "''quoted");
+    // Imported elsewhere, the values are what they were.
+    let other = Lab::new();
+    other.ok(&["import", bundle.to_str().unwrap()]);
+    let shown = other.json(&["show", &id.to_string()]);
+    let m = &shown["spectrum"]["metadata"];
+    assert_eq!(m["name"], name);
+    assert_eq!(m["tags"], serde_json::json!(["+tag"]));
+    assert_eq!(m["notes"], "@note");
+    assert_eq!(m["source"], "-src");
+    assert_eq!(shown["spectrum"]["submitted_by"], "'quoted");
+    assert_eq!(
+        fingerprint(&other, &other.library()),
+        fingerprint(&lab, &lab.library())
+    );
+}
+
+fn csv_rows_of(text: &str) -> Vec<std::collections::BTreeMap<String, String>> {
+    let mut r = csv::Reader::from_reader(text.as_bytes());
+    let headers = r.headers().unwrap().clone();
+    r.records()
+        .map(|rec| {
+            let rec = rec.unwrap();
+            headers
+                .iter()
+                .zip(rec.iter())
+                .map(|(h, v)| (h.to_string(), v.to_string()))
+                .collect()
+        })
+        .collect()
+}
+
+#[test]
+fn a_listed_file_outside_spectra_is_refused() {
+    let (lab, bundle) = bundle_of_three();
+    std::fs::write(bundle.join("notes.txt"), "1,2\n").unwrap();
+    let sums = bundle.join("SHA256SUMS");
+    let mut text = std::fs::read_to_string(&sums).unwrap();
+    let digest = whorl::spectrum::sha256_hex(b"1,2\n");
+    text.push_str(&format!("{digest}  notes.txt\n"));
+    std::fs::write(&sums, text).unwrap();
+    import_fails(&lab, &bundle, "is not a file a bundle holds");
+}
+
+#[test]
+fn a_fifo_in_a_bundle_is_refused_without_waiting() {
+    let (lab, bundle) = bundle_of_three();
+    let victim = std::fs::read_dir(bundle.join("spectra"))
+        .unwrap()
+        .next()
+        .unwrap()
+        .unwrap()
+        .path();
+    std::fs::remove_file(&victim).unwrap();
+    // mkfifo (POSIX.1-2017, XCU "mkfifo"): opening it for reading blocks until a writer comes.
+    let made = std::process::Command::new("mkfifo")
+        .arg(&victim)
+        .status()
+        .unwrap();
+    assert!(made.success());
+    import_fails(&lab, &bundle, "not a regular file");
+}

@@ -239,3 +239,74 @@ fn a_deleted_text_index_is_rebuilt_by_check_and_is_not_a_finding() {
         "one spectrum per technique"
     );
 }
+
+#[test]
+fn a_damaged_vector_cache_is_a_finding_and_is_rebuilt() {
+    let lab = library();
+    let unknown = crate::util::unknown("u01.ir.csv");
+    let search = |lab: &Lab| lab.json(&["search", &unknown, "-t", "ir", "--include-pending"]);
+    let before = search(&lab);
+    let file = lab.library().join("cache/ir.corr.wvc");
+    let mut bytes = std::fs::read(&file).unwrap();
+    // One byte in the middle of the rows changed.
+    let at = bytes.len() / 2;
+    bytes[at] ^= 0x40;
+    std::fs::write(&file, &bytes).unwrap();
+    let found = findings(&lab);
+    assert!(
+        named(&found, "cache:ir.corr.wvc", "fails its checksum"),
+        "{found:?}"
+    );
+    // Rebuilt: the next check is clean, and the search gives what it gave before.
+    assert_eq!(
+        lab.json(&["check"])["findings"].as_array().unwrap().len(),
+        0
+    );
+    assert_eq!(search(&lab)["hits"], before["hits"]);
+}
+
+/// Every command that reads the text index, run on a library whose index was damaged.
+fn still_works(lab: &Lab) {
+    lab.ok(&["stats"]);
+    lab.ok(&["list"]);
+    let hits = lab.json(&[
+        "search",
+        &crate::util::unknown("u01.ir.csv"),
+        "-t",
+        "ir",
+        "--include-pending",
+    ]);
+    assert!(!hits["hits"].as_array().unwrap().is_empty());
+    let report = lab.json(&["check"]);
+    assert_eq!(report["findings"].as_array().unwrap().len(), 0, "{report}");
+    assert_eq!(
+        lab.json(&["find", "toluene"]).as_array().unwrap().len(),
+        crate::util::seed_rows_of("toluene"),
+    );
+}
+
+#[test]
+fn a_text_index_with_a_truncated_meta_json_is_rebuilt() {
+    let lab = library();
+    let meta = lab.library().join("text-index/meta.json");
+    let text = std::fs::read(&meta).unwrap();
+    std::fs::write(&meta, &text[..text.len() / 2]).unwrap();
+    still_works(&lab);
+}
+
+#[test]
+fn a_text_index_missing_a_segment_file_is_rebuilt() {
+    let lab = library();
+    let dir = lab.library().join("text-index");
+    let mut removed = 0;
+    for e in std::fs::read_dir(&dir).unwrap() {
+        let p = e.unwrap().path();
+        // A segment's postings (tantivy names segment files `<uuid>.<component>`).
+        if p.extension().is_some_and(|x| x == "idx") {
+            std::fs::remove_file(&p).unwrap();
+            removed += 1;
+        }
+    }
+    assert!(removed > 0, "the index has segments");
+    still_works(&lab);
+}

@@ -9,6 +9,7 @@ mod comfort;
 mod concurrency;
 mod curation;
 mod demo;
+mod faults;
 mod find;
 mod formula;
 mod fragments;

@@ -18,6 +18,8 @@
 //! still reach the top-K, every row whose key reaches it is rescored. So the hit list is the
 //! exact one, not an approximation.
 
+#[cfg(test)]
+mod damage;
 mod dense;
 mod exact;
 mod first;

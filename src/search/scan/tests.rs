@@ -805,3 +805,45 @@ proptest::proptest! {
         proptest::prop_assert!(scaled > 0, "some rows were scaled to the shared bins");
     }
 }
+
+#[test]
+fn a_library_changed_during_a_cache_build_is_built_again() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = dir.path().join("lib");
+    let mut lib = Library::init(&root, "t").unwrap();
+    let mut rng = Rng::new(9);
+    let batch: Vec<_> = (0..20)
+        .map(|i| {
+            staged(
+                lib.recipes(),
+                Technique::Ir,
+                ir_points(&mut rng),
+                &format!("c{i}"),
+                &[],
+            )
+            .unwrap()
+        })
+        .collect();
+    lib.store(&batch, "t", false).unwrap();
+    // A second handle (as another process would) adds a spectrum just as the first build
+    // starts reading rows: the rows read then differ from the rows counted.
+    let other = Library::open(&root).unwrap();
+    let extra = staged(
+        other.recipes(),
+        Technique::Ir,
+        ir_points(&mut rng),
+        "late",
+        &[],
+    )
+    .unwrap();
+    let slot = std::sync::Mutex::new(Some((other, extra)));
+    lib.on_cache_build(move |_, done, _| {
+        if done == 0
+            && let Some((mut other, extra)) = slot.lock().unwrap().take()
+        {
+            other.store(&[extra], "t", false).unwrap();
+        }
+    });
+    let c = lib.vector_cache(Technique::Ir, Kind::Centred).unwrap();
+    assert_eq!(c.rows(), 21, "built again with the late spectrum");
+}

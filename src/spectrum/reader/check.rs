@@ -9,6 +9,12 @@ use crate::error::{Error, Location, Result};
 use crate::spectrum::XUnit;
 use crate::technique::Technique;
 
+/// The largest |y| accepted. Far above any detector's counts or abundances (a 64-bit
+/// counter ends near 1.8e19), and far below where preparing overflows: a square of 1e200 is
+/// infinite in f64, and a value above 3.4e38 is infinite in the f32 of a stored vector
+/// (IEEE 754-2019, binary32 and binary64 ranges).
+pub const MAX_MAGNITUDE: f64 = 1e30;
+
 /// Checks parsed points against what the technique allows, after converting x to the
 /// technique's own unit. Returns the converted points.
 pub fn check_points(
@@ -83,6 +89,15 @@ pub fn check_points(
 
     let (lo, hi) = technique.plausible_x();
     for (i, &(x, y)) in converted.iter().enumerate() {
+        if y.abs() > MAX_MAGNITUDE {
+            return Err(Error::input(
+                at(i),
+                format!(
+                    "y = {y:e} is far larger than any measured value (more than {MAX_MAGNITUDE:e})"
+                ),
+                "check the column and the export: intensities of this size overflow when the spectrum is prepared",
+            ));
+        }
         let out_of_range = if technique == Technique::MsEi {
             x <= lo || x > hi
         } else {

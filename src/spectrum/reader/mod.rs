@@ -87,6 +87,16 @@ impl Delimiter {
 /// Reads a spectrum file of `technique` from disk: two columns, or one for a technique whose
 /// files may be position lists.
 pub fn read_points(path: &Path, technique: Technique) -> Result<ParsedPoints> {
+    // Only regular files: reading a FIFO waits for a writer forever, a device never ends.
+    if let Ok(m) = std::fs::metadata(path)
+        && !m.is_file()
+    {
+        return Err(Error::input(
+            Location::file(path),
+            "not a regular file (a folder, a FIFO or a device)",
+            "give the path of a spectrum file exported by the instrument software",
+        ));
+    }
     let bytes = std::fs::read(path).map_err(|e| {
         let hint = if e.kind() == std::io::ErrorKind::NotFound {
             "check the path and the file name"
