@@ -44,9 +44,10 @@ pub const ASSERTED: &str = "asserted";
 /// The identity of an event whose actor signed in (session or token).
 pub const SIGNED_IN: &str = "signed-in";
 
-/// The hash of one event with its identity kind: asserted events hash as they always have
-/// ([`event_hash`]); a signed-in event adds its kind to the hashed array, so that turning an
-/// asserted event into a signed-in one (or back) breaks the chain.
+/// The hash of one event: SHA-256 over a JSON array of its fields, which makes the encoding
+/// unambiguous whatever the fields contain. Asserted events hash as they always have; a
+/// signed-in event adds its kind to the array, so that turning an asserted event into a
+/// signed-in one (or back) breaks the chain.
 #[allow(clippy::too_many_arguments)]
 pub fn event_hash_with(
     seq: i64,
@@ -58,23 +59,13 @@ pub fn event_hash_with(
     prev_hash: &str,
     identity: &str,
 ) -> String {
-    if identity == ASSERTED {
-        return event_hash(seq, at, actor, action, record, payload_hash, prev_hash);
+    let mut fields = serde_json::json!([seq, at, actor, action, record, payload_hash, prev_hash]);
+    if identity != ASSERTED
+        && let Some(array) = fields.as_array_mut()
+    {
+        array.push(identity.into());
     }
-    sha256_hex(
-        serde_json::json!([
-            seq,
-            at,
-            actor,
-            action,
-            record,
-            payload_hash,
-            prev_hash,
-            identity
-        ])
-        .to_string()
-        .as_bytes(),
-    )
+    sha256_hex(fields.to_string().as_bytes())
 }
 
 /// The name of the connection's temporary table whose presence marks its writes as made by a
@@ -94,8 +85,8 @@ pub(super) fn identity_of(tx: &Connection) -> Result<&'static str> {
 /// The hash that starts the chain.
 pub const GENESIS_HASH: &str = "0000000000000000000000000000000000000000000000000000000000000000";
 
-/// The hash of one event: SHA-256 over a JSON array of its fields, which makes the encoding
-/// unambiguous whatever the fields contain.
+/// The hash of an asserted event ([`event_hash_with`] with [`ASSERTED`]), for the tests.
+#[cfg(test)]
 pub fn event_hash(
     seq: i64,
     at: &str,
@@ -105,10 +96,15 @@ pub fn event_hash(
     payload_hash: &str,
     prev_hash: &str,
 ) -> String {
-    sha256_hex(
-        serde_json::json!([seq, at, actor, action, record, payload_hash, prev_hash])
-            .to_string()
-            .as_bytes(),
+    event_hash_with(
+        seq,
+        at,
+        actor,
+        action,
+        record,
+        payload_hash,
+        prev_hash,
+        ASSERTED,
     )
 }
 

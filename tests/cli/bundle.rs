@@ -338,7 +338,7 @@ fn formula_cells_are_neutralised_in_every_csv_and_bundles_round_trip() {
     assert_eq!(row["submitted_by"], "''quoted");
     // Imported elsewhere, the values are what they were.
     let other = Lab::new();
-    other.ok(&["import", bundle.to_str().unwrap()]);
+    other.ok(&["import", bundle.to_str().unwrap(), "--untrusted"]);
     let shown = other.json(&["show", &id.to_string()]);
     let m = &shown["spectrum"]["metadata"];
     assert_eq!(m["name"], name);
@@ -346,9 +346,11 @@ fn formula_cells_are_neutralised_in_every_csv_and_bundles_round_trip() {
     assert_eq!(m["notes"], "@note");
     assert_eq!(m["source"], "-src");
     assert_eq!(shown["spectrum"]["submitted_by"], "'quoted");
+    // Every metadata value as it was at home (the status differs: a foreign reference arrives
+    // pending, so the two fingerprints differ by design).
     assert_eq!(
-        fingerprint(&other, &other.library()),
-        fingerprint(&lab, &lab.library())
+        m,
+        &lab.json(&["show", &id.to_string()])["spectrum"]["metadata"]
     );
 }
 
