@@ -92,18 +92,11 @@ pub fn run(args: ShowArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         "compound",
         &format!("{} (compound {})", m.name, rec.compound_id),
     )?;
-    for (k, v) in [
-        ("formula", &m.formula),
-        ("cas", &m.cas),
-        ("solvent", &m.solvent),
-        ("source", &m.source),
-        ("instrument", &m.instrument),
-        ("acquired", &m.acquired),
-        ("notes", &m.notes),
-    ] {
-        if let Some(v) = v {
-            line(k, v)?;
-        }
+    for (k, v) in m
+        .text_fields()
+        .chain(m.notes.as_deref().map(|n| ("notes", n)))
+    {
+        line(k, v)?;
     }
     if !m.synonyms.is_empty() {
         line("synonyms", &m.synonyms.join("; "))?;

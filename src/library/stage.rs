@@ -147,18 +147,7 @@ pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metad
 /// and tabs, nothing else of the kind.
 fn check_characters(m: &Metadata) -> Result<()> {
     let mut fields: Vec<(String, &str)> = vec![("name".into(), m.name.as_str())];
-    for (f, v) in [
-        ("formula", &m.formula),
-        ("cas", &m.cas),
-        ("solvent", &m.solvent),
-        ("source", &m.source),
-        ("instrument", &m.instrument),
-        ("acquired", &m.acquired),
-    ] {
-        if let Some(v) = v {
-            fields.push((f.into(), v.as_str()));
-        }
-    }
+    fields.extend(m.text_fields().map(|(f, v)| (f.to_string(), v)));
     fields.extend(m.synonyms.iter().map(|s| ("synonym".into(), s.as_str())));
     fields.extend(m.tags.iter().map(|s| ("tag".into(), s.as_str())));
     for (k, v) in &m.extra {

@@ -48,6 +48,24 @@ pub struct Metadata {
     pub extra: BTreeMap<String, String>,
 }
 
+impl Metadata {
+    /// The optional one-line text fields that are set, by field name, in the order people
+    /// read them (formula, CAS RN, solvent, source, instrument, acquired); the name, the
+    /// lists, the notes and the extra columns are not among them.
+    pub fn text_fields(&self) -> impl Iterator<Item = (&'static str, &str)> {
+        [
+            ("formula", &self.formula),
+            ("cas", &self.cas),
+            ("solvent", &self.solvent),
+            ("source", &self.source),
+            ("instrument", &self.instrument),
+            ("acquired", &self.acquired),
+        ]
+        .into_iter()
+        .filter_map(|(field, value)| Some((field, value.as_deref()?)))
+    }
+}
+
 /// Where a spectrum stands in review.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
