@@ -155,6 +155,38 @@ impl Error {
         }
     }
 
+    /// A short, stable, machine-readable name of the kind of error, for JSON errors (the CLI's
+    /// `--json` and the server's answers): `input`, `invalid`, `query`, `not-found`, `library`,
+    /// `busy`, `disk-full`, `database`, `text-index`, `io`, `stored-record`.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            e if e.is_busy() => "busy",
+            Error::Input { .. } => "input",
+            Error::Invalid { .. } => "invalid",
+            Error::Query { .. } => "query",
+            Error::NotFound { .. } => "not-found",
+            Error::Library { .. } => "library",
+            Error::Changing { .. } => "busy",
+            Error::Sqlite(rusqlite::Error::SqliteFailure(f, _))
+                if f.code == rusqlite::ErrorCode::DiskFull =>
+            {
+                "disk-full"
+            }
+            Error::Sqlite(_) => "database",
+            Error::Tantivy(_) => "text-index",
+            Error::Io { .. } => "io",
+            Error::Json(_) => "stored-record",
+        }
+    }
+
+    /// The file and line an input error is about, when there is one.
+    pub fn location(&self) -> Option<&Location> {
+        match self {
+            Error::Input { at, .. } => Some(at),
+            _ => None,
+        }
+    }
+
     /// True when SQLite gave up waiting for another process's write lock.
     pub fn is_busy(&self) -> bool {
         matches!(self, Error::Changing { .. })

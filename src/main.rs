@@ -9,13 +9,29 @@ use std::time::Duration;
 use clap::Parser;
 
 fn main() -> ExitCode {
-    let args = cli::Cli::parse();
+    // With --json, failures are one JSON object on stderr (cli::JsonError), even when the
+    // command line itself cannot be parsed.
+    let json = cli::json_requested(std::env::args_os());
+    let args = match cli::Cli::try_parse() {
+        Ok(args) => args,
+        Err(err) if json && err.use_stderr() => {
+            let e = cli::JsonError::from_usage(&err);
+            eprintln!("{}", e.line());
+            return ExitCode::from(e.exit_code);
+        }
+        Err(err) => err.exit(),
+    };
     let paint = cli::stderr_paint(args.global.color);
     match cli::run(args, serve) {
         Ok(code) => code,
         Err(err) => {
             if is_broken_pipe(&err) {
                 return ExitCode::SUCCESS;
+            }
+            if json {
+                let e = cli::JsonError::from_error(&err);
+                eprintln!("{}", e.line());
+                return ExitCode::from(e.exit_code);
             }
             eprintln!("{} {err:#}", paint.error("error:"));
             eprintln!("{} {}", paint.bold("hint:"), cli::hint(&err));

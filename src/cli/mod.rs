@@ -7,6 +7,7 @@ mod completions;
 mod config;
 mod demo;
 mod export;
+mod failure;
 mod find;
 mod formula;
 mod fragments;
@@ -37,6 +38,8 @@ mod witness;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
+
+pub use failure::{JsonError, json_requested};
 
 use clap::{Args, Parser, Subcommand};
 

@@ -5,6 +5,7 @@ use std::process::ExitCode;
 
 use clap::{Args, ValueEnum};
 
+use super::output::json;
 use super::{Context, identity};
 
 #[derive(Debug, Clone, Copy, ValueEnum)]
@@ -35,6 +36,9 @@ pub struct PolicyArgs {
     /// Who changes the policy [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
+    /// Print the policy as JSON (errors too)
+    #[arg(long)]
+    pub json: bool,
 }
 
 pub fn run(args: PolicyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
@@ -65,14 +69,22 @@ pub fn run(args: PolicyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             &identity(args.by.as_deref())?,
         )?;
     }
-    let state = if lib.allow_self_review()? {
-        "allowed"
-    } else {
-        "forbidden"
-    };
+    let self_review = lib.allow_self_review()?;
+    let signed_only = lib.signed_sign_offs_only()?;
     let mut out = std::io::stdout().lock();
+    if args.json {
+        return json(
+            &mut out,
+            &serde_json::json!({
+                "self_review": if self_review { "allowed" } else { "forbidden" },
+                "sign_offs": if signed_only { "signed-only" } else { "any" },
+            }),
+        )
+        .map(|()| ExitCode::SUCCESS);
+    }
+    let state = if self_review { "allowed" } else { "forbidden" };
     writeln!(out, "self-review: {state}")?;
-    let sign_offs = if lib.signed_sign_offs_only()? {
+    let sign_offs = if signed_only {
         "signed-only (through the lab server)"
     } else {
         "any (asserted on the command line, or signed through the server)"

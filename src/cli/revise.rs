@@ -6,6 +6,7 @@ use std::process::ExitCode;
 use clap::Args;
 use whorl::library::MetadataPatch;
 
+use super::output::json;
 use super::{Context, identity};
 
 #[derive(Debug, Args)]
@@ -51,6 +52,9 @@ pub struct ReviseArgs {
     /// Who revises [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
+    /// Print the result as JSON (errors too)
+    #[arg(long)]
+    pub json: bool,
 }
 
 pub fn run(args: ReviseArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
@@ -88,10 +92,18 @@ pub fn run(args: ReviseArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         &identity(args.by.as_deref())?,
         Some(args.reason.as_str()),
     )?;
-    writeln!(
-        std::io::stdout().lock(),
-        "spectrum {} revision {number} (pending review)",
-        args.id
-    )?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        json(
+            &mut out,
+            &serde_json::json!({"spectrum": args.id, "revision": number, "status": "pending"}),
+        )?;
+    } else {
+        writeln!(
+            out,
+            "spectrum {} revision {number} (pending review)",
+            args.id
+        )?;
+    }
     Ok(ExitCode::SUCCESS)
 }

@@ -5,6 +5,7 @@ use std::process::ExitCode;
 
 use clap::Args;
 
+use super::output::json;
 use super::{Context, identity};
 
 #[derive(Debug, Args)]
@@ -17,16 +18,31 @@ pub struct WithdrawArgs {
     /// Who withdraws it [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
+    /// Print the result as JSON (errors too)
+    #[arg(long)]
+    pub json: bool,
 }
 
 pub fn run(args: WithdrawArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
     lib.withdraw(args.id, &identity(args.by.as_deref())?, &args.reason)?;
-    writeln!(
-        std::io::stdout().lock(),
-        "spectrum {} withdrawn: {}",
-        args.id,
-        args.reason.trim()
-    )?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        json(
+            &mut out,
+            &serde_json::json!({
+                "spectrum": args.id,
+                "status": "withdrawn",
+                "reason": args.reason.trim(),
+            }),
+        )?;
+    } else {
+        writeln!(
+            out,
+            "spectrum {} withdrawn: {}",
+            args.id,
+            args.reason.trim()
+        )?;
+    }
     Ok(ExitCode::SUCCESS)
 }

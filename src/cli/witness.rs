@@ -20,17 +20,24 @@ pub enum WitnessCommand {
     Write {
         /// The witness file (created if missing)
         file: PathBuf,
+        /// Print the head written as JSON (errors too)
+        #[arg(long)]
+        json: bool,
     },
 }
 
 pub fn run(args: WitnessArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
-    let WitnessCommand::Write { file } = args.command;
+    let WitnessCommand::Write { file, json } = args.command;
     let lib = ctx.open()?;
     let (seq, hash) = lib.write_witness(&file)?;
-    writeln!(
-        std::io::stdout().lock(),
-        "witnessed event {seq} {hash} in {}",
-        file.display()
-    )?;
+    let mut out = std::io::stdout().lock();
+    if json {
+        super::output::json(
+            &mut out,
+            &serde_json::json!({"event": seq, "hash": hash, "file": file.display().to_string()}),
+        )?;
+    } else {
+        writeln!(out, "witnessed event {seq} {hash} in {}", file.display())?;
+    }
     Ok(ExitCode::SUCCESS)
 }

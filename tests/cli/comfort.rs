@@ -425,3 +425,73 @@ fn progress_bars_stay_off_a_stderr_that_is_not_a_terminal() {
     let err = stderr(&out);
     assert!(!err.contains("importing") && !err.contains('\r'), "{err:?}");
 }
+
+/// The one JSON error object a failed `--json` run prints on stderr.
+fn json_error(out: &std::process::Output) -> Value {
+    let text = stderr(out);
+    let v: Value = serde_json::from_str(text.trim())
+        .unwrap_or_else(|e| panic!("stderr is not one JSON object ({e}):\n{text}"));
+    v["error"].clone()
+}
+
+#[test]
+fn revise_withdraw_policy_and_witness_print_json() {
+    let lab = Lab::new();
+    lab.write("a.csv", ir_csv(&[(1715.0, 0.9, 10.0)]));
+    lab.ok(&["add", "a.csv", "-t", "ir", "--name", "ketone"]);
+    let v = lab.json(&["revise", "1", "--name", "butanone", "--reason", "typo"]);
+    assert_eq!(v["spectrum"], 1);
+    assert_eq!(v["revision"], 2);
+    assert_eq!(v["status"], "pending");
+    let v = lab.json(&["policy"]);
+    assert_eq!(v["self_review"], "forbidden");
+    assert_eq!(v["sign_offs"], "any");
+    let witness = lab.path("heads.txt");
+    let v = lab.json(&["witness", "write", witness.to_str().unwrap()]);
+    assert!(v["event"].as_i64().unwrap() >= 1);
+    assert_eq!(v["hash"].as_str().unwrap().len(), 64);
+    let v = lab.json(&["withdraw", "1", "--reason", "contaminated"]);
+    assert_eq!(v["status"], "withdrawn");
+    assert_eq!(v["reason"], "contaminated");
+    // The same facts as the library's own JSON.
+    let shown = lab.json(&["show", "1"]);
+    assert_eq!(shown["spectrum"]["status"], "withdrawn", "{shown}");
+    assert_eq!(shown["withdrawn_reason"], "contaminated");
+}
+
+#[test]
+fn with_json_errors_are_json_with_kind_hint_file_line_and_exit_code() {
+    let lab = Lab::new();
+    // An input error about one line of a file.
+    lab.write("bad.csv", "wavenumber,absorbance\n1000,0.1\n1001,abc\n");
+    let out = lab.run(&["add", "bad.csv", "-t", "ir", "--name", "x", "--json"]);
+    assert_eq!(out.status.code(), Some(3));
+    assert!(stdout(&out).is_empty(), "nothing on stdout");
+    let e = json_error(&out);
+    assert_eq!(e["kind"], "input");
+    assert_eq!(e["line"], 3);
+    assert!(e["file"].as_str().unwrap().ends_with("bad.csv"), "{e}");
+    assert!(!e["hint"].as_str().unwrap().is_empty());
+    assert_eq!(e["exit_code"], 3);
+    // An unknown id.
+    let out = lab.run(&["withdraw", "99", "--reason", "r", "--json"]);
+    assert_eq!(out.status.code(), Some(3));
+    let e = json_error(&out);
+    assert_eq!(e["kind"], "not-found");
+    assert!(e.get("line").is_none());
+    // A command line that cannot be parsed: clap's exit code 2, still JSON.
+    let out = lab.run(&["revise", "1", "--name", "x", "--json"]);
+    assert_eq!(out.status.code(), Some(2));
+    let e = json_error(&out);
+    assert_eq!(e["kind"], "usage");
+    assert!(e["message"].as_str().unwrap().contains("--reason"), "{e}");
+    // No library: exit 4.
+    let out = lab.run(&["--library", "/nonexistent/lib", "stats", "--json"]);
+    assert_eq!(out.status.code(), Some(4));
+    assert_eq!(json_error(&out)["kind"], "library");
+    // Without --json the same error is the two plain lines.
+    let out = lab.run(&["withdraw", "99", "--reason", "r"]);
+    let (error, hint) = error_and_hint(&out);
+    assert!(error.contains("no spectrum with id 99"), "{error}");
+    assert!(hint.starts_with("hint: "));
+}
