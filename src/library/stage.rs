@@ -4,7 +4,7 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use crate::chem::{check_cas, ms_formula_warnings, parse_formula};
+use crate::chem::{Formula, check_cas, ihd, ms_formula_warnings, parse_formula};
 use crate::error::{Error, Result};
 use crate::library::Metadata;
 use crate::prepare::{Conditions, Prepared, Recipe, Solvent, prepare};
@@ -126,7 +126,12 @@ pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metad
         .filter(|s| !s.is_empty())
         .collect();
     if let Some(f) = &m.formula {
-        m.formula = Some(parse_formula(f)?.to_string());
+        let parsed = parse_formula(f)?;
+        check_formula_exists(&parsed)?;
+        m.formula = Some(parsed.to_string());
+    }
+    if let Some(d) = &m.acquired {
+        check_date(d, chrono::Utc::now().date_naive())?;
     }
     if let Some(c) = &m.cas {
         m.cas = Some(check_cas(c)?);
@@ -140,6 +145,70 @@ pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metad
     check_characters(&m)?;
     check_extra_keys(&m)?;
     Ok(m)
+}
+
+/// Refuses a formula no structure can have: a negative index of hydrogen deficiency
+/// ([`ihd`]) means more hydrogen (or halogen) atoms than the other atoms' valences can bind,
+/// such as C3H60, a zero typed for the O of C3H6O. A half-integer IHD (a radical or an ion)
+/// is kept: references of salts and ions exist.
+fn check_formula_exists(formula: &Formula) -> Result<()> {
+    let ihd = ihd(formula)?;
+    if ihd < 0.0 {
+        return Err(Error::invalid(
+            format!(
+                "formula {formula} has an index of hydrogen deficiency of {ihd}: no structure \
+                 can bind that many hydrogen and halogen atoms"
+            ),
+            "check the counts (a zero typed for an O, as in C3H60 for C3H6O, is a common slip); \
+             `whorl formula` shows what a formula implies",
+        ));
+    }
+    Ok(())
+}
+
+/// Checks an acquisition date: ISO 8601 calendar dates as RFC 3339 profiles them, a whole
+/// date (2025-05-28), a month (2025-05) or a year (2025), or a date and time with or without
+/// an offset (2025-05-28T14:30, 2025-05-28T14:30:00Z, 2025-05-28T14:30:00+02:00); nothing
+/// after `today` (allowing a day for time zones).
+fn check_date(value: &str, today: chrono::NaiveDate) -> Result<()> {
+    use chrono::{DateTime, NaiveDate, NaiveDateTime};
+    let bad = |why: &str| {
+        Error::invalid(
+            format!("acquired date '{}' {why}", crate::error::excerpt(value, 40)),
+            "write the date as ISO 8601: YYYY-MM-DD (or YYYY-MM, YYYY, or YYYY-MM-DDTHH:MM with an \
+             optional offset such as Z or +02:00)",
+        )
+    };
+    let digits = |s: &str, n: usize| s.len() == n && s.bytes().all(|b| b.is_ascii_digit());
+    let date = if let Ok(d) = NaiveDate::parse_from_str(value, "%Y-%m-%d")
+        && digits(&value[..4], 4)
+        && value.len() == 10
+    {
+        d
+    } else if value.len() == 7
+        && digits(&value[..4], 4)
+        && &value[4..5] == "-"
+        && digits(&value[5..], 2)
+    {
+        NaiveDate::parse_from_str(&format!("{value}-01"), "%Y-%m-%d")
+            .map_err(|_| bad("is not a month of the calendar"))?
+    } else if digits(value, 4) {
+        NaiveDate::parse_from_str(&format!("{value}-01-01"), "%Y-%m-%d")
+            .map_err(|_| bad("is not a year"))?
+    } else if let Ok(t) = DateTime::parse_from_rfc3339(value) {
+        t.date_naive()
+    } else if let Some(t) = ["%Y-%m-%dT%H:%M:%S", "%Y-%m-%dT%H:%M"]
+        .iter()
+        .find_map(|f| NaiveDateTime::parse_from_str(value, f).ok())
+    {
+        t.date()
+    } else {
+        return Err(bad("is not an ISO 8601 date"));
+    };
+    if date > today + chrono::Days::new(1) {
+        return Err(bad("lies in the future"));
+    }
+    Ok(())
 }
 
 /// Refuses control characters in metadata: a newline in a name would forge a line in
@@ -298,4 +367,71 @@ pub fn prepare_raw(
         solvent,
     };
     prepare(label, recipe, &converted, &conditions)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn today() -> chrono::NaiveDate {
+        chrono::NaiveDate::from_ymd_opt(2026, 12, 3).unwrap()
+    }
+
+    #[test]
+    fn iso_8601_dates_pass_and_others_are_refused() {
+        // ISO 8601-1:2019 calendar dates (complete, reduced to month or year) and RFC 3339
+        // date-times; the examples are from memory of both standards' forms.
+        for ok in [
+            "2025-05-28",
+            "2025-05",
+            "2025",
+            "2024-02-29",
+            "2025-05-28T14:30",
+            "2025-05-28T14:30:00",
+            "2025-05-28T14:30:00Z",
+            "2025-05-28T14:30:00+02:00",
+            "2026-12-04",
+        ] {
+            assert!(check_date(ok, today()).is_ok(), "{ok}");
+        }
+        for bad in [
+            "last tuesday",
+            "28/05/2025",
+            "2025-5-28",
+            "2025-13",
+            "2025-02-30",
+            "2023-02-29",
+            "20250528",
+            "25-05-28",
+            "2025-05-28 junk",
+            "2026-12-06",
+            "3025",
+        ] {
+            let e = check_date(bad, today()).unwrap_err().to_string();
+            assert!(e.contains("acquired date"), "{bad}: {e}");
+        }
+    }
+
+    #[test]
+    fn a_formula_with_a_negative_ihd_is_refused() {
+        // IHD = C - H/2 + N/2 + 1 (common practice): C3H6O has 1, C3H60 has -26, CH4 has 0,
+        // and C2H7 (more H than two carbons can bind) has -0.5.
+        for (f, ok) in [
+            ("C3H6O", true),
+            ("CH4", true),
+            ("C6H6", true),
+            ("C2H3NaO2", true),
+            ("CH3", true),
+            ("C3H60", false),
+            ("C2H7", false),
+            ("CH5", false),
+        ] {
+            let r = check_formula_exists(&parse_formula(f).unwrap());
+            assert_eq!(r.is_ok(), ok, "{f}: {r:?}");
+        }
+        let e = check_formula_exists(&parse_formula("C3H60").unwrap())
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("-26"), "{e}");
+    }
 }

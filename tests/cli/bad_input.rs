@@ -556,3 +556,75 @@ fn reserved_and_colliding_metadata_keys_are_refused() {
     contains(&text, "m/list.csv:2");
     contains(&text, "metadata key");
 }
+
+#[test]
+fn a_formula_no_structure_can_have() {
+    // C3H60: a zero typed for the O of acetone's C3H6O. IHD = C - H/2 + 1 = -26 (common
+    // practice), so no structure exists; `whorl formula` reports the same number.
+    let lab = lab();
+    lab.write("a.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    let before = lab.state();
+    let text = lab.refuses(
+        &[
+            "add",
+            "a.csv",
+            "-t",
+            "ir",
+            "--name",
+            "acetone",
+            "--formula",
+            "C3H60",
+        ],
+        3,
+    );
+    contains(
+        &text,
+        "formula C3H60 has an index of hydrogen deficiency of -26",
+    );
+    contains(hint(&text), "C3H6O");
+    assert_eq!(lab.state(), before, "nothing stored");
+    let formula = lab.json(&["formula", "C3H60"]);
+    assert_eq!(formula["ihd"], -26.0, "{formula}");
+    // The same formula in a manifest row is refused with its line.
+    let text = refused_row(
+        "file,technique,name,formula\na.csv,ir,acetone,C3H60\n",
+        &[("a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]))],
+    );
+    contains(&text, "-26");
+}
+
+#[test]
+fn an_acquisition_date_that_is_not_iso_8601() {
+    let lab = lab();
+    lab.write("a.csv", ir_csv(&[(1715.0, 0.8, 10.0)]));
+    for bad in ["last tuesday", "28/05/2025", "2025-02-30"] {
+        let text = lab.refuses(
+            &["add", "a.csv", "-t", "ir", "--name", "x", "--acquired", bad],
+            3,
+        );
+        contains(&text, "is not an ISO 8601 date");
+        contains(hint(&text), "YYYY-MM-DD");
+    }
+    let text = refused_row(
+        "file,technique,name,acquired\na.csv,ir,x,yesterday\n",
+        &[("a.csv", ir_csv(&[(1050.0, 0.8, 12.0)]))],
+    );
+    contains(&text, "acquired date 'yesterday'");
+    // ISO 8601 forms are kept as written.
+    lab.write("b.csv", ir_csv(&[(1050.0, 0.8, 12.0)]));
+    lab.ok(&[
+        "add",
+        "b.csv",
+        "-t",
+        "ir",
+        "--name",
+        "x",
+        "--acquired",
+        "2025-05",
+    ]);
+    let shown = lab.json(&["show", "2"]);
+    assert_eq!(
+        shown["spectrum"]["metadata"]["acquired"], "2025-05",
+        "{shown}"
+    );
+}
