@@ -64,10 +64,16 @@ pub struct Verdicts {
     pub correct_no_match: usize,
     pub absent: usize,
     pub absent_words: std::collections::BTreeMap<&'static str, usize>,
-    /// The best score of each list whose first hit is right.
+    /// The evidence the weak threshold applies to (`Confidence::evidence`) of each list
+    /// whose first hit is right.
     pub right_best: Vec<f64>,
-    /// The best score of each list with the true identity withdrawn (0 when nothing is left).
+    /// The evidence of each list with the true identity withdrawn (0 when nothing is left).
     pub absent_best: Vec<f64>,
+    /// The best score alone of each list whose first hit is right, for comparison.
+    pub right_score: Vec<f64>,
+    /// The best score alone of each list with the true identity withdrawn (0 when nothing is
+    /// left).
+    pub absent_score: Vec<f64>,
 }
 
 impl Verdicts {
@@ -88,10 +94,14 @@ impl Verdicts {
         let absent: Vec<_> = hits.iter().filter(|h| !is_truth(h)).cloned().collect();
         let without = verdict(&absent, confidence);
         dump(tag, &hits, &absent, right_first);
+        let evidence = confidence.evidence;
         if right_first {
-            self.right_best.push(hits[0].score);
+            self.right_best
+                .push(evidence.of(&hits).expect("a right first hit"));
+            self.right_score.push(hits[0].score);
         }
-        self.absent_best
+        self.absent_best.push(evidence.of(&absent).unwrap_or(0.0));
+        self.absent_score
             .push(absent.first().map_or(0.0, |h| h.score));
         self.add(right_first, on_list.word(), without.word());
     }
@@ -128,10 +138,45 @@ pub struct Derived {
     pub rejected: f64,
 }
 
+/// Which value of a list the threshold applies to.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Basis {
+    /// The default scoring's evidence (`Confidence::evidence`).
+    Evidence,
+    /// The best score alone.
+    Score,
+}
+
+impl Verdicts {
+    /// The values of right first hits and of withdrawn-identity lists on `basis`.
+    pub fn values(&self, basis: Basis) -> (&[f64], &[f64]) {
+        match basis {
+            Basis::Evidence => (&self.right_best, &self.absent_best),
+            Basis::Score => (&self.right_score, &self.absent_score),
+        }
+    }
+
+    /// Under threshold `w` on `basis`: the share of right first hits below it, and the share
+    /// of withdrawn-identity lists below it (called no acceptable match).
+    pub fn under(&self, basis: Basis, w: f64) -> (String, String) {
+        let (right, absent) = self.values(basis);
+        (
+            Verdicts::share(right.iter().filter(|&&s| s < w).count(), right.len()),
+            Verdicts::share(absent.iter().filter(|&&s| s < w).count(), absent.len()),
+        )
+    }
+}
+
 impl Derived {
-    pub fn from(tuning: &[&Verdicts]) -> Derived {
-        let right: Vec<f64> = tuning.iter().flat_map(|v| v.right_best.clone()).collect();
-        let absent: Vec<f64> = tuning.iter().flat_map(|v| v.absent_best.clone()).collect();
+    pub fn from(tuning: &[&Verdicts], basis: Basis) -> Derived {
+        let right: Vec<f64> = tuning
+            .iter()
+            .flat_map(|v| v.values(basis).0.to_vec())
+            .collect();
+        let absent: Vec<f64> = tuning
+            .iter()
+            .flat_map(|v| v.values(basis).1.to_vec())
+            .collect();
         assert!(!right.is_empty() && !absent.is_empty(), "tuning evidence");
         let share = |k: usize, n: usize| k as f64 / n as f64;
         let mut best: Option<(f64, Derived)> = None;
@@ -237,7 +282,7 @@ impl Table {
         println!();
         if let Some(v) = &self.verdicts {
             println!(
-                "Verdicts of the default scoring (`THRESHOLDS`: the weak score derived on the real tuning parts, \
+                "Verdicts of the default scoring (`THRESHOLDS`: the weak threshold, on the discriminant of Lam et al. 2007, derived on the real tuning parts, \
                  last section; the close margin and strong score on generated spectra, `docs/evaluation.md`). Target: \
                  with the true identity withdrawn, at least 90 % *no acceptable match*; of the right first hits, at \
                  most 5 % called *no acceptable match*."

@@ -69,12 +69,22 @@ fn write_derived(out: &mut impl Write) -> anyhow::Result<()> {
     for technique in Technique::ALL {
         let params = ScoreParams::default_for(technique);
         let c = whorl::search::confidence(technique, &params);
+        let applies = match c.evidence {
+            whorl::search::Evidence::Score => "",
+            whorl::search::Evidence::Discriminant => {
+                " (the weak threshold applies to 0.6 x score + 0.4 x relative lead over the next compound)"
+            }
+        };
         writeln!(
             out,
-            "#   {technique} {}: {:.2}, {:.2}, {:.2}",
+            "#   {technique} {}: {:.2}, {:.2}, {:.2}{applies}",
             params.measure, c.weak_score, c.close_margin, c.strong_score
         )?;
     }
+    writeln!(
+        out,
+        "# weak_score set here is compared with the best score itself, for every technique"
+    )?;
     Ok(())
 }
 

@@ -178,7 +178,7 @@ fn check_ri(ri: &RiWindow, metadata: &Metadata, reasons: &mut Vec<String>) {
     };
     if let Some(phase) = &ri.phase {
         match metadata.extra.get(RI_PHASE_KEY) {
-            Some(p) if p.trim().eq_ignore_ascii_case(phase.trim()) => {}
+            Some(p) if same_phase(p, phase) => {}
             Some(p) => {
                 reasons.push(format!(
                     "retention index on record is for phase {p}, not {phase}"
@@ -194,12 +194,24 @@ fn check_ri(ri: &RiWindow, metadata: &Metadata, reasons: &mut Vec<String>) {
     let diff = value - ri.value;
     if diff.abs() > ri.window {
         reasons.push(format!(
-            "retention index {value} is {:.0} from {} (window +-{})",
+            "retention index {value:.1} is {:.0} from {:.1} (window +-{})",
             diff.abs(),
             ri.value,
             ri.window
         ));
     }
+}
+
+/// Column phase names as labs write them compare equal after case, spaces, hyphens and
+/// underscores are set aside: "DB-5", "db 5" and "DB5" are one phase.
+fn same_phase(a: &str, b: &str) -> bool {
+    let key = |s: &str| -> String {
+        s.chars()
+            .filter(|c| !matches!(c, ' ' | '-' | '_'))
+            .flat_map(char::to_lowercase)
+            .collect()
+    };
+    key(a) == key(b)
 }
 
 #[cfg(test)]
@@ -292,13 +304,31 @@ mod tests {
         assert_eq!(ri(None).rule_out(&benzene), None);
         assert_eq!(
             ri(None).rule_out(&toluene).unwrap(),
-            "retention index 760 is 100 from 660 (window +-10)"
+            "retention index 760.0 is 100 from 660.0 (window +-10)"
         );
         assert_eq!(
             ri(None).rule_out(&chloroform).unwrap(),
             "no retention index on record"
         );
         assert_eq!(ri(Some("db-5")).rule_out(&benzene), None);
+        // Spellings of one phase (common practice: labs write DB-5, DB5, db 5).
+        for same in ["DB5", "db 5", "Db_5", " DB-5 "] {
+            assert_eq!(ri(Some(same)).rule_out(&benzene), None, "{same}");
+        }
+        assert!(ri(Some("DB-50")).rule_out(&benzene).is_some());
+        // A computed index prints with one decimal, never all of its digits.
+        let computed = Constraints {
+            ri: Some(RiWindow {
+                value: 763.157_894_736_842_1,
+                window: 5.0,
+                phase: None,
+            }),
+            ..Constraints::default()
+        };
+        assert_eq!(
+            computed.rule_out(&benzene).unwrap(),
+            "retention index 655.0 is 108 from 763.2 (window +-5)"
+        );
         assert!(
             ri(Some("DB-WAX"))
                 .rule_out(&benzene)

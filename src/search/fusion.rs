@@ -138,12 +138,20 @@ pub fn fuse(lists: &[(Technique, &[Hit])], top: usize) -> Fusion {
     }
     let margin = (compounds.len() >= 2).then(|| compounds[0].fused - compounds[1].fused);
     let mut warnings = Vec::new();
-    let firsts: Vec<(Technique, &str)> = lists
+    // Compared by compound, not by name: one compound is one compound whatever its spelling
+    // in each reference ("Toluene", "toluene").
+    let firsts: Vec<(Technique, &Hit)> = lists
         .iter()
-        .filter_map(|(t, hits)| hits.first().map(|h| (*t, h.name.as_str())))
+        .filter_map(|(t, hits)| hits.first().map(|h| (*t, h)))
         .collect();
-    if firsts.windows(2).any(|w| w[0].1 != w[1].1) {
-        let said: Vec<String> = firsts.iter().map(|(t, n)| format!("{t}: {n}")).collect();
+    if firsts
+        .windows(2)
+        .any(|w| w[0].1.compound_id != w[1].1.compound_id)
+    {
+        let said: Vec<String> = firsts
+            .iter()
+            .map(|(t, h)| format!("{t}: {}", h.name))
+            .collect();
         warnings.push(format!(
             "the techniques rank different compounds first ({})",
             said.join("; ")
@@ -233,6 +241,7 @@ mod tests {
             close_margin,
             strong_score: weak_score,
             derived: false,
+            evidence: crate::search::Evidence::Score,
         }
     }
 
@@ -280,6 +289,20 @@ mod tests {
             "acetone scores 0.400, below the weak-match threshold 0.750"
         );
         assert!(!v.met);
+        // MS's first hit acetone but weak (0.8 < 0.85): not supporting, and not against
+        // either, since no other compound is confidently first.
+        let v = judge(
+            &default,
+            &lists,
+            &[usual, thresholds(0.85, 0.05), usual, usual],
+            &f,
+        );
+        assert_eq!(v.supporting, [Technique::Ir]);
+        assert!(
+            v.against.iter().all(|o| o.technique != Technique::MsEi),
+            "{:?}",
+            v.against
+        );
         // A policy that lets two supporting techniques outvote one against.
         let lenient = IdentityPolicy {
             min_techniques: 2,
@@ -292,6 +315,30 @@ mod tests {
             allow_contradiction: true,
         };
         assert!(!verdict(usual, strict).met);
+    }
+
+    #[test]
+    fn the_same_compound_first_under_two_spellings_is_no_disagreement() {
+        let ir = [hit(1, "Toluene", 0.9), hit(2, "benzene", 0.5)];
+        let ms = [hit(1, "toluene", 0.8), hit(2, "benzene", 0.4)];
+        let f = fuse(&[(Technique::Ir, &ir[..]), (Technique::MsEi, &ms[..])], 10);
+        assert!(
+            f.warnings
+                .iter()
+                .all(|w| !w.contains("different compounds first")),
+            "{:?}",
+            f.warnings
+        );
+        // Two compounds first: the warning names both.
+        let ms = [hit(2, "benzene", 0.8), hit(1, "toluene", 0.4)];
+        let f = fuse(&[(Technique::Ir, &ir[..]), (Technique::MsEi, &ms[..])], 10);
+        assert!(
+            f.warnings
+                .iter()
+                .any(|w| w.contains("ir: Toluene; ms-ei: benzene")),
+            "{:?}",
+            f.warnings
+        );
     }
 
     #[test]

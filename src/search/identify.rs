@@ -111,6 +111,10 @@ pub fn identify_with_searches(
         // Fusion ranks every compound each technique scored, so every candidate is listed.
         request.top = usize::MAX;
         request.constraints = options.constraints.clone();
+        // A retention index is a fact of the GC run: it constrains the EI search alone.
+        if u.technique != Technique::MsEi {
+            request.constraints.ri = None;
+        }
         let (report, section, prepared) = search_file_cut(library, u, &request, options.top)?;
         let mut parameters = report.parameters;
         parameters.top = options.top;

@@ -19,7 +19,7 @@ mod scan;
 
 pub use crate::config::{IdentityPolicy, Thresholds};
 pub use confidence::{
-    Confidence, THRESHOLDS, Threshold, Verdict, confidence, is_confident, verdict,
+    Confidence, Evidence, THRESHOLDS, Threshold, Verdict, confidence, is_confident, verdict,
 };
 pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow};
 pub use fusion::{DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, TechniqueEvidence, fuse};

@@ -14,6 +14,11 @@ use crate::score::ScoreParams;
 use crate::spectrum::{XUnit, YUnit};
 use crate::technique::Technique;
 
+/// How many hits a search ranks at least, whatever `top` asks for: the verdict and the
+/// warnings are judged on this deeper list (the lead over the next compound needs one), and
+/// the list is then cut to `top`.
+pub const VERDICT_DEPTH: usize = 20;
+
 /// What to search for and how.
 #[derive(Debug, Clone)]
 pub struct Request {
@@ -38,6 +43,11 @@ pub struct Request {
 }
 
 impl Request {
+    /// How many hits the ranking keeps: `top`, at least [`VERDICT_DEPTH`].
+    pub fn depth(&self) -> usize {
+        self.top.max(VERDICT_DEPTH)
+    }
+
     /// A request with the technique's default parameters.
     pub fn new(technique: Technique) -> Request {
         Request {
@@ -150,6 +160,15 @@ impl Plan {
         }
         request.params.validate(request.technique)?;
         request.constraints.validate()?;
+        if request.constraints.ri.is_some() && request.technique != Technique::MsEi {
+            return Err(crate::error::Error::invalid(
+                format!(
+                    "a retention-index window applies to GC-MS (EI) references only, not to {}",
+                    request.technique
+                ),
+                "leave out --ri/--rt/--alkanes for this search; `identify` applies them to its EI search alone",
+            ));
+        }
         let recipe = library.recipe(request.technique)?.clone();
         let allowed = match &request.filter {
             Some(q) => Some(library.text().matching_ids(q)?),

@@ -2,7 +2,7 @@
 
 use serde::Serialize;
 
-use super::{Confidence, Fusion, Hit, is_confident};
+use super::{Confidence, Evidence, Fusion, Hit, is_confident};
 use crate::config::IdentityPolicy;
 use crate::technique::Technique;
 
@@ -89,13 +89,31 @@ pub fn judge(
                     technique: *technique,
                     reason: format!("{} is confidently first", first.name),
                 }),
-                _ if score < c.weak_score => against.push(Objection {
-                    technique: *technique,
-                    reason: format!(
-                        "{} scores {score:.3}, below the weak-match threshold {:.3}",
-                        best.name, c.weak_score
-                    ),
-                }),
+                // A weak first hit of the compound itself: not supporting, not against.
+                Some(first) if first.compound_id == best.compound_id => {}
+                // Another compound first, not confidently, and the compound's own best hit
+                // would not pass as a match even in first place: the spectrum does not look
+                // like it.
+                Some(first) if c.evidence.of_scores(score, first.score) < c.weak_score => {
+                    let reason = match c.evidence {
+                        Evidence::Score => format!(
+                            "{} scores {score:.3}, below the weak-match threshold {:.3}",
+                            best.name, c.weak_score
+                        ),
+                        Evidence::Discriminant => format!(
+                            "{} scores {score:.3} beside {} at {:.3}, below the weak-match threshold {:.3} ({})",
+                            best.name,
+                            first.name,
+                            first.score,
+                            c.weak_score,
+                            Evidence::Discriminant.describe()
+                        ),
+                    };
+                    against.push(Objection {
+                        technique: *technique,
+                        reason,
+                    });
+                }
                 _ => {}
             }
         }

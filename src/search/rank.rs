@@ -212,7 +212,7 @@ impl Plan {
         let check_each = !request.constraints.is_empty() || !prefilter;
         for (combined, i, components) in scored {
             let c = &candidates[i];
-            if hits.len() >= request.top && !check_each {
+            if hits.len() >= request.depth() && !check_each {
                 break;
             }
             let rec = match library.hit_records(&[c.spectrum_id])?.pop() {
@@ -247,7 +247,7 @@ impl Plan {
                 }
                 continue;
             }
-            if hits.len() >= request.top {
+            if hits.len() >= request.depth() {
                 continue;
             }
             hits.push(make_hit(hits.len() + 1, combined, components, rec, request));
@@ -260,7 +260,7 @@ impl Plan {
 /// such a list gets: what the same search asking for that many hits gives (for a list made
 /// without `explain`, whose ruled-out candidates depend on its length).
 pub(super) fn cut(library: &Library, request: &Request, list: &HitList) -> Result<HitList> {
-    let hits = list.hits.iter().take(request.top).cloned().collect();
+    let hits = list.hits.iter().take(request.depth()).cloned().collect();
     finish(
         library,
         request,
@@ -271,11 +271,13 @@ pub(super) fn cut(library: &Library, request: &Request, list: &HitList) -> Resul
     )
 }
 
-/// The margin, the thresholds and the warnings that go with a hit list.
+/// The margin, the thresholds, the verdict and the warnings that go with a hit list, judged on
+/// the ranked hits (at least [`super::plan::VERDICT_DEPTH`] of them where there are as many),
+/// and the list cut to `request.top`.
 fn finish(
     library: &Library,
     request: &Request,
-    hits: Vec<Hit>,
+    mut hits: Vec<Hit>,
     compared: usize,
     excluded_count: usize,
     excluded: Vec<Excluded>,
@@ -283,7 +285,9 @@ fn finish(
     let margin = (hits.len() >= 2).then(|| hits[0].score - hits[1].score);
     let mut confidence = confidence(request.technique, &request.params);
     if let Some(w) = request.thresholds.weak_score {
+        // A configured weak score is a score, as `whorl.toml` documents it.
         confidence.weak_score = w;
+        confidence.evidence = crate::search::Evidence::Score;
         confidence.derived = false;
     }
     if let Some(c) = request.thresholds.close_margin {
@@ -298,6 +302,7 @@ fn finish(
     confidence.strong_score = confidence.strong_score.max(confidence.weak_score);
     let mut warnings = list_warnings(&hits, &confidence);
     let verdict = Some(verdict(&hits, &confidence));
+    hits.truncate(request.top);
     if request.filter.is_some() && library.text_index_behind() {
         warnings.push(
             "the metadata index is behind the database (another process is writing); the --where filter may miss the newest spectra".to_string(),

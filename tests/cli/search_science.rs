@@ -581,6 +581,50 @@ fn retention_index_window_uses_the_ri_on_record() {
         .as_f64()
         .unwrap();
     assert!((ri - 857.083).abs() < 0.001, "{ri}");
+
+    // A retention index is a fact of the GC run (common practice): an IR search refuses it,
+    // and `identify` applies it to its EI search alone, not to the IR references (which
+    // carry no retention index and would all be ruled out).
+    let id = lab.add(
+        "eb.ir.csv",
+        &crate::util::ir_csv(&[(1495.0, 0.7, 8.0), (2930.0, 0.5, 20.0)]),
+        "ir",
+        "ethylbenzene",
+        &[],
+    );
+    lab.ok(&["review", "--approve", "--by", "r.second", &id.to_string()]);
+    let ir = lab.path("eb.ir.csv");
+    let ir = ir.to_str().unwrap();
+    let text = lab.refuses(&["search", ir, "-t", "ir", "--ri", "860"], 3);
+    assert!(
+        text.contains("applies to GC-MS (EI) references only, not to ir"),
+        "{text}"
+    );
+    let fused = lab.json(&[
+        "identify",
+        "--ir",
+        ir,
+        "--ms-ei",
+        &u,
+        "--ri",
+        "860",
+        "--ri-window",
+        "10",
+    ]);
+    let ir_run = fused["runs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["unknown"]["technique"] == "ir")
+        .unwrap_or_else(|| panic!("an ir run in {fused}"));
+    assert!(
+        ir_run["parameters"]["constraints"]["ri"].is_null(),
+        "{ir_run}"
+    );
+    let first = &fused["fusion"]["compounds"][0];
+    assert_eq!(first["name"], "ethylbenzene", "{fused}");
+    assert_eq!(first["evidence"][0]["technique"], "ir");
+    assert_eq!(first["evidence"][0]["rank"], 1, "{fused}");
 }
 
 #[test]

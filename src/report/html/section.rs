@@ -107,7 +107,8 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
     fact(
         "warns when",
         format!(
-            "best score below {}, or hits 1 and 2 of different compounds within {} ({})",
+            "{} below {}, or hits 1 and 2 of different compounds within {} ({})",
+            r.confidence.evidence.describe(),
             r.confidence.weak_score,
             r.confidence.close_margin,
             if r.confidence.derived {

@@ -124,7 +124,7 @@ pub(super) fn finish(
         .map(|&r| (rescore_bound(cache, q, r, w, request), r))
         .collect();
     bounds.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
-    let k = request.top;
+    let k = request.depth();
     let mut top: Vec<(f64, i64, Scores)> = Vec::with_capacity(k + 1);
     let kth = |top: &Vec<(f64, i64, Scores)>| {
         if top.len() < k {

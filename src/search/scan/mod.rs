@@ -117,7 +117,7 @@ fn rank_plan_traced(
     trace: &mut Trace,
 ) -> Result<Option<Vec<Ranking>>> {
     // `top` may be "all" (usize::MAX, as `identify` asks): never more than the rows.
-    let keep = RESCORE.max(plan.request.top.saturating_mul(4));
+    let keep = RESCORE.max(plan.request.depth().saturating_mul(4));
     rank_keeping(library, unknowns, plan, trace, keep)
 }
 

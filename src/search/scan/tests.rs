@@ -160,8 +160,12 @@ fn rows_left_out_by_the_first_scan_are_rescored_from_their_keys() {
         .unwrap()
         .unwrap();
         assert!(trace.fallbacks > 0, "{technique}: the fallback ran");
+        // The ranking keeps `depth()` rows (the verdict is judged on them): the exact
+        // search asking for as many hits.
+        let mut deep = r.clone();
+        deep.top = r.depth();
         for (u, ranking) in unknowns.iter().zip(&rankings) {
-            let exact = search_exact(&lib, u, &r).unwrap();
+            let exact = search_exact(&lib, u, &deep).unwrap();
             let ids: Vec<i64> = ranking.scored.iter().map(|s| s.1).collect();
             let want: Vec<i64> = exact.hits.iter().map(|h| h.spectrum_id).collect();
             assert_eq!(ids, want, "{technique}");
@@ -711,8 +715,10 @@ fn mixed_coverages_give_the_exact_hits() {
         .unwrap()
         .unwrap();
     assert!(trace.fallbacks > 0, "the fallback ran");
+    let mut deep = r.clone();
+    deep.top = r.depth();
     for (u, ranking) in unknowns.iter().zip(&rankings) {
-        let exact = search_exact(&lib, u, &r).unwrap();
+        let exact = search_exact(&lib, u, &deep).unwrap();
         let ids: Vec<i64> = ranking.scored.iter().map(|s| s.1).collect();
         let want: Vec<i64> = exact.hits.iter().map(|h| h.spectrum_id).collect();
         assert_eq!(ids, want);
