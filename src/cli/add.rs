@@ -57,9 +57,44 @@ pub struct AddArgs {
     /// Free note
     #[arg(long)]
     pub note: Option<String>,
+    /// An extra field, KEY=VALUE, as a manifest's extra columns give them (e.g. `--set ri=1012
+    /// --set ri_phase=DB-5`; repeatable); searchable as `KEY:VALUE`
+    #[arg(long = "set", value_name = "KEY=VALUE")]
+    pub set: Vec<String>,
     /// Print the result as JSON
     #[arg(long)]
     pub json: bool,
+}
+
+/// `--set KEY=VALUE` arguments as extra metadata: a value is required, and a key may be given
+/// once (reserved and colliding keys are refused when the metadata is checked).
+fn extra_fields(set: &[String]) -> anyhow::Result<std::collections::BTreeMap<String, String>> {
+    let mut extra = std::collections::BTreeMap::new();
+    for kv in set {
+        let Some((k, v)) = kv.split_once('=') else {
+            return Err(whorl::Error::invalid(
+                format!("--set '{}' has no '='", whorl::error::excerpt(kv, 60)),
+                "write --set KEY=VALUE, e.g. --set ri=1012",
+            )
+            .into());
+        };
+        let (k, v) = (k.trim(), v.trim());
+        if v.is_empty() {
+            return Err(whorl::Error::invalid(
+                format!("--set {k}= gives no value"),
+                "give a value (--set KEY=VALUE), or leave the field out",
+            )
+            .into());
+        }
+        if extra.insert(k.to_string(), v.to_string()).is_some() {
+            return Err(whorl::Error::invalid(
+                format!("--set {k} is given twice"),
+                "give each extra field once",
+            )
+            .into());
+        }
+    }
+    Ok(extra)
 }
 
 pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
@@ -82,7 +117,7 @@ pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             instrument: args.instrument,
             acquired: args.acquired,
             notes: args.note,
-            extra: Default::default(),
+            extra: extra_fields(&args.set)?,
         },
         x_unit: args.x_unit,
         y_unit: args.y_unit,

@@ -43,15 +43,8 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         args.all_or_nothing,
         true,
     )?;
-    for row in &report.rows {
-        for w in &row.warnings {
-            eprintln!(
-                "warning: {}:{} ({}): {w}",
-                args.manifest.display(),
-                row.line,
-                row.file
-            );
-        }
+    for line in warning_lines(&args.manifest, &report.rows) {
+        eprintln!("{line}");
     }
     if let Some(note) = report.coverage_note() {
         eprintln!("note: {note}");
@@ -90,6 +83,45 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     } else {
         ExitCode::SUCCESS
     })
+}
+
+/// The warnings of a bulk import for people: each distinct warning once, at its first row,
+/// with how many other rows gave the same words and their lines (the first ten). `--json`
+/// keeps every row's warning.
+fn warning_lines(manifest: &std::path::Path, rows: &[whorl::library::RowReport]) -> Vec<String> {
+    let mut order: Vec<&str> = Vec::new();
+    let mut seen: std::collections::HashMap<&str, Vec<(usize, &str)>> =
+        std::collections::HashMap::new();
+    for row in rows {
+        for w in &row.warnings {
+            let at = seen.entry(w.as_str()).or_default();
+            if at.is_empty() {
+                order.push(w.as_str());
+            }
+            at.push((row.line, row.file.as_str()));
+        }
+    }
+    let mut lines = Vec::new();
+    for w in order {
+        let at = &seen[w];
+        let (line, file) = at[0];
+        lines.push(format!(
+            "warning: {}:{line} ({file}): {w}",
+            manifest.display()
+        ));
+        if at.len() > 1 {
+            let more: Vec<String> = at[1..].iter().take(10).map(|a| a.0.to_string()).collect();
+            let rest = if at.len() - 1 > 10 { ", ..." } else { "" };
+            lines.push(format!(
+                "warning: the same for {} more row{} (line{} {}{rest})",
+                at.len() - 1,
+                if at.len() == 2 { "" } else { "s" },
+                if at.len() == 2 { "" } else { "s" },
+                more.join(", ")
+            ));
+        }
+    }
+    lines
 }
 
 fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {

@@ -333,3 +333,101 @@ fn files_covering_less_than_the_grid_make_one_note() {
         "{stderr}"
     );
 }
+
+#[test]
+fn a_warning_repeated_by_many_rows_is_printed_once_with_a_count() {
+    // Twelve 1H spectra without a solvent: each warns that the solvent's residual signals
+    // stay in. People get the warning once with the other rows' lines; --json keeps all.
+    let lab = Lab::new();
+    let mut m = String::from("file,technique,name\n");
+    for i in 0..12 {
+        let f = format!("h{i}.csv");
+        lab.write(
+            &format!("m/{f}"),
+            crate::util::nmr_csv(&[(1.0 + 0.5 * i as f64, 1.0, 0.02), (7.2, 0.5, 0.02)]),
+        );
+        m.push_str(&format!("{f},nmr-1h,c{i}\n"));
+    }
+    lab.write("m/list.csv", &m);
+    let out = lab.run(&["import", "m/list.csv"]);
+    assert!(out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    let solvent: Vec<&str> = err
+        .lines()
+        .filter(|l| l.contains("no solvent declared"))
+        .collect();
+    assert_eq!(solvent.len(), 1, "{err}");
+    assert!(solvent[0].contains("m/list.csv:2 (h0.csv)"), "{err}");
+    assert!(
+        err.contains(
+            "warning: the same for 11 more rows (lines 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, ...)"
+        ),
+        "{err}"
+    );
+    // With --json every row keeps its own warning (a second import finds them present, so a
+    // fresh library).
+    let lab2 = Lab::new();
+    for i in 0..12 {
+        lab2.write(
+            &format!("m/h{i}.csv"),
+            crate::util::nmr_csv(&[(1.0 + 0.5 * i as f64, 1.0, 0.02), (7.2, 0.5, 0.02)]),
+        );
+    }
+    lab2.write("m/list.csv", &m);
+    let v = lab2.json(&["import", "m/list.csv"]);
+    let n = v["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|w| {
+            w["warning"]
+                .as_str()
+                .unwrap()
+                .contains("no solvent declared")
+        })
+        .count();
+    assert_eq!(n, 12, "{v}");
+}
+
+#[test]
+fn add_takes_extra_fields_with_set() {
+    let lab = Lab::new();
+    lab.write(
+        "a.csv",
+        crate::util::ms_csv(&[(43, 100.0), (58, 40.0), (15, 20.0)]),
+    );
+    let id = lab.ok(&[
+        "add",
+        "a.csv",
+        "-t",
+        "ms-ei",
+        "--name",
+        "acetone",
+        "--set",
+        "ri=472",
+        "--set",
+        "ri_phase=DB-5",
+    ]);
+    let shown = lab.json(&["show", id.trim()]);
+    assert_eq!(
+        shown["spectrum"]["metadata"]["extra"]["ri"], "472",
+        "{shown}"
+    );
+    assert_eq!(shown["spectrum"]["metadata"]["extra"]["ri_phase"], "DB-5");
+    // Searchable by its key, as a manifest column is.
+    let found = lab.json(&["find", "ri_phase:DB-5"]);
+    assert!(found.to_string().contains("acetone"), "{found}");
+    // No '=', an empty value, a key twice, a reserved key: refused, nothing stored.
+    lab.write("b.csv", crate::util::ms_csv(&[(44, 100.0), (29, 40.0)]));
+    for (set, why) in [
+        (vec!["--set", "ri"], "has no '='"),
+        (vec!["--set", "ri="], "gives no value"),
+        (vec!["--set", "ri=1", "--set", "ri=2"], "given twice"),
+        (vec!["--set", "whorl_status=verified"], "whorl_"),
+    ] {
+        let mut args = vec!["add", "b.csv", "-t", "ms-ei", "--name", "x"];
+        args.extend(set);
+        let text = lab.refuses(&args, 3);
+        assert!(text.contains(why), "{why}: {text}");
+    }
+}
