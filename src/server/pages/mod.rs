@@ -1,6 +1,6 @@
 //! The web pages: server-rendered HTML (askama templates in `templates/`, checked when the
-//! crate compiles) over the same layers the JSON API uses. Every page works without
-//! JavaScript; `assets/plot.js` only adds zoom and pan to the plots. One file per page, each
+//! crate compiles) over the same layers the JSON API uses, without JavaScript (each plot
+//! carries its spectra as JSON in `data-plot` for an interactive plot script still to come). One file per page, each
 //! with its `router()`; this file holds what they share: the `Browser` extractor (a signed-in
 //! browser session with the capability a page needs, and its CSRF token), the layout every
 //! page extends, HTML error pages, and what the server holds between two requests of one
@@ -78,13 +78,10 @@ pub struct Layout {
     pub version: &'static str,
 }
 
-const PAGES: [(&str, &str, Capability); 6] = [
+const PAGES: [(&str, &str, Capability); 3] = [
     ("/search", "Search", Capability::View),
     ("/library", "Library", Capability::View),
     ("/review", "Review queue", Capability::SignOff),
-    ("/submit", "Submit", Capability::Submit),
-    ("/audit", "Audit trail", Capability::View),
-    ("/accounts", "Accounts", Capability::Administer),
 ];
 
 impl Layout {
