@@ -1,0 +1,216 @@
+// Drives whorl's web pages in Debian's chromium (playwright-core) and checks every page with
+// axe-core. Started by scripts/browser-flows, which makes the library, the accounts and the
+// server; this file gets them from the environment:
+//   WHORL_URL      the server's base URL (loopback)
+//   WHORL_FIRST    "name:password" of the account that submitted the pending spectrum
+//   WHORL_SECOND   "name:password" of another account with the sign-off role
+//   WHORL_PENDING  the pending spectrum's id
+//   WHORL_UNKNOWN  the unknown's file to search
+//   WHORL_SHOTS    the folder for the screenshots
+//   WHORL_DOCS     "yes" to refresh docs/web-search.png and docs/web-review.png
+// One line per step; the first failed step ends the run with a non-zero exit.
+'use strict';
+const path = require('path');
+const fs = require('fs');
+const { chromium } = require('playwright-core');
+
+const env = (k) => {
+  const v = process.env[k];
+  if (!v) { console.error(`browser-flows: ${k} is not set`); process.exit(2); }
+  return v;
+};
+const base = env('WHORL_URL');
+const [firstName, firstPass] = env('WHORL_FIRST').split(':');
+const [secondName, secondPass] = env('WHORL_SECOND').split(':');
+const pending = env('WHORL_PENDING');
+const unknown = env('WHORL_UNKNOWN');
+const shots = env('WHORL_SHOTS');
+const docs = process.env.WHORL_DOCS === 'yes';
+// The page's Content-Security-Policy (script-src 'self') refuses page.addScriptTag's inline
+// script, as it should; axe-core's source is evaluated through the DevTools protocol instead,
+// which the policy does not govern, so the pages are checked under their real policy.
+const axeSource = fs.readFileSync(require.resolve('axe-core'), 'utf8');
+
+let step = 0;
+const axeReport = [];
+function ok(what) { step += 1; console.log(`ok ${step} ${what}`); }
+function fail(what, why) {
+  step += 1;
+  console.log(`FAILED ${step} ${what}: ${why}`);
+  throw new Error('step failed');
+}
+function expect(cond, what, why) { if (!cond) fail(what, why); ok(what); }
+
+// axe-core on the page as it is now: any serious or critical violation fails the run.
+async function axe(page, name) {
+  await page.evaluate(axeSource);
+  const result = await page.evaluate(async () => {
+    // WCAG 2.0/2.1 A and AA rules plus axe's best practices.
+    const r = await window.axe.run(document, { resultTypes: ['violations'] });
+    return r.violations.map((v) => ({
+      id: v.id, impact: v.impact, help: v.help,
+      nodes: v.nodes.slice(0, 3).map((n) => n.target.join(' ') + ': ' + (n.failureSummary || '').split('\n').slice(0, 2).join(' ')),
+    }));
+  });
+  const bad = result.filter((v) => v.impact === 'serious' || v.impact === 'critical');
+  axeReport.push(`${name}: ${result.length} violation(s), ${bad.length} serious or critical` +
+    (result.length ? ' [' + result.map((v) => `${v.id} (${v.impact})`).join(', ') + ']' : ''));
+  if (bad.length) {
+    fail(`axe-core on ${name}`, bad.map((v) => `${v.id} (${v.impact}): ${v.help}; ${v.nodes.join(' | ')}`).join('\n  '));
+  }
+  ok(`axe-core on ${name}: no serious or critical violation (${result.length} minor)`);
+}
+
+async function shoot(page, name) {
+  await page.screenshot({ path: path.join(shots, `${name}.png`), fullPage: true });
+}
+
+// Every page is screenshotted and checked with axe-core.
+async function visited(page, name) {
+  await shoot(page, name);
+  await axe(page, name);
+}
+
+async function signIn(page, name, pass) {
+  await page.goto(base + '/sign-in');
+  await page.fill('#name', name);
+  await page.fill('#password', pass);
+  await Promise.all([page.waitForNavigation(), page.click('form[action="/sign-in"] button[type=submit]')]);
+  const who = await page.textContent('#account').catch(() => null);
+  expect(who && who.trim().toLowerCase() === name.toLowerCase(), `sign in as ${name}`,
+    `expected "${name}" in the header, found ${JSON.stringify(who)} at ${page.url()}`);
+  const role = (await page.textContent('#role')).trim();
+  expect(role.length > 0, `the header shows the role (${role})`, 'no role shown');
+}
+
+async function signOut(page) {
+  await Promise.all([page.waitForNavigation(), page.click('form[action="/sign-out"] button')]);
+  const h1 = (await page.textContent('h1')).trim();
+  expect(h1 === 'Sign in' && (await page.$('#password')) !== null, 'sign out: the sign-in page is shown',
+    `found "${h1}" at ${page.url()}`);
+}
+
+async function caution(page, name) {
+  const text = await page.textContent('.caution').catch(() => '');
+  expect(/evidence, not proof of identity/.test(text || ''), `the caution is on ${name}`, 'no caution line');
+}
+
+async function main() {
+  fs.mkdirSync(shots, { recursive: true });
+  const browser = await chromium.launch({ executablePath: '/usr/bin/chromium', args: ['--no-sandbox'] });
+  try {
+    const context = await browser.newContext({ viewport: { width: 1280, height: 900 } });
+    const page = await context.newPage();
+    const errors = [];
+    page.on('pageerror', (e) => errors.push(String(e)));
+    // Console errors, except the browser's note of a refused request (checked just below).
+    page.on('console', (m) => {
+      if (m.type() === 'error' && !m.text().startsWith('Failed to load resource')) errors.push(m.text());
+    });
+    // Refused requests: only those the flow provokes (a wrong password, a self-review) and
+    // the browser's own try for /favicon.ico (the pages declare no icon).
+    const expected = [/^POST \/sign-in 401$/, /^POST \/review\/\d+ 4\d\d$/, /^GET \/favicon\.ico 404$/];
+    page.on('response', (r) => {
+      if (r.status() < 400) return;
+      const what = `${r.request().method()} ${new URL(r.url()).pathname} ${r.status()}`;
+      if (!expected.some((e) => e.test(what))) errors.push(what);
+    });
+
+    // Not signed in: the sign-in page.
+    await page.goto(base + '/');
+    expect((await page.$('#password')) !== null, 'a browser not signed in is sent to the sign-in page', page.url());
+    await caution(page, 'the sign-in page');
+    await visited(page, 'sign-in');
+
+    // A wrong password is refused plainly.
+    await page.fill('#name', firstName);
+    await page.fill('#password', 'not the password at all');
+    await Promise.all([page.waitForNavigation(), page.click('form[action="/sign-in"] button[type=submit]')]);
+    const refusal = await page.textContent('[role=alert]').catch(() => '');
+    expect(refusal && refusal.trim().length > 0, 'a wrong password is refused with a message', 'no message');
+    await visited(page, 'sign-in-refused');
+
+    await signIn(page, firstName, firstPass);
+
+    // Search by upload.
+    await page.goto(base + '/search');
+    await caution(page, 'the search page');
+    await visited(page, 'search');
+    await page.setInputFiles('#file', unknown);
+    await Promise.all([page.waitForNavigation(), page.click('#search-form button[type=submit]')]);
+    const verdict = await page.getAttribute('#verdict', 'data-verdict').catch(() => null);
+    const verdictText = (await page.textContent('#verdict').catch(() => '')) || '';
+    expect(verdict && verdictText.trim().length > 20, `search by upload: the verdict is stated (${verdict})`,
+      `no verdict at ${page.url()}`);
+    const hits = await page.$$eval('#hits tbody tr', (rows) => rows.map((r) => r.textContent));
+    expect(hits.length >= 1 && /spectrum \d+/.test(hits[0]), `search by upload: ${hits.length} hits listed`,
+      JSON.stringify(hits));
+    const plots = await page.$$eval('figure.plot svg', (svgs) =>
+      svgs.map((s) => { const b = s.getBoundingClientRect(); return { w: b.width, h: b.height, paths: s.querySelectorAll('path,polyline,line').length }; }));
+    expect(plots.length >= 1 && plots[0].w > 300 && plots[0].h > 100 && plots[0].paths > 2,
+      `search by upload: ${plots.length} plots drawn (first ${Math.round(plots[0] ? plots[0].w : 0)} px wide)`,
+      JSON.stringify(plots));
+    await caution(page, 'the search result');
+    await visited(page, 'search-result');
+    if (docs) await page.screenshot({ path: 'docs/web-search.png', fullPage: false });
+
+    // The library and a spectrum page.
+    await page.goto(base + '/library');
+    const rows = await page.$$('table.list tbody tr');
+    expect(rows.length > 1, `the library lists ${rows.length} spectra on its first page`, 'empty');
+    await visited(page, 'library');
+    await page.goto(base + `/spectra/${pending}`);
+    const title = (await page.textContent('h1')) || '';
+    expect(title.includes(pending) || title.length > 0, `the spectrum page of ${pending} opens`, page.url());
+    await visited(page, 'spectrum');
+
+    // The review queue, and the submitter's own sign-off refused (four-eyes rule).
+    await page.goto(base + '/review');
+    const queued = await page.$$eval('#queue tbody a', (as) => as.map((a) => a.getAttribute('href')));
+    expect(queued.includes(`/review/${pending}`), `the review queue lists spectrum ${pending}`, JSON.stringify(queued));
+    await visited(page, 'review-queue');
+    await Promise.all([page.waitForNavigation(), page.click(`#queue a[href="/review/${pending}"]`)]);
+    expect((await page.$('#sign-off')) !== null, `open pending spectrum ${pending}: the sign-off form is there`, page.url());
+    await visited(page, 'review');
+    await page.check('#approve');
+    await page.fill('#password', firstPass);
+    await Promise.all([page.waitForNavigation(), page.click('#sign-off button[type=submit]')]);
+    const problem = (await page.textContent('#problem').catch(() => '')) || '';
+    expect(/four-eyes|someone else/i.test(problem), 'a self-review is refused with a clear message',
+      `found ${JSON.stringify(problem)}`);
+    expect((await page.textContent('#metadata')).includes('pending'), 'after the refusal the spectrum is still pending', 'status changed');
+    await visited(page, 'review-refused');
+    await signOut(page);
+
+    // Another account approves it with its password.
+    await signIn(page, secondName, secondPass);
+    await page.goto(base + `/review/${pending}`);
+    if (docs) await page.screenshot({ path: 'docs/web-review.png', fullPage: false });
+    await page.check('#approve');
+    await page.fill('#password', secondPass);
+    await page.fill('#note', 'Bands checked against the lab\'s own measurement.');
+    await Promise.all([page.waitForNavigation(), page.click('#sign-off button[type=submit]')]);
+    const after = (await page.textContent('main')) || '';
+    expect(page.url().includes(`/spectra/${pending}`) && /verified/.test(after),
+      `approve spectrum ${pending} with the password as ${secondName}: it is verified`, `at ${page.url()}`);
+    await visited(page, 'spectrum-signed');
+    await page.goto(base + '/review');
+    const left = await page.$$eval('#queue tbody a', (as) => as.map((a) => a.getAttribute('href'))).catch(() => []);
+    expect(!left.includes(`/review/${pending}`), `spectrum ${pending} has left the review queue`, JSON.stringify(left));
+
+    await signOut(page);
+    await visited(page, 'signed-out');
+    expect(errors.length === 0, 'no script error or console error on any page', errors.join('; '));
+  } finally {
+    await browser.close();
+  }
+  console.log('axe-core ' + require('axe-core/package.json').version + ':');
+  for (const line of axeReport) console.log('  ' + line);
+}
+
+main().then(() => { console.log(`browser-flows: all ${step} steps passed`); },
+  (e) => {
+    if (e.message !== 'step failed') console.log(`FAILED ${step + 1} ${e.message.split('\n')[0]}`);
+    for (const line of axeReport) console.log('  ' + line);
+    process.exitCode = 1;
+  });
