@@ -95,6 +95,78 @@ async function caution(page, name) {
   expect(/evidence, not proof of identity/.test(text || ''), `the caution is on ${name}`, 'no caution line');
 }
 
+// The interactive plot (assets/plot.js) on the search result's first figure: drawn in place of
+// the static SVG, x by the trade's direction, zoom by dragging and by keys, pan, reset; and the
+// static SVG without JavaScript.
+async function zoomPlot(page, context, browser) {
+  const fig = page.locator('figure.plot').first();
+  const range = async () => [Number(await fig.getAttribute('data-x-from')), Number(await fig.getAttribute('data-x-to'))];
+  expect(await fig.locator('.plot-live svg').isVisible() && !(await fig.locator('.plot-static').isVisible()),
+    'the interactive plot replaces the static SVG', 'no .plot-live or the static SVG still shown');
+  const whole = await range();
+  expect(whole[1] > whole[0], `the plot shows x ${whole[0]} to ${whole[1]}`, JSON.stringify(whole));
+  // The x ticks (numbers above 100 on an IR plot) in the order they stand on screen.
+  const xs = await fig.locator('.plot-live svg text').evaluateAll((ts) => ts
+    .map((t) => ({ v: Number(t.textContent), left: t.getBoundingClientRect().left }))
+    .filter((t) => Number.isFinite(t.v) && t.v > 100)
+    .sort((a, b) => a.left - b.left).map((t) => t.v));
+  expect(xs.length > 3 && xs.every((v, i) => i === 0 || v < xs[i - 1]),
+    `wavenumber decreases to the right on screen (${xs.join(', ')})`, JSON.stringify(xs));
+  expect((await fig.locator('.plot-live').getAttribute('tabindex')) === '0' &&
+    ((await fig.locator('.plot-live').getAttribute('aria-label')) || '').length > 10,
+    'the plot is focusable and labelled', 'no tabindex or aria-label');
+
+  // Drag from 40 % to 60 % of the plot's width.
+  await fig.locator('.plot-live svg').scrollIntoViewIfNeeded();
+  const box = await fig.locator('.plot-live svg').boundingBox();
+  const y = box.y + box.height / 2;
+  await page.mouse.move(box.x + box.width * 0.4, y);
+  await page.mouse.down();
+  await page.mouse.move(box.x + box.width * 0.5, y, { steps: 4 });
+  await page.mouse.move(box.x + box.width * 0.6, y, { steps: 4 });
+  await page.mouse.up();
+  const dragged = await range();
+  const span = (r) => r[1] - r[0];
+  expect(span(dragged) < span(whole) * 0.3 && dragged[0] > whole[0] && dragged[1] < whole[1],
+    `drag to zoom: x ${whole[0]}..${whole[1]} became ${dragged[0].toFixed(0)}..${dragged[1].toFixed(0)}`, JSON.stringify(dragged));
+
+  // Keys: 0 resets, + zooms in, the right arrow moves to lower wavenumbers, - zooms out.
+  await fig.locator('.plot-live').focus();
+  const ring = await fig.locator('.plot-live').evaluate((e) => getComputedStyle(e).outlineStyle + ' ' + getComputedStyle(e).outlineWidth);
+  expect(/solid 3px/.test(ring), `the focused plot shows a focus ring (${ring})`, ring);
+  await page.keyboard.press('0');
+  const reset = await range();
+  expect(reset[0] === whole[0] && reset[1] === whole[1], 'key 0: the whole range again', JSON.stringify(reset));
+  await page.keyboard.press('+');
+  const zoomed = await range();
+  expect(Math.abs(span(zoomed) - span(whole) / 2) < 1e-6 * span(whole), 'key +: half the range', JSON.stringify(zoomed));
+  await page.keyboard.press('ArrowRight');
+  const panned = await range();
+  expect(panned[0] < zoomed[0] && Math.abs(span(panned) - span(zoomed)) < 1e-6 * span(whole),
+    'right arrow: pans to lower wavenumbers (rightwards on screen)', JSON.stringify(panned));
+  await page.keyboard.press('-');
+  await page.keyboard.press('-');
+  const out = await range();
+  expect(out[0] === whole[0] && out[1] === whole[1], 'key -: zooms out, no further than the whole range', JSON.stringify(out));
+  await page.keyboard.press('+');
+  await fig.getByRole('button', { name: 'Whole range' }).click();
+  const button = await range();
+  expect(button[0] === whole[0] && button[1] === whole[1], 'the Whole range button resets the plot', JSON.stringify(button));
+  // Left zoomed into the fingerprint region by keys alone (about 1600..1150 cm-1) for the
+  // screenshot and the axe run.
+  await fig.locator('.plot-live').focus();
+  for (const k of ['+', '+', ...Array(9).fill('ArrowRight'), '+']) await page.keyboard.press(k);
+
+  // Without JavaScript the static SVG is the plot.
+  const plain = await browser.newContext({ javaScriptEnabled: false, storageState: await context.storageState(), viewport: { width: 1280, height: 900 } });
+  const p2 = await plain.newPage();
+  await p2.goto(page.url());
+  const staticShown = await p2.locator('figure.plot .plot-static svg').first().isVisible();
+  const liveCount = await p2.locator('.plot-live').count();
+  await plain.close();
+  expect(staticShown && liveCount === 0, 'without JavaScript the static SVG is shown', `static ${staticShown}, live ${liveCount}`);
+}
+
 async function main() {
   fs.mkdirSync(shots, { recursive: true });
   const browser = await chromium.launch({ executablePath: '/usr/bin/chromium', args: ['--no-sandbox'] });
@@ -145,14 +217,22 @@ async function main() {
     const hits = await page.$$eval('#hits tbody tr', (rows) => rows.map((r) => r.textContent));
     expect(hits.length >= 1 && /spectrum \d+/.test(hits[0]), `search by upload: ${hits.length} hits listed`,
       JSON.stringify(hits));
-    const plots = await page.$$eval('figure.plot svg', (svgs) =>
-      svgs.map((s) => { const b = s.getBoundingClientRect(); return { w: b.width, h: b.height, paths: s.querySelectorAll('path,polyline,line').length }; }));
-    expect(plots.length >= 1 && plots[0].w > 300 && plots[0].h > 100 && plots[0].paths > 2,
+    // Each figure: the server's static SVG with its lines, and the plot on screen (the
+    // interactive one drawn over the same spectra) at a readable size.
+    const plots = await page.$$eval('figure.plot', (figs) => figs.map((f) => {
+      const still = f.querySelector('.plot-static svg');
+      const shown = [...f.querySelectorAll('svg')].find((s) => s.getBoundingClientRect().width > 0 && s.closest('.plot-live, .plot-static'));
+      const b = shown ? shown.getBoundingClientRect() : { width: 0, height: 0 };
+      return { w: b.width, h: b.height, paths: still ? still.querySelectorAll('path,polyline,line').length : 0,
+        drawn: shown ? shown.querySelectorAll('path,polyline').length : 0 };
+    }));
+    expect(plots.length >= 1 && plots.every((p) => p.w > 300 && p.h > 100 && p.paths > 2 && p.drawn >= 2),
       `search by upload: ${plots.length} plots drawn (first ${Math.round(plots[0] ? plots[0].w : 0)} px wide)`,
       JSON.stringify(plots));
+    await zoomPlot(page, context, browser);
     await caution(page, 'the search result');
     await visited(page, 'search-result');
-    if (docs) await page.screenshot({ path: 'docs/web-search.png', fullPage: false });
+    if (docs) await page.screenshot({ path: 'docs/web-search.png', fullPage: true, clip: { x: 0, y: 0, width: 1280, height: 1780 } });
 
     // The library and a spectrum page.
     await page.goto(base + '/library');
@@ -185,7 +265,7 @@ async function main() {
     // Another account approves it with its password.
     await signIn(page, secondName, secondPass);
     await page.goto(base + `/review/${pending}`);
-    if (docs) await page.screenshot({ path: 'docs/web-review.png', fullPage: false });
+    if (docs) await page.screenshot({ path: 'docs/web-review.png', fullPage: true, clip: { x: 0, y: 0, width: 1280, height: 1300 } });
     await page.check('#approve');
     await page.fill('#password', secondPass);
     await page.fill('#note', 'Bands checked against the lab\'s own measurement.');

@@ -1,5 +1,5 @@
-//! The pages' style sheet, compiled into the binary (no build step, nothing fetched from
-//! elsewhere).
+//! The pages' style sheet and plot script, compiled into the binary (no build step, nothing
+//! fetched from elsewhere).
 
 use axum::http::{HeaderValue, header};
 use axum::response::{IntoResponse, Response};
@@ -8,10 +8,13 @@ use axum::routing::get;
 use super::super::routes::{Access, Routes};
 
 const CSS: &str = include_str!("../../../assets/whorl.css");
+const PLOT_JS: &str = include_str!("../../../assets/plot.js");
 
-/// The asset route (public: the sign-in page needs it).
+/// The asset routes (public: the sign-in page needs them).
 pub fn router() -> Routes {
-    Routes::new().add("GET", "/static/whorl.css", Access::Public, get(css))
+    Routes::new()
+        .add("GET", "/static/whorl.css", Access::Public, get(css))
+        .add("GET", "/static/plot.js", Access::Public, get(script))
 }
 
 fn asset(content_type: &'static str, body: &'static str) -> Response {
@@ -27,4 +30,8 @@ fn asset(content_type: &'static str, body: &'static str) -> Response {
 
 async fn css() -> Response {
     asset("text/css; charset=utf-8", CSS)
+}
+
+async fn script() -> Response {
+    asset("text/javascript; charset=utf-8", PLOT_JS)
 }

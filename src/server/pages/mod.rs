@@ -1,7 +1,7 @@
 //! The web pages: server-rendered HTML (askama templates in `templates/`, checked when the
-//! crate compiles) over the same layers the JSON API uses, without JavaScript (each plot
-//! carries its spectra as JSON in `data-plot` for an interactive plot script still to come). One file per page, each
-//! with its `router()`; this file holds what they share: the `Browser` extractor (a signed-in
+//! crate compiles) over the same layers the JSON API uses, working without JavaScript (each
+//! plot carries its spectra as JSON in `data-plot`, which `assets/plot.js` draws again with
+//! zoom and pan). One file per page, each with its `router()`; this file holds what they share: the `Browser` extractor (a signed-in
 //! browser session with the capability a page needs, and its CSRF token), the layout every
 //! page extends, HTML error pages, and what the server holds between two requests of one
 //! flow (`Held`: search results for the printable report, submissions awaiting confirmation).

@@ -1,6 +1,6 @@
 //! A plot on a page: the report layer's static SVG (what a browser without JavaScript, a
 //! printout and the printable report show) and the same spectra as JSON in a `data-plot`
-//! attribute, for an interactive plot script (not written yet) to draw again with zoom and pan. Curves are sent as their
+//! attribute, which `assets/plot.js` draws again with zoom and pan. Curves are sent as their
 //! grid start, step and values scaled to their own maximum (as the static plot scales them),
 //! EI spectra as their sticks.
 
