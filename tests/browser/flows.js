@@ -278,6 +278,27 @@ async function main() {
     const left = await page.$$eval('#queue tbody a', (as) => as.map((a) => a.getAttribute('href'))).catch(() => []);
     expect(!left.includes(`/review/${pending}`), `spectrum ${pending} has left the review queue`, JSON.stringify(left));
 
+    // The audit trail: the spectrum's events, newest first; filtered by account and action
+    // through the form; a date range after today holds nothing.
+    await page.goto(base + `/audit?spectrum=${pending}`);
+    const events = await page.$$eval('#events tbody tr', (rows) => rows.map((r) => [...r.cells].map((c) => c.textContent.trim())));
+    expect(events.length === 2 && events[0][4] === 'review' && events[0][2] === secondName && events[0][3] === 'signed-in' &&
+      events[1][4] === 'add', `the audit trail of spectrum ${pending}: the add, then the sign-off by ${secondName}, signed in`,
+      JSON.stringify(events));
+    await visited(page, 'audit');
+    await page.fill('#filter-spectrum', '');
+    await page.fill('#filter-account', secondName);
+    await page.selectOption('#filter-action', 'review');
+    await Promise.all([page.waitForNavigation(), page.click('form[action="/audit"] button[type=submit]')]);
+    const mine = await page.$$eval('#events tbody tr', (rows) => rows.map((r) => [r.cells[2].textContent.trim(), r.cells[4].textContent.trim()]));
+    expect(mine.length === 1 && mine[0][0] === secondName && mine[0][1] === 'review',
+      `the audit trail filtered by account ${secondName} and action review: 1 event`, JSON.stringify(mine));
+    const tomorrow = new Date(Date.now() + 86400000).toISOString().slice(0, 10);
+    await page.goto(base + `/audit?from=${tomorrow}`);
+    const none = (await page.textContent('#count')).trim();
+    expect(none === 'No event matches.' && (await page.$$('#events tbody tr')).length === 0,
+      `the audit trail from ${tomorrow}: no event`, none);
+
     await signOut(page);
     await visited(page, 'signed-out');
     expect(errors.length === 0, 'no script error or console error on any page', errors.join('; '));

@@ -185,7 +185,7 @@ async fn page(
 }
 
 /// Percent-encodes a query-string value (RFC 3986 unreserved characters kept).
-fn encode(v: &str) -> String {
+pub fn encode(v: &str) -> String {
     v.bytes()
         .map(|b| match b {
             b'A'..=b'Z' | b'a'..=b'z' | b'0'..=b'9' | b'-' | b'.' | b'_' | b'~' => {

@@ -11,6 +11,7 @@
 //! Sheet); a form without it or with another session's token is refused and changes nothing.
 
 mod assets;
+mod audit;
 mod library;
 mod plot;
 mod review;
@@ -45,6 +46,7 @@ pub fn router() -> Routes {
         .merge(library::router())
         .merge(spectrum::router())
         .merge(review::router())
+        .merge(audit::router())
 }
 
 /// The caution every page carries.
@@ -78,10 +80,11 @@ pub struct Layout {
     pub version: &'static str,
 }
 
-const PAGES: [(&str, &str, Capability); 3] = [
+const PAGES: [(&str, &str, Capability); 4] = [
     ("/search", "Search", Capability::View),
     ("/library", "Library", Capability::View),
     ("/review", "Review queue", Capability::SignOff),
+    ("/audit", "Audit trail", Capability::View),
 ];
 
 impl Layout {

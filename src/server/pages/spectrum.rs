@@ -235,7 +235,7 @@ pub fn event_rows(events: &[Event]) -> Vec<EventRow> {
 }
 
 /// The few payload fields people read in a timeline.
-fn summary(p: &Value) -> String {
+pub fn summary(p: &Value) -> String {
     [
         "decision", "revision", "reason", "meaning", "name", "role", "status",
     ]
