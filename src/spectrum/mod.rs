@@ -5,7 +5,7 @@ mod reader;
 mod units;
 
 pub use metadata::{Metadata, Status, csv_cell, csv_cell_restored};
-pub use reader::{ParsedPoints, check_points, read_points, read_points_from_bytes};
+pub use reader::{ParsedPoints, check_points, looks_like, read_points, read_points_from_bytes};
 pub use units::{XUnit, YUnit};
 
 use serde::{Deserialize, Serialize};

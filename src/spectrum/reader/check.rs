@@ -188,6 +188,21 @@ const DENSE_POINTS: usize = 200;
 /// (common practice; the default EI grid stops there).
 const EI_TOP: f64 = 1000.0;
 
+/// What these points look like (by their x range, spacing and number, the ranges the
+/// refusals of [`check_points`] name): a description of the kind of spectrum and the
+/// techniques it suggests, most likely first; `None` when no kind fits. For a form that
+/// suggests a technique.
+pub fn looks_like(points: &[(f64, f64)]) -> Option<(&'static str, &'static [Technique])> {
+    if points.is_empty() {
+        return None;
+    }
+    Shape::of(points)
+        .guesses()
+        .into_iter()
+        .find(|(fits, _, _)| *fits)
+        .map(|(_, what, techniques)| (what, techniques))
+}
+
 impl Shape {
     fn of(points: &[(f64, f64)]) -> Shape {
         let mut xs: Vec<f64> = points.iter().map(|p| p.0).collect();
@@ -232,12 +247,21 @@ impl Shape {
     /// lie within -2..16 ppm, 13C within its plausible -10..250 ppm, EI peaks at whole m/z up
     /// to about 1000.
     fn looks_like(&self, given: Technique) -> Option<(&'static str, &'static [Technique])> {
+        self.guesses()
+            .into_iter()
+            .find(|(fits, _, techniques)| *fits && !techniques.contains(&given))
+            .map(|(_, what, techniques)| (what, techniques))
+    }
+
+    /// Each kind of spectrum [`Shape::looks_like`] knows, whether this shape fits it, how it
+    /// is described and the techniques it suggests.
+    fn guesses(&self) -> [(bool, &'static str, &'static [Technique]); 4] {
         let optical = self.dense() && self.hi > EI_TOP && self.lo >= -500.0 && self.hi <= 10_000.0;
         let proton = self.lo >= -2.0 && self.hi <= 16.0;
         let (carbon_lo, carbon_hi) = Technique::Nmr13c.plausible_x();
         let carbon = self.lo >= carbon_lo && self.hi <= carbon_hi;
         let ei = self.whole && self.lo >= 1.0 && self.hi <= EI_TOP && !self.dense();
-        let guesses: [(bool, &'static str, &'static [Technique]); 4] = [
+        [
             (
                 optical,
                 "an IR or Raman spectrum (cm-1)",
@@ -250,11 +274,7 @@ impl Shape {
                 &[Technique::Nmr13c],
             ),
             (ei, "an EI mass spectrum (m/z)", &[Technique::MsEi]),
-        ];
-        guesses
-            .into_iter()
-            .find(|(fits, _, techniques)| *fits && !techniques.contains(&given))
-            .map(|(_, what, techniques)| (what, techniques))
+        ]
     }
 
     /// Why a file inside `technique`'s plausible range still cannot be that technique, if it

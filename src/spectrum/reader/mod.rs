@@ -18,7 +18,7 @@ mod properties;
 #[cfg(test)]
 mod tests;
 
-pub use check::check_points;
+pub use check::{check_points, looks_like};
 
 /// Points read from a file, with the line each came from so that later checks can point at it.
 #[derive(Debug, Clone, PartialEq)]
