@@ -4,10 +4,13 @@
 //! may call a route, `error` the one error type.
 
 mod accounts;
+mod admin;
 mod audit;
 mod auth;
 mod error;
 mod health;
+mod identify;
+mod import;
 mod openapi;
 mod routes;
 mod search;
@@ -43,6 +46,10 @@ pub fn routes() -> routes::Routes {
         .merge(audit::router())
         .merge(accounts::router())
         .merge(openapi::router())
+        // The API routes added with identify, find, import and check.
+        .merge(identify::router())
+        .merge(import::router())
+        .merge(admin::router())
 }
 
 /// The routes' list, for `whorl serve --print-routes` (the integration tests walk it).
@@ -87,6 +94,8 @@ fn app(state: AppState) -> Router {
             header::CACHE_CONTROL,
             HeaderValue::from_static("no-store"),
         ))
+        // The body limit's 413 and the timeout's 408 come as JSON like every error.
+        .layer(axum::middleware::map_response(error::plain_to_json))
         .layer(RequestBodyLimitLayer::new(options.max_body))
         .layer(TimeoutLayer::with_status_code(
             StatusCode::REQUEST_TIMEOUT,

@@ -5,7 +5,7 @@ use axum::routing::get;
 use utoipa::OpenApi;
 
 use super::routes::{Access, Routes};
-use super::{accounts, audit, health, search, session, spectra};
+use super::{accounts, admin, audit, health, identify, import, search, session, spectra};
 
 /// The OpenAPI document, assembled from the `#[utoipa::path]` annotation beside each handler.
 #[derive(OpenApi)]
@@ -31,13 +31,21 @@ use super::{accounts, audit, health, search, session, spectra};
         audit::log,
         audit::stats,
         openapi,
+        identify::identify_sample,
+        identify::find,
+        import::import,
+        spectra::revise,
+        admin::check,
     ),
     components(schemas(
         session::SignIn,
         search::SearchForm,
         spectra::SubmitForm,
         spectra::Withdrawal,
-        spectra::SignOff
+        spectra::SignOff,
+        spectra::Revision,
+        identify::IdentifyForm,
+        import::ImportForm
     ))
 )]
 pub struct ApiDoc;

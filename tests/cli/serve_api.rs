@@ -1,0 +1,650 @@
+//! The API routes beyond search and sign-in (identify, find, import, revise, check), the role
+//! matrix with a valid request for every state-changing route, and the upload limits: the
+//! real server on a free loopback port.
+
+use std::io::Write;
+
+use serde_json::{Value, json};
+
+use crate::serve::{
+    Answer, Auth, PASSWORDS, Server, agent, answer, call, documented_allows, lab_with_accounts,
+    routes,
+};
+use crate::util::{Lab, ir_csv, seed};
+
+/// One part of a multipart/form-data body (RFC 7578): a name, a file name for file parts, the
+/// bytes.
+pub(crate) type Part<'a> = (&'a str, Option<&'a str>, Vec<u8>);
+
+/// A multipart/form-data body of any parts.
+pub(crate) fn form(parts: &[Part]) -> (String, Vec<u8>) {
+    let boundary = "whorl-api-test-boundary-51c2";
+    let mut body = Vec::new();
+    for (name, file, bytes) in parts {
+        match file {
+            Some(f) => write!(
+                body,
+                "--{boundary}\r\nContent-Disposition: form-data; name=\"{name}\"; filename=\"{f}\"\r\nContent-Type: application/octet-stream\r\n\r\n"
+            ),
+            None => write!(
+                body,
+                "--{boundary}\r\nContent-Disposition: form-data; name=\"{name}\"\r\n\r\n"
+            ),
+        }
+        .unwrap();
+        body.extend_from_slice(bytes);
+        body.extend_from_slice(b"\r\n");
+    }
+    write!(body, "--{boundary}--\r\n").unwrap();
+    (format!("multipart/form-data; boundary={boundary}"), body)
+}
+
+/// Posts a multipart form.
+pub(crate) fn post_form(server: &Server, path: &str, auth: Auth, parts: &[Part]) -> Answer {
+    let (content_type, body) = form(parts);
+    let mut req = agent()
+        .post(server.url(path))
+        .header("Content-Type", &content_type);
+    match auth {
+        Auth::Cookie(c) => req = req.header("Cookie", c),
+        Auth::Bearer(t) => req = req.header("Authorization", &format!("Bearer {t}")),
+        Auth::None => {}
+    }
+    answer(req.send(&body[..]))
+}
+
+fn text(v: &str) -> Vec<u8> {
+    v.as_bytes().to_vec()
+}
+
+/// A synthetic IR spectrum no other test file has: one band placed by `n`.
+pub(crate) fn distinct_ir(n: usize) -> Vec<u8> {
+    ir_csv(&[
+        (1000.0 + 7.0 * n as f64, 0.6, 12.0),
+        (2900.0 - 3.0 * n as f64, 0.3, 20.0),
+    ])
+    .into_bytes()
+}
+
+/// A token for each account of [`PASSWORDS`], by role.
+fn tokens(lab: &Lab) -> Vec<(&'static str, &'static str, String)> {
+    PASSWORDS
+        .iter()
+        .map(|(name, role, _)| {
+            let t = lab
+                .ok(&["token", "create", "--account", name, "--label", "api test"])
+                .trim()
+                .to_string();
+            (*name, *role, t)
+        })
+        .collect()
+}
+
+fn password_of(role: &str) -> &'static str {
+    PASSWORDS.iter().find(|p| p.1 == role).unwrap().2
+}
+
+/// Adds a pending spectrum on the command line (submitted by t.tester); returns its id.
+fn pending(lab: &Lab, n: usize) -> i64 {
+    let file = format!("pending{n}.csv");
+    lab.write(&file, distinct_ir(500 + n));
+    lab.ok(&[
+        "add",
+        &file,
+        "--technique",
+        "ir",
+        "--name",
+        &format!("pending {n}"),
+        "--by",
+        "t.tester",
+    ])
+    .trim()
+    .parse()
+    .unwrap()
+}
+
+/// The concrete path a valid request of a route goes to, after making what it needs (a
+/// pending spectrum submitted by someone else, for the routes on one spectrum).
+fn concrete_for(lab: &Lab, path: &str, n: usize) -> String {
+    if path.contains("{id}") {
+        path.replace("{id}", &pending(lab, n).to_string())
+    } else {
+        path.replace("{name}", "t.matrix")
+    }
+}
+
+/// Sends a valid request to a state-changing route as `role` (its token); `n` makes each
+/// request's data its own. A route without a valid request here fails the test, so a new
+/// state-changing route cannot be left out of the matrix.
+fn valid_request(
+    server: &Server,
+    method: &str,
+    (path, concrete): (&str, &str),
+    role: &str,
+    token: &str,
+    n: usize,
+) -> Answer {
+    let auth = Auth::Bearer(token);
+    match (method, path) {
+        ("POST", "/api/v1/search") => post_form(
+            server,
+            path,
+            auth,
+            &[
+                ("technique", None, text("ir")),
+                ("file", Some("u.csv"), distinct_ir(n)),
+            ],
+        ),
+        ("POST", "/api/v1/identify") => {
+            post_form(server, path, auth, &[("ir", Some("u.csv"), distinct_ir(n))])
+        }
+        ("POST", "/api/v1/spectra") => post_form(
+            server,
+            path,
+            auth,
+            &[
+                ("technique", None, text("ir")),
+                ("name", None, text(&format!("matrix {n}"))),
+                ("file", Some("m.csv"), distinct_ir(100 + n)),
+            ],
+        ),
+        ("POST", "/api/v1/import") => post_form(
+            server,
+            path,
+            auth,
+            &[
+                (
+                    "manifest",
+                    Some("list.csv"),
+                    text(&format!(
+                        "file,technique,name\nspectra/i.csv,ir,imported {n}\n"
+                    )),
+                ),
+                ("file", Some("spectra/i.csv"), distinct_ir(200 + n)),
+            ],
+        ),
+        ("POST", "/api/v1/spectra/{id}/withdraw") => call(
+            server,
+            method,
+            concrete,
+            auth,
+            Some(json!({ "reason": "matrix" })),
+        ),
+        ("POST", "/api/v1/spectra/{id}/revise") => call(
+            server,
+            method,
+            concrete,
+            auth,
+            Some(json!({ "reason": "matrix", "notes": "revised through the API" })),
+        ),
+        ("POST", "/api/v1/spectra/{id}/review") => call(
+            server,
+            method,
+            concrete,
+            auth,
+            Some(json!({ "decision": "approve", "password": password_of(role) })),
+        ),
+        ("POST", "/api/v1/check") => call(server, method, path, auth, None),
+        ("DELETE", "/api/v1/session") => {
+            // Signs in as the role's account and signs that session out.
+            let name = PASSWORDS.iter().find(|p| p.1 == role).unwrap().0;
+            let (_, cookie) = crate::serve::sign_in(server, name, password_of(role));
+            call(server, method, path, Auth::Cookie(&cookie.unwrap()), None)
+        }
+        ("POST", "/api/v1/accounts/{name}/role") => call(
+            server,
+            method,
+            concrete,
+            auth,
+            Some(
+                json!({ "role": if n.is_multiple_of(2) { "signer" } else { "submitter" }, "reason": "matrix" }),
+            ),
+        ),
+        other => panic!(
+            "{other:?} changes state but the role matrix has no valid request for it: add one to valid_request"
+        ),
+    }
+}
+
+#[test]
+fn every_state_changing_route_is_allowed_exactly_to_its_roles() {
+    let lab = lab_with_accounts();
+    lab.ok(&["account", "add", "t.matrix", "--role", "reader"]);
+    let server = Server::start(&lab);
+    let tokens = tokens(&lab);
+    let mut n = 0;
+    let mut checked = 0;
+    for r in routes(&lab) {
+        let (method, path) = (r["method"].as_str().unwrap(), r["path"].as_str().unwrap());
+        let Some(capability) = r["access"]["needs"].as_str() else {
+            continue;
+        };
+        if method == "GET" {
+            continue;
+        }
+        for (_, role, token) in &tokens {
+            n += 1;
+            let concrete = concrete_for(&lab, path, n);
+            let before = lab.state();
+            let a = valid_request(&server, method, (path, &concrete), role, token, n);
+            if documented_allows(role, capability) {
+                assert!(
+                    (200..300).contains(&a.status),
+                    "{role} {method} {path} is allowed but answered {} {}",
+                    a.status,
+                    a.body
+                );
+            } else {
+                assert_eq!(a.status, 403, "{role} {method} {path}: {}", a.body);
+                assert_eq!(a.body["kind"], "forbidden");
+                assert_eq!(
+                    lab.state(),
+                    before,
+                    "{role} {method} {path} was refused but changed the library"
+                );
+            }
+            checked += 1;
+        }
+    }
+    assert!(checked >= 5 * 9, "only {checked} calls");
+    lab.ok(&["check"]);
+}
+
+/// The fused list of an identify report: (rank, name, fused score) per compound.
+fn fused(report: &Value) -> Vec<(i64, String, f64)> {
+    report["fusion"]["compounds"]
+        .as_array()
+        .unwrap_or_else(|| panic!("no fused list in {report}"))
+        .iter()
+        .map(|c| {
+            (
+                c["rank"].as_i64().unwrap(),
+                c["name"].as_str().unwrap().to_string(),
+                c["fused"].as_f64().unwrap(),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn identify_find_import_revise_and_check_answer_as_the_command_line_does() {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let tokens = tokens(&lab);
+    let token = |role: &str| tokens.iter().find(|t| t.1 == role).unwrap().2.clone();
+    let reader = token("reader");
+    let submitter = token("submitter");
+    let curator = token("curator");
+
+    // identify: two unknowns of one sample; the fused list is the command line's.
+    let ir = seed().join("unknowns/u01.ir.csv");
+    let nmr = seed().join("spectra/ethyl-acetate.nmr-1h.csv");
+    let cli = lab.json(&[
+        "identify",
+        "--ir",
+        ir.to_str().unwrap(),
+        "--nmr-1h",
+        nmr.to_str().unwrap(),
+        "--solvent",
+        "CDCl3",
+        "--top",
+        "4",
+    ]);
+    let api = post_form(
+        &server,
+        "/api/v1/identify",
+        Auth::Bearer(&reader),
+        &[
+            ("ir", Some("u01.ir.csv"), std::fs::read(&ir).unwrap()),
+            (
+                "nmr-1h",
+                Some("ea.nmr-1h.csv"),
+                std::fs::read(&nmr).unwrap(),
+            ),
+            ("solvent", None, text("CDCl3")),
+            ("top", None, text("4")),
+        ],
+    );
+    assert_eq!(api.status, 200, "{}", api.body);
+    assert_eq!(fused(&api.body).len(), 4);
+    assert_eq!(fused(&api.body), fused(&cli));
+    assert_eq!(fused(&api.body)[0].1, "ethyl acetate");
+    assert_eq!(api.body["policy"], cli["policy"]);
+    assert_eq!(api.body["caution"], cli["caution"]);
+    // A constraint narrows the fused list as --formula does.
+    let narrowed = post_form(
+        &server,
+        "/api/v1/identify",
+        Auth::Bearer(&reader),
+        &[
+            ("ir", Some("u01.ir.csv"), std::fs::read(&ir).unwrap()),
+            ("formula", None, text("C4H8O2")),
+        ],
+    );
+    assert_eq!(narrowed.status, 200, "{}", narrowed.body);
+    let cli_narrowed = lab.json(&[
+        "identify",
+        "--ir",
+        ir.to_str().unwrap(),
+        "--formula",
+        "C4H8O2",
+    ]);
+    assert_eq!(fused(&narrowed.body), fused(&cli_narrowed));
+    // No unknown, an unknown part, a bad number: 400 with a hint.
+    for (parts, says) in [
+        (vec![("top", None, text("3"))], "no unknown"),
+        (
+            vec![("uv", Some("x.csv"), text("1,2\n"))],
+            "unknown form part",
+        ),
+        (
+            vec![
+                ("ir", Some("u.csv"), std::fs::read(&ir).unwrap()),
+                ("mass", None, text("heavy")),
+            ],
+            "not a number",
+        ),
+    ] {
+        let a = post_form(&server, "/api/v1/identify", Auth::Bearer(&reader), &parts);
+        assert_eq!(a.status, 400, "{}", a.body);
+        assert!(
+            a.body["message"].as_str().unwrap().contains(says),
+            "{}",
+            a.body
+        );
+        assert!(!a.body["hint"].as_str().unwrap().is_empty());
+    }
+
+    // find: the rows of `whorl find --json`.
+    let cli = lab.json(&["find", "acetate", "--top", "5"]);
+    let api = call(
+        &server,
+        "GET",
+        "/api/v1/find?q=acetate&top=5",
+        Auth::Bearer(&reader),
+        None,
+    );
+    assert_eq!(api.status, 200, "{}", api.body);
+    assert!(!cli.as_array().unwrap().is_empty());
+    assert_eq!(api.body, cli);
+    let bad = call(
+        &server,
+        "GET",
+        "/api/v1/find?q=%22unclosed&top=5",
+        Auth::Bearer(&reader),
+        None,
+    );
+    assert_eq!(bad.status, 400, "{}", bad.body);
+
+    // import: a manifest and its files, a result per row; the submitter is the token's
+    // account, and a row naming someone else as submitter is refused.
+    let manifest = "file,technique,name,submitted_by,class\n\
+        spectra/a.csv,ir,api alpha,,reagent\n\
+        spectra/b.csv,ir,api beta,someone.else,reagent\n\
+        spectra/missing.csv,ir,api gamma,,\n";
+    let before = lab.state();
+    let a = post_form(
+        &server,
+        "/api/v1/import",
+        Auth::Bearer(&submitter),
+        &[
+            ("manifest", Some("list.csv"), text(manifest)),
+            ("file", Some("spectra/a.csv"), distinct_ir(1)),
+            ("file", Some("spectra/b.csv"), distinct_ir(2)),
+            ("all_or_nothing", None, text("true")),
+        ],
+    );
+    assert_eq!(a.status, 422, "{}", a.body);
+    assert_eq!(a.body["kind"], "rows-rejected");
+    assert_eq!(a.body["rolled_back"], true);
+    assert_eq!(lab.state(), before, "all_or_nothing stored something");
+    let a = post_form(
+        &server,
+        "/api/v1/import",
+        Auth::Bearer(&submitter),
+        &[
+            ("manifest", Some("list.csv"), text(manifest)),
+            ("file", Some("spectra/a.csv"), distinct_ir(1)),
+            ("file", Some("spectra/b.csv"), distinct_ir(2)),
+        ],
+    );
+    assert_eq!(a.status, 422, "{}", a.body);
+    let rows = a.body["rows"].as_array().unwrap();
+    let results: Vec<(i64, &str)> = rows
+        .iter()
+        .map(|r| (r["line"].as_i64().unwrap(), r["result"].as_str().unwrap()))
+        .collect();
+    assert_eq!(results, [(2, "added"), (3, "rejected"), (4, "rejected")]);
+    assert!(
+        rows[1]["reason"]
+            .as_str()
+            .unwrap()
+            .contains("not the signed-in account"),
+        "{}",
+        rows[1]
+    );
+    assert!(rows[1]["hint"].as_str().unwrap().contains("submitted_by"));
+    // Messages name the file as sent, never the server's temporary folder.
+    let reason = rows[2]["reason"].as_str().unwrap();
+    assert!(
+        reason.contains("spectra/missing.csv") && !reason.contains("/tmp"),
+        "{reason}"
+    );
+    let added = rows[0]["spectrum_id"].as_i64().unwrap();
+    let shown = lab.json(&["show", &added.to_string()]);
+    assert_eq!(shown["spectrum"]["submitted_by"], "s.submitter", "{shown}");
+    assert_eq!(shown["spectrum"]["status"], "pending");
+    assert_eq!(
+        lab.json(&["find", "class:reagent"])
+            .as_array()
+            .unwrap()
+            .len(),
+        1
+    );
+    // All rows good: 200; the same again: already present.
+    let good = "file,technique,name\nb.csv,ir,api beta\n";
+    for expect in ["added", "already-present"] {
+        let a = post_form(
+            &server,
+            "/api/v1/import",
+            Auth::Bearer(&submitter),
+            &[
+                ("manifest", Some("m.csv"), text(good)),
+                ("file", Some("b.csv"), distinct_ir(2)),
+            ],
+        );
+        assert_eq!(a.status, 200, "{}", a.body);
+        assert_eq!(a.body["rows"][0]["result"], expect);
+    }
+    // Unsafe file names and a manifest refused as a whole: 400, nothing imported.
+    let before = lab.state();
+    for (name, says) in [
+        ("../escape.csv", "'..'"),
+        ("/etc/passwd", "absolute"),
+        ("spectra/../../x.csv", "'..'"),
+        ("C:\\x.csv", "absolute"),
+    ] {
+        let a = post_form(
+            &server,
+            "/api/v1/import",
+            Auth::Bearer(&submitter),
+            &[
+                (
+                    "manifest",
+                    Some("m.csv"),
+                    text("file,technique,name\nok.csv,ir,fine\n"),
+                ),
+                ("file", Some("ok.csv"), distinct_ir(3)),
+                ("file", Some(name), distinct_ir(4)),
+            ],
+        );
+        assert_eq!(a.status, 400, "{name}: {}", a.body);
+        assert!(
+            a.body["message"].as_str().unwrap().contains(says),
+            "{name}: {}",
+            a.body
+        );
+        assert!(
+            a.body["message"]
+                .as_str()
+                .unwrap()
+                .contains("nothing was imported")
+        );
+    }
+    let a = post_form(
+        &server,
+        "/api/v1/import",
+        Auth::Bearer(&submitter),
+        &[
+            ("manifest", Some("m.csv"), text("file,name\nok.csv,fine\n")),
+            ("file", Some("ok.csv"), distinct_ir(3)),
+        ],
+    );
+    assert_eq!(a.status, 400, "{}", a.body);
+    assert!(
+        a.body["message"]
+            .as_str()
+            .unwrap()
+            .contains("no 'technique' column"),
+        "{}",
+        a.body
+    );
+    // Too many files: 413, nothing imported.
+    let mut parts: Vec<Part> = vec![(
+        "manifest",
+        Some("m.csv"),
+        text("file,technique,name\nf0.csv,ir,many\n"),
+    )];
+    let names: Vec<String> = (0..1001).map(|i| format!("f{i}.csv")).collect();
+    for name in &names {
+        parts.push(("file", Some(name.as_str()), text("1,2\n")));
+    }
+    let a = post_form(&server, "/api/v1/import", Auth::Bearer(&submitter), &parts);
+    assert_eq!(a.status, 413, "{}", a.body);
+    assert_eq!(a.body["kind"], "too-many-files");
+    assert_eq!(lab.state(), before);
+
+    // revise: a new revision by the signed-in account, pending again, signed-in in the trail;
+    // a field the API does not know is refused.
+    let r = call(
+        &server,
+        "POST",
+        &format!("/api/v1/spectra/{added}/revise"),
+        Auth::Bearer(&curator),
+        Some(
+            json!({ "reason": "typo", "name": "api alpha (revised)", "extra": { "class": null } }),
+        ),
+    );
+    assert_eq!(r.status, 200, "{}", r.body);
+    assert_eq!(r.body["revision"], 2);
+    let shown = lab.json(&["show", &added.to_string()]);
+    assert_eq!(
+        shown["spectrum"]["metadata"]["name"], "api alpha (revised)",
+        "{shown}"
+    );
+    let last = lab
+        .json(&["log", &added.to_string()])
+        .as_array()
+        .unwrap()
+        .last()
+        .cloned()
+        .unwrap();
+    assert_eq!(
+        (
+            last["action"].as_str(),
+            last["identity"].as_str(),
+            last["actor"].as_str()
+        ),
+        (Some("revise"), Some("signed-in"), Some("c.curator")),
+        "{last}"
+    );
+    for body in [
+        json!({ "reason": "  " }),
+        json!({ "reason": "x", "reviser": "a.admin" }),
+    ] {
+        let before = lab.state();
+        let r = call(
+            &server,
+            "POST",
+            &format!("/api/v1/spectra/{added}/revise"),
+            Auth::Bearer(&curator),
+            Some(body),
+        );
+        assert!(r.status == 400 || r.status == 422, "{}", r.body);
+        assert_eq!(lab.state(), before);
+    }
+    let r = call(
+        &server,
+        "POST",
+        "/api/v1/spectra/999999/revise",
+        Auth::Bearer(&curator),
+        Some(json!({ "reason": "x" })),
+    );
+    assert_eq!(r.status, 404, "{}", r.body);
+
+    // check: the report of `whorl check --json`, clean.
+    let c = call(
+        &server,
+        "POST",
+        "/api/v1/check",
+        Auth::Bearer(&curator),
+        None,
+    );
+    assert_eq!(c.status, 200, "{}", c.body);
+    assert_eq!(c.body["findings"], json!([]));
+    assert_eq!(c.body["spectra"], lab.json(&["check"])["spectra"]);
+    assert_eq!(c.body["fingerprint"], lab.fingerprint());
+}
+
+#[test]
+fn an_upload_larger_than_max_body_is_refused_and_nothing_is_stored() {
+    let lab = lab_with_accounts();
+    let server = Server::start_with(&lab, &["--max-body", "1"]);
+    let t = lab
+        .ok(&[
+            "token",
+            "create",
+            "--account",
+            "s.submitter",
+            "--label",
+            "big",
+        ])
+        .trim()
+        .to_string();
+    let before = lab.state();
+    // Declared too large: refused from the headers, before the body is read.
+    let address = server.base.trim_start_matches("http://").to_string();
+    let mut stream = std::net::TcpStream::connect(&address).unwrap();
+    stream
+        .set_read_timeout(Some(std::time::Duration::from_secs(20)))
+        .unwrap();
+    write!(
+        stream,
+        "POST /api/v1/spectra HTTP/1.1\r\nHost: {address}\r\nAuthorization: Bearer {t}\r\nContent-Type: multipart/form-data; boundary=b\r\nContent-Length: {}\r\nConnection: close\r\n\r\n",
+        2 << 20
+    )
+    .unwrap();
+    let mut raw = String::new();
+    std::io::Read::read_to_string(&mut stream, &mut raw).unwrap();
+    assert!(raw.starts_with("HTTP/1.1 413"), "{raw}");
+    let body: Value = serde_json::from_str(raw.split("\r\n\r\n").nth(1).unwrap()).unwrap();
+    assert_eq!(body["kind"], "too-large", "{body}");
+    assert!(body["hint"].as_str().unwrap().contains("--max-body"));
+    // Sent in chunks without a length: refused while the form is read.
+    let big = vec![b'1'; 2 << 20];
+    let (content_type, form_body) = form(&[
+        ("technique", None, text("ir")),
+        ("name", None, text("too big")),
+        ("file", Some("big.csv"), big),
+    ]);
+    let a = answer(
+        agent()
+            .post(server.url("/api/v1/spectra"))
+            .header("Authorization", &format!("Bearer {t}"))
+            .header("Content-Type", &content_type)
+            .send(ureq::SendBody::from_reader(&mut &form_body[..])),
+    );
+    assert_eq!(a.body["kind"], "too-large", "{}", a.body);
+    assert_eq!(a.status, 413, "{}", a.body);
+    assert_eq!(lab.state(), before);
+}
