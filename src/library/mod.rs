@@ -1,6 +1,7 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
 mod accounts;
+mod backup;
 mod bundle;
 mod bundle_import;
 mod caches;
@@ -32,6 +33,7 @@ pub use accounts::{
     Account, Capability, MIN_PASSWORD_CHARS, PASSWORD_PARAMS, Role, TOKEN_PREFIX, Token,
     hash_password, random_bytes, verify_password,
 };
+pub use backup::BackupReport;
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
 pub use caches::BuildProgress;

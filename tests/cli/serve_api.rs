@@ -648,3 +648,116 @@ fn an_upload_larger_than_max_body_is_refused_and_nothing_is_stored() {
     assert_eq!(a.status, 413, "{}", a.body);
     assert_eq!(lab.state(), before);
 }
+
+#[test]
+fn backups_taken_during_submissions_check_and_hold_every_acknowledged_write() {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let t = lab
+        .ok(&[
+            "token",
+            "create",
+            "--account",
+            "s.submitter",
+            "--label",
+            "backup",
+        ])
+        .trim()
+        .to_string();
+    // A reader holding a snapshot open all along (as a long search does): SQLite cannot
+    // checkpoint past it, so later commits stay in the write-ahead log, where only a
+    // WAL-aware copy finds them (a plain copy of library.sqlite would miss them).
+    let reader = rusqlite::Connection::open(lab.library().join("library.sqlite")).unwrap();
+    reader.execute_batch("BEGIN").unwrap();
+    let _: i64 = reader
+        .query_row("SELECT count(*) FROM spectrum", [], |r| r.get(0))
+        .unwrap();
+    let stop = std::sync::atomic::AtomicBool::new(false);
+    let acknowledged = std::sync::Mutex::new(Vec::<i64>::new());
+    let copies = std::thread::scope(|s| {
+        // Submissions through the server, and adds on the command line, while backups run.
+        let api = s.spawn(|| {
+            let mut n = 0;
+            while !stop.load(std::sync::atomic::Ordering::Relaxed) {
+                n += 1;
+                let a = post_form(
+                    &server,
+                    "/api/v1/spectra",
+                    Auth::Bearer(&t),
+                    &[
+                        ("technique", None, text("ir")),
+                        ("name", None, text(&format!("during backup {n}"))),
+                        ("file", Some("b.csv"), distinct_ir(300 + n)),
+                    ],
+                );
+                assert_eq!(a.status, 200, "{}", a.body);
+                acknowledged
+                    .lock()
+                    .unwrap()
+                    .push(a.body["spectrum_id"].as_i64().unwrap());
+            }
+        });
+        let cli = s.spawn(|| {
+            let mut n = 0;
+            while !stop.load(std::sync::atomic::Ordering::Relaxed) {
+                n += 1;
+                let id = pending(&lab, 700 + n);
+                acknowledged.lock().unwrap().push(id);
+            }
+        });
+        // The writers stop also when an assertion below fails (the scope waits for them).
+        struct StopOnDrop<'a>(&'a std::sync::atomic::AtomicBool);
+        impl Drop for StopOnDrop<'_> {
+            fn drop(&mut self) {
+                self.0.store(true, std::sync::atomic::Ordering::Relaxed);
+            }
+        }
+        let guard = StopOnDrop(&stop);
+        let mut copies = Vec::new();
+        for i in 0..3 {
+            std::thread::sleep(std::time::Duration::from_millis(700));
+            let before: Vec<i64> = acknowledged.lock().unwrap().clone();
+            let dest = lab.path(&format!("backup-{i}"));
+            let out = lab.ok(&["backup", dest.to_str().unwrap()]);
+            assert!(out.contains("library.sqlite"), "{out}");
+            copies.push((dest, before));
+        }
+        drop(guard);
+        api.join().unwrap();
+        cli.join().unwrap();
+        copies
+    });
+    reader.execute_batch("COMMIT").unwrap();
+    drop(reader);
+    assert!(acknowledged.lock().unwrap().len() >= 3);
+    for (dest, before) in &copies {
+        let run = |args: &[&str]| {
+            let mut all = vec!["--library", dest.to_str().unwrap()];
+            all.extend_from_slice(args);
+            lab.ok(&all)
+        };
+        let checked = run(&["check"]);
+        assert!(checked.contains("no inconsistency"), "{checked}");
+        let list: Value = serde_json::from_str(&run(&["list", "--json"])).unwrap();
+        let ids: Vec<i64> = list
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|r| r["id"].as_i64().unwrap())
+            .collect();
+        for id in before {
+            assert!(
+                ids.contains(id),
+                "spectrum {id}, acknowledged before the backup, is not in {}",
+                dest.display()
+            );
+        }
+    }
+    // A folder that is not empty, and one inside the library, are refused.
+    let text = lab.fails(&["backup", copies[0].0.to_str().unwrap()], 3);
+    assert!(text.contains("not an empty folder"), "{text}");
+    let inside = lab.library().join("backup");
+    let text = lab.fails(&["backup", inside.to_str().unwrap()], 3);
+    assert!(text.contains("inside the library"), "{text}");
+    lab.ok(&["check"]);
+}
