@@ -14,12 +14,13 @@ pub struct ServeArgs {
     pub address: SocketAddr,
     /// A TLS-terminating reverse proxy sits in front: allows a non-loopback address and marks
     /// cookies Secure
-    #[arg(long)]
+    #[arg(long, conflicts_with = "tls_cert")]
     pub behind_tls_proxy: bool,
-    /// TLS certificate (PEM); not built into this version: refused with a hint
+    /// Serve HTTPS with this certificate chain (PEM; rustls, TLS 1.2 and 1.3): allows a
+    /// non-loopback address and marks cookies Secure
     #[arg(long, value_name = "FILE", requires = "tls_key")]
     pub tls_cert: Option<PathBuf>,
-    /// TLS private key (PEM); see --tls-cert
+    /// The private key of --tls-cert (PEM: PKCS #8, PKCS #1 or SEC1)
     #[arg(long, value_name = "FILE", requires = "tls_cert")]
     pub tls_key: Option<PathBuf>,
     /// Minutes without a request after which a session ends

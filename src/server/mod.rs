@@ -130,27 +130,49 @@ async fn method_not_allowed() -> error::ApiError {
     )
 }
 
-/// Refuses a non-loopback address unless a TLS proxy is declared in front. TLS inside the
-/// server is not built yet, so `--tls-cert`/`--tls-key` are refused with a hint.
-pub fn check_address(options: &Options, tls_given: bool) -> anyhow::Result<()> {
-    if tls_given {
-        return Err(whorl::Error::invalid(
-            "this build of whorl serve does not terminate TLS itself",
-            "put a TLS-terminating reverse proxy in front and pass --behind-tls-proxy, or serve on 127.0.0.1",
-        )
-        .into());
-    }
-    if !options.address.ip().is_loopback() && !options.behind_tls_proxy {
+/// Refuses a non-loopback address unless the server terminates TLS itself (`--tls-cert`,
+/// `--tls-key`) or a TLS proxy is declared in front.
+pub fn check_address(options: &Options) -> anyhow::Result<()> {
+    if !options.address.ip().is_loopback() && !options.behind_tls_proxy && options.tls.is_none() {
         return Err(whorl::Error::invalid(
             format!(
                 "{} is not a loopback address: passwords and session cookies would cross the network unencrypted",
                 options.address
             ),
-            "serve on 127.0.0.1 (the default), or put a TLS-terminating reverse proxy in front and pass --behind-tls-proxy",
+            "serve on 127.0.0.1 (the default), give --tls-cert and --tls-key, or put a TLS-terminating reverse proxy in front and pass --behind-tls-proxy",
         )
         .into());
     }
     Ok(())
+}
+
+/// The server's TLS settings from PEM files: rustls with the ring provider, TLS 1.2 and 1.3
+/// with rustls's default cipher suites, HTTP/1.1 and HTTP/2 offered by ALPN (RFC 7301).
+async fn tls_config(
+    cert: &std::path::Path,
+    key: &std::path::Path,
+) -> anyhow::Result<axum_server::tls_rustls::RustlsConfig> {
+    let _ = rustls::crypto::ring::default_provider().install_default();
+    for (file, what) in [(cert, "certificate"), (key, "private key")] {
+        if !file.is_file() {
+            return Err(whorl::Error::input(
+                whorl::error::Location::file(file),
+                format!("the TLS {what} file cannot be read"),
+                "give PEM files: --tls-cert the certificate chain, --tls-key its private key",
+            )
+            .into());
+        }
+    }
+    axum_server::tls_rustls::RustlsConfig::from_pem_file(cert, key)
+        .await
+        .map_err(|e| {
+            whorl::Error::input(
+                whorl::error::Location::file(cert),
+                format!("the TLS certificate and key were not accepted: {e}"),
+                "give a PEM certificate chain (--tls-cert) and the PEM private key that belongs to it (--tls-key)",
+            )
+            .into()
+        })
 }
 
 /// Serves the library until SIGTERM or SIGINT; requests in flight (writes among them) finish
@@ -174,20 +196,41 @@ pub fn run(options: Options) -> anyhow::Result<()> {
 }
 
 async fn serve(options: Options) -> anyhow::Result<()> {
+    let tls = match &options.tls {
+        Some((cert, key)) => Some(tls_config(cert, key).await?),
+        None => None,
+    };
     let listener = tokio::net::TcpListener::bind(options.address)
         .await
         .map_err(|e| whorl::Error::io(format!("listening on {}", options.address), e))?;
     let bound = listener.local_addr()?;
     // The first line on stdout names the address (a port of 0 picks a free one).
-    println!("listening on http://{bound}");
-    tracing::info!(address = %bound, library = %options.library.display(), "serving");
+    let scheme = if tls.is_some() { "https" } else { "http" };
+    println!("listening on {scheme}://{bound}");
+    tracing::info!(address = %bound, library = %options.library.display(), tls = tls.is_some(), "serving");
+    let request_timeout = options.request_timeout;
     let state = AppState::new(options);
-    axum::serve(
-        listener,
-        app(state).into_make_service_with_connect_info::<SocketAddr>(),
-    )
-    .with_graceful_shutdown(shutdown_signal())
-    .await?;
+    let app = app(state).into_make_service_with_connect_info::<SocketAddr>();
+    match tls {
+        None => {
+            axum::serve(listener, app)
+                .with_graceful_shutdown(shutdown_signal())
+                .await?
+        }
+        Some(config) => {
+            let handle = axum_server::Handle::new();
+            let stopper = handle.clone();
+            tokio::spawn(async move {
+                shutdown_signal().await;
+                // Requests in flight finish (within the request timeout); no new ones start.
+                stopper.graceful_shutdown(Some(request_timeout));
+            });
+            axum_server::from_tcp_rustls(listener.into_std()?, config)
+                .handle(handle)
+                .serve(app)
+                .await?
+        }
+    }
     tracing::info!("stopped: every request in flight has finished");
     Ok(())
 }

@@ -761,3 +761,105 @@ fn backups_taken_during_submissions_check_and_hold_every_acknowledged_write() {
     assert!(text.contains("inside the library"), "{text}");
     lab.ok(&["check"]);
 }
+
+#[test]
+fn the_server_speaks_tls_with_its_certificate_and_marks_the_cookie_secure() {
+    let lab = lab_with_accounts();
+    // A self-signed certificate for the loopback address, made for this test (rcgen).
+    let made =
+        rcgen::generate_simple_self_signed(vec!["127.0.0.1".into(), "localhost".into()]).unwrap();
+    let cert = lab.write("cert.pem", made.cert.pem());
+    let key = lab.write("key.pem", made.key_pair.serialize_pem());
+    // TLS files that cannot be used are refused before anything is served; with TLS a
+    // non-loopback address passes the address check (the refusal names the file instead).
+    let text = lab.fails(
+        &[
+            "serve",
+            "--address",
+            "0.0.0.0:0",
+            "--tls-cert",
+            "missing.pem",
+            "--tls-key",
+            key.to_str().unwrap(),
+        ],
+        3,
+    );
+    assert!(
+        text.contains("missing.pem") && text.contains("certificate"),
+        "{text}"
+    );
+    let text = lab.fails(
+        &[
+            "serve",
+            "--address",
+            "127.0.0.1:0",
+            "--tls-cert",
+            key.to_str().unwrap(),
+            "--tls-key",
+            key.to_str().unwrap(),
+        ],
+        3,
+    );
+    assert!(text.contains("not accepted"), "{text}");
+
+    let server = Server::start_with(
+        &lab,
+        &[
+            "--tls-cert",
+            cert.to_str().unwrap(),
+            "--tls-key",
+            key.to_str().unwrap(),
+        ],
+    );
+    assert!(
+        server.base.starts_with("https://127.0.0.1:"),
+        "{}",
+        server.base
+    );
+    let trusting: ureq::Agent = ureq::Agent::config_builder()
+        .http_status_as_error(false)
+        .tls_config(
+            ureq::tls::TlsConfig::builder()
+                .root_certs(ureq::tls::RootCerts::Specific(std::sync::Arc::new(vec![
+                    ureq::tls::Certificate::from_der(made.cert.der()).to_owned(),
+                ])))
+                .build(),
+        )
+        .build()
+        .into();
+    let health = answer(trusting.get(server.url("/health")).call());
+    assert_eq!(health.status, 200, "{}", health.body);
+    assert_eq!(health.body["status"], "ok");
+    // Sign-in over TLS: the session cookie is Secure, HttpOnly and SameSite=Strict.
+    let signed = answer(
+        trusting
+            .post(server.url("/api/v1/session"))
+            .header("Content-Type", "application/json")
+            .send(json!({ "name": "v.viewer", "password": PASSWORDS[0].2 }).to_string()),
+    );
+    assert_eq!(signed.status, 200, "{}", signed.body);
+    let set_cookie = signed.headers["set-cookie"].to_str().unwrap();
+    assert!(
+        set_cookie.contains("Secure")
+            && set_cookie.contains("HttpOnly")
+            && set_cookie.contains("SameSite=Strict"),
+        "{set_cookie}"
+    );
+    let cookie = set_cookie.split(';').next().unwrap();
+    let who = answer(
+        trusting
+            .get(server.url("/api/v1/session"))
+            .header("Cookie", cookie)
+            .call(),
+    );
+    assert_eq!(who.status, 200, "{}", who.body);
+    assert_eq!(who.body["account"], "v.viewer");
+    // A client that does not trust the certificate is refused by its own TLS check, and
+    // plain HTTP on the TLS port gets no HTTP answer.
+    let stranger: ureq::Agent = ureq::Agent::config_builder().build().into();
+    assert!(stranger.get(server.url("/health")).call().is_err());
+    let plain = agent()
+        .get(server.url("/health").replacen("https", "http", 1))
+        .call();
+    assert!(plain.is_err() || plain.unwrap().status().as_u16() >= 400);
+}
