@@ -25,6 +25,7 @@ use super::{accounts, admin, audit, health, identify, import, search, session, s
         spectra::list,
         spectra::submit,
         accounts::list,
+        accounts::set_role,
         spectra::show,
         spectra::withdraw,
         spectra::review,
@@ -45,7 +46,8 @@ use super::{accounts, admin, audit, health, identify, import, search, session, s
         spectra::SignOff,
         spectra::Revision,
         identify::IdentifyForm,
-        import::ImportForm
+        import::ImportForm,
+        accounts::RoleChange
     ))
 )]
 pub struct ApiDoc;

@@ -249,7 +249,7 @@ pub(crate) fn routes(lab: &Lab) -> Vec<Value> {
 
 /// A path with its parameters filled by an id no spectrum has.
 pub(crate) fn concrete(path: &str) -> String {
-    path.replace("{id}", "999999")
+    path.replace("{id}", "999999").replace("{name}", "nobody")
 }
 
 /// What each role may do, as the README's table of roles says (our own documented policy).

@@ -863,3 +863,112 @@ fn the_server_speaks_tls_with_its_certificate_and_marks_the_cookie_secure() {
         .call();
     assert!(plain.is_err() || plain.unwrap().status().as_u16() >= 400);
 }
+
+#[test]
+fn roles_change_with_a_reason_audited_and_take_effect_at_once() {
+    let lab = lab_with_accounts();
+    // On the command line: a reason is needed; the event records before, after and why.
+    let text = lab.fails(&["account", "role", "v.viewer", "submitter"], 2);
+    assert!(text.contains("--reason"), "{text}");
+    lab.ok(&[
+        "account",
+        "role",
+        "V.Viewer",
+        "submitter",
+        "--reason",
+        "joins the GC group",
+        "--by",
+        "a.admin",
+    ]);
+    let event = lab
+        .json(&["log"])
+        .as_array()
+        .unwrap()
+        .last()
+        .cloned()
+        .unwrap();
+    assert_eq!(event["action"], "account-role");
+    assert_eq!(event["payload"]["from"], "reader");
+    assert_eq!(event["payload"]["role"], "submitter");
+    assert_eq!(event["payload"]["reason"], "joins the GC group");
+    let text = lab.refuses(
+        &["account", "role", "a.admin", "reader", "--reason", "x"],
+        3,
+    );
+    assert!(text.contains("only active administrator"), "{text}");
+    let text = lab.refuses(
+        &["account", "role", "v.viewer", "submitter", "--reason", "x"],
+        3,
+    );
+    assert!(text.contains("already has the role"), "{text}");
+    lab.ok(&["check"]);
+
+    // Through the API, by an administrator; the account's token carries the new role at its
+    // next request.
+    let server = Server::start(&lab);
+    let tokens = tokens(&lab);
+    let token = |name: &str| tokens.iter().find(|t| t.0 == name).unwrap().2.clone();
+    let viewer = token("v.viewer");
+    let stats = || {
+        call(
+            &server,
+            "POST",
+            "/api/v1/check",
+            Auth::Bearer(&viewer),
+            None,
+        )
+        .status
+    };
+    assert_eq!(stats(), 403);
+    let r = call(
+        &server,
+        "POST",
+        "/api/v1/accounts/v.viewer/role",
+        Auth::Bearer(&token("a.admin")),
+        Some(json!({ "role": "curator", "reason": "curates the IR set", "name": "ignored" })),
+    );
+    assert_eq!(r.status, 200, "{}", r.body);
+    assert_eq!(r.body["role"], "curator");
+    assert_eq!(stats(), 200);
+    let event = lab
+        .json(&["log"])
+        .as_array()
+        .unwrap()
+        .last()
+        .cloned()
+        .unwrap();
+    assert_eq!(
+        (
+            event["action"].as_str(),
+            event["actor"].as_str(),
+            event["identity"].as_str()
+        ),
+        (Some("account-role"), Some("a.admin"), Some("signed-in")),
+        "{event}"
+    );
+    for (body, status) in [
+        (json!({ "role": "owner", "reason": "x" }), 400),
+        (json!({ "role": "reader", "reason": " " }), 400),
+        (json!({ "role": "reader" }), 422),
+    ] {
+        let before = lab.state();
+        let r = call(
+            &server,
+            "POST",
+            "/api/v1/accounts/v.viewer/role",
+            Auth::Bearer(&token("a.admin")),
+            Some(body),
+        );
+        assert_eq!(r.status, status, "{}", r.body);
+        assert_eq!(lab.state(), before);
+    }
+    let r = call(
+        &server,
+        "POST",
+        "/api/v1/accounts/nobody/role",
+        Auth::Bearer(&token("a.admin")),
+        Some(json!({ "role": "reader", "reason": "x" })),
+    );
+    assert!(r.status == 400 || r.status == 404, "{}", r.body);
+    lab.ok(&["check"]);
+}
