@@ -23,6 +23,14 @@ pub struct ServeArgs {
     /// The private key of --tls-cert (PEM: PKCS #8, PKCS #1 or SEC1)
     #[arg(long, value_name = "FILE", requires = "tls_cert")]
     pub tls_key: Option<PathBuf>,
+    /// Watch this drop folder: a manifest NAME.csv and its files, then an empty NAME.ready
+    /// written last, are imported (all or nothing) as --inbox-account and moved to done/NAME/
+    /// or failed/NAME/ with NAME.result.json
+    #[arg(long, value_name = "DIR", requires = "inbox_account")]
+    pub inbox: Option<PathBuf>,
+    /// The account drops are imported as (submitter, curator or admin)
+    #[arg(long, value_name = "NAME", requires = "inbox")]
+    pub inbox_account: Option<String>,
     /// Minutes without a request after which a session ends
     #[arg(long, default_value_t = 30, value_name = "MINUTES")]
     pub idle_timeout: u64,

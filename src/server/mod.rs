@@ -11,6 +11,7 @@ mod error;
 mod health;
 mod identify;
 mod import;
+mod inbox;
 mod openapi;
 mod routes;
 mod search;
@@ -33,6 +34,7 @@ use tower_http::timeout::TimeoutLayer;
 use tower_http::trace::{DefaultOnResponse, TraceLayer};
 use tracing::Level;
 
+pub use inbox::Inbox;
 pub use routes::RouteInfo;
 use state::AppState;
 pub use state::Options;
@@ -188,6 +190,10 @@ pub fn run(options: Options) -> anyhow::Result<()> {
     // Fail now, not at the first request, when the folder is not a library (this also
     // migrates it to the current schema).
     whorl::library::Library::open(&options.library)?;
+    let mut options = options;
+    if let Some(inbox) = &mut options.inbox {
+        inbox.account = inbox.prepare(&options.library)?;
+    }
     let runtime = tokio::runtime::Builder::new_multi_thread()
         .enable_all()
         .build()
@@ -209,6 +215,10 @@ async fn serve(options: Options) -> anyhow::Result<()> {
     println!("listening on {scheme}://{bound}");
     tracing::info!(address = %bound, library = %options.library.display(), tls = tls.is_some(), "serving");
     let request_timeout = options.request_timeout;
+    if let Some(inbox) = options.inbox.clone() {
+        tracing::info!(inbox = %inbox.dir.display(), account = %inbox.account, "watching the drop folder");
+        tokio::spawn(inbox::watch(inbox, options.library.clone()));
+    }
     let state = AppState::new(options);
     let app = app(state).into_make_service_with_connect_info::<SocketAddr>();
     match tls {

@@ -20,6 +20,8 @@ pub struct Options {
     pub behind_tls_proxy: bool,
     /// The server terminates TLS itself: certificate chain and private key (PEM files).
     pub tls: Option<(PathBuf, PathBuf)>,
+    /// The drop folder watched, and the account its drops are imported as.
+    pub inbox: Option<super::inbox::Inbox>,
     /// A session ends after this long without a request.
     pub idle_timeout: Duration,
     /// A session ends this long after sign-in, whatever its use.

@@ -57,11 +57,12 @@ fn text(v: &str) -> Vec<u8> {
     v.as_bytes().to_vec()
 }
 
-/// A synthetic IR spectrum no other test file has: one band placed by `n`.
+/// A synthetic IR spectrum no other test file has: bands placed by `n` (distinct for every
+/// `n` below 150,000, all inside 4000-400 cm-1).
 pub(crate) fn distinct_ir(n: usize) -> Vec<u8> {
     ir_csv(&[
-        (1000.0 + 7.0 * n as f64, 0.6, 12.0),
-        (2900.0 - 3.0 * n as f64, 0.3, 20.0),
+        (500.0 + 2.0 * (n % 1500) as f64, 0.6, 6.0),
+        (3700.0 - 2.0 * (n / 1500 % 100) as f64, 0.3, 20.0),
     ])
     .into_bytes()
 }
@@ -630,8 +631,10 @@ fn an_upload_larger_than_max_body_is_refused_and_nothing_is_stored() {
     let body: Value = serde_json::from_str(raw.split("\r\n\r\n").nth(1).unwrap()).unwrap();
     assert_eq!(body["kind"], "too-large", "{body}");
     assert!(body["hint"].as_str().unwrap().contains("--max-body"));
-    // Sent in chunks without a length: refused while the form is read.
-    let big = vec![b'1'; 2 << 20];
+    // Sent in chunks without a length: refused while the form is read. Just over the limit,
+    // so the client has written all of it when the refusal comes (a larger body would meet
+    // a closed connection instead of the answer).
+    let big = vec![b'1'; (1 << 20) + 1024];
     let (content_type, form_body) = form(&[
         ("technique", None, text("ir")),
         ("name", None, text("too big")),
@@ -970,5 +973,129 @@ fn roles_change_with_a_reason_audited_and_take_effect_at_once() {
         Some(json!({ "role": "reader", "reason": "x" })),
     );
     assert!(r.status == 400 || r.status == 404, "{}", r.body);
+    lab.ok(&["check"]);
+}
+
+/// Waits (at most 30 s) for a file to appear.
+fn wait_for(path: &std::path::Path) {
+    let started = std::time::Instant::now();
+    while !path.exists() {
+        assert!(
+            started.elapsed() < std::time::Duration::from_secs(30),
+            "{} did not appear",
+            path.display()
+        );
+        std::thread::sleep(std::time::Duration::from_millis(100));
+    }
+}
+
+#[test]
+fn drops_in_the_inbox_are_imported_as_its_account_once_their_marker_is_there() {
+    let lab = lab_with_accounts();
+    let inbox = lab.path("inbox");
+    std::fs::create_dir(&inbox).unwrap();
+    // The account must exist and may submit.
+    let text = lab.fails(
+        &[
+            "serve",
+            "--inbox",
+            inbox.to_str().unwrap(),
+            "--inbox-account",
+            "v.viewer",
+        ],
+        3,
+    );
+    assert!(text.contains("may not submit"), "{text}");
+    let server = Server::start_with(
+        &lab,
+        &[
+            "--inbox",
+            inbox.to_str().unwrap(),
+            "--inbox-account",
+            "S.Submitter",
+        ],
+    );
+    let _ = &server;
+    let before = lab.state();
+    // A drop without its marker (still being copied) is never read.
+    std::fs::create_dir(inbox.join("spectra")).unwrap();
+    std::fs::write(
+        inbox.join("run1.csv"),
+        "file,technique,name,class\nspectra/r1a.csv,ir,dropped alpha,drop\nspectra/r1b.csv,ir,dropped beta,drop\n",
+    )
+    .unwrap();
+    std::fs::write(inbox.join("spectra/r1a.csv"), distinct_ir(900)).unwrap();
+    // Half a file, as a copy in progress leaves it.
+    let whole = distinct_ir(901);
+    std::fs::write(inbox.join("spectra/r1b.csv"), &whole[..whole.len() / 2]).unwrap();
+    std::thread::sleep(std::time::Duration::from_millis(2500));
+    assert_eq!(lab.state(), before, "a drop without its marker was read");
+    assert!(inbox.join("run1.csv").exists());
+    // The copy finishes, then the marker: imported, moved to done/ with the result.
+    std::fs::write(inbox.join("spectra/r1b.csv"), &whole).unwrap();
+    std::fs::write(inbox.join("run1.ready"), "").unwrap();
+    let result = inbox.join("done/run1/run1.result.json");
+    wait_for(&result);
+    let result: Value = serde_json::from_str(&std::fs::read_to_string(&result).unwrap()).unwrap();
+    assert_eq!(result["imported"], 2, "{result}");
+    assert_eq!(result["account"], "s.submitter");
+    for f in [
+        "run1.csv",
+        "run1.ready",
+        "spectra/r1a.csv",
+        "spectra/r1b.csv",
+    ] {
+        assert!(inbox.join("done/run1").join(f).is_file(), "{f} not moved");
+        assert!(!inbox.join(f).exists(), "{f} left in the inbox");
+    }
+    let found = lab.json(&["find", "class:drop"]);
+    assert_eq!(found.as_array().unwrap().len(), 2, "{found}");
+    let id = found[0]["spectrum_id"].to_string();
+    let shown = lab.json(&["show", &id]);
+    assert_eq!(shown["spectrum"]["submitted_by"], "s.submitter", "{shown}");
+    assert_eq!(shown["spectrum"]["status"], "pending");
+    let event = lab.json(&["log", &id]).as_array().unwrap()[0].clone();
+    assert_eq!(
+        (event["actor"].as_str(), event["identity"].as_str()),
+        (Some("s.submitter"), Some("asserted")),
+        "{event}"
+    );
+
+    // A drop with a bad row: nothing imported, moved to failed/ with the reason per row.
+    let before = lab.state();
+    std::fs::write(
+        inbox.join("run2.csv"),
+        "file,technique,name\nr2a.csv,ir,good row\nr2b.csv,ir,missing file\n",
+    )
+    .unwrap();
+    std::fs::write(inbox.join("r2a.csv"), distinct_ir(902)).unwrap();
+    std::fs::write(inbox.join("run2.ready"), "").unwrap();
+    let result = inbox.join("failed/run2/run2.result.json");
+    wait_for(&result);
+    let result: Value = serde_json::from_str(&std::fs::read_to_string(&result).unwrap()).unwrap();
+    assert_eq!(result["rolled_back"], true, "{result}");
+    assert_eq!(result["rows"][0]["result"], "rejected", "{result}");
+    assert!(
+        result["rows"][0]["reason"]
+            .as_str()
+            .unwrap()
+            .contains("r2b.csv"),
+        "{result}"
+    );
+    assert!(inbox.join("failed/run2/r2a.csv").is_file());
+    assert_eq!(lab.state(), before);
+    // A manifest refused as a whole: failed/, with the message and hint.
+    std::fs::write(inbox.join("run3.csv"), "file,name\nx.csv,y\n").unwrap();
+    std::fs::write(inbox.join("run3.ready"), "").unwrap();
+    let result = inbox.join("failed/run3/run3.result.json");
+    wait_for(&result);
+    let result: Value = serde_json::from_str(&std::fs::read_to_string(&result).unwrap()).unwrap();
+    assert!(
+        result["error"]["message"]
+            .as_str()
+            .unwrap()
+            .contains("no 'technique' column"),
+        "{result}"
+    );
     lab.ok(&["check"]);
 }
