@@ -1099,3 +1099,152 @@ fn drops_in_the_inbox_are_imported_as_its_account_once_their_marker_is_there() {
     );
     lab.ok(&["check"]);
 }
+
+/// Posts without panicking when the server is gone: the status and body, or `None` when no
+/// answer came (the connection refused or cut).
+fn try_post(
+    base: &str,
+    path: &str,
+    token: &str,
+    content_type: &str,
+    body: &[u8],
+) -> Option<(u16, Value)> {
+    let r = agent()
+        .post(format!("{base}{path}"))
+        .header("Authorization", &format!("Bearer {token}"))
+        .header("Content-Type", content_type)
+        .send(body)
+        .ok()?;
+    let status = r.status().as_u16();
+    let text = r.into_body().read_to_string().ok()?;
+    Some((status, serde_json::from_str(&text).unwrap_or(Value::Null)))
+}
+
+#[test]
+fn the_server_killed_twenty_times_keeps_every_acknowledged_write_and_checks() {
+    let lab = Lab::new();
+    for (name, role, password) in [PASSWORDS[1], PASSWORDS[2]] {
+        lab.ok(&["account", "add", name, "--role", role]);
+        assert!(
+            crate::serve::set_password(&lab, name, password)
+                .status
+                .success()
+        );
+    }
+    let token = |name: &str| {
+        lab.ok(&["token", "create", "--account", name, "--label", "faults"])
+            .trim()
+            .to_string()
+    };
+    let (submitter, signer) = (token("s.submitter"), token("g.signer"));
+    let added = std::sync::Mutex::new(Vec::<i64>::new());
+    let signed = std::sync::Mutex::new(Vec::<i64>::new());
+    let mut n = 0usize;
+    for round in 0..20 {
+        let mut server = Server::start(&lab);
+        // Spectra submitted in earlier rounds and not yet signed off.
+        let mut to_sign: Vec<i64> = {
+            let s = signed.lock().unwrap();
+            added
+                .lock()
+                .unwrap()
+                .iter()
+                .copied()
+                .filter(|id| !s.contains(id))
+                .collect()
+        };
+        let first = n;
+        n += 1_000;
+        let base = server.base.clone();
+        let pid = server.child.id().to_string();
+        std::thread::scope(|s| {
+            s.spawn(|| {
+                for k in 0.. {
+                    let (ct, body) = form(&[
+                        ("technique", None, text("ir")),
+                        ("name", None, text(&format!("fault {round} {k}"))),
+                        ("file", Some("f.csv"), distinct_ir(first + k)),
+                    ]);
+                    match try_post(&base, "/api/v1/spectra", &submitter, &ct, &body) {
+                        Some((200, v)) => added
+                            .lock()
+                            .unwrap()
+                            .push(v["spectrum_id"].as_i64().unwrap()),
+                        Some((status, v)) => panic!("submission answered {status}: {v}"),
+                        None => break,
+                    }
+                }
+            });
+            s.spawn(|| {
+                while let Some(id) = to_sign.pop() {
+                    let body =
+                        json!({ "decision": "approve", "password": PASSWORDS[2].2 }).to_string();
+                    match try_post(
+                        &base,
+                        &format!("/api/v1/spectra/{id}/review"),
+                        &signer,
+                        "application/json",
+                        body.as_bytes(),
+                    ) {
+                        Some((200, _)) => signed.lock().unwrap().push(id),
+                        // Signed in a round killed before its answer came back: committed,
+                        // never acknowledged.
+                        Some((400, v))
+                            if v["message"]
+                                .as_str()
+                                .is_some_and(|m| m.contains("already verified")) => {}
+                        Some((status, v)) => panic!("sign-off of {id} answered {status}: {v}"),
+                        None => break,
+                    }
+                }
+            });
+            // Killed at a different moment each round, while both are under way.
+            std::thread::sleep(std::time::Duration::from_millis(
+                250 + (round * 53 % 300) as u64,
+            ));
+            let killed = std::process::Command::new("kill")
+                .args(["-KILL", &pid])
+                .status()
+                .unwrap();
+            assert!(killed.success());
+        });
+        server.child.wait().unwrap();
+        let checked = lab.ok(&["check"]);
+        assert!(
+            checked.contains("no inconsistency"),
+            "round {round}: {checked}"
+        );
+        let list = lab.json(&["list"]);
+        let status: std::collections::HashMap<i64, String> = list
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|r| {
+                (
+                    r["id"].as_i64().unwrap(),
+                    r["status"].as_str().unwrap().to_string(),
+                )
+            })
+            .collect();
+        for id in added.lock().unwrap().iter() {
+            assert!(
+                status.contains_key(id),
+                "round {round}: acknowledged submission {id} is missing"
+            );
+        }
+        for id in signed.lock().unwrap().iter() {
+            assert_eq!(
+                status[id], "verified",
+                "round {round}: acknowledged sign-off of {id} is missing"
+            );
+        }
+    }
+    assert!(
+        added.lock().unwrap().len() >= 20,
+        "too few submissions to mean anything"
+    );
+    assert!(
+        !signed.lock().unwrap().is_empty(),
+        "no sign-off was acknowledged"
+    );
+}
