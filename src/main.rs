@@ -52,12 +52,18 @@ fn serve(args: cli::serve::ServeArgs, ctx: &cli::Context) -> anyhow::Result<Exit
         library: args.library(ctx),
         address: args.address,
         behind_tls_proxy: args.behind_tls_proxy,
+        tls: args.tls_cert.clone().zip(args.tls_key.clone()),
+        inbox: args
+            .inbox
+            .clone()
+            .zip(args.inbox_account.clone())
+            .map(|(dir, account)| server::Inbox { dir, account }),
         idle_timeout: Duration::from_secs(args.idle_timeout * 60),
         session_lifetime: Duration::from_secs(args.session_lifetime * 3600),
         max_body: args.max_body << 20,
         request_timeout: Duration::from_secs(args.request_timeout),
     };
-    server::check_address(&options, args.tls_cert.is_some())?;
+    server::check_address(&options)?;
     server::run(options)?;
     Ok(ExitCode::SUCCESS)
 }

@@ -1,4 +1,4 @@
-//! `whorl account`: the lab server's accounts (add, list, disable, password).
+//! `whorl account`: the lab server's accounts (add, list, disable, role, password).
 
 use std::io::{BufRead, IsTerminal, Write};
 use std::process::ExitCode;
@@ -41,6 +41,19 @@ pub enum AccountCommand {
         #[arg(long, required = true)]
         reason: String,
         /// Who disables it [default: $WHORL_USER, else the OS user]
+        #[arg(long, value_name = "WHO")]
+        by: Option<String>,
+    },
+    /// Change an account's role (administrators; audited with the reason).
+    Role {
+        /// The account's name
+        name: String,
+        /// The new role: reader, submitter, signer, curator or admin
+        role: Role,
+        /// Why the role changes
+        #[arg(long, required = true)]
+        reason: String,
+        /// Who changes it [default: $WHORL_USER, else the OS user]
         #[arg(long, value_name = "WHO")]
         by: Option<String>,
     },
@@ -101,6 +114,15 @@ pub fn run(args: AccountArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         AccountCommand::Disable { name, reason, by } => {
             let a = lib.disable_account(&name, &reason, &identity(by.as_deref())?)?;
             writeln!(out, "account {} disabled: {}", a.name, reason.trim())?;
+        }
+        AccountCommand::Role {
+            name,
+            role,
+            reason,
+            by,
+        } => {
+            let a = lib.set_role(&name, role, &reason, &identity(by.as_deref())?)?;
+            writeln!(out, "account {} now has the role {}", a.name, a.role)?;
         }
         AccountCommand::Password { name, by } => {
             // Fail on an unknown name before asking for a password.

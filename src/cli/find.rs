@@ -3,10 +3,8 @@
 use std::io::Write;
 use std::process::ExitCode;
 
-use clap::Args;
-use serde::Serialize;
-
 use super::{Context, output};
+use clap::Args;
 
 #[derive(Debug, Args)]
 pub struct FindArgs {
@@ -20,43 +18,9 @@ pub struct FindArgs {
     pub json: bool,
 }
 
-#[derive(Serialize)]
-struct Found {
-    relevance: f32,
-    spectrum_id: i64,
-    compound_id: i64,
-    technique: String,
-    status: String,
-    name: String,
-    formula: Option<String>,
-    cas: Option<String>,
-}
-
 pub fn run(args: FindArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
-    let found = lib.text().find(&args.query, args.top)?;
-    let ids: Vec<i64> = found.iter().map(|f| f.1).collect();
-    // By id: a hit the database no longer has (the index behind it) is left out, and the
-    // others keep their own records.
-    let mut records: std::collections::HashMap<i64, whorl::library::HitRecord> = lib
-        .hit_records(&ids)?
-        .into_iter()
-        .map(|r| (r.id, r))
-        .collect();
-    let rows: Vec<Found> = found
-        .iter()
-        .filter_map(|&(relevance, id)| records.remove(&id).map(|r| (relevance, r)))
-        .map(|(relevance, r)| Found {
-            relevance,
-            spectrum_id: r.id,
-            compound_id: r.compound_id,
-            technique: r.technique.to_string(),
-            status: r.status.to_string(),
-            name: r.metadata.name,
-            formula: r.metadata.formula,
-            cas: r.metadata.cas,
-        })
-        .collect();
+    let rows = lib.find(&args.query, args.top)?;
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &rows)?;

@@ -2,6 +2,7 @@
 
 mod account;
 mod add;
+mod backup;
 mod check;
 mod completions;
 mod config;
@@ -132,6 +133,8 @@ pub enum Command {
     Log(log::LogArgs),
     /// Verify the audit chain, raw data, prepared data and fingerprint.
     Check(check::CheckArgs),
+    /// Copy the library consistently while it is in use (a server or other commands running).
+    Backup(backup::BackupArgs),
     /// Write the audit chain's head to a witness file kept outside the library.
     Witness(witness::WitnessArgs),
     /// Write a portable bundle (raw points, manifest with history, checksums).
@@ -242,6 +245,7 @@ pub fn run(
         Command::Log(a) => log::run(a, &ctx),
         Command::Check(a) => check::run(a, &ctx),
         Command::Export(a) => export::run(a, &ctx),
+        Command::Backup(a) => backup::run(a, &ctx),
         Command::Witness(a) => witness::run(a, &ctx),
         Command::Replay(a) => replay::run(a, &ctx),
         Command::Key(a) => key::run(a, &ctx),

@@ -14,14 +14,23 @@ pub struct ServeArgs {
     pub address: SocketAddr,
     /// A TLS-terminating reverse proxy sits in front: allows a non-loopback address and marks
     /// cookies Secure
-    #[arg(long)]
+    #[arg(long, conflicts_with = "tls_cert")]
     pub behind_tls_proxy: bool,
-    /// TLS certificate (PEM); not built into this version: refused with a hint
+    /// Serve HTTPS with this certificate chain (PEM; rustls, TLS 1.2 and 1.3): allows a
+    /// non-loopback address and marks cookies Secure
     #[arg(long, value_name = "FILE", requires = "tls_key")]
     pub tls_cert: Option<PathBuf>,
-    /// TLS private key (PEM); see --tls-cert
+    /// The private key of --tls-cert (PEM: PKCS #8, PKCS #1 or SEC1)
     #[arg(long, value_name = "FILE", requires = "tls_cert")]
     pub tls_key: Option<PathBuf>,
+    /// Watch this drop folder: a manifest NAME.csv and its files, then an empty NAME.ready
+    /// written last, are imported (all or nothing) as --inbox-account and moved to done/NAME/
+    /// or failed/NAME/ with NAME.result.json
+    #[arg(long, value_name = "DIR", requires = "inbox_account")]
+    pub inbox: Option<PathBuf>,
+    /// The account drops are imported as (submitter, curator or admin)
+    #[arg(long, value_name = "NAME", requires = "inbox")]
+    pub inbox_account: Option<String>,
     /// Minutes without a request after which a session ends
     #[arg(long, default_value_t = 30, value_name = "MINUTES")]
     pub idle_timeout: u64,

@@ -377,6 +377,68 @@ impl Library {
         })
     }
 
+    /// Changes an account's role with a reason, audited as `account-role` (the role before
+    /// and after). Refuses the change that would leave no active administrator.
+    pub fn set_role(
+        &mut self,
+        name: &str,
+        role: Role,
+        reason: &str,
+        actor: &str,
+    ) -> Result<Account> {
+        let person = Person::new(name, "account")?;
+        if reason.trim().is_empty() {
+            return Err(Error::invalid(
+                "a reason is needed to change an account's role",
+                "say why, e.g. --reason 'signs off for the GC group from May'",
+            ));
+        }
+        self.write(|tx| {
+            let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
+            if !account.is_active() {
+                return Err(Error::invalid(
+                    format!("the account '{}' is disabled", account.name),
+                    "run `whorl account list` to see the accounts",
+                ));
+            }
+            if account.role == role {
+                return Err(Error::invalid(
+                    format!("the account '{}' already has the role {role}", account.name),
+                    "run `whorl account list` to see the roles",
+                ));
+            }
+            if account.role == Role::Admin {
+                let admins: i64 = tx.query_row(
+                    "SELECT count(*) FROM account WHERE role = 'admin' AND disabled_at IS NULL",
+                    [],
+                    |r| r.get(0),
+                )?;
+                if admins <= 1 {
+                    return Err(Error::invalid(
+                        format!("'{}' is the only active administrator", account.name),
+                        "give another account the admin role first",
+                    ));
+                }
+            }
+            tx.execute(
+                "UPDATE account SET role = ?1 WHERE id = ?2",
+                params![role.as_str(), account.id],
+            )?;
+            append_event(
+                tx,
+                actor,
+                "account-role",
+                &format!("account:{}", account.id),
+                &serde_json::json!({
+                    "name": account.name, "from": account.role.as_str(),
+                    "role": role.as_str(), "reason": reason.trim()
+                }),
+            )?;
+            let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
+            Ok((account, vec![]))
+        })
+    }
+
     /// Sets an account's password (Argon2id, see [`PASSWORD_PARAMS`]), audited as
     /// `account-password`; the event holds neither the password nor its hash.
     pub fn set_password(&mut self, name: &str, password: &str, actor: &str) -> Result<()> {
@@ -725,6 +787,7 @@ pub(super) fn replay<'a>(
             "account-password" => {
                 accounts.entry(record.to_string()).or_default().has_password = true
             }
+            "account-role" => accounts.entry(record.to_string()).or_default().role = text("role"),
             "account-disable" => accounts.entry(record.to_string()).or_default().disabled = true,
             "account-lockout" => {
                 accounts.entry(record.to_string()).or_default().locked_until = Some(text("until"))

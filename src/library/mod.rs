@@ -1,12 +1,14 @@
 //! The library on disk: `library.sqlite` (the truth) and `text-index/` (derived).
 
 mod accounts;
+mod backup;
 mod bundle;
 mod bundle_import;
 mod caches;
 mod check;
 mod curation;
 mod events;
+mod find;
 mod fingerprint;
 mod identity;
 mod import;
@@ -31,12 +33,14 @@ pub use accounts::{
     Account, Capability, MIN_PASSWORD_CHARS, PASSWORD_PARAMS, Role, TOKEN_PREFIX, Token,
     hash_password, random_bytes, verify_password,
 };
+pub use backup::BackupReport;
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
 pub use caches::BuildProgress;
 pub use check::{CheckReport, Finding};
 pub use curation::{MetadataPatch, RevisionInfo};
 pub use events::{ASSERTED, Event, SIGNED_IN};
+pub use find::Found;
 pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use identity::{MAX_NAME_CHARS, Person, same_person};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};

@@ -146,6 +146,37 @@ impl IntoResponse for ApiError {
     }
 }
 
+/// Turns the bare answers of the tower layers (the body limit's 413, the timeout's 408) into
+/// the JSON every other error has; any other answer passes unchanged.
+pub async fn plain_to_json<B>(response: axum::http::Response<B>) -> Response
+where
+    B: axum::body::HttpBody<Data = axum::body::Bytes> + Send + 'static,
+    B::Error: Into<axum::BoxError>,
+{
+    let response = response.map(axum::body::Body::new);
+    let is_json = response
+        .headers()
+        .get(header::CONTENT_TYPE)
+        .is_some_and(|v| v.as_bytes().starts_with(b"application/json"));
+    match response.status() {
+        StatusCode::PAYLOAD_TOO_LARGE if !is_json => ApiError::new(
+            StatusCode::PAYLOAD_TOO_LARGE,
+            "too-large",
+            "the request body is larger than this server takes",
+            "send less per request (the server's --max-body), e.g. a manifest split in parts",
+        )
+        .into_response(),
+        StatusCode::REQUEST_TIMEOUT if !is_json => ApiError::new(
+            StatusCode::REQUEST_TIMEOUT,
+            "timeout",
+            "the request took longer than this server allows",
+            "send less per request, or ask the administrator about --request-timeout",
+        )
+        .into_response(),
+        _ => response,
+    }
+}
+
 /// Rejections of axum's own extractors, answered in the same JSON shape as every error.
 macro_rules! from_rejection {
     ($($t:ty => $what:literal, $hint:literal;)*) => {$(

@@ -4,10 +4,14 @@
 //! may call a route, `error` the one error type.
 
 mod accounts;
+mod admin;
 mod audit;
 mod auth;
 mod error;
 mod health;
+mod identify;
+mod import;
+mod inbox;
 mod openapi;
 mod pages;
 mod routes;
@@ -31,6 +35,7 @@ use tower_http::timeout::TimeoutLayer;
 use tower_http::trace::{DefaultOnResponse, TraceLayer};
 use tracing::Level;
 
+pub use inbox::Inbox;
 pub use routes::RouteInfo;
 use state::AppState;
 pub use state::Options;
@@ -44,6 +49,10 @@ pub fn routes() -> routes::Routes {
         .merge(audit::router())
         .merge(accounts::router())
         .merge(openapi::router())
+        // The API routes added with identify, find, import and check.
+        .merge(identify::router())
+        .merge(import::router())
+        .merge(admin::router())
         .merge(pages::router())
 }
 
@@ -93,6 +102,8 @@ fn app(state: AppState) -> Router {
             header::CACHE_CONTROL,
             HeaderValue::from_static("no-store"),
         ))
+        // The body limit's 413 and the timeout's 408 come as JSON like every error.
+        .layer(axum::middleware::map_response(error::plain_to_json))
         .layer(RequestBodyLimitLayer::new(options.max_body))
         .layer(TimeoutLayer::with_status_code(
             StatusCode::REQUEST_TIMEOUT,
@@ -127,27 +138,49 @@ async fn method_not_allowed() -> error::ApiError {
     )
 }
 
-/// Refuses a non-loopback address unless a TLS proxy is declared in front. TLS inside the
-/// server is not built yet, so `--tls-cert`/`--tls-key` are refused with a hint.
-pub fn check_address(options: &Options, tls_given: bool) -> anyhow::Result<()> {
-    if tls_given {
-        return Err(whorl::Error::invalid(
-            "this build of whorl serve does not terminate TLS itself",
-            "put a TLS-terminating reverse proxy in front and pass --behind-tls-proxy, or serve on 127.0.0.1",
-        )
-        .into());
-    }
-    if !options.address.ip().is_loopback() && !options.behind_tls_proxy {
+/// Refuses a non-loopback address unless the server terminates TLS itself (`--tls-cert`,
+/// `--tls-key`) or a TLS proxy is declared in front.
+pub fn check_address(options: &Options) -> anyhow::Result<()> {
+    if !options.address.ip().is_loopback() && !options.behind_tls_proxy && options.tls.is_none() {
         return Err(whorl::Error::invalid(
             format!(
                 "{} is not a loopback address: passwords and session cookies would cross the network unencrypted",
                 options.address
             ),
-            "serve on 127.0.0.1 (the default), or put a TLS-terminating reverse proxy in front and pass --behind-tls-proxy",
+            "serve on 127.0.0.1 (the default), give --tls-cert and --tls-key, or put a TLS-terminating reverse proxy in front and pass --behind-tls-proxy",
         )
         .into());
     }
     Ok(())
+}
+
+/// The server's TLS settings from PEM files: rustls with the ring provider, TLS 1.2 and 1.3
+/// with rustls's default cipher suites, HTTP/1.1 and HTTP/2 offered by ALPN (RFC 7301).
+async fn tls_config(
+    cert: &std::path::Path,
+    key: &std::path::Path,
+) -> anyhow::Result<axum_server::tls_rustls::RustlsConfig> {
+    let _ = rustls::crypto::ring::default_provider().install_default();
+    for (file, what) in [(cert, "certificate"), (key, "private key")] {
+        if !file.is_file() {
+            return Err(whorl::Error::input(
+                whorl::error::Location::file(file),
+                format!("the TLS {what} file cannot be read"),
+                "give PEM files: --tls-cert the certificate chain, --tls-key its private key",
+            )
+            .into());
+        }
+    }
+    axum_server::tls_rustls::RustlsConfig::from_pem_file(cert, key)
+        .await
+        .map_err(|e| {
+            whorl::Error::input(
+                whorl::error::Location::file(cert),
+                format!("the TLS certificate and key were not accepted: {e}"),
+                "give a PEM certificate chain (--tls-cert) and the PEM private key that belongs to it (--tls-key)",
+            )
+            .into()
+        })
 }
 
 /// Serves the library until SIGTERM or SIGINT; requests in flight (writes among them) finish
@@ -163,6 +196,10 @@ pub fn run(options: Options) -> anyhow::Result<()> {
     // Fail now, not at the first request, when the folder is not a library (this also
     // migrates it to the current schema).
     whorl::library::Library::open(&options.library)?;
+    let mut options = options;
+    if let Some(inbox) = &mut options.inbox {
+        inbox.account = inbox.prepare(&options.library)?;
+    }
     let runtime = tokio::runtime::Builder::new_multi_thread()
         .enable_all()
         .build()
@@ -171,20 +208,45 @@ pub fn run(options: Options) -> anyhow::Result<()> {
 }
 
 async fn serve(options: Options) -> anyhow::Result<()> {
+    let tls = match &options.tls {
+        Some((cert, key)) => Some(tls_config(cert, key).await?),
+        None => None,
+    };
     let listener = tokio::net::TcpListener::bind(options.address)
         .await
         .map_err(|e| whorl::Error::io(format!("listening on {}", options.address), e))?;
     let bound = listener.local_addr()?;
     // The first line on stdout names the address (a port of 0 picks a free one).
-    println!("listening on http://{bound}");
-    tracing::info!(address = %bound, library = %options.library.display(), "serving");
+    let scheme = if tls.is_some() { "https" } else { "http" };
+    println!("listening on {scheme}://{bound}");
+    tracing::info!(address = %bound, library = %options.library.display(), tls = tls.is_some(), "serving");
+    let request_timeout = options.request_timeout;
+    if let Some(inbox) = options.inbox.clone() {
+        tracing::info!(inbox = %inbox.dir.display(), account = %inbox.account, "watching the drop folder");
+        tokio::spawn(inbox::watch(inbox, options.library.clone()));
+    }
     let state = AppState::new(options);
-    axum::serve(
-        listener,
-        app(state).into_make_service_with_connect_info::<SocketAddr>(),
-    )
-    .with_graceful_shutdown(shutdown_signal())
-    .await?;
+    let app = app(state).into_make_service_with_connect_info::<SocketAddr>();
+    match tls {
+        None => {
+            axum::serve(listener, app)
+                .with_graceful_shutdown(shutdown_signal())
+                .await?
+        }
+        Some(config) => {
+            let handle = axum_server::Handle::new();
+            let stopper = handle.clone();
+            tokio::spawn(async move {
+                shutdown_signal().await;
+                // Requests in flight finish (within the request timeout); no new ones start.
+                stopper.graceful_shutdown(Some(request_timeout));
+            });
+            axum_server::from_tcp_rustls(listener.into_std()?, config)
+                .handle(handle)
+                .serve(app)
+                .await?
+        }
+    }
     tracing::info!("stopped: every request in flight has finished");
     Ok(())
 }

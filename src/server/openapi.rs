@@ -5,7 +5,7 @@ use axum::routing::get;
 use utoipa::OpenApi;
 
 use super::routes::{Access, Routes};
-use super::{accounts, audit, health, search, session, spectra};
+use super::{accounts, admin, audit, health, identify, import, search, session, spectra};
 
 /// The OpenAPI document, assembled from the `#[utoipa::path]` annotation beside each handler.
 #[derive(OpenApi)]
@@ -25,19 +25,29 @@ use super::{accounts, audit, health, search, session, spectra};
         spectra::list,
         spectra::submit,
         accounts::list,
+        accounts::set_role,
         spectra::show,
         spectra::withdraw,
         spectra::review,
         audit::log,
         audit::stats,
         openapi,
+        identify::identify_sample,
+        identify::find,
+        import::import,
+        spectra::revise,
+        admin::check,
     ),
     components(schemas(
         session::SignIn,
         search::SearchForm,
         spectra::SubmitForm,
         spectra::Withdrawal,
-        spectra::SignOff
+        spectra::SignOff,
+        spectra::Revision,
+        identify::IdentifyForm,
+        import::ImportForm,
+        accounts::RoleChange
     ))
 )]
 pub struct ApiDoc;

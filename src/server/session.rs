@@ -279,6 +279,8 @@ mod tests {
             library: root.clone(),
             address: "127.0.0.1:0".parse().unwrap(),
             behind_tls_proxy: false,
+            tls: None,
+            inbox: None,
             idle_timeout: Duration::from_secs(60),
             session_lifetime: Duration::from_secs(3600),
             max_body: 1 << 20,

@@ -9,7 +9,7 @@ use axum::http::StatusCode;
 use axum::routing::{get, post};
 use serde::Deserialize;
 use serde_json::{Value, json};
-use whorl::library::{Capability, Decision, Metadata, Outcome, Submission, stage};
+use whorl::library::{Capability, Decision, Metadata, MetadataPatch, Outcome, Submission, stage};
 use whorl::technique::Technique;
 
 use super::auth::{Allowed, ToCurate, ToSignOff, ToSubmit, ToView};
@@ -35,6 +35,12 @@ pub fn router() -> Routes {
             "/api/v1/spectra/{id}/withdraw",
             Access::Needs(Capability::Curate),
             post(withdraw),
+        )
+        .add(
+            "POST",
+            "/api/v1/spectra/{id}/revise",
+            Access::Needs(Capability::Curate),
+            post(revise),
         )
         .add(
             "POST",
@@ -303,4 +309,81 @@ pub async fn review(
         })
         .await?;
     Ok(Json(json!(review)))
+}
+
+/// A revision of a spectrum's metadata: fields left out stay as they are, an empty string
+/// clears one; `synonyms` and `tags` replace the lists; `extra` sets fields (a null value
+/// removes one). The reviser is the signed-in account.
+#[derive(Deserialize, utoipa::ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct Revision {
+    /// Why the revision is made (required; kept in the audit trail).
+    pub reason: String,
+    /// New compound name.
+    pub name: Option<String>,
+    /// New formula.
+    pub formula: Option<String>,
+    /// New CAS RN.
+    pub cas: Option<String>,
+    /// The synonyms, replacing the old ones.
+    pub synonyms: Option<Vec<String>>,
+    /// The tags, replacing the old ones.
+    pub tags: Option<Vec<String>>,
+    /// New NMR solvent (the spectrum is prepared again).
+    pub solvent: Option<String>,
+    /// New source.
+    pub source: Option<String>,
+    /// New instrument.
+    pub instrument: Option<String>,
+    /// New acquisition date.
+    pub acquired: Option<String>,
+    /// New notes.
+    pub notes: Option<String>,
+    /// Extra fields to set, or to remove with null.
+    #[serde(default)]
+    pub extra: std::collections::BTreeMap<String, Option<String>>,
+}
+
+/// Revises a spectrum's metadata as the signed-in account, as `whorl revise` does: a new
+/// revision, pending review again.
+#[utoipa::path(post, path = "/api/v1/spectra/{id}/revise", tag = "spectra",
+    params(("id" = i64, Path, description = "Spectrum id")), request_body = Revision,
+    responses((status = 200, description = "The new revision's number"),
+        (status = 400, description = "A bad field, no reason, or a withdrawn spectrum"),
+        (status = 403, description = "The role may not curate"),
+        (status = 404, description = "No such spectrum")))]
+pub async fn revise(
+    State(state): State<AppState>,
+    Allowed(caller, ..): Allowed<ToCurate>,
+    id: Result<Path<i64>, PathRejection>,
+    body: Result<Json<Revision>, JsonRejection>,
+) -> Result<Json<Value>, ApiError> {
+    let (Path(id), Json(body)) = (id?, body?);
+    if body.reason.trim().is_empty() {
+        return Err(ApiError::input(
+            "a revision needs a reason",
+            "send \"reason\": why the metadata changes",
+        ));
+    }
+    let patch = MetadataPatch {
+        name: body.name,
+        formula: body.formula,
+        cas: body.cas,
+        synonyms: body.synonyms,
+        tags: body.tags,
+        solvent: body.solvent,
+        source: body.source,
+        instrument: body.instrument,
+        acquired: body.acquired,
+        notes: body.notes,
+        extra: body.extra.into_iter().collect(),
+    };
+    let by = caller.account.name.clone();
+    let reason = body.reason;
+    let number = state
+        .write_as(move |lib| Ok(lib.revise(id, &patch, &by, Some(reason.as_str()))?))
+        .await?;
+    Ok(Json(json!({
+        "spectrum": id, "revision": number, "status": "pending", "by": caller.account.name
+    })))
 }

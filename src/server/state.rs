@@ -18,6 +18,10 @@ pub struct Options {
     pub address: std::net::SocketAddr,
     /// A TLS-terminating proxy sits in front (cookies are then marked Secure).
     pub behind_tls_proxy: bool,
+    /// The server terminates TLS itself: certificate chain and private key (PEM files).
+    pub tls: Option<(PathBuf, PathBuf)>,
+    /// The drop folder watched, and the account its drops are imported as.
+    pub inbox: Option<super::inbox::Inbox>,
     /// A session ends after this long without a request.
     pub idle_timeout: Duration,
     /// A session ends this long after sign-in, whatever its use.
@@ -102,6 +106,6 @@ impl AppState {
 
     /// Whether cookies must be marked Secure (the client reaches us over TLS).
     pub fn secure_cookies(&self) -> bool {
-        self.options.behind_tls_proxy
+        self.options.behind_tls_proxy || self.options.tls.is_some()
     }
 }

@@ -26,6 +26,7 @@ mod report;
 mod search;
 mod search_science;
 mod serve;
+mod serve_api;
 mod show;
 mod stats;
 mod trade_facts;

@@ -9,7 +9,7 @@ use serde_json::{Value, json};
 
 use crate::util::{Lab, hint, seed};
 
-const PASSWORDS: [(&str, &str, &str); 5] = [
+pub(crate) const PASSWORDS: [(&str, &str, &str); 5] = [
     ("v.viewer", "reader", "viewer passphrase one"),
     ("s.submitter", "submitter", "submitter passphrase two"),
     ("g.signer", "signer", "signer passphrase three"),
@@ -18,7 +18,7 @@ const PASSWORDS: [(&str, &str, &str); 5] = [
 ];
 
 /// Sets an account's password through stdin (not a terminal), as scripts do.
-fn set_password(lab: &Lab, name: &str, password: &str) -> std::process::Output {
+pub(crate) fn set_password(lab: &Lab, name: &str, password: &str) -> std::process::Output {
     let mut child = lab
         .command(&["account", "password", name])
         .stdin(Stdio::piped())
@@ -31,7 +31,7 @@ fn set_password(lab: &Lab, name: &str, password: &str) -> std::process::Output {
 }
 
 /// A lab with the seed library (all verified) and one account per role, each with a password.
-fn lab_with_accounts() -> Lab {
+pub(crate) fn lab_with_accounts() -> Lab {
     let lab = Lab::seeded();
     for (name, role, password) in PASSWORDS {
         lab.ok(&["account", "add", name, "--role", role]);
@@ -42,17 +42,24 @@ fn lab_with_accounts() -> Lab {
 }
 
 /// The real server on a free loopback port; killed when dropped if the test did not stop it.
-struct Server {
-    child: Child,
-    base: String,
+pub(crate) struct Server {
+    pub(crate) child: Child,
+    pub(crate) base: String,
     log: std::path::PathBuf,
 }
 
 impl Server {
-    fn start(lab: &Lab) -> Server {
+    pub(crate) fn start(lab: &Lab) -> Server {
+        Server::start_with(lab, &[])
+    }
+
+    /// The server with more options of `whorl serve`.
+    pub(crate) fn start_with(lab: &Lab, more: &[&str]) -> Server {
         let log = lab.path("server.log");
+        let mut args = vec!["serve", "--address", "127.0.0.1:0"];
+        args.extend_from_slice(more);
         let mut child = lab
-            .command(&["serve", "--address", "127.0.0.1:0"])
+            .command(&args)
             .stdout(Stdio::piped())
             .stderr(std::fs::File::create(&log).unwrap())
             .spawn()
@@ -74,16 +81,16 @@ impl Server {
         Server { child, base, log }
     }
 
-    fn url(&self, path: &str) -> String {
+    pub(crate) fn url(&self, path: &str) -> String {
         format!("{}{path}", self.base)
     }
 
-    fn log(&self) -> String {
+    pub(crate) fn log(&self) -> String {
         std::fs::read_to_string(&self.log).unwrap()
     }
 
     /// Sends SIGTERM and waits for the process to end.
-    fn terminate(&mut self) -> std::process::ExitStatus {
+    pub(crate) fn terminate(&mut self) -> std::process::ExitStatus {
         let pid = self.child.id().to_string();
         let status = std::process::Command::new("kill")
             .args(["-TERM", &pid])
@@ -94,7 +101,7 @@ impl Server {
     }
 
     /// Waits (at most 20 s) for the process to end.
-    fn wait_exit(&mut self) -> std::process::ExitStatus {
+    pub(crate) fn wait_exit(&mut self) -> std::process::ExitStatus {
         let started = Instant::now();
         loop {
             if let Some(s) = self.child.try_wait().unwrap() {
@@ -116,7 +123,7 @@ impl Drop for Server {
     }
 }
 
-fn agent() -> ureq::Agent {
+pub(crate) fn agent() -> ureq::Agent {
     ureq::Agent::config_builder()
         .http_status_as_error(false)
         .build()
@@ -124,13 +131,13 @@ fn agent() -> ureq::Agent {
 }
 
 /// An answer: status, headers, body as JSON (Null when empty).
-struct Answer {
-    status: u16,
-    headers: ureq::http::HeaderMap,
-    body: Value,
+pub(crate) struct Answer {
+    pub(crate) status: u16,
+    pub(crate) headers: ureq::http::HeaderMap,
+    pub(crate) body: Value,
 }
 
-fn answer(r: Result<ureq::http::Response<ureq::Body>, ureq::Error>) -> Answer {
+pub(crate) fn answer(r: Result<ureq::http::Response<ureq::Body>, ureq::Error>) -> Answer {
     let mut r = r.expect("an HTTP answer");
     let status = r.status().as_u16();
     let headers = r.headers().clone();
@@ -149,13 +156,19 @@ fn answer(r: Result<ureq::http::Response<ureq::Body>, ureq::Error>) -> Answer {
 
 /// How a request proves who sends it.
 #[derive(Clone, Copy)]
-enum Auth<'a> {
+pub(crate) enum Auth<'a> {
     None,
     Cookie(&'a str),
     Bearer(&'a str),
 }
 
-fn call(server: &Server, method: &str, path: &str, auth: Auth, body: Option<Value>) -> Answer {
+pub(crate) fn call(
+    server: &Server,
+    method: &str,
+    path: &str,
+    auth: Auth,
+    body: Option<Value>,
+) -> Answer {
     let a = agent();
     let url = server.url(path);
     let auth_header = match auth {
@@ -185,7 +198,7 @@ fn call(server: &Server, method: &str, path: &str, auth: Auth, body: Option<Valu
 }
 
 /// Signs in; returns the answer and the `name=value` of the session cookie, if one was set.
-fn sign_in(server: &Server, name: &str, password: &str) -> (Answer, Option<String>) {
+pub(crate) fn sign_in(server: &Server, name: &str, password: &str) -> (Answer, Option<String>) {
     let a = call(
         server,
         "POST",
@@ -201,7 +214,11 @@ fn sign_in(server: &Server, name: &str, password: &str) -> (Answer, Option<Strin
 }
 
 /// A multipart/form-data body (RFC 7578) with text fields and one file part.
-fn multipart(fields: &[(&str, &str)], file_name: &str, file: &[u8]) -> (String, Vec<u8>) {
+pub(crate) fn multipart(
+    fields: &[(&str, &str)],
+    file_name: &str,
+    file: &[u8],
+) -> (String, Vec<u8>) {
     let boundary = "whorl-test-boundary-7f3a9c";
     let mut body = Vec::new();
     for (k, v) in fields {
@@ -222,7 +239,7 @@ fn multipart(fields: &[(&str, &str)], file_name: &str, file: &[u8]) -> (String, 
 }
 
 /// The routes the router holds, from `whorl serve --print-routes`.
-fn routes(lab: &Lab) -> Vec<Value> {
+pub(crate) fn routes(lab: &Lab) -> Vec<Value> {
     serde_json::from_str::<Value>(&lab.ok(&["serve", "--print-routes"]))
         .unwrap()
         .as_array()
@@ -231,12 +248,12 @@ fn routes(lab: &Lab) -> Vec<Value> {
 }
 
 /// A path with its parameters filled by an id no spectrum has.
-fn concrete(path: &str) -> String {
-    path.replace("{id}", "999999")
+pub(crate) fn concrete(path: &str) -> String {
+    path.replace("{id}", "999999").replace("{name}", "nobody")
 }
 
 /// What each role may do, as the README's table of roles says (our own documented policy).
-fn documented_allows(role: &str, capability: &str) -> bool {
+pub(crate) fn documented_allows(role: &str, capability: &str) -> bool {
     match role {
         "reader" => capability == "view",
         "submitter" => matches!(capability, "view" | "submit"),

@@ -215,7 +215,12 @@ async fn upload(
     if let Some(r) = b.csrf_refused(form.field("csrf")) {
         return r;
     }
-    let Some((file_name, bytes)) = form.file.clone() else {
+    let Some((file_name, bytes)) = form
+        .files
+        .iter()
+        .find(|f| f.0 == "file")
+        .map(|(_, name, bytes)| (name.clone(), bytes.clone()))
+    else {
         return b.fail(
             "Search refused",
             ApiError::input("no file was chosen", "choose the unknown's spectrum file"),
