@@ -220,7 +220,10 @@ fn every_state_changing_route_is_allowed_exactly_to_its_roles() {
         let Some(capability) = r["access"]["needs"].as_str() else {
             continue;
         };
-        if method == "GET" {
+        // The pages take no tokens, only a browser session and its form token: their forms
+        // are walked by `every_page_form_refuses_a_missing_or_wrong_csrf_token` below and
+        // driven in a real browser by scripts/browser-flows.
+        if method == "GET" || !path.starts_with("/api/") {
             continue;
         }
         for (_, role, token) in &tokens {
@@ -1246,5 +1249,70 @@ fn the_server_killed_twenty_times_keeps_every_acknowledged_write_and_checks() {
     assert!(
         !signed.lock().unwrap().is_empty(),
         "no sign-off was acknowledged"
+    );
+}
+
+/// Every page form that changes state (the router's POST routes outside `/api/`, bar the
+/// public sign-in, which ties its form to the browser by a cookie of its own) refuses a
+/// missing or a wrong CSRF token from a signed-in session before it does anything else:
+/// 403, the refusal page, the library unchanged (OWASP Cross-Site Request Forgery Prevention
+/// Cheat Sheet, synchronizer token pattern). The routes come from the router, so a new form
+/// cannot be left out.
+#[test]
+fn every_page_form_refuses_a_missing_or_wrong_csrf_token() {
+    let lab = lab_with_accounts();
+    let id = pending(&lab, 1);
+    let server = Server::start(&lab);
+    let (name, _, password) = PASSWORDS.iter().find(|p| p.1 == "admin").unwrap();
+    let (_, cookie) = crate::serve::sign_in(&server, name, password);
+    let cookie = cookie.expect("a session cookie");
+    let mut checked = 0;
+    for r in routes(&lab) {
+        let (method, path) = (r["method"].as_str().unwrap(), r["path"].as_str().unwrap());
+        if method != "POST" || path.starts_with("/api/") || r["access"] == "public" {
+            continue;
+        }
+        let concrete = path
+            .replace("{id}", &id.to_string())
+            .replace("{key}", "0123456789abcdef");
+        for token in [None, Some("forged-token")] {
+            let before = lab.state();
+            let csrf = token.map(|t| format!("csrf={t}&")).unwrap_or_default();
+            let req = agent()
+                .post(server.url(&concrete))
+                .header("Cookie", &cookie);
+            let sent = if path == "/search" {
+                let mut fields = vec![("technique", "ir")];
+                if let Some(t) = token {
+                    fields.push(("csrf", t));
+                }
+                let (ct, body) = crate::serve::multipart(&fields, "u.csv", &distinct_ir(7));
+                req.header("Content-Type", &ct).send(&body[..])
+            } else {
+                let body = format!(
+                    "{csrf}technique=ir&decision=approve&password={}",
+                    password.replace(' ', "+")
+                );
+                req.header("Content-Type", "application/x-www-form-urlencoded")
+                    .send(body.as_bytes())
+            };
+            let mut answer = sent.expect("an HTTP answer");
+            let status = answer.status().as_u16();
+            let text = answer.body_mut().read_to_string().unwrap();
+            assert_eq!(status, 403, "{method} {path} with {token:?}: {text}");
+            assert!(
+                text.contains("security token is missing or belongs to another session"),
+                "{path}: {text}"
+            );
+            assert_eq!(lab.state(), before, "{path} changed the library");
+            checked += 1;
+        }
+    }
+    // The search form, searching again, the sign-off and the sign-out, twice each.
+    assert!(checked >= 8, "only {checked} refusals");
+    // The pending spectrum is still pending: no sign-off went through.
+    assert_eq!(
+        lab.json(&["show", &id.to_string()])["spectrum"]["status"],
+        "pending"
     );
 }
