@@ -2,6 +2,13 @@
 
 use std::io::{IsTerminal, Write};
 
+/// Text from the library or a file made safe for a terminal: control characters (ESC, which
+/// starts an ECMA-48 control sequence, a newline that would forge a line) and invisible
+/// format characters written as escapes, nothing cut. Every text output goes through it.
+pub fn terminal_text(text: &str) -> String {
+    whorl::error::excerpt(text, usize::MAX)
+}
+
 /// A table whose columns are padded to their widest cell.
 pub struct Table {
     headers: Vec<String>,
