@@ -29,9 +29,11 @@ impl Table {
         }
     }
 
-    /// Adds a row.
+    /// Adds a row. Every cell goes through [`terminal_text`]: a stored name cannot forge a
+    /// line or send an escape sequence to the terminal.
     pub fn row(&mut self, cells: Vec<String>) {
-        self.rows.push(cells);
+        self.rows
+            .push(cells.iter().map(|c| terminal_text(c)).collect());
     }
 
     /// Writes the table.

@@ -26,7 +26,7 @@ pub fn run(args: WithdrawArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         std::io::stdout().lock(),
         "spectrum {} withdrawn: {}",
         args.id,
-        args.reason.trim()
+        super::output::terminal_text(args.reason.trim())
     )?;
     Ok(ExitCode::SUCCESS)
 }
