@@ -8,8 +8,14 @@ Generates a few thousand synthetic IR spectra and a manifest, starts `whorl impo
     its import event, and nothing of a spectrum exists without the others;
 until at least --kills imports have been killed mid-way. A final re-run must complete the import.
 
+With --commands N it then kills each other write command N times at random moments (review,
+revise, withdraw, reinstate, export, recipe change, bundle import, cache rebuild by `check`),
+requiring after each that `check` finds nothing (a removed cache is derived data), that no
+spectrum or event was lost, and that no export left its partial folder once the library was
+opened again. A kill that lands after the command finished is not counted.
+
 Standard library only. Usage:
-    python3 scripts/crash-test.py [--whorl target/debug/whorl] [--files 3000] [--kills 20]
+    python3 scripts/crash-test.py [--whorl target/debug/whorl] [--files 3000] [--kills 20] [--commands 20]
 """
 
 import argparse
@@ -17,6 +23,7 @@ import json
 import math
 import os
 import random
+import shutil
 import signal
 import sqlite3
 import subprocess
@@ -43,6 +50,18 @@ def make_files(folder, n, rng):
         f.write("\n".join(rows) + "\n")
 
 
+def make_more(folder, start, n, rng):
+    """Files for the second library's bundle, named t#####.csv."""
+    for i in range(start, start + n):
+        bands = [(rng.uniform(500, 3600), rng.uniform(0.1, 1.0), rng.uniform(4, 30)) for _ in range(5)]
+        lines = ["wavenumber,absorbance"]
+        for k in range(901):
+            x = 4000 - 4 * k
+            lines.append(f"{x},{0.01 + sum(h * math.exp(-(((x - c) / w) ** 2)) for c, h, w in bands):.5f}")
+        with open(os.path.join(folder, f"spectra/t{i:05d}.csv"), "w") as f:
+            f.write("\n".join(lines) + "\n")
+
+
 def whole_or_absent(db):
     """Every spectrum has its revision, prepared form and event, and nothing is orphaned."""
     con = sqlite3.connect(db)
@@ -66,6 +85,96 @@ def whole_or_absent(db):
         con.close()
 
 
+def whorl_json(whorl, lib, env, *args):
+    out = subprocess.run([whorl, "--library", lib, *args, "--json"], env=env, capture_output=True, text=True)
+    return json.loads(out.stdout) if out.returncode == 0 else None
+
+
+def write_commands(whorl, lib, env, rng, kills, data):
+    """Kill every other write command at random moments: after each kill, `check` must find
+    nothing, no spectrum or event may be lost, and no export may leave a folder behind once
+    the library is opened again. Returns the kills landed per command."""
+    db = os.path.join(lib, "library.sqlite")
+
+    def ids(status):
+        con = sqlite3.connect(db)
+        try:
+            return [r[0] for r in con.execute("SELECT id FROM spectrum WHERE status = ? ORDER BY id", (status,))]
+        finally:
+            con.close()
+
+    def counts():
+        con = sqlite3.connect(db)
+        try:
+            return con.execute("SELECT count(*) FROM spectrum").fetchone()[0], con.execute("SELECT count(*) FROM event").fetchone()[0]
+        finally:
+            con.close()
+
+    # A second library's bundle, for the bundle import.
+    source = os.path.join(data, "source")
+    subprocess.run([whorl, "--library", source, "init"], check=True, env=env, stdout=subprocess.DEVNULL)
+    subprocess.run([whorl, "--library", source, "import", os.path.join(data, "manifest2.csv")], env=env,
+                   stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    bundle = os.path.join(data, "bundle")
+    subprocess.run([whorl, "--library", source, "export", bundle], check=True, env=env, stdout=subprocess.DEVNULL)
+
+    exports = os.path.join(data, "exports")
+    os.makedirs(exports, exist_ok=True)
+    landed = {}
+    commands = {
+        "review": lambda n: ["review", str(rng.choice(ids("pending"))), "--approve", "--by", "r.reviewer"],
+        "revise": lambda n: ["revise", str(rng.choice(ids("pending") + ids("verified"))), "--note", f"note {n}",
+                             "--reason", "crash test", "--by", "e.editor"],
+        "withdraw": lambda n: ["withdraw", str(rng.choice(ids("pending") + ids("verified"))), "--reason", "crash test",
+                               "--by", "q.manager"],
+        "reinstate": lambda n: ["reinstate", str(rng.choice(ids("withdrawn"))), "--reason", "crash test", "--by", "c.curator"],
+        "export": lambda n: ["export", os.path.join(exports, f"e{n}")],
+        "recipe": lambda n: ["recipe", "ir", "--als-lambda", str(rng.choice([1e4, 1e5, 1e6])), "--reason", "crash test"],
+        "bundle import": lambda n: ["import", bundle, "--untrusted"],
+        "cache rebuild": lambda n: ["check"],
+    }
+    for name, make in commands.items():
+        runs, kills, max_delay = 0, 0, 0.3
+        while kills < KILLS[0] and runs < 8 * KILLS[0]:
+            runs += 1
+            if name == "review" and not ids("pending"):
+                continue
+            if name == "reinstate" and not ids("withdrawn"):
+                subprocess.run([whorl, "--library", lib, "withdraw", str(ids("pending")[0]), "--reason", "setup", "--by", "q"],
+                               env=env, stdout=subprocess.DEVNULL)
+            if name == "cache rebuild":
+                shutil.rmtree(os.path.join(lib, "cache"), ignore_errors=True)
+            before = counts()
+            t = time.time()
+            p = subprocess.Popen([whorl, "--library", lib, *make(runs)], env=env,
+                                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+            delay = rng.uniform(0.005, max_delay)
+            time.sleep(delay)
+            if p.poll() is None:
+                os.kill(p.pid, signal.SIGKILL)
+                p.wait()
+                kills += 1
+            else:
+                # Finished first: aim earlier next time.
+                max_delay = max(0.01, min(max_delay, (time.time() - t)) * 0.9)
+            check = subprocess.run([whorl, "--library", lib, "check", "--json"], env=env, capture_output=True, text=True)
+            report = json.loads(check.stdout) if check.stdout else {"findings": ["no report"]}
+            after = counts()
+            partial = [f for f in os.listdir(exports) if f.endswith(".partial")]
+            findings = [f for f in report["findings"] if not f["record"].startswith("cache:")]
+            if check.returncode not in (0, 5) or findings or after[0] < before[0] or after[1] < before[1] or partial:
+                print(check.stdout, check.stderr, partial, before, after, file=sys.stderr)
+                sys.exit(f"FAIL: {name}: the library is not whole after a kill")
+        landed[name] = (kills, runs)
+        print(f"{name}: {kills} kills in {runs} runs; check clean, nothing lost, no partial export after each", flush=True)
+        if kills < KILLS[0]:
+            sys.exit(f"FAIL: {name}: only {kills} kills landed in {runs} runs")
+    return landed
+
+
+KILLS = [3]
+
+
 def main():
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--whorl", default="target/debug/whorl")
@@ -73,6 +182,9 @@ def main():
     ap.add_argument("--kills", type=int, default=20)
     ap.add_argument("--batch", type=int, default=50, help="spectra per transaction (WHORL_IMPORT_BATCH)")
     ap.add_argument("--seed", type=int, default=20261202)
+    ap.add_argument("--commands", type=int, default=0, metavar="N",
+                    help="after the import, kill every other write command N times (review, revise, withdraw, "
+                         "reinstate, export, recipe, bundle import, cache rebuild)")
     args = ap.parse_args()
     whorl = os.path.abspath(args.whorl)
     rng = random.Random(args.seed)
@@ -136,6 +248,16 @@ def main():
         if final.returncode != 0 or spectra != args.files or problems or check.returncode != 0:
             sys.exit("FAIL: the final re-run did not complete the import")
         print(f"PASS: {kills} kills survived, library whole after each, final import complete")
+        if args.commands:
+            KILLS[0] = args.commands
+            with open(os.path.join(data, "manifest2.csv"), "w") as f:
+                f.write("file,technique,name\n")
+                for i in range(args.files, args.files + 200):
+                    f.write(f"spectra/t{i:05d}.csv,ir,other compound {i:05d}\n")
+            make_more(data, args.files, 200, rng)
+            landed = write_commands(whorl, lib, env, rng, args.commands, data)
+            total = sum(k for k, _ in landed.values())
+            print(f"PASS: {total} kills across {len(landed)} write commands, library whole after each")
 
 
 if __name__ == "__main__":

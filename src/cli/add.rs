@@ -129,6 +129,23 @@ pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         .store(std::slice::from_ref(&staged), &actor, true)?
         .pop()
         .expect("one outcome per spectrum")?;
+    if let Outcome::AlreadyPresent { spectrum_id } = outcome
+        && lib.spectrum(spectrum_id)?.status == whorl::spectrum::Status::Withdrawn
+    {
+        let reason = lib.withdrawn_reason(spectrum_id)?.unwrap_or_default();
+        // Adding it again would not bring it back: say what it is and how it comes back.
+        return Err(whorl::Error::invalid(
+            format!(
+                "{}: the same raw points are spectrum {spectrum_id}, which is withdrawn ({})",
+                whorl::error::excerpt(&args.file.display().to_string(), 120),
+                whorl::error::excerpt(&reason, 200)
+            ),
+            format!(
+                "to use it again, bring it back with `whorl reinstate {spectrum_id} --reason TEXT` (it returns pending a new sign-off)"
+            ),
+        )
+        .into());
+    }
     let mut out = std::io::stdout().lock();
     for w in &warnings {
         eprintln!("warning: {}: {w}", args.file.display());

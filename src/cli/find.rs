@@ -21,11 +21,27 @@ pub struct FindArgs {
 pub fn run(args: FindArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
     let rows = lib.find(&args.query, args.top)?;
+    // A derived store that is behind never answers without saying so.
+    let behind = lib.text_index_behind();
+    if behind {
+        eprintln!(
+            "warning: the text index is behind the library (another process is writing, or it could not be rebuilt): these results may miss or misstate the newest changes; run the query again, or `whorl check` to rebuild the index"
+        );
+    }
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &rows)?;
     } else if rows.is_empty() {
-        writeln!(out, "nothing matches '{}'", args.query)?;
+        let note = if behind {
+            " in the text index, which is behind the library"
+        } else {
+            ""
+        };
+        writeln!(
+            out,
+            "nothing matches '{}'{note}",
+            output::terminal_text(&whorl::error::excerpt(&args.query, 200))
+        )?;
     } else {
         let mut t = output::Table::new(&[
             ">relevance",

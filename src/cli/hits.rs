@@ -178,20 +178,20 @@ pub fn print_report_styled(
     writeln!(
         out,
         "unknown   {}  ({technique}{solvent}, sha256 {})",
-        r.unknown.file,
+        output::terminal_text(&r.unknown.file),
         output::short(&r.unknown.sha256)
     )?;
     writeln!(
         out,
         "library   {}  (fingerprint {})",
-        r.library.path,
+        output::terminal_text(&r.library.path),
         output::short(&r.library.fingerprint)
     )?;
     let filter = r
         .parameters
         .filter
         .as_deref()
-        .map(|q| format!(", where {q}"))
+        .map(|q| format!(", where {}", output::terminal_text(q)))
         .unwrap_or_default();
     writeln!(
         out,
@@ -246,7 +246,13 @@ pub fn print_report_styled(
     writeln!(out)?;
     for h in &r.hits {
         for n in &h.notes {
-            writeln!(out, "note      hit {} ({}): {n}", h.rank, h.name)?;
+            writeln!(
+                out,
+                "note      hit {} ({}): {}",
+                h.rank,
+                output::terminal_text(&h.name),
+                output::terminal_text(n)
+            )?;
         }
     }
     if r.parameters.explain && r.excluded.is_empty() && r.excluded_count > 0 {
@@ -279,10 +285,19 @@ pub fn print_report_styled(
         )?;
     }
     for w in &r.warnings {
-        writeln!(out, "{}   {w}", paint.warn("warning"))?;
+        writeln!(
+            out,
+            "{}   {}",
+            paint.warn("warning"),
+            output::terminal_text(w)
+        )?;
     }
     if let Some(v) = &r.verdict {
-        writeln!(out, "verdict   {}", v.sentence(&r.confidence))?;
+        writeln!(
+            out,
+            "verdict   {}",
+            output::terminal_text(&v.sentence(&r.confidence))
+        )?;
     }
     writeln!(out, "caution   {}", r.caution)?;
     Ok(())

@@ -85,6 +85,11 @@ fn detail(e: &whorl::library::Event) -> String {
                 .unwrap_or_default()
         ),
         "withdraw" => format!("reason: {}", s("reason")),
+        "reinstate" => format!(
+            "revision {} back to pending; reason: {}",
+            p["revision"],
+            s("reason")
+        ),
         "policy" => format!("allow_self_review = {}", p["allow_self_review"]),
         "init" => "library created".to_string(),
         "recipe" => format!(

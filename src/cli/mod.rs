@@ -26,6 +26,7 @@ mod output;
 mod plot;
 mod policy;
 mod recipe;
+mod reinstate;
 mod replay;
 mod review;
 mod revise;
@@ -129,6 +130,8 @@ pub enum Command {
     Revise(Box<revise::ReviseArgs>),
     /// Take a spectrum out of search, keeping it for history.
     Withdraw(withdraw::WithdrawArgs),
+    /// Bring a withdrawn spectrum back, pending a new sign-off.
+    Reinstate(reinstate::ReinstateArgs),
     /// Print the audit trail, for the library or one spectrum.
     Log(log::LogArgs),
     /// Verify the audit chain, raw data, prepared data and fingerprint.
@@ -242,6 +245,7 @@ pub fn run(
         Command::Review(a) => review::run(a, &ctx),
         Command::Revise(a) => revise::run(*a, &ctx),
         Command::Withdraw(a) => withdraw::run(a, &ctx),
+        Command::Reinstate(a) => reinstate::run(a, &ctx),
         Command::Log(a) => log::run(a, &ctx),
         Command::Check(a) => check::run(a, &ctx),
         Command::Export(a) => export::run(a, &ctx),

@@ -2,6 +2,13 @@
 
 use std::io::{IsTerminal, Write};
 
+/// Text from the library or a file made safe for a terminal: control characters (ESC, which
+/// starts an ECMA-48 control sequence, a newline that would forge a line) and invisible
+/// format characters written as escapes, nothing cut. Every text output goes through it.
+pub fn terminal_text(text: &str) -> String {
+    whorl::error::excerpt(text, usize::MAX)
+}
+
 /// A table whose columns are padded to their widest cell.
 pub struct Table {
     headers: Vec<String>,
@@ -22,9 +29,11 @@ impl Table {
         }
     }
 
-    /// Adds a row.
+    /// Adds a row. Every cell goes through [`terminal_text`]: a stored name cannot forge a
+    /// line or send an escape sequence to the terminal.
     pub fn row(&mut self, cells: Vec<String>) {
-        self.rows.push(cells);
+        self.rows
+            .push(cells.iter().map(|c| terminal_text(c)).collect());
     }
 
     /// Writes the table.

@@ -53,7 +53,7 @@ pub fn run(args: ReplayArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         } else {
             writeln!(out, "the hits differ:")?;
             for d in &r.differences {
-                writeln!(out, "  {d}")?;
+                writeln!(out, "  {}", output::terminal_text(d))?;
             }
         }
         if !r.events_since.is_empty() {
@@ -62,7 +62,11 @@ pub fn run(args: ReplayArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                 writeln!(
                     out,
                     "  #{} {} {} {} by {}",
-                    e.seq, e.at, e.action, e.record, e.actor
+                    e.seq,
+                    e.at,
+                    e.action,
+                    output::terminal_text(&e.record),
+                    output::terminal_text(&e.actor)
                 )?;
             }
         }

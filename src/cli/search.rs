@@ -116,7 +116,10 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         report.verdict = Some(verdict);
     }
     if let Some(path) = &args.save {
-        let text = serde_json::to_string_pretty(&report)? + "\n";
+        // The record keeps the unknown's raw points, so that it replays without the file.
+        let mut record = report.clone();
+        whorl::search::keep_points(&mut record)?;
+        let text = serde_json::to_string_pretty(&record)? + "\n";
         std::fs::write(path, text)
             .map_err(|e| whorl::Error::io(format!("writing {}", path.display()), e))?;
     }

@@ -41,7 +41,15 @@ pub fn run(args: ShowArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         return Ok(ExitCode::SUCCESS);
     }
     let m = &rec.metadata;
-    let mut line = |k: &str, v: &str| writeln!(out, "{k:<14}{v}");
+    // Stored text reaches the terminal escaped: no forged lines, no escape sequences.
+    let mut line = |k: &str, v: &str| {
+        writeln!(
+            out,
+            "{:<14}{}",
+            output::terminal_text(k),
+            output::terminal_text(v)
+        )
+    };
     let which = if rec.revision == current.revision {
         format!("revision {} of {}", rec.revision, current.revision)
     } else {

@@ -41,7 +41,7 @@ pub fn run(args: WithdrawArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             out,
             "spectrum {} withdrawn: {}",
             args.id,
-            args.reason.trim()
+            super::output::terminal_text(args.reason.trim())
         )?;
     }
     Ok(ExitCode::SUCCESS)

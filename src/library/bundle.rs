@@ -140,8 +140,15 @@ impl Library {
             std::fs::remove_dir_all(&staging)
                 .map_err(io(format!("removing {}", staging.display())))?;
         }
+        // Recorded in the library before it is made, so that a killed export's folder is
+        // removed the next time the library is opened, wherever it was being written.
+        let under_way = self.record_export(&staging)?;
         std::fs::create_dir_all(staging.join("spectra"))
             .map_err(io(format!("creating {}", staging.display())))?;
+        if let Some((_, token)) = &under_way {
+            std::fs::write(staging.join(EXPORT_MARK), token)
+                .map_err(io(format!("writing {}", staging.display())))?;
+        }
 
         let extra_keys: BTreeSet<String> = records
             .iter()
@@ -253,12 +260,43 @@ impl Library {
         if dir.exists() {
             std::fs::remove_dir(dir).map_err(io(format!("replacing empty {}", dir.display())))?;
         }
+        if under_way.is_some() {
+            std::fs::remove_file(staging.join(EXPORT_MARK))
+                .map_err(io(format!("writing {}", staging.display())))?;
+        }
         std::fs::rename(&staging, dir)
             .map_err(io(format!("moving the bundle into {}", dir.display())))?;
+        if let Some((record, _)) = under_way {
+            // The bundle is whole; a record left behind would only be skipped later.
+            let _ = std::fs::remove_file(record);
+        }
         Ok(ExportReport {
             dir: dir.to_path_buf(),
             info,
         })
+    }
+
+    /// Records an export under way in the library's `exports-under-way/` folder: a file
+    /// named after this process and the time, holding the staging folder's absolute path;
+    /// returns the record and the token the staging folder's mark holds. `None` for an
+    /// in-memory library.
+    fn record_export(&self, staging: &Path) -> Result<Option<(PathBuf, String)>> {
+        let Some(root) = self.root() else {
+            return Ok(None);
+        };
+        let folder = root.join(EXPORTS_UNDER_WAY);
+        std::fs::create_dir_all(&folder).map_err(io(format!("creating {}", folder.display())))?;
+        let nanos = std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map(|d| d.as_nanos())
+            .unwrap_or_default();
+        let token = format!("{}-{nanos}", std::process::id());
+        let absolute =
+            std::path::absolute(staging).map_err(io(format!("resolving {}", staging.display())))?;
+        let record = folder.join(&token);
+        std::fs::write(&record, absolute.to_string_lossy().as_bytes())
+            .map_err(io(format!("writing {}", record.display())))?;
+        Ok(Some((record, token)))
     }
 
     fn revision_entries(&self, id: i64) -> Result<Vec<RevisionEntry>> {
@@ -349,6 +387,86 @@ pub fn verify_bundle(dir: &Path) -> Result<BundleInfo> {
     verify_listing(dir, &read_sums(dir)?)
 }
 
+/// Whether a file that fails its checksum matches it once its CRLF line endings are turned
+/// back into LF: a text-mode copy changed it, nothing else. Only asked of a file that
+/// already failed, and only of one small enough to read whole (64 MiB).
+fn crlf_converted(path: &Path, sum: &str) -> bool {
+    let small = std::fs::metadata(path).is_ok_and(|m| m.len() <= 64 << 20);
+    let Some(bytes) = small.then(|| std::fs::read(path).ok()).flatten() else {
+        return false;
+    };
+    if !bytes.windows(2).any(|w| w == b"\r\n") {
+        return false;
+    }
+    sha256_hex(&lf_endings(&bytes)) == sum
+}
+
+/// `bytes` with every CRLF turned into LF.
+pub(super) fn lf_endings(bytes: &[u8]) -> Vec<u8> {
+    let mut out = Vec::with_capacity(bytes.len());
+    for (i, &b) in bytes.iter().enumerate() {
+        if !(b == b'\r' && bytes.get(i + 1) == Some(&b'\n')) {
+            out.push(b);
+        }
+    }
+    out
+}
+
+/// The library's folder of exports under way (see [`remove_abandoned_exports`]).
+pub const EXPORTS_UNDER_WAY: &str = "exports-under-way";
+
+/// The file in an export's staging folder that names its record (removed before the rename).
+const EXPORT_MARK: &str = ".whorl-export";
+
+/// Removes the staging folders of exports that were killed before they finished, wherever
+/// they were being written, as the library's `exports-under-way/` records them. A record
+/// whose process still runs is left alone; a folder is removed only if its name ends in
+/// `.partial` and its mark holds the record's token, so an edited record cannot make whorl
+/// delete anything else. Best effort: returns the folders removed.
+pub fn remove_abandoned_exports(root: &Path) -> Vec<PathBuf> {
+    let mut removed = Vec::new();
+    let Ok(entries) = std::fs::read_dir(root.join(EXPORTS_UNDER_WAY)) else {
+        return removed;
+    };
+    for entry in entries.flatten() {
+        let record = entry.path();
+        let token = entry.file_name().to_string_lossy().into_owned();
+        let Some(pid) = token.split('-').next().and_then(|p| p.parse::<u32>().ok()) else {
+            continue;
+        };
+        if pid != std::process::id() && process_runs(pid) {
+            continue;
+        }
+        let Ok(target) = std::fs::read_to_string(&record) else {
+            continue;
+        };
+        let staging = PathBuf::from(target.trim_end_matches('\n'));
+        let ours = staging
+            .file_name()
+            .is_some_and(|n| n.to_string_lossy().ends_with(".partial"))
+            && std::fs::read_to_string(staging.join(EXPORT_MARK)).is_ok_and(|t| t == token);
+        if ours {
+            if std::fs::remove_dir_all(&staging).is_err() {
+                // Kept, to be tried again next time.
+                continue;
+            }
+            removed.push(staging);
+        }
+        let _ = std::fs::remove_file(&record);
+    }
+    removed
+}
+
+/// Whether a process with this id runs (Linux: `/proc/PID`; elsewhere assumed to, so that a
+/// running export is never disturbed and a leftover waits for a rename or manual removal).
+fn process_runs(pid: u32) -> bool {
+    if cfg!(target_os = "linux") {
+        Path::new("/proc").join(pid.to_string()).exists()
+    } else {
+        true
+    }
+}
+
 /// The text of a bundle's `SHA256SUMS`.
 pub(super) fn read_sums(dir: &Path) -> Result<String> {
     let sums_path = dir.join("SHA256SUMS");
@@ -417,6 +535,15 @@ pub(super) fn verify_listing(dir: &Path, text: &str) -> Result<BundleInfo> {
             .and_then(sha256_hex_of)
             .map_err(|e| unreadable(e.to_string()))?;
         if digest != sum.trim() {
+            if crlf_converted(&path, sum.trim()) {
+                return Err(Error::input(
+                    at,
+                    format!(
+                        "{file} does not match its checksum: its line endings were turned into CRLF after export (with LF endings it matches)"
+                    ),
+                    "copy the bundle as binary files (no text-mode transfer, no line-ending conversion such as git's core.autocrlf); nothing was imported",
+                ));
+            }
             return Err(Error::input(
                 at,
                 format!("{file} does not match its checksum"),
@@ -511,6 +638,21 @@ mod tests {
         assert_eq!(files, ["1.ir.csv", "2.ir.csv", "3.ir.csv"]);
         // Nothing is left beside the bundle.
         assert_eq!(std::fs::read_dir(tmp.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn a_file_turned_into_crlf_is_refused_saying_so() {
+        let tmp = tempfile::tempdir().unwrap();
+        let dir = tmp.path().join("bundle");
+        export(&curated(), &dir);
+        let file = dir.join("manifest.csv");
+        let text = std::fs::read_to_string(&file).unwrap();
+        std::fs::write(&file, text.replace('\n', "\r\n")).unwrap();
+        let (_, reason) = refusal(&dir);
+        assert!(
+            reason.contains("line endings were turned into CRLF"),
+            "{reason}"
+        );
     }
 
     #[test]

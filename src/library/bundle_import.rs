@@ -6,7 +6,9 @@ use std::path::Path;
 
 use rayon::prelude::*;
 
-use super::bundle::{BundleInfo, RevisionEntry, content_state_hash, read_sums, verify_listing};
+use super::bundle::{
+    BundleInfo, RevisionEntry, content_state_hash, lf_endings, read_sums, verify_listing,
+};
 use super::events::append_event;
 use super::keys::{SIGNATURE_FILE, read_signature};
 use super::manifest::read_bundle_manifest;
@@ -170,7 +172,11 @@ impl Library {
                 ),
             });
         }
-        if !sig.signs(sums) {
+        // A listing whose line endings a text-mode copy turned into CRLF reads as the same
+        // listing (every line, every checksum); it is the one signed if, with LF restored,
+        // the signature holds.
+        let verifies = sig.signs(sums) || (sums.contains(&b'\r') && sig.signs(&lf_endings(sums)));
+        if !verifies {
             return Ok(Trust::Untrusted {
                 why: format!(
                     "its signature by key {} does not verify: SHA256SUMS was changed after signing",
@@ -229,7 +235,20 @@ fn import_one(
         return Err(bad("current revision (it differs from the row's metadata)"));
     }
     let compound_id = find_or_create_compound(tx, metadata)?;
-    let withdrawn = Some(field("whorl_withdrawn_reason")).filter(|s| !s.is_empty());
+    let withdrawn = Some(field("whorl_withdrawn_reason")).filter(|s| !s.trim().is_empty());
+    // A withdrawal always has its reason (`withdraw` requires one), and only a withdrawn
+    // spectrum has one: a row that says otherwise was edited.
+    if (status == Status::Withdrawn) != withdrawn.is_some() {
+        return Err(Error::input(
+            at(),
+            if withdrawn.is_some() {
+                format!("the row gives a withdrawal reason but its status is {status}")
+            } else {
+                "the row marks the spectrum withdrawn without a reason".to_string()
+            },
+            "a bundle written by `whorl export` gives every withdrawn spectrum its reason and no other; export the bundle again; nothing was imported",
+        ));
+    }
     // A reference from another library is pending local acceptance whatever its status there:
     // its sign-offs were given under another library's policy, by people this one does not
     // know, possibly for a name it no longer has. A withdrawal grants nothing and is kept.
@@ -637,6 +656,54 @@ mod tests {
                 .starts_with("untrusted bundle")
         );
         assert_eq!(lib.spectrum(1).unwrap().status, Status::Pending);
+    }
+
+    #[test]
+    fn a_withdrawal_without_its_reason_is_refused() {
+        // Spectrum 3 of `curated` is withdrawn; its reason cleared, and the checksums made
+        // to fit (the state hash covers only searchable rows).
+        let (_tmp, dir) = exported(&curated());
+        edit_manifest(&dir, "3", "whorl_withdrawn_reason", "");
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        let err = untrusted(&mut lib, &dir).unwrap_err();
+        assert!(
+            err.to_string().contains("withdrawn without a reason"),
+            "{err}"
+        );
+        assert_eq!(rows(&lib, "spectrum"), 0);
+        // A reason on a spectrum that is not withdrawn is refused as well.
+        let (_tmp, dir) = exported(&curated());
+        edit_manifest(&dir, "1", "whorl_withdrawn_reason", "made up");
+        reseal(&dir);
+        let err = untrusted(&mut lib, &dir).unwrap_err();
+        assert!(
+            err.to_string().contains("gives a withdrawal reason"),
+            "{err}"
+        );
+        assert_eq!(rows(&lib, "spectrum"), 0);
+    }
+
+    #[test]
+    fn a_signed_listing_copied_with_crlf_endings_still_verifies() {
+        let key = KeyPair::generate("lab-a").unwrap();
+        let (_tmp, dir) = signed_by(&curated(), &key);
+        let sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        std::fs::write(dir.join("SHA256SUMS"), sums.replace('\n', "\r\n")).unwrap();
+        let mut lib = Library::in_memory("t").unwrap();
+        lib.trust_key(&key.public(), "partner", "admin").unwrap();
+        let done = lib
+            .import_bundle(&dir, "dave", Acceptance::Trusted)
+            .unwrap();
+        assert!(matches!(done.trust, Trust::Signed { .. }));
+        // Any other change to the listing still breaks the signature.
+        let (_tmp2, dir) = signed_by(&curated(), &key);
+        let sums = std::fs::read_to_string(dir.join("SHA256SUMS")).unwrap();
+        std::fs::write(dir.join("SHA256SUMS"), sums.replace('\n', "\r\n") + "\r\n").unwrap();
+        let mut other = Library::in_memory("t").unwrap();
+        other.trust_key(&key.public(), "partner", "admin").unwrap();
+        let reason = refused_for_trust(&mut other, &dir);
+        assert!(reason.contains("does not verify"), "{reason}");
     }
 
     #[test]

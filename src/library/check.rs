@@ -59,8 +59,9 @@ struct Expected {
     reviews: Vec<ExpectedReview>,
     /// Who wrote each revision, where the events say.
     authors: BTreeMap<i64, String>,
-    /// Why it was withdrawn, when it is.
-    withdrawn_reason: Option<String>,
+    /// What its events say of the withdrawal reason: `Some(Some(r))` withdrawn for `r`,
+    /// `Some(None)` none (reinstated since), `None` unknown (an import records none).
+    withdrawn_reason: Option<Option<String>>,
 }
 
 /// One sign-off as its event recorded it; `at` and `imported_from` are absent from events
@@ -324,7 +325,11 @@ impl Library {
                 }
                 "withdraw" => {
                     e.status = "withdrawn".into();
-                    e.withdrawn_reason = p["reason"].as_str().map(str::to_string);
+                    e.withdrawn_reason = Some(p["reason"].as_str().map(str::to_string));
+                }
+                "reinstate" => {
+                    e.status = "pending".into();
+                    e.withdrawn_reason = Some(None);
                 }
                 _ => {}
             }
@@ -527,13 +532,19 @@ impl Library {
             }
             if let Some(want) = &e.withdrawn_reason {
                 let reason = self.withdrawn_reason(rec.id)?;
-                if reason.as_deref() != Some(want.as_str()) {
+                if reason != *want {
                     find(
                         id.clone(),
-                        format!(
-                            "withdrawn for \"{}\" on record but \"{want}\" in its event (edited)",
-                            reason.as_deref().unwrap_or("")
-                        ),
+                        match want {
+                            Some(want) => format!(
+                                "withdrawn for \"{}\" on record but \"{want}\" in its event (edited)",
+                                reason.as_deref().unwrap_or("")
+                            ),
+                            None => format!(
+                                "a withdrawal reason \"{}\" on record, but its events reinstated it (edited)",
+                                reason.as_deref().unwrap_or("")
+                            ),
+                        },
                     );
                 }
             }

@@ -193,6 +193,54 @@ impl Library {
         })
     }
 
+    /// Brings a withdrawn spectrum back: it returns to `pending` at its current revision, so
+    /// the review policy applies to it again (its earlier sign-offs stay as history and grant
+    /// nothing), and it counts in the fingerprint again. The withdrawal's reason is cleared
+    /// from the spectrum and kept in the audit trail, beside the `reinstate` event with its
+    /// own reason. Which role may reinstate is the face's business (the server's curators).
+    pub fn reinstate(&mut self, id: i64, actor: &str, reason: &str) -> Result<()> {
+        let rec = self.spectrum(id)?;
+        let reason = reason.trim();
+        if reason.is_empty() {
+            return Err(Error::invalid(
+                "a reinstatement needs a reason",
+                "say why the spectrum comes back with --reason TEXT",
+            ));
+        }
+        if rec.status != Status::Withdrawn {
+            return Err(Error::invalid(
+                format!(
+                    "spectrum {id} is {}, not withdrawn: there is nothing to reinstate",
+                    rec.status
+                ),
+                "only a withdrawn spectrum can be reinstated (see `whorl show ID`)",
+            ));
+        }
+        let withdrawn_for = self.withdrawn_reason(id)?;
+        let meta = serde_json::to_string(&rec.metadata)?;
+        self.write(|tx| {
+            // The event first: a trigger lets a spectrum leave withdrawal only when the newest
+            // event is its reinstatement.
+            let payload = serde_json::json!({
+                "spectrum": id, "revision": rec.revision, "reason": reason,
+                "withdrawn_for": withdrawn_for,
+            });
+            append_event(tx, actor, "reinstate", &format!("spectrum:{id}"), &payload)?;
+            tx.execute(
+                "UPDATE spectrum SET status = 'pending', withdrawn_reason = NULL WHERE id = ?1",
+                [id],
+            )?;
+            reweigh(
+                tx,
+                rec.technique.name(),
+                &rec.raw_sha256,
+                None,
+                Some((Status::Pending, &meta)),
+            )?;
+            Ok(((), vec![id]))
+        })
+    }
+
     /// A spectrum as it was at one revision: that revision's metadata, the current status.
     pub fn spectrum_at(&self, id: i64, number: i64) -> Result<(SpectrumRecord, RevisionInfo)> {
         let mut rec = self.spectrum(id)?;
@@ -409,5 +457,106 @@ mod tests {
         // Kept as it was: neither withdrawn again nor revised.
         assert!(lib.withdraw(id, "alice", "again").is_err());
         assert!(lib.revise(id, &notes("x"), "alice", None).is_err());
+    }
+
+    #[test]
+    fn a_reinstated_spectrum_is_pending_again_and_needs_a_new_sign_off() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        lib.review(id, "bob", Decision::Approve, None, None)
+            .unwrap();
+        let verified = lib.fingerprint().unwrap();
+        // Only a withdrawn spectrum, and only with a reason.
+        let err = lib.reinstate(id, "carol", "back").unwrap_err();
+        assert!(err.to_string().contains("not withdrawn"), "{err}");
+        lib.withdraw(id, "carol", "suspected mix-up").unwrap();
+        let withdrawn = lib.fingerprint().unwrap();
+        let err = lib.reinstate(id, "carol", " ").unwrap_err();
+        assert!(err.to_string().contains("needs a reason"), "{err}");
+        lib.reinstate(id, "carol", " lot confirmed by the supplier ")
+            .unwrap();
+        let rec = lib.spectrum(id).unwrap();
+        assert_eq!((rec.status, rec.revision), (Status::Pending, 1));
+        assert_eq!(lib.withdrawn_reason(id).unwrap(), None);
+        // Searchable again, pending: in the fingerprint, but not as the verified spectrum was.
+        let fp = lib.fingerprint().unwrap();
+        assert!(fp != withdrawn && fp != verified);
+        let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
+        assert_eq!(event.action, "reinstate");
+        assert_eq!(event.payload["reason"], "lot confirmed by the supplier");
+        assert_eq!(event.payload["withdrawn_for"], "suspected mix-up");
+        // The old approval grants nothing: a new sign-off makes it verified again, under the
+        // policy (the submitter still may not sign off).
+        assert!(
+            lib.review(id, "alice", Decision::Approve, None, None)
+                .is_err()
+        );
+        lib.review(id, "bob", Decision::Approve, None, None)
+            .unwrap();
+        assert_eq!(lib.spectrum(id).unwrap().status, Status::Verified);
+        assert_eq!(lib.fingerprint().unwrap(), verified);
+        // It can be withdrawn again, for a new reason, and `check` replays all of it.
+        lib.withdraw(id, "carol", "second thoughts").unwrap();
+        assert_eq!(
+            lib.withdrawn_reason(id).unwrap().as_deref(),
+            Some("second thoughts")
+        );
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+    }
+
+    #[test]
+    fn only_a_reinstate_event_takes_a_spectrum_out_of_withdrawal() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        lib.withdraw(id, "carol", "suspected mix-up").unwrap();
+        // Written behind whorl's back, the triggers refuse it.
+        for sql in [
+            "UPDATE spectrum SET status = 'pending', withdrawn_reason = NULL WHERE id = 1",
+            "UPDATE spectrum SET status = 'verified' WHERE id = 1",
+            "UPDATE spectrum SET withdrawn_reason = NULL WHERE id = 1",
+            "UPDATE spectrum SET withdrawn_reason = 'other' WHERE id = 1",
+        ] {
+            let err = lib.conn.execute(sql, []).unwrap_err();
+            assert!(
+                err.to_string().contains("kept as recorded")
+                    || err.to_string().contains("reinstate"),
+                "{sql}: {err}"
+            );
+        }
+        // With the triggers dropped, `check` still finds a reinstatement no event records.
+        lib.conn
+            .execute_batch(
+                "DROP TRIGGER spectrum_reinstatement_is_audited;
+                 DROP TRIGGER spectrum_withdrawal_reason_is_fixed;
+                 UPDATE spectrum SET status = 'pending', withdrawn_reason = NULL WHERE id = 1;",
+            )
+            .unwrap();
+        let found = lib.check(&|_, _| {}).unwrap().findings;
+        assert!(
+            found.iter().any(|f| f
+                .problem
+                .contains("status is pending but its events say withdrawn")),
+            "{found:?}"
+        );
+    }
+
+    #[test]
+    fn check_finds_a_withdrawal_reason_left_after_a_reinstatement() {
+        let mut lib = Library::in_memory("t").unwrap();
+        let id = add(&mut lib, &ir(1, "acetone", "alice"));
+        lib.withdraw(id, "carol", "suspected mix-up").unwrap();
+        lib.reinstate(id, "carol", "confirmed").unwrap();
+        lib.conn
+            .execute_batch(
+                "DROP TRIGGER spectrum_withdrawal_reason_is_fixed;
+                 UPDATE spectrum SET withdrawn_reason = 'forged' WHERE id = 1;",
+            )
+            .unwrap();
+        let found = lib.check(&|_, _| {}).unwrap().findings;
+        assert!(
+            found.iter().any(|f| f.problem.contains("reinstated it")),
+            "{found:?}"
+        );
     }
 }

@@ -254,6 +254,8 @@ impl Library {
         }
         // Temporary cache files of builds killed before they finished (derived data).
         crate::cache::remove_abandoned(&root.join(crate::cache::CACHE_DIR));
+        // Staging folders of exports killed before they finished, wherever they were.
+        bundle::remove_abandoned_exports(root);
         Ok(lib)
     }
 
@@ -320,10 +322,16 @@ impl Library {
         Ok(true)
     }
 
-    /// True when the text index is behind the database because another process was writing
-    /// it; metadata queries may then miss the newest spectra until the next command.
+    /// True when the text index is behind the database: it could not be brought up to date
+    /// (another process holding its writer, a full disk), or the database has moved on since
+    /// (the generation the index records differs). Metadata queries may then miss or keep
+    /// stale spectra until a later command rebuilds it; whoever answers from it says so.
     pub fn text_index_behind(&self) -> bool {
         self.text_behind.get()
+            || match (self.text.generation(), self.generation()) {
+                (Ok(index), Ok(database)) => index != Some(database),
+                _ => true,
+            }
     }
 
     /// Updates the text index after a commit. The database already holds the truth, so a

@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 use crate::chem::{Formula, check_cas, ihd, ms_formula_warnings, parse_formula};
 use crate::error::{Error, Result};
 use crate::library::Metadata;
-use crate::prepare::{Conditions, Prepared, Recipe, Solvent, prepare};
+use crate::prepare::{Conditions, Prepared, Recipe, Solvent, plausibility, prepare};
 use crate::spectrum::{RawSpectrum, XUnit, YUnit, check_points, read_points};
 use crate::technique::Technique;
 
@@ -75,8 +75,10 @@ pub fn read_and_prepare(
     }
     let parsed = read_points(path, technique)?;
     let converted = check_points(path, &parsed, technique, x_unit)?;
+    let plausible = plausibility(path, &parsed, technique, y_unit)?;
     let conditions = Conditions { y_unit, solvent };
-    let prepared = prepare(path, recipe, &converted, &conditions)?;
+    let mut prepared = prepare(path, recipe, &converted, &conditions)?;
+    prepared.warnings.splice(0..0, plausible);
     let raw = RawSpectrum {
         points: parsed.points,
         x_unit,

@@ -11,6 +11,7 @@ mod masking;
 mod nmr;
 mod optical;
 mod peaks;
+mod plausible;
 mod solvent;
 mod spectrometry;
 
@@ -21,6 +22,7 @@ pub use despike::{DESPIKE_THRESHOLD, despike, modified_z_scores};
 pub use masking::{mask_prepared, shared_solvent_regions};
 pub use optical::{absorbance_from, detect_optical_y_unit, resample};
 pub use peaks::{Maximum, Peak, area_between, find_maxima};
+pub use plausible::plausibility;
 pub use solvent::Solvent;
 pub use spectrometry::nominal_mass as nominal_mz;
 

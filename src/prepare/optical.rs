@@ -20,17 +20,28 @@ pub fn absorbance_from(y: f64, unit: YUnit) -> f64 {
     }
 }
 
-/// Guesses the y unit of an IR spectrum whose unit was not declared.
+/// Guesses the y unit of an IR spectrum whose unit was not declared; `ys` in x order.
 ///
 /// An absorbance spectrum sits mostly near zero with a few bands; a transmittance spectrum
 /// sits mostly near its maximum with dips. So: values within 0..1.05 with a median above
 /// 0.5 are a transmittance fraction; values within 0..105 with a median above 40 and a
-/// maximum above 2 are percent transmittance; anything else is absorbance (common practice
-/// of reading a spectrum's baseline).
+/// maximum above 2 are percent transmittance; anything else is absorbance. The ends of a
+/// spectrum are its baseline, high for transmittance and low for absorbance: values whose
+/// median says transmittance but whose ends sit in the lower half of their range (a file cut
+/// close around one absorbance band, mostly band) are read as absorbance, and
+/// [`unit_is_ambiguous`] says so (common practice of reading a spectrum's baseline).
 pub fn detect_optical_y_unit(technique: Technique, ys: &[f64]) -> YUnit {
     if technique == Technique::Raman {
         return YUnit::Counts;
     }
+    match by_median(ys) {
+        Some(u) if ends_level(ys) >= 0.5 => u,
+        _ => YUnit::Absorbance,
+    }
+}
+
+/// The unit the median alone suggests, when it suggests transmittance.
+fn by_median(ys: &[f64]) -> Option<YUnit> {
     let mut sorted: Vec<f64> = ys.to_vec();
     sorted.sort_by(f64::total_cmp);
     let (min, max, median) = (
@@ -39,12 +50,38 @@ pub fn detect_optical_y_unit(technique: Technique, ys: &[f64]) -> YUnit {
         sorted[sorted.len() / 2],
     );
     if min >= -0.05 && max <= 1.05 && median > 0.5 {
-        YUnit::Transmittance
+        Some(YUnit::Transmittance)
     } else if min >= -5.0 && max <= 105.0 && max > 2.0 && median > 40.0 {
-        YUnit::TransmittancePercent
+        Some(YUnit::TransmittancePercent)
     } else {
-        YUnit::Absorbance
+        None
     }
+}
+
+/// Where the ends of a spectrum (its first and last 5 %, at least 3 points each; `ys` in x
+/// order) sit within its range: 0 at the minimum, 1 at the maximum.
+pub(super) fn ends_level(ys: &[f64]) -> f64 {
+    let n = ys.len();
+    let k = (n / 20).max(3).min(n.div_ceil(2));
+    let mut ends: Vec<f64> = ys[..k].iter().chain(&ys[n - k..]).copied().collect();
+    ends.sort_by(f64::total_cmp);
+    let edge = ends[ends.len() / 2];
+    let (min, max) = ys
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &y| {
+            (lo.min(y), hi.max(y))
+        });
+    if max > min {
+        (edge - min) / (max - min)
+    } else {
+        0.5
+    }
+}
+
+/// True when the median of an undeclared IR spectrum says transmittance but its ends say
+/// absorbance (see [`detect_optical_y_unit`]): the reading is a guess worth a warning.
+pub fn unit_is_ambiguous(ys: &[f64]) -> bool {
+    by_median(ys).is_some() && ends_level(ys) < 0.5
 }
 
 /// Resamples sorted `(x, y)` points onto the grid. Where the source is finer than the grid,
@@ -287,6 +324,21 @@ mod tests {
             detect_optical_y_unit(Technique::Ir, &percent),
             YUnit::TransmittancePercent
         );
+        // A file cut close around one absorbance band (issue 13, item 17): mostly band, so
+        // its median is high, but its ends are the baseline near zero: absorbance.
+        let band: Vec<f64> = (0..61)
+            .map(|i| 0.95 * (-((f64::from(i) - 30.0) / 22.0).powi(2)).exp())
+            .collect();
+        assert!(
+            by_median(&band).is_some(),
+            "the median alone says transmittance"
+        );
+        assert_eq!(
+            detect_optical_y_unit(Technique::Ir, &band),
+            YUnit::Absorbance
+        );
+        assert!(unit_is_ambiguous(&band));
+        assert!(!unit_is_ambiguous(&trans) && !unit_is_ambiguous(&absorb));
     }
 
     #[test]

@@ -112,6 +112,8 @@ pub fn report(
             y_unit: unknown.y_unit,
             solvent: None,
             peaks: unknown.peaks.len(),
+            points: None,
+            points_sha256: None,
         },
         parameters: Parameters {
             top: 5,

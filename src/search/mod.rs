@@ -38,7 +38,8 @@ pub use rank::{HitList, Ranking, search, search_exact, search_many};
 pub use references::references;
 pub use replay::{Replay, load_saved, replay};
 pub use report::{
-    LibraryStamp, Parameters, Report, UnknownStamp, run_search, search_file, search_files,
+    LibraryStamp, Parameters, Report, UnknownStamp, keep_points, run_search, search_file,
+    search_files, search_points,
 };
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
 pub use scan::{Trace, rank, rank_traced};

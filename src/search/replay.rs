@@ -4,10 +4,11 @@ use std::path::Path;
 
 use serde::Serialize;
 
+use super::report::search_points;
 use super::{Report, Request, Unknown, run_search};
 use crate::error::{Error, Location, Result};
 use crate::library::{Event, Library};
-use crate::spectrum::sha256_hex;
+use crate::spectrum::{decode_points, sha256_hex};
 
 /// Scores that differ by less than this are the same score (they are computed in f64 from
 /// identical inputs, so any real change is far larger).
@@ -49,25 +50,58 @@ pub fn load_saved(path: &Path) -> Result<Report> {
 }
 
 /// Re-runs a saved search with its own parameters against `library` and compares the hits.
+/// A record that kept the unknown's raw points is replayed from them, anywhere, once they
+/// hash to the value it recorded; an older record needs the unknown's file where it was.
 pub fn replay(library: &Library, saved: &Report) -> Result<Replay> {
     let file = Path::new(&saved.unknown.file);
-    let bytes = std::fs::read(file).map_err(|e| {
-        Error::input(
-            Location::file(file),
-            format!("the unknown of the saved search cannot be read: {e}"),
-            "run the replay from the folder the search was run in, or restore the unknown's file",
-        )
-    })?;
-    let sha = sha256_hex(&bytes);
-    if sha != saved.unknown.sha256 {
-        return Err(Error::input(
-            Location::file(file),
-            format!(
-                "the unknown changed since the search was saved (sha256 was {}, is now {sha})",
-                saved.unknown.sha256
-            ),
-            "a replay needs the same unknown; restore the original file",
-        ));
+    let points = match (&saved.unknown.points, &saved.unknown.points_sha256) {
+        (Some(text), Some(want)) => {
+            let edited = |why: String| {
+                Error::invalid(
+                    format!(
+                        "the unknown's points kept in the saved search {why}: the record was edited"
+                    ),
+                    "replay the search from an unedited record written by `whorl search --save`",
+                )
+            };
+            let bytes = hex::decode(text).map_err(|_| edited("are not hex".into()))?;
+            let sha = sha256_hex(&bytes);
+            if sha != *want {
+                return Err(edited(format!(
+                    "do not hash to the value it records (sha256 {}, is {})",
+                    crate::error::excerpt(want, 64),
+                    sha
+                )));
+            }
+            Some(decode_points(&bytes).ok_or_else(|| edited("are not whole x, y pairs".into()))?)
+        }
+        (None, None) => None,
+        _ => {
+            return Err(Error::invalid(
+                "the saved search keeps the unknown's points without their hash, or the hash without the points: the record was edited",
+                "replay the search from an unedited record written by `whorl search --save`",
+            ));
+        }
+    };
+    if points.is_none() {
+        let bytes = std::fs::read(file).map_err(|e| {
+            Error::input(
+                Location::file(file),
+                format!("the unknown of the saved search cannot be read: {e}"),
+                "this record was saved before searches kept their unknown's points: run the replay from the folder the search was run in, or restore the unknown's file",
+            )
+        })?;
+        let sha = sha256_hex(&bytes);
+        if sha != saved.unknown.sha256 {
+            return Err(Error::input(
+                Location::file(file),
+                format!(
+                    "the unknown changed since the search was saved (sha256 was {}, is now {sha})",
+                    saved.unknown.sha256
+                ),
+                "a replay needs the same unknown; restore the original file",
+            ));
+        }
     }
     let p = &saved.parameters;
     let request = Request {
@@ -93,7 +127,13 @@ pub fn replay(library: &Library, saved: &Report) -> Result<Replay> {
         y_unit: Some(saved.unknown.y_unit),
         solvent: request.solvent,
     };
-    let now = run_search(library, &unknown, &request)?;
+    let mut now = match points {
+        Some(points) => search_points(library, &unknown, &points, &saved.unknown.sha256, &request)?,
+        None => run_search(library, &unknown, &request)?,
+    };
+    // The search as run now describes the same unknown, its points kept as they were.
+    now.unknown.points = saved.unknown.points.clone();
+    now.unknown.points_sha256 = saved.unknown.points_sha256.clone();
 
     let mut differences = Vec::new();
     if now.parameters.recipe != p.recipe {

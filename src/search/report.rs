@@ -60,6 +60,35 @@ pub struct UnknownStamp {
     pub solvent: Option<String>,
     /// Peaks picked in the unknown.
     pub peaks: usize,
+    /// The unknown's raw points as read from the file (file order, its own x unit) in their
+    /// canonical encoding, hex: each x then y as little-endian f64, exact where decimal text
+    /// need not be ([`crate::spectrum::encode_points`], the encoding of stored raw points).
+    /// Kept in a saved search ([`keep_points`]) so that a replay needs no file; absent from
+    /// `--json` output and from searches saved before they were kept.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub points: Option<String>,
+    /// SHA-256 of the encoded points (as a stored spectrum's raw hash), which a replay verifies
+    /// before it uses them.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub points_sha256: Option<String>,
+}
+
+/// Keeps the unknown's raw points in a report about to be saved, read again from its file
+/// with the reader every search uses; refused if the file changed since the search read it.
+pub fn keep_points(report: &mut Report) -> Result<()> {
+    let path = std::path::Path::new(&report.unknown.file);
+    let parsed = crate::spectrum::read_points(path, report.unknown.technique)?;
+    if parsed.file_sha256 != report.unknown.sha256 {
+        return Err(crate::Error::input(
+            crate::error::Location::file(path),
+            "the unknown changed while it was searched: the saved record would not describe the search",
+            "search it again, and keep the file unchanged until the search is saved",
+        ));
+    }
+    let bytes = crate::spectrum::encode_points(&parsed.points);
+    report.unknown.points_sha256 = Some(crate::spectrum::sha256_hex(&bytes));
+    report.unknown.points = Some(hex::encode(bytes));
+    Ok(())
 }
 
 /// The parameters that decided the ranking.
@@ -162,6 +191,47 @@ pub(super) fn search_file_cut(
     Ok((report, section, prepared))
 }
 
+/// [`search_file`] of an unknown's raw points instead of its file (a replay of a saved
+/// search that kept them): prepared as stored points are (`library::prepare_raw`), with the
+/// y unit the search used; `unknown.file` only names it.
+pub fn search_points(
+    library: &Library,
+    unknown: &Unknown,
+    points: &[(f64, f64)],
+    file_sha256: &str,
+    request: &Request,
+) -> Result<Report> {
+    let plan = plan_for(library, std::slice::from_ref(unknown), request)?;
+    let x_unit = unknown
+        .x_unit
+        .unwrap_or_else(|| crate::library::usual_x_unit(unknown.technique));
+    let y_unit = match unknown.y_unit {
+        Some(u) => u,
+        None => {
+            return Err(crate::Error::invalid(
+                "the unknown's y unit is needed to prepare its saved points",
+                "give the y unit the search used",
+            ));
+        }
+    };
+    let prepared = crate::library::prepare_raw(
+        &unknown.file,
+        &plan.recipe,
+        points,
+        x_unit,
+        y_unit,
+        unknown.solvent,
+    )?;
+    let raw = crate::spectrum::RawSpectrum {
+        points: points.to_vec(),
+        x_unit,
+        y_unit: prepared.y_unit,
+        file_sha256: file_sha256.to_string(),
+    };
+    let list = plan.search(library, &prepared)?;
+    make_report(library, &plan, unknown, raw, &prepared, list)
+}
+
 /// Prepares several unknown files and searches them together ([`Plan::search_many`]): one
 /// report per file, in order. Files are read and prepared in parallel. Searched together,
 /// they share the request's technique and one solvent.
@@ -242,6 +312,8 @@ fn make_report(
             y_unit: unknown.y_unit,
             solvent: u.solvent.map(|s| s.name().to_string()),
             peaks: unknown.peaks.len(),
+            points: None,
+            points_sha256: None,
         },
         parameters: Parameters {
             top: request.top,

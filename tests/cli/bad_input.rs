@@ -628,3 +628,114 @@ fn an_acquisition_date_that_is_not_iso_8601() {
         "{shown}"
     );
 }
+
+/// An IR spectrum in percent transmittance: baseline 90 %, a band at 1715 cm-1 dipping to
+/// `bottom`, 4000..400 cm-1 at 2 cm-1 (data from line 2).
+fn percent_t_csv(bottom: f64) -> String {
+    let points: Vec<(f64, f64)> = (0..=1800)
+        .map(|i| {
+            let x = 4000.0 - 2.0 * f64::from(i);
+            let d = (x - 1715.0) / 15.0;
+            (x, 90.0 - (90.0 - bottom) * (-d * d).exp())
+        })
+        .collect();
+    xy_csv("wavenumber,value", &points)
+}
+
+#[test]
+fn percent_transmittance_declared_as_absorbance() {
+    // Values up to 90 as absorbance would mean 1e-90 of the light passed (A = -log10 T).
+    let text = refused_add(
+        percent_t_csv(20.0),
+        "ir",
+        &["--y-unit", "absorbance"],
+        "bad.csv:2",
+    );
+    contains(&text, "absorbance 90 cannot be measured");
+    contains(hint(&text), "transmittance-percent");
+}
+
+#[test]
+fn percent_transmittance_far_above_100_or_below_0() {
+    let mut over = percent_t_csv(20.0);
+    over = over.replacen("3000,90\n", "3000,300\n", 1);
+    let text = refused_add(over, "ir", &["--y-unit", "%T"], "bad.csv:502");
+    contains(&text, "more than the reference beam passes");
+    let text = refused_add(
+        percent_t_csv(-30.0),
+        "ir",
+        &["--y-unit", "%T"],
+        "bad.csv:1144",
+    );
+    contains(&text, "below zero by more than detector noise");
+}
+
+#[test]
+fn transmittance_at_zero_is_stored_with_a_warning() {
+    let lab = lab();
+    lab.write("zero.csv", percent_t_csv(-1.0));
+    let out = lab
+        .command(&[
+            "add",
+            "zero.csv",
+            "-t",
+            "ir",
+            "--name",
+            "thick film",
+            "--y-unit",
+            "%T",
+        ])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    contains(&err, "warning: zero.csv: ");
+    contains(&err, "at or below zero transmittance (first at line");
+}
+
+#[test]
+fn a_constant_y() {
+    let points: Vec<(f64, f64)> = (0..100)
+        .map(|i| (4000.0 - 20.0 * f64::from(i), 0.5))
+        .collect();
+    let text = refused_add(xy_csv("x,y", &points), "ir", &[], "bad.csv");
+    contains(
+        &text,
+        "every y value is 0.5: a flat line holds no ir spectrum (lines 2 to 101)",
+    );
+}
+
+#[test]
+fn all_negative_raman_counts_are_stored_with_a_warning() {
+    let lab = lab();
+    let negative: String = raman_csv(&[(1001.0, 500.0, 5.0)])
+        .lines()
+        .enumerate()
+        .map(|(i, l)| match (i, l.split_once(',')) {
+            (0, _) | (_, None) => format!("{l}\n"),
+            (_, Some((x, y))) => format!("{x},{}\n", y.parse::<f64>().unwrap() - 2000.0),
+        })
+        .collect();
+    lab.write("neg.csv", negative);
+    let out = lab
+        .command(&["add", "neg.csv", "-t", "raman", "--name", "offset"])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    contains(
+        &String::from_utf8_lossy(&out.stderr),
+        "every Raman intensity is negative",
+    );
+}
+
+#[test]
+fn a_file_with_cr_line_endings_is_read() {
+    let lab = lab();
+    lab.write(
+        "mac.csv",
+        ir_csv(&[(1600.0, 0.7, 12.0)]).replace('\n', "\r"),
+    );
+    let id = lab.ok(&["add", "mac.csv", "-t", "ir", "--name", "cr only"]);
+    let shown = lab.json(&["show", id.trim()]);
+    assert_eq!(shown["spectrum"]["points"], 1801, "{shown}");
+}

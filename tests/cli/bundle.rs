@@ -399,3 +399,58 @@ fn a_fifo_in_a_bundle_is_refused_without_waiting() {
     assert!(made.success());
     import_fails(&lab, &bundle, "not a regular file");
 }
+
+/// What `whorl export` leaves when killed mid-way: its record in the library (named after
+/// its process and the time, holding the staging folder's path) and the marked staging
+/// folder beside the destination.
+fn killed_export(lab: &Lab, pid: u32, destination: &Path) -> std::path::PathBuf {
+    let token = format!("{pid}-1");
+    let staging = destination.with_file_name(format!(
+        ".{}.partial",
+        destination.file_name().unwrap().to_string_lossy()
+    ));
+    std::fs::create_dir_all(staging.join("spectra")).unwrap();
+    std::fs::write(staging.join("spectra/1.ir.csv"), "4000,0.1\n").unwrap();
+    std::fs::write(staging.join(".whorl-export"), &token).unwrap();
+    let records = lab.library().join("exports-under-way");
+    std::fs::create_dir_all(&records).unwrap();
+    std::fs::write(records.join(&token), staging.to_str().unwrap()).unwrap();
+    staging
+}
+
+#[test]
+fn a_killed_exports_partial_folder_is_removed_next_time_wherever_it_was() {
+    let lab = Lab::new();
+    let elsewhere = tempfile::tempdir().unwrap();
+    // A process id no process has (above Linux's pid_max limit of 2^22).
+    let dead = killed_export(&lab, 4_000_000_000, &elsewhere.path().join("monthly"));
+    // One whose process still runs (this test's) is an export under way: left alone.
+    let running = killed_export(&lab, std::process::id(), &lab.path("weekly"));
+    // A record pointing at a folder without the export's mark is not followed.
+    let unmarked = lab.path("keep.partial");
+    std::fs::create_dir_all(&unmarked).unwrap();
+    std::fs::write(
+        lab.library().join("exports-under-way/4000000001-1"),
+        unmarked.to_str().unwrap(),
+    )
+    .unwrap();
+    // Any command opens the library, and the opening cleans up.
+    lab.ok(&["stats"]);
+    assert!(!dead.exists(), "the killed export's folder is removed");
+    assert!(running.join(".whorl-export").exists());
+    assert!(unmarked.exists());
+    let left: Vec<String> = std::fs::read_dir(lab.library().join("exports-under-way"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(left, [format!("{}-1", std::process::id())]);
+    // A finished export leaves no record and no mark.
+    lab.ok(&["export", lab.path("done").to_str().unwrap()]);
+    assert!(!lab.path("done").join(".whorl-export").exists());
+    assert_eq!(
+        std::fs::read_dir(lab.library().join("exports-under-way"))
+            .unwrap()
+            .count(),
+        1
+    );
+}

@@ -1,6 +1,6 @@
 //! Review sign-off, revisions, withdrawal, the audit log, and the default search scope.
 
-use crate::util::{Lab, ir_csv};
+use crate::util::{Lab, hint, ir_csv};
 
 /// A lab with one IR spectrum submitted by `s.submitter`; returns its id.
 fn one_spectrum() -> (Lab, String) {
@@ -357,4 +357,110 @@ fn the_fingerprint_changes_exactly_when_the_searchable_content_changes() {
         *seen.last().unwrap(),
         "nothing searchable: the fingerprint of the recipes alone"
     );
+}
+
+#[test]
+fn a_withdrawn_spectrum_is_reinstated_pending_and_adding_it_again_points_there() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    lab.ok(&[
+        "withdraw",
+        &id,
+        "--reason",
+        "lot recalled",
+        "--by",
+        "q.manager",
+    ]);
+    let withdrawn = lab.fingerprint();
+    // Adding the same file again does not say "already present" and succeed: it names the
+    // withdrawn spectrum and the way back, exit 3, library unchanged.
+    let file = lab.path("ketone.csv");
+    let err = lab.refuses(
+        &[
+            "add",
+            file.to_str().unwrap(),
+            "-t",
+            "ir",
+            "--name",
+            "example ketone",
+        ],
+        3,
+    );
+    assert!(
+        err.contains(&format!("spectrum {id}, which is withdrawn (lot recalled)")),
+        "{err}"
+    );
+    assert!(
+        hint(&err).contains(&format!("whorl reinstate {id} --reason")),
+        "{err}"
+    );
+    // A reason is required; a spectrum that is not withdrawn cannot be reinstated.
+    lab.fails(&["reinstate", &id], 2);
+    let err = lab.refuses(
+        &["reinstate", &id, "--reason", "  ", "--by", "c.curator"],
+        3,
+    );
+    assert!(err.contains("needs a reason"), "{err}");
+    let out = lab.ok(&[
+        "reinstate",
+        &id,
+        "--reason",
+        "lot cleared by QA",
+        "--by",
+        "c.curator",
+    ]);
+    assert!(out.contains("reinstated, pending a new sign-off"), "{out}");
+    assert_ne!(lab.fingerprint(), withdrawn);
+    let shown = lab.json(&["show", &id]);
+    assert_eq!(shown["spectrum"]["status"], "pending");
+    assert!(shown["withdrawn_reason"].is_null(), "{shown}");
+    let err = lab.refuses(
+        &["reinstate", &id, "--reason", "again", "--by", "c.curator"],
+        3,
+    );
+    assert!(err.contains("not withdrawn"), "{err}");
+    // The event is in the log with its reason, and `check` replays it.
+    let log = lab.ok(&["log", &id]);
+    assert!(
+        log.contains("reinstate") && log.contains("lot cleared by QA"),
+        "{log}"
+    );
+    lab.ok(&["check"]);
+    // The review policy applies again: the submitter may not approve, a second person may.
+    lab.fails(&["review", &id, "--approve", "--by", "s.submitter"], 3);
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    assert_eq!(status(&lab, &id), "verified");
+    lab.ok(&["check"]);
+}
+
+#[test]
+fn a_reinstated_spectrum_travels_in_a_bundle_as_pending() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&[
+        "withdraw",
+        &id,
+        "--reason",
+        "lot recalled",
+        "--by",
+        "q.manager",
+    ]);
+    lab.ok(&[
+        "reinstate",
+        &id,
+        "--reason",
+        "lot cleared",
+        "--by",
+        "c.curator",
+    ]);
+    let bundle = lab.path("bundle");
+    lab.ok(&["export", bundle.to_str().unwrap()]);
+    let rows = crate::util::csv_rows(&bundle.join("manifest.csv"));
+    assert_eq!(rows[0]["whorl_status"], "pending");
+    assert_eq!(rows[0]["whorl_withdrawn_reason"], "");
+    let other = Lab::new();
+    other.ok(&["import", bundle.to_str().unwrap(), "--untrusted"]);
+    let copy = other.json(&["show", "1"]);
+    assert_eq!(copy["spectrum"]["status"], "pending");
+    assert!(copy["withdrawn_reason"].is_null(), "{copy}");
+    other.ok(&["check"]);
 }

@@ -157,3 +157,61 @@ fn a_malformed_query_is_refused_with_a_hint() {
     assert!(text.contains("'name:('"), "{text}");
     assert!(hint(&text).contains("AND"), "{text}");
 }
+
+/// Holds tantivy's writer lock on a library's text index (an exclusive `flock` on
+/// `.tantivy-writer.lock`, as another process writing it would) until dropped.
+struct IndexWriterHeld {
+    _lock: std::fs::File,
+}
+
+impl IndexWriterHeld {
+    fn on(lab: &Lab) -> IndexWriterHeld {
+        use std::os::fd::AsRawFd;
+        let file = std::fs::OpenOptions::new()
+            .create(true)
+            .truncate(false)
+            .write(true)
+            .open(lab.library().join("text-index/.tantivy-writer.lock"))
+            .unwrap();
+        // SAFETY: flock on a descriptor this File owns (BSD locks, flock(2)).
+        let rc = unsafe { libc::flock(file.as_raw_fd(), libc::LOCK_EX | libc::LOCK_NB) };
+        assert_eq!(rc, 0, "the writer lock was free");
+        IndexWriterHeld { _lock: file }
+    }
+}
+
+#[test]
+fn find_says_when_the_text_index_is_behind() {
+    let lab = lab();
+    let out = lab.run(&["find", "gamma"]);
+    assert!(String::from_utf8_lossy(&out.stderr).is_empty());
+    let held = IndexWriterHeld::on(&lab);
+    // Stored in the database, but the index cannot take it while another writer holds it.
+    lab.add(
+        "g.csv",
+        &ir_csv(&[(1600.0, 0.8, 10.0)]),
+        "ir",
+        "compound gamma",
+        &[],
+    );
+    let out = lab.run(&["find", "gamma"]);
+    assert!(out.status.success());
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stdout.contains("nothing matches 'gamma' in the text index, which is behind"),
+        "{stdout}"
+    );
+    assert!(
+        stderr.contains("warning: the text index is behind the library"),
+        "{stderr}"
+    );
+    // Also with --json (the warning on stderr, the list on stdout).
+    let out = lab.run(&["find", "gamma", "--json"]);
+    assert!(String::from_utf8_lossy(&out.stderr).contains("text index is behind"));
+    drop(held);
+    // The next command rebuilds it, and the answer needs no warning.
+    let out = lab.run(&["find", "gamma"]);
+    assert!(String::from_utf8_lossy(&out.stderr).is_empty());
+    assert!(String::from_utf8_lossy(&out.stdout).contains("compound gamma"));
+}

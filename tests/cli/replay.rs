@@ -66,10 +66,65 @@ fn a_replay_after_a_change_lists_the_difference_and_the_events_that_explain_it()
 }
 
 #[test]
-fn a_replay_refuses_a_changed_unknown() {
+fn a_saved_search_replays_without_its_file_and_an_older_record_needs_it_unchanged() {
     let lab = lab_with_two();
     lab.ok(&["search", "u.csv", "-t", "ir", "--save", "saved.json"]);
+    let text = std::fs::read_to_string(lab.path("saved.json")).unwrap();
+    let saved: serde_json::Value = serde_json::from_str(&text).unwrap();
+    // The raw points are kept, hashed as stored raw points are: the SHA-256 of each x then y
+    // as little-endian f64 (the library's canonical encoding), here recomputed by hand.
+    let points = hex_decode(saved["unknown"]["points"].as_str().unwrap());
+    assert_eq!(points.len(), 1801 * 16);
+    let first_x = f64::from_le_bytes(points[..8].try_into().unwrap());
+    assert_eq!(first_x, 4000.0);
+    assert_eq!(
+        saved["unknown"]["points_sha256"],
+        whorl::spectrum::sha256_hex(&points)
+    );
+    // `search --json` does not carry them.
+    let shown = lab.json(&["search", "u.csv", "-t", "ir"]);
+    assert!(shown["unknown"].get("points").is_none());
+    // The unknown's file gone (or changed), the record replays from its points, from
+    // anywhere.
+    std::fs::remove_file(lab.path("u.csv")).unwrap();
+    let elsewhere = tempfile::tempdir().unwrap();
+    let moved = elsewhere.path().join("saved.json");
+    std::fs::write(&moved, &text).unwrap();
+    let r = lab.json(&["replay", moved.to_str().unwrap()]);
+    assert_eq!(r["same"], true, "{r}");
+    // Edited points are refused, naming the record as edited.
+    let mut forged = saved.clone();
+    let mut bytes = points.clone();
+    bytes[8] ^= 1;
+    forged["unknown"]["points"] = hex_encode(&bytes).into();
+    lab.write("forged.json", forged.to_string());
+    let err = lab.fails(&["replay", "forged.json"], 3);
+    assert!(err.contains("do not hash to the value it records"), "{err}");
+    // A record saved before points were kept needs the file, unchanged.
+    let mut old = saved.clone();
+    let unknown = old["unknown"].as_object_mut().unwrap();
+    unknown.remove("points");
+    unknown.remove("points_sha256");
+    lab.write("old.json", old.to_string());
+    let err = lab.fails(&["replay", "old.json"], 3);
+    assert!(
+        err.contains("cannot be read") && err.contains("saved before"),
+        "{err}"
+    );
     lab.write("u.csv", ir_csv(&[(1740.0, 0.8, 10.0)]));
-    let err = lab.fails(&["replay", "saved.json"], 3);
+    let err = lab.fails(&["replay", "old.json"], 3);
     assert!(err.contains("the unknown changed"), "{err}");
+    lab.write("u.csv", ir_csv(&[(1716.0, 0.8, 10.0), (2960.0, 0.3, 15.0)]));
+    assert_eq!(lab.json(&["replay", "old.json"])["same"], true);
+}
+
+fn hex_decode(text: &str) -> Vec<u8> {
+    (0..text.len())
+        .step_by(2)
+        .map(|i| u8::from_str_radix(&text[i..i + 2], 16).unwrap())
+        .collect()
+}
+
+fn hex_encode(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
 }

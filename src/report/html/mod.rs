@@ -101,11 +101,20 @@ pub fn page(title: &str, lede: &str, version: &str, at: &str, sections: &[String
     s
 }
 
-/// Escapes text for HTML element content and quoted attribute values.
+/// Escapes text for HTML element content and quoted attribute values; also valid in XML
+/// (SVG): control characters other than tab and line breaks, which XML 1.0 does not allow
+/// even as character references (W3C XML 1.0, section 2.2, `Char`), and invisible format
+/// characters are written as visible `\u{..}` escapes.
 pub fn escape(text: &str) -> String {
     let mut out = String::with_capacity(text.len());
     for c in text.chars() {
         match c {
+            '\t' | '\n' | '\r' => out.push(c),
+            c if c.is_control()
+                || matches!(c, '\u{200b}'..='\u{200f}' | '\u{202a}'..='\u{202e}' | '\u{2066}'..='\u{2069}' | '\u{feff}') =>
+            {
+                out.push_str(&c.escape_unicode().to_string())
+            }
             '&' => out.push_str("&amp;"),
             '<' => out.push_str("&lt;"),
             '>' => out.push_str("&gt;"),

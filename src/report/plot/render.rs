@@ -121,13 +121,10 @@ pub(super) fn masks(chart: &mut Chart<'_, '_>, axis: &Axis, grid: &Grid) -> Draw
 }
 
 /// `s` cut to at most `most` characters, the last of them an ellipsis when it was longer.
+/// Legend text: control characters escaped (XML 1.0 allows none but tab and line breaks,
+/// and plotters escapes only the markup characters), at most `most` characters.
 fn shorten(s: &str, most: usize) -> String {
-    if s.chars().count() <= most {
-        s.to_string()
-    } else {
-        let head: String = s.chars().take(most - 1).collect();
-        format!("{head}\u{2026}")
-    }
+    crate::error::excerpt(s, most - 1)
 }
 
 #[cfg(test)]

@@ -129,7 +129,11 @@ pub fn read_points_from_bytes(
     // technique allows one.
     let mut one_column: Option<bool> = None;
 
-    for (index, raw_line) in text.split('\n').enumerate() {
+    // Lines end in LF or CRLF; a file with CRs and no LF at all ends its lines in CR alone
+    // (as classic Mac OS wrote text, and some instrument software still does).
+    let cr_only = !text.contains('\n') && text.contains('\r');
+    let ending = if cr_only { '\r' } else { '\n' };
+    for (index, raw_line) in text.split(ending).enumerate() {
         let line_no = index + 1;
         let line = raw_line.trim_end_matches('\r').trim();
         if line.is_empty() || line.starts_with('#') {

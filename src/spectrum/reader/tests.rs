@@ -40,6 +40,17 @@ fn layouts_read_alike() {
     check("\u{feff}ppm,intensity\n1.5,2\n3,4.25\n", &want);
     check("1.5,2,\n3,4.25,\n", &want);
     check("1.5e0,2E0\n+3,4.25\n", &want);
+    // CR alone ends the lines (issue 13, item 17: once read as "a header but no data").
+    check("x,y\r1.5,2\r3,4.25\r", &want);
+    check("1.5,2\r3,4.25", &want);
+}
+
+#[test]
+fn lines_ended_by_cr_alone_are_counted_for_messages() {
+    match parse("x,y\r1,2\r3,abc\r") {
+        Err(Error::Input { at, .. }) => assert_eq!(at.line, Some(3)),
+        other => panic!("{other:?}"),
+    }
 }
 
 #[test]
