@@ -45,7 +45,10 @@ def make_files(folder, n, rng):
         name = f"spectra/s{i:05d}.csv"
         with open(os.path.join(folder, name), "w") as f:
             f.write("\n".join(lines) + "\n")
-        rows.append(f"{name},ir,synthetic compound {i:05d},C{1 + i % 20}H{2 + i % 30}O")
+        # A formula a structure can have (IHD = C - H/2 + 1 >= 0, common practice): whorl
+        # refuses one that cannot.
+        c = 1 + i % 20
+        rows.append(f"{name},ir,synthetic compound {i:05d},C{c}H{2 * c + 2 - 2 * (i % (c + 1))}O")
     with open(os.path.join(folder, "manifest.csv"), "w") as f:
         f.write("\n".join(rows) + "\n")
 
