@@ -7,7 +7,8 @@ use std::process::ExitCode;
 use clap::Args;
 use serde_json::json;
 use whorl::library::{
-    Acceptance, BundleImport, ImportReport, Library, Outcome, Trust, import_rows, read_manifest,
+    Acceptance, BundleImport, ImportReport, Library, ManifestPaths, Outcome, Trust, import_rows,
+    read_manifest_with,
 };
 
 use super::{Context, EXIT_INPUT, identity, output};
@@ -179,7 +180,9 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
     Ok(ExitCode::SUCCESS)
 }
 
-/// Reads a manifest and imports its rows with a progress bar; shared with `demo`.
+/// Reads a manifest given on the command line (its paths may be absolute or lead out of its
+/// folder: the person running the command can read those files anyway) and imports its rows
+/// with a progress bar; shared with `demo`.
 pub fn import_manifest(
     lib: &mut Library,
     manifest: &std::path::Path,
@@ -187,7 +190,7 @@ pub fn import_manifest(
     all_or_nothing: bool,
     show_progress: bool,
 ) -> anyhow::Result<ImportReport> {
-    let rows = read_manifest(manifest, actor)?;
+    let rows = read_manifest_with(manifest, actor, ManifestPaths::Readable)?;
     let bar = if show_progress {
         output::progress(rows.len() as u64, "importing")
     } else {

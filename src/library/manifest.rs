@@ -112,15 +112,62 @@ pub fn resolve_within(base: &Path, entry: &str) -> std::result::Result<PathBuf, 
     Ok(joined)
 }
 
-/// Reads a manifest. Problems with the manifest as a whole (unreadable, missing a required
-/// column) are errors; problems with one row are reported in that row.
+/// Which `file` entries a manifest may use.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ManifestPaths {
+    /// Only paths that stay inside the manifest's folder ([`resolve_within`]): for a manifest
+    /// that arrives from elsewhere (the server's upload and drop folder, a bundle), which must
+    /// not pull in other files of the machine.
+    Confined,
+    /// Any path the person running the import can read: absolute paths as written, relative
+    /// ones from the manifest's folder. For a manifest given on the command line, whose paths a
+    /// script often writes absolute; the importing person could add each file by hand anyway.
+    Readable,
+}
+
+/// Reads a manifest whose paths stay inside its folder ([`ManifestPaths::Confined`]).
+/// Problems with the manifest as a whole (unreadable, missing a required column) are errors;
+/// problems with one row are reported in that row.
 pub fn read_manifest(path: &Path, default_submitter: &str) -> Result<Vec<ManifestRow>> {
-    read_rows(path, default_submitter, false)
+    read_rows(path, default_submitter, false, ManifestPaths::Confined)
+}
+
+/// [`read_manifest`] with the given path rule.
+pub fn read_manifest_with(
+    path: &Path,
+    default_submitter: &str,
+    paths: ManifestPaths,
+) -> Result<Vec<ManifestRow>> {
+    read_rows(path, default_submitter, false, paths)
 }
 
 /// Reads the manifest of an exported bundle, keeping its provenance columns.
 pub(super) fn read_bundle_manifest(path: &Path) -> Result<Vec<ManifestRow>> {
-    read_rows(path, "unknown", true)
+    read_rows(path, "unknown", true, ManifestPaths::Confined)
+}
+
+/// A `file` entry of a manifest read under [`ManifestPaths::Readable`]: absolute as written,
+/// relative from the manifest's folder.
+fn resolve_readable(base: &Path, entry: &str) -> std::result::Result<PathBuf, String> {
+    let entry = entry.trim();
+    if entry.is_empty() {
+        return Err("the file column is empty".into());
+    }
+    Ok(base.join(entry))
+}
+
+/// The one-based line of the record the csv crate places at byte `offset`, counting line
+/// feeds: a CRLF file numbers its lines as an LF file does. After a CRLF the crate places a
+/// record on the line feed that ends the line before it, and counts that record's line one
+/// low; a record never starts with a line end, so those are stepped over.
+fn line_at(bytes: &[u8], offset: u64) -> usize {
+    let mut end = usize::try_from(offset)
+        .unwrap_or(usize::MAX)
+        .min(bytes.len());
+    while matches!(bytes.get(end), Some(b'\r' | b'\n')) {
+        end += 1;
+    }
+    bytes[..end].iter().filter(|&&b| b == b'\n').count() + 1
 }
 
 /// The line on which a quoted field opens that the file never closes, read as RFC 4180
@@ -160,7 +207,12 @@ fn cell(c: &str, bundle: bool) -> &str {
     if bundle { csv_cell_restored(c) } else { c }
 }
 
-fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<ManifestRow>> {
+fn read_rows(
+    path: &Path,
+    default_submitter: &str,
+    bundle: bool,
+    paths: ManifestPaths,
+) -> Result<Vec<ManifestRow>> {
     if let Ok(m) = std::fs::metadata(path)
         && !m.is_file()
     {
@@ -223,14 +275,22 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
         std::collections::HashMap::new();
     for record in reader.records() {
         let record = record.map_err(|e| {
-            let line = e.position().map_or(0, |p| p.line() as usize);
+            let line = e.position().map_or(0, |p| line_at(bytes, p.byte()));
+            // The crate's own message carries its line count, wrong after CRLF line ends.
+            let reason = match e.kind() {
+                csv::ErrorKind::UnequalLengths {
+                    expected_len, len, ..
+                } => format!("this row has {len} fields, the header {expected_len}"),
+                csv::ErrorKind::Utf8 { .. } => "the row is not UTF-8 text".to_string(),
+                _ => e.to_string(),
+            };
             Error::input(
                 Location::line(path, line),
-                format!("not valid CSV: {e}"),
+                format!("not valid CSV: {reason}"),
                 "every row needs as many fields as the header; quote fields containing commas",
             )
         })?;
-        let line = record.position().map_or(0, |p| p.line() as usize);
+        let line = record.position().map_or(0, |p| line_at(bytes, p.byte()));
         let record: Vec<&str> = record.iter().map(|c| cell(c, bundle)).collect();
         let record = &record;
         let field = |name: &str| {
@@ -254,7 +314,11 @@ fn read_rows(path: &Path, default_submitter: &str, bundle: bool) -> Result<Vec<M
                     "remove the duplicated row from the manifest",
                 ));
             }
-            let resolved = resolve_within(&base, &file).map_err(|reason| {
+            let resolved = match paths {
+                ManifestPaths::Confined => resolve_within(&base, &file),
+                ManifestPaths::Readable => resolve_readable(&base, &file),
+            }
+            .map_err(|reason| {
                 Error::input(
                     at(),
                     reason,
@@ -357,6 +421,55 @@ mod tests {
                 .contains("absolute")
         );
         assert!(resolve_within(base, "").is_err());
+    }
+
+    #[test]
+    fn a_readable_manifest_takes_absolute_paths_and_paths_out_of_its_folder() {
+        let tmp = tempfile::tempdir().unwrap();
+        let elsewhere = tempfile::tempdir().unwrap();
+        let far = elsewhere.path().join("far.csv");
+        let path = tmp.path().join("list.csv");
+        let text = format!(
+            "file,technique,name\n{},ir,far\n../up.csv,ir,up\nnear.csv,ir,near\n",
+            far.display()
+        );
+        std::fs::write(&path, text).unwrap();
+        let rows = read_manifest_with(&path, "x", ManifestPaths::Readable).unwrap();
+        let paths: Vec<PathBuf> = rows
+            .into_iter()
+            .map(|r| r.submission.unwrap().path)
+            .collect();
+        assert_eq!(
+            paths,
+            [
+                far,
+                tmp.path().join("../up.csv"),
+                tmp.path().join("near.csv")
+            ]
+        );
+        // The same manifest, confined: both rows that leave the folder are refused.
+        let confined: Vec<bool> = read_manifest(&path, "x")
+            .unwrap()
+            .iter()
+            .map(|r| r.submission.is_ok())
+            .collect();
+        assert_eq!(confined, [false, false, true]);
+    }
+
+    #[test]
+    fn crlf_line_ends_number_lines_as_lf_does() {
+        // RFC 4180 section 2 rule 1: CRLF ends a record; either way, the third line is line 3.
+        for eol in ["\n", "\r\n"] {
+            let text =
+                format!("file,technique,name{eol}a.csv,ir,x{eol}b.csv,bogus,y{eol}c.csv,ir{eol}");
+            let (_tmp, rows) = read(text.as_bytes());
+            let err = rows.unwrap_err().to_string();
+            assert!(err.contains("list.csv:4:"), "{eol:?}: {err}");
+            let text = format!("file,technique,name{eol}a.csv,ir,x{eol}b.csv,bogus,y{eol}");
+            let rows = submissions(text.as_bytes());
+            let err = rows[1].as_ref().unwrap_err();
+            assert!(err.contains("list.csv:3:"), "{eol:?}: {err}");
+        }
     }
 
     #[test]

@@ -45,7 +45,9 @@ pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use identity::{MAX_NAME_CHARS, Person, same_person};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use keys::{BundleSignature, KeyPair, PublicKey, SIGNATURE_FILE, TrustedKey};
-pub use manifest::{ManifestRow, extra_key, read_manifest, resolve_within};
+pub use manifest::{
+    ManifestPaths, ManifestRow, extra_key, read_manifest, read_manifest_with, resolve_within,
+};
 pub use recipe_change::RecipeChange;
 pub use records::{Candidate, HitRecord, Review, SpectrumRecord, Stats, Summary};
 pub use review::Decision;
