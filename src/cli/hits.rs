@@ -37,33 +37,48 @@ pub(super) fn score_digits(scores: &[f64]) -> usize {
 /// differences of rounding, not of spectra.
 const MAX_SCORE_DIGITS: usize = 9;
 
-/// The hit list as CSV: one row per hit, every score component in its own column.
+/// The columns of [`write_csv`].
+pub const CSV_COLUMNS: [&str; 23] = [
+    "rank",
+    "score",
+    "measure",
+    "spectral",
+    "cosine",
+    "correlation",
+    "composite",
+    "entropy",
+    "peaks_matched",
+    "unknown_peaks",
+    "reference_peaks",
+    "peak_jaccard",
+    "name",
+    "formula",
+    "cas",
+    "spectrum_id",
+    "compound_id",
+    "technique",
+    "status",
+    "verdict",
+    "margin",
+    "warnings",
+    "library_state_hash",
+];
+
+/// The hit list as CSV: one row per hit, every score component in its own column, and on every
+/// row the list's verdict, margin, warning codes and library state hash. A list without hits
+/// is one row with the hit columns empty, so its verdict and warnings are still there.
 pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
     let mut w = csv::Writer::from_writer(out);
-    w.write_record([
-        "rank",
-        "score",
-        "measure",
-        "spectral",
-        "cosine",
-        "correlation",
-        "composite",
-        "entropy",
-        "peaks_matched",
-        "unknown_peaks",
-        "reference_peaks",
-        "peak_jaccard",
-        "name",
-        "formula",
-        "cas",
-        "spectrum_id",
-        "compound_id",
-        "technique",
-        "status",
-    ])?;
+    w.write_record(CSV_COLUMNS)?;
     // Full precision: the shortest text that reads back as the same f64, as the JSON has it,
     // so that hits the table can only tell apart with more digits stay apart here too.
     let opt = |v: Option<f64>| v.map(|v| v.to_string()).unwrap_or_default();
+    // The list's own facts repeat on every row, so that each row read alone (a LIMS importing
+    // rows) carries the verdict, the margin, the warnings' codes and the library's state.
+    let verdict = r.verdict.as_ref().map(|v| v.word()).unwrap_or_default();
+    let margin = opt(r.margin);
+    let codes: Vec<&str> = r.warnings.iter().map(|w| w.code.word()).collect();
+    let codes = codes.join(";");
     for h in &r.hits {
         let c = &h.components;
         let o = &c.peak_overlap;
@@ -87,7 +102,21 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
             h.compound_id.to_string(),
             h.technique.to_string(),
             h.status.to_string(),
+            verdict.to_string(),
+            margin.clone(),
+            codes.clone(),
+            r.library.fingerprint.clone(),
         ])?;
+    }
+    if r.hits.is_empty() {
+        let mut row = vec![String::new(); CSV_COLUMNS.len() - 4];
+        row.extend([
+            verdict.to_string(),
+            margin,
+            codes,
+            r.library.fingerprint.clone(),
+        ]);
+        w.write_record(row)?;
     }
     w.flush()?;
     Ok(())
@@ -289,7 +318,7 @@ pub fn print_report_styled(
             out,
             "{}   {}",
             paint.warn("warning"),
-            output::terminal_text(w)
+            output::terminal_text(&w.message)
         )?;
     }
     if let Some(v) = &r.verdict {

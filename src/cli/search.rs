@@ -196,7 +196,10 @@ fn batch_files(dir: &std::path::Path) -> anyhow::Result<Vec<PathBuf>> {
     Ok(files)
 }
 
-/// Several unknowns searched together: one hit list each (JSON lines with `--json`).
+/// Several unknowns searched together: one hit list each (JSON lines with `--json`). An
+/// unknown that cannot be read or prepared does not stop the others: its error takes its
+/// place (a JSON line `{"unknown", "error"}`, a CSV row with the `error` column filled, an
+/// error paragraph), and the command exits with the input status at the end.
 fn run_many(
     args: &SearchArgs,
     lib: &whorl::library::Library,
@@ -211,32 +214,101 @@ fn run_many(
         )
         .into());
     }
-    let reports = whorl::search::search_files(lib, unknowns, request)?;
+    let results = whorl::search::search_files_each(lib, unknowns, request)?;
     let mut out = std::io::stdout().lock();
-    let mut csv_header = true;
-    for (i, report) in reports.iter().enumerate() {
+    let mut csv_header: Option<String> = None;
+    let mut failed = 0;
+    for (i, (unknown, result)) in unknowns.iter().zip(results).enumerate() {
+        let report = match result {
+            Ok(report) => report,
+            Err(e) => {
+                failed += 1;
+                let file = unknown.file.display().to_string();
+                let error = super::failure::JsonError::from_error(&anyhow::Error::from(e));
+                if args.json {
+                    serde_json::to_writer(
+                        &mut out,
+                        &serde_json::json!({ "unknown": file, "error": error }),
+                    )?;
+                    writeln!(out)?;
+                } else if args.csv {
+                    let header = match &csv_header {
+                        Some(h) => h.clone(),
+                        None => {
+                            let h = csv_header_of(super::hits::CSV_COLUMNS.join(","));
+                            writeln!(out, "{h}")?;
+                            csv_header = Some(h.clone());
+                            h
+                        }
+                    };
+                    let blanks = header.split(',').count() - 2;
+                    writeln!(
+                        out,
+                        "{},{}{}",
+                        csv_field(&file),
+                        csv_field(&format!("{} (hint: {})", error.message, error.hint)),
+                        ",".repeat(blanks)
+                    )?;
+                } else {
+                    if i > 0 {
+                        writeln!(out)?;
+                    }
+                    writeln!(out, "unknown   {}", output::terminal_text(&file))?;
+                    writeln!(out, "error     {}", output::terminal_text(&error.message))?;
+                    writeln!(out, "hint      {}", output::terminal_text(&error.hint))?;
+                }
+                continue;
+            }
+        };
         if args.json {
-            serde_json::to_writer(&mut out, report)?;
+            serde_json::to_writer(&mut out, &report)?;
             writeln!(out)?;
         } else if args.csv {
             let mut buf = Vec::new();
-            write_csv(&mut buf, report)?;
+            write_csv(&mut buf, &report)?;
             let text = String::from_utf8(buf)?;
             let mut lines = text.lines();
             let header = lines.next().unwrap_or_default();
-            if csv_header {
-                writeln!(out, "unknown,{header}")?;
-                csv_header = false;
+            if csv_header.is_none() {
+                let h = csv_header_of(header.to_string());
+                writeln!(out, "{h}")?;
+                csv_header = Some(h);
             }
             for l in lines {
-                writeln!(out, "{},{l}", csv_field(&report.unknown.file))?;
+                writeln!(out, "{},,{l}", csv_field(&report.unknown.file))?;
             }
         } else {
             if i > 0 {
                 writeln!(out)?;
             }
-            print_report_styled(&mut out, report, ctx.paint)?;
+            print_report_styled(&mut out, &report, ctx.paint)?;
         }
     }
+    if failed > 0 {
+        let message = format!(
+            "{failed} of {} unknowns could not be searched (their errors are in the output, in their places)",
+            unknowns.len()
+        );
+        let hint = "correct or remove those files and search them again";
+        if args.json {
+            let error = super::failure::JsonError {
+                kind: "input",
+                message,
+                hint: hint.into(),
+                file: None,
+                line: None,
+                exit_code: super::EXIT_INPUT,
+            };
+            eprintln!("{}", error.line());
+        } else {
+            eprintln!("error: {message}\n  hint: {hint}");
+        }
+        return Ok(ExitCode::from(super::EXIT_INPUT));
+    }
     Ok(ExitCode::SUCCESS)
+}
+
+/// The batch CSV header: the unknown and its error before the columns of one hit list.
+fn csv_header_of(hit_list_header: String) -> String {
+    format!("unknown,error,{hit_list_header}")
 }

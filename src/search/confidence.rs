@@ -4,6 +4,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::hit::Hit;
+use super::warning::{Warning, WarningCode};
 use crate::score::{Measure, ScoreParams};
 use crate::technique::Technique;
 
@@ -421,23 +422,31 @@ pub fn is_confident(hits: &[Hit], c: &Confidence) -> bool {
 }
 
 /// The plain-language warnings about a hit list: no hits, a weak best hit, top hits too close.
-pub(super) fn list_warnings(hits: &[Hit], c: &Confidence) -> Vec<String> {
+pub(super) fn list_warnings(hits: &[Hit], c: &Confidence) -> Vec<Warning> {
     let mut warnings = Vec::new();
     match hits.first() {
-        None => warnings.push(
-            "no library spectrum to compare with: check the technique, the --where query and the constraints"
-                .to_string(),
-        ),
+        None => warnings.push(Warning::new(
+            WarningCode::NoCandidates,
+            "no library spectrum to compare with: check the technique, the --where query and the constraints",
+        )),
         Some(best) => match c.evidence.of(hits) {
-            Some(e) if e < c.weak_score && c.evidence == Evidence::Score => warnings.push(format!(
-                "best score {:.3} is below {:.3}: a weak match, not an identification",
-                best.score, c.weak_score
-            )),
-            Some(e) if e < c.weak_score => warnings.push(format!(
-                "best score {:.3} stands out too little from the next compound ({} gives {e:.3}, below {:.3}): a weak match, not an identification",
-                best.score,
-                Evidence::Discriminant.describe(),
-                c.weak_score
+            Some(e) if e < c.weak_score && c.evidence == Evidence::Score => {
+                warnings.push(Warning::new(
+                    WarningCode::WeakMatch,
+                    format!(
+                        "best score {:.3} is below {:.3}: a weak match, not an identification",
+                        best.score, c.weak_score
+                    ),
+                ))
+            }
+            Some(e) if e < c.weak_score => warnings.push(Warning::new(
+                WarningCode::WeakMatch,
+                format!(
+                    "best score {:.3} stands out too little from the next compound ({} gives {e:.3}, below {:.3}): a weak match, not an identification",
+                    best.score,
+                    Evidence::Discriminant.describe(),
+                    c.weak_score
+                ),
             )),
             _ => {}
         },
@@ -445,9 +454,12 @@ pub(super) fn list_warnings(hits: &[Hit], c: &Confidence) -> Vec<String> {
     if let Some((first, other, gap)) = runner_up(hits)
         && gap < c.close_margin
     {
-        warnings.push(format!(
-            "{} and {} differ by only {gap:.3} (less than {:.3}): too close to tell apart by this spectrum alone",
-            first.name, other.name, c.close_margin
+        warnings.push(Warning::new(
+            WarningCode::TooClose,
+            format!(
+                "{} and {} differ by only {gap:.3} (less than {:.3}): too close to tell apart by this spectrum alone",
+                first.name, other.name, c.close_margin
+            ),
         ));
     }
     warnings
@@ -621,7 +633,11 @@ mod tests {
         assert_eq!(v.word(), "no-acceptable-match");
         assert!(v.sentence(&c).contains("stands out too little"), "{v:?}");
         assert!(!is_confident(&crowded, &c) && is_confident(&hits, &c));
-        assert!(list_warnings(&crowded, &c)[0].contains("stands out too little"));
+        assert!(
+            list_warnings(&crowded, &c)[0]
+                .message
+                .contains("stands out too little")
+        );
     }
 
     #[test]

@@ -5,6 +5,7 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use super::Hit;
+use super::warning::{Warning, WarningCode};
 use crate::technique::Technique;
 
 /// A compound ranked first by one technique and outside this many compounds by another (or
@@ -60,7 +61,7 @@ pub struct Fusion {
     /// Fused score of compound 1 minus compound 2.
     pub margin: Option<f64>,
     /// Plain-language warnings about the fused list.
-    pub warnings: Vec<String>,
+    pub warnings: Vec<Warning>,
 }
 
 /// The rule [`fuse`] applies, as printed with every fused list.
@@ -152,19 +153,25 @@ pub fn fuse(lists: &[(Technique, &[Hit])], top: usize) -> Fusion {
             .iter()
             .map(|(t, h)| format!("{t}: {}", h.name))
             .collect();
-        warnings.push(format!(
-            "the techniques rank different compounds first ({})",
-            said.join("; ")
+        warnings.push(Warning::new(
+            WarningCode::TechniquesDisagree,
+            format!(
+                "the techniques rank different compounds first ({})",
+                said.join("; ")
+            ),
         ));
     }
     if let Some(best) = compounds.first()
         && !best.missing.is_empty()
     {
         let names: Vec<&str> = best.missing.iter().map(|t| t.name()).collect();
-        warnings.push(format!(
-            "the best compound, {}, has no reference spectrum for {}: that evidence is missing, not in its favour",
-            best.name,
-            names.join(", ")
+        warnings.push(Warning::new(
+            WarningCode::MissingTechnique,
+            format!(
+                "the best compound, {}, has no reference spectrum for {}: that evidence is missing, not in its favour",
+                best.name,
+                names.join(", ")
+            ),
         ));
     }
     Fusion {
@@ -229,7 +236,7 @@ mod tests {
         assert_eq!(propanal.missing, [Technique::MsEi]);
         assert_eq!(propanal.evidence[1].score, None);
         assert!(
-            f.warnings[0].contains("different compounds first"),
+            f.warnings[0].code == WarningCode::TechniquesDisagree,
             "{:?}",
             f.warnings
         );
@@ -325,7 +332,7 @@ mod tests {
         assert!(
             f.warnings
                 .iter()
-                .all(|w| !w.contains("different compounds first")),
+                .all(|w| w.code != WarningCode::TechniquesDisagree),
             "{:?}",
             f.warnings
         );
@@ -335,7 +342,7 @@ mod tests {
         assert!(
             f.warnings
                 .iter()
-                .any(|w| w.contains("ir: Toluene; ms-ei: benzene")),
+                .any(|w| w.message.contains("ir: Toluene; ms-ei: benzene")),
             "{:?}",
             f.warnings
         );

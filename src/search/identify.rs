@@ -24,7 +24,7 @@ pub struct TechniqueRun {
     /// Library spectra compared.
     pub candidates: usize,
     /// Warnings about the unknown and its hit list, as `search` gives them.
-    pub warnings: Vec<String>,
+    pub warnings: Vec<super::Warning>,
     /// The thresholds its hit list was judged by.
     pub confidence: Confidence,
 }

@@ -16,6 +16,7 @@ mod replay;
 mod report;
 mod retention;
 mod scan;
+mod warning;
 
 pub use crate::config::{IdentityPolicy, Thresholds};
 pub use confidence::{
@@ -39,7 +40,8 @@ pub use references::references;
 pub use replay::{Replay, load_saved, replay};
 pub use report::{
     LibraryStamp, Parameters, Report, UnknownStamp, keep_points, run_search, search_file,
-    search_files, search_points,
+    search_files, search_files_each, search_points,
 };
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
 pub use scan::{Trace, rank, rank_traced};
+pub use warning::{Warning, WarningCode};

@@ -8,6 +8,7 @@ use super::confidence::{Confidence, Verdict, confidence, list_warnings, verdict}
 use super::hit::{Excluded, Hit};
 use super::plan::{Plan, Request};
 use super::scan;
+use super::warning::{Warning, WarningCode};
 use crate::error::Result;
 use crate::library::{HitRecord, Library, Status};
 use crate::prepare::{Prepared, Solvent, mask_prepared};
@@ -32,7 +33,7 @@ pub struct HitList {
     /// The thresholds the warnings used.
     pub confidence: Confidence,
     /// Plain-language warnings about how far to trust the list.
-    pub warnings: Vec<String>,
+    pub warnings: Vec<Warning>,
     /// What the list comes to (absent in lists saved before verdicts existed).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub verdict: Option<Verdict>,
@@ -304,16 +305,20 @@ fn finish(
     let verdict = Some(verdict(&hits, &confidence));
     hits.truncate(request.top);
     if request.filter.is_some() && library.text_index_behind() {
-        warnings.push(
-            "the metadata index is behind the database (another process is writing); the --where filter may miss the newest spectra".to_string(),
-        );
+        warnings.push(Warning::new(
+            WarningCode::TextIndexBehind,
+            "the metadata index is behind the database (another process is writing); the --where filter may miss the newest spectra",
+        ));
     }
     if !request.statuses.contains(&Status::Pending) {
         let pending = library.count(request.technique, Status::Pending)?;
         if pending > 0 {
-            warnings.push(format!(
-                "{pending} pending (not yet reviewed) {} spectra were not searched; --include-pending adds them",
-                request.technique
+            warnings.push(Warning::new(
+                WarningCode::PendingNotSearched,
+                format!(
+                    "{pending} pending (not yet reviewed) {} spectra were not searched; --include-pending adds them",
+                    request.technique
+                ),
             ));
         }
     }

@@ -9,6 +9,7 @@ use super::confidence::Confidence;
 use super::hit::{Excluded, Hit};
 use super::plan::{Plan, Request, Unknown};
 use super::rank::HitList;
+use super::warning::{Warning, WarningCode};
 use super::{Constraints, Thresholds};
 use crate::error::Result;
 use crate::library::{Library, Status};
@@ -139,8 +140,8 @@ pub struct Report {
     pub margin: Option<f64>,
     /// The thresholds behind the warnings.
     pub confidence: Confidence,
-    /// Warnings about the unknown's preparation and about the hit list.
-    pub warnings: Vec<String>,
+    /// Warnings about the unknown's preparation and about the hit list, each with its code.
+    pub warnings: Vec<Warning>,
     /// What the hit list comes to (absent in reports saved before verdicts existed).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub verdict: Option<crate::search::Verdict>,
@@ -255,6 +256,35 @@ pub fn search_files(
         .collect()
 }
 
+/// [`search_files`], going on past an unknown that cannot be read or prepared: its place in
+/// the result holds its error, and the others are searched together as usual. A problem with
+/// the search itself (the request, the library) is still an error for all of them.
+pub fn search_files_each(
+    library: &Library,
+    unknowns: &[Unknown],
+    request: &Request,
+) -> Result<Vec<Result<Report>>> {
+    let plan = plan_for(library, unknowns, request)?;
+    let read: Vec<Result<(crate::spectrum::RawSpectrum, Prepared)>> =
+        unknowns.par_iter().map(|u| read(&plan, u)).collect();
+    let prepared: Vec<Prepared> = read
+        .iter()
+        .filter_map(|r| r.as_ref().ok().map(|(_, p)| p.clone()))
+        .collect();
+    let mut lists = plan.search_many(library, &prepared)?.into_iter();
+    unknowns
+        .iter()
+        .zip(read)
+        .map(|(u, r)| match r {
+            Ok((raw, p)) => {
+                let list = lists.next().expect("a hit list per prepared unknown");
+                Ok(make_report(library, &plan, u, raw, &p, list))
+            }
+            Err(e) => Ok(Err(e)),
+        })
+        .collect()
+}
+
 /// The plan of a search of unknown files: the request for their technique, with their
 /// solvent (hits note a solvent that differs from the unknown's).
 fn plan_for(library: &Library, unknowns: &[Unknown], request: &Request) -> Result<Plan> {
@@ -294,10 +324,10 @@ fn make_report(
     list: HitList,
 ) -> Result<Report> {
     let request = &plan.request;
-    let mut warnings: Vec<String> = unknown
+    let mut warnings: Vec<Warning> = unknown
         .warnings
         .iter()
-        .map(|w| format!("unknown: {w}"))
+        .map(|w| Warning::new(WarningCode::UnknownPreparation, format!("unknown: {w}")))
         .collect();
     warnings.extend(list.warnings);
     let report = Report {

@@ -349,7 +349,8 @@ fn whorl_toml_sets_search_defaults() {
             .as_array()
             .unwrap()
             .iter()
-            .any(|w| w.as_str().unwrap().contains("below 0.99")),
+            .any(|w| w["code"] == "weak-match"
+                && w["message"].as_str().unwrap().contains("below 0.99")),
         "{r}"
     );
     // --top (or -n) on the command line wins over the file.

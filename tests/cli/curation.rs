@@ -41,6 +41,14 @@ fn a_second_analyst_approves_and_the_spectrum_is_searched() {
     let before = lab.json(&["search", u, "-t", "ir"]);
     assert_eq!(before["hits"].as_array().unwrap().len(), 0);
     assert!(before["warnings"].to_string().contains("--include-pending"));
+    assert!(
+        before["warnings"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|w| w["code"] == "pending-not-searched"),
+        "{before}"
+    );
     assert_eq!(
         lab.json(&["search", u, "-t", "ir", "--include-pending"])["hits"]
             .as_array()

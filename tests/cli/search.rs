@@ -246,9 +246,11 @@ fn where_matching_nothing_gives_no_hits_and_a_warning() {
     assert!(hits(&report).is_empty());
     let warnings = report["warnings"].as_array().unwrap();
     assert!(
-        warnings
-            .iter()
-            .any(|w| w.as_str().unwrap().contains("no library spectrum")),
+        warnings.iter().any(|w| w["code"] == "no-candidates"
+            && w["message"]
+                .as_str()
+                .unwrap()
+                .contains("no library spectrum")),
         "{warnings:?}"
     );
 }
@@ -493,4 +495,127 @@ fn near_identical_hits_print_with_the_digits_that_rank_them() {
         assert!((c - j).abs() <= 2.0 * f64::EPSILON, "{c} against {j}");
     }
     assert!(csv_scores[0] > csv_scores[1]);
+}
+
+#[test]
+fn a_batch_goes_on_past_an_unreadable_file_and_fails_at_the_end() {
+    let lab = small_lab();
+    lab.write(
+        "batch/1.csv",
+        ir_csv(&[(1715.0, 0.9, 10.0), (1360.0, 0.4, 10.0)]),
+    );
+    lab.write("batch/2.csv", "x,y\n");
+    lab.write(
+        "batch/3.csv",
+        ir_csv(&[(730.0, 0.9, 8.0), (1605.0, 0.5, 8.0)]),
+    );
+    let args = ["search", "-t", "ir", "--batch", "batch"];
+    // JSON lines: two hit lists and, in the second place, the error of 2.csv.
+    let mut json_args = args.to_vec();
+    json_args.push("--json");
+    let out = lab.run(&json_args);
+    assert_eq!(out.status.code(), Some(3));
+    let lines: Vec<Value> = String::from_utf8(out.stdout)
+        .unwrap()
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    assert_eq!(lines.len(), 3);
+    assert_eq!(hits(&lines[0])[0]["name"], "compound k");
+    assert!(lines[1]["unknown"].as_str().unwrap().ends_with("2.csv"));
+    assert_eq!(lines[1]["error"]["kind"], "input");
+    assert!(
+        lines[1]["error"]["hint"]
+            .as_str()
+            .is_some_and(|h| !h.is_empty())
+    );
+    assert_eq!(hits(&lines[2])[0]["name"], "compound t");
+    // With --json the closing error on stderr is JSON too.
+    let err: Value = serde_json::from_str(String::from_utf8(out.stderr).unwrap().trim()).unwrap();
+    assert!(err["error"]["message"].as_str().unwrap().contains("1 of 3"));
+    // CSV: one header; the failed file's row carries its error and nothing else.
+    let mut csv_args = args.to_vec();
+    csv_args.push("--csv");
+    let out = lab.run(&csv_args);
+    assert_eq!(out.status.code(), Some(3));
+    let text = String::from_utf8(out.stdout).unwrap();
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    let headers = reader.headers().unwrap().clone();
+    assert_eq!(&headers[0], "unknown");
+    assert_eq!(&headers[1], "error");
+    let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
+    let failed: Vec<&csv::StringRecord> = rows.iter().filter(|r| !r[1].is_empty()).collect();
+    assert_eq!(failed.len(), 1);
+    assert!(failed[0][0].ends_with("2.csv"));
+    assert!(failed[0].iter().skip(2).all(str::is_empty));
+    assert!(rows.iter().filter(|r| r[1].is_empty()).count() >= 2);
+    // Text: the error in its place, between the two hit lists.
+    let out = lab.run(&args);
+    assert_eq!(out.status.code(), Some(3));
+    let text = String::from_utf8(out.stdout).unwrap();
+    let (k, bad, t) = (
+        text.find("compound k").unwrap(),
+        text.find("error ").unwrap(),
+        text.find("unknown   batch/3.csv").unwrap(),
+    );
+    assert!(k < bad && bad < t, "{text}");
+}
+
+#[test]
+fn csv_rows_carry_the_verdict_margin_warning_codes_and_library_state_as_the_json_does() {
+    let lab = small_lab();
+    lab.write("u.csv", ir_csv(&[(1715.0, 0.9, 10.0), (1360.0, 0.4, 10.0)]));
+    // A pending spectrum too, so that the list warns that it was not searched.
+    lab.add(
+        "p.csv",
+        &ir_csv(&[(2100.0, 0.9, 10.0)]),
+        "ir",
+        "compound p",
+        &[],
+    );
+    let report = lab.json(&["search", "u.csv", "-t", "ir"]);
+    let text = lab.ok(&["search", "u.csv", "-t", "ir", "--csv"]);
+    let mut reader = csv::Reader::from_reader(text.as_bytes());
+    let headers = reader.headers().unwrap().clone();
+    let col = |name: &str| headers.iter().position(|h| h == name).unwrap();
+    let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
+    assert_eq!(rows.len(), hits(&report).len());
+    let codes: Vec<&str> = report["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w["code"].as_str().unwrap())
+        .collect();
+    assert!(codes.contains(&"pending-not-searched"), "{codes:?}");
+    for row in &rows {
+        assert_eq!(
+            &row[col("verdict")],
+            report["verdict"]["verdict"].as_str().unwrap()
+        );
+        assert_eq!(
+            row[col("margin")].parse::<f64>().unwrap(),
+            report["margin"].as_f64().unwrap()
+        );
+        assert_eq!(&row[col("warnings")], codes.join(";"));
+        assert_eq!(
+            &row[col("library_state_hash")],
+            report["library"]["fingerprint"].as_str().unwrap()
+        );
+    }
+    // A list without hits is one row, so its verdict and warnings are still read.
+    let none = lab.ok(&[
+        "search",
+        "u.csv",
+        "-t",
+        "ir",
+        "--where",
+        "name:nosuchname",
+        "--csv",
+    ]);
+    let mut reader = csv::Reader::from_reader(none.as_bytes());
+    let rows: Vec<csv::StringRecord> = reader.records().map(Result::unwrap).collect();
+    assert_eq!(rows.len(), 1);
+    assert_eq!(&rows[0][col("rank")], "");
+    assert_eq!(&rows[0][col("verdict")], "no-acceptable-match");
+    assert!(rows[0][col("warnings")].contains("no-candidates"));
 }

@@ -49,7 +49,10 @@ pub fn identify_page(r: &IdentifyReport, queries: &[Query<'_>]) -> Result<String
     if !f.warnings.is_empty() {
         s.push_str("<ul class=\"warnings\">\n");
         for warning in &f.warnings {
-            w(&mut s, format_args!("<li>{}</li>\n", escape(warning)));
+            w(
+                &mut s,
+                format_args!("<li>{}</li>\n", escape(&warning.message)),
+            );
         }
         s.push_str("</ul>\n");
     }

@@ -123,7 +123,10 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
     if !r.warnings.is_empty() {
         s.push_str("<ul class=\"warnings\">\n");
         for warning in &r.warnings {
-            w(&mut s, format_args!("<li>{}</li>\n", escape(warning)));
+            w(
+                &mut s,
+                format_args!("<li>{}</li>\n", escape(&warning.message)),
+            );
         }
         s.push_str("</ul>\n");
     }

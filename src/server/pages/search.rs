@@ -453,7 +453,7 @@ fn result_page(b: &Browser<ToView>, id: String, s: &Arc<Searched>) -> Result<Res
             .join(", "),
         fingerprint: r.library.fingerprint.clone(),
         searched_at: super::when(&r.searched_at),
-        warnings: r.warnings.clone(),
+        warnings: r.warnings.iter().map(|w| w.message.clone()).collect(),
         techniques: techniques(t.name()),
         top: r.parameters.top,
         measure: r.parameters.score.measure.title().to_string(),
