@@ -1,7 +1,7 @@
 //! The full-text index over spectrum metadata (tantivy). Derived data: rebuilt from SQLite
 //! whenever its recorded generation differs from the database's.
 
-use std::collections::HashSet;
+use std::collections::{BTreeSet, HashSet};
 use std::path::Path;
 
 use tantivy::collector::{DocSetCollector, TopDocs};
@@ -79,11 +79,15 @@ fn schema() -> (Schema, Fields) {
     let mut b = Schema::builder();
     // Positions, like TEXT fields have, so that a value of several words ('QR-3727',
     // "aromatic ketone") can be queried: the query parser turns it into a phrase.
-    let json = TextOptions::default().set_indexing_options(
-        TextFieldIndexing::default()
-            .set_tokenizer("default")
-            .set_index_option(IndexRecordOption::WithFreqsAndPositions),
-    );
+    // Fast (columnar) as well, so that numeric values (stored as JSON numbers, see
+    // `json_value`) answer range queries such as `ri:[800 TO 900]`.
+    let json = TextOptions::default()
+        .set_indexing_options(
+            TextFieldIndexing::default()
+                .set_tokenizer("default")
+                .set_index_option(IndexRecordOption::WithFreqsAndPositions),
+        )
+        .set_fast("raw");
     let fields = Fields {
         spectrum_id: b.add_u64_field("spectrum_id", INDEXED | STORED | FAST),
         compound_id: b.add_u64_field("compound_id", STORED | FAST),
@@ -335,7 +339,7 @@ impl TextIndex {
             let mut object = serde_json::Map::new();
             for (k, v) in &m.extra {
                 doc.add_text(f.extra, v);
-                object.insert(k.clone(), serde_json::Value::String(v.clone()));
+                object.insert(k.clone(), json_value(v));
             }
             let value = serde_json::Value::Object(object);
             if let Ok(owned) = serde_json::from_value::<tantivy::schema::OwnedValue>(value) {
@@ -382,8 +386,50 @@ impl TextIndex {
         parser
     }
 
+    /// The extra metadata columns some spectrum in the index has, by their query names.
+    pub fn extra_fields(&self) -> Result<BTreeSet<String>> {
+        let mut names = BTreeSet::new();
+        for reader in self.reader.searcher().segment_readers() {
+            for f in reader.fields_metadata()? {
+                if let Some(name) = f.field_name.strip_prefix("meta.") {
+                    names.insert(name.to_string());
+                }
+            }
+        }
+        Ok(names)
+    }
+
+    /// Refuses a query naming a field that is neither one of [`QUERY_FIELDS`] nor an extra
+    /// column some spectrum has: a misspelt field would otherwise match nothing, silently.
+    fn check_fields(&self, query: &str) -> Result<()> {
+        let named = extra_field_names(query);
+        if named.is_empty() {
+            return Ok(());
+        }
+        let known = self.extra_fields()?;
+        if let Some(unknown) = named.iter().find(|n| !known.contains(n.as_str())) {
+            let extra = if known.is_empty() {
+                "no spectrum has extra columns".to_string()
+            } else {
+                format!(
+                    "the library's extra columns: {}",
+                    known.iter().cloned().collect::<Vec<_>>().join(", ")
+                )
+            };
+            return Err(Error::Query {
+                query: query.to_string(),
+                reason: format!(
+                    "no spectrum has a field '{unknown}'; the fields are {}; {extra}",
+                    QUERY_FIELDS.join(", ")
+                ),
+            });
+        }
+        Ok(())
+    }
+
     fn parse(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
         check_shape(query)?;
+        self.check_fields(query)?;
         let rewritten = route_extra_fields(query);
         self.parser(true)
             .parse_query(&rewritten)
@@ -397,6 +443,7 @@ impl TextIndex {
     /// phrases; no slop, which the parser reads only after `~`), else the parsed query.
     fn parse_ranked(&self, query: &str) -> Result<Box<dyn tantivy::query::Query>> {
         check_shape(query)?;
+        self.check_fields(query)?;
         if !query.contains('~') {
             let rewritten = route_extra_fields(query);
             if let Ok(plain) = self.parser(false).parse_query(&rewritten)
@@ -449,6 +496,48 @@ impl TextIndex {
         }
         Ok(out)
     }
+}
+
+/// An extra metadata value as the index holds it: a plain decimal number as a JSON number (so
+/// that ranges compare it as a number), anything else as text. A value whose digits carry
+/// more than its number (a leading zero, `007`; a sign; an exponent) stays text, so that an
+/// identifier such as a lot number is matched as written.
+fn json_value(v: &str) -> serde_json::Value {
+    let t = v.trim();
+    let digits = t.strip_prefix('-').unwrap_or(t);
+    let plain = !digits.is_empty()
+        && digits.chars().all(|c| c.is_ascii_digit() || c == '.')
+        && digits.matches('.').count() <= 1
+        && !digits.starts_with('.')
+        && !digits.ends_with('.')
+        && !(digits.len() > 1 && digits.starts_with('0') && !digits.starts_with("0."));
+    match t.parse::<f64>() {
+        Ok(x) if plain && x.is_finite() => serde_json::Number::from_f64(x)
+            .map(serde_json::Value::Number)
+            .unwrap_or_else(|| serde_json::Value::String(v.to_string())),
+        _ => serde_json::Value::String(v.to_string()),
+    }
+}
+
+/// The extra-column names a query uses before a colon (lower case, as they are stored).
+fn extra_field_names(query: &str) -> Vec<String> {
+    let routed = route_extra_fields(query);
+    let mut names = Vec::new();
+    let mut rest = routed.as_str();
+    while let Some(at) = rest.find("meta.") {
+        let after = &rest[at + 5..];
+        let end = after
+            .find(|c: char| !(c.is_ascii_alphanumeric() || c == '_'))
+            .unwrap_or(after.len());
+        // Only where the rewrite put it: at a token start, followed by a colon.
+        let starts_token =
+            at == 0 || matches!(rest.as_bytes()[at - 1], b' ' | b'(' | b'+' | b'-' | b'\t');
+        if starts_token && after[end..].starts_with(':') && !after[..end].is_empty() {
+            names.push(after[..end].to_string());
+        }
+        rest = &after[end..];
+    }
+    names
 }
 
 /// Rewrites `column:value` for a name that is not one of the fixed fields into
@@ -539,6 +628,81 @@ mod tests {
             idx.matching_ids("name:(unclosed").unwrap_err(),
             Error::Query { .. }
         ));
+    }
+
+    #[test]
+    fn numeric_extra_columns_answer_ranges_and_an_unknown_field_is_refused() {
+        let idx = TextIndex::in_ram().unwrap();
+        // Retention indices (numbers), a lot number that only looks like one (a leading
+        // zero keeps it text) and a text column.
+        let rows = [
+            meta(
+                "a",
+                "C6H6",
+                &[],
+                &[("ri", "763.1578947368421"), ("lot", "007")],
+            ),
+            meta("b", "C7H8", &[], &[("ri", "812"), ("lot", "L-8")]),
+            meta("c", "C8H10", &[], &[("ri", "905.5"), ("class", "aromatic")]),
+            meta("d", "C3H6O", &[], &[("ri", "n/a")]),
+        ];
+        let docs = rows.iter().enumerate().map(|(i, m)| IndexDoc {
+            spectrum_id: i as i64 + 1,
+            compound_id: i as i64 + 1,
+            technique: "ms-ei",
+            status: "verified",
+            submitted_by: "a.analyst",
+            metadata: m,
+        });
+        idx.rebuild(docs, 1).unwrap();
+        let ids = |q: &str| {
+            let mut v: Vec<i64> = idx.matching_ids(q).unwrap().into_iter().collect();
+            v.sort();
+            v
+        };
+        // Inclusive and exclusive bounds compare as numbers (812 < 905.5 < 1000), not as text.
+        assert_eq!(ids("ri:[800 TO 1000]"), [2, 3]);
+        assert_eq!(ids("ri:[700 TO 812]"), [1, 2]);
+        assert_eq!(ids("ri:{700 TO 812}"), [1]);
+        assert_eq!(ids("ri:[900 TO *]"), [3]);
+        assert_eq!(ids("RI:[0 TO 800] AND formula:C6H6"), [1]);
+        // A text value in the same column is still text; a lot number is matched as written.
+        assert_eq!(ids("ri:n/a"), [4]);
+        assert_eq!(ids("lot:007"), [1]);
+        // A field no spectrum has is refused, naming the fields there are.
+        let err = idx.matching_ids("retention:[800 TO 900]").unwrap_err();
+        let Error::Query { reason, .. } = err else {
+            panic!("a query error")
+        };
+        assert!(reason.contains("'retention'"), "{reason}");
+        assert!(reason.contains("class, lot, ri"), "{reason}");
+        assert!(reason.contains("name, synonym"), "{reason}");
+        assert!(idx.find("nosuch:x", 5).is_err());
+        // Known fields and words inside quotes are not taken for field names.
+        assert!(idx.matching_ids("name:\"x nosuch:y\"").unwrap().is_empty());
+    }
+
+    #[test]
+    fn only_plain_decimal_numbers_are_indexed_as_numbers() {
+        for (v, number) in [
+            ("812", true),
+            ("763.16", true),
+            ("0.5", true),
+            ("-3.5", true),
+            ("0", true),
+            ("007", false),
+            ("1e3", false),
+            ("+5", false),
+            (".5", false),
+            ("5.", false),
+            ("1.2.3", false),
+            ("NaN", false),
+            ("inf", false),
+            ("QR-3727", false),
+            ("", false),
+        ] {
+            assert_eq!(json_value(v).is_number(), number, "{v:?}");
+        }
     }
 
     /// The pruned ranking of `find` against tantivy's own ranking of the same parsed query:

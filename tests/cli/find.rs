@@ -215,3 +215,53 @@ fn find_says_when_the_text_index_is_behind() {
     assert!(String::from_utf8_lossy(&out.stderr).is_empty());
     assert!(String::from_utf8_lossy(&out.stdout).contains("compound gamma"));
 }
+
+#[test]
+fn numeric_metadata_answers_ranges_and_an_unknown_field_is_refused() {
+    // Retention indices set on the command line and in a manifest (common practice: GC
+    // retention indices in the hundreds to thousands).
+    let lab = lab();
+    lab.add(
+        "r1.csv",
+        &ms_csv(&[(91, 999.0), (92, 600.0)]),
+        "ms-ei",
+        "compound gamma",
+        &["--set", "ri=763.1578947368421"],
+    );
+    lab.add(
+        "r2.csv",
+        &ms_csv(&[(105, 999.0), (77, 400.0)]),
+        "ms-ei",
+        "compound delta",
+        &["--set", "ri=905"],
+    );
+    let names = |q: &str| -> BTreeSet<String> {
+        lab.json(&["find", q])
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|r| r["name"].as_str().unwrap().to_string())
+            .collect()
+    };
+    assert_eq!(
+        names("ri:[700 TO 800]"),
+        BTreeSet::from(["compound gamma".into()])
+    );
+    assert_eq!(
+        names("ri:[900 TO *]"),
+        BTreeSet::from(["compound delta".into()])
+    );
+    assert_eq!(names("ri:[700 TO 1000]").len(), 2);
+    // A field no spectrum has: an error naming the fields there are, not "nothing matches".
+    let text = lab.refuses(&["find", "rt:[1 TO 2]"], 3);
+    assert!(text.contains("no spectrum has a field 'rt'"), "{text}");
+    assert!(text.contains("extra columns: ri"), "{text}");
+    assert!(!hint(&text).is_empty());
+    // The same refusal in a search's --where.
+    lab.write("u.csv", ms_csv(&[(91, 999.0), (92, 600.0)]));
+    let text = lab.refuses(
+        &["search", "u.csv", "-t", "ms-ei", "--where", "rt:[1 TO 2]"],
+        3,
+    );
+    assert!(text.contains("no spectrum has a field 'rt'"), "{text}");
+}
