@@ -232,7 +232,7 @@ pub fn print_report_styled(
         r.candidates
     )?;
     if let Some(c) = constraint_summary(&r.parameters.constraints) {
-        writeln!(out, "limits    {c}; {} ruled out", r.excluded_count)?;
+        writeln!(out, "constraints {c}; {} ruled out", r.excluded_count)?;
     }
     writeln!(out)?;
     let second = second_measure(p.measure, technique);

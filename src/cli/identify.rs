@@ -172,7 +172,7 @@ pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Resul
         .first()
         .and_then(|run| constraint_summary(&run.parameters.constraints))
     {
-        writeln!(out, "limits    {c}")?;
+        writeln!(out, "constraints {c}")?;
     }
     writeln!(out, "fused     {}", r.fusion.rule)?;
     writeln!(out)?;

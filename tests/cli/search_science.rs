@@ -446,7 +446,7 @@ fn constraints_exclude_what_they_should_and_explain_lists_reasons() {
         "--explain",
     ]);
     assert!(text.contains("ruled out"), "{text}");
-    assert!(text.contains("limits    nominal mass 92"), "{text}");
+    assert!(text.contains("constraints nominal mass 92"), "{text}");
     // Without --explain the reasons are not listed.
     let quiet = lab.json(&["search", &u, "-t", "ms-ei", "--top", "3", "--mass", "92"]);
     assert!(quiet.get("excluded").is_none());
