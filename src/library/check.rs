@@ -733,10 +733,134 @@ fn verify_blob(
     out
 }
 
+/// The most findings a recorded check keeps in its event (the count is always whole).
+pub const RECORDED_FINDINGS: usize = 20;
+
+/// A check as the audit trail records it: a `check` event on record `library`, appended by
+/// [`Library::record_check`] after the check ran, so that the trail says when the chain was
+/// last checked, by whom (signed in or asserted) and what was found. The replay in
+/// [`Library::check`] passes over these events: they change no state.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct CheckRecord {
+    /// The event's sequence number.
+    pub seq: i64,
+    /// When it was recorded (UTC, RFC 3339).
+    pub at: String,
+    /// Who ran the check.
+    pub by: String,
+    /// `signed-in` or `asserted`, as every event.
+    pub identity: String,
+    /// Events walked.
+    pub events: usize,
+    /// Spectra re-hashed and re-prepared.
+    pub spectra: usize,
+    /// How many inconsistencies were found.
+    pub findings: usize,
+    /// The first of them (at most [`RECORDED_FINDINGS`]).
+    pub first_findings: Vec<Finding>,
+}
+
+impl Library {
+    /// Records a check's result in the audit trail as a `check` event by `actor`, in one
+    /// write transaction; returns the event's sequence number. Called after [`Library::check`]
+    /// by the faces that run a check for someone (the server's check), so the trail shows when
+    /// the chain was last checked and what was found.
+    pub fn record_check(&mut self, actor: &str, report: &CheckReport) -> Result<i64> {
+        let first: Vec<Value> = report
+            .findings
+            .iter()
+            .take(RECORDED_FINDINGS)
+            .map(|f| serde_json::json!({ "record": f.record, "problem": f.problem }))
+            .collect();
+        let payload = serde_json::json!({
+            "events": report.events,
+            "spectra": report.spectra,
+            "findings": report.findings.len(),
+            "first_findings": first,
+        });
+        self.write(|tx| {
+            let seq = super::events::append_event(tx, actor, "check", "library", &payload)?;
+            Ok((seq, vec![]))
+        })
+    }
+
+    /// The newest check recorded in the audit trail, if any.
+    pub fn last_check(&self) -> Result<Option<CheckRecord>> {
+        use rusqlite::OptionalExtension;
+        let row: Option<(i64, String, String, String, String)> = self
+            .conn
+            .query_row(
+                "SELECT seq, at, actor, identity, payload FROM event
+                 WHERE action = 'check' AND record = 'library' ORDER BY seq DESC LIMIT 1",
+                [],
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)),
+            )
+            .optional()?;
+        let Some((seq, at, by, identity, payload)) = row else {
+            return Ok(None);
+        };
+        let p: Value = serde_json::from_str(&payload).unwrap_or(Value::Null);
+        let count = |k: &str| p[k].as_u64().unwrap_or(0) as usize;
+        let first_findings = p["first_findings"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .map(|f| Finding {
+                record: f["record"].as_str().unwrap_or_default().to_string(),
+                problem: f["problem"].as_str().unwrap_or_default().to_string(),
+            })
+            .collect();
+        Ok(Some(CheckRecord {
+            seq,
+            at,
+            by,
+            identity,
+            events: count("events"),
+            spectra: count("spectra"),
+            findings: count("findings"),
+            first_findings,
+        }))
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::library::Status;
+
+    #[test]
+    fn a_recorded_check_is_the_last_check_and_checks_clean() {
+        let mut lib = Library::in_memory("t").unwrap();
+        assert_eq!(lib.last_check().unwrap(), None, "nothing recorded yet");
+        let mut report = lib.check(&|_, _| {}).unwrap();
+        report.findings.push(Finding {
+            record: "spectrum:9".into(),
+            problem: "made up for the test".into(),
+        });
+        let seq = lib.record_check("alice", &report).unwrap();
+        let clean = lib.check(&|_, _| {}).unwrap();
+        lib.record_check("bob", &clean).unwrap();
+        let last = lib.last_check().unwrap().expect("recorded");
+        assert_eq!(
+            (last.by.as_str(), last.findings, last.seq),
+            ("bob", 0, seq + 1)
+        );
+        assert_eq!(last.identity, ASSERTED);
+        assert_eq!(
+            last.events, 2,
+            "the init and alice's check event were walked"
+        );
+        // The check events are part of the chain and change no state: the library checks clean.
+        let again = lib.check(&|_, _| {}).unwrap();
+        assert!(again.findings.is_empty(), "{:?}", again.findings);
+        assert_eq!(again.events, 3);
+        // Alice's record kept her finding.
+        let events = lib.events(Some("library")).unwrap();
+        let alice = events.iter().find(|e| e.actor == "alice").unwrap();
+        assert_eq!(alice.action, "check");
+        assert_eq!(alice.payload["findings"], 1);
+        assert_eq!(alice.payload["first_findings"][0]["record"], "spectrum:9");
+    }
 
     #[test]
     fn an_empty_library_checks_clean() {

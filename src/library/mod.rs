@@ -37,7 +37,7 @@ pub use backup::BackupReport;
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
 pub use caches::BuildProgress;
-pub use check::{CheckReport, Finding};
+pub use check::{CheckRecord, CheckReport, Finding, RECORDED_FINDINGS};
 pub use curation::{MetadataPatch, RevisionInfo};
 pub use events::{ASSERTED, Event, SIGNED_IN};
 pub use find::Found;

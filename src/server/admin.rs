@@ -25,7 +25,9 @@ pub fn router() -> Routes {
 }
 
 /// Runs `whorl check` on the library: the audit chain, the event replay, raw hashes,
-/// re-preparation, fingerprint and derived stores (rebuilt where damaged or behind). The
+/// re-preparation, fingerprint and derived stores (rebuilt where damaged or behind); the
+/// result is then recorded in the audit trail as a `check` event by the caller, signed in
+/// (`Library::record_check`), which the audit-trail page shows as the last check. The
 /// answer is the report `whorl check --json` prints, with the fingerprint; 200 when nothing is
 /// inconsistent, 409 with the same report when something is.
 #[utoipa::path(post, path = "/api/v1/check", tag = "audit",
@@ -37,12 +39,7 @@ pub async fn check(
     Allowed(caller, _): Allowed<ToCurate>,
 ) -> Result<Response, ApiError> {
     tracing::info!(account = %caller.account.name, "check");
-    let (report, fingerprint) = state
-        .with_library(|lib| {
-            let report = lib.check(&|_, _| {})?;
-            Ok((report, lib.fingerprint()?))
-        })
-        .await?;
+    let (report, fingerprint) = run_check(&state, caller.account.name.clone()).await?;
     let clean = report.findings.is_empty();
     let mut body = serde_json::to_value(&report).map_err(whorl::Error::from)?;
     body["fingerprint"] = json!(fingerprint);
@@ -56,4 +53,19 @@ pub async fn check(
         StatusCode::CONFLICT
     };
     Ok((status, Json(body)).into_response())
+}
+
+/// Runs the check as `actor` (signed in) and records its result in the audit trail; the
+/// report and the fingerprint.
+pub async fn run_check(
+    state: &AppState,
+    actor: String,
+) -> Result<(whorl::library::CheckReport, String), ApiError> {
+    state
+        .write_as(move |lib| {
+            let report = lib.check(&|_, _| {})?;
+            lib.record_check(&actor, &report)?;
+            Ok((report, lib.fingerprint()?))
+        })
+        .await
 }

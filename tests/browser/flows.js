@@ -106,7 +106,7 @@ async function zoomPlot(page, context, browser) {
   const whole = await range();
   expect(whole[1] > whole[0], `the plot shows x ${whole[0]} to ${whole[1]}`, JSON.stringify(whole));
   // The x ticks (numbers above 100 on an IR plot) in the order they stand on screen.
-  const xs = await fig.locator('.plot-live svg text').evaluateAll((ts) => ts
+  const xs = await fig.locator('.plot-live svg .plot-axes text').evaluateAll((ts) => ts
     .map((t) => ({ v: Number(t.textContent), left: t.getBoundingClientRect().left }))
     .filter((t) => Number.isFinite(t.v) && t.v > 100)
     .sort((a, b) => a.left - b.left).map((t) => t.v));

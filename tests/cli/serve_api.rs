@@ -936,13 +936,22 @@ fn roles_change_with_a_reason_audited_and_take_effect_at_once() {
     assert_eq!(r.status, 200, "{}", r.body);
     assert_eq!(r.body["role"], "curator");
     assert_eq!(stats(), 200);
-    let event = lab
-        .json(&["log"])
-        .as_array()
-        .unwrap()
-        .last()
-        .cloned()
-        .unwrap();
+    // The check just run is recorded as the newest event, by the new curator, signed in; the
+    // role change is the event before it.
+    let log = lab.json(&["log"]);
+    let log = log.as_array().unwrap();
+    let check = &log[log.len() - 1];
+    assert_eq!(
+        (
+            check["action"].as_str(),
+            check["actor"].as_str(),
+            check["identity"].as_str(),
+            check["payload"]["findings"].as_u64()
+        ),
+        (Some("check"), Some("v.viewer"), Some("signed-in"), Some(0)),
+        "{check}"
+    );
+    let event = log[log.len() - 2].clone();
     assert_eq!(
         (
             event["action"].as_str(),

@@ -1,16 +1,19 @@
 //! The audit-trail page: the library's events, newest first, filtered by spectrum, account,
 //! action and date, in pages; each with who, when, whether the actor signed in or was
-//! asserted, what it touched and the hash that chains it to the one before.
+//! asserted, what it touched and the hash that chains it to the one before; above them the
+//! chain's last check (when, by whom, what it found: the newest `check` event, which
+//! `Library::record_check` appends), and for curators a button that runs the check now.
 
 use askama::Template;
+use axum::extract::rejection::FormRejection;
 use axum::extract::rejection::QueryRejection;
-use axum::extract::{Query, State};
-use axum::response::Response;
-use axum::routing::get;
+use axum::extract::{Form, Query, State};
+use axum::response::{IntoResponse, Redirect, Response};
+use axum::routing::{get, post};
 use serde::Deserialize;
-use whorl::library::{Capability, Event};
+use whorl::library::{Capability, CheckRecord, Event};
 
-use super::super::auth::ToView;
+use super::super::auth::{ToCurate, ToView};
 use super::super::error::ApiError;
 use super::super::routes::{Access, Routes};
 use super::super::state::AppState;
@@ -23,7 +26,74 @@ const PAGE: usize = 100;
 
 /// The audit-trail route.
 pub fn router() -> Routes {
-    Routes::new().add("GET", "/audit", Access::Needs(Capability::View), get(page))
+    Routes::new()
+        .add("GET", "/audit", Access::Needs(Capability::View), get(page))
+        .add(
+            "POST",
+            "/audit/check",
+            Access::Needs(Capability::Curate),
+            post(check_now),
+        )
+}
+
+#[derive(Deserialize)]
+struct CheckForm {
+    csrf: Option<String>,
+}
+
+/// Runs the library's full check now (as `POST /api/v1/check` does), records it, and shows
+/// the audit trail with its result on top.
+async fn check_now(
+    State(state): State<AppState>,
+    b: Browser<ToCurate>,
+    body: Result<Form<CheckForm>, FormRejection>,
+) -> Response {
+    let given = body.ok().and_then(|Form(f)| f.csrf);
+    if let Some(r) = b.csrf_refused(given.as_deref()) {
+        return r;
+    }
+    tracing::info!(account = %b.caller.account.name, "check from the audit page");
+    match super::super::admin::run_check(&state, b.caller.account.name.clone()).await {
+        Ok(_) => Redirect::to("/audit#last-check").into_response(),
+        Err(e) => b.fail("Check failed", e),
+    }
+}
+
+/// The last check as the page shows it.
+struct LastCheck {
+    seq: i64,
+    when: String,
+    by: String,
+    identity: String,
+    /// "No inconsistency" or "N inconsistencies".
+    result: String,
+    clean: bool,
+    walked: String,
+    findings: Vec<String>,
+    /// Findings found but not kept in the event.
+    more: usize,
+}
+
+fn last_check(c: CheckRecord) -> LastCheck {
+    LastCheck {
+        seq: c.seq,
+        when: when(&c.at),
+        by: c.by,
+        identity: c.identity,
+        result: match c.findings {
+            0 => "no inconsistency".to_string(),
+            1 => "1 inconsistency".to_string(),
+            n => format!("{n} inconsistencies"),
+        },
+        clean: c.findings == 0,
+        walked: format!("{} events and {} spectra", c.events, c.spectra),
+        more: c.findings.saturating_sub(c.first_findings.len()),
+        findings: c
+            .first_findings
+            .into_iter()
+            .map(|f| format!("{}: {}", f.record, f.problem))
+            .collect(),
+    }
 }
 
 #[derive(Deserialize, Default)]
@@ -58,6 +128,8 @@ struct ActionChoice {
 #[template(path = "audit.html")]
 struct AuditPage {
     layout: Layout,
+    checked: Option<LastCheck>,
+    can_check: bool,
     spectrum: String,
     account: String,
     actions: Vec<ActionChoice>,
@@ -136,9 +208,11 @@ async fn page(
     let action = f.action.as_deref().map(str::trim).unwrap_or("").to_string();
 
     let events = state
-        .with_library(move |lib| Ok::<_, ApiError>(lib.events(record.as_deref())?))
+        .with_library(move |lib| {
+            Ok::<_, ApiError>((lib.events(record.as_deref())?, lib.last_check()?))
+        })
         .await;
-    let events = match events {
+    let (events, checked) = match events {
         Ok(e) => e,
         Err(e) => return b.fail("Audit trail", e),
     };
@@ -199,6 +273,8 @@ async fn page(
     };
     render(&AuditPage {
         layout: b.layout("Audit trail", "/audit"),
+        checked: checked.map(last_check),
+        can_check: b.caller.account.can(Capability::Curate),
         actions: actions
             .into_iter()
             .map(|a| ActionChoice {

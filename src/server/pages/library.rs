@@ -1,5 +1,6 @@
 //! The library page: every spectrum, or those the find box's text query matches (the text
-//! index, as `whorl find`), filtered by technique and status, in pages.
+//! index, as `whorl find`), filtered by technique and status and by numeric ranges of the
+//! metadata (the compound's average molar mass from its formula, the date acquired), in pages.
 
 use askama::Template;
 use axum::extract::rejection::QueryRejection;
@@ -36,7 +37,106 @@ struct Filter {
     q: Option<String>,
     technique: Option<String>,
     status: Option<String>,
+    mass_min: Option<String>,
+    mass_max: Option<String>,
+    acquired_from: Option<String>,
+    acquired_to: Option<String>,
     page: Option<usize>,
+}
+
+/// The numeric ranges asked for; a bound left empty is open.
+#[derive(Default, Clone)]
+struct Ranges {
+    mass: (Option<f64>, Option<f64>),
+    acquired: (Option<String>, Option<String>),
+}
+
+impl Ranges {
+    fn read(f: &Filter) -> Result<Ranges, ApiError> {
+        let number = |field: &str, v: &Option<String>| -> Result<Option<f64>, ApiError> {
+            match v.as_deref().map(str::trim).filter(|v| !v.is_empty()) {
+                None => Ok(None),
+                Some(t) => match t.parse::<f64>() {
+                    Ok(x) if x.is_finite() && x >= 0.0 => Ok(Some(x)),
+                    _ => Err(ApiError::input(
+                        format!("{field}: '{t}' is not a molar mass"),
+                        "give a number of g/mol, e.g. 58 or 120.5, or leave the field empty",
+                    )),
+                },
+            }
+        };
+        let day = |field: &str, v: &Option<String>| -> Result<Option<String>, ApiError> {
+            match v.as_deref().map(str::trim).filter(|v| !v.is_empty()) {
+                None => Ok(None),
+                Some(d) => chrono::NaiveDate::parse_from_str(d, "%Y-%m-%d")
+                    .map(|d| Some(d.format("%Y-%m-%d").to_string()))
+                    .map_err(|_| {
+                        ApiError::input(
+                            format!("{field}: '{d}' is not a date"),
+                            "give the date as YYYY-MM-DD, e.g. 2025-05-28",
+                        )
+                    }),
+            }
+        };
+        let r = Ranges {
+            mass: (
+                number("mass from", &f.mass_min)?,
+                number("mass to", &f.mass_max)?,
+            ),
+            acquired: (
+                day("acquired from", &f.acquired_from)?,
+                day("acquired to", &f.acquired_to)?,
+            ),
+        };
+        if let (Some(a), Some(b)) = r.mass
+            && a > b
+        {
+            return Err(ApiError::input(
+                format!("mass: from {a} is above to {b}"),
+                "give the lower bound first, or swap the two",
+            ));
+        }
+        Ok(r)
+    }
+
+    fn mass_given(&self) -> bool {
+        self.mass.0.is_some() || self.mass.1.is_some()
+    }
+
+    fn acquired_given(&self) -> bool {
+        self.acquired.0.is_some() || self.acquired.1.is_some()
+    }
+
+    /// Whether a molar mass (None: no formula, or one that cannot be weighed) is in range.
+    fn mass_fits(&self, mass: Option<f64>) -> bool {
+        if !self.mass_given() {
+            return true;
+        }
+        mass.is_some_and(|m| {
+            self.mass.0.is_none_or(|lo| m >= lo) && self.mass.1.is_none_or(|hi| m <= hi)
+        })
+    }
+
+    /// Whether a date acquired (its first ten characters as YYYY-MM-DD) is in range.
+    fn acquired_fits(&self, acquired: Option<&str>) -> bool {
+        if !self.acquired_given() {
+            return true;
+        }
+        let Some(d) = acquired
+            .map(|a| a.trim().chars().take(10).collect::<String>())
+            .filter(|d| chrono::NaiveDate::parse_from_str(d, "%Y-%m-%d").is_ok())
+        else {
+            return false;
+        };
+        self.acquired.0.as_ref().is_none_or(|lo| &d >= lo)
+            && self.acquired.1.as_ref().is_none_or(|hi| &d <= hi)
+    }
+}
+
+/// The average molar mass (g/mol) of a formula, when it can be weighed.
+fn molar_mass(formula: Option<&str>) -> Option<f64> {
+    let f = whorl::chem::parse_formula(formula?).ok()?;
+    whorl::chem::average_mass(&f).ok()
 }
 
 struct Row {
@@ -47,6 +147,8 @@ struct Row {
     technique: String,
     status: String,
     revision: i64,
+    /// The average molar mass from the formula, g/mol ("" without one).
+    mass: String,
 }
 
 #[derive(Template)]
@@ -56,6 +158,10 @@ struct LibraryPage {
     q: String,
     techniques: Vec<Choice>,
     statuses: Vec<Choice>,
+    mass_min: String,
+    mass_max: String,
+    acquired_from: String,
+    acquired_to: String,
     summary: String,
     rows: Vec<Row>,
     page: usize,
@@ -85,6 +191,11 @@ async fn page(
             Err(e) => return b.fail("Library", e.into()),
         },
     };
+    let ranges = match Ranges::read(&f) {
+        Ok(r) => r,
+        Err(e) => return b.fail("Library", e),
+    };
+    let wanted = ranges.clone();
     let query = q.clone();
     let rows = state
         .with_library(move |lib| {
@@ -92,6 +203,7 @@ async fn page(
                 lib.list(technique)?
                     .into_iter()
                     .map(|s| Row {
+                        mass: mass_text(s.formula.as_deref()),
                         id: s.id,
                         name: s.name,
                         formula: s.formula.unwrap_or_default(),
@@ -113,6 +225,7 @@ async fn page(
                     .filter_map(|id| records.remove(id))
                     .filter(|r| technique.is_none_or(|t| r.technique == t))
                     .map(|r| Row {
+                        mass: mass_text(r.metadata.formula.as_deref()),
                         id: r.id,
                         name: r.metadata.name,
                         formula: r.metadata.formula.unwrap_or_default(),
@@ -125,6 +238,18 @@ async fn page(
             };
             if let Some(s) = status {
                 rows.retain(|r| r.status == s.name());
+            }
+            rows.retain(|r| wanted.mass_fits(r.mass.parse::<f64>().ok()));
+            if wanted.acquired_given() {
+                let ids: Vec<i64> = rows.iter().map(|r| r.id).collect();
+                let acquired: std::collections::HashMap<i64, Option<String>> = lib
+                    .hit_records(&ids)?
+                    .into_iter()
+                    .map(|r| (r.id, r.metadata.acquired))
+                    .collect();
+                rows.retain(|r| {
+                    wanted.acquired_fits(acquired.get(&r.id).and_then(|a| a.as_deref()))
+                });
             }
             Ok::<_, ApiError>(rows)
         })
@@ -143,6 +268,10 @@ async fn page(
             ("q", q.as_str()),
             ("technique", f.technique.as_deref().unwrap_or("")),
             ("status", f.status.as_deref().unwrap_or("")),
+            ("mass_min", f.mass_min.as_deref().unwrap_or("")),
+            ("mass_max", f.mass_max.as_deref().unwrap_or("")),
+            ("acquired_from", f.acquired_from.as_deref().unwrap_or("")),
+            ("acquired_to", f.acquired_to.as_deref().unwrap_or("")),
         ] {
             if !v.is_empty() {
                 s.push_str(&format!("&{k}={}", encode(v)));
@@ -167,6 +296,10 @@ async fn page(
                 selected: f.status.as_deref() == Some(s),
             })
             .collect(),
+        mass_min: f.mass_min.clone().unwrap_or_default(),
+        mass_max: f.mass_max.clone().unwrap_or_default(),
+        acquired_from: f.acquired_from.clone().unwrap_or_default(),
+        acquired_to: f.acquired_to.clone().unwrap_or_default(),
         summary,
         rows,
         page,
@@ -182,6 +315,13 @@ async fn page(
             String::new()
         },
     })
+}
+
+/// A molar mass for the list: two decimals, "" without a formula that can be weighed.
+fn mass_text(formula: Option<&str>) -> String {
+    molar_mass(formula)
+        .map(|m| format!("{m:.2}"))
+        .unwrap_or_default()
 }
 
 /// Percent-encodes a query-string value (RFC 3986 unreserved characters kept).

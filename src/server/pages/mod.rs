@@ -14,6 +14,7 @@ mod assets;
 mod audit;
 mod library;
 mod plot;
+mod report;
 mod review;
 mod search;
 mod sign_in;
@@ -43,6 +44,7 @@ pub fn router() -> Routes {
     sign_in::router()
         .merge(assets::router())
         .merge(search::router(&held))
+        .merge(report::router(&held))
         .merge(library::router())
         .merge(spectrum::router())
         .merge(review::router())

@@ -1,8 +1,9 @@
 //! A plot on a page: the report layer's static SVG (what a browser without JavaScript, a
 //! printout and the printable report show) and the same spectra as JSON in a `data-plot`
-//! attribute, which `assets/plot.js` draws again with zoom and pan. Curves are sent as their
-//! grid start, step and values scaled to their own maximum (as the static plot scales them),
-//! EI spectra as their sticks.
+//! attribute, which `assets/plot.js` draws again with zoom and pan, stacking, a difference
+//! trace and peak labels. Curves are sent as their grid start, step and values scaled to their
+//! own maximum (as the static plot scales them) with their picked peaks' positions, EI spectra
+//! as their sticks.
 
 use serde::Serialize;
 use whorl::prepare::Prepared;
@@ -32,6 +33,8 @@ struct Data<'a> {
     dir: &'static str,
     /// Two EI spectra: the first above the axis, the second below.
     mirror: bool,
+    /// Decimals of a peak label, as the report layer writes them.
+    digits: u8,
     series: Vec<SeriesData<'a>>,
 }
 
@@ -46,6 +49,19 @@ struct SeriesData<'a> {
     y: Vec<f32>,
     #[serde(skip_serializing_if = "Vec::is_empty")]
     sticks: Vec<(f64, f64)>,
+    /// A curve's picked peaks (positions on x).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    peaks: Vec<f64>,
+}
+
+/// Decimals of a peak position as the trade writes it and the report layer labels it: 0.01
+/// ppm for 1H, 0.1 ppm for 13C, whole wavenumbers and m/z (common practice).
+pub fn label_digits(t: Technique) -> u8 {
+    match t {
+        Technique::Nmr1h => 2,
+        Technique::Nmr13c => 1,
+        _ => 0,
+    }
 }
 
 /// The trade's direction of x: wavenumber, Raman shift and chemical shift decrease to the
@@ -64,6 +80,7 @@ fn data(grid: &Grid, series: &[(&str, &Prepared)]) -> Result<String, ApiError> {
         x: technique.x_label(),
         dir: if descending(technique) { "down" } else { "up" },
         mirror: sticks && series.len() == 2,
+        digits: label_digits(technique),
         series: series
             .iter()
             .map(|(label, p)| {
@@ -74,6 +91,7 @@ fn data(grid: &Grid, series: &[(&str, &Prepared)]) -> Result<String, ApiError> {
                         dx: None,
                         y: Vec::new(),
                         sticks: p.peaks.iter().map(|k| (k.x, round(k.height))).collect(),
+                        peaks: Vec::new(),
                     }
                 } else {
                     let max = p.vector.iter().copied().fold(0f32, f32::max);
@@ -87,6 +105,7 @@ fn data(grid: &Grid, series: &[(&str, &Prepared)]) -> Result<String, ApiError> {
                             .map(|v| (v.max(0.0) * scale * 1000.0).round() / 1000.0)
                             .collect(),
                         sticks: Vec::new(),
+                        peaks: p.peaks.iter().map(|k| round(k.x)).collect(),
                     }
                 }
             })

@@ -363,11 +363,34 @@ pub fn verdict(r: &Report) -> (String, String, String) {
     }
 }
 
-/// The overlays of a held search.
+/// The plots of a held search: the unknown with all plotted hits on one axis (to stack or
+/// subtract one from another) when there are two or more, then one overlay per hit.
 pub fn plots(s: &Searched) -> Result<Vec<PlotView>, ApiError> {
     let r = &s.report;
     let grid = &r.parameters.recipe.grid;
-    r.hits
+    let labels: Vec<String> = r
+        .hits
+        .iter()
+        .zip(&s.references)
+        .map(|(h, _)| format!("hit {}: {}", h.rank, h.name))
+        .collect();
+    let mut together = Vec::new();
+    if labels.len() >= 2 {
+        let mut series: Vec<(&str, &Prepared)> = vec![(s.file_name.as_str(), &s.unknown)];
+        series.extend(labels.iter().map(String::as_str).zip(&s.references));
+        together.push(plot::spectra(
+            "hits-together".to_string(),
+            format!(
+                "The unknown {} with its first {} hits",
+                s.file_name,
+                labels.len()
+            ),
+            grid,
+            &series,
+        )?);
+    }
+    let overlays: Vec<PlotView> = r
+        .hits
         .iter()
         .zip(&s.references)
         .map(|(h, reference)| {
@@ -384,7 +407,9 @@ pub fn plots(s: &Searched) -> Result<Vec<PlotView>, ApiError> {
                 r.parameters.score.peak_tolerance,
             )
         })
-        .collect()
+        .collect::<Result<_, _>>()?;
+    together.extend(overlays);
+    Ok(together)
 }
 
 #[derive(Template)]
