@@ -181,8 +181,9 @@ pub struct Token {
     pub revoked_at: Option<String>,
 }
 
-/// Checks a password's length before it is hashed.
-fn check_password(password: &str) -> Result<()> {
+/// Whether a password meets the length rules (at least [`MIN_PASSWORD_CHARS`] characters, at
+/// most [`MAX_PASSWORD_CHARS`]), checked before a password is hashed or anything is written.
+pub fn check_password_rules(password: &str) -> Result<()> {
     let n = password.chars().count();
     if n < MIN_PASSWORD_CHARS {
         return Err(Error::invalid(
@@ -221,7 +222,7 @@ pub fn random_bytes(n: usize) -> Result<Vec<u8>> {
 /// An Argon2id PHC string for a password, with a fresh 16-byte salt (RFC 9106 section 3.1
 /// recommends 16 bytes).
 pub fn hash_password(password: &str) -> Result<String> {
-    check_password(password)?;
+    check_password_rules(password)?;
     let salt = SaltString::encode_b64(&random_bytes(16)?).map_err(hash_error)?;
     Ok(hasher()
         .hash_password(password.as_bytes(), &salt)

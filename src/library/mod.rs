@@ -31,7 +31,7 @@ pub use crate::cache::{Snapshot, VectorRow};
 pub use crate::spectrum::{Metadata, Status};
 pub use accounts::{
     Account, Capability, MIN_PASSWORD_CHARS, PASSWORD_PARAMS, Role, TOKEN_PREFIX, Token,
-    hash_password, random_bytes, verify_password,
+    check_password_rules, hash_password, random_bytes, verify_password,
 };
 pub use backup::BackupReport;
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};

@@ -10,7 +10,7 @@ use axum::routing::{get, post};
 use serde::Deserialize;
 use serde_json::Value;
 use whorl::library::Capability;
-use whorl::search::{Constraints, IdentifyOptions, RiWindow, Unknown, identify};
+use whorl::search::{Constraints, IdentifyOptions, IdentifyReport, RiWindow, Unknown, identify};
 use whorl::technique::Technique;
 
 use super::auth::{Allowed, ToView};
@@ -71,7 +71,8 @@ pub struct IdentifyForm {
     ri_phase: Option<String>,
 }
 
-const FILE_PARTS: [(&str, Technique); 5] = [
+/// The file parts of an identification, one per technique.
+pub const FILE_PARTS: [(&str, Technique); 5] = [
     ("ir", Technique::Ir),
     ("raman", Technique::Raman),
     ("ms-ei", Technique::MsEi),
@@ -79,7 +80,8 @@ const FILE_PARTS: [(&str, Technique); 5] = [
     ("nmr-13c", Technique::Nmr13c),
 ];
 
-const FIELDS: [&str; 11] = [
+/// The text fields of an identification.
+pub const FIELDS: [&str; 11] = [
     "solvent",
     "ir_y_unit",
     "ir_x_unit",
@@ -160,6 +162,16 @@ pub async fn identify_sample(
 ) -> Result<Json<Value>, ApiError> {
     let parts: Vec<&str> = FILE_PARTS.iter().map(|p| p.0).collect();
     let form = Upload::read_parts(form?, &parts, &FIELDS, false).await?;
+    tracing::info!(account = %caller.account.name, unknowns = form.files.len(), "identify");
+    let report = run(&state, form).await?;
+    Ok(Json(
+        serde_json::to_value(&report).map_err(whorl::Error::from)?,
+    ))
+}
+
+/// Identifies one sample from a form of unknowns (one file part per technique, at least one)
+/// and the options of `whorl identify`: the code both the API and the identify page run.
+pub async fn run(state: &AppState, form: Upload) -> Result<IdentifyReport, ApiError> {
     if form.files.is_empty() {
         return Err(ApiError::input(
             "the form has no unknown",
@@ -171,9 +183,8 @@ pub async fn identify_sample(
     let solvent = form.parsed("solvent")?;
     let ir_y_unit = form.parsed("ir_y_unit")?;
     let ir_x_unit = form.parsed("ir_x_unit")?;
-    tracing::info!(account = %caller.account.name, unknowns = form.files.len(), "identify");
     let root = state.options.library.clone();
-    let report = state
+    state
         .with_library(move |lib| {
             let dir = tempfile::tempdir()
                 .map_err(|e| whorl::Error::io("making a temporary folder", e))?;
@@ -206,11 +217,9 @@ pub async fn identify_sample(
                 policy: config.identity,
                 config: &config,
             };
-            let report = identify(lib, &unknowns, &options)?;
-            Ok(serde_json::to_value(&report).map_err(whorl::Error::from)?)
+            Ok(identify(lib, &unknowns, &options)?)
         })
-        .await?;
-    Ok(Json(report))
+        .await
 }
 
 /// A text query.

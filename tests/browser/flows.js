@@ -179,9 +179,8 @@ async function main() {
     page.on('console', (m) => {
       if (m.type() === 'error' && !m.text().startsWith('Failed to load resource')) errors.push(m.text());
     });
-    // Refused requests: only those the flow provokes (a wrong password, a self-review) and
-    // the browser's own try for /favicon.ico (the pages declare no icon).
-    const expected = [/^POST \/sign-in 401$/, /^POST \/review\/\d+ 4\d\d$/, /^GET \/favicon\.ico 404$/];
+    // Refused requests: only those the flow provokes (a wrong password, a self-review).
+    const expected = [/^POST \/sign-in 401$/, /^POST \/review\/\d+ 4\d\d$/];
     page.on('response', (r) => {
       if (r.status() < 400) return;
       const what = `${r.request().method()} ${new URL(r.url()).pathname} ${r.status()}`;

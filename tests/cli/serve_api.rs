@@ -1286,21 +1286,39 @@ fn every_page_form_refuses_a_missing_or_wrong_csrf_token() {
             .replace("{key}", "0123456789abcdef");
         for token in [None, Some("forged-token")] {
             let before = lab.state();
+            let accounts = lab.json(&["account", "list"]);
             let csrf = token.map(|t| format!("csrf={t}&")).unwrap_or_default();
             let req = agent()
                 .post(server.url(&concrete))
                 .header("Cookie", &cookie);
-            let sent = if path == "/search" {
-                let mut fields = vec![("technique", "ir")];
+            // The multipart forms get a complete upload, the others every field any of them
+            // takes: only the token is wrong.
+            let mut parts: Vec<Part> = match path {
+                "/search" => vec![("technique", None, text("ir"))],
+                "/submit" => vec![
+                    ("technique", None, text("ir")),
+                    ("name", None, text("csrf probe")),
+                ],
+                "/submit/manifest" => vec![(
+                    "manifest",
+                    Some("m.csv"),
+                    text("file,technique,name\nu.csv,ir,csrf probe\n"),
+                )],
+                _ => Vec::new(),
+            };
+            let multipart = !parts.is_empty() || path == "/identify";
+            let sent = if multipart {
+                let file_part = if path == "/identify" { "ir" } else { "file" };
+                parts.push((file_part, Some("u.csv"), distinct_ir(7)));
                 if let Some(t) = token {
-                    fields.push(("csrf", t));
+                    parts.push(("csrf", None, text(t)));
                 }
-                let (ct, body) = crate::serve::multipart(&fields, "u.csv", &distinct_ir(7));
+                let (ct, body) = form(&parts);
                 req.header("Content-Type", &ct).send(&body[..])
             } else {
                 let body = format!(
-                    "{csrf}technique=ir&decision=approve&password={}",
-                    password.replace(' ', "+")
+                    "{csrf}technique=ir&decision=approve&password={p}&again={p}&name=t.csrfprobe&role=admin&reason=csrf+probe&sha256=00",
+                    p = password.replace(' ', "+")
                 );
                 req.header("Content-Type", "application/x-www-form-urlencoded")
                     .send(body.as_bytes())
@@ -1314,11 +1332,17 @@ fn every_page_form_refuses_a_missing_or_wrong_csrf_token() {
                 "{path}: {text}"
             );
             assert_eq!(lab.state(), before, "{path} changed the library");
+            assert_eq!(
+                lab.json(&["account", "list"]),
+                accounts,
+                "{path} changed the accounts"
+            );
             checked += 1;
         }
     }
-    // The search form, searching again, the sign-off and the sign-out, twice each.
-    assert!(checked >= 8, "only {checked} refusals");
+    // The search form, searching again, the sign-off, the sign-out, the submission and its
+    // confirmation, the manifest, the identification, and the three account forms, twice each.
+    assert!(checked >= 22, "only {checked} refusals");
     // The pending spectrum is still pending: no sign-off went through.
     assert_eq!(
         lab.json(&["show", &id.to_string()])["spectrum"]["status"],

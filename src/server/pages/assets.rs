@@ -1,4 +1,4 @@
-//! The pages' style sheet and plot script, compiled into the binary (no build step, nothing
+//! The pages' style sheet, plot script and icon, compiled into the binary (no build step, nothing
 //! fetched from elsewhere).
 
 use axum::http::{HeaderValue, header};
@@ -9,12 +9,16 @@ use super::super::routes::{Access, Routes};
 
 const CSS: &str = include_str!("../../../assets/whorl.css");
 const PLOT_JS: &str = include_str!("../../../assets/plot.js");
+/// Our own icon (a small spiral), so browsers find one instead of a 404.
+const ICON: &str = include_str!("../../../assets/favicon.svg");
 
 /// The asset routes (public: the sign-in page needs them).
 pub fn router() -> Routes {
     Routes::new()
         .add("GET", "/static/whorl.css", Access::Public, get(css))
         .add("GET", "/static/plot.js", Access::Public, get(script))
+        .add("GET", "/static/favicon.svg", Access::Public, get(icon))
+        .add("GET", "/favicon.ico", Access::Public, get(icon))
 }
 
 fn asset(content_type: &'static str, body: &'static str) -> Response {
@@ -34,4 +38,8 @@ async fn css() -> Response {
 
 async fn script() -> Response {
     asset("text/javascript; charset=utf-8", PLOT_JS)
+}
+
+async fn icon() -> Response {
+    asset("image/svg+xml", ICON)
 }

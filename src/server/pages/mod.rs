@@ -10,8 +10,10 @@
 //! (the synchronizer token pattern of the OWASP Cross-Site Request Forgery Prevention Cheat
 //! Sheet); a form without it or with another session's token is refused and changes nothing.
 
+mod accounts;
 mod assets;
 mod audit;
+mod identify;
 mod library;
 mod plot;
 mod report;
@@ -19,6 +21,7 @@ mod review;
 mod search;
 mod sign_in;
 mod spectrum;
+mod submit;
 
 use std::collections::HashMap;
 use std::marker::PhantomData;
@@ -49,6 +52,9 @@ pub fn router() -> Routes {
         .merge(spectrum::router())
         .merge(review::router())
         .merge(audit::router())
+        .merge(submit::router(&held))
+        .merge(identify::router())
+        .merge(accounts::router())
 }
 
 /// The caution every page carries.
@@ -82,11 +88,14 @@ pub struct Layout {
     pub version: &'static str,
 }
 
-const PAGES: [(&str, &str, Capability); 4] = [
+const PAGES: [(&str, &str, Capability); 7] = [
     ("/search", "Search", Capability::View),
+    ("/identify", "Identify", Capability::View),
+    ("/submit", "Submit", Capability::Submit),
     ("/library", "Library", Capability::View),
     ("/review", "Review queue", Capability::SignOff),
     ("/audit", "Audit trail", Capability::View),
+    ("/accounts", "Accounts", Capability::Administer),
 ];
 
 impl Layout {
@@ -305,6 +314,14 @@ impl Held {
             return None;
         }
         value.clone().downcast::<T>().ok()
+    }
+
+    /// What `account` holds under `id`, if it is of type `T`, no longer held after this (a
+    /// confirmation is used once).
+    pub fn take<T: Send + Sync + 'static>(&self, account: i64, id: &str) -> Option<Arc<T>> {
+        let found = self.get::<T>(account, id)?;
+        let mut items = self.items.lock().unwrap_or_else(|e| e.into_inner());
+        items.remove(id).map(|_| found)
     }
 }
 

@@ -296,6 +296,8 @@ struct SpectrumPage {
 struct Shown {
     /// Set after a sign-off: says what was signed.
     signed: Option<String>,
+    /// Set after a submission from the submit page: "added" or "present".
+    submitted: Option<String>,
 }
 
 async fn page(
@@ -324,10 +326,20 @@ async fn page(
         Err(e) => return b.fail("Plot failed", e),
     };
     let (neighbours, duplicates) = neighbour_rows(&f);
-    let notice = match shown.ok().and_then(|Query(s)| s.signed) {
-        Some(d) if d == "approved" || d == "rejected" => format!(
+    let shown = shown.ok().map(|Query(s)| s);
+    let (signed, submitted) = shown.map(|s| (s.signed, s.submitted)).unwrap_or_default();
+    let notice = match (signed.as_deref(), submitted.as_deref()) {
+        (Some(d @ ("approved" | "rejected")), _) => format!(
             "Your signature is recorded: the current revision is {d}, signed by {} now.",
             b.caller.account.name
+        ),
+        (_, Some("added")) => format!(
+            "Saved: spectrum {id} is pending, submitted by {}; another account with the sign-off role must review it before searches use it as verified.",
+            b.caller.account.name
+        ),
+        (_, Some("present")) => format!(
+            "Not saved again: the same raw points are already spectrum {id} ({}).",
+            r.status.name()
         ),
         _ => String::new(),
     };

@@ -1,0 +1,515 @@
+//! The submit, identify and accounts pages against the real server on a free loopback port:
+//! what each saves, as whom, and what it refuses (the browser flows in tests/browser drive the
+//! same pages in chromium).
+
+use serde_json::Value;
+
+use crate::serve::{PASSWORDS, Server, lab_with_accounts, sign_in};
+use crate::serve_api::{Part, distinct_ir, form};
+use crate::util::{Lab, seed};
+
+/// An HTML answer: status, `Location` when redirected, body.
+struct Page {
+    status: u16,
+    location: String,
+    html: String,
+}
+
+/// An agent that does not follow redirects, so a test sees where a form sends the browser.
+fn agent() -> ureq::Agent {
+    ureq::Agent::config_builder()
+        .http_status_as_error(false)
+        .max_redirects(0)
+        .build()
+        .into()
+}
+
+fn page(r: Result<ureq::http::Response<ureq::Body>, ureq::Error>) -> Page {
+    let mut r = r.expect("an HTTP answer");
+    Page {
+        status: r.status().as_u16(),
+        location: r
+            .headers()
+            .get("location")
+            .map(|v| v.to_str().unwrap().to_string())
+            .unwrap_or_default(),
+        html: r.body_mut().read_to_string().unwrap(),
+    }
+}
+
+fn get(server: &Server, cookie: &str, path: &str) -> Page {
+    page(
+        agent()
+            .get(server.url(path))
+            .header("Cookie", cookie)
+            .header("Accept", "text/html")
+            .call(),
+    )
+}
+
+fn post_multipart(server: &Server, cookie: &str, path: &str, parts: &[Part]) -> Page {
+    let (ct, body) = form(parts);
+    page(
+        agent()
+            .post(server.url(path))
+            .header("Cookie", cookie)
+            .header("Accept", "text/html")
+            .header("Content-Type", &ct)
+            .send(&body[..]),
+    )
+}
+
+fn post_fields(server: &Server, cookie: &str, path: &str, fields: &[(&str, &str)]) -> Page {
+    let body: Vec<String> = fields
+        .iter()
+        .map(|(k, v)| format!("{k}={}", v.replace('+', "%2B").replace(' ', "+")))
+        .collect();
+    page(
+        agent()
+            .post(server.url(path))
+            .header("Cookie", cookie)
+            .header("Accept", "text/html")
+            .header("Content-Type", "application/x-www-form-urlencoded")
+            .send(body.join("&").as_bytes()),
+    )
+}
+
+/// The value of the first hidden field `name` of a page.
+fn hidden(html: &str, name: &str) -> String {
+    let key = format!("name=\"{name}\" value=\"");
+    let at = html
+        .find(&key)
+        .unwrap_or_else(|| panic!("no field {name} in {html}"))
+        + key.len();
+    html[at..].split('"').next().unwrap().to_string()
+}
+
+/// Signs in as the account of `role` in [`PASSWORDS`]; the session cookie and its form token.
+fn session(server: &Server, role: &str) -> (String, String) {
+    let (name, _, password) = PASSWORDS.iter().find(|p| p.1 == role).unwrap();
+    let (_, cookie) = sign_in(server, name, password);
+    let cookie = cookie.expect("a session cookie");
+    let start = get(server, &cookie, "/search");
+    assert_eq!(start.status, 200, "{}", start.html);
+    let csrf = hidden(&start.html, "csrf");
+    (cookie, csrf)
+}
+
+fn text(s: &str) -> Vec<u8> {
+    s.as_bytes().to_vec()
+}
+
+/// An IR file of 1-butanol with every absorbance scaled by 0.97: other raw points, the same
+/// spectrum once prepared (each is scaled to its own maximum).
+fn butanol_again() -> Vec<u8> {
+    let original = std::fs::read_to_string(seed().join("spectra/1-butanol.ir.csv")).unwrap();
+    let mut out = String::new();
+    for line in original.lines() {
+        match line.split_once(',') {
+            Some((x, y)) if y.parse::<f64>().is_ok() => {
+                out.push_str(&format!("{x},{:.6}\n", y.parse::<f64>().unwrap() * 0.97))
+            }
+            _ => {
+                out.push_str(line);
+                out.push('\n');
+            }
+        }
+    }
+    out.into_bytes()
+}
+
+fn list(lab: &Lab) -> Vec<Value> {
+    lab.json(&["list"]).as_array().unwrap().clone()
+}
+
+#[test]
+fn a_submission_is_previewed_with_its_warnings_and_saved_only_when_confirmed_as_the_signed_in_account()
+ {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let (cookie, csrf) = session(&server, "submitter");
+    let file = butanol_again();
+    let sha256 = whorl::spectrum::sha256_hex(&file);
+    let before = lab.state();
+    let fields = |name: &str| -> Vec<Part> {
+        vec![
+            ("csrf", None, text(&csrf)),
+            ("technique", None, text("ir")),
+            ("name", None, text(name)),
+            ("formula", None, text("")),
+            ("file", Some("probe.ir.csv"), file.clone()),
+        ]
+    };
+
+    // An identity given in the form is refused: the server takes it from the session.
+    let mut forged = fields("probe compound");
+    forged.push(("submitted_by", None, text("g.signer")));
+    let refused = post_multipart(&server, &cookie, "/submit", &forged);
+    assert_eq!(refused.status, 400, "{}", refused.html);
+    assert!(refused.html.contains("submitted_by"), "{}", refused.html);
+    // A formula no structure can have is refused by the check `whorl add` makes.
+    let mut impossible = fields("probe compound");
+    impossible[3].2 = text("C2H9");
+    let refused = post_multipart(&server, &cookie, "/submit", &impossible);
+    assert_eq!(refused.status, 400, "{}", refused.html);
+    assert!(refused.html.contains("C2H9"), "{}", refused.html);
+
+    // The preview: held under a random key, nothing saved, the near duplicate of 1-butanol
+    // (another compound by its name) warned about.
+    let held = post_multipart(&server, &cookie, "/submit", &fields("probe compound"));
+    assert_eq!(held.status, 303, "{}", held.html);
+    let key = held.location.strip_prefix("/submit/").unwrap().to_string();
+    assert_eq!(key.len(), 32, "{key}");
+    assert_eq!(lab.state(), before, "the preview saved something");
+    let preview = get(&server, &cookie, &held.location);
+    assert_eq!(preview.status, 200, "{}", preview.html);
+    assert!(preview.html.contains("Not saved yet"));
+    assert!(
+        preview.html.contains(&sha256),
+        "the preview names the file's SHA-256"
+    );
+    assert!(
+        preview.html.contains("Near-duplicate of another compound")
+            && preview.html.contains("1-butanol"),
+        "{}",
+        preview.html
+    );
+    assert!(preview.html.contains("<svg"), "no plot");
+
+    // The confirmation must name the previewed file and come from the session that previewed it.
+    let confirm = format!("/submit/{key}/confirm");
+    let wrong = post_fields(
+        &server,
+        &cookie,
+        &confirm,
+        &[("csrf", &csrf), ("sha256", &"0".repeat(64))],
+    );
+    assert_eq!(wrong.status, 400, "{}", wrong.html);
+    let (other_cookie, other_csrf) = session(&server, "submitter");
+    let elsewhere = post_fields(
+        &server,
+        &other_cookie,
+        &confirm,
+        &[("csrf", &other_csrf), ("sha256", &sha256)],
+    );
+    assert_eq!(elsewhere.status, 404, "{}", elsewhere.html);
+    let (signer_cookie, _) = session(&server, "signer");
+    let signer = get(&server, &signer_cookie, &held.location);
+    assert_eq!(
+        signer.status, 403,
+        "a signer may not submit: {}",
+        signer.html
+    );
+    assert_eq!(
+        lab.state(),
+        before,
+        "a refused confirmation saved something"
+    );
+
+    // Confirmed: saved pending, submitted and stored by the signed-in account.
+    let saved = post_fields(
+        &server,
+        &cookie,
+        &confirm,
+        &[("csrf", &csrf), ("sha256", &sha256)],
+    );
+    assert_eq!(saved.status, 303, "{}", saved.html);
+    let id: i64 = saved
+        .location
+        .strip_prefix("/spectra/")
+        .and_then(|s| s.strip_suffix("?submitted=added"))
+        .unwrap_or_else(|| panic!("{}", saved.location))
+        .parse()
+        .unwrap();
+    let shown = lab.json(&["show", &id.to_string()]);
+    assert_eq!(shown["spectrum"]["status"], "pending");
+    assert_eq!(shown["spectrum"]["submitted_by"], "s.submitter");
+    assert_eq!(shown["spectrum"]["metadata"]["name"], "probe compound");
+    assert_eq!(shown["spectrum"]["file_sha256"], sha256.as_str());
+    let notice = get(&server, &cookie, &saved.location);
+    assert!(notice.html.contains("Saved: spectrum"), "{}", notice.html);
+    let log = lab.json(&["log"]);
+    let add = log
+        .as_array()
+        .unwrap()
+        .iter()
+        .rfind(|e| e["action"] == "add")
+        .unwrap();
+    assert_eq!(
+        (add["actor"].as_str(), add["identity"].as_str()),
+        (Some("s.submitter"), Some("signed-in"))
+    );
+    // Used once: a second confirmation finds nothing held.
+    let again = post_fields(
+        &server,
+        &cookie,
+        &confirm,
+        &[("csrf", &csrf), ("sha256", &sha256)],
+    );
+    assert_eq!(again.status, 404, "{}", again.html);
+
+    // A manifest with its files, chosen in a browser (names without folders): a result per
+    // row, the missing file refused, the other row stored as the signed-in account.
+    let n = list(&lab).len();
+    let manifest = post_multipart(
+        &server,
+        &cookie,
+        "/submit/manifest",
+        &[
+            ("csrf", None, text(&csrf)),
+            (
+                "manifest",
+                Some("batch.csv"),
+                text("file,technique,name\nspectra/a.csv,ir,probe a\nmissing.csv,ir,probe b\n"),
+            ),
+            ("file", Some("a.csv"), distinct_ir(41)),
+            ("file", Some(""), Vec::new()),
+        ],
+    );
+    assert_eq!(manifest.status, 422, "{}", manifest.html);
+    assert!(manifest.html.contains("1 added"), "{}", manifest.html);
+    let rows: Vec<&str> = manifest.html.split("<tr>").skip(2).collect();
+    assert_eq!(rows.len(), 2, "{}", manifest.html);
+    assert!(rows[0].contains("spectra/a.csv") && rows[0].contains("added"));
+    assert!(rows[1].contains("missing.csv") && rows[1].contains("refused"));
+    assert!(!manifest.html.contains("/tmp/"), "a temporary path leaked");
+    let after = list(&lab);
+    assert_eq!(after.len(), n + 1);
+    let a = after.iter().find(|s| s["name"] == "probe a").unwrap();
+    let a = lab.json(&["show", &a["id"].to_string()]);
+    assert_eq!(a["spectrum"]["submitted_by"], "s.submitter");
+    lab.ok(&["check"]);
+}
+
+#[test]
+fn the_identify_page_gives_the_command_lines_fused_list_and_the_accounts_page_is_for_administrators()
+ {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+
+    // Two unknowns of one sample, the other inputs left empty as a browser sends them.
+    let ir = seed().join("unknowns/u01.ir.csv");
+    let nmr = seed().join("spectra/ethyl-acetate.nmr-1h.csv");
+    let cli = lab.json(&[
+        "identify",
+        "--ir",
+        ir.to_str().unwrap(),
+        "--nmr-1h",
+        nmr.to_str().unwrap(),
+        "--solvent",
+        "CDCl3",
+        "--top",
+        "4",
+    ]);
+    let (reader, reader_csrf) = session(&server, "reader");
+    let shown = post_multipart(
+        &server,
+        &reader,
+        "/identify",
+        &[
+            ("csrf", None, text(&reader_csrf)),
+            ("ir", Some("u01.ir.csv"), std::fs::read(&ir).unwrap()),
+            ("raman", Some(""), Vec::new()),
+            ("ms-ei", Some(""), Vec::new()),
+            (
+                "nmr-1h",
+                Some("sample.nmr-1h.csv"),
+                std::fs::read(&nmr).unwrap(),
+            ),
+            ("nmr-13c", Some(""), Vec::new()),
+            ("solvent", None, text("CDCl3")),
+            ("top", None, text("4")),
+            ("formula", None, text("")),
+            ("elements", None, text("")),
+        ],
+    );
+    assert_eq!(shown.status, 200, "{}", shown.html);
+    let verdict = if cli["policy"]["met"] == true {
+        "Criteria met:"
+    } else {
+        "Criteria not met:"
+    };
+    let first = shown.html.find("id=\"verdict\"").unwrap();
+    assert!(shown.html[first..].contains(verdict), "{}", shown.html);
+    assert!(
+        first < shown.html.find("id=\"fused\"").unwrap(),
+        "the verdict comes first"
+    );
+    let body = &shown.html[shown.html.find("id=\"fused\"").unwrap()..];
+    let mut at = 0;
+    for c in cli["fusion"]["compounds"].as_array().unwrap() {
+        let name = c["name"].as_str().unwrap();
+        let row = format!(
+            "<td class=\"num\">{}</td><td class=\"num\">{:.3}</td>",
+            c["rank"],
+            c["fused"].as_f64().unwrap()
+        );
+        let found = body[at..]
+            .find(&row)
+            .unwrap_or_else(|| panic!("{row} ({name}) not in order in {body}"));
+        at += found;
+        assert!(body[at..].contains(name));
+    }
+    let disagreements: usize = cli["fusion"]["compounds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["disagreements"].as_array().map_or(0, Vec::len))
+        .sum();
+    if disagreements == 0 {
+        assert!(shown.html.contains("id=\"disagreements-none\""));
+    } else {
+        assert!(shown.html.contains("id=\"disagreements\""));
+    }
+    let none = post_multipart(
+        &server,
+        &reader,
+        "/identify",
+        &[
+            ("csrf", None, text(&reader_csrf)),
+            ("ir", Some(""), Vec::new()),
+        ],
+    );
+    assert_eq!(none.status, 400, "{}", none.html);
+    assert!(none.html.contains("no spectrum file was chosen"));
+
+    // Accounts: refused to all but administrators.
+    for role in ["reader", "submitter", "signer", "curator"] {
+        let (cookie, _) = session(&server, role);
+        let refused = get(&server, &cookie, "/accounts");
+        assert_eq!(refused.status, 403, "{role}: {}", refused.html);
+        assert!(!refused.html.contains("id=\"accounts\""));
+    }
+    let (admin, csrf) = session(&server, "admin");
+    let listed = get(&server, &admin, "/accounts");
+    assert_eq!(listed.status, 200);
+    for (name, role, _) in PASSWORDS {
+        assert!(
+            listed
+                .html
+                .contains(&format!("<tr><td>{name}</td><td>{role}</td>"))
+        );
+    }
+    let accounts = lab.json(&["account", "list"]);
+    // A password too short is refused before the account is made.
+    let short = post_fields(
+        &server,
+        &admin,
+        "/accounts",
+        &[
+            ("csrf", &csrf),
+            ("name", "n.newcomer"),
+            ("role", "reader"),
+            ("password", "too short"),
+            ("again", "too short"),
+        ],
+    );
+    assert_eq!(short.status, 400, "{}", short.html);
+    assert!(short.html.contains("at least 12"), "{}", short.html);
+    assert_eq!(lab.json(&["account", "list"]), accounts);
+    let added = post_fields(
+        &server,
+        &admin,
+        "/accounts",
+        &[
+            ("csrf", &csrf),
+            ("name", "n.newcomer"),
+            ("role", "reader"),
+            ("password", "newcomer passphrase six"),
+            ("again", "newcomer passphrase six"),
+        ],
+    );
+    assert_eq!(added.status, 303, "{}", added.html);
+    let id = lab
+        .json(&["account", "list"])
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|a| a["name"] == "n.newcomer")
+        .unwrap()["id"]
+        .clone();
+    let (_, newcomer) = sign_in(&server, "n.newcomer", "newcomer passphrase six");
+    assert!(newcomer.is_some(), "the initial password signs in");
+    // A role change needs a reason.
+    let no_reason = post_fields(
+        &server,
+        &admin,
+        &format!("/accounts/{id}/role"),
+        &[("csrf", &csrf), ("role", "signer"), ("reason", " ")],
+    );
+    assert_eq!(no_reason.status, 400, "{}", no_reason.html);
+    let changed = post_fields(
+        &server,
+        &admin,
+        &format!("/accounts/{id}/role"),
+        &[
+            ("csrf", &csrf),
+            ("role", "signer"),
+            ("reason", "signs off for the GC group"),
+        ],
+    );
+    assert_eq!(changed.status, 303, "{}", changed.html);
+    assert!(
+        get(&server, &admin, &changed.location)
+            .html
+            .contains("n.newcomer now has the role signer")
+    );
+    let admin_id = lab
+        .json(&["account", "list"])
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|a| a["name"] == "a.admin")
+        .unwrap()["id"]
+        .clone();
+    let own = post_fields(
+        &server,
+        &admin,
+        &format!("/accounts/{admin_id}/disable"),
+        &[("csrf", &csrf), ("reason", "testing")],
+    );
+    assert_eq!(own.status, 400, "{}", own.html);
+    let disabled = post_fields(
+        &server,
+        &admin,
+        &format!("/accounts/{id}/disable"),
+        &[("csrf", &csrf), ("reason", "left the lab")],
+    );
+    assert_eq!(disabled.status, 303, "{}", disabled.html);
+    let newcomer = lab
+        .json(&["account", "list"])
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|a| a["name"] == "n.newcomer")
+        .unwrap()
+        .clone();
+    assert_eq!(newcomer["role"], "signer");
+    assert_eq!(newcomer["disabled_reason"], "left the lab");
+    // Each change is an event by the administrator, signed in, the password never in it.
+    let log = lab.json(&["log"]);
+    let events: Vec<(&str, &str, &str)> = log
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|e| e["payload"]["name"] == "n.newcomer")
+        .map(|e| {
+            (
+                e["action"].as_str().unwrap(),
+                e["actor"].as_str().unwrap(),
+                e["identity"].as_str().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        events,
+        [
+            ("account-add", "a.admin", "signed-in"),
+            ("account-password", "a.admin", "signed-in"),
+            ("account-role", "a.admin", "signed-in"),
+            ("account-disable", "a.admin", "signed-in"),
+        ]
+    );
+    assert!(!lab.ok(&["log", "--json"]).contains("newcomer passphrase"));
+    lab.ok(&["check"]);
+}
