@@ -32,6 +32,22 @@ pub struct Config {
     /// identification criteria.
     #[serde(deserialize_with = "identity_policy")]
     pub identity: IdentityPolicy,
+    /// The audit trail's witness.
+    pub audit: AuditSettings,
+}
+
+/// `[audit]`: where every write appends the audit chain's head.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct AuditSettings {
+    /// A witness file outside the library: when set, every command that writes to the library
+    /// (and every write of the lab server) appends the chain's new head to it, as
+    /// `whorl witness write FILE` does. An absolute path.
+    #[serde(
+        deserialize_with = "absolute_path",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub witness: Option<PathBuf>,
 }
 
 /// Defaults for every search.
@@ -298,6 +314,19 @@ fn some_unit_interval<'de, D: Deserializer<'de>>(
     d: D,
 ) -> std::result::Result<Option<f64>, D::Error> {
     unit::<D>(f64::deserialize(d)?).map(Some)
+}
+
+fn absolute_path<'de, D: Deserializer<'de>>(
+    d: D,
+) -> std::result::Result<Option<PathBuf>, D::Error> {
+    let p = PathBuf::deserialize(d)?;
+    if !p.is_absolute() {
+        return Err(serde::de::Error::custom(format!(
+            "the witness file must be an absolute path outside the library, not {}",
+            crate::error::excerpt(&p.display().to_string(), 120)
+        )));
+    }
+    Ok(Some(p))
 }
 
 fn identity_policy<'de, D: Deserializer<'de>>(

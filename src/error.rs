@@ -35,9 +35,11 @@ impl Location {
 
 impl fmt::Display for Location {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        // A file name is user content: its control characters are escaped.
+        let file = excerpt(&self.file.display().to_string(), usize::MAX);
         match self.line {
-            Some(line) => write!(f, "{}:{}", self.file.display(), line),
-            None => write!(f, "{}", self.file.display()),
+            Some(line) => write!(f, "{file}:{line}"),
+            None => write!(f, "{file}"),
         }
     }
 }

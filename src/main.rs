@@ -33,8 +33,12 @@ fn main() -> ExitCode {
                 eprintln!("{}", e.line());
                 return ExitCode::from(e.exit_code);
             }
-            eprintln!("{} {err:#}", paint.error("error:"));
-            eprintln!("{} {}", paint.bold("hint:"), cli::hint(&err));
+            // Messages may quote names and file content: control characters are escaped, so
+            // nothing forges a line or reaches the terminal as an escape sequence.
+            let message = whorl::error::excerpt(&format!("{err:#}"), usize::MAX);
+            let hint = whorl::error::excerpt(&cli::hint(&err), usize::MAX);
+            eprintln!("{} {message}", paint.error("error:"));
+            eprintln!("{} {hint}", paint.bold("hint:"));
             ExitCode::from(cli::exit_code(&err))
         }
     }

@@ -74,12 +74,17 @@ pub fn run(args: AccountArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     match args.command {
         AccountCommand::Add { name, role, by } => {
             let a = lib.add_account(&name, role, &identity(by.as_deref())?)?;
-            writeln!(out, "account {} added with role {}", a.name, a.role)?;
+            writeln!(
+                out,
+                "account {} added with role {}",
+                output::shown(&a.name),
+                a.role
+            )?;
             if !a.has_password {
                 writeln!(
                     out,
                     "set its password with `whorl account password {}`",
-                    a.name
+                    output::shown(&a.name)
                 )?;
             }
         }
@@ -113,7 +118,12 @@ pub fn run(args: AccountArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         }
         AccountCommand::Disable { name, reason, by } => {
             let a = lib.disable_account(&name, &reason, &identity(by.as_deref())?)?;
-            writeln!(out, "account {} disabled: {}", a.name, reason.trim())?;
+            writeln!(
+                out,
+                "account {} disabled: {}",
+                output::shown(&a.name),
+                output::shown(reason.trim())
+            )?;
         }
         AccountCommand::Role {
             name,
@@ -122,7 +132,12 @@ pub fn run(args: AccountArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             by,
         } => {
             let a = lib.set_role(&name, role, &reason, &identity(by.as_deref())?)?;
-            writeln!(out, "account {} now has the role {}", a.name, a.role)?;
+            writeln!(
+                out,
+                "account {} now has the role {}",
+                output::shown(&a.name),
+                a.role
+            )?;
         }
         AccountCommand::Password { name, by } => {
             // Fail on an unknown name before asking for a password.
@@ -134,7 +149,7 @@ pub fn run(args: AccountArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             })?;
             let password = read_password(&account.name)?;
             lib.set_password(&account.name, &password, &identity(by.as_deref())?)?;
-            writeln!(out, "password of {} set", account.name)?;
+            writeln!(out, "password of {} set", output::shown(&account.name))?;
         }
     }
     Ok(ExitCode::SUCCESS)

@@ -9,7 +9,7 @@ use whorl::library::{Metadata, Outcome, Submission, stage};
 use whorl::spectrum::{XUnit, YUnit};
 use whorl::technique::Technique;
 
-use super::{Context, identity};
+use super::{Context, identity, output};
 
 #[derive(Debug, Args)]
 pub struct AddArgs {
@@ -129,31 +129,19 @@ pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         .store(std::slice::from_ref(&staged), &actor, true)?
         .pop()
         .expect("one outcome per spectrum")?;
-    if let Outcome::AlreadyPresent { spectrum_id } = outcome
-        && lib.spectrum(spectrum_id)?.status == whorl::spectrum::Status::Withdrawn
-    {
-        let reason = lib.withdrawn_reason(spectrum_id)?.unwrap_or_default();
-        // Adding it again would not bring it back: say what it is and how it comes back.
-        return Err(whorl::Error::invalid(
-            format!(
-                "{}: the same raw points are spectrum {spectrum_id}, which is withdrawn ({})",
-                whorl::error::excerpt(&args.file.display().to_string(), 120),
-                whorl::error::excerpt(&reason, 200)
-            ),
-            format!(
-                "to use it again, bring it back with `whorl reinstate {spectrum_id} --reason TEXT` (it returns pending a new sign-off)"
-            ),
-        )
-        .into());
-    }
+    // A file of a withdrawn spectrum is refused by `store`, naming it and the way back.
     let mut out = std::io::stdout().lock();
     for w in &warnings {
-        eprintln!("warning: {}: {w}", args.file.display());
+        eprintln!(
+            "warning: {}: {}",
+            output::terminal_text(&args.file.display().to_string()),
+            output::terminal_text(w)
+        );
     }
     if let Some(c) = staged.prepared.coverage {
         eprintln!(
             "note: {} covers {:.0}-{:.0} cm-1, less than the grid; scores compare it with an unknown over the range both cover",
-            args.file.display(),
+            output::terminal_text(&args.file.display().to_string()),
             c.lo,
             c.hi
         );

@@ -31,12 +31,12 @@ pub fn run(args: BackupArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             report.bytes,
             report.events,
             report.event_head.as_deref().unwrap_or("-"),
-            report.dest.display()
+            output::shown(report.dest.display())
         )?;
         writeln!(
             out,
             "the text index and vector caches are derived: the first command on the copy rebuilds them; verify with `whorl --library {} check`",
-            report.dest.display()
+            output::shown(report.dest.display())
         )?;
     }
     Ok(ExitCode::SUCCESS)

@@ -10,7 +10,8 @@ use super::{Context, EXIT_MISMATCH, output};
 #[derive(Debug, Args)]
 pub struct CheckArgs {
     /// Also verify that the audit chain extends every head recorded in this witness file
-    /// (written by `whorl witness write`, kept outside the library)
+    /// (written by `whorl witness write`, kept outside the library) [default: [audit] witness
+    /// in whorl.toml, when set]
     #[arg(long, value_name = "FILE")]
     pub witness: Option<std::path::PathBuf>,
     /// Print the report as JSON
@@ -25,7 +26,12 @@ pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         bar.set_length(total as u64);
         bar.set_position(done as u64);
     })?;
-    if let Some(file) = &args.witness {
+    // Without --witness, the witness file every write appends to ([audit] witness), if set.
+    let witness = match args.witness {
+        Some(f) => Some(f),
+        None => ctx.config()?.audit.witness.filter(|f| f.exists()),
+    };
+    if let Some(file) = &witness {
         report.findings.extend(lib.verify_witness(file)?);
     }
     bar.finish_and_clear();
@@ -34,7 +40,12 @@ pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         output::json(&mut out, &report)?;
     } else {
         for f in &report.findings {
-            writeln!(out, "{}: {}", f.record, f.problem)?;
+            writeln!(
+                out,
+                "{}: {}",
+                output::terminal_text(&f.record),
+                output::terminal_text(&f.problem)
+            )?;
         }
         if let Some(why) = &report.text_index_damage {
             writeln!(

@@ -54,11 +54,16 @@ pub fn run(args: ExportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             out,
             "exported {} spectra to {}",
             report.info.spectra,
-            report.dir.display()
+            output::shown(report.dir.display())
         )?;
         writeln!(out, "bundle fingerprint {}", report.info.fingerprint)?;
         match &signer {
-            Some(key) => writeln!(out, "signed with key {} {}", key.name(), key.public().hex())?,
+            Some(key) => writeln!(
+                out,
+                "signed with key {} {}",
+                output::shown(key.name()),
+                key.public().hex()
+            )?,
             None => writeln!(
                 out,
                 "unsigned: a library imports it only with --untrusted (sign with --sign KEYFILE)"

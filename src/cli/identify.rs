@@ -103,7 +103,7 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let found = identify_with_searches(&lib, &unknowns, &options)?;
     if let Some(path) = &args.html {
         write_html(&lib, &found, config.report.plots, path)?;
-        eprintln!("report written to {}", path.display());
+        eprintln!("report written to {}", output::shown(path.display()));
     }
     let report = found.report;
     let mut out = std::io::stdout().lock();
@@ -148,7 +148,7 @@ pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Resul
     writeln!(
         out,
         "library   {}  (fingerprint {})",
-        r.library.path,
+        output::shown(&r.library.path),
         output::short(&r.library.fingerprint)
     )?;
     for run in &r.runs {
@@ -162,7 +162,7 @@ pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Resul
             out,
             "unknown   {:<8} {}  (sha256 {}{solvent}; {} spectra compared)",
             u.technique.name(),
-            u.file,
+            output::shown(&u.file),
             output::short(&u.sha256),
             run.candidates
         )?;
@@ -172,9 +172,9 @@ pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Resul
         .first()
         .and_then(|run| constraint_summary(&run.parameters.constraints))
     {
-        writeln!(out, "constraints {c}")?;
+        writeln!(out, "constraints {}", output::shown(c))?;
     }
-    writeln!(out, "fused     {}", r.fusion.rule)?;
+    writeln!(out, "fused     {}", output::shown(&r.fusion.rule))?;
     writeln!(out)?;
     let mut headers: Vec<String> = vec![">rank".into(), ">fused".into()];
     headers.extend(r.fusion.techniques.iter().map(|t| format!(">{t}")));
@@ -201,21 +201,32 @@ pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Resul
     )?;
     for c in &r.fusion.compounds {
         for d in &c.disagreements {
-            writeln!(out, "disagree  {} ({}): {d}", c.name, c.rank)?;
+            writeln!(
+                out,
+                "disagree  {} ({}): {}",
+                output::shown(&c.name),
+                c.rank,
+                output::shown(d)
+            )?;
         }
     }
     if let Some(m) = r.fusion.margin {
         writeln!(out, "margin    {m:.3} between compounds 1 and 2")?;
     }
     for w in &r.fusion.warnings {
-        writeln!(out, "warning   {w}")?;
+        writeln!(out, "warning   {}", output::shown(w))?;
     }
     for run in &r.runs {
         for w in &run.warnings {
-            writeln!(out, "warning   {}: {w}", run.unknown.technique)?;
+            writeln!(
+                out,
+                "warning   {}: {}",
+                run.unknown.technique,
+                output::shown(w)
+            )?;
         }
     }
-    writeln!(out, "criteria  {}", r.policy.summary())?;
+    writeln!(out, "criteria  {}", output::shown(r.policy.summary()))?;
     writeln!(out, "caution   {}", r.caution)?;
     Ok(())
 }

@@ -107,8 +107,10 @@ fn warning_lines(manifest: &std::path::Path, rows: &[whorl::library::RowReport])
         let at = &seen[w];
         let (line, file) = at[0];
         lines.push(format!(
-            "warning: {}:{line} ({file}): {w}",
-            manifest.display()
+            "warning: {}:{line} ({}): {}",
+            output::shown(manifest.display()),
+            output::shown(file),
+            output::shown(w)
         ));
         if at.len() > 1 {
             let more: Vec<String> = at[1..].iter().take(10).map(|a| a.0.to_string()).collect();
@@ -151,18 +153,23 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
         writeln!(
             out,
             "bundle {} checksums verified ({} spectra, exported by {} at {})",
-            args.manifest.display(),
+            output::shown(args.manifest.display()),
             info.spectra,
-            info.exported_by,
-            info.exported_at
+            output::shown(&info.exported_by),
+            output::shown(&info.exported_at)
         )?;
         match &trust {
-            Trust::Signed { key, public_key } => {
-                writeln!(out, "signed by trusted key {key} {public_key}")?
-            }
-            Trust::Untrusted { why } => {
-                writeln!(out, "accepted as untrusted (--untrusted): {why}")?
-            }
+            Trust::Signed { key, public_key } => writeln!(
+                out,
+                "signed by trusted key {} {}",
+                output::shown(key),
+                output::shown(public_key)
+            )?,
+            Trust::Untrusted { why } => writeln!(
+                out,
+                "accepted as untrusted (--untrusted): {}",
+                output::shown(why)
+            )?,
         }
         writeln!(
             out,
@@ -174,7 +181,11 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
                 "references arrive pending local review; their sign-offs elsewhere are kept as history"
             )?;
         }
-        writeln!(out, "bundle fingerprint  {}", info.fingerprint)?;
+        writeln!(
+            out,
+            "bundle fingerprint  {}",
+            output::shown(&info.fingerprint)
+        )?;
         writeln!(out, "library fingerprint {}", lib.fingerprint()?)?;
     }
     Ok(ExitCode::SUCCESS)
@@ -211,13 +222,14 @@ fn print_summary(
     for (row, err) in report.rejected() {
         writeln!(
             out,
-            "rejected {}:{} ({}): {err}",
-            manifest.display(),
+            "rejected {}:{} ({}): {}",
+            output::shown(manifest.display()),
             row.line,
-            row.file
+            output::shown(&row.file),
+            output::shown(err)
         )?;
         if let Some(h) = err.hint() {
-            writeln!(out, "  hint: {h}")?;
+            writeln!(out, "  hint: {}", output::shown(h))?;
         }
     }
     if report.rolled_back {

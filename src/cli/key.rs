@@ -64,9 +64,18 @@ pub fn run(args: KeyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             refuse_inside_library(&dir, &ctx.library)?;
             let pair = KeyPair::generate(&a.name)?;
             let (secret, public) = pair.write(&dir)?;
-            writeln!(out, "private key {} (keep it secret)", secret.display())?;
-            writeln!(out, "public key  {}", public.display())?;
-            writeln!(out, "key {} {}", pair.name(), pair.public().hex())?;
+            writeln!(
+                out,
+                "private key {} (keep it secret)",
+                output::shown(secret.display())
+            )?;
+            writeln!(out, "public key  {}", output::shown(public.display()))?;
+            writeln!(
+                out,
+                "key {} {}",
+                output::shown(pair.name()),
+                pair.public().hex()
+            )?;
         }
         KeyCommand::Trust(a) => {
             let key = PublicKey::read(&a.public_key)?;
@@ -76,7 +85,10 @@ pub fn run(args: KeyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             writeln!(
                 out,
                 "trusted key {} {} (by {}: {})",
-                trusted.name, trusted.public_key, trusted.trusted_by, trusted.reason
+                output::shown(&trusted.name),
+                output::shown(&trusted.public_key),
+                output::shown(&trusted.trusted_by),
+                output::shown(&trusted.reason)
             )?;
         }
         KeyCommand::List(a) => {
@@ -94,7 +106,11 @@ pub fn run(args: KeyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                     writeln!(
                         out,
                         "{} {} trusted by {} at {}: {}",
-                        k.name, k.public_key, k.trusted_by, k.trusted_at, k.reason
+                        output::shown(&k.name),
+                        output::shown(&k.public_key),
+                        output::shown(&k.trusted_by),
+                        output::shown(&k.trusted_at),
+                        output::shown(&k.reason)
                     )?;
                 }
             }

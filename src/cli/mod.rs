@@ -43,6 +43,7 @@ use std::process::ExitCode;
 
 pub use failure::{JsonError, json_requested};
 
+use anyhow::Context as _;
 use clap::{Args, Parser, Subcommand};
 
 // Exit codes (documented in the README): 0 success; 2 the command line could not be parsed
@@ -232,40 +233,92 @@ pub fn run(
         paint: cli.global.color.stdout(),
         color: cli.global.color,
     };
-    match cli.command {
-        Command::Init(a) => init::run(a, &ctx),
-        Command::Add(a) => add::run(*a, &ctx),
-        Command::Import(a) => import::run(a, &ctx),
-        Command::Search(a) => search::run(*a, &ctx),
-        Command::Identify(a) => identify::run(*a, &ctx),
-        Command::Find(a) => find::run(a, &ctx),
-        Command::Show(a) => show::run(a, &ctx),
-        Command::List(a) => list::run(a, &ctx),
-        Command::Stats(a) => stats::run(a, &ctx),
-        Command::Review(a) => review::run(a, &ctx),
-        Command::Revise(a) => revise::run(*a, &ctx),
-        Command::Withdraw(a) => withdraw::run(a, &ctx),
-        Command::Reinstate(a) => reinstate::run(a, &ctx),
-        Command::Log(a) => log::run(a, &ctx),
-        Command::Check(a) => check::run(a, &ctx),
-        Command::Export(a) => export::run(a, &ctx),
-        Command::Backup(a) => backup::run(a, &ctx),
-        Command::Witness(a) => witness::run(a, &ctx),
-        Command::Replay(a) => replay::run(a, &ctx),
-        Command::Key(a) => key::run(a, &ctx),
-        Command::Policy(a) => policy::run(a, &ctx),
-        Command::Account(a) => account::run(a, &ctx),
-        Command::Token(a) => token::run(a, &ctx),
+    // Commands that never write to the library: no witness line after them (`check` above
+    // all, which must not put the head of a chain it has just found rewritten on record).
+    let may_write = !matches!(
+        cli.command,
+        Command::Check(_)
+            | Command::Serve(_)
+            | Command::Demo(_)
+            | Command::Formula(_)
+            | Command::Fragments(_)
+            | Command::Config(_)
+            | Command::Completions(_)
+            | Command::Man(_)
+    );
+    let result = dispatch(cli.command, &ctx, serve);
+    if may_write {
+        let witnessed = witness_after_write(&ctx);
+        match (&result, witnessed) {
+            (Ok(_), Err(e)) => return Err(e),
+            (Err(_), Err(e)) => {
+                eprintln!("warning: {}", output::terminal_text(&format!("{e:#}")))
+            }
+            _ => {}
+        }
+    }
+    result
+}
+
+/// With `[audit] witness = FILE` in the library's `whorl.toml`, appends the audit chain's
+/// head to FILE when the command changed it (item 7 of the trust work: "written by every
+/// write when configured"). Nothing when the library or the setting is absent.
+fn witness_after_write(ctx: &Context) -> anyhow::Result<()> {
+    if !ctx.library.join("library.sqlite").is_file() {
+        return Ok(());
+    }
+    let Some(file) = ctx.config()?.audit.witness else {
+        return Ok(());
+    };
+    let lib = whorl::library::Library::open(&ctx.library)?;
+    lib.witness_new_head(&file).with_context(|| {
+        format!(
+            "the command's changes are committed, but their audit head could not be appended to the witness file {} ([audit] witness in whorl.toml); run `whorl witness write FILE` once it can be written",
+            output::terminal_text(&file.display().to_string())
+        )
+    })?;
+    Ok(())
+}
+
+fn dispatch(
+    command: Command,
+    ctx: &Context,
+    serve: impl FnOnce(serve::ServeArgs, &Context) -> anyhow::Result<ExitCode>,
+) -> anyhow::Result<ExitCode> {
+    match command {
+        Command::Init(a) => init::run(a, ctx),
+        Command::Add(a) => add::run(*a, ctx),
+        Command::Import(a) => import::run(a, ctx),
+        Command::Search(a) => search::run(*a, ctx),
+        Command::Identify(a) => identify::run(*a, ctx),
+        Command::Find(a) => find::run(a, ctx),
+        Command::Show(a) => show::run(a, ctx),
+        Command::List(a) => list::run(a, ctx),
+        Command::Stats(a) => stats::run(a, ctx),
+        Command::Review(a) => review::run(a, ctx),
+        Command::Revise(a) => revise::run(*a, ctx),
+        Command::Withdraw(a) => withdraw::run(a, ctx),
+        Command::Reinstate(a) => reinstate::run(a, ctx),
+        Command::Log(a) => log::run(a, ctx),
+        Command::Check(a) => check::run(a, ctx),
+        Command::Export(a) => export::run(a, ctx),
+        Command::Backup(a) => backup::run(a, ctx),
+        Command::Witness(a) => witness::run(a, ctx),
+        Command::Replay(a) => replay::run(a, ctx),
+        Command::Key(a) => key::run(a, ctx),
+        Command::Policy(a) => policy::run(a, ctx),
+        Command::Account(a) => account::run(a, ctx),
+        Command::Token(a) => token::run(a, ctx),
         Command::Serve(a) => {
             a.check()?;
-            serve(a, &ctx)
+            serve(a, ctx)
         }
-        Command::Recipe(a) => recipe::run(a, &ctx),
-        Command::Demo(a) => demo::run(a, &ctx),
-        Command::Formula(a) => formula::run(a, &ctx),
-        Command::Fragments(a) => fragments::run(a, &ctx),
-        Command::Plot(a) => plot::run(a, &ctx),
-        Command::Config(a) => config::run(a, &ctx),
+        Command::Recipe(a) => recipe::run(a, ctx),
+        Command::Demo(a) => demo::run(a, ctx),
+        Command::Formula(a) => formula::run(a, ctx),
+        Command::Fragments(a) => fragments::run(a, ctx),
+        Command::Plot(a) => plot::run(a, ctx),
+        Command::Config(a) => config::run(a, ctx),
         Command::Completions(a) => completions::run(a),
         Command::Man(a) => man::run(a),
     }

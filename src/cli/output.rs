@@ -9,6 +9,11 @@ pub fn terminal_text(text: &str) -> String {
     whorl::error::excerpt(text, usize::MAX)
 }
 
+/// [`terminal_text`] of anything displayable (a name, a path, a stored reason).
+pub fn shown(value: impl std::fmt::Display) -> String {
+    terminal_text(&value.to_string())
+}
+
 /// A table whose columns are padded to their widest cell.
 pub struct Table {
     headers: Vec<String>,

@@ -119,9 +119,10 @@ pub fn run(args: PlotArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                 let (_, p) = read_and_prepare(path, &recipe, args.x_unit, args.y_unit, solvent)?;
                 for w in &p.warnings {
                     eprintln!(
-                        "{}: {}: {w}",
+                        "{}: {}: {}",
                         ctx.paint_stderr().warn("warning"),
-                        path.display()
+                        output::shown(path.display()),
+                        output::shown(w)
                     );
                 }
                 plotted.push(Plotted {

@@ -76,9 +76,9 @@ pub fn run(args: ReviewArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             review.spectrum_id,
             review.revision,
             review.decision,
-            review.reviewer,
-            review.at,
-            review.meaning
+            output::shown(&review.reviewer),
+            output::shown(&review.at),
+            output::shown(&review.meaning)
         )?;
     }
     Ok(ExitCode::SUCCESS)

@@ -28,13 +28,14 @@ pub fn run(args: ShowArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let reviews = lib.reviews(args.id)?;
     let withdrawn = lib.withdrawn_reason(args.id)?;
     let events = lib.events(Some(&format!("spectrum:{}", args.id)))?;
+    let status_history = lib.status_history(args.id)?;
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(
             &mut out,
             &json!({
                 "spectrum": rec, "revision": revision, "current_revision": current.revision,
-                "withdrawn_reason": withdrawn, "reviews": reviews,
+                "withdrawn_reason": withdrawn, "reviews": reviews, "status_history": status_history,
                 "peaks": prepared.peaks, "preparation_warnings": prepared.warnings, "events": events,
             }),
         )?;
@@ -74,6 +75,21 @@ pub fn run(args: ShowArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     )?;
     if let Some(w) = &withdrawn {
         line("withdrawn", w)?;
+    }
+    // Withdrawals and reinstatements in the library a bundle brought it from (this library's
+    // own are among the events below).
+    for c in status_history.iter().filter(|c| c.library.is_some()) {
+        line(
+            "elsewhere",
+            &format!(
+                "{} at {} by {}: {} [in {}]",
+                c.action,
+                c.at,
+                c.by,
+                c.reason,
+                c.library.as_deref().unwrap_or_default()
+            ),
+        )?;
     }
     for r in &reviews {
         line(
@@ -145,7 +161,14 @@ pub fn run(args: ShowArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     t.write(&mut out)?;
     writeln!(out, "\nevents")?;
     for e in events {
-        writeln!(out, "  #{} {} {} by {}", e.seq, e.at, e.action, e.actor)?;
+        writeln!(
+            out,
+            "  #{} {} {} by {}",
+            e.seq,
+            output::shown(&e.at),
+            output::shown(&e.action),
+            output::shown(&e.actor)
+        )?;
     }
     Ok(ExitCode::SUCCESS)
 }

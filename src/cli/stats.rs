@@ -22,7 +22,11 @@ pub fn run(args: StatsArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         output::json(&mut out, &s)?;
         return Ok(ExitCode::SUCCESS);
     }
-    writeln!(out, "library      {}", ctx.library.display())?;
+    writeln!(
+        out,
+        "library      {}",
+        super::output::shown(ctx.library.display())
+    )?;
     writeln!(out, "fingerprint  {}", s.fingerprint)?;
     writeln!(out, "compounds    {}", s.compounds)?;
     writeln!(out, "events       {}", s.events)?;

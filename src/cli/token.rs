@@ -84,7 +84,9 @@ pub fn run(args: TokenArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                 lib.create_token(&account, &label, &until, &identity(by.as_deref())?)?;
             writeln!(out, "{secret}")?;
             eprintln!(
-                "token {id} for {account} ({label}) until {until}; it is shown only now: keep it in the program's secret store"
+                "token {id} for {} ({}) until {until}; it is shown only now: keep it in the program's secret store",
+                output::shown(&account),
+                output::shown(&label)
             );
         }
         TokenCommand::List { json } => {

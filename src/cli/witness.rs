@@ -37,7 +37,11 @@ pub fn run(args: WitnessArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             &serde_json::json!({"event": seq, "hash": hash, "file": file.display().to_string()}),
         )?;
     } else {
-        writeln!(out, "witnessed event {seq} {hash} in {}", file.display())?;
+        writeln!(
+            out,
+            "witnessed event {seq} {hash} in {}",
+            super::output::shown(file.display())
+        )?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -67,7 +67,7 @@ pub struct ExportReport {
     pub info: BundleInfo,
 }
 
-const PROVENANCE_COLUMNS: [&str; 10] = [
+const PROVENANCE_COLUMNS: [&str; 11] = [
     "whorl_original_id",
     "whorl_status",
     "whorl_revision",
@@ -78,6 +78,7 @@ const PROVENANCE_COLUMNS: [&str; 10] = [
     "whorl_withdrawn_reason",
     "whorl_revisions",
     "whorl_reviews",
+    "whorl_status_history",
 ];
 
 fn io(context: impl Into<String>) -> impl FnOnce(std::io::Error) -> Error {
@@ -209,6 +210,7 @@ impl Library {
                 self.withdrawn_reason(rec.id)?.unwrap_or_default(),
                 serde_json::to_string(&revisions)?,
                 serde_json::to_string(&reviews)?,
+                serde_json::to_string(&self.status_history(rec.id)?)?,
             ]);
             w.write_record(row.iter().map(|c| csv_cell(c).into_owned()))
                 .map_err(csv_error)?;

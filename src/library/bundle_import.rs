@@ -9,6 +9,7 @@ use rayon::prelude::*;
 use super::bundle::{
     BundleInfo, RevisionEntry, content_state_hash, lf_endings, read_sums, verify_listing,
 };
+use super::curation::StatusChange;
 use super::events::append_event;
 use super::keys::{SIGNATURE_FILE, read_signature};
 use super::manifest::read_bundle_manifest;
@@ -249,6 +250,40 @@ fn import_one(
             "a bundle written by `whorl export` gives every withdrawn spectrum its reason and no other; export the bundle again; nothing was imported",
         ));
     }
+    // Its withdrawals and reinstatements (absent in bundles written before they travelled):
+    // history, whose last step must agree with the status the row gives.
+    let history: Vec<StatusChange> = match provenance.get("whorl_status_history") {
+        Some(h) if !h.trim().is_empty() => {
+            serde_json::from_str(h).map_err(|_| bad("withdrawal and reinstatement history"))?
+        }
+        _ => Vec::new(),
+    };
+    if let Some(c) = history.iter().find(|c| {
+        !matches!(c.action.as_str(), "withdraw" | "reinstate") || c.reason.trim().is_empty()
+    }) {
+        return Err(Error::input(
+            at(),
+            format!(
+                "the withdrawal and reinstatement history holds '{}' without a reason or with an unknown action",
+                crate::error::excerpt(&c.action, 40)
+            ),
+            "a bundle written by `whorl export` gives each withdrawal and reinstatement its reason; export the bundle again; nothing was imported",
+        ));
+    }
+    let agrees = match history.last() {
+        None => true,
+        Some(last) if last.action == "withdraw" => withdrawn == Some(last.reason.as_str()),
+        Some(_) => status != Status::Withdrawn,
+    };
+    if !agrees {
+        return Err(Error::input(
+            at(),
+            format!(
+                "the row's status ({status}) disagrees with the last step of its withdrawal and reinstatement history"
+            ),
+            "a bundle written by `whorl export` keeps the two in step; export the bundle again; nothing was imported",
+        ));
+    }
     // A reference from another library is pending local acceptance whatever its status there:
     // its sign-offs were given under another library's policy, by people this one does not
     // know, possibly for a name it no longer has. A withdrawal grants nothing and is kept.
@@ -288,6 +323,14 @@ fn import_one(
         )?;
     }
     let imported_from = format!("{source}, spectrum {}", field("whorl_original_id"));
+    // Steps taken in the bundle's library name it; steps it brought from elsewhere keep theirs.
+    let history: Vec<StatusChange> = history
+        .into_iter()
+        .map(|c| StatusChange {
+            library: c.library.or_else(|| Some(imported_from.clone())),
+            ..c
+        })
+        .collect();
     for r in &reviews {
         // The sign-off is kept as given, on the new spectrum, saying where it came from: history,
         // never a local approval.
@@ -323,6 +366,7 @@ fn import_one(
         "current_revision": current,
         "revisions": revisions,
         "reviews": reviews,
+        "status_history": history,
         "bundle": { "fingerprint": info.fingerprint, "original_id": field("whorl_original_id"), "exported_by": info.exported_by, "exported_at": info.exported_at },
     });
     append_event(
@@ -682,6 +726,75 @@ mod tests {
             "{err}"
         );
         assert_eq!(rows(&lib, "spectrum"), 0);
+    }
+
+    #[test]
+    fn a_status_history_that_disagrees_with_the_row_is_refused() {
+        // Spectrum 3 of `curated` is withdrawn, its history one withdrawal; spectrum 1 is
+        // verified with none. Each edit resealed, as anyone editing a bundle can.
+        let step = |action: &str, reason: &str| {
+            serde_json::json!([{"action": action, "at": "2026-01-01T00:00:00.000Z", "by": "m.allory", "reason": reason}])
+                .to_string()
+        };
+        let (_tmp, dir) = exported(&curated());
+        let rows_before = read_bundle_manifest(&dir.join("manifest.csv")).unwrap();
+        let h3 = &rows_before
+            .iter()
+            .find(|r| r.provenance["whorl_original_id"] == "3")
+            .unwrap()
+            .provenance["whorl_status_history"];
+        let h3: Vec<StatusChange> = serde_json::from_str(h3).unwrap();
+        assert_eq!(h3.len(), 1);
+        assert_eq!(
+            (h3[0].action.as_str(), h3[0].reason.as_str()),
+            ("withdraw", "wrong sample")
+        );
+        for (id, history, says) in [
+            ("1", step("withdraw", "made up"), "disagrees"),
+            ("3", step("reinstate", "cleared"), "disagrees"),
+            ("3", step("withdraw", "another reason"), "disagrees"),
+            ("3", step("delete", "gone"), "unknown action"),
+            ("3", step("withdraw", " "), "without a reason"),
+            ("3", "not json".to_string(), "unreadable"),
+        ] {
+            let (_tmp, dir) = exported(&curated());
+            edit_manifest(&dir, id, "whorl_status_history", &history);
+            reseal(&dir);
+            let mut lib = Library::in_memory("t").unwrap();
+            let err = untrusted(&mut lib, &dir).unwrap_err();
+            assert!(err.to_string().contains(says), "{id} {history}: {err}");
+            assert_eq!(rows(&lib, "spectrum"), 0);
+        }
+        // Without the column (a bundle written before it existed), the rows import as before.
+        let mut lib = Library::in_memory("t").unwrap();
+        let (_tmp, dir) = exported(&curated());
+        drop_column(&dir, "whorl_status_history");
+        reseal(&dir);
+        let (_, outcomes) = untrusted(&mut lib, &dir).unwrap();
+        assert_eq!(added(&outcomes), [1, 2, 3]);
+        assert!(lib.status_history(3).unwrap().is_empty());
+        assert!(lib.check(&|_, _| {}).unwrap().findings.is_empty());
+    }
+
+    /// Removes a column from a bundle's manifest.
+    fn drop_column(dir: &Path, column: &str) {
+        let path = dir.join("manifest.csv");
+        let mut r = csv::Reader::from_path(&path).unwrap();
+        let header = r.headers().unwrap().clone();
+        let at = header.iter().position(|h| h == column).unwrap();
+        let keep = |rec: &csv::StringRecord| -> Vec<String> {
+            rec.iter()
+                .enumerate()
+                .filter(|(i, _)| *i != at)
+                .map(|(_, c)| c.to_string())
+                .collect()
+        };
+        let mut w = csv::Writer::from_writer(Vec::new());
+        w.write_record(keep(&header)).unwrap();
+        for rec in r.records() {
+            w.write_record(keep(&rec.unwrap())).unwrap();
+        }
+        std::fs::write(&path, w.into_inner().unwrap()).unwrap();
     }
 
     #[test]

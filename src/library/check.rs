@@ -279,6 +279,8 @@ impl Library {
                     e.revisions.insert(1, p["metadata"].clone());
                     e.current = 1;
                     e.status = "pending".into();
+                    // A new spectrum has no withdrawal reason until a `withdraw` event.
+                    e.withdrawn_reason = Some(None);
                     e.submitted_by = p["submitted_by"].as_str().map(str::to_string);
                     e.imported_by = Some(actor.clone());
                     if let Some(by) = &e.submitted_by {
@@ -299,6 +301,18 @@ impl Library {
                     }
                     e.current = p["current_revision"].as_i64().unwrap_or(1);
                     e.status = p["status"].as_str().unwrap_or_default().to_string();
+                    // One that arrived searchable has no reason; one that arrived withdrawn
+                    // has the reason of the last step of its history, when the event kept it.
+                    e.withdrawn_reason = if e.status != "withdrawn" {
+                        Some(None)
+                    } else {
+                        p["status_history"]
+                            .as_array()
+                            .and_then(|h| h.last())
+                            .filter(|c| c["action"] == "withdraw")
+                            .and_then(|c| c["reason"].as_str())
+                            .map(|r| Some(r.to_string()))
+                    };
                     let from = p
                         .get("imported_from")
                         .map(|f| f.as_str().map(str::to_string));

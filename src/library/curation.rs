@@ -1,7 +1,7 @@
 //! Curation: revisions and withdrawal.
 
 use rusqlite::{Connection, OptionalExtension, params};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::events::append_event;
 use super::records::SpectrumRecord;
@@ -283,6 +283,49 @@ impl Library {
             )
             .optional()?
             .flatten())
+    }
+}
+
+/// One withdrawal or reinstatement of a spectrum, as its history travels in bundles.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct StatusChange {
+    /// `withdraw` or `reinstate`.
+    pub action: String,
+    /// When (UTC), in the library where it happened.
+    pub at: String,
+    /// Who.
+    pub by: String,
+    /// Why.
+    pub reason: String,
+    /// The library it happened in, as an imported sign-off names it (absent: this library).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub library: Option<String>,
+}
+
+impl Library {
+    /// A spectrum's withdrawals and reinstatements, oldest first: those that came with it from
+    /// another library (kept in its `import` event), then this library's own events.
+    pub fn status_history(&self, id: i64) -> Result<Vec<StatusChange>> {
+        let mut out = Vec::new();
+        for e in self.events(Some(&format!("spectrum:{id}")))? {
+            match e.action.as_str() {
+                "import" => {
+                    if let Some(h) = e.payload.get("status_history") {
+                        out.extend(serde_json::from_value::<Vec<StatusChange>>(h.clone())?);
+                    }
+                }
+                "withdraw" | "reinstate" => out.push(StatusChange {
+                    reason: e.payload["reason"].as_str().unwrap_or_default().to_string(),
+                    action: e.action,
+                    at: e.at,
+                    by: e.actor,
+                    library: None,
+                }),
+                _ => {}
+            }
+        }
+        Ok(out)
     }
 }
 

@@ -219,8 +219,13 @@ fn present_files(
         match known {
             Some(spectrum_id) => skipped.push(RowReport {
                 line: row.line,
+                // A withdrawn spectrum's file is refused with the way back, as `add` refuses it.
+                outcome: match row.submission.as_ref().map(|s| s.path.as_path()) {
+                    Ok(path) => super::store::refuse_withdrawn(&lib.conn, spectrum_id, path)
+                        .map(|()| Outcome::AlreadyPresent { spectrum_id }),
+                    Err(_) => Ok(Outcome::AlreadyPresent { spectrum_id }),
+                },
                 file: row.file,
-                outcome: Ok(Outcome::AlreadyPresent { spectrum_id }),
                 warnings: Vec::new(),
                 coverage: None,
             }),
@@ -268,13 +273,15 @@ fn store_batch(
     all_or_nothing: bool,
     report: &mut ImportReport,
 ) -> Result<usize> {
+    // A row refused before staging (the file of a withdrawn spectrum) counts as bad too.
+    let skipped_bad = batch.skipped.iter().any(|r| r.outcome.is_err());
     report.rows.extend(batch.skipped);
     let staged = batch.staged;
     let good: Vec<Staged> = staged
         .iter()
         .filter_map(|(_, _, s)| s.as_ref().ok().cloned())
         .collect();
-    let any_bad = staged.iter().any(|s| s.2.is_err());
+    let any_bad = skipped_bad || staged.iter().any(|s| s.2.is_err());
     let mut stored = if all_or_nothing && any_bad {
         Vec::new()
     } else {

@@ -38,7 +38,7 @@ pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
 pub use caches::BuildProgress;
 pub use check::{CheckRecord, CheckReport, Finding, RECORDED_FINDINGS};
-pub use curation::{MetadataPatch, RevisionInfo};
+pub use curation::{MetadataPatch, RevisionInfo, StatusChange};
 pub use events::{ASSERTED, Event, SIGNED_IN};
 pub use find::Found;
 pub use fingerprint::{ContentSum, fingerprint, record_hash};

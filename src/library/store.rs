@@ -83,6 +83,7 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
     let technique = sub.technique.name();
     let raw_sha256 = staged.raw.raw_sha256();
     if let Some(spectrum_id) = present_by_raw(tx, technique, &raw_sha256)? {
+        refuse_withdrawn(tx, spectrum_id, &sub.path)?;
         return Ok(Outcome::AlreadyPresent { spectrum_id });
     }
     let m = &sub.metadata;
@@ -201,6 +202,34 @@ pub(super) fn present_by_raw(
             |r| r.get(0),
         )
         .optional()?)
+}
+
+/// Refuses a file whose raw points are those of a withdrawn spectrum: storing it again would
+/// not bring the spectrum back, so "already present" would mislead. Names the spectrum, why it
+/// was withdrawn, and the way back (`whorl reinstate`).
+pub(super) fn refuse_withdrawn(
+    tx: &Connection,
+    spectrum_id: i64,
+    path: &std::path::Path,
+) -> Result<()> {
+    let (status, reason): (String, Option<String>) = tx.query_row(
+        "SELECT status, withdrawn_reason FROM spectrum WHERE id = ?1",
+        [spectrum_id],
+        |r| Ok((r.get(0)?, r.get(1)?)),
+    )?;
+    if status != Status::Withdrawn.name() {
+        return Ok(());
+    }
+    Err(Error::input(
+        crate::error::Location::file(path),
+        format!(
+            "the same raw points are spectrum {spectrum_id}, which is withdrawn ({})",
+            crate::error::excerpt(reason.as_deref().unwrap_or(""), 200)
+        ),
+        format!(
+            "to use it again, bring it back with `whorl reinstate {spectrum_id} --reason TEXT` (it returns pending a new sign-off)"
+        ),
+    ))
 }
 
 // The writes below are the only place each row is written from: storing, the bundle import,

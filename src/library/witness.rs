@@ -50,6 +50,63 @@ impl Library {
         Ok((seq, hash))
     }
 
+    /// Appends the chain's head to `file` unless the file's last line already records it
+    /// (so a command that wrote nothing adds no line); returns the head when one was written.
+    /// For `[audit] witness` in `whorl.toml`: every write appends its new head. A file inside
+    /// the library folder is refused, since whoever can rewrite the library could rewrite it.
+    pub fn witness_new_head(&self, file: &Path) -> Result<Option<(i64, String)>> {
+        let root = self.root().map(Path::canonicalize);
+        let inside = match (root, file.parent()) {
+            (Some(Ok(root)), Some(parent)) => parent
+                .canonicalize()
+                .map(|p| p.starts_with(&root))
+                .unwrap_or(false),
+            _ => false,
+        };
+        if inside {
+            return Err(Error::invalid(
+                format!(
+                    "the witness file {} is inside the library folder",
+                    crate::error::excerpt(&file.display().to_string(), 200)
+                ),
+                "keep the witness file outside the library, where the library's users cannot rewrite it ([audit] witness in whorl.toml)",
+            ));
+        }
+        let (seq, hash): (i64, String) = self.conn.query_row(
+            "SELECT seq, hash FROM event ORDER BY seq DESC LIMIT 1",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )?;
+        if file.exists()
+            && let Some(last) = read_witness(file)?.last()
+        {
+            if last.seq == seq && last.hash == hash {
+                return Ok(None);
+            }
+            // A chain that no longer holds the last witnessed head is never witnessed again:
+            // appending its head would put a rewritten chain on record as if it were sound.
+            let held: Option<String> = self
+                .conn
+                .query_row("SELECT hash FROM event WHERE seq = ?1", [last.seq], |r| {
+                    r.get(0)
+                })
+                .optional()?;
+            if held.as_deref() != Some(last.hash.as_str()) {
+                return Err(Error::Library {
+                    path: self.root().map(Path::to_path_buf).unwrap_or_default(),
+                    reason: format!(
+                        "the audit chain no longer holds event {} as the witness file {} recorded it (line {}): the trail was rewritten or cut back, and its head is not witnessed",
+                        last.seq,
+                        crate::error::excerpt(&file.display().to_string(), 200),
+                        last.line
+                    ),
+                    hint: "run `whorl check --witness FILE` and restore the library from a backup that the witness file agrees with".into(),
+                });
+            }
+        }
+        self.write_witness(file).map(Some)
+    }
+
     /// Whether the chain holds every head recorded in `file`: one finding per head it does not.
     pub fn verify_witness(&self, file: &Path) -> Result<Vec<Finding>> {
         let heads = read_witness(file)?;

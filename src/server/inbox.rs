@@ -152,8 +152,14 @@ fn free_folder(base: &Path, stem: &str) -> PathBuf {
 /// and the result to write.
 fn import(inbox: &Inbox, library: &Path, manifest: &Path) -> (bool, Value) {
     let prefix = format!("{}/", inbox.dir.display());
-    let outcome = Library::open(library)
-        .and_then(|mut lib| import_manifest_as(&mut lib, manifest, &inbox.account, true));
+    let outcome = Library::open(library).and_then(|mut lib| {
+        let report = import_manifest_as(&mut lib, manifest, &inbox.account, true)?;
+        // `[audit] witness`: the drop's new head goes to the witness file.
+        if let Some(file) = whorl::config::Config::load(library)?.audit.witness {
+            lib.witness_new_head(&file)?;
+        }
+        Ok(report)
+    });
     match outcome {
         Ok(report) => {
             let mut body = report_json(&report, &inbox.dir);

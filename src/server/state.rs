@@ -85,7 +85,13 @@ impl AppState {
         let root = self.options.library.clone();
         tokio::task::spawn_blocking(move || {
             let mut lib = Library::open(&root)?;
-            f(&mut lib)
+            let out = f(&mut lib)?;
+            // `[audit] witness` in whorl.toml: a write's new head goes to the witness file
+            // (nothing is appended when the request wrote nothing).
+            if let Some(file) = whorl::config::Config::load(&root)?.audit.witness {
+                lib.witness_new_head(&file)?;
+            }
+            Ok(out)
         })
         .await?
     }

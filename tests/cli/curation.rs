@@ -472,3 +472,185 @@ fn a_reinstated_spectrum_travels_in_a_bundle_as_pending() {
     assert!(copy["withdrawn_reason"].is_null(), "{copy}");
     other.ok(&["check"]);
 }
+
+#[test]
+fn a_manifest_row_with_a_withdrawn_spectrums_file_names_it_and_the_way_back() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&[
+        "withdraw",
+        &id,
+        "--reason",
+        "lot recalled",
+        "--by",
+        "q.manager",
+    ]);
+    lab.write(
+        "other.csv",
+        ir_csv(&[(1650.0, 0.7, 12.0), (2900.0, 0.3, 15.0)]),
+    );
+    lab.write(
+        "m.csv",
+        "file,technique,name\nketone.csv,ir,example ketone\nother.csv,ir,other\n",
+    );
+    // Not "already present" with exit 0: the row is refused naming the withdrawn spectrum,
+    // its reason and `whorl reinstate`; the other row is imported.
+    let out = lab.fails(&["import", "m.csv"], 3);
+    let line = out
+        .lines()
+        .find(|l| l.starts_with("rejected") && l.contains(":2 "))
+        .unwrap_or_else(|| panic!("no rejected line for row 2:\n{out}"));
+    assert!(
+        line.contains(&format!("spectrum {id}, which is withdrawn (lot recalled)")),
+        "{out}"
+    );
+    assert!(
+        hint(&out).contains(&format!("whorl reinstate {id} --reason")),
+        "{out}"
+    );
+    assert!(
+        out.contains("imported 1 (ids 2..2), already present 0, rejected 1"),
+        "{out}"
+    );
+    // All or nothing: the withdrawn row refuses the whole import.
+    lab.write(
+        "third.csv",
+        ir_csv(&[(1600.0, 0.7, 12.0), (2850.0, 0.3, 15.0)]),
+    );
+    lab.write(
+        "m2.csv",
+        "file,technique,name\nthird.csv,ir,third\nketone.csv,ir,example ketone\n",
+    );
+    lab.refuses(&["import", "m2.csv", "--all-or-nothing"], 3);
+    // The same points in a file with other bytes are caught too (by the raw points).
+    lab.write(
+        "copy.csv",
+        format!(
+            "{}\n",
+            std::fs::read_to_string(lab.path("ketone.csv")).unwrap()
+        ),
+    );
+    lab.write(
+        "m3.csv",
+        "file,technique,name\ncopy.csv,ir,example ketone\n",
+    );
+    let json = lab.run(&["import", "m3.csv", "--json"]);
+    assert_eq!(json.status.code(), Some(3));
+    let v: serde_json::Value = serde_json::from_slice(&json.stdout).unwrap();
+    let reason = v["rejected"][0]["reason"].as_str().unwrap();
+    assert!(
+        reason.contains(&format!("spectrum {id}, which is withdrawn")),
+        "{v}"
+    );
+    assert!(
+        v["rejected"][0]["hint"]
+            .as_str()
+            .unwrap()
+            .contains("whorl reinstate"),
+        "{v}"
+    );
+    lab.ok(&["check"]);
+}
+
+#[test]
+fn withdrawal_and_reinstatement_travel_in_bundles_as_history() {
+    let (lab, id) = one_spectrum();
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    lab.ok(&[
+        "withdraw",
+        &id,
+        "--reason",
+        "lot recalled",
+        "--by",
+        "q.manager",
+    ]);
+    lab.ok(&[
+        "reinstate",
+        &id,
+        "--reason",
+        "lot cleared",
+        "--by",
+        "c.curator",
+    ]);
+    // Verified again at home: still pending where it arrives.
+    lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
+    assert_eq!(status(&lab, &id), "verified");
+    let steps = |v: &serde_json::Value| -> Vec<(String, String, String)> {
+        v["status_history"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|c| {
+                (
+                    c["action"].as_str().unwrap().to_string(),
+                    c["by"].as_str().unwrap().to_string(),
+                    c["reason"].as_str().unwrap().to_string(),
+                )
+            })
+            .collect()
+    };
+    let expected = vec![
+        (
+            "withdraw".to_string(),
+            "q.manager".to_string(),
+            "lot recalled".to_string(),
+        ),
+        (
+            "reinstate".to_string(),
+            "c.curator".to_string(),
+            "lot cleared".to_string(),
+        ),
+    ];
+    assert_eq!(steps(&lab.json(&["show", &id])), expected);
+    let bundle = lab.path("bundle");
+    lab.ok(&["export", bundle.to_str().unwrap()]);
+    let other = Lab::new();
+    other.ok(&["import", bundle.to_str().unwrap(), "--untrusted"]);
+    let copy = other.json(&["show", "1"]);
+    assert_eq!(copy["spectrum"]["status"], "pending");
+    assert!(copy["withdrawn_reason"].is_null(), "{copy}");
+    assert_eq!(steps(&copy), expected);
+    // Each step names the library it was taken in; the sign-offs are history too.
+    let from = copy["reviews"][0]["imported_from"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    for c in copy["status_history"].as_array().unwrap() {
+        assert_eq!(c["library"].as_str(), Some(from.as_str()), "{copy}");
+    }
+    let shown = other.ok(&["show", "1"]);
+    assert!(
+        shown.contains("withdraw at")
+            && shown.contains("lot recalled")
+            && shown.contains("reinstate at")
+            && shown.contains("lot cleared"),
+        "{shown}"
+    );
+    other.ok(&["check"]);
+    // On to a third library: the history keeps its steps and where they were taken.
+    let again = other.path("again");
+    other.ok(&["export", again.to_str().unwrap()]);
+    let third = Lab::new();
+    third.ok(&["import", again.to_str().unwrap(), "--untrusted"]);
+    let last = third.json(&["show", "1"]);
+    assert_eq!(steps(&last), expected);
+    assert_eq!(last["status_history"], copy["status_history"]);
+    third.ok(&["check"]);
+    // Withdrawn again at home and exported: it arrives withdrawn with all three steps.
+    lab.ok(&[
+        "withdraw",
+        &id,
+        "--reason",
+        "recalled again",
+        "--by",
+        "q.manager",
+    ]);
+    let withdrawn = lab.path("withdrawn");
+    lab.ok(&["export", withdrawn.to_str().unwrap()]);
+    let fourth = Lab::new();
+    fourth.ok(&["import", withdrawn.to_str().unwrap(), "--untrusted"]);
+    let w = fourth.json(&["show", "1"]);
+    assert_eq!(w["spectrum"]["status"], "withdrawn");
+    assert_eq!(w["withdrawn_reason"], "recalled again");
+    assert_eq!(steps(&w).len(), 3);
+    fourth.ok(&["check"]);
+}
