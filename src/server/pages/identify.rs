@@ -105,7 +105,7 @@ fn result_page(b: &Browser<ToView>, r: &IdentifyReport) -> ResultPage {
             disagreements.push(format!("{} (fused rank {}): {d}", c.name, c.rank));
         }
     }
-    let mut warnings = f.warnings.clone();
+    let mut warnings: Vec<String> = f.warnings.iter().map(|w| w.message.clone()).collect();
     for run in &r.runs {
         for w in &run.warnings {
             warnings.push(format!("{}: {w}", run.unknown.technique.title()));
