@@ -14,17 +14,27 @@ use whorl::library::{
 use super::{Context, EXIT_INPUT, identity, output};
 
 #[derive(Debug, Args)]
+#[command(group(clap::ArgGroup::new("source").required(true).args(["path", "manifest", "bundle"])))]
 pub struct ImportArgs {
-    /// A bundle folder written by `whorl export`, or a manifest CSV: file,technique,name[,formula,cas,synonyms,tags,solvent,y_unit,x_unit,source,
+    /// A manifest CSV or a bundle folder, told apart by what the path is (a folder is a bundle);
+    /// `--manifest FILE` and `--bundle DIR` say which explicitly
+    #[arg(value_name = "MANIFEST_OR_BUNDLE")]
+    pub path: Option<PathBuf>,
+    /// A manifest CSV: file,technique,name[,formula,cas,synonyms,tags,solvent,y_unit,x_unit,source,
     /// submitted_by,instrument,acquired,notes,...]; other columns are kept as searchable metadata
-    pub manifest: PathBuf,
-    /// Import nothing if any row is rejected
+    #[arg(long, value_name = "CSV")]
+    pub manifest: Option<PathBuf>,
+    /// A bundle folder written by `whorl export` (its checksums and signature are verified)
+    #[arg(long, value_name = "DIR")]
+    pub bundle: Option<PathBuf>,
+    /// Import nothing if any row is rejected (manifests; a bundle is always all or nothing)
     #[arg(long)]
     pub all_or_nothing: bool,
     /// Who imports, and the submitter of rows without submitted_by [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
     /// Accept a bundle that is unsigned or not signed by a trusted key; recorded as untrusted
+    /// (bundles only)
     #[arg(long)]
     pub untrusted: bool,
     /// Print the summary as JSON
@@ -32,19 +42,76 @@ pub struct ImportArgs {
     pub json: bool,
 }
 
-pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
-    let mut lib = ctx.open()?;
-    if args.manifest.is_dir() {
-        return import_bundle(&mut lib, &args, ctx);
+/// The two forms of `import`.
+enum Source {
+    Manifest(PathBuf),
+    Bundle(PathBuf),
+}
+
+impl ImportArgs {
+    /// What is imported: the explicit form, checked against what the path is, or the path told
+    /// apart by being a folder (a bundle) or not (a manifest).
+    fn source(&self) -> whorl::Result<Source> {
+        let refuse = |what: String, hint: &str| Err(whorl::Error::invalid(what, hint));
+        let source = match (&self.path, &self.manifest, &self.bundle) {
+            (_, Some(m), _) if m.is_dir() => {
+                return refuse(
+                    format!(
+                        "--manifest {}: is a folder, not a manifest CSV",
+                        output::shown(m.display())
+                    ),
+                    "a folder written by `whorl export` is imported with `--bundle DIR`",
+                );
+            }
+            (_, Some(m), _) => Source::Manifest(m.clone()),
+            (_, _, Some(b)) if b.exists() && !b.is_dir() => {
+                return refuse(
+                    format!(
+                        "--bundle {}: is a file, not a bundle folder",
+                        output::shown(b.display())
+                    ),
+                    "a manifest CSV is imported with `--manifest FILE`",
+                );
+            }
+            (_, _, Some(b)) => Source::Bundle(b.clone()),
+            (Some(p), _, _) if p.is_dir() => Source::Bundle(p.clone()),
+            (Some(p), _, _) => Source::Manifest(p.clone()),
+            (None, None, None) => unreachable!("clap requires one of the three"),
+        };
+        match &source {
+            Source::Manifest(m) if self.untrusted => refuse(
+                format!(
+                    "--untrusted applies to bundles; {} is a manifest",
+                    output::shown(m.display())
+                ),
+                "leave out --untrusted: the rows of a manifest are checked one by one",
+            ),
+            Source::Bundle(b) if self.all_or_nothing => refuse(
+                format!(
+                    "--all-or-nothing applies to manifests; {} is a bundle",
+                    output::shown(b.display())
+                ),
+                "leave out --all-or-nothing: a bundle is imported whole or not at all",
+            ),
+            _ => Ok(source),
+        }
     }
+}
+
+pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
+    let manifest = match args.source()? {
+        Source::Bundle(dir) => return import_bundle(&mut ctx.open()?, &dir, &args, ctx),
+        Source::Manifest(m) => m,
+    };
+    let mut lib = ctx.open()?;
     let report = import_manifest(
         &mut lib,
-        &args.manifest,
+        &manifest,
         &identity(args.by.as_deref())?,
         args.all_or_nothing,
         true,
     )?;
-    for line in warning_lines(&args.manifest, &report.rows) {
+    for line in warning_lines(&manifest, &report.rows) {
         eprintln!("{line}");
     }
     if let Some(note) = report.coverage_note() {
@@ -77,7 +144,7 @@ pub fn run(args: ImportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             }),
         )?;
     } else {
-        print_summary(&mut out, &args.manifest, &report)?;
+        print_summary(&mut out, &manifest, &report)?;
     }
     Ok(if report.rejected().next().is_some() {
         ExitCode::from(EXIT_INPUT)
@@ -127,7 +194,12 @@ fn warning_lines(manifest: &std::path::Path, rows: &[whorl::library::RowReport])
     lines
 }
 
-fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow::Result<ExitCode> {
+fn import_bundle(
+    lib: &mut Library,
+    dir: &std::path::Path,
+    args: &ImportArgs,
+    _ctx: &Context,
+) -> anyhow::Result<ExitCode> {
     let accept = if args.untrusted {
         Acceptance::Untrusted
     } else {
@@ -137,7 +209,7 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
         info,
         trust,
         outcomes,
-    } = lib.import_bundle(&args.manifest, &identity(args.by.as_deref())?, accept)?;
+    } = lib.import_bundle(dir, &identity(args.by.as_deref())?, accept)?;
     let added = outcomes
         .iter()
         .filter(|o| matches!(o, Outcome::Added { .. }))
@@ -153,7 +225,7 @@ fn import_bundle(lib: &mut Library, args: &ImportArgs, _ctx: &Context) -> anyhow
         writeln!(
             out,
             "bundle {} checksums verified ({} spectra, exported by {} at {})",
-            output::shown(args.manifest.display()),
+            output::shown(dir.display()),
             info.spectra,
             output::shown(&info.exported_by),
             output::shown(&info.exported_at)
@@ -252,7 +324,8 @@ fn print_summary(
     };
     writeln!(
         out,
-        "imported {}{range}, already present {}, rejected {}",
+        "manifest {}: imported {}{range}, already present {}, rejected {}",
+        output::shown(manifest.display()),
         report.imported(),
         report.already_present(),
         report.rejected().count()

@@ -111,7 +111,8 @@ pub enum Command {
     Init(init::InitArgs),
     /// Import one spectrum file with its metadata.
     Add(Box<add::AddArgs>),
-    /// Import many spectra listed in a manifest CSV.
+    /// Import many spectra: a manifest CSV listing them (`--manifest`), or a bundle folder
+    /// written by `whorl export` (`--bundle`).
     Import(import::ImportArgs),
     /// Rank library spectra against an unknown.
     Search(Box<search::SearchArgs>),

@@ -10,7 +10,7 @@ fn manifest(lab: &Lab, name: &str, bad: bool) -> String {
         "m/b.csv",
         ir_csv(&[(1050.0, 0.6, 12.0), (3350.0, 0.5, 80.0)]),
     );
-    lab.write("m/c.csv", ms_csv(&[(43, 999.0), (58, 300.0)]));
+    lab.write("m/c.csv", ms_csv(&[(43, 100.0), (58, 30.0)]));
     let repeated = format!("{}1000,0.5\n", ir_csv(&[(1600.0, 0.5, 10.0)]));
     lab.write("m/bad.csv", repeated);
     let mut text = String::from("file,technique,name,class,lot\n");
@@ -430,4 +430,49 @@ fn add_takes_extra_fields_with_set() {
         let text = lab.refuses(&args, 3);
         assert!(text.contains(why), "{why}: {text}");
     }
+}
+
+#[test]
+fn the_two_forms_of_import_are_named_and_checked_against_the_path() {
+    let lab = Lab::new();
+    let path = manifest(&lab, "list.csv", false);
+    // `--manifest FILE` imports a manifest and the summary names the form.
+    let out = lab.ok(&["import", "--manifest", &path]);
+    assert!(
+        out.contains(&format!("manifest {path}: imported 3 (ids 1..3)")),
+        "{out}"
+    );
+    let bundle = lab.path("bundle");
+    lab.ok(&["export", bundle.to_str().unwrap()]);
+    let bundle = bundle.to_str().unwrap();
+    // A form that disagrees with what the path is, refused before anything is read.
+    let text = lab.refuses(&["import", "--manifest", bundle], 3);
+    assert!(text.contains("is a folder, not a manifest CSV"), "{text}");
+    assert!(hint(&text).contains("--bundle DIR"), "{text}");
+    let text = lab.refuses(&["import", "--bundle", &path], 3);
+    assert!(text.contains("is a file, not a bundle folder"), "{text}");
+    assert!(hint(&text).contains("--manifest FILE"), "{text}");
+    // Each form's own options are refused with the other form.
+    let text = lab.refuses(&["import", "--manifest", &path, "--untrusted"], 3);
+    assert!(text.contains("--untrusted applies to bundles"), "{text}");
+    let text = lab.refuses(&["import", "--bundle", bundle, "--all-or-nothing"], 3);
+    assert!(
+        text.contains("--all-or-nothing applies to manifests"),
+        "{text}"
+    );
+    // Two sources at once are a usage error (clap's exit 2).
+    lab.refuses(&["import", &path, "--manifest", &path], 2);
+    lab.refuses(&["import"], 2);
+    // `--bundle DIR` imports the bundle (into another library: here everything is present).
+    let other = lab.path("other");
+    lab.ok(&["--library", other.to_str().unwrap(), "init"]);
+    let out = lab.ok(&[
+        "--library",
+        other.to_str().unwrap(),
+        "import",
+        "--bundle",
+        bundle,
+        "--untrusted",
+    ]);
+    assert!(out.contains("imported 3, already present 0"), "{out}");
 }
