@@ -190,12 +190,12 @@ fn ms_file(peaks: &[(u32, f64)]) -> String {
 fn fuzz_manifest(rng: &mut Rng, cases: usize, dir: &Path) -> Tally {
     std::fs::write(
         dir.join("a.csv"),
-        ms_file(&[(43, 999.0), (58, 300.0), (15, 100.0)]),
+        ms_file(&[(43, 100.0), (58, 30.0), (15, 10.0)]),
     )
     .unwrap();
     std::fs::write(
         dir.join("b.csv"),
-        ms_file(&[(31, 999.0), (45, 400.0), (46, 200.0)]),
+        ms_file(&[(31, 100.0), (45, 40.0), (46, 20.0)]),
     )
     .unwrap();
     let seed = "file,technique,name,formula,cas,synonyms,tags,solvent,y_unit,submitted_by,notes,lot\n\
@@ -250,9 +250,9 @@ fn fuzz_bundle(rng: &mut Rng, cases: usize, dir: &Path) -> Tally {
     let source = dir.join("source");
     let mut lib = Library::init(&source, "fuzz").unwrap();
     let spectra: [(&str, &[(u32, f64)]); 3] = [
-        ("acetone", &[(43, 999.0), (58, 300.0), (15, 100.0)]),
-        ("ethanol", &[(31, 999.0), (45, 400.0), (46, 200.0)]),
-        ("toluene", &[(91, 999.0), (92, 700.0), (65, 120.0)]),
+        ("acetone", &[(43, 100.0), (58, 30.0), (15, 10.0)]),
+        ("ethanol", &[(31, 100.0), (45, 40.0), (46, 20.0)]),
+        ("toluene", &[(91, 100.0), (92, 70.0), (65, 12.0)]),
     ];
     for (name, peaks) in spectra {
         let file = dir.join(format!("{name}.csv"));

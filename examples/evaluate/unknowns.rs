@@ -155,7 +155,7 @@ pub fn ms_unknown(
     let top = ions.values().copied().fold(0.0, f64::max);
     let points = ions
         .into_iter()
-        .map(|(mz, v)| (mz as f64, (999.0 * v / top).round().max(1.0)))
+        .map(|(mz, v)| (mz as f64, ((1000.0 * v / top).round() / 10.0).max(0.1)))
         .collect();
     Unknown {
         points,

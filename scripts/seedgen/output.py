@@ -103,8 +103,13 @@ def make_raman(c, rng):
     return rows_text(["raman_shift_cm-1", "counts"], [(str(x), str(y)) for x, y in zip(RAMAN_X, cs)])
 
 
+def percent(v):
+    """A relative intensity in percent of the base peak, at most one decimal ("45", "2.5")."""
+    return f"{max(0.1, round(v, 1)):g}"
+
+
 def ms_scaled(peaks):
-    return [(p["mz"], int(round(p["rel"] * 9.99))) for p in sorted(peaks, key=lambda p: p["mz"])]
+    return [(p["mz"], percent(p["rel"])) for p in sorted(peaks, key=lambda p: p["mz"])]
 
 
 def make_ms(c):
@@ -121,7 +126,7 @@ def carbon_rows(lines, unit_heights=False):
     top = max(h for _, h in lines)
     rows = []
     for p, h in sorted(lines, key=lambda l: -l[0]):
-        rows.append((f"{p:.2f}", "1" if unit_heights else str(max(1, int(round(999 * h / top))))))
+        rows.append((f"{p:.2f}", "1" if unit_heights else percent(100 * h / top)))
     return rows
 
 
@@ -230,9 +235,9 @@ and never use exponent notation.
 |---|---|---|---|
 | `ir` | `wavenumber_cm-1,absorbance` | 4000 down to 400, step 2 (1801 rows) | pseudo-Voigt bands summed, noise sd 0.002, no baseline |
 | `raman` | `raman_shift_cm-1,counts` | 100 up to 3500, step 2 (1701 rows) | Lorentzian bands scaled to ~10000 counts, +~200 counts offset, shot noise; integers |
-| `ms-ei` | `mz,intensity` | nominal integer m/z, ascending | relative intensity 0-999, base peak 999 |
+| `ms-ei` | `mz,intensity` | nominal integer m/z, ascending | percent of the base peak (base peak 100), at most one decimal |
 | `nmr-1h` | `ppm,intensity` | 12.5 down to -0.5, step 0.004 (3251 rows) | first-order multiplets at 400 MHz of Lorentzian lines (fwhm 0.006 ppm; `br` 0.05 ppm), area proportional to nH; solvent residual, water and TMS peaks included; max ~1000 |
-| `nmr-13c` | `ppm,intensity` | peak list, descending ppm, 2 decimals | height proportional to nC, x0.3 for carbons without H; the solvent's C-D multiplet and TMS listed; integers, max 999 |
+| `nmr-13c` | `ppm,intensity` | peak list, descending ppm, 2 decimals | height proportional to nC, x0.3 for carbons without H; the solvent's C-D multiplet and TMS listed; percent of the tallest line, at most one decimal |
 
 NMR solvent residual / water peaks (Gottlieb, Kotlyar & Nudelman, J. Org.
 Chem. 1997): CDCl3 7.26 / 1.56, DMSO-d6 2.50 / 3.33, D2O 4.79 (HOD),

@@ -7,7 +7,7 @@ import os
 
 from .base import COMPOUNDS, fail
 from .checks import check_solvent_clear
-from .output import carbon_rows, header_comments, ir_rows, rows_text, write_text
+from .output import carbon_rows, header_comments, ir_rows, percent, rows_text, write_text
 from .synthesis import (IR_X, NMR_X, RAMAN_X, carbon_lines, fluorescence, fmt, ir_absorbance,
                         lorentz, nmr_spectrum, raman_counts, rng_for)
 
@@ -129,7 +129,7 @@ def write_unknowns(out):
         for mz, v in peaks:
             merged[mz] = merged.get(mz, 0) + v
         top = max(merged.values())
-        return [(mz, int(round(999 * v / top))) for mz, v in sorted(merged.items())]
+        return [(mz, percent(100 * v / top)) for mz, v in sorted(merged.items())]
 
     pk = ms_degraded("ethylbenzene", "u09", [(207, 24.0), (281, 17.0)])
     add("u09.ms-ei.csv", "ms-ei", "ethylbenzene",

@@ -169,7 +169,7 @@ fn an_nmr_shift_above_20_ppm() {
 
 #[test]
 fn an_mz_of_zero() {
-    let text = refused_add(ms_csv(&[(0, 10.0), (43, 999.0)]), "ms-ei", &[], "bad.csv:2");
+    let text = refused_add(ms_csv(&[(0, 1.0), (43, 100.0)]), "ms-ei", &[], "bad.csv:2");
     contains(&text, "x = 0 is outside");
 }
 
@@ -184,7 +184,7 @@ fn an_ir_file_in_micrometres_without_x_unit() {
 #[test]
 fn a_negative_ion_abundance() {
     let text = refused_add(
-        "mz,abundance\n15,10\n28,-5\n43,999\n",
+        "mz,abundance\n15,1\n28,-0.5\n43,100\n",
         "ms-ei",
         &[],
         "bad.csv:3",

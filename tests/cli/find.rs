@@ -21,7 +21,7 @@ fn lab() -> Lab {
     );
     lab.add(
         "a.ms.csv",
-        &ms_csv(&[(43, 999.0), (58, 300.0)]),
+        &ms_csv(&[(43, 100.0), (58, 30.0)]),
         "ms-ei",
         "compound alpha",
         &["--tag", "solvent", "--formula", "C3H6O"],
@@ -223,14 +223,14 @@ fn numeric_metadata_answers_ranges_and_an_unknown_field_is_refused() {
     let lab = lab();
     lab.add(
         "r1.csv",
-        &ms_csv(&[(91, 999.0), (92, 600.0)]),
+        &ms_csv(&[(91, 100.0), (92, 60.0)]),
         "ms-ei",
         "compound gamma",
         &["--set", "ri=763.1578947368421"],
     );
     lab.add(
         "r2.csv",
-        &ms_csv(&[(105, 999.0), (77, 400.0)]),
+        &ms_csv(&[(105, 100.0), (77, 40.0)]),
         "ms-ei",
         "compound delta",
         &["--set", "ri=905"],
@@ -258,7 +258,7 @@ fn numeric_metadata_answers_ranges_and_an_unknown_field_is_refused() {
     assert!(text.contains("extra columns: ri"), "{text}");
     assert!(!hint(&text).is_empty());
     // The same refusal in a search's --where.
-    lab.write("u.csv", ms_csv(&[(91, 999.0), (92, 600.0)]));
+    lab.write("u.csv", ms_csv(&[(91, 100.0), (92, 60.0)]));
     let text = lab.refuses(
         &["search", "u.csv", "-t", "ms-ei", "--where", "rt:[1 TO 2]"],
         3,

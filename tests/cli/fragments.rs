@@ -77,7 +77,7 @@ fn add_ms(lab: &Lab, file: &str, points: &str, formula: &str) -> (String, String
 fn add_warns_about_an_impossible_base_peak_and_stores_it() {
     let lab = Lab::new();
     // m/z 10 fits no sub-formula of C3H6O.
-    let (id, err) = add_ms(&lab, "a.csv", "10,999\n29,400\n58,300\n", "C3H6O");
+    let (id, err) = add_ms(&lab, "a.csv", "10,100\n29,40\n58,30\n", "C3H6O");
     assert!(
         err.contains("base peak at m/z 10 fits no sub-formula of C3H6O"),
         "{err}"
@@ -94,10 +94,10 @@ fn add_warns_about_an_impossible_base_peak_and_stores_it() {
 fn add_warns_about_ions_above_the_molecular_ion() {
     let lab = Lab::new();
     // A 40 % peak at m/z 72 lies above propanal's 58 (+2 for isotope peaks).
-    let (_, err) = add_ms(&lab, "b.csv", "29,999\n58,300\n72,400\n", "C3H6O");
+    let (_, err) = add_ms(&lab, "b.csv", "29,100\n58,30\n72,40\n", "C3H6O");
     assert!(err.contains("m/z 72 (40 % of the base peak)"), "{err}");
     // A 2 % peak there is below the 5 % significance threshold.
-    let (_, err) = add_ms(&lab, "c.csv", "29,999\n58,300\n72,20\n", "C3H6O");
+    let (_, err) = add_ms(&lab, "c.csv", "29,100\n58,30\n72,2\n", "C3H6O");
     assert!(!err.contains("warning"), "{err}");
 }
 
@@ -109,7 +109,7 @@ fn plausible_spectra_get_no_warning() {
     let (_, err) = add_ms(
         &lab,
         "bromoform.csv",
-        "91,150\n93,150\n171,480\n173,999\n175,480\n250,60\n252,180\n254,180\n256,60\n",
+        "91,15\n93,15\n171,48\n173,100\n175,48\n250,6\n252,18\n254,18\n256,6\n",
         "CHBr3",
     );
     assert!(!err.contains("warning"), "{err}");
@@ -117,7 +117,7 @@ fn plausible_spectra_get_no_warning() {
     let (_, err) = add_ms(
         &lab,
         "p.csv",
-        "15,120\n27,420\n28,650\n29,999\n57,120\n58,310\n",
+        "15,12\n27,42\n28,65\n29,100\n57,12\n58,31\n",
         "C3H6O",
     );
     assert!(!err.contains("warning"), "{err}");
@@ -126,7 +126,7 @@ fn plausible_spectra_get_no_warning() {
 #[test]
 fn import_prints_and_reports_the_warning() {
     let lab = Lab::new();
-    lab.write("s/bad.csv", "mz,intensity\n10,999\n29,400\n");
+    lab.write("s/bad.csv", "mz,intensity\n10,100\n29,40\n");
     lab.write(
         "s/m.csv",
         "file,technique,name,formula\nbad.csv,ms-ei,propanal,C3H6O\n",
@@ -136,7 +136,7 @@ fn import_prints_and_reports_the_warning() {
     let err = String::from_utf8(out.stderr).unwrap();
     assert!(err.contains("m.csv:2 (bad.csv)"), "{err}");
     assert!(err.contains("base peak at m/z 10"), "{err}");
-    lab.write("s/again.csv", "mz,intensity\n10,999\n29,401\n");
+    lab.write("s/again.csv", "mz,intensity\n10,100\n29,40.1\n");
     lab.write(
         "s/m2.csv",
         "file,technique,name,formula\nagain.csv,ms-ei,propanal,C3H6O\n",

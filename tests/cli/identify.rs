@@ -10,7 +10,7 @@ fn seed_file(rel: &str) -> String {
 
 /// Ethyl acetate's seed EI spectrum with abundances changed by up to 15 %.
 const ETHYL_ACETATE_MS: &str =
-    "mz,intensity\n15,110\n27,180\n29,270\n42,90\n43,999\n45,140\n61,170\n70,130\n73,55\n88,115\n";
+    "mz,intensity\n15,11\n27,18\n29,27\n42,9\n43,100\n45,14\n61,17\n70,13\n73,5.5\n88,11.5\n";
 
 fn compound<'a>(report: &'a Value, name: &str) -> &'a Value {
     report["fusion"]["compounds"]

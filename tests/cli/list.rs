@@ -14,7 +14,7 @@ fn lab() -> Lab {
     );
     lab.add(
         "a.ms.csv",
-        &ms_csv(&[(43, 999.0), (58, 300.0)]),
+        &ms_csv(&[(43, 100.0), (58, 30.0)]),
         "ms-ei",
         "compound a",
         &[],

@@ -16,7 +16,7 @@ fn stats_counts_spectra_per_technique_and_status() {
     );
     lab.add(
         "a.ms.csv",
-        &ms_csv(&[(43, 999.0)]),
+        &ms_csv(&[(43, 100.0)]),
         "ms-ei",
         "compound a",
         &[],

@@ -224,7 +224,7 @@ fn an_unknown_with_mz_15_and_29_ranks_compounds_showing_both_first() {
     let lab = seeded_lab();
     let file = lab.write(
         "ms.csv",
-        "mz,intensity\n15,120\n26,150\n27,420\n28,650\n29,999\n57,120\n58,310\n",
+        "mz,intensity\n15,12\n26,15\n27,42\n28,65\n29,100\n57,12\n58,31\n",
     );
     let ions: HashMap<String, Vec<i64>> = compounds()
         .iter()
