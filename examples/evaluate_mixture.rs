@@ -51,22 +51,27 @@ const SOURCE: &str = "PNNL GC-MS metabolite library (2019-10-15 release), as shi
      one half of it, split by compound (`real-spectra/ei-ms/`). Licence: BSD-2-Clause style, Battelle Memorial Institute \
      (`real-spectra/ei-ms/LICENSE`).";
 
-/// A spectrum's ions scaled as whorl prepares them (base peak 1, ions under 0.5 % dropped),
-/// then to unit signal (sum 1), so that `w a + (1 - w) b` holds a share `w` of the signal
+/// The share of the base peak below which whorl's EI recipe drops an ion.
+fn low_abundance() -> f64 {
+    whorl::prepare::Recipe::default_for(Technique::MsEi).min_relative_abundance
+}
+
+/// A spectrum's ions scaled as whorl prepares them (base peak 1, ions under the recipe's
+/// low-abundance threshold dropped), then to unit signal (sum 1), so that `w a + (1 - w) b` holds a share `w` of the signal
 /// from `a`.
 fn unit_signal(points: &[(f64, f64)]) -> BTreeMap<i64, f64> {
     let top = points.iter().map(|p| p.1).fold(0.0, f64::max);
     let kept: Vec<(i64, f64)> = points
         .iter()
         .map(|&(x, y)| (x.round() as i64, y / top))
-        .filter(|&(_, r)| r >= 0.005)
+        .filter(|&(_, r)| r >= low_abundance())
         .collect();
     let sum: f64 = kept.iter().map(|k| k.1).sum();
     kept.into_iter().map(|(x, r)| (x, r / sum)).collect()
 }
 
 /// Two spectra mixed at share `w` of `a`, each ion then times 1 + noise x uniform(-1, 1)
-/// when `noise` is given, scaled to a base peak of 999.
+/// when `noise` is given, in percent of the base peak.
 fn mix(
     a: &[(f64, f64)],
     b: Option<&[(f64, f64)]>,
@@ -89,7 +94,7 @@ fn mix(
     }
     let top = ions.values().copied().fold(0.0, f64::max);
     ions.into_iter()
-        .map(|(mz, y)| (mz as f64, 999.0 * y / top))
+        .map(|(mz, y)| (mz as f64, 100.0 * y / top))
         .collect()
 }
 
@@ -356,7 +361,7 @@ fn main() {
     println!(
         "**Queries.** Pairs of stored spectra of two InChIKeys of one part (the split by InChIKey of \
          `examples/evaluate_real`), drawn from a seeded generator, mixed at shares of signal 1:1, 3:1 and 10:1: each \
-         spectrum scaled as whorl prepares it (base peak 1, ions under 0.5 % dropped) and then to unit signal (sum \
+         spectrum scaled as whorl prepares it (base peak 1, ions under {} % dropped) and then to unit signal (sum \
          of abundances 1), added with weights w and 1 - w, once clean and once with every ion of the sum times \
          1 + 0.1 u (u uniform in -1..1, a second measurement's scatter). Each mixture is prepared with the library's \
          recipe, searched against the whole set (both spectra are in it) and fitted with up to {} components. \
@@ -366,7 +371,9 @@ fn main() {
          InChIKey. **Co-elution**: the noisy pairs searched with every spectrum of the minor InChIKey left out of \
          the library, flagged when some ion is unexplained; the pure spectra should not be flagged. Uncertainties are \
          binomial standard errors; pairs share spectra, so the true uncertainty is larger.",
-        default.max_components, PURE
+        100.0 * low_abundance(),
+        default.max_components,
+        PURE
     );
     println!();
 

@@ -74,17 +74,20 @@ mod tests {
     #[test]
     fn binning_keeps_the_largest_and_drops_weak_ions() {
         let recipe = Recipe::default_for(Technique::MsEi);
+        // Abundances in percent of the base peak.
         let pts = [
-            (42.9, 20.0),
-            (43.1, 999.0),
-            (58.0, 250.0),
-            (59.0, 4.0),
-            (1200.0, 10.0),
+            (42.9, 2.0),
+            (43.1, 100.0),
+            (58.0, 25.0),
+            (59.0, 0.1),
+            (60.0, 0.3),
+            (1200.0, 1.0),
         ];
         let p = prepare(&recipe, &pts, &Conditions::default()).unwrap();
         let xs: Vec<f64> = p.peaks.iter().map(|p| p.x).collect();
-        // 4/999 = 0.4 % of the base peak is under the 0.5 % threshold.
-        assert_eq!(xs, [43.0, 58.0]);
+        // 0.1 % of the base peak is under the 0.2 % threshold; 0.3 % is kept.
+        assert_eq!(recipe.min_relative_abundance, 0.002);
+        assert_eq!(xs, [43.0, 58.0, 60.0]);
         assert_eq!(p.vector[42], 1.0);
         assert_eq!(p.warnings.len(), 1);
     }
