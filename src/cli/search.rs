@@ -63,6 +63,12 @@ pub struct SearchArgs {
     /// Also write a self-contained HTML report with overlay plots to FILE
     #[arg(long, value_name = "FILE")]
     pub html: Option<PathBuf>,
+    /// The sample or case id the HTML report is for (printed in its case section)
+    #[arg(long, value_name = "ID", requires = "html")]
+    pub sample: Option<String>,
+    /// The analyst named in the HTML report's case section
+    #[arg(long, value_name = "NAME", requires = "html")]
+    pub analyst: Option<String>,
     /// Also fit the unknown as a non-negative mixture of up to N library spectra (2 to 5),
     /// each further one found by searching what the ones before leave unexplained, and list
     /// them after the hit list (with --csv as a second table after a blank line; with --json
@@ -125,11 +131,19 @@ pub fn run(args: SearchArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     }
     if let Some(path) = &args.html {
         let references = whorl::search::references(&lib, &report, config.report.plots)?;
-        let html = whorl::report::search_page(&whorl::report::Query {
-            report: &report,
-            unknown: &unknown,
-            references: &references,
-        })?;
+        let provenance = whorl::search::provenance(&lib, &report.hits)?;
+        let html = whorl::report::search_page_for_case(
+            &whorl::report::Query {
+                report: &report,
+                unknown: &unknown,
+                references: &references,
+            },
+            &whorl::report::Case {
+                sample: args.sample.as_deref(),
+                analyst: args.analyst.as_deref(),
+                provenance: &provenance,
+            },
+        )?;
         std::fs::write(path, html)
             .with_context(|| format!("writing the HTML report to {}", path.display()))?;
         eprintln!("report written to {}", path.display());

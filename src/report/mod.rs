@@ -11,5 +11,7 @@ mod fixtures;
 pub mod html;
 pub mod plot;
 
-pub use html::{Query, escape, identify_page, page, query_section, search_page};
+pub use html::{
+    Case, Query, escape, identify_page, page, query_section, search_page, search_page_for_case,
+};
 pub use plot::{Series, overlay, spectra};

@@ -10,6 +10,7 @@ mod identify;
 mod mixture;
 mod plan;
 mod policy;
+mod provenance;
 mod rank;
 mod references;
 mod replay;
@@ -35,6 +36,7 @@ pub use mixture::{
 };
 pub use plan::{Given, Plan, Request, Unknown};
 pub use policy::{Objection, PolicyVerdict, judge};
+pub use provenance::{Provenance, provenance};
 pub use rank::{HitList, Ranking, search, search_exact, search_many};
 pub use references::references;
 pub use replay::{Replay, load_saved, replay};

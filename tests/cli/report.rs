@@ -64,9 +64,10 @@ fn search_writes_a_self_contained_report_with_everything_to_reproduce_it() {
         assert!(html.contains(needle), "report lacks {needle}");
     }
     assert!(html.contains(&whorl::report::escape(whorl::CAUTION)));
-    // Top 5 hits of the 7 IR spectra are plotted, and the hit table lists all of them.
+    // Top 5 hits of the 7 IR spectra are plotted; the hit table, and the case section's
+    // provenance table, list all of them.
     assert_eq!(html.matches("<svg").count(), 5);
-    assert_eq!(html.matches("<tr").count(), 1 + 7);
+    assert_eq!(html.matches("<tr").count(), 2 * (1 + 7));
     // Self-contained: nothing to fetch and nothing to run.
     let without_svg_namespace = html.replace("xmlns=\"http://www.w3.org/2000/svg\"", "");
     for forbidden in ["http:", "https:", "src=", "<script", "<link", "@import"] {
@@ -310,4 +311,62 @@ fn a_stored_name_with_control_characters_is_escaped_in_every_output() {
         );
         assert!(text.contains("evil\\u{1b}[31mred"), "{file} lost the name");
     }
+}
+
+#[test]
+fn the_report_names_the_case_and_where_each_hits_reference_comes_from() {
+    let lab = Lab::seeded_with(COMPOUNDS);
+    let u = unknown("u01.ir.csv");
+    lab.ok(&[
+        "search",
+        &u,
+        "-t",
+        "ir",
+        "--top",
+        "3",
+        "--html",
+        "r.html",
+        "--sample",
+        "S-<17>",
+        "--analyst",
+        "A. Nalyst",
+    ]);
+    let html = read(&lab, "r.html");
+    // The case comes before the search, its values escaped.
+    let case = html
+        .find("<section class=\"case\"")
+        .expect("a case section");
+    assert!(case < html.find("<section class=\"query\"").unwrap());
+    assert!(
+        html.contains("<dt>sample</dt><dd>S-&lt;17&gt;</dd>"),
+        "{html}"
+    );
+    assert!(html.contains("<dt>analyst</dt><dd>A. Nalyst</dd>"));
+    // One provenance row per hit, each as the library's own record of the reference says:
+    // its approver, revision and status from `whorl show`.
+    let report = lab.json(&["search", &u, "-t", "ir", "--top", "3"]);
+    let section = &html[case..html.find("<section class=\"query\"").unwrap()];
+    let rows: Vec<&str> = section.split("<tr><td class=\"num\">").skip(1).collect();
+    assert_eq!(rows.len(), 3, "{section}");
+    for (row, hit) in rows.iter().zip(report["hits"].as_array().unwrap()) {
+        let id = hit["spectrum_id"].as_i64().unwrap();
+        let shown = lab.json(&["show", &id.to_string()]);
+        assert!(
+            row.contains(&format!("<td class=\"num\">{id}</td>")),
+            "{row}"
+        );
+        assert!(
+            row.contains(shown["spectrum"]["status"].as_str().unwrap()),
+            "{row}"
+        );
+        let reviewer = shown["reviews"][0]["reviewer"].as_str().unwrap();
+        assert_eq!(reviewer, "r.second");
+        assert!(row.contains(&format!("<td>{reviewer}</td>")), "{row}");
+        assert!(
+            row.contains("asserted"),
+            "a CLI sign-off is asserted: {row}"
+        );
+    }
+    // Without a report there is nothing to name the case in.
+    lab.fails(&["search", &u, "-t", "ir", "--sample", "S-1"], 2);
 }

@@ -18,7 +18,7 @@ use std::fmt::Write as _;
 
 use crate::error::Result;
 use crate::prepare::Prepared;
-use crate::search::Report;
+use crate::search::{Provenance, Report};
 
 /// One query to render: its report, the unknown as prepared, and the prepared references of
 /// the first hits in rank order (`references[i]` belongs to `report.hits[i]`; hits beyond
@@ -52,6 +52,74 @@ pub fn search_page(query: &Query<'_>) -> Result<String> {
         &r.searched_at,
         &[section],
     ))
+}
+
+/// The case a report is written for, as the analyst gives it, and where each hit's reference
+/// comes from.
+#[derive(Debug, Clone, Copy)]
+pub struct Case<'a> {
+    /// Sample or case id.
+    pub sample: Option<&'a str>,
+    /// The analyst who ran the search.
+    pub analyst: Option<&'a str>,
+    /// The provenance of the hits' references, in rank order.
+    pub provenance: &'a [Provenance],
+}
+
+/// A whole page for one search written for a case: the case section (sample, analyst, the
+/// provenance of each hit's reference) before the search's own section.
+pub fn search_page_for_case(query: &Query<'_>, case: &Case<'_>) -> Result<String> {
+    let page = search_page(query)?;
+    let at = page
+        .find("<section class=\"query\"")
+        .expect("a search page has its query section");
+    Ok(format!(
+        "{}{}{}",
+        &page[..at],
+        case_section(case),
+        &page[at..]
+    ))
+}
+
+/// The case section: the case facts, then a row per hit with its reference's provenance.
+fn case_section(case: &Case<'_>) -> String {
+    let given = |v: Option<&str>| match v {
+        Some(v) => escape(v),
+        None => "<span class=\"muted\">not given</span>".to_string(),
+    };
+    let mut s = String::from("<section class=\"case\" id=\"case\">\n<h2>Case</h2>\n");
+    w(
+        &mut s,
+        format_args!(
+            "<dl class=\"facts\">\n<dt>sample</dt><dd>{}</dd>\n<dt>analyst</dt><dd>{}</dd>\n</dl>\n",
+            given(case.sample),
+            given(case.analyst)
+        ),
+    );
+    s.push_str("<h3>Where the hits' references come from</h3>\n<table class=\"hits provenance\">\n<thead><tr><th class=\"num\">rank</th><th>compound</th><th class=\"num\">spectrum</th><th>status</th><th class=\"num\">revision</th><th>approved by</th><th>approved at</th><th>sign-off</th></tr></thead>\n<tbody>\n");
+    for p in case.provenance {
+        let kind = if p.detail.is_empty() {
+            escape(&p.kind)
+        } else {
+            format!("{}: {}", escape(&p.kind), escape(&p.detail))
+        };
+        w(
+            &mut s,
+            format_args!(
+                "<tr><td class=\"num\">{}</td><td class=\"name\">{}</td><td class=\"num\">{}</td><td>{}</td><td class=\"num\">{}</td><td>{}</td><td>{}</td><td class=\"name\">{}</td></tr>\n",
+                p.rank,
+                escape(&p.name),
+                p.spectrum_id,
+                escape(&p.status),
+                p.revision,
+                escape(p.approved_by.as_deref().unwrap_or("")),
+                escape(p.approved_at.as_deref().unwrap_or("")),
+                kind
+            ),
+        );
+    }
+    s.push_str("</tbody>\n</table>\n</section>\n");
+    s
 }
 
 /// Wraps sections in a complete page with the caution at the top and the bottom.
@@ -143,6 +211,7 @@ pub(super) fn w(s: &mut String, args: std::fmt::Arguments<'_>) {
 
 /// The page's look: plain, print-friendly, numbers in tabular figures.
 const STYLE: &str = r#":root { --ink: #1a1a1a; --muted: #5c5c5c; --rule: #d0d0d0; --tint: #f4f4f2; }
+.muted { color: var(--muted); }
 * { box-sizing: border-box; }
 body { margin: 0; color: var(--ink); background: #fff; font: 16px/1.5 system-ui, "DejaVu Sans", "Liberation Sans", sans-serif; }
 main { max-width: 1080px; margin: 0 auto; padding: 24px 28px 48px; }

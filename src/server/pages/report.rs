@@ -7,7 +7,6 @@
 //! keeps figures and the signature block whole, so the browser's print to PDF gives a clean
 //! document.
 
-use std::collections::HashMap;
 use std::sync::Arc;
 
 use askama::Template;
@@ -84,70 +83,23 @@ struct ReportPage {
     printed_at: String,
 }
 
-/// The provenance of each hit's reference, read from its sign-offs and their events.
+/// The provenance of each hit's reference (`whorl::search::provenance`), its times as the
+/// pages write them.
 fn provenance(lib: &Library, s: &Searched) -> Result<Vec<Provenance>, ApiError> {
-    let mut out = Vec::new();
-    for h in &s.report.hits {
-        let record = lib.spectrum(h.spectrum_id)?;
-        let approval = lib
-            .reviews(h.spectrum_id)?
-            .into_iter()
-            .rev()
-            .find(|r| r.decision == "approved" && r.revision == record.revision);
-        // The identity kind of a local sign-off is its event's: the review event of this
-        // spectrum that records the same revision and time.
-        let kinds: HashMap<(i64, String), String> = lib
-            .events(Some(&format!("spectrum:{}", h.spectrum_id)))?
-            .into_iter()
-            .filter(|e| e.action == "review")
-            .filter_map(|e| {
-                let revision = e.payload["revision"].as_i64()?;
-                let at = e.payload["at"].as_str()?.to_string();
-                Some(((revision, at), e.identity))
-            })
-            .collect();
-        let (approved_by, approved_at, kind, detail) = match approval {
-            Some(r) => match &r.imported_from {
-                Some(from) => (
-                    r.reviewer.clone(),
-                    when(&r.at),
-                    "imported".to_string(),
-                    format!(
-                        "signed off in another library ({from}); pending here until approved locally"
-                    ),
-                ),
-                None => {
-                    let kind = kinds
-                        .get(&(r.revision, r.at.clone()))
-                        .cloned()
-                        .unwrap_or_else(|| "asserted".to_string());
-                    (r.reviewer.clone(), when(&r.at), kind, String::new())
-                }
-            },
-            None => (
-                String::new(),
-                String::new(),
-                "none".to_string(),
-                format!(
-                    "revision {} is {}: nobody has approved it",
-                    record.revision,
-                    record.status.name()
-                ),
-            ),
-        };
-        out.push(Provenance {
-            rank: h.rank,
-            name: h.name.clone(),
-            id: h.spectrum_id,
-            status: record.status.name().to_string(),
-            revision: record.revision,
-            approved_by,
-            approved_at,
-            kind,
-            detail,
-        });
-    }
-    Ok(out)
+    Ok(whorl::search::provenance(lib, &s.report.hits)?
+        .into_iter()
+        .map(|p| Provenance {
+            rank: p.rank,
+            name: p.name,
+            id: p.spectrum_id,
+            status: p.status,
+            revision: p.revision,
+            approved_by: p.approved_by.unwrap_or_default(),
+            approved_at: p.approved_at.as_deref().map(when).unwrap_or_default(),
+            kind: p.kind,
+            detail: p.detail,
+        })
+        .collect())
 }
 
 /// A field from the query, trimmed and cut to `FIELD_MAX` characters, else `default`.
