@@ -1,4 +1,4 @@
-//! `/api/v1/spectra`: list and show spectra; withdraw one (curators); sign one off (signers,
+//! `/api/v1/spectra`: list and show spectra; withdraw and reinstate one (curators); sign one off (signers,
 //! with the password given again at signing).
 
 use axum::Json;
@@ -35,6 +35,12 @@ pub fn router() -> Routes {
             "/api/v1/spectra/{id}/withdraw",
             Access::Needs(Capability::Curate),
             post(withdraw),
+        )
+        .add(
+            "POST",
+            "/api/v1/spectra/{id}/reinstate",
+            Access::Needs(Capability::Curate),
+            post(reinstate),
         )
         .add(
             "POST",
@@ -242,6 +248,37 @@ pub async fn withdraw(
         .await?;
     Ok(Json(
         json!({ "spectrum": id, "status": "withdrawn", "by": caller.account.name }),
+    ))
+}
+
+/// Why a withdrawn spectrum comes back.
+#[derive(Deserialize, utoipa::ToSchema)]
+pub struct Reinstatement {
+    /// The reason, kept in the audit trail beside the `reinstate` event.
+    pub reason: String,
+}
+
+/// Brings a withdrawn spectrum back as the signed-in account, as `whorl reinstate` does: it
+/// returns pending a new sign-off, its withdrawal reason kept in the audit trail.
+#[utoipa::path(post, path = "/api/v1/spectra/{id}/reinstate", tag = "spectra",
+    params(("id" = i64, Path, description = "Spectrum id")), request_body = Reinstatement,
+    responses((status = 200, description = "Reinstated, pending a new sign-off"),
+        (status = 400, description = "No reason, or the spectrum is not withdrawn"),
+        (status = 403, description = "The role may not curate"),
+        (status = 404, description = "No such spectrum")))]
+pub async fn reinstate(
+    State(state): State<AppState>,
+    Allowed(caller, ..): Allowed<ToCurate>,
+    id: Result<Path<i64>, PathRejection>,
+    body: Result<Json<Reinstatement>, JsonRejection>,
+) -> Result<Json<Value>, ApiError> {
+    let (Path(id), Json(body)) = (id?, body?);
+    let by = caller.account.name.clone();
+    state
+        .write_as(move |lib| Ok(lib.reinstate(id, &by, &body.reason)?))
+        .await?;
+    Ok(Json(
+        json!({ "spectrum": id, "status": "pending", "by": caller.account.name }),
     ))
 }
 

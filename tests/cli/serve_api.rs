@@ -107,7 +107,12 @@ fn pending(lab: &Lab, n: usize) -> i64 {
 /// The concrete path a valid request of a route goes to, after making what it needs (a
 /// pending spectrum submitted by someone else, for the routes on one spectrum).
 fn concrete_for(lab: &Lab, path: &str, n: usize) -> String {
-    if path.contains("{id}") {
+    if path.ends_with("/reinstate") {
+        // Only a withdrawn spectrum can be reinstated.
+        let id = pending(lab, n).to_string();
+        lab.ok(&["withdraw", &id, "--reason", "matrix", "--by", "t.tester"]);
+        path.replace("{id}", &id)
+    } else if path.contains("{id}") {
         path.replace("{id}", &pending(lab, n).to_string())
     } else {
         path.replace("{name}", "t.matrix")
@@ -165,6 +170,13 @@ fn valid_request(
             ],
         ),
         ("POST", "/api/v1/spectra/{id}/withdraw") => call(
+            server,
+            method,
+            concrete,
+            auth,
+            Some(json!({ "reason": "matrix" })),
+        ),
+        ("POST", "/api/v1/spectra/{id}/reinstate") => call(
             server,
             method,
             concrete,
@@ -585,6 +597,80 @@ fn identify_find_import_revise_and_check_answer_as_the_command_line_does() {
         Some(json!({ "reason": "x" })),
     );
     assert_eq!(r.status, 404, "{}", r.body);
+
+    // reinstate: a spectrum withdrawn through the API comes back pending through the API,
+    // recorded as the signed-in curator; a spectrum that is not withdrawn, or no reason, is
+    // refused with nothing changed.
+    let w = call(
+        &server,
+        "POST",
+        &format!("/api/v1/spectra/{added}/withdraw"),
+        Auth::Bearer(&curator),
+        Some(json!({ "reason": "wrong lot" })),
+    );
+    assert_eq!(w.status, 200, "{}", w.body);
+    assert_eq!(
+        lab.json(&["show", &added.to_string()])["spectrum"]["status"],
+        "withdrawn"
+    );
+    for (body, token, status) in [
+        (json!({ "reason": " " }), &curator, 400),
+        (json!({ "reason": "lot confirmed" }), &submitter, 403),
+    ] {
+        let before = lab.state();
+        let r = call(
+            &server,
+            "POST",
+            &format!("/api/v1/spectra/{added}/reinstate"),
+            Auth::Bearer(token),
+            Some(body),
+        );
+        assert_eq!(r.status, status, "{}", r.body);
+        assert_eq!(lab.state(), before);
+    }
+    let r = call(
+        &server,
+        "POST",
+        &format!("/api/v1/spectra/{added}/reinstate"),
+        Auth::Bearer(&curator),
+        Some(json!({ "reason": "lot confirmed by the supplier" })),
+    );
+    assert_eq!(r.status, 200, "{}", r.body);
+    assert_eq!(r.body["status"], "pending");
+    let shown = lab.json(&["show", &added.to_string()]);
+    assert_eq!(shown["spectrum"]["status"], "pending", "{shown}");
+    let last = lab
+        .json(&["log", &added.to_string()])
+        .as_array()
+        .unwrap()
+        .last()
+        .cloned()
+        .unwrap();
+    assert_eq!(
+        (
+            last["action"].as_str(),
+            last["identity"].as_str(),
+            last["actor"].as_str()
+        ),
+        (Some("reinstate"), Some("signed-in"), Some("c.curator")),
+        "{last}"
+    );
+    let again = call(
+        &server,
+        "POST",
+        &format!("/api/v1/spectra/{added}/reinstate"),
+        Auth::Bearer(&curator),
+        Some(json!({ "reason": "twice" })),
+    );
+    assert_eq!(again.status, 400, "{}", again.body);
+    assert!(
+        again.body["message"]
+            .as_str()
+            .unwrap()
+            .contains("not withdrawn"),
+        "{}",
+        again.body
+    );
 
     // check: the report of `whorl check --json`, clean.
     let c = call(
