@@ -712,12 +712,10 @@ fn spectra_stored_after_the_cache_are_scored_beside_it_with_the_exact_hits() {
     assert_ne!(inode_of(&file), built);
     check_all(&lib);
     let built = inode_of(&file);
-    lib.store(
-        &stage_all(&lib, &near[..1], Technique::Ir, "again"),
-        "t",
-        false,
-    )
-    .unwrap();
+    // A spectrum of its own (the near copies are stored already: "already present").
+    let fresh = vec![ir_points(&mut rng)];
+    lib.store(&stage_all(&lib, &fresh, Technique::Ir, "fresh"), "t", false)
+        .unwrap();
     assert_eq!(
         lib.vector_cache_and_tail(Technique::Ir, Kind::Centred)
             .unwrap()
