@@ -93,7 +93,7 @@ impl Library {
         &self,
         technique: Technique,
         kind: Kind,
-    ) -> Result<(Arc<VectorCache>, Vec<(i64, Status)>)> {
+    ) -> Result<(Arc<VectorCache>, Tail)> {
         if let Some(found) = self.usable_cache(technique, kind, true)? {
             return Ok(found);
         }
@@ -115,7 +115,7 @@ impl Library {
         technique: Technique,
         kind: Kind,
         tail: bool,
-    ) -> Result<Option<(Arc<VectorCache>, Vec<(i64, Status)>)>> {
+    ) -> Result<Option<(Arc<VectorCache>, Tail)>> {
         let snapshot = self.snapshot()?;
         let memo = &self.caches.memo;
         let mut older = memo.borrow().get(&(technique, kind)).cloned();
@@ -327,6 +327,9 @@ fn changed_while_building() -> Error {
         what: "vector cache".into(),
     }
 }
+
+/// The spectra of one technique stored since a cache was built: id and status, ascending.
+pub type Tail = Vec<(i64, Status)>;
 
 /// One cache build at a time in a process (see `Library::vector_cache_and_tail`).
 static BUILDING: std::sync::Mutex<()> = std::sync::Mutex::new(());
