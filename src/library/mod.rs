@@ -36,7 +36,7 @@ pub use accounts::{
 pub use backup::BackupReport;
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
-pub use caches::BuildProgress;
+pub use caches::{BuildProgress, tail_limit};
 pub use check::{CheckRecord, CheckReport, Finding, RECORDED_FINDINGS};
 pub use curation::{MetadataPatch, RevisionInfo, StatusChange};
 pub use events::{ASSERTED, Event, SIGNED_IN};
@@ -215,6 +215,20 @@ impl Library {
     /// Opens an existing library, migrating an older schema forward and rebuilding the text
     /// index if it is behind the database.
     pub fn open(root: &Path) -> Result<Library> {
+        Library::open_with(root, true)
+    }
+
+    /// [`Library::open`] without rebuilding a text index that is behind: for a server's
+    /// reading requests, which would otherwise each rebuild the whole index in the moment
+    /// between a write's commit and its index update (or after an index update another writer
+    /// kept from its lock). Metadata queries answered meanwhile say the index is behind
+    /// ([`Library::text_index_behind`]); the server's next write, or any command, brings it up
+    /// to date.
+    pub fn open_without_text_refresh(root: &Path) -> Result<Library> {
+        Library::open_with(root, false)
+    }
+
+    fn open_with(root: &Path, refresh_text: bool) -> Result<Library> {
         let db = root.join(DATABASE_FILE);
         if !db.is_file() {
             return Err(Error::Library {
@@ -251,7 +265,7 @@ impl Library {
             text_deferred: Default::default(),
             caches: Default::default(),
         };
-        if lib.refresh_text_index().is_err() {
+        if refresh_text && lib.refresh_text_index().is_err() {
             lib.text_behind.set(true);
         }
         // Temporary cache files of builds killed before they finished (derived data).

@@ -5,6 +5,7 @@ use std::path::PathBuf;
 use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
+use whorl::cache::VectorCache;
 use whorl::library::Library;
 
 use super::error::ApiError;
@@ -61,6 +62,14 @@ pub struct AppState {
     pub sessions: Arc<Mutex<HashMap<String, Session>>>,
     /// Failed sign-ins by `account:KEY` and `address:IP`.
     pub failures: Arc<Mutex<HashMap<String, Failures>>>,
+    /// The vector caches the requests have mapped, the newest of each technique and kind,
+    /// handed to the next request's `Library` (each is checked against the database before
+    /// use, as always).
+    pub caches: Arc<Mutex<Vec<Arc<VectorCache>>>>,
+    /// Held by each write for its whole length: the server's writers take SQLite's write lock
+    /// one after another anyway, and so never contend for the text index's writer lock (a
+    /// writer kept from it would leave the index behind for everyone).
+    pub writes: Arc<Mutex<()>>,
 }
 
 impl AppState {
@@ -70,22 +79,60 @@ impl AppState {
             options: Arc::new(options),
             sessions: Arc::default(),
             failures: Arc::default(),
+            caches: Arc::default(),
+            writes: Arc::default(),
         }
     }
 
     /// Runs `f` on a library opened for this request, on tokio's blocking pool: SQLite and the
     /// scan never run on the async threads. Each request opens its own `Library`, so it sees
-    /// the recipes and caches as they are now, also after a CLI command changed them; readers
-    /// never wait (WAL) and writers take the lock as the CLI does.
+    /// the recipes as they are now, also after a CLI command changed them; readers never wait
+    /// (WAL) and writers take the lock as the CLI does. The vector caches earlier requests
+    /// mapped are handed over (and checked against the database before use), so a search
+    /// does not map a cache file and verify its checksums again.
+    ///
+    /// A reading request does not rebuild a text index that is behind (see
+    /// [`Library::open_without_text_refresh`]); writes do, one at a time.
     pub async fn with_library<T, F>(&self, f: F) -> Result<T, ApiError>
     where
         T: Send + 'static,
         F: FnOnce(&mut Library) -> Result<T, ApiError> + Send + 'static,
     {
+        self.run(false, f).await
+    }
+
+    async fn run<T, F>(&self, write: bool, f: F) -> Result<T, ApiError>
+    where
+        T: Send + 'static,
+        F: FnOnce(&mut Library) -> Result<T, ApiError> + Send + 'static,
+    {
         let root = self.options.library.clone();
+        let shared = self.caches.clone();
+        let writes = self.writes.clone();
         tokio::task::spawn_blocking(move || {
-            let mut lib = Library::open(&root)?;
-            let out = f(&mut lib)?;
+            let _one = write.then(|| writes.lock().unwrap_or_else(|e| e.into_inner()));
+            let mut lib = if write {
+                Library::open(&root)?
+            } else {
+                Library::open_without_text_refresh(&root)?
+            };
+            lib.adopt_caches(shared.lock().unwrap_or_else(|e| e.into_inner()).clone());
+            let out = f(&mut lib);
+            {
+                let mut kept = shared.lock().unwrap_or_else(|e| e.into_inner());
+                for c in lib.mapped_caches() {
+                    match kept
+                        .iter_mut()
+                        .find(|k| (k.technique, k.kind) == (c.technique, c.kind))
+                    {
+                        // Another request may have kept a newer one meanwhile.
+                        Some(k) if k.built_from.generation <= c.built_from.generation => *k = c,
+                        Some(_) => {}
+                        None => kept.push(c),
+                    }
+                }
+            }
+            let out = out?;
             // `[audit] witness` in whorl.toml: a write's new head goes to the witness file
             // (nothing is appended when the request wrote nothing).
             if let Some(file) = whorl::config::Config::load(&root)?.audit.witness {
@@ -103,7 +150,7 @@ impl AppState {
         T: Send + 'static,
         F: FnOnce(&mut Library) -> Result<T, ApiError> + Send + 'static,
     {
-        self.with_library(move |lib| {
+        self.run(true, move |lib| {
             lib.act_signed_in()?;
             f(lib)
         })
