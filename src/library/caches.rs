@@ -48,10 +48,14 @@ impl Library {
         *self.caches.progress.borrow_mut() = Some(Box::new(f));
     }
 
-    /// The vector caches this library has mapped, to hand to another `Library` of the same
-    /// folder with [`Library::adopt_caches`] (a server opens one per request).
-    pub fn mapped_caches(&self) -> Vec<Arc<VectorCache>> {
-        self.caches.memo.borrow().values().cloned().collect()
+    /// The vector caches this library has mapped, handed over to another `Library` of the same
+    /// folder with [`Library::adopt_caches`] (a server hands them from request to request):
+    /// this library lets go of them, so a handle kept idle between requests keeps no mapping
+    /// of a cache file that a rebuild has since replaced.
+    pub fn release_caches(&self) -> Vec<Arc<VectorCache>> {
+        std::mem::take(&mut *self.caches.memo.borrow_mut())
+            .into_values()
+            .collect()
     }
 
     /// Starts from caches another `Library` of the same folder mapped: each is still checked
