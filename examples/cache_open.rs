@@ -51,6 +51,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let snapshot = Snapshot {
         fingerprint: "0".repeat(64),
         generation: 1,
+        sum: [0; 32],
+        last_id: 0,
     };
     let built = b.finish(&snapshot)?;
     let build_s = t0.elapsed().as_secs_f64();

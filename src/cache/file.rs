@@ -29,6 +29,13 @@ pub struct VectorCache {
     pub integer_x: bool,
     /// Where the file lies (`None` when built in memory).
     pub path: Option<PathBuf>,
+    /// The file's size and modification time when it was opened (`None` when built here).
+    stamp: Option<(u64, std::time::SystemTime)>,
+}
+
+/// A file's size and modification time: a cache file replaced by another build has another.
+fn stamp_of(meta: &std::fs::Metadata) -> Option<(u64, std::time::SystemTime)> {
+    Some((meta.len(), meta.modified().ok()?))
 }
 
 impl VectorCache {
@@ -182,9 +189,20 @@ impl VectorCache {
         self.layout.len
     }
 
-    /// True when the cache was built from this state of the library.
+    /// True when this cache was opened from the file now at `path` (the file was not
+    /// replaced since), so that opening it again would give the same cache.
+    pub fn is_file_at(&self, path: &Path) -> bool {
+        self.stamp.is_some()
+            && std::fs::metadata(path)
+                .ok()
+                .is_some_and(|m| stamp_of(&m) == self.stamp)
+    }
+
+    /// True when the cache was built from this state of the library (same fingerprint and
+    /// generation).
     pub fn is_current(&self, snapshot: &Snapshot) -> bool {
-        &self.built_from == snapshot
+        self.built_from.fingerprint == snapshot.fingerprint
+            && self.built_from.generation == snapshot.generation
     }
 
     /// A cache over a map a [`super::Builder`] has filled.
@@ -209,6 +227,7 @@ impl VectorCache {
             composite,
             integer_x,
             path: None,
+            stamp: None,
         }
     }
 
@@ -226,6 +245,7 @@ impl VectorCache {
             hint: "the vector cache is derived data: delete the cache folder, or run `whorl check`, to rebuild it".into(),
         })?;
         c.path = Some(path.to_path_buf());
+        c.stamp = f.metadata().ok().as_ref().and_then(stamp_of);
         Ok(c)
     }
 }
@@ -305,6 +325,10 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         reverse: false,
     };
     let integer_x = h[FLAGS_AT] == 1;
+    let sum: [u8; 32] = h[CONTENT_SUM_AT..CONTENT_SUM_AT + 32]
+        .try_into()
+        .expect("32 bytes");
+    let last_id = u64_at(h, LAST_ID_AT) as i64;
     let c = VectorCache {
         map,
         layout,
@@ -314,10 +338,13 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         built_from: Snapshot {
             fingerprint,
             generation,
+            sum,
+            last_id,
         },
         composite,
         integer_x,
         path: None,
+        stamp: None,
     };
     // The peak offsets must be ascending and end at nnz, or a row would read past its peaks.
     let off: &[u64] = section(&c.map, layout.offsets[POFF], rows + 1);
@@ -367,6 +394,8 @@ mod tests {
         Snapshot {
             fingerprint: "f".repeat(64),
             generation: 7,
+            sum: [3; 32],
+            last_id: 41,
         }
     }
 

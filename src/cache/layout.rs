@@ -4,7 +4,8 @@
 //! header   1024 bytes: magic, format version, kind, technique, grid length (dim), padded
 //!          row length (stride), rows, peaks (nnz), generation, fingerprint, composite
 //!          exponents, section offsets, flags (byte 400), coarse factor (bytes 404-407),
-//!          the XXH3-64 checksum of every section (bytes 512-671, see [`checksum`]) and,
+//!          the XXH3-64 checksum of every section (bytes 512-671, see [`checksum`]), the
+//!          snapshot's content sum (bytes 680-711) and highest spectrum id (712-719) and,
 //!          last, the checksum of the header itself (bytes 1016-1023, over bytes 0-1015)
 //! ids      i64 x rows       spectrum ids, ascending
 //! status   u8  x rows       0 pending, 1 verified
@@ -48,7 +49,7 @@ use super::Snapshot;
 /// The cache folder inside a library folder.
 pub const CACHE_DIR: &str = "cache";
 /// The version of the cache file layout; a file of another version is rebuilt.
-pub const FORMAT_VERSION: u32 = 5;
+pub const FORMAT_VERSION: u32 = 6;
 pub(super) const MAGIC: &[u8; 8] = b"WHORLVC\0";
 pub(super) const HEADER: usize = 1024;
 /// Where the header keeps the checksum of each section (u64, in section order).
@@ -61,6 +62,10 @@ pub(super) const SECTIONS: usize = 20;
 /// coarse block size (u32), after the section offsets.
 pub(super) const FLAGS_AT: usize = 400;
 pub(super) const BLOCK_AT: usize = 404;
+/// Where the header keeps the content sum of the snapshot (32 bytes) and the library's
+/// highest spectrum id at the build (i64), after the section checksums.
+pub(super) const CONTENT_SUM_AT: usize = 680;
+pub(super) const LAST_ID_AT: usize = 712;
 /// Nominal m/z values an inverted index covers (peak bins are u16).
 pub(super) const MZ_BINS: usize = 1 << 16;
 /// The block sizes a cache may average its coarse rows over, coarsest first.
@@ -267,6 +272,8 @@ pub(super) fn write_header(map: &mut [u8], c: &Tag<'_>) {
     }
     h[FLAGS_AT] = u8::from(c.integer_x);
     h[BLOCK_AT..BLOCK_AT + 4].copy_from_slice(&(l.block as u32).to_le_bytes());
+    h[CONTENT_SUM_AT..CONTENT_SUM_AT + 32].copy_from_slice(&snapshot.sum);
+    h[LAST_ID_AT..LAST_ID_AT + 8].copy_from_slice(&(snapshot.last_id as u64).to_le_bytes());
     h[0..8].copy_from_slice(MAGIC);
     // The checksums go in last: the sections', then the header's over everything before it.
     let sums = section_sums(map, &l);

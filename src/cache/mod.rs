@@ -33,13 +33,19 @@ use crate::spectrum::Status;
 use crate::technique::Technique;
 
 /// The state of the searchable content a cache was built from: the library fingerprint and
-/// generation, read together with the rows.
+/// generation, and what a library needs to tell whether spectra stored since are all that
+/// changed (the content sum under the fingerprint and the highest spectrum id of any
+/// technique), read together with the rows.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Snapshot {
     /// The library fingerprint.
     pub fingerprint: String,
     /// The generation counter.
     pub generation: i64,
+    /// The content sum the fingerprint was made from (see `library::fingerprint`).
+    pub sum: [u8; 32],
+    /// The highest spectrum id in the library, of any technique and status (0 when empty).
+    pub last_id: i64,
 }
 
 /// One searchable spectrum as the library hands it to a [`Builder`].

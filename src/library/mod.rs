@@ -36,7 +36,7 @@ pub use accounts::{
 pub use backup::BackupReport;
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
-pub use caches::BuildProgress;
+pub use caches::{BuildProgress, tail_limit};
 pub use check::{CheckRecord, CheckReport, Finding, RECORDED_FINDINGS};
 pub use curation::{MetadataPatch, RevisionInfo, StatusChange};
 pub use events::{ASSERTED, Event, SIGNED_IN};
@@ -89,6 +89,8 @@ pub struct Library {
     text_deferred: std::cell::RefCell<Option<(Vec<i64>, i64)>>,
     /// Vector caches mapped by this process (derived data, see `crate::cache`).
     caches: caches::Caches,
+    /// SQLite's `PRAGMA data_version` when [`Library::catch_up`] last read the recipes.
+    seen_version: std::cell::Cell<Option<i64>>,
 }
 
 /// The default recipe of every technique.
@@ -151,6 +153,7 @@ impl Library {
             text_behind: Default::default(),
             text_deferred: Default::default(),
             caches: Default::default(),
+            seen_version: Default::default(),
         };
         lib.initialise(actor, recipes)?;
         Ok(lib)
@@ -174,6 +177,7 @@ impl Library {
             text_behind: Default::default(),
             text_deferred: Default::default(),
             caches: Default::default(),
+            seen_version: Default::default(),
         };
         lib.initialise(actor, recipes)?;
         Ok(lib)
@@ -215,6 +219,54 @@ impl Library {
     /// Opens an existing library, migrating an older schema forward and rebuilding the text
     /// index if it is behind the database.
     pub fn open(root: &Path) -> Result<Library> {
+        Library::open_with(root, true)
+    }
+
+    /// [`Library::open`] without rebuilding a text index that is behind: for a server's
+    /// reading requests, which would otherwise each rebuild the whole index in the moment
+    /// between a write's commit and its index update (or after an index update another writer
+    /// kept from its lock). Metadata queries answered meanwhile say the index is behind
+    /// ([`Library::text_index_behind`]); the server's next write, or any command, brings it up
+    /// to date.
+    pub fn open_without_text_refresh(root: &Path) -> Result<Library> {
+        Library::open_with(root, false)
+    }
+
+    /// Makes a `Library` kept open from one server request to the next see the library as
+    /// it is now, as a fresh [`Library::open_without_text_refresh`] would: when another
+    /// connection has committed since (SQLite's `PRAGMA data_version` moved) the schema version
+    /// is checked again and the recipes are read again, and the text index's reader moves to
+    /// the index's newest commit. Nothing is rebuilt; the vector caches are checked against
+    /// the database at each use anyway. Refused while a transaction is open. After an error
+    /// the handle should be dropped and the library opened afresh.
+    pub fn catch_up(&mut self) -> Result<()> {
+        let stale = |reason: String| Error::Library {
+            path: self.root.clone().unwrap_or_default(),
+            reason,
+            hint: "open the library again".into(),
+        };
+        if !self.conn.is_autocommit() {
+            return Err(stale("a transaction is still open on this handle".into()));
+        }
+        let version: i64 = self
+            .conn
+            .query_row("PRAGMA data_version", [], |r| r.get(0))?;
+        if self.seen_version.get() != Some(version) {
+            let schema = schema::version(&self.conn)?;
+            if schema != SCHEMA_VERSION {
+                return Err(stale(format!(
+                    "schema version {schema} since it was opened; this handle reads {SCHEMA_VERSION}"
+                )));
+            }
+            self.recipes = state::load_recipes(&self.conn)?;
+            self.seen_version.set(Some(version));
+        }
+        self.text.catch_up()?;
+        self.text_behind.set(false);
+        Ok(())
+    }
+
+    fn open_with(root: &Path, refresh_text: bool) -> Result<Library> {
         let db = root.join(DATABASE_FILE);
         if !db.is_file() {
             return Err(Error::Library {
@@ -250,8 +302,9 @@ impl Library {
             text_behind: Default::default(),
             text_deferred: Default::default(),
             caches: Default::default(),
+            seen_version: Default::default(),
         };
-        if lib.refresh_text_index().is_err() {
+        if refresh_text && lib.refresh_text_index().is_err() {
             lib.text_behind.set(true);
         }
         // Temporary cache files of builds killed before they finished (derived data).

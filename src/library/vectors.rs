@@ -9,11 +9,38 @@ use crate::library::records::{coverage_from, f32_from_bytes};
 use crate::technique::Technique;
 
 impl Library {
-    /// The fingerprint and generation, read together.
+    /// The fingerprint, generation, content sum and highest spectrum id, read together.
     pub fn snapshot(&self) -> Result<Snapshot> {
+        let tx = self.conn.unchecked_transaction()?;
+        let snapshot = self.snapshot_in(&tx)?;
+        tx.finish()?;
+        Ok(snapshot)
+    }
+
+    /// [`Library::snapshot`] inside a read transaction already open.
+    pub(super) fn snapshot_in(&self, tx: &rusqlite::Connection) -> Result<Snapshot> {
+        let sum: String = tx.query_row(
+            "SELECT value FROM setting WHERE key = 'content_sum'",
+            [],
+            |r| r.get(0),
+        )?;
+        let generation: String = tx.query_row(
+            "SELECT value FROM setting WHERE key = 'generation'",
+            [],
+            |r| r.get(0),
+        )?;
+        let last_id: i64 = tx.query_row("SELECT coalesce(max(id), 0) FROM spectrum", [], |r| {
+            r.get(0)
+        })?;
+        let sum = crate::library::ContentSum::from_hex(&sum).unwrap_or_default();
         Ok(Snapshot {
-            fingerprint: self.fingerprint()?,
-            generation: self.generation()?,
+            fingerprint: fingerprint(
+                &serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?,
+                sum,
+            ),
+            generation: generation.parse().unwrap_or(0),
+            sum: sum.0,
+            last_id,
         })
     }
 
@@ -28,23 +55,7 @@ impl Library {
         row: &mut dyn FnMut(VectorRow) -> Result<()>,
     ) -> Result<Snapshot> {
         let tx = self.conn.unchecked_transaction()?;
-        let sum: String = tx.query_row(
-            "SELECT value FROM setting WHERE key = 'content_sum'",
-            [],
-            |r| r.get(0),
-        )?;
-        let generation: String = tx.query_row(
-            "SELECT value FROM setting WHERE key = 'generation'",
-            [],
-            |r| r.get(0),
-        )?;
-        let snapshot = Snapshot {
-            fingerprint: fingerprint(
-                &serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?,
-                crate::library::ContentSum::from_hex(&sum).unwrap_or_default(),
-            ),
-            generation: generation.parse().unwrap_or(0),
-        };
+        let snapshot = self.snapshot_in(&tx)?;
         let n: i64 = tx.query_row(
             "SELECT count(*) FROM spectrum WHERE technique = ?1 AND status != 'withdrawn'",
             [technique.name()],

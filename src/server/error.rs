@@ -55,6 +55,17 @@ impl ApiError {
         ApiError::new(StatusCode::BAD_REQUEST, "input", message, hint)
     }
 
+    /// 408: the request took longer than `--request-timeout` before any write of it began
+    /// (a write that has begun is answered with its outcome), so nothing was written.
+    pub fn timed_out() -> ApiError {
+        ApiError::new(
+            StatusCode::REQUEST_TIMEOUT,
+            "timeout",
+            "the request took longer than this server allows; nothing it asked for was written",
+            "send less per request, or ask the administrator about --request-timeout",
+        )
+    }
+
     /// 401: no valid session or token.
     pub fn unauthorized() -> ApiError {
         ApiError::new(
@@ -166,13 +177,7 @@ where
             "send less per request (the server's --max-body), e.g. a manifest split in parts",
         )
         .into_response(),
-        StatusCode::REQUEST_TIMEOUT if !is_json => ApiError::new(
-            StatusCode::REQUEST_TIMEOUT,
-            "timeout",
-            "the request took longer than this server allows",
-            "send less per request, or ask the administrator about --request-timeout",
-        )
-        .into_response(),
+        StatusCode::REQUEST_TIMEOUT if !is_json => ApiError::timed_out().into_response(),
         _ => response,
     }
 }

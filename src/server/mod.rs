@@ -31,7 +31,6 @@ use tower::ServiceBuilder;
 use tower_http::limit::RequestBodyLimitLayer;
 use tower_http::request_id::{MakeRequestUuid, PropagateRequestIdLayer, SetRequestIdLayer};
 use tower_http::set_header::SetResponseHeaderLayer;
-use tower_http::timeout::TimeoutLayer;
 use tower_http::trace::{DefaultOnResponse, TraceLayer};
 use tracing::Level;
 
@@ -104,15 +103,17 @@ fn app(state: AppState) -> Router {
         ))
         // The body limit's 413 and the timeout's 408 come as JSON like every error.
         .layer(axum::middleware::map_response(error::plain_to_json))
-        .layer(RequestBodyLimitLayer::new(options.max_body))
-        .layer(TimeoutLayer::with_status_code(
-            StatusCode::REQUEST_TIMEOUT,
-            options.request_timeout,
-        ));
+        .layer(RequestBodyLimitLayer::new(options.max_body));
     routes()
         .into_router()
         .fallback(not_found)
         .method_not_allowed_fallback(method_not_allowed)
+        // The request timeout, inside the body limit as a tower timeout layer was: 408 only
+        // while no write of the request has begun.
+        .layer(axum::middleware::from_fn_with_state(
+            options.request_timeout,
+            state::timeout_unless_writing,
+        ))
         .layer(DefaultBodyLimit::max(options.max_body))
         .layer(layers)
         .with_state(state)

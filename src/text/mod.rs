@@ -241,6 +241,24 @@ impl TextIndex {
         })
     }
 
+    /// Moves the reader to the index's newest commit when it holds other segments (or other
+    /// deletions) than the reader has open: another process, or another `TextIndex` of the
+    /// same folder, committed since. For an index kept open between a server's requests.
+    pub fn catch_up(&self) -> Result<()> {
+        let metas = self.index.load_metas()?;
+        let searcher = self.reader.searcher();
+        let open = searcher.generation().segments();
+        let same = open.len() == metas.segments.len()
+            && metas
+                .segments
+                .iter()
+                .all(|m| open.get(&m.id()) == Some(&m.delete_opstamp()));
+        if !same {
+            self.reader.reload()?;
+        }
+        Ok(())
+    }
+
     /// The library generation the index was last committed at, if any.
     pub fn generation(&self) -> Result<Option<i64>> {
         let metas = self.index.load_metas()?;

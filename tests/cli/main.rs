@@ -27,6 +27,7 @@ mod search;
 mod search_science;
 mod serve;
 mod serve_api;
+mod serve_beside;
 mod serve_pages;
 mod show;
 mod stats;

@@ -159,7 +159,10 @@ fn rank_keeping(
     } else if unknowns.iter().any(|u| u.vector.len() != grid.len()) {
         return Ok(None);
     }
-    let cache = library.vector_cache(request.technique, kind)?;
+    // Spectra stored since the cache was built (a server submitting while it searches) are
+    // scored exactly beside it: the library hands them over only when they are all that
+    // changed, so the hit list stays the one scoring every candidate gives.
+    let (cache, tail) = library.vector_cache_and_tail(request.technique, kind)?;
     if !kind.dense() && !cache.integer_x {
         return Ok(None);
     }
@@ -173,6 +176,18 @@ fn rank_keeping(
     }
 
     let (mask, compared, searched) = row_mask(&cache, &request.statuses, plan.allowed.as_ref());
+    let tail_searched = tail
+        .iter()
+        .filter(|(_, s)| request.statuses.contains(s))
+        .count();
+    let tail: Vec<(i64, Prepared)> = tail
+        .into_iter()
+        .filter(|(id, s)| {
+            request.statuses.contains(s) && plan.allowed.as_ref().is_none_or(|a| a.contains(id))
+        })
+        .map(|(id, _)| Ok((id, library.prepared(id)?)))
+        .collect::<Result<_>>()?;
+    let (compared, searched) = (compared + tail.len(), searched + tail_searched);
     let active = active_bins(grid);
     let bins = Bins::new(grid);
     let tol = request.params.peak_tolerance;
@@ -215,7 +230,8 @@ fn rank_keeping(
                 }
                 _ => scored,
             };
-            trace.exact_rows += exact.done.len();
+            trace.exact_rows += exact.done.len() + tail.len();
+            let scored = with_tail(scored, &tail, q.unknown, grid, request);
             out.push(Ranking {
                 scored,
                 compared,
@@ -224,6 +240,28 @@ fn rank_keeping(
         }
     }
     Ok(Some(out))
+}
+
+/// The exact top K of the cache's rows merged with the spectra stored since it was built,
+/// each of those scored exactly as `Exact::score` scores a cache row: best first, ties by id.
+fn with_tail(
+    mut scored: exact::Scored,
+    tail: &[(i64, Prepared)],
+    unknown: &Prepared,
+    grid: &crate::technique::Grid,
+    request: &Request,
+) -> exact::Scored {
+    use rayon::prelude::*;
+    if tail.is_empty() {
+        return scored;
+    }
+    scored.par_extend(tail.par_iter().map(|(id, reference)| {
+        let s = crate::score::score(unknown, reference, grid, &request.params);
+        (s.combined, *id, s)
+    }));
+    scored.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+    scored.truncate(request.depth());
+    scored
 }
 
 /// The rows a request may return: status wanted and, with a metadata query, id in its set.

@@ -574,8 +574,14 @@ fn every_change_of_the_searchable_content_rebuilds_the_cache() {
             ..
         })
     ));
+    // The added spectrum is scored beside the cache (its tail) without a rebuild; asked for
+    // a current cache, the library builds one.
+    use std::os::unix::fs::MetadataExt;
+    let inode = std::fs::metadata(&file).unwrap().ino();
     let again = search(&lib, &u, &r).unwrap();
     assert_eq!(again.hits[0].spectrum_id, 31);
+    assert_eq!(std::fs::metadata(&file).unwrap().ino(), inode);
+    assert!(rebuilt(&lib, &file));
 
     // Another process (a fresh open) sees the file is current and maps it.
     drop(lib);
@@ -601,6 +607,148 @@ fn every_change_of_the_searchable_content_rebuilds_the_cache() {
         &search(&lib, &u, &r).unwrap(),
         &search_exact(&lib, &u, &r).unwrap(),
     );
+}
+
+/// The IR file's inode (a rebuild renames a new file into place).
+fn inode_of(file: &std::path::Path) -> u64 {
+    use std::os::unix::fs::MetadataExt;
+    std::fs::metadata(file).unwrap().ino()
+}
+
+#[test]
+fn spectra_stored_after_the_cache_are_scored_beside_it_with_the_exact_hits() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut lib = Library::init(&dir.path().join("lib"), "t").unwrap();
+    let mut rng = Rng::new(11);
+    let refs: Vec<Vec<(f64, f64)>> = (0..300).map(|_| ir_points(&mut rng)).collect();
+    let stage_all = |lib: &Library, pts: &[Vec<(f64, f64)>], technique: Technique, name: &str| {
+        pts.iter()
+            .enumerate()
+            .map(|(i, p)| {
+                let tags: &[&str] = if i % 2 == 0 { &["even"] } else { &[] };
+                staged(
+                    lib.recipes(),
+                    technique,
+                    p.clone(),
+                    &format!("{name}{i}"),
+                    tags,
+                )
+                .unwrap()
+            })
+            .collect::<Vec<_>>()
+    };
+    let batch = stage_all(&lib, &refs, Technique::Ir, "c");
+    lib.store(&batch, "t", false).unwrap();
+    let ids: Vec<i64> = (1..=300).filter(|i| i % 3 == 0).collect();
+    lib.review_many(&ids, "second", Decision::Approve, None, None)
+        .unwrap();
+    let unknowns: Vec<Prepared> = (0..4)
+        .map(|k| unknown(&lib, Technique::Ir, perturb(&refs[k * 60], &mut rng, 0.05)))
+        .collect();
+    let mut requests = vec![Request::new(Technique::Ir)];
+    let mut r = Request::new(Technique::Ir);
+    r.statuses.push(Status::Pending);
+    requests.push(r.clone());
+    let mut filtered = r.clone();
+    filtered.filter = Some("tag:even".into());
+    requests.push(filtered);
+    let check_all = |lib: &Library| {
+        for request in &requests {
+            for u in &unknowns {
+                same(
+                    &search(lib, u, request).unwrap(),
+                    &search_exact(lib, u, request).unwrap(),
+                );
+            }
+        }
+    };
+    check_all(&lib);
+    let file = dir.path().join("lib/cache/ir.corr.wvc");
+    let built = inode_of(&file);
+
+    // Near copies of the unknowns' references (which outrank them) and EI spectra (another
+    // technique, in the same content sum) stored after the build.
+    let near: Vec<Vec<(f64, f64)>> = (0..4)
+        .map(|k| perturb(&refs[k * 60], &mut rng, 0.01))
+        .collect();
+    let more = stage_all(&lib, &near, Technique::Ir, "near");
+    lib.store(&more, "t", false).unwrap();
+    let ms: Vec<Vec<(f64, f64)>> = (0..3).map(|_| ms_points(&mut rng)).collect();
+    let ms = stage_all(&lib, &ms, Technique::MsEi, "ms");
+    lib.store(&ms, "t", false).unwrap();
+    lib.review(303, "second", Decision::Approve, None, None)
+        .unwrap();
+    let (_, tail) = lib
+        .vector_cache_and_tail(Technique::Ir, Kind::Centred)
+        .unwrap();
+    assert_eq!(
+        tail,
+        vec![
+            (301, Status::Pending),
+            (302, Status::Pending),
+            (303, Status::Verified),
+            (304, Status::Pending)
+        ]
+    );
+    check_all(&lib);
+    let hit = search(&lib, &unknowns[1], &r).unwrap();
+    assert!(
+        hit.hits.iter().take(2).any(|h| h.spectrum_id == 302),
+        "the near copy of the unknown's reference is among the first hits"
+    );
+    assert_eq!(
+        inode_of(&file),
+        built,
+        "no rebuild for spectra stored since"
+    );
+
+    // A change to a spectrum the cache holds (a withdrawal, a sign-off) rebuilds it.
+    lib.withdraw(61, "t", "contaminated").unwrap();
+    let (c, tail) = lib
+        .vector_cache_and_tail(Technique::Ir, Kind::Centred)
+        .unwrap();
+    assert!(tail.is_empty());
+    assert_eq!(c.rows(), 303);
+    assert_ne!(inode_of(&file), built);
+    check_all(&lib);
+    let built = inode_of(&file);
+    // A spectrum of its own (the near copies are stored already: "already present").
+    let fresh = vec![ir_points(&mut rng)];
+    lib.store(&stage_all(&lib, &fresh, Technique::Ir, "fresh"), "t", false)
+        .unwrap();
+    assert_eq!(
+        lib.vector_cache_and_tail(Technique::Ir, Kind::Centred)
+            .unwrap()
+            .1
+            .len(),
+        1
+    );
+    lib.review(2, "second", Decision::Approve, None, None)
+        .unwrap();
+    assert!(
+        lib.vector_cache_and_tail(Technique::Ir, Kind::Centred)
+            .unwrap()
+            .1
+            .is_empty()
+    );
+    assert_ne!(inode_of(&file), built);
+    check_all(&lib);
+
+    // More spectra than the tail may hold: rebuilt.
+    let built = inode_of(&file);
+    let many: Vec<Vec<(f64, f64)>> = (0..crate::library::tail_limit(304) + 1)
+        .map(|_| ir_points(&mut rng))
+        .collect();
+    lib.store(&stage_all(&lib, &many, Technique::Ir, "many"), "t", false)
+        .unwrap();
+    assert!(
+        lib.vector_cache_and_tail(Technique::Ir, Kind::Centred)
+            .unwrap()
+            .1
+            .is_empty()
+    );
+    assert_ne!(inode_of(&file), built);
+    check_all(&lib);
 }
 
 /// The points of `pts` within `lo..=hi` cm-1: a spectrum measured over a shorter range.
