@@ -282,6 +282,31 @@ fn no_account(name: &str) -> Error {
     )
 }
 
+/// Refuses a change (`doing`: "disabling it", "giving it the role reader") that would take
+/// the last active administrator away, so that some account can always manage the others.
+/// Checked inside the change's write transaction, so two administrators demoting each other
+/// at once cannot both succeed.
+fn keep_an_administrator(conn: &Connection, account: &Account, doing: &str) -> Result<()> {
+    if account.role != Role::Admin || !account.is_active() {
+        return Ok(());
+    }
+    let admins: i64 = conn.query_row(
+        "SELECT count(*) FROM account WHERE role = 'admin' AND disabled_at IS NULL",
+        [],
+        |r| r.get(0),
+    )?;
+    if admins > 1 {
+        return Ok(());
+    }
+    Err(Error::invalid(
+        format!(
+            "'{}' is the only active administrator; {doing} would leave no account that can manage accounts",
+            account.name
+        ),
+        "give another account the admin role first (`whorl account role NAME admin --reason ...` or the accounts page), then change this one",
+    ))
+}
+
 /// The secret's prefix, so a token found in a log or a file is recognisable as one.
 pub const TOKEN_PREFIX: &str = "whorl_";
 
@@ -345,7 +370,7 @@ impl Library {
     }
 
     /// Disables an account with a reason, audited as `account-disable`; its tokens stop
-    /// working with it.
+    /// working with it. Refuses to disable the last active administrator.
     pub fn disable_account(&mut self, name: &str, reason: &str, actor: &str) -> Result<Account> {
         let person = Person::new(name, "account")?;
         if reason.trim().is_empty() {
@@ -362,6 +387,7 @@ impl Library {
                     "run `whorl account list` to see the accounts",
                 ));
             }
+            keep_an_administrator(tx, &account, "disabling it")?;
             tx.execute(
                 "UPDATE account SET disabled_at = ?1, disabled_reason = ?2 WHERE id = ?3",
                 params![now(), reason.trim(), account.id],
@@ -408,19 +434,7 @@ impl Library {
                     "run `whorl account list` to see the roles",
                 ));
             }
-            if account.role == Role::Admin {
-                let admins: i64 = tx.query_row(
-                    "SELECT count(*) FROM account WHERE role = 'admin' AND disabled_at IS NULL",
-                    [],
-                    |r| r.get(0),
-                )?;
-                if admins <= 1 {
-                    return Err(Error::invalid(
-                        format!("'{}' is the only active administrator", account.name),
-                        "give another account the admin role first",
-                    ));
-                }
-            }
+            keep_an_administrator(tx, &account, &format!("giving it the role {role}"))?;
             tx.execute(
                 "UPDATE account SET role = ?1 WHERE id = ?2",
                 params![role.as_str(), account.id],
@@ -739,6 +753,26 @@ mod tests {
             let text = e.payload.to_string();
             assert!(!text.contains("a long enough secret") && !text.contains("argon2"));
         }
+    }
+
+    #[test]
+    fn the_last_active_administrator_stays() {
+        let mut lib = Library::in_memory("t").unwrap();
+        lib.add_account("q", Role::Admin, "root").unwrap();
+        lib.add_account("r", Role::Reader, "root").unwrap();
+        let events = lib.events(None).unwrap().len();
+        let e = lib.disable_account("q", "gone", "root").unwrap_err();
+        assert!(e.to_string().contains("only active administrator"), "{e}");
+        let e = lib.set_role("q", Role::Curator, "why", "root").unwrap_err();
+        assert!(e.to_string().contains("only active administrator"), "{e}");
+        assert_eq!(lib.events(None).unwrap().len(), events);
+        // A disabled administrator does not count as one.
+        lib.add_account("s", Role::Admin, "root").unwrap();
+        lib.disable_account("s", "gone", "root").unwrap();
+        assert!(lib.set_role("q", Role::Reader, "why", "root").is_err());
+        lib.set_role("r", Role::Admin, "why", "root").unwrap();
+        lib.set_role("q", Role::Reader, "why", "root").unwrap();
+        assert!(lib.disable_account("r", "gone", "root").is_err());
     }
 
     #[test]

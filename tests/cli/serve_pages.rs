@@ -469,6 +469,28 @@ fn the_identify_page_gives_the_command_lines_fused_list_and_the_accounts_page_is
         &[("csrf", &csrf), ("reason", "testing")],
     );
     assert_eq!(own.status, 400, "{}", own.html);
+    // Nor may the only administrator demote themself: the library refuses it, as it refuses
+    // `whorl account role`, and the page says why and what to do.
+    let demoted = post_fields(
+        &server,
+        &admin,
+        &format!("/accounts/{admin_id}/role"),
+        &[
+            ("csrf", &csrf),
+            ("role", "curator"),
+            ("reason", "stepping back"),
+        ],
+    );
+    assert_eq!(demoted.status, 400, "{}", demoted.html);
+    assert!(
+        demoted.html.contains("Role not changed")
+            && demoted.html.contains("is the only active administrator")
+            && demoted
+                .html
+                .contains("give another account the admin role first"),
+        "{}",
+        demoted.html
+    );
     let disabled = post_fields(
         &server,
         &admin,
