@@ -314,7 +314,7 @@ impl Library {
     /// Adds an account with a role (no password yet), audited as `account-add`.
     pub fn add_account(&mut self, name: &str, role: Role, actor: &str) -> Result<Account> {
         let person = Person::new(name, "account")?;
-        self.write(|tx| {
+        self.write_trail(|tx| {
             if let Some(existing) = account_by_key(tx, person.key())? {
                 return Err(Error::invalid(
                     format!(
@@ -338,7 +338,7 @@ impl Library {
                 &serde_json::json!({ "name": person.name(), "role": role.as_str() }),
             )?;
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
-            Ok((account, vec![]))
+            Ok(account)
         })
     }
 
@@ -379,7 +379,7 @@ impl Library {
                 "say why, e.g. --reason 'left the lab'",
             ));
         }
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             if !account.is_active() {
                 return Err(Error::invalid(
@@ -400,7 +400,7 @@ impl Library {
                 &serde_json::json!({ "name": account.name, "reason": reason.trim() }),
             )?;
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
-            Ok((account, vec![]))
+            Ok(account)
         })
     }
 
@@ -420,7 +420,7 @@ impl Library {
                 "say why, e.g. --reason 'signs off for the GC group from May'",
             ));
         }
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             if !account.is_active() {
                 return Err(Error::invalid(
@@ -450,7 +450,7 @@ impl Library {
                 }),
             )?;
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
-            Ok((account, vec![]))
+            Ok(account)
         })
     }
 
@@ -459,7 +459,7 @@ impl Library {
     pub fn set_password(&mut self, name: &str, password: &str, actor: &str) -> Result<()> {
         let person = Person::new(name, "account")?;
         let phc = hash_password(password)?;
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             tx.execute(
                 "UPDATE account SET password = ?1 WHERE id = ?2",
@@ -472,7 +472,7 @@ impl Library {
                 &format!("account:{}", account.id),
                 &serde_json::json!({ "name": account.name }),
             )?;
-            Ok(((), vec![]))
+            Ok(())
         })
     }
 
@@ -499,7 +499,7 @@ impl Library {
 
     /// Records a lock-out of an account until a time, audited as `account-lockout`.
     pub fn lock_account(&mut self, id: i64, until: &str, failures: u32, by: &str) -> Result<()> {
-        self.write(|tx| {
+        self.write_trail(|tx| {
             tx.execute(
                 "UPDATE account SET locked_until = ?1 WHERE id = ?2",
                 params![until, id],
@@ -511,7 +511,7 @@ impl Library {
                 &format!("account:{id}"),
                 &serde_json::json!({ "until": until, "failed_sign_ins": failures }),
             )?;
-            Ok(((), vec![]))
+            Ok(())
         })
     }
 
@@ -534,7 +534,7 @@ impl Library {
         }
         let secret = format!("{TOKEN_PREFIX}{}", hex::encode(random_bytes(32)?));
         let digest = sha256_hex(secret.as_bytes());
-        let id = self.write(|tx| {
+        let id = self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             if !account.is_active() {
                 return Err(Error::invalid(
@@ -557,7 +557,7 @@ impl Library {
                     "account": account.name, "label": label.trim(), "expires_at": expires_at
                 }),
             )?;
-            Ok((id, vec![]))
+            Ok(id)
         })?;
         Ok((id, secret))
     }
@@ -583,7 +583,7 @@ impl Library {
 
     /// Revokes a token, audited as `token-revoke`.
     pub fn revoke_token(&mut self, id: i64, actor: &str) -> Result<()> {
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let revoked: Option<Option<String>> = tx
                 .query_row("SELECT revoked_at FROM token WHERE id = ?1", [id], |r| {
                     r.get(0)
@@ -610,7 +610,7 @@ impl Library {
                 &format!("token:{id}"),
                 &serde_json::json!({}),
             )?;
-            Ok(((), vec![]))
+            Ok(())
         })
     }
 
