@@ -535,3 +535,56 @@ fn the_identify_page_gives_the_command_lines_fused_list_and_the_accounts_page_is
     assert!(!lab.ok(&["log", "--json"]).contains("newcomer passphrase"));
     lab.ok(&["check"]);
 }
+
+#[test]
+fn uploads_held_for_an_account_are_capped_and_a_submission_beyond_the_cap_is_refused() {
+    let lab = lab_with_accounts();
+    // An account may have twice --max-body of uploads held: 2 MiB here.
+    let server = Server::start_with(&lab, &["--max-body", "1"]);
+    // 1-butanol's points again, each y written with 440 more zeros: the same numbers in over
+    // 0.7 MiB, so two previews fit in 2 MiB and a third does not.
+    let big: Vec<u8> = String::from_utf8(butanol_again())
+        .unwrap()
+        .lines()
+        .map(|line| match line.split_once(',') {
+            Some((_, y)) if y.parse::<f64>().is_ok() => format!("{line}{}\n", "0".repeat(440)),
+            _ => format!("{line}\n"),
+        })
+        .collect::<String>()
+        .into_bytes();
+    assert!((700_000..1_000_000).contains(&big.len()), "{}", big.len());
+    let before = lab.state();
+    let preview = |role: &str| {
+        let (cookie, csrf) = session(&server, role);
+        post_multipart(
+            &server,
+            &cookie,
+            "/submit",
+            &[
+                ("csrf", None, text(&csrf)),
+                ("technique", None, text("ir")),
+                ("name", None, text("padded probe")),
+                ("file", Some("padded.ir.csv"), big.clone()),
+            ],
+        )
+    };
+    for n in 0..2 {
+        let held = preview("submitter");
+        assert_eq!(held.status, 303, "preview {n}: {}", held.html);
+    }
+    let refused = preview("submitter");
+    assert_eq!(refused.status, 429, "{}", refused.html);
+    assert!(
+        refused.html.contains("Submission refused")
+            && refused.html.contains("2.0 MiB it holds per account")
+            && refused
+                .html
+                .contains("confirm the submissions you have previewed"),
+        "{}",
+        refused.html
+    );
+    assert!(refused.html.contains("evidence, not proof"), "the caution");
+    // The cap is per account: another account still has room.
+    assert_eq!(preview("curator").status, 303);
+    assert_eq!(lab.state(), before, "a preview saved something");
+}

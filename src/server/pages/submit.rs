@@ -291,6 +291,9 @@ async fn hold(
     let x_unit: Option<XUnit> = form.parsed("x_unit")?;
     let y_unit: Option<YUnit> = form.parsed("y_unit")?;
     let file_name = safe_name(raw_name);
+    let max_body = state.options.max_body;
+    // Refused before the checks run when the upload could not be held anyway.
+    held.room(b.caller.account.id, bytes.len(), max_body)?;
     let bytes = bytes.clone();
     let account = b.caller.account.name.clone();
     let (name, data, m) = (file_name.clone(), bytes.clone(), metadata.clone());
@@ -320,6 +323,8 @@ async fn hold(
     tracing::info!(account = %b.caller.account.name, %technique, "submission previewed");
     held.put(
         b.caller.account.id,
+        bytes.len(),
+        max_body,
         Awaiting {
             session: b.csrf.clone(),
             sha256: sha256_hex(&bytes),
