@@ -588,3 +588,132 @@ fn uploads_held_for_an_account_are_capped_and_a_submission_beyond_the_cap_is_ref
     assert_eq!(preview("curator").status, 303);
     assert_eq!(lab.state(), before, "a preview saved something");
 }
+
+/// The spectrum ids of the library page's list, in the order shown.
+fn listed_ids(html: &str) -> Vec<i64> {
+    let table = &html[html.find("id=\"spectra\"").unwrap()..];
+    let table = &table[..table.find("</table>").unwrap()];
+    table
+        .split("<a href=\"/spectra/")
+        .skip(1)
+        .map(|s| s[..s.find('"').unwrap()].parse().unwrap())
+        .collect()
+}
+
+#[test]
+fn the_library_page_filters_by_tag_and_instrument_and_sorts_by_its_column_links() {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let (cookie, _) = session(&server, "reader");
+    // What to expect, from the seed manifest the library was imported from (not through the
+    // server): each row's id by its compound name and technique.
+    let ids: std::collections::HashMap<(String, String), i64> = list(&lab)
+        .iter()
+        .map(|s| {
+            (
+                (
+                    s["name"].as_str().unwrap().to_string(),
+                    s["technique"].as_str().unwrap().to_string(),
+                ),
+                s["id"].as_i64().unwrap(),
+            )
+        })
+        .collect();
+    let manifest: Vec<(i64, String, Vec<String>, String, String)> =
+        crate::util::csv_rows(&seed().join("manifest.csv"))
+            .into_iter()
+            .map(|r| {
+                (
+                    ids[&(r["name"].clone(), r["technique"].clone())],
+                    r["name"].to_lowercase(),
+                    r["tags"].split(';').map(str::to_string).collect(),
+                    r["instrument"].clone(),
+                    r["acquired"].clone(),
+                )
+            })
+            .collect();
+
+    // A tag in any case, sorted by date acquired, newest first (ties by id).
+    let mut ketones: Vec<&(i64, String, Vec<String>, String, String)> = manifest
+        .iter()
+        .filter(|m| m.2.iter().any(|t| t == "ketone"))
+        .collect();
+    ketones.sort_by(|a, b| b.4.cmp(&a.4).then(a.0.cmp(&b.0)));
+    let expected: Vec<i64> = ketones.iter().map(|m| m.0).collect();
+    assert!(expected.len() > 5 && expected.len() < 50);
+    let shown = get(&server, &cookie, "/library?tag=KETONE&sort=date&order=desc");
+    assert_eq!(shown.status, 200, "{}", shown.html);
+    assert_eq!(listed_ids(&shown.html), expected);
+    assert!(shown.html.contains("by date acquired, descending"));
+    assert!(shown.html.contains("aria-sort=\"descending\""));
+    assert!(
+        shown.html.contains("evidence, not proof"),
+        "the caution on the page"
+    );
+
+    // An instrument by part of its name, in any case, with the tag.
+    let mut expected: Vec<i64> = manifest
+        .iter()
+        .filter(|m| m.2.iter().any(|t| t == "ketone") && m.3.to_lowercase().contains("raman probe"))
+        .map(|m| m.0)
+        .collect();
+    expected.sort();
+    assert!(!expected.is_empty());
+    let shown = get(
+        &server,
+        &cookie,
+        "/library?tag=ketone&instrument=RAMAN%20probe",
+    );
+    assert_eq!(listed_ids(&shown.html), expected);
+    assert!(
+        shown.html.contains("value=\"RAMAN probe\""),
+        "the field keeps it"
+    );
+
+    // Sorted by compound name through the heading's link; the first page and the pager keep
+    // the order, and the heading's link now turns it round.
+    let mut by_name: Vec<(String, i64)> = manifest.iter().map(|m| (m.1.clone(), m.0)).collect();
+    by_name.sort();
+    let first = get(&server, &cookie, "/library");
+    assert!(
+        first
+            .html
+            .contains("<a href=\"/library?page=1&#38;sort=name&#38;order=asc\">compound</a>"),
+        "{}",
+        first.html
+    );
+    let shown = get(&server, &cookie, "/library?page=1&sort=name&order=asc");
+    assert_eq!(
+        listed_ids(&shown.html),
+        by_name.iter().take(50).map(|n| n.1).collect::<Vec<_>>()
+    );
+    assert!(shown.html.contains(
+        "aria-sort=\"ascending\"><a href=\"/library?page=1&#38;sort=name&#38;order=desc\">compound"
+    ));
+    assert!(
+        shown
+            .html
+            .contains("href=\"/library?page=2&#38;sort=name&#38;order=asc\" rel=\"next\""),
+        "{}",
+        shown.html
+    );
+    let second = get(&server, &cookie, "/library?page=2&sort=name&order=asc");
+    assert_eq!(
+        listed_ids(&second.html),
+        by_name
+            .iter()
+            .skip(50)
+            .take(50)
+            .map(|n| n.1)
+            .collect::<Vec<_>>()
+    );
+
+    // A column the list does not sort by is refused with a hint.
+    let refused = get(&server, &cookie, "/library?sort=mass");
+    assert_eq!(refused.status, 400, "{}", refused.html);
+    assert!(
+        refused
+            .html
+            .contains("sort by name, technique, date or status")
+    );
+}
