@@ -717,3 +717,86 @@ fn the_library_page_filters_by_tag_and_instrument_and_sorts_by_its_column_links(
             .contains("sort by name, technique, date or status")
     );
 }
+
+#[test]
+fn extra_fields_on_the_submit_page_are_read_and_refused_as_whorl_add_reads_them() {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let (cookie, csrf) = session(&server, "submitter");
+    let file = butanol_again();
+    let sha256 = whorl::spectrum::sha256_hex(&file);
+    lab.write("probe.ir.csv", &file);
+    let before = lab.state();
+    let with = |extra: &str| {
+        post_multipart(
+            &server,
+            &cookie,
+            "/submit",
+            &[
+                ("csrf", None, text(&csrf)),
+                ("technique", None, text("ir")),
+                ("name", None, text("probe compound")),
+                ("extra", None, text(extra)),
+                ("file", Some("probe.ir.csv"), file.clone()),
+            ],
+        )
+    };
+    // Each refused on the page with the reason `whorl add --set` gives for the same pairs.
+    for (lines, set, why) in [
+        ("ri", vec!["ri"], "has no '='"),
+        ("ri=", vec!["ri="], "gives no value"),
+        ("ri=1\nri=2", vec!["ri=1", "ri=2"], "is given twice"),
+        (
+            "whorl_status=verified",
+            vec!["whorl_status=verified"],
+            "starts with 'whorl_'",
+        ),
+        (
+            "Submitted By=g.signer",
+            vec!["Submitted By=g.signer"],
+            "field in another spelling",
+        ),
+    ] {
+        let refused = with(lines);
+        assert_eq!(refused.status, 400, "{lines}: {}", refused.html);
+        let page = refused.html.replace("&#39;", "'");
+        assert!(page.contains(why), "{lines}: {page}");
+        let mut args = vec!["add", "probe.ir.csv", "-t", "ir", "--name", "probe"];
+        for kv in &set {
+            args.extend(["--set", kv]);
+        }
+        let cli = lab.refuses(&args, 3);
+        assert!(cli.contains(why), "{set:?}: {cli}");
+    }
+    assert_eq!(lab.state(), before, "a refused submission saved something");
+
+    // Accepted (blank lines and spaces around '=' as `--set` allows): on the preview, then
+    // saved with the spectrum and searchable as KEY:VALUE.
+    let held = with("ri = 1012\n\nri_phase=DB-5\n");
+    assert_eq!(held.status, 303, "{}", held.html);
+    let preview = get(&server, &cookie, &held.location);
+    assert!(
+        preview.html.contains("ri_phase") && preview.html.contains("DB-5"),
+        "{}",
+        preview.html
+    );
+    let key = held.location.strip_prefix("/submit/").unwrap();
+    let saved = post_fields(
+        &server,
+        &cookie,
+        &format!("/submit/{key}/confirm"),
+        &[("csrf", &csrf), ("sha256", &sha256)],
+    );
+    assert_eq!(saved.status, 303, "{}", saved.html);
+    let id = saved
+        .location
+        .strip_prefix("/spectra/")
+        .and_then(|s| s.strip_suffix("?submitted=added"))
+        .unwrap()
+        .to_string();
+    let shown = lab.json(&["show", &id]);
+    assert_eq!(shown["spectrum"]["metadata"]["extra"]["ri"], "1012");
+    assert_eq!(shown["spectrum"]["metadata"]["extra"]["ri_phase"], "DB-5");
+    let found = lab.json(&["find", "ri_phase:DB-5"]);
+    assert!(found.to_string().contains("probe compound"), "{found}");
+}

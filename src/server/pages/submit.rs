@@ -119,8 +119,9 @@ async fn form(b: Browser<ToSubmit>) -> Response {
     })
 }
 
-const FIELDS: [&str; 14] = [
+const FIELDS: [&str; 15] = [
     "csrf",
+    "extra",
     "technique",
     "name",
     "formula",
@@ -178,7 +179,17 @@ fn metadata(form: &Upload) -> Result<Metadata, ApiError> {
         instrument: text("instrument"),
         acquired: text("acquired"),
         notes: text("note"),
-        extra: Default::default(),
+        // One KEY=VALUE a line, read as `whorl add --set` reads its pairs; the keys' own
+        // rules are checked with the rest when the submission is staged.
+        extra: whorl::spectrum::extra_fields(
+            form.field("extra")
+                .unwrap_or_default()
+                .lines()
+                .map(str::trim)
+                .filter(|l| !l.is_empty()),
+            "extra field",
+            "one KEY=VALUE a line, e.g. ri=1012",
+        )?,
     })
 }
 
@@ -383,6 +394,7 @@ fn metadata_rows(m: &Metadata) -> Vec<(String, String)> {
     if !m.tags.is_empty() {
         rows.push(("tags".into(), m.tags.join(", ")));
     }
+    rows.extend(m.extra.iter().map(|(k, v)| (k.clone(), v.clone())));
     rows
 }
 
