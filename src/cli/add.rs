@@ -66,37 +66,6 @@ pub struct AddArgs {
     pub json: bool,
 }
 
-/// `--set KEY=VALUE` arguments as extra metadata: a value is required, and a key may be given
-/// once (reserved and colliding keys are refused when the metadata is checked).
-fn extra_fields(set: &[String]) -> anyhow::Result<std::collections::BTreeMap<String, String>> {
-    let mut extra = std::collections::BTreeMap::new();
-    for kv in set {
-        let Some((k, v)) = kv.split_once('=') else {
-            return Err(whorl::Error::invalid(
-                format!("--set '{}' has no '='", whorl::error::excerpt(kv, 60)),
-                "write --set KEY=VALUE, e.g. --set ri=1012",
-            )
-            .into());
-        };
-        let (k, v) = (k.trim(), v.trim());
-        if v.is_empty() {
-            return Err(whorl::Error::invalid(
-                format!("--set {k}= gives no value"),
-                "give a value (--set KEY=VALUE), or leave the field out",
-            )
-            .into());
-        }
-        if extra.insert(k.to_string(), v.to_string()).is_some() {
-            return Err(whorl::Error::invalid(
-                format!("--set {k} is given twice"),
-                "give each extra field once",
-            )
-            .into());
-        }
-    }
-    Ok(extra)
-}
-
 pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
     // Who the record says submitted it (`--by`), and who ran the command: the four-eyes rule
@@ -117,7 +86,11 @@ pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             instrument: args.instrument,
             acquired: args.acquired,
             notes: args.note,
-            extra: extra_fields(&args.set)?,
+            extra: whorl::spectrum::extra_fields(
+                args.set.iter().map(String::as_str),
+                "--set",
+                "--set KEY=VALUE, e.g. --set ri=1012",
+            )?,
         },
         x_unit: args.x_unit,
         y_unit: args.y_unit,

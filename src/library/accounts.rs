@@ -282,6 +282,31 @@ fn no_account(name: &str) -> Error {
     )
 }
 
+/// Refuses a change (`doing`: "disabling it", "giving it the role reader") that would take
+/// the last active administrator away, so that some account can always manage the others.
+/// Checked inside the change's write transaction, so two administrators demoting each other
+/// at once cannot both succeed.
+fn keep_an_administrator(conn: &Connection, account: &Account, doing: &str) -> Result<()> {
+    if account.role != Role::Admin || !account.is_active() {
+        return Ok(());
+    }
+    let admins: i64 = conn.query_row(
+        "SELECT count(*) FROM account WHERE role = 'admin' AND disabled_at IS NULL",
+        [],
+        |r| r.get(0),
+    )?;
+    if admins > 1 {
+        return Ok(());
+    }
+    Err(Error::invalid(
+        format!(
+            "'{}' is the only active administrator; {doing} would leave no account that can manage accounts",
+            account.name
+        ),
+        "give another account the admin role first (`whorl account role NAME admin --reason ...` or the accounts page), then change this one",
+    ))
+}
+
 /// The secret's prefix, so a token found in a log or a file is recognisable as one.
 pub const TOKEN_PREFIX: &str = "whorl_";
 
@@ -289,7 +314,7 @@ impl Library {
     /// Adds an account with a role (no password yet), audited as `account-add`.
     pub fn add_account(&mut self, name: &str, role: Role, actor: &str) -> Result<Account> {
         let person = Person::new(name, "account")?;
-        self.write(|tx| {
+        self.write_trail(|tx| {
             if let Some(existing) = account_by_key(tx, person.key())? {
                 return Err(Error::invalid(
                     format!(
@@ -313,7 +338,7 @@ impl Library {
                 &serde_json::json!({ "name": person.name(), "role": role.as_str() }),
             )?;
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
-            Ok((account, vec![]))
+            Ok(account)
         })
     }
 
@@ -345,7 +370,7 @@ impl Library {
     }
 
     /// Disables an account with a reason, audited as `account-disable`; its tokens stop
-    /// working with it.
+    /// working with it. Refuses to disable the last active administrator.
     pub fn disable_account(&mut self, name: &str, reason: &str, actor: &str) -> Result<Account> {
         let person = Person::new(name, "account")?;
         if reason.trim().is_empty() {
@@ -354,7 +379,7 @@ impl Library {
                 "say why, e.g. --reason 'left the lab'",
             ));
         }
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             if !account.is_active() {
                 return Err(Error::invalid(
@@ -362,6 +387,7 @@ impl Library {
                     "run `whorl account list` to see the accounts",
                 ));
             }
+            keep_an_administrator(tx, &account, "disabling it")?;
             tx.execute(
                 "UPDATE account SET disabled_at = ?1, disabled_reason = ?2 WHERE id = ?3",
                 params![now(), reason.trim(), account.id],
@@ -374,7 +400,7 @@ impl Library {
                 &serde_json::json!({ "name": account.name, "reason": reason.trim() }),
             )?;
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
-            Ok((account, vec![]))
+            Ok(account)
         })
     }
 
@@ -394,7 +420,7 @@ impl Library {
                 "say why, e.g. --reason 'signs off for the GC group from May'",
             ));
         }
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             if !account.is_active() {
                 return Err(Error::invalid(
@@ -408,19 +434,7 @@ impl Library {
                     "run `whorl account list` to see the roles",
                 ));
             }
-            if account.role == Role::Admin {
-                let admins: i64 = tx.query_row(
-                    "SELECT count(*) FROM account WHERE role = 'admin' AND disabled_at IS NULL",
-                    [],
-                    |r| r.get(0),
-                )?;
-                if admins <= 1 {
-                    return Err(Error::invalid(
-                        format!("'{}' is the only active administrator", account.name),
-                        "give another account the admin role first",
-                    ));
-                }
-            }
+            keep_an_administrator(tx, &account, &format!("giving it the role {role}"))?;
             tx.execute(
                 "UPDATE account SET role = ?1 WHERE id = ?2",
                 params![role.as_str(), account.id],
@@ -436,7 +450,7 @@ impl Library {
                 }),
             )?;
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
-            Ok((account, vec![]))
+            Ok(account)
         })
     }
 
@@ -445,7 +459,7 @@ impl Library {
     pub fn set_password(&mut self, name: &str, password: &str, actor: &str) -> Result<()> {
         let person = Person::new(name, "account")?;
         let phc = hash_password(password)?;
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             tx.execute(
                 "UPDATE account SET password = ?1 WHERE id = ?2",
@@ -458,7 +472,7 @@ impl Library {
                 &format!("account:{}", account.id),
                 &serde_json::json!({ "name": account.name }),
             )?;
-            Ok(((), vec![]))
+            Ok(())
         })
     }
 
@@ -485,7 +499,7 @@ impl Library {
 
     /// Records a lock-out of an account until a time, audited as `account-lockout`.
     pub fn lock_account(&mut self, id: i64, until: &str, failures: u32, by: &str) -> Result<()> {
-        self.write(|tx| {
+        self.write_trail(|tx| {
             tx.execute(
                 "UPDATE account SET locked_until = ?1 WHERE id = ?2",
                 params![until, id],
@@ -497,7 +511,7 @@ impl Library {
                 &format!("account:{id}"),
                 &serde_json::json!({ "until": until, "failed_sign_ins": failures }),
             )?;
-            Ok(((), vec![]))
+            Ok(())
         })
     }
 
@@ -520,7 +534,7 @@ impl Library {
         }
         let secret = format!("{TOKEN_PREFIX}{}", hex::encode(random_bytes(32)?));
         let digest = sha256_hex(secret.as_bytes());
-        let id = self.write(|tx| {
+        let id = self.write_trail(|tx| {
             let account = account_by_key(tx, person.key())?.ok_or_else(|| no_account(name))?;
             if !account.is_active() {
                 return Err(Error::invalid(
@@ -543,7 +557,7 @@ impl Library {
                     "account": account.name, "label": label.trim(), "expires_at": expires_at
                 }),
             )?;
-            Ok((id, vec![]))
+            Ok(id)
         })?;
         Ok((id, secret))
     }
@@ -569,7 +583,7 @@ impl Library {
 
     /// Revokes a token, audited as `token-revoke`.
     pub fn revoke_token(&mut self, id: i64, actor: &str) -> Result<()> {
-        self.write(|tx| {
+        self.write_trail(|tx| {
             let revoked: Option<Option<String>> = tx
                 .query_row("SELECT revoked_at FROM token WHERE id = ?1", [id], |r| {
                     r.get(0)
@@ -596,7 +610,7 @@ impl Library {
                 &format!("token:{id}"),
                 &serde_json::json!({}),
             )?;
-            Ok(((), vec![]))
+            Ok(())
         })
     }
 
@@ -739,6 +753,26 @@ mod tests {
             let text = e.payload.to_string();
             assert!(!text.contains("a long enough secret") && !text.contains("argon2"));
         }
+    }
+
+    #[test]
+    fn the_last_active_administrator_stays() {
+        let mut lib = Library::in_memory("t").unwrap();
+        lib.add_account("q", Role::Admin, "root").unwrap();
+        lib.add_account("r", Role::Reader, "root").unwrap();
+        let events = lib.events(None).unwrap().len();
+        let e = lib.disable_account("q", "gone", "root").unwrap_err();
+        assert!(e.to_string().contains("only active administrator"), "{e}");
+        let e = lib.set_role("q", Role::Curator, "why", "root").unwrap_err();
+        assert!(e.to_string().contains("only active administrator"), "{e}");
+        assert_eq!(lib.events(None).unwrap().len(), events);
+        // A disabled administrator does not count as one.
+        lib.add_account("s", Role::Admin, "root").unwrap();
+        lib.disable_account("s", "gone", "root").unwrap();
+        assert!(lib.set_role("q", Role::Reader, "why", "root").is_err());
+        lib.set_role("r", Role::Admin, "why", "root").unwrap();
+        lib.set_role("q", Role::Reader, "why", "root").unwrap();
+        assert!(lib.disable_account("r", "gone", "root").is_err());
     }
 
     #[test]

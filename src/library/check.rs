@@ -792,10 +792,8 @@ impl Library {
             "findings": report.findings.len(),
             "first_findings": first,
         });
-        self.write(|tx| {
-            let seq = super::events::append_event(tx, actor, "check", "library", &payload)?;
-            Ok((seq, vec![]))
-        })
+        // A check changes no spectrum, so the derived stores stay current (`write_trail`).
+        self.write_trail(|tx| super::events::append_event(tx, actor, "check", "library", &payload))
     }
 
     /// The newest check recorded in the audit trail, if any.
@@ -841,6 +839,40 @@ impl Library {
 mod tests {
     use super::*;
     use crate::library::Status;
+
+    /// A recorded check, like an account change, touches no spectrum: the generation and the
+    /// fingerprint stay, so the vector cache in use is still current and is reused, not built
+    /// again; a spectrum added moves both and the next search builds a new one.
+    #[test]
+    fn a_recorded_check_leaves_the_vector_cache_current() {
+        use crate::cache::kind_for;
+        use crate::library::testing::{add, ir};
+        use crate::library::{Role, Snapshot};
+        use crate::score::Measure;
+        use std::sync::Arc;
+        let mut lib = Library::in_memory("t").unwrap();
+        add(&mut lib, &ir(1, "acetone", "alice"));
+        let kind = kind_for(Technique::Ir, Measure::default_for(Technique::Ir)).unwrap();
+        let report = lib.check(&|_, _| {}).unwrap();
+        let cache = lib.vector_cache(Technique::Ir, kind).unwrap();
+        let before: Snapshot = lib.snapshot().unwrap();
+        lib.record_check("alice", &report).unwrap();
+        lib.add_account("erin", Role::Reader, "root").unwrap();
+        assert_eq!(lib.snapshot().unwrap(), before);
+        let again = lib.vector_cache(Technique::Ir, kind).unwrap();
+        assert!(
+            Arc::ptr_eq(&cache, &again),
+            "the check made the cache rebuild"
+        );
+        add(&mut lib, &ir(2, "butanone", "bob"));
+        assert_ne!(lib.snapshot().unwrap().generation, before.generation);
+        let rebuilt = lib.vector_cache(Technique::Ir, kind).unwrap();
+        assert!(
+            !Arc::ptr_eq(&cache, &rebuilt),
+            "a new spectrum left the cache as it was"
+        );
+        assert_eq!(rebuilt.rows(), 2);
+    }
 
     #[test]
     fn a_recorded_check_is_the_last_check_and_checks_clean() {

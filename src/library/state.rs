@@ -75,6 +75,12 @@ pub(super) fn reweigh(
 impl Library {
     /// Runs `f` in one write transaction, bumps the generation, commits, and refreshes the
     /// text-index documents of the spectra `f` reports as touched.
+    ///
+    /// The generation counts the writes that may change what the derived stores are built
+    /// from (spectra, their revisions and metadata, prepared forms, recipes, the content sum):
+    /// the text index and every vector cache record the generation they reflect and are
+    /// rebuilt when it moves. A write that touches none of that goes through
+    /// [`Library::write_trail`] instead.
     pub(super) fn write<T>(
         &mut self,
         f: impl FnOnce(&Connection) -> Result<(T, Vec<i64>)>,
@@ -86,6 +92,23 @@ impl Library {
         let generation = bump_generation(&tx)?;
         tx.commit()?;
         self.sync_text(&touched, generation)?;
+        Ok(value)
+    }
+
+    /// Runs `f` in one write transaction that leaves the generation alone, for writes that
+    /// touch only the audit trail and the account and token tables (a recorded check, an
+    /// account or token change, a lock-out). No derived store reads those tables, so the text
+    /// index and the vector caches stay current: a check recorded from the audit page does not
+    /// make the next search rebuild its cache. The event chain still grows by one link; the
+    /// fingerprint, which no such write can move (it sums spectra and recipes only), is left
+    /// as it is. `f` must not write a spectrum, revision, prepared form, recipe or the content
+    /// sum: those go through [`Library::write`].
+    pub(super) fn write_trail<T>(&mut self, f: impl FnOnce(&Connection) -> Result<T>) -> Result<T> {
+        let tx = self
+            .conn
+            .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
+        let value = f(&tx)?;
+        tx.commit()?;
         Ok(value)
     }
 }

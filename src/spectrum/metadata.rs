@@ -116,6 +116,41 @@ impl FromStr for Status {
     }
 }
 
+/// Extra fields given as `KEY=VALUE` texts (`whorl add --set`, the submit page's lines): a
+/// value is required and a key may be given once; the key's own rules (reserved and colliding
+/// keys) are the library's, checked when the metadata is staged. `given` names how the pairs
+/// were given in a refusal ("--set", "extra field") and `form` how to write one in its hint
+/// ("--set KEY=VALUE, e.g. --set ri=1012").
+pub fn extra_fields<'a>(
+    pairs: impl IntoIterator<Item = &'a str>,
+    given: &str,
+    form: &str,
+) -> Result<BTreeMap<String, String>> {
+    let mut extra = BTreeMap::new();
+    for kv in pairs {
+        let Some((k, v)) = kv.split_once('=') else {
+            return Err(Error::invalid(
+                format!("{given} '{}' has no '='", crate::error::excerpt(kv, 60)),
+                format!("write {form}"),
+            ));
+        };
+        let (k, v) = (k.trim(), v.trim());
+        if v.is_empty() {
+            return Err(Error::invalid(
+                format!("{given} {k}= gives no value"),
+                format!("give a value ({form}), or leave the field out"),
+            ));
+        }
+        if extra.insert(k.to_string(), v.to_string()).is_some() {
+            return Err(Error::invalid(
+                format!("{given} {k} is given twice"),
+                "give each extra field once",
+            ));
+        }
+    }
+    Ok(extra)
+}
+
 /// A text cell made safe to open in a spreadsheet, following the OWASP Foundation's "CSV
 /// Injection" guidance (OWASP Cheat Sheet Series, "Injection Prevention", CSV injection
 /// section): a cell starting with `=`, `+`, `-`, `@`, a tab or a carriage return is read by

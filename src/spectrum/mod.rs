@@ -4,7 +4,7 @@ mod metadata;
 mod reader;
 mod units;
 
-pub use metadata::{Metadata, Status, csv_cell, csv_cell_restored};
+pub use metadata::{Metadata, Status, csv_cell, csv_cell_restored, extra_fields};
 pub use reader::{ParsedPoints, check_points, looks_like, read_points, read_points_from_bytes};
 pub use units::{XUnit, YUnit};
 

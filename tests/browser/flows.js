@@ -238,6 +238,19 @@ async function main() {
     const rows = await page.$$('table.list tbody tr');
     expect(rows.length > 1, `the library lists ${rows.length} spectra on its first page`, 'empty');
     await visited(page, 'library');
+    // Sorting by keyboard alone: the compound heading is a link; focused and Enter sorts by
+    // name, and the same heading then turns the order round.
+    for (const order of ['ascending', 'descending']) {
+      await page.focus('#spectra th a[href*="sort=name"]');
+      await Promise.all([page.waitForNavigation(), page.keyboard.press('Enter')]);
+      const names = await page.$$eval('#spectra tbody tr', (rs) => rs.map((r) => r.cells[1].textContent.trim().toLowerCase()));
+      const sorted = [...names].sort();
+      if (order === 'descending') sorted.reverse();
+      const sort = await page.getAttribute('#spectra th[aria-sort]', 'aria-sort');
+      expect(JSON.stringify(names) === JSON.stringify(sorted) && sort === order,
+        `the library sorted by compound name, ${order}, by keyboard (${names[0]} first)`, `${sort}: ${names.slice(0, 5)}`);
+    }
+    await visited(page, 'library-sorted');
     await page.goto(base + `/spectra/${pending}`);
     const title = (await page.textContent('h1')) || '';
     expect(title.includes(pending) || title.length > 0, `the spectrum page of ${pending} opens`, page.url());

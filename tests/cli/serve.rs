@@ -305,6 +305,65 @@ fn accounts_refuse_look_alikes_short_passwords_and_keep_an_audit_trail() {
 }
 
 #[test]
+fn the_last_active_administrator_can_be_neither_disabled_nor_demoted() {
+    let lab = Lab::new();
+    lab.ok(&["account", "add", "q.manager", "--role", "admin"]);
+    lab.ok(&["account", "add", "r.deputy", "--role", "curator"]);
+    let before = lab.json(&["account", "list"]);
+    for args in [
+        &[
+            "account",
+            "disable",
+            "q.manager",
+            "--reason",
+            "left the lab",
+        ][..],
+        &[
+            "account",
+            "role",
+            "q.manager",
+            "curator",
+            "--reason",
+            "steps back",
+        ][..],
+    ] {
+        let text = lab.refuses(args, 3);
+        assert!(
+            text.contains("'q.manager' is the only active administrator"),
+            "{args:?}: {text}"
+        );
+        assert!(
+            hint(&text).contains("give another account the admin role first"),
+            "{text}"
+        );
+    }
+    // Nothing was written, not even an event.
+    assert_eq!(lab.json(&["account", "list"]), before);
+    // With a second administrator, the first may go; then the second is the last one.
+    lab.ok(&[
+        "account",
+        "role",
+        "r.deputy",
+        "admin",
+        "--reason",
+        "takes over",
+    ]);
+    lab.ok(&[
+        "account",
+        "disable",
+        "q.manager",
+        "--reason",
+        "left the lab",
+    ]);
+    let text = lab.refuses(&["account", "disable", "r.deputy", "--reason", "x"], 3);
+    assert!(
+        text.contains("'r.deputy' is the only active administrator"),
+        "{text}"
+    );
+    lab.ok(&["check"]);
+}
+
+#[test]
 fn a_non_loopback_address_is_refused_without_a_tls_proxy() {
     let lab = Lab::new();
     let text = lab.fails(&["serve", "--address", "0.0.0.0:0"], 3);

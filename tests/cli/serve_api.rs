@@ -684,6 +684,57 @@ fn identify_find_import_revise_and_check_answer_as_the_command_line_does() {
     assert_eq!(c.body["findings"], json!([]));
     assert_eq!(c.body["spectra"], lab.json(&["check"])["spectra"]);
     assert_eq!(c.body["fingerprint"], lab.fingerprint());
+
+    // A recorded check changes no spectrum, so it leaves the vector cache current: the check
+    // rebuilds the cache as it verifies, and the next search maps that same file instead of
+    // building a new one and renaming it into place (a new inode). A pending spectrum added
+    // does make the next search build it again.
+    let unknown = seed().join("unknowns/u01.ir.csv");
+    let search = || lab.ok(&["search", unknown.to_str().unwrap(), "-t", "ir"]);
+    let fingerprint = lab.fingerprint();
+    let c = call(
+        &server,
+        "POST",
+        "/api/v1/check",
+        Auth::Bearer(&curator),
+        None,
+    );
+    assert_eq!(c.status, 200, "{}", c.body);
+    assert_eq!(
+        lab.json(&["log"]).as_array().unwrap().last().unwrap()["action"],
+        "check"
+    );
+    assert_eq!(lab.fingerprint(), fingerprint);
+    let before = ir_cache_identity(&lab);
+    search();
+    assert_eq!(
+        ir_cache_identity(&lab),
+        before,
+        "the recorded check made the cache rebuild"
+    );
+    pending(&lab, 90);
+    search();
+    assert_ne!(
+        ir_cache_identity(&lab),
+        before,
+        "a new spectrum left the cache as it was"
+    );
+}
+
+/// The IR vector cache file's inode and modification time: a rebuild writes a new file and
+/// renames it into place, so both change.
+fn ir_cache_identity(lab: &Lab) -> (u64, i64, i64) {
+    use std::os::unix::fs::MetadataExt;
+    let file = std::fs::read_dir(lab.library().join("cache"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .find(|p| {
+            let name = p.file_name().unwrap().to_string_lossy();
+            name.starts_with("ir.") && name.ends_with(".wvc")
+        })
+        .expect("an IR vector cache after a search");
+    let m = std::fs::metadata(file).unwrap();
+    (m.ino(), m.mtime(), m.mtime_nsec())
 }
 
 #[test]

@@ -469,6 +469,28 @@ fn the_identify_page_gives_the_command_lines_fused_list_and_the_accounts_page_is
         &[("csrf", &csrf), ("reason", "testing")],
     );
     assert_eq!(own.status, 400, "{}", own.html);
+    // Nor may the only administrator demote themself: the library refuses it, as it refuses
+    // `whorl account role`, and the page says why and what to do.
+    let demoted = post_fields(
+        &server,
+        &admin,
+        &format!("/accounts/{admin_id}/role"),
+        &[
+            ("csrf", &csrf),
+            ("role", "curator"),
+            ("reason", "stepping back"),
+        ],
+    );
+    assert_eq!(demoted.status, 400, "{}", demoted.html);
+    assert!(
+        demoted.html.contains("Role not changed")
+            && demoted.html.contains("is the only active administrator")
+            && demoted
+                .html
+                .contains("give another account the admin role first"),
+        "{}",
+        demoted.html
+    );
     let disabled = post_fields(
         &server,
         &admin,
@@ -512,4 +534,269 @@ fn the_identify_page_gives_the_command_lines_fused_list_and_the_accounts_page_is
     );
     assert!(!lab.ok(&["log", "--json"]).contains("newcomer passphrase"));
     lab.ok(&["check"]);
+}
+
+#[test]
+fn uploads_held_for_an_account_are_capped_and_a_submission_beyond_the_cap_is_refused() {
+    let lab = lab_with_accounts();
+    // An account may have twice --max-body of uploads held: 2 MiB here.
+    let server = Server::start_with(&lab, &["--max-body", "1"]);
+    // 1-butanol's points again, each y written with 440 more zeros: the same numbers in over
+    // 0.7 MiB, so two previews fit in 2 MiB and a third does not.
+    let big: Vec<u8> = String::from_utf8(butanol_again())
+        .unwrap()
+        .lines()
+        .map(|line| match line.split_once(',') {
+            Some((_, y)) if y.parse::<f64>().is_ok() => format!("{line}{}\n", "0".repeat(440)),
+            _ => format!("{line}\n"),
+        })
+        .collect::<String>()
+        .into_bytes();
+    assert!((700_000..1_000_000).contains(&big.len()), "{}", big.len());
+    let before = lab.state();
+    let preview = |role: &str| {
+        let (cookie, csrf) = session(&server, role);
+        post_multipart(
+            &server,
+            &cookie,
+            "/submit",
+            &[
+                ("csrf", None, text(&csrf)),
+                ("technique", None, text("ir")),
+                ("name", None, text("padded probe")),
+                ("file", Some("padded.ir.csv"), big.clone()),
+            ],
+        )
+    };
+    for n in 0..2 {
+        let held = preview("submitter");
+        assert_eq!(held.status, 303, "preview {n}: {}", held.html);
+    }
+    let refused = preview("submitter");
+    assert_eq!(refused.status, 429, "{}", refused.html);
+    assert!(
+        refused.html.contains("Submission refused")
+            && refused.html.contains("2.0 MiB it holds per account")
+            && refused
+                .html
+                .contains("confirm the submissions you have previewed"),
+        "{}",
+        refused.html
+    );
+    assert!(refused.html.contains("evidence, not proof"), "the caution");
+    // The cap is per account: another account still has room.
+    assert_eq!(preview("curator").status, 303);
+    assert_eq!(lab.state(), before, "a preview saved something");
+}
+
+/// The spectrum ids of the library page's list, in the order shown.
+fn listed_ids(html: &str) -> Vec<i64> {
+    let table = &html[html.find("id=\"spectra\"").unwrap()..];
+    let table = &table[..table.find("</table>").unwrap()];
+    table
+        .split("<a href=\"/spectra/")
+        .skip(1)
+        .map(|s| s[..s.find('"').unwrap()].parse().unwrap())
+        .collect()
+}
+
+#[test]
+fn the_library_page_filters_by_tag_and_instrument_and_sorts_by_its_column_links() {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let (cookie, _) = session(&server, "reader");
+    // What to expect, from the seed manifest the library was imported from (not through the
+    // server): each row's id by its compound name and technique.
+    let ids: std::collections::HashMap<(String, String), i64> = list(&lab)
+        .iter()
+        .map(|s| {
+            (
+                (
+                    s["name"].as_str().unwrap().to_string(),
+                    s["technique"].as_str().unwrap().to_string(),
+                ),
+                s["id"].as_i64().unwrap(),
+            )
+        })
+        .collect();
+    let manifest: Vec<(i64, String, Vec<String>, String, String)> =
+        crate::util::csv_rows(&seed().join("manifest.csv"))
+            .into_iter()
+            .map(|r| {
+                (
+                    ids[&(r["name"].clone(), r["technique"].clone())],
+                    r["name"].to_lowercase(),
+                    r["tags"].split(';').map(str::to_string).collect(),
+                    r["instrument"].clone(),
+                    r["acquired"].clone(),
+                )
+            })
+            .collect();
+
+    // A tag in any case, sorted by date acquired, newest first (ties by id).
+    let mut ketones: Vec<&(i64, String, Vec<String>, String, String)> = manifest
+        .iter()
+        .filter(|m| m.2.iter().any(|t| t == "ketone"))
+        .collect();
+    ketones.sort_by(|a, b| b.4.cmp(&a.4).then(a.0.cmp(&b.0)));
+    let expected: Vec<i64> = ketones.iter().map(|m| m.0).collect();
+    assert!(expected.len() > 5 && expected.len() < 50);
+    let shown = get(&server, &cookie, "/library?tag=KETONE&sort=date&order=desc");
+    assert_eq!(shown.status, 200, "{}", shown.html);
+    assert_eq!(listed_ids(&shown.html), expected);
+    assert!(shown.html.contains("by date acquired, descending"));
+    assert!(shown.html.contains("aria-sort=\"descending\""));
+    assert!(
+        shown.html.contains("evidence, not proof"),
+        "the caution on the page"
+    );
+
+    // An instrument by part of its name, in any case, with the tag.
+    let mut expected: Vec<i64> = manifest
+        .iter()
+        .filter(|m| m.2.iter().any(|t| t == "ketone") && m.3.to_lowercase().contains("raman probe"))
+        .map(|m| m.0)
+        .collect();
+    expected.sort();
+    assert!(!expected.is_empty());
+    let shown = get(
+        &server,
+        &cookie,
+        "/library?tag=ketone&instrument=RAMAN%20probe",
+    );
+    assert_eq!(listed_ids(&shown.html), expected);
+    assert!(
+        shown.html.contains("value=\"RAMAN probe\""),
+        "the field keeps it"
+    );
+
+    // Sorted by compound name through the heading's link; the first page and the pager keep
+    // the order, and the heading's link now turns it round.
+    let mut by_name: Vec<(String, i64)> = manifest.iter().map(|m| (m.1.clone(), m.0)).collect();
+    by_name.sort();
+    let first = get(&server, &cookie, "/library");
+    assert!(
+        first
+            .html
+            .contains("<a href=\"/library?page=1&#38;sort=name&#38;order=asc\">compound</a>"),
+        "{}",
+        first.html
+    );
+    let shown = get(&server, &cookie, "/library?page=1&sort=name&order=asc");
+    assert_eq!(
+        listed_ids(&shown.html),
+        by_name.iter().take(50).map(|n| n.1).collect::<Vec<_>>()
+    );
+    assert!(shown.html.contains(
+        "aria-sort=\"ascending\"><a href=\"/library?page=1&#38;sort=name&#38;order=desc\">compound"
+    ));
+    assert!(
+        shown
+            .html
+            .contains("href=\"/library?page=2&#38;sort=name&#38;order=asc\" rel=\"next\""),
+        "{}",
+        shown.html
+    );
+    let second = get(&server, &cookie, "/library?page=2&sort=name&order=asc");
+    assert_eq!(
+        listed_ids(&second.html),
+        by_name
+            .iter()
+            .skip(50)
+            .take(50)
+            .map(|n| n.1)
+            .collect::<Vec<_>>()
+    );
+
+    // A column the list does not sort by is refused with a hint.
+    let refused = get(&server, &cookie, "/library?sort=mass");
+    assert_eq!(refused.status, 400, "{}", refused.html);
+    assert!(
+        refused
+            .html
+            .contains("sort by name, technique, date or status")
+    );
+}
+
+#[test]
+fn extra_fields_on_the_submit_page_are_read_and_refused_as_whorl_add_reads_them() {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let (cookie, csrf) = session(&server, "submitter");
+    let file = butanol_again();
+    let sha256 = whorl::spectrum::sha256_hex(&file);
+    lab.write("probe.ir.csv", &file);
+    let before = lab.state();
+    let with = |extra: &str| {
+        post_multipart(
+            &server,
+            &cookie,
+            "/submit",
+            &[
+                ("csrf", None, text(&csrf)),
+                ("technique", None, text("ir")),
+                ("name", None, text("probe compound")),
+                ("extra", None, text(extra)),
+                ("file", Some("probe.ir.csv"), file.clone()),
+            ],
+        )
+    };
+    // Each refused on the page with the reason `whorl add --set` gives for the same pairs.
+    for (lines, set, why) in [
+        ("ri", vec!["ri"], "has no '='"),
+        ("ri=", vec!["ri="], "gives no value"),
+        ("ri=1\nri=2", vec!["ri=1", "ri=2"], "is given twice"),
+        (
+            "whorl_status=verified",
+            vec!["whorl_status=verified"],
+            "starts with 'whorl_'",
+        ),
+        (
+            "Submitted By=g.signer",
+            vec!["Submitted By=g.signer"],
+            "field in another spelling",
+        ),
+    ] {
+        let refused = with(lines);
+        assert_eq!(refused.status, 400, "{lines}: {}", refused.html);
+        let page = refused.html.replace("&#39;", "'");
+        assert!(page.contains(why), "{lines}: {page}");
+        let mut args = vec!["add", "probe.ir.csv", "-t", "ir", "--name", "probe"];
+        for kv in &set {
+            args.extend(["--set", kv]);
+        }
+        let cli = lab.refuses(&args, 3);
+        assert!(cli.contains(why), "{set:?}: {cli}");
+    }
+    assert_eq!(lab.state(), before, "a refused submission saved something");
+
+    // Accepted (blank lines and spaces around '=' as `--set` allows): on the preview, then
+    // saved with the spectrum and searchable as KEY:VALUE.
+    let held = with("ri = 1012\n\nri_phase=DB-5\n");
+    assert_eq!(held.status, 303, "{}", held.html);
+    let preview = get(&server, &cookie, &held.location);
+    assert!(
+        preview.html.contains("ri_phase") && preview.html.contains("DB-5"),
+        "{}",
+        preview.html
+    );
+    let key = held.location.strip_prefix("/submit/").unwrap();
+    let saved = post_fields(
+        &server,
+        &cookie,
+        &format!("/submit/{key}/confirm"),
+        &[("csrf", &csrf), ("sha256", &sha256)],
+    );
+    assert_eq!(saved.status, 303, "{}", saved.html);
+    let id = saved
+        .location
+        .strip_prefix("/spectra/")
+        .and_then(|s| s.strip_suffix("?submitted=added"))
+        .unwrap()
+        .to_string();
+    let shown = lab.json(&["show", &id]);
+    assert_eq!(shown["spectrum"]["metadata"]["extra"]["ri"], "1012");
+    assert_eq!(shown["spectrum"]["metadata"]["extra"]["ri_phase"], "DB-5");
+    let found = lab.json(&["find", "ri_phase:DB-5"]);
+    assert!(found.to_string().contains("probe compound"), "{found}");
 }

@@ -1,6 +1,8 @@
 //! The library page: every spectrum, or those the find box's text query matches (the text
-//! index, as `whorl find`), filtered by technique and status and by numeric ranges of the
-//! metadata (the compound's average molar mass from its formula, the date acquired), in pages.
+//! index, as `whorl find`), filtered by technique, status, tag and instrument and by numeric
+//! ranges of the metadata (the compound's average molar mass from its formula, the date
+//! acquired), sorted by a column (compound name, technique, date acquired, status) through the
+//! query string, so sorting works by links alone, without a script; in pages.
 
 use askama::Template;
 use axum::extract::rejection::QueryRejection;
@@ -41,7 +43,31 @@ struct Filter {
     mass_max: Option<String>,
     acquired_from: Option<String>,
     acquired_to: Option<String>,
+    tag: Option<String>,
+    instrument: Option<String>,
+    sort: Option<String>,
+    order: Option<String>,
     page: Option<usize>,
+}
+
+/// The columns the list sorts by (`sort=`), with what the summary says.
+const SORTS: [(&str, &str); 4] = [
+    ("name", "compound name"),
+    ("technique", "technique"),
+    ("date", "date acquired"),
+    ("status", "status"),
+];
+
+/// A column heading: its label, and for a sortable column the link that sorts by it.
+struct Header {
+    label: &'static str,
+    num: bool,
+    /// The link sorting by this column ("" when it does not sort).
+    href: String,
+    /// `aria-sort` of the column sorted by ("" for the others; WAI-ARIA 1.2 puts it on one).
+    aria_sort: &'static str,
+    /// The arrow shown beside the sorted column's label.
+    arrow: &'static str,
 }
 
 /// The numeric ranges asked for; a bound left empty is open.
@@ -149,6 +175,10 @@ struct Row {
     revision: i64,
     /// The average molar mass from the formula, g/mol ("" without one).
     mass: String,
+    /// The date acquired, as recorded ("" when none is).
+    acquired: String,
+    tags: Vec<String>,
+    instrument: String,
 }
 
 #[derive(Template)]
@@ -162,6 +192,11 @@ struct LibraryPage {
     mass_max: String,
     acquired_from: String,
     acquired_to: String,
+    tag: String,
+    instrument: String,
+    sort: String,
+    order: String,
+    headers: Vec<Header>,
     summary: String,
     rows: Vec<Row>,
     page: usize,
@@ -195,6 +230,37 @@ async fn page(
         Ok(r) => r,
         Err(e) => return b.fail("Library", e),
     };
+    let sort = f.sort.clone().unwrap_or_default().trim().to_string();
+    let sort_label = match SORTS.iter().find(|(k, _)| *k == sort) {
+        Some((_, label)) => Some(*label),
+        None if sort.is_empty() => None,
+        None => {
+            return b.fail(
+                "Library",
+                ApiError::input(
+                    format!("'{sort}' is not a column the list sorts by"),
+                    "sort by name, technique, date or status (the column headings' links)",
+                ),
+            );
+        }
+    };
+    let descending = match f.order.as_deref().map(str::trim).unwrap_or("") {
+        "" | "asc" => false,
+        "desc" => true,
+        other => {
+            return b.fail(
+                "Library",
+                ApiError::input(
+                    format!("'{other}' is not an order"),
+                    "give order=asc or order=desc",
+                ),
+            );
+        }
+    };
+    let tag = f.tag.clone().unwrap_or_default().trim().to_string();
+    let instrument = f.instrument.clone().unwrap_or_default().trim().to_string();
+    let (wanted_tag, wanted_instrument) = (tag.to_lowercase(), instrument.to_lowercase());
+    let sort_by = sort.clone();
     let wanted = ranges.clone();
     let query = q.clone();
     let rows = state
@@ -211,6 +277,9 @@ async fn page(
                         technique: s.technique.name().to_string(),
                         status: s.status.name().to_string(),
                         revision: s.revision,
+                        acquired: String::new(),
+                        tags: Vec::new(),
+                        instrument: String::new(),
                     })
                     .collect()
             } else {
@@ -233,6 +302,9 @@ async fn page(
                         technique: r.technique.name().to_string(),
                         status: r.status.name().to_string(),
                         revision: 0,
+                        acquired: String::new(),
+                        tags: Vec::new(),
+                        instrument: String::new(),
                     })
                     .collect()
             };
@@ -240,17 +312,29 @@ async fn page(
                 rows.retain(|r| r.status == s.name());
             }
             rows.retain(|r| wanted.mass_fits(r.mass.parse::<f64>().ok()));
-            if wanted.acquired_given() {
-                let ids: Vec<i64> = rows.iter().map(|r| r.id).collect();
-                let acquired: std::collections::HashMap<i64, Option<String>> = lib
-                    .hit_records(&ids)?
-                    .into_iter()
-                    .map(|r| (r.id, r.metadata.acquired))
-                    .collect();
-                rows.retain(|r| {
-                    wanted.acquired_fits(acquired.get(&r.id).and_then(|a| a.as_deref()))
-                });
+            // The metadata the date column, the tag and instrument filters and the date sort
+            // read, in one query over the rows left.
+            let ids: Vec<i64> = rows.iter().map(|r| r.id).collect();
+            let mut metadata: std::collections::HashMap<i64, whorl::library::Metadata> = lib
+                .hit_records(&ids)?
+                .into_iter()
+                .map(|r| (r.id, r.metadata))
+                .collect();
+            for r in rows.iter_mut() {
+                if let Some(m) = metadata.remove(&r.id) {
+                    r.acquired = m.acquired.unwrap_or_default();
+                    r.tags = m.tags;
+                    r.instrument = m.instrument.unwrap_or_default();
+                }
             }
+            rows.retain(|r| {
+                wanted.acquired_fits(Some(r.acquired.as_str()).filter(|a| !a.is_empty()))
+                    && (wanted_tag.is_empty()
+                        || r.tags.iter().any(|t| t.to_lowercase() == wanted_tag))
+                    && (wanted_instrument.is_empty()
+                        || r.instrument.to_lowercase().contains(&wanted_instrument))
+            });
+            sort_rows(&mut rows, &sort_by, descending);
             Ok::<_, ApiError>(rows)
         })
         .await;
@@ -262,9 +346,11 @@ async fn page(
     let pages = total.div_ceil(PAGE).max(1);
     let page = f.page.unwrap_or(1).clamp(1, pages);
     let rows: Vec<Row> = rows.drain(..).skip((page - 1) * PAGE).take(PAGE).collect();
-    let link = |p: usize| {
+    let link = |p: usize, sort: &str, order: &str| {
         let mut s = format!("/library?page={p}");
         for (k, v) in [
+            ("sort", sort),
+            ("order", order),
             ("q", q.as_str()),
             ("technique", f.technique.as_deref().unwrap_or("")),
             ("status", f.status.as_deref().unwrap_or("")),
@@ -272,6 +358,8 @@ async fn page(
             ("mass_max", f.mass_max.as_deref().unwrap_or("")),
             ("acquired_from", f.acquired_from.as_deref().unwrap_or("")),
             ("acquired_to", f.acquired_to.as_deref().unwrap_or("")),
+            ("tag", tag.as_str()),
+            ("instrument", instrument.as_str()),
         ] {
             if !v.is_empty() {
                 s.push_str(&format!("&{k}={}", encode(v)));
@@ -279,11 +367,64 @@ async fn page(
         }
         s
     };
-    let summary = match (q.is_empty(), total) {
-        (_, 0) => "No spectrum matches.".to_string(),
-        (true, n) => format!("{n} spectra; by id."),
-        (false, n) => format!("{n} spectra match, most relevant first."),
+    let order = if descending { "desc" } else { "asc" };
+    let summary = match (q.is_empty(), total, sort_label) {
+        (_, 0, _) => "No spectrum matches.".to_string(),
+        (_, n, Some(label)) => format!(
+            "{n} spectra; by {label}, {}.",
+            if descending {
+                "descending"
+            } else {
+                "ascending"
+            }
+        ),
+        (true, n, None) => format!("{n} spectra; by id."),
+        (false, n, None) => format!("{n} spectra match, most relevant first."),
     };
+    let headers = [
+        ("spectrum", "", true),
+        ("compound", "name", false),
+        ("formula", "", false),
+        ("CAS RN", "", false),
+        ("molar mass", "", true),
+        ("technique", "technique", false),
+        ("status", "status", false),
+        ("revision", "", true),
+        ("acquired", "date", false),
+    ]
+    .into_iter()
+    .map(|(label, key, num)| {
+        let current = !key.is_empty() && key == sort;
+        Header {
+            label,
+            num,
+            // The sorted column's link turns the order round; another column's sorts up.
+            href: if key.is_empty() {
+                String::new()
+            } else {
+                link(
+                    1,
+                    key,
+                    if current && !descending {
+                        "desc"
+                    } else {
+                        "asc"
+                    },
+                )
+            },
+            aria_sort: match (current, descending) {
+                (false, _) => "",
+                (true, false) => "ascending",
+                (true, true) => "descending",
+            },
+            arrow: match (current, descending) {
+                (false, _) => "",
+                (true, false) => "\u{2191}",
+                (true, true) => "\u{2193}",
+            },
+        }
+    })
+    .collect();
     render(&LibraryPage {
         layout: b.layout("Library", "/library"),
         q: q.clone(),
@@ -300,21 +441,51 @@ async fn page(
         mass_max: f.mass_max.clone().unwrap_or_default(),
         acquired_from: f.acquired_from.clone().unwrap_or_default(),
         acquired_to: f.acquired_to.clone().unwrap_or_default(),
+        tag: tag.clone(),
+        instrument: instrument.clone(),
+        sort: sort.clone(),
+        order: if sort.is_empty() {
+            String::new()
+        } else {
+            order.to_string()
+        },
+        headers,
         summary,
         rows,
         page,
         pages,
         previous: if page > 1 {
-            link(page - 1)
+            link(page - 1, &sort, order)
         } else {
             String::new()
         },
         next: if page < pages {
-            link(page + 1)
+            link(page + 1, &sort, order)
         } else {
             String::new()
         },
     })
+}
+
+/// Sorts the rows by a column of [`SORTS`] ("" keeps their order: by id, or by relevance),
+/// ties by id; rows without a date acquired come last in either order.
+fn sort_rows(rows: &mut [Row], sort: &str, descending: bool) {
+    use std::cmp::Ordering;
+    let by: fn(&Row, &Row) -> Ordering = match sort {
+        "name" => |a, b| a.name.to_lowercase().cmp(&b.name.to_lowercase()),
+        "technique" => |a, b| a.technique.cmp(&b.technique),
+        "status" => |a, b| a.status.cmp(&b.status),
+        "date" => |a, b| a.acquired.cmp(&b.acquired),
+        _ => return,
+    };
+    rows.sort_by(|a, b| {
+        if sort == "date" && a.acquired.is_empty() != b.acquired.is_empty() {
+            return a.acquired.is_empty().cmp(&b.acquired.is_empty());
+        }
+        let o = by(a, b);
+        let o = if descending { o.reverse() } else { o };
+        o.then(a.id.cmp(&b.id))
+    });
 }
 
 /// A molar mass for the list: two decimals, "" without a formula that can be weighed.

@@ -271,58 +271,146 @@ pub fn render<T: Template>(t: &T) -> Response {
 const HOLD_FOR: Duration = Duration::from_secs(2 * 60 * 60);
 /// The most results and submissions held at once (the oldest are dropped first).
 const HOLD_AT_MOST: usize = 200;
+/// The uploaded bytes one account may have held at once, in request bodies (`--max-body`,
+/// 32 MiB by default: 64 MiB), so one account cannot fill the server's memory.
+const HELD_BODIES_PER_ACCOUNT: usize = 2;
+/// The uploaded bytes all accounts together may have held at once, in request bodies
+/// (512 MiB at the default `--max-body`).
+const HELD_BODIES_IN_ALL: usize = 16;
 
-/// Held items by id: owner account, when held, the item.
-type Items = HashMap<String, (i64, Instant, Arc<dyn std::any::Any + Send + Sync>)>;
+/// One held item: owner account, when held, the uploaded bytes it holds, the item.
+struct Item {
+    owner: i64,
+    at: Instant,
+    bytes: usize,
+    value: Arc<dyn std::any::Any + Send + Sync>,
+}
+
+/// Held items by id.
+type Items = HashMap<String, Item>;
 
 /// What one flow needs between two requests, held in memory under a random id and shown
-/// only to the account that made it (a restart forgets it).
+/// only to the account that made it (a restart forgets it). Items expire after
+/// [`HOLD_FOR`]; the uploaded bytes held are capped per account and in all (in multiples of
+/// the largest request body), and an upload beyond either cap is refused, never made room
+/// for by dropping another account's items.
 #[derive(Clone, Default)]
 pub struct Held {
     items: Arc<Mutex<Items>>,
 }
 
+fn mib(bytes: usize) -> String {
+    format!("{:.1} MiB", bytes as f64 / (1024.0 * 1024.0))
+}
+
 impl Held {
-    /// Holds `value` for `account`; returns its id.
+    fn lock(&self) -> std::sync::MutexGuard<'_, Items> {
+        let mut items = self.items.lock().unwrap_or_else(|e| e.into_inner());
+        items.retain(|_, i| i.at.elapsed() < HOLD_FOR);
+        items
+    }
+
+    /// Whether `account` may have `bytes` more uploaded bytes held, under a largest request
+    /// body of `max_body` bytes; a refusal says how much is held and what to do.
+    pub fn room(&self, account: i64, bytes: usize, max_body: usize) -> Result<(), ApiError> {
+        room(&self.lock(), account, bytes, max_body)
+    }
+
+    /// Holds `value`, which keeps `bytes` uploaded bytes, for `account`; returns its id.
+    /// Refused beyond the caps (see [`Held::room`]).
     pub fn put<T: Send + Sync + 'static>(
         &self,
         account: i64,
+        bytes: usize,
+        max_body: usize,
         value: T,
     ) -> Result<String, ApiError> {
         let id = hex::encode(whorl::library::random_bytes(16)?);
-        let mut items = self.items.lock().unwrap_or_else(|e| e.into_inner());
-        items.retain(|_, (_, at, _)| at.elapsed() < HOLD_FOR);
+        let mut items = self.lock();
+        room(&items, account, bytes, max_body)?;
         while items.len() >= HOLD_AT_MOST {
             let oldest = items
                 .iter()
-                .min_by_key(|(_, (_, at, _))| *at)
+                .min_by_key(|(_, i)| i.at)
                 .map(|(k, _)| k.clone());
             match oldest {
                 Some(k) => items.remove(&k),
                 None => break,
             };
         }
-        items.insert(id.clone(), (account, Instant::now(), Arc::new(value)));
+        items.insert(
+            id.clone(),
+            Item {
+                owner: account,
+                at: Instant::now(),
+                bytes,
+                value: Arc::new(value),
+            },
+        );
         Ok(id)
     }
 
     /// What `account` holds under `id`, if it is of type `T`.
     pub fn get<T: Send + Sync + 'static>(&self, account: i64, id: &str) -> Option<Arc<T>> {
-        let items = self.items.lock().unwrap_or_else(|e| e.into_inner());
-        let (owner, at, value) = items.get(id)?;
-        if *owner != account || at.elapsed() >= HOLD_FOR {
+        let items = self.lock();
+        let item = items.get(id)?;
+        if item.owner != account {
             return None;
         }
-        value.clone().downcast::<T>().ok()
+        item.value.clone().downcast::<T>().ok()
     }
 
     /// What `account` holds under `id`, if it is of type `T`, no longer held after this (a
     /// confirmation is used once).
     pub fn take<T: Send + Sync + 'static>(&self, account: i64, id: &str) -> Option<Arc<T>> {
         let found = self.get::<T>(account, id)?;
-        let mut items = self.items.lock().unwrap_or_else(|e| e.into_inner());
+        let mut items = self.lock();
         items.remove(id).map(|_| found)
     }
+}
+
+fn room(items: &Items, account: i64, bytes: usize, max_body: usize) -> Result<(), ApiError> {
+    let per_account = HELD_BODIES_PER_ACCOUNT.saturating_mul(max_body);
+    let in_all = HELD_BODIES_IN_ALL.saturating_mul(max_body);
+    let mine: usize = items
+        .values()
+        .filter(|i| i.owner == account)
+        .map(|i| i.bytes)
+        .sum();
+    let all: usize = items.values().map(|i| i.bytes).sum();
+    let too_much = |message: String, hint: &str| {
+        // 429 (RFC 6585 section 4): a quota over time, as held uploads expire; not 413, which
+        // the server keeps for a request body over --max-body.
+        Err(ApiError::new(
+            StatusCode::TOO_MANY_REQUESTS,
+            "too-much-held",
+            message,
+            hint,
+        ))
+    };
+    if mine.saturating_add(bytes) > per_account {
+        return too_much(
+            format!(
+                "the server already holds {} of your uploads (previewed submissions and searches kept for their report); this {} would pass the {} it holds per account",
+                mib(mine),
+                mib(bytes),
+                mib(per_account)
+            ),
+            "confirm the submissions you have previewed, or wait: held uploads are forgotten two hours after they were made",
+        );
+    }
+    if all.saturating_add(bytes) > in_all {
+        return too_much(
+            format!(
+                "the server holds {} of uploads for all accounts; this {} would pass the {} it holds in all",
+                mib(all),
+                mib(bytes),
+                mib(in_all)
+            ),
+            "try again later: held uploads are forgotten two hours after they were made",
+        );
+    }
+    Ok(())
 }
 
 /// The answer when a held item is gone (expired, restarted, or someone else's).

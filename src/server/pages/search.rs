@@ -146,6 +146,8 @@ async fn run(
         Some(t) => (t, String::new()),
         None => suggest(&file_name, &bytes)?,
     };
+    let max_body = state.options.max_body;
+    held.room(b.caller.account.id, bytes.len(), max_body)?;
     let root = state.options.library.clone();
     let top = o.top.clamp(1, MOST_HITS);
     let include_pending = o.include_pending;
@@ -183,6 +185,8 @@ async fn run(
     tracing::info!(account = %b.caller.account.name, %technique, "search page");
     held.put(
         b.caller.account.id,
+        bytes.len(),
+        max_body,
         Searched {
             file_name,
             bytes,

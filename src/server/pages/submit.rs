@@ -119,8 +119,9 @@ async fn form(b: Browser<ToSubmit>) -> Response {
     })
 }
 
-const FIELDS: [&str; 14] = [
+const FIELDS: [&str; 15] = [
     "csrf",
+    "extra",
     "technique",
     "name",
     "formula",
@@ -178,7 +179,17 @@ fn metadata(form: &Upload) -> Result<Metadata, ApiError> {
         instrument: text("instrument"),
         acquired: text("acquired"),
         notes: text("note"),
-        extra: Default::default(),
+        // One KEY=VALUE a line, read as `whorl add --set` reads its pairs; the keys' own
+        // rules are checked with the rest when the submission is staged.
+        extra: whorl::spectrum::extra_fields(
+            form.field("extra")
+                .unwrap_or_default()
+                .lines()
+                .map(str::trim)
+                .filter(|l| !l.is_empty()),
+            "extra field",
+            "one KEY=VALUE a line, e.g. ri=1012",
+        )?,
     })
 }
 
@@ -291,6 +302,9 @@ async fn hold(
     let x_unit: Option<XUnit> = form.parsed("x_unit")?;
     let y_unit: Option<YUnit> = form.parsed("y_unit")?;
     let file_name = safe_name(raw_name);
+    let max_body = state.options.max_body;
+    // Refused before the checks run when the upload could not be held anyway.
+    held.room(b.caller.account.id, bytes.len(), max_body)?;
     let bytes = bytes.clone();
     let account = b.caller.account.name.clone();
     let (name, data, m) = (file_name.clone(), bytes.clone(), metadata.clone());
@@ -320,6 +334,8 @@ async fn hold(
     tracing::info!(account = %b.caller.account.name, %technique, "submission previewed");
     held.put(
         b.caller.account.id,
+        bytes.len(),
+        max_body,
         Awaiting {
             session: b.csrf.clone(),
             sha256: sha256_hex(&bytes),
@@ -378,6 +394,7 @@ fn metadata_rows(m: &Metadata) -> Vec<(String, String)> {
     if !m.tags.is_empty() {
         rows.push(("tags".into(), m.tags.join(", ")));
     }
+    rows.extend(m.extra.iter().map(|(k, v)| (k.clone(), v.clone())));
     rows
 }
 
