@@ -62,6 +62,13 @@ pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         for t in &report.caches_rebuilt {
             writeln!(out, "vector cache for {t} rebuilt (derived data)")?;
         }
+        if report.unsealed > 0 {
+            writeln!(
+                out,
+                "not covered: {} records (spectra, accounts, tokens, trusted keys) were last written by a version of whorl that did not seal their rows in the audit trail; for them only what their events record field by field is compared",
+                report.unsealed
+            )?;
+        }
         writeln!(
             out,
             "checked {} events and {} spectra: {}",

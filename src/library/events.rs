@@ -126,7 +126,8 @@ pub fn append_event(
         .unwrap_or((0, GENESIS_HASH.to_string()));
     let seq = last_seq + 1;
     let at = now();
-    let payload_text = payload.to_string();
+    // Events on a record seal the rows it stands for, as this transaction leaves them.
+    let payload_text = super::seal::sealed_payload(tx, record, payload)?.to_string();
     let payload_hash = sha256_hex(payload_text.as_bytes());
     let identity = identity_of(tx)?;
     let hash = event_hash_with(

@@ -18,6 +18,7 @@ mod recipe_change;
 mod records;
 mod review;
 mod schema;
+mod seal;
 mod stage;
 mod state;
 mod store;
@@ -208,7 +209,11 @@ impl Library {
                 params![k, v],
             )?;
         }
-        let payload = serde_json::json!({ "recipes": recipes.values().collect::<Vec<_>>() });
+        // The settings that say where the library came from, so that `check` can replay them.
+        let payload = serde_json::json!({
+            "recipes": recipes.values().collect::<Vec<_>>(),
+            "settings": { "created_at": created, "created_by_version": env!("CARGO_PKG_VERSION") },
+        });
         events::append_event(&tx, actor, "init", "library", &payload)?;
         tx.commit()?;
         self.recipes = recipes;
