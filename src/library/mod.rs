@@ -92,6 +92,32 @@ pub struct Library {
     caches: caches::Caches,
     /// SQLite's `PRAGMA data_version` when [`Library::catch_up`] last read the recipes.
     seen_version: std::cell::Cell<Option<i64>>,
+    /// The database file this handle opened, as the file system names it (device and inode on
+    /// Unix), so [`Library::catch_up`] notices a library removed or replaced (a backup moved
+    /// into place) under a handle that still reads the old, unlinked file.
+    opened_file: Option<FileIdentity>,
+}
+
+/// Which file a path names: device and inode where the platform tells them, else nothing more
+/// than that the path exists.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+struct FileIdentity(u64, u64);
+
+impl FileIdentity {
+    /// The identity of the file at `path`; `None` when nothing is there.
+    fn of(path: &Path) -> Option<FileIdentity> {
+        let meta = std::fs::metadata(path).ok()?;
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::MetadataExt;
+            Some(FileIdentity(meta.dev(), meta.ino()))
+        }
+        #[cfg(not(unix))]
+        {
+            let _ = meta;
+            Some(FileIdentity(0, 0))
+        }
+    }
 }
 
 /// The default recipe of every technique.
@@ -144,6 +170,7 @@ impl Library {
         std::fs::create_dir_all(root)
             .map_err(|e| Error::io(format!("creating {}", root.display()), e))?;
         let conn = Connection::open(&db)?;
+        let opened_file = FileIdentity::of(&db);
         schema::configure(&conn, true)?;
         let text = TextIndex::open_or_create(&root.join(TEXT_INDEX_DIR))?;
         let mut lib = Library {
@@ -155,6 +182,7 @@ impl Library {
             text_deferred: Default::default(),
             caches: Default::default(),
             seen_version: Default::default(),
+            opened_file,
         };
         lib.initialise(actor, recipes)?;
         Ok(lib)
@@ -179,6 +207,7 @@ impl Library {
             text_deferred: Default::default(),
             caches: Default::default(),
             seen_version: Default::default(),
+            opened_file: None,
         };
         lib.initialise(actor, recipes)?;
         Ok(lib)
@@ -253,6 +282,17 @@ impl Library {
         if !self.conn.is_autocommit() {
             return Err(stale("a transaction is still open on this handle".into()));
         }
+        if let (Some(root), Some(opened)) = (&self.root, self.opened_file) {
+            match FileIdentity::of(&root.join(DATABASE_FILE)) {
+                None => return Err(stale(format!("its {DATABASE_FILE} is gone"))),
+                Some(now) if now != opened => {
+                    return Err(stale(format!(
+                        "its {DATABASE_FILE} was replaced since this handle opened it"
+                    )));
+                }
+                Some(_) => {}
+            }
+        }
         let version: i64 = self
             .conn
             .query_row("PRAGMA data_version", [], |r| r.get(0))?;
@@ -281,6 +321,7 @@ impl Library {
             });
         }
         let mut conn = Connection::open(&db)?;
+        let opened_file = FileIdentity::of(&db);
         schema::configure(&conn, true)?;
         let version = schema::version(&conn)?;
         if !(OLDEST_READABLE..=SCHEMA_VERSION).contains(&version) {
@@ -308,6 +349,7 @@ impl Library {
             text_deferred: Default::default(),
             caches: Default::default(),
             seen_version: Default::default(),
+            opened_file,
         };
         if refresh_text && lib.refresh_text_index().is_err() {
             lib.text_behind.set(true);
@@ -495,5 +537,32 @@ mod tests {
         let c = batch(6);
         lib.store(&c, "t", false).unwrap();
         assert_eq!(lib.text().len(), 9);
+    }
+
+    /// A handle kept open (as the server keeps readers) must not go on answering from a
+    /// database file that was removed, or replaced by a restored backup: the open file
+    /// descriptor would still read the old file. Common practice for long-lived readers of a
+    /// file that may be replaced by rename.
+    #[test]
+    fn catch_up_refuses_a_database_removed_or_replaced_under_the_handle() {
+        let dir = tempfile::tempdir().unwrap();
+        let root = dir.path().join("lib");
+        drop(Library::init(&root, "t").unwrap());
+        // A backup taken while nothing holds the library open (the last close checkpoints).
+        let db = root.join(DATABASE_FILE);
+        let copy = dir.path().join("copy.db");
+        std::fs::copy(&db, &copy).unwrap();
+        let mut kept = Library::open(&root).unwrap();
+        kept.catch_up().unwrap();
+
+        std::fs::rename(&db, dir.path().join("moved.db")).unwrap();
+        let gone = kept.catch_up().unwrap_err().to_string();
+        assert!(gone.contains("is gone"), "{gone}");
+
+        // A copy moved into place is another file: the handle is stale, a new one reads it.
+        std::fs::rename(&copy, &db).unwrap();
+        let replaced = kept.catch_up().unwrap_err().to_string();
+        assert!(replaced.contains("was replaced"), "{replaced}");
+        Library::open(&root).unwrap().catch_up().unwrap();
     }
 }

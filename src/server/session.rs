@@ -156,7 +156,7 @@ pub async fn sign_in(
                 .to_rfc3339_opts(chrono::SecondsFormat::Millis, true);
                 let by = format!("server (from {client})");
                 state
-                    .with_library(move |lib| Ok(lib.lock_account(a.id, &until, n, &by)?))
+                    .write_as_server(move |lib| Ok(lib.lock_account(a.id, &until, n, &by)?))
                     .await?;
             }
             return Err(refused());

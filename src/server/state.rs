@@ -166,9 +166,9 @@ impl AppState {
                 }
             }
             let out = out?;
-            // `[audit] witness` in whorl.toml: a write's new head goes to the witness file
-            // (nothing is appended when the request wrote nothing).
-            if let Some(file) = whorl::config::Config::load(&root)?.audit.witness {
+            // `[audit] witness` in whorl.toml: a write's new head goes to the witness file.
+            // A reading request wrote nothing, so it does not read the configuration for it.
+            if write && let Some(file) = whorl::config::Config::load(&root)?.audit.witness {
                 lib.witness_new_head(&file)?;
             }
             if !write {
@@ -182,6 +182,17 @@ impl AppState {
             Ok(out)
         })
         .await?
+    }
+
+    /// As [`AppState::with_library`], for a write the server makes of its own accord (a
+    /// lock-out after repeated failed sign-ins): it takes its turn with the other writes and
+    /// keeps the request's 408 promise (nothing is written once the request was answered 408).
+    pub async fn write_as_server<T, F>(&self, f: F) -> Result<T, ApiError>
+    where
+        T: Send + 'static,
+        F: FnOnce(&mut Library) -> Result<T, ApiError> + Send + 'static,
+    {
+        self.run(true, f).await
     }
 
     /// As [`AppState::with_library`], for a write made as a signed-in caller: every event the

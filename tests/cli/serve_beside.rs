@@ -150,3 +150,37 @@ fn a_write_under_way_at_the_request_timeout_is_answered_with_its_outcome() {
     assert_eq!(lab.json(&["list"]).as_array().unwrap().len(), before + 1);
     assert!(server.terminate().success());
 }
+
+#[test]
+fn health_fails_once_the_library_database_is_moved_away_under_a_running_server() {
+    let lab = lab_with_accounts();
+    let reader = token(&lab, "v.viewer");
+    let server = Server::start(&lab);
+    // Requests first, so the server keeps library handles open between requests.
+    for _ in 0..3 {
+        assert_eq!(
+            call(&server, "GET", "/health", Auth::None, None).status,
+            200
+        );
+        assert!(found(&server, &reader, "zebrawood").is_empty());
+    }
+    // A kept handle still reads the moved (or unlinked) database through its open
+    // descriptors, and the text index beside it still opens: health must not say "ok" for a
+    // library whose database is no longer where the server serves it.
+    let db = lab.library().join("library.sqlite");
+    let away = lab.library().join("library.sqlite.moved");
+    std::fs::rename(&db, &away).unwrap();
+    let health = call(&server, "GET", "/health", Auth::None, None);
+    assert_eq!(
+        (health.status, health.body["kind"].as_str()),
+        (503, Some("unavailable")),
+        "{}",
+        health.body
+    );
+    // Back in place, the next request opens it again.
+    std::fs::rename(&away, &db).unwrap();
+    assert_eq!(
+        call(&server, "GET", "/health", Auth::None, None).status,
+        200
+    );
+}
