@@ -2,6 +2,7 @@
 
 mod accounts;
 mod backup;
+mod browse;
 mod bundle;
 mod bundle_import;
 mod caches;
@@ -35,6 +36,7 @@ pub use accounts::{
     check_password_rules, hash_password, random_bytes, verify_password,
 };
 pub use backup::BackupReport;
+pub use browse::{Browse, BrowseSort, Browsed, Listed};
 pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
 pub use caches::{BuildProgress, tail_limit};

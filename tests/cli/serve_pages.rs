@@ -800,3 +800,187 @@ fn extra_fields_on_the_submit_page_are_read_and_refused_as_whorl_add_reads_them(
     let found = lab.json(&["find", "ri_phase:DB-5"]);
     assert!(found.to_string().contains("probe compound"), "{found}");
 }
+
+/// Each row of the library page's list: its spectrum id and its cells' text, in order.
+fn listed_rows(html: &str) -> Vec<(i64, Vec<String>)> {
+    let table = &html[html.find("id=\"spectra\"").unwrap()..];
+    let table = &table[table.find("<tbody>").unwrap()..table.find("</tbody>").unwrap()];
+    table
+        .split("<tr>")
+        .skip(1)
+        .map(|row| {
+            let cells: Vec<String> = row
+                .split("<td")
+                .skip(1)
+                .map(|c| {
+                    let c = &c[c.find('>').unwrap() + 1..c.find("</td>").unwrap()];
+                    // The id's cell holds a link; the rest are text.
+                    match c.find("\">") {
+                        Some(at) if c.starts_with("<a ") => {
+                            c[at + 2..c.find("</a>").unwrap()].to_string()
+                        }
+                        _ => c.to_string(),
+                    }
+                })
+                .collect();
+            (cells[0].parse().unwrap(), cells)
+        })
+        .collect()
+}
+
+/// Every page of a library list (following its "Next page" links from `path`), with the
+/// summary line of the first.
+fn all_pages(
+    server: &Server,
+    cookie: &str,
+    path: &str,
+) -> (Vec<(i64, Vec<String>)>, String, usize) {
+    let mut rows = Vec::new();
+    let mut next = path.to_string();
+    let mut pages = 0;
+    let mut summary = String::new();
+    loop {
+        let shown = get(server, cookie, &next);
+        assert_eq!(shown.status, 200, "{next}: {}", shown.html);
+        pages += 1;
+        if pages == 1 {
+            let at = shown.html.find("<p id=\"count\">").unwrap() + 14;
+            summary = shown.html[at..at + shown.html[at..].find("</p>").unwrap()].to_string();
+        }
+        let page_rows = listed_rows(&shown.html);
+        assert!(page_rows.len() <= 50, "a page holds at most 50 rows");
+        rows.extend(page_rows);
+        match shown.html.find("\" rel=\"next\"") {
+            Some(end) => {
+                let start = shown.html[..end].rfind("href=\"").unwrap() + 6;
+                next = shown.html[start..end].replace("&#38;", "&");
+            }
+            None => break,
+        }
+        assert!(pages < 20, "the pager does not end");
+    }
+    (rows, summary, pages)
+}
+
+#[test]
+fn the_library_page_pages_its_filtered_and_sorted_rows_with_the_count_of_every_match() {
+    let lab = lab_with_accounts();
+    // Two spectra withdrawn, so the status filter has something to tell apart.
+    lab.ok(&["withdraw", "3", "--reason", "recalled lot"]);
+    lab.ok(&["withdraw", "140", "--reason", "recalled lot"]);
+    let server = Server::start(&lab);
+    let (cookie, _) = session(&server, "reader");
+    let manifest = crate::util::csv_rows(&seed().join("manifest.csv"));
+    let listed = list(&lab);
+    assert_eq!(listed.len(), manifest.len());
+    assert!(listed.len() > 150, "more rows than three pages");
+    // The date acquired of each id, from the manifest the library was imported from.
+    let acquired: std::collections::HashMap<i64, String> = listed
+        .iter()
+        .map(|s| {
+            let (name, technique) = (
+                s["name"].as_str().unwrap(),
+                s["technique"].as_str().unwrap(),
+            );
+            let row = manifest
+                .iter()
+                .find(|r| r["name"] == name && r["technique"] == technique)
+                .unwrap();
+            (s["id"].as_i64().unwrap(), row["acquired"].clone())
+        })
+        .collect();
+
+    // Unfiltered: every spectrum once, by id, over five pages, counted in full.
+    let (all, summary, pages) = all_pages(&server, &cookie, "/library");
+    let ids: Vec<i64> = all.iter().map(|r| r.0).collect();
+    let mut by_id: Vec<i64> = listed.iter().map(|s| s["id"].as_i64().unwrap()).collect();
+    by_id.sort();
+    assert_eq!(ids, by_id);
+    assert_eq!(pages, listed.len().div_ceil(50));
+    assert_eq!(summary, format!("{} spectra; by id.", listed.len()));
+    // Each row's revision and date acquired are its own.
+    for (id, cells) in &all {
+        assert_eq!(cells[7], "1", "spectrum {id}'s revision");
+        assert_eq!(cells[8], acquired[id], "spectrum {id}'s date acquired");
+    }
+    // The molar mass each row shows (from its formula), for the range below.
+    let mass: std::collections::HashMap<i64, f64> = all
+        .iter()
+        .filter_map(|(id, c)| c[4].parse::<f64>().ok().map(|m| (*id, m)))
+        .collect();
+
+    // A molar mass range wider than a page, sorted by date acquired, newest first (ties by
+    // id), over every page: the same rows as the unfiltered list's masses say, in order.
+    let mut expected: Vec<i64> = mass
+        .iter()
+        .filter(|(_, m)| (70.0..=95.0).contains(*m))
+        .map(|(id, _)| *id)
+        .collect();
+    expected.sort_by(|a, b| acquired[b].cmp(&acquired[a]).then(a.cmp(b)));
+    assert!(
+        expected.len() > 50,
+        "the range spans pages: {}",
+        expected.len()
+    );
+    let (shown, summary, pages) = all_pages(
+        &server,
+        &cookie,
+        "/library?mass_min=70&mass_max=95&sort=date&order=desc",
+    );
+    assert_eq!(shown.iter().map(|r| r.0).collect::<Vec<_>>(), expected);
+    assert_eq!(pages, expected.len().div_ceil(50));
+    assert_eq!(
+        summary,
+        format!("{} spectra; by date acquired, descending.", expected.len())
+    );
+
+    // The status filter with a date range, and a page past the last shows the last.
+    let shown = get(&server, &cookie, "/library?status=withdrawn&page=9");
+    assert_eq!(
+        listed_rows(&shown.html)
+            .iter()
+            .map(|r| r.0)
+            .collect::<Vec<_>>(),
+        vec![3, 140]
+    );
+    assert!(shown.html.contains("Page 1 of 1"), "{}", shown.html);
+    let lo = acquired[&140].clone();
+    let shown = get(
+        &server,
+        &cookie,
+        &format!("/library?status=withdrawn&acquired_from={lo}&acquired_to={lo}"),
+    );
+    let mut expected: Vec<i64> = [3, 140].into_iter().filter(|i| acquired[i] == lo).collect();
+    expected.sort();
+    assert_eq!(
+        listed_rows(&shown.html)
+            .iter()
+            .map(|r| r.0)
+            .collect::<Vec<_>>(),
+        expected
+    );
+
+    // The find box: the text index's hits, filtered by technique, paged in relevance order,
+    // the same ids as `whorl find` gives for that technique.
+    let found: Vec<i64> = lab
+        .json(&["find", "alcohol", "--top", "1000"])
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|h| h["technique"] == "ir")
+        .map(|h| h["spectrum_id"].as_i64().unwrap())
+        .collect();
+    assert!(!found.is_empty());
+    let (shown, summary, _) = all_pages(&server, &cookie, "/library?q=alcohol&technique=ir");
+    assert_eq!(shown.iter().map(|r| r.0).collect::<Vec<_>>(), found);
+    assert_eq!(
+        summary,
+        format!("{} spectra match, most relevant first.", found.len())
+    );
+    // Sorted by name descending instead, across pages the rows keep their count.
+    let (by_name, _, _) = all_pages(&server, &cookie, "/library?q=alcohol&sort=name&order=desc");
+    let names: Vec<String> = by_name.iter().map(|r| r.1[1].to_lowercase()).collect();
+    let mut sorted = names.clone();
+    sorted.sort_by(|a, b| b.cmp(a));
+    assert_eq!(names, sorted);
+}

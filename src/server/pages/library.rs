@@ -10,7 +10,7 @@ use axum::extract::{Query, State};
 use axum::response::Response;
 use axum::routing::get;
 use serde::Deserialize;
-use whorl::library::{Capability, Status};
+use whorl::library::{Browse, BrowseSort, Capability, Status};
 use whorl::technique::Technique;
 
 use super::super::auth::ToView;
@@ -124,39 +124,6 @@ impl Ranges {
         }
         Ok(r)
     }
-
-    fn mass_given(&self) -> bool {
-        self.mass.0.is_some() || self.mass.1.is_some()
-    }
-
-    fn acquired_given(&self) -> bool {
-        self.acquired.0.is_some() || self.acquired.1.is_some()
-    }
-
-    /// Whether a molar mass (None: no formula, or one that cannot be weighed) is in range.
-    fn mass_fits(&self, mass: Option<f64>) -> bool {
-        if !self.mass_given() {
-            return true;
-        }
-        mass.is_some_and(|m| {
-            self.mass.0.is_none_or(|lo| m >= lo) && self.mass.1.is_none_or(|hi| m <= hi)
-        })
-    }
-
-    /// Whether a date acquired (its first ten characters as YYYY-MM-DD) is in range.
-    fn acquired_fits(&self, acquired: Option<&str>) -> bool {
-        if !self.acquired_given() {
-            return true;
-        }
-        let Some(d) = acquired
-            .map(|a| a.trim().chars().take(10).collect::<String>())
-            .filter(|d| chrono::NaiveDate::parse_from_str(d, "%Y-%m-%d").is_ok())
-        else {
-            return false;
-        };
-        self.acquired.0.as_ref().is_none_or(|lo| &d >= lo)
-            && self.acquired.1.as_ref().is_none_or(|hi| &d <= hi)
-    }
 }
 
 /// The average molar mass (g/mol) of a formula, when it can be weighed.
@@ -177,8 +144,6 @@ struct Row {
     mass: String,
     /// The date acquired, as recorded ("" when none is).
     acquired: String,
-    tags: Vec<String>,
-    instrument: String,
 }
 
 #[derive(Template)]
@@ -259,93 +224,56 @@ async fn page(
     };
     let tag = f.tag.clone().unwrap_or_default().trim().to_string();
     let instrument = f.instrument.clone().unwrap_or_default().trim().to_string();
-    let (wanted_tag, wanted_instrument) = (tag.to_lowercase(), instrument.to_lowercase());
-    let sort_by = sort.clone();
-    let wanted = ranges.clone();
+    let mut browse = Browse {
+        found: None,
+        technique,
+        status,
+        tag: Some(tag.clone()).filter(|t| !t.is_empty()),
+        instrument: Some(instrument.clone()).filter(|i| !i.is_empty()),
+        mass: ranges.mass,
+        acquired: ranges.acquired.clone(),
+        sort: match sort.as_str() {
+            "name" => BrowseSort::Name,
+            "technique" => BrowseSort::Technique,
+            "status" => BrowseSort::Status,
+            "date" => BrowseSort::Date,
+            _ => BrowseSort::Natural,
+        },
+        descending,
+        page: f.page.unwrap_or(1),
+        per_page: PAGE,
+    };
     let query = q.clone();
-    let rows = state
+    // Filtered, sorted and paged in SQL: only the shown page's metadata is read.
+    let browsed = state
         .with_library(move |lib| {
-            let mut rows: Vec<Row> = if query.is_empty() {
-                lib.list(technique)?
-                    .into_iter()
-                    .map(|s| Row {
-                        mass: mass_text(s.formula.as_deref()),
-                        id: s.id,
-                        name: s.name,
-                        formula: s.formula.unwrap_or_default(),
-                        cas: s.cas.unwrap_or_default(),
-                        technique: s.technique.name().to_string(),
-                        status: s.status.name().to_string(),
-                        revision: s.revision,
-                        acquired: String::new(),
-                        tags: Vec::new(),
-                        instrument: String::new(),
-                    })
-                    .collect()
-            } else {
+            if !query.is_empty() {
                 let found = lib.text().find(&query, MOST_FOUND)?;
-                let ids: Vec<i64> = found.iter().map(|f| f.1).collect();
-                let mut records: std::collections::HashMap<i64, whorl::library::HitRecord> = lib
-                    .hit_records(&ids)?
-                    .into_iter()
-                    .map(|r| (r.id, r))
-                    .collect();
-                ids.iter()
-                    .filter_map(|id| records.remove(id))
-                    .filter(|r| technique.is_none_or(|t| r.technique == t))
-                    .map(|r| Row {
-                        mass: mass_text(r.metadata.formula.as_deref()),
-                        id: r.id,
-                        name: r.metadata.name,
-                        formula: r.metadata.formula.unwrap_or_default(),
-                        cas: r.metadata.cas.unwrap_or_default(),
-                        technique: r.technique.name().to_string(),
-                        status: r.status.name().to_string(),
-                        revision: 0,
-                        acquired: String::new(),
-                        tags: Vec::new(),
-                        instrument: String::new(),
-                    })
-                    .collect()
-            };
-            if let Some(s) = status {
-                rows.retain(|r| r.status == s.name());
+                browse.found = Some(found.iter().map(|f| f.1).collect());
             }
-            rows.retain(|r| wanted.mass_fits(r.mass.parse::<f64>().ok()));
-            // The metadata the date column, the tag and instrument filters and the date sort
-            // read, in one query over the rows left.
-            let ids: Vec<i64> = rows.iter().map(|r| r.id).collect();
-            let mut metadata: std::collections::HashMap<i64, whorl::library::Metadata> = lib
-                .hit_records(&ids)?
-                .into_iter()
-                .map(|r| (r.id, r.metadata))
-                .collect();
-            for r in rows.iter_mut() {
-                if let Some(m) = metadata.remove(&r.id) {
-                    r.acquired = m.acquired.unwrap_or_default();
-                    r.tags = m.tags;
-                    r.instrument = m.instrument.unwrap_or_default();
-                }
-            }
-            rows.retain(|r| {
-                wanted.acquired_fits(Some(r.acquired.as_str()).filter(|a| !a.is_empty()))
-                    && (wanted_tag.is_empty()
-                        || r.tags.iter().any(|t| t.to_lowercase() == wanted_tag))
-                    && (wanted_instrument.is_empty()
-                        || r.instrument.to_lowercase().contains(&wanted_instrument))
-            });
-            sort_rows(&mut rows, &sort_by, descending);
-            Ok::<_, ApiError>(rows)
+            Ok::<_, ApiError>(lib.browse(&browse)?)
         })
         .await;
-    let mut rows = match rows {
+    let browsed = match browsed {
         Ok(r) => r,
         Err(e) => return b.fail("Library", e),
     };
-    let total = rows.len();
-    let pages = total.div_ceil(PAGE).max(1);
-    let page = f.page.unwrap_or(1).clamp(1, pages);
-    let rows: Vec<Row> = rows.drain(..).skip((page - 1) * PAGE).take(PAGE).collect();
+    let (total, pages, page) = (browsed.total, browsed.pages, browsed.page);
+    let rows: Vec<Row> = browsed
+        .rows
+        .into_iter()
+        .map(|s| Row {
+            mass: mass_text(s.metadata.formula.as_deref()),
+            id: s.id,
+            name: s.metadata.name,
+            formula: s.metadata.formula.unwrap_or_default(),
+            cas: s.metadata.cas.unwrap_or_default(),
+            technique: s.technique.name().to_string(),
+            status: s.status.name().to_string(),
+            revision: s.revision,
+            acquired: s.metadata.acquired.unwrap_or_default(),
+        })
+        .collect();
     let link = |p: usize, sort: &str, order: &str| {
         let mut s = format!("/library?page={p}");
         for (k, v) in [
@@ -465,27 +393,6 @@ async fn page(
             String::new()
         },
     })
-}
-
-/// Sorts the rows by a column of [`SORTS`] ("" keeps their order: by id, or by relevance),
-/// ties by id; rows without a date acquired come last in either order.
-fn sort_rows(rows: &mut [Row], sort: &str, descending: bool) {
-    use std::cmp::Ordering;
-    let by: fn(&Row, &Row) -> Ordering = match sort {
-        "name" => |a, b| a.name.to_lowercase().cmp(&b.name.to_lowercase()),
-        "technique" => |a, b| a.technique.cmp(&b.technique),
-        "status" => |a, b| a.status.cmp(&b.status),
-        "date" => |a, b| a.acquired.cmp(&b.acquired),
-        _ => return,
-    };
-    rows.sort_by(|a, b| {
-        if sort == "date" && a.acquired.is_empty() != b.acquired.is_empty() {
-            return a.acquired.is_empty().cmp(&b.acquired.is_empty());
-        }
-        let o = by(a, b);
-        let o = if descending { o.reverse() } else { o };
-        o.then(a.id.cmp(&b.id))
-    });
 }
 
 /// A molar mass for the list: two decimals, "" without a formula that can be weighed.
