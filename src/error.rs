@@ -124,6 +124,9 @@ impl Error {
             Error::Input { hint, .. }
             | Error::Invalid { hint, .. }
             | Error::Library { hint, .. } => Some(hint.as_str()).filter(|h| !h.is_empty()),
+            Error::NotFound {
+                kind: "compound", ..
+            } => Some("run `whorl compound list` to see the compound ids in this library"),
             Error::NotFound { .. } => Some("run `whorl list` to see the ids in this library"),
             Error::Query { .. } => Some(
                 "use field:value terms joined by AND/OR, e.g. `tag:solvent AND formula:C7H8`; quote phrases",

@@ -5,6 +5,7 @@ mod cas;
 mod elements;
 mod formula;
 mod fragments;
+mod inchikey;
 mod isotopes;
 mod mass;
 
@@ -15,6 +16,7 @@ pub use fragments::{
     ELECTRON_MASS, Fragment, explains, molecular_region_top, ms_formula_warnings, parse_mz_list,
     sub_formulas,
 };
+pub use inchikey::check_inchikey;
 pub use isotopes::{IsotopePeak, isotope_pattern, reach_below};
 pub use mass::{
     FormulaSummary, NitrogenRule, average_mass, ihd, monoisotopic_mass, nitrogen_rule,

@@ -97,11 +97,12 @@ pub fn run(args: AddArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         submitted_by: submitter,
     };
     let staged = stage(lib.recipes(), submission)?;
-    let warnings = staged.prepared.warnings.clone();
+    let mut warnings = staged.prepared.warnings.clone();
     let outcome = lib
         .store(std::slice::from_ref(&staged), &actor, true)?
         .pop()
         .expect("one outcome per spectrum")?;
+    warnings.extend(outcome.same_name_warning());
     // A file of a withdrawn spectrum is refused by `store`, naming it and the way back.
     let mut out = std::io::stdout().lock();
     for w in &warnings {

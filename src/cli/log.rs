@@ -97,6 +97,29 @@ fn detail(e: &whorl::library::Event) -> String {
             p["spectra"],
             s("reason")
         ),
+        "compound-merge" => format!(
+            "into compound {}, {} spectr{} moved ({}){}; reason: {}",
+            p["into"],
+            p["spectra"].as_array().map_or(0, Vec::len),
+            if p["spectra"].as_array().map_or(0, Vec::len) == 1 {
+                "um"
+            } else {
+                "a"
+            },
+            p["spectra"]
+                .as_array()
+                .into_iter()
+                .flatten()
+                .map(|v| v.to_string())
+                .collect::<Vec<_>>()
+                .join(", "),
+            if p["formulas_differ"] == true {
+                ", formulas differed"
+            } else {
+                ""
+            },
+            s("reason")
+        ),
         _ => String::new(),
     }
 }

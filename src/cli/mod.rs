@@ -5,6 +5,7 @@ mod add;
 mod backup;
 mod check;
 mod completions;
+mod compound;
 mod config;
 mod demo;
 mod export;
@@ -134,6 +135,8 @@ pub enum Command {
     Withdraw(withdraw::WithdrawArgs),
     /// Bring a withdrawn spectrum back, pending a new sign-off.
     Reinstate(reinstate::ReinstateArgs),
+    /// The compounds spectra belong to: list, show, merge two that are one substance.
+    Compound(compound::CompoundArgs),
     /// Print the audit trail, for the library or one spectrum.
     Log(log::LogArgs),
     /// Verify the audit chain, raw data, prepared data and fingerprint.
@@ -300,6 +303,7 @@ fn dispatch(
         Command::Revise(a) => revise::run(*a, ctx),
         Command::Withdraw(a) => withdraw::run(a, ctx),
         Command::Reinstate(a) => reinstate::run(a, ctx),
+        Command::Compound(a) => compound::run(a, ctx),
         Command::Log(a) => log::run(a, ctx),
         Command::Check(a) => check::run(a, ctx),
         Command::Export(a) => export::run(a, ctx),

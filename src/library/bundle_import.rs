@@ -235,7 +235,7 @@ fn import_one(
     {
         return Err(bad("current revision (it differs from the row's metadata)"));
     }
-    let compound_id = find_or_create_compound(tx, metadata)?;
+    let (compound_id, _) = find_or_create_compound(tx, metadata)?;
     let withdrawn = Some(field("whorl_withdrawn_reason")).filter(|s| !s.trim().is_empty());
     // A withdrawal always has its reason (`withdraw` requires one), and only a withdrawn
     // spectrum has one: a row that says otherwise was edited.
@@ -379,6 +379,7 @@ fn import_one(
     Ok(Outcome::Added {
         spectrum_id,
         compound_id,
+        same_name: None,
     })
 }
 

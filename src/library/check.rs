@@ -9,7 +9,7 @@ use serde_json::Value;
 
 use super::events::{ASSERTED, GENESIS_HASH, SIGNED_IN, event_hash_with};
 use super::records::{Review, SpectrumRecord, f32_bytes};
-use super::seal::{ROWS, differences, is_sealed, seal};
+use super::seal::{ROWS, differences, event_seals, seal};
 use super::{ContentSum, Library, Recipes, prepare_stored, record_hash};
 use crate::error::Result;
 use crate::spectrum::sha256_hex;
@@ -251,12 +251,10 @@ impl Library {
         // The newest recipe change of each technique.
         let mut recipe_changed: HashMap<String, i64> = HashMap::new();
         for (seq, _, actor, action, record, payload, ..) in &events {
-            if is_sealed(record) {
-                let rows = serde_json::from_str::<Value>(payload)
-                    .ok()
-                    .and_then(|mut p| p.get_mut(ROWS).map(Value::take))
-                    .and_then(|r| serde_json::from_value(r).ok());
-                seals.insert(record.clone(), (*seq, rows));
+            // An event seals its own record, or (a compound merge) every record it names.
+            let parsed = serde_json::from_str::<Value>(payload).unwrap_or(Value::Null);
+            for (sealed, rows) in event_seals(record, &parsed) {
+                seals.insert(sealed, (*seq, rows));
             }
             if action == "init" || action == "recipe" {
                 replay_recipes(action, payload, &mut expected_recipes);

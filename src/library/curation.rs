@@ -136,7 +136,7 @@ impl Library {
             .map(str::to_string);
         self.write(|tx| {
             correct_sole_compound(tx, id, &metadata)?;
-            let compound_id = find_or_create_compound(tx, &metadata)?;
+            let (compound_id, _) = find_or_create_compound(tx, &metadata)?;
             insert_revision(
                 tx,
                 &NewRevision {
@@ -358,7 +358,9 @@ fn correct_sole_compound(tx: &Connection, id: i64, metadata: &Metadata) -> Resul
             |r| Ok((r.get(0)?, r.get(1)?)),
         )
         .optional()?;
-    if let Some((compound, 0)) = sharing {
+    if let Some((compound, 0)) = sharing
+        && super::store::merged_target(tx, compound)? == compound
+    {
         tx.execute(
             "UPDATE compound SET formula = ?2 WHERE id = ?1",
             params![compound, formula],

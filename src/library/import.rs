@@ -294,10 +294,14 @@ fn store_batch(
             Ok(staged) => {
                 let outcome = stored.pop().expect("one outcome per staged spectrum");
                 let added = matches!(outcome, Ok(Outcome::Added { .. }));
+                let mut warnings = staged.prepared.warnings;
+                if let Some(w) = outcome.as_ref().ok().and_then(Outcome::same_name_warning) {
+                    warnings.push(w);
+                }
                 let coverage = (staged.prepared.coverage)
                     .filter(|_| added)
                     .map(|c| (staged.submission.technique, c));
-                (outcome, staged.prepared.warnings, coverage)
+                (outcome, warnings, coverage)
             }
             Err(e) => (Err(e), Vec::new(), None),
         };

@@ -7,6 +7,7 @@ mod bundle;
 mod bundle_import;
 mod caches;
 mod check;
+mod compound;
 mod curation;
 mod events;
 mod find;
@@ -41,6 +42,7 @@ pub use bundle::{BUNDLE_FORMAT, BundleInfo, ExportReport, verify_bundle};
 pub use bundle_import::{Acceptance, BundleImport, Trust};
 pub use caches::{BuildProgress, tail_limit};
 pub use check::{CheckRecord, CheckReport, Finding, RECORDED_FINDINGS};
+pub use compound::{CompoundRecord, Merge};
 pub use curation::{MetadataPatch, RevisionInfo, StatusChange};
 pub use events::{ASSERTED, Event, SIGNED_IN};
 pub use find::Found;
@@ -59,7 +61,7 @@ pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,
     stage, usual_x_unit,
 };
-pub use store::Outcome;
+pub use store::{Outcome, normalised_name};
 pub use witness::{WitnessedHead, read_witness};
 
 use std::path::{Path, PathBuf};

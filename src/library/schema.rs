@@ -5,13 +5,14 @@ use rusqlite::Connection;
 use crate::error::Result;
 
 /// The migrations, in order; migration `i` takes the database from version `i` to `i + 1`.
-const MIGRATIONS: [&str; 6] = [
+const MIGRATIONS: [&str; 7] = [
     include_str!("../../schema/0001_init.sql"),
     include_str!("../../schema/0002_curation.sql"),
     include_str!("../../schema/0003_coverage.sql"),
     include_str!("../../schema/0004_trust.sql"),
     include_str!("../../schema/0005_accounts.sql"),
     include_str!("../../schema/0006_reinstate.sql"),
+    include_str!("../../schema/0007_compound_merge.sql"),
 ];
 
 /// The schema version this build writes.

@@ -38,7 +38,8 @@ const SPECTRUM_PARTS: [Part; 5] = [
               FROM spectrum WHERE id = ?1",
     },
     Part {
-        sql: "SELECT 'compound:' || c.id, c.id, c.key, c.name, c.formula, c.cas, c.created_at
+        sql: "SELECT 'compound:' || c.id, c.id, c.key, c.name, c.formula, c.cas, c.created_at,
+                     c.merged_into
               FROM compound c JOIN spectrum s ON s.compound_id = c.id WHERE s.id = ?1",
     },
     Part {
@@ -56,6 +57,18 @@ const SPECTRUM_PARTS: [Part; 5] = [
               FROM prepared WHERE spectrum_id = ?1",
     },
 ];
+
+/// A compound row by its id, with the same columns as a spectrum's compound above, so both
+/// give one row the same digest.
+const COMPOUND_PART: Part = Part {
+    sql: "SELECT 'compound:' || c.id, c.id, c.key, c.name, c.formula, c.cas, c.created_at,
+                 c.merged_into
+          FROM compound c WHERE c.id = ?1",
+};
+
+/// The payload key of an event that seals several records (a compound merge): each record's
+/// row names, whose digests are in [`ROWS`].
+pub const SEALED: &str = "sealed";
 
 const ACCOUNT_PARTS: [Part; 1] = [Part {
     sql: "SELECT 'account:' || id, id, name, key, role, password, created_at, disabled_at,
@@ -98,6 +111,29 @@ pub fn seal(conn: &Connection, record: &str) -> Result<Option<BTreeMap<String, S
         return Ok(None);
     };
     let mut out = BTreeMap::new();
+    digest_rows(conn, parts, &key, &mut out)?;
+    Ok(Some(out))
+}
+
+/// The digest of compound `id`'s row, by its row name (`compound:N`); empty when there is no
+/// such compound.
+pub fn compound_seal(conn: &Connection, id: i64) -> Result<BTreeMap<String, String>> {
+    let mut out = BTreeMap::new();
+    digest_rows(
+        conn,
+        std::slice::from_ref(&COMPOUND_PART),
+        &rusqlite::types::Value::Integer(id),
+        &mut out,
+    )?;
+    Ok(out)
+}
+
+fn digest_rows(
+    conn: &Connection,
+    parts: &[Part],
+    key: &rusqlite::types::Value,
+    out: &mut BTreeMap<String, String>,
+) -> Result<()> {
     for part in parts {
         let mut stmt = conn.prepare_cached(part.sql)?;
         let names: Vec<String> = stmt.column_names().skip(1).map(|s| s.to_string()).collect();
@@ -120,7 +156,7 @@ pub fn seal(conn: &Connection, record: &str) -> Result<Option<BTreeMap<String, S
             out.insert(name, digest);
         }
     }
-    Ok(Some(out))
+    Ok(())
 }
 
 /// `payload` with the seal of `record` added under [`ROWS`] (unchanged for a record that is not
@@ -131,6 +167,72 @@ pub fn sealed_payload(conn: &Connection, record: &str, payload: &Value) -> Resul
         object.insert(ROWS.into(), serde_json::to_value(rows)?);
     }
     Ok(payload)
+}
+
+/// `payload` with the seals of several records and of compound rows: [`ROWS`] holds the
+/// digests of all their rows, [`SEALED`] each record's row names, and each compound of
+/// `compounds` is sealed as `compound:N` (under its own name in [`SEALED`] too). For an event
+/// that changes the rows of many records at once, such as a compound merge; `check` then
+/// compares each of `records` with this event when it is the newest that seals it.
+pub fn sealed_payload_of(
+    conn: &Connection,
+    records: &[String],
+    compounds: &[i64],
+    payload: &Value,
+) -> Result<Value> {
+    let mut rows = BTreeMap::new();
+    let mut names: BTreeMap<String, Vec<String>> = BTreeMap::new();
+    for record in records {
+        if let Some(sealed) = seal(conn, record)? {
+            names.insert(record.clone(), sealed.keys().cloned().collect());
+            rows.extend(sealed);
+        }
+    }
+    for &id in compounds {
+        let sealed = compound_seal(conn, id)?;
+        names.insert(format!("compound:{id}"), sealed.keys().cloned().collect());
+        rows.extend(sealed);
+    }
+    let mut payload = payload.clone();
+    if let Some(object) = payload.as_object_mut() {
+        object.insert(ROWS.into(), serde_json::to_value(rows)?);
+        object.insert(SEALED.into(), serde_json::to_value(names)?);
+    }
+    Ok(payload)
+}
+
+/// The seals an event carries, by record: its own record's for an ordinary event (`None`
+/// when it carries none, as events written before seals), or each sealed record of
+/// [`SEALED`] with its rows picked out of [`ROWS`].
+pub fn event_seals(
+    record: &str,
+    payload: &Value,
+) -> Vec<(String, Option<BTreeMap<String, String>>)> {
+    let rows: Option<BTreeMap<String, String>> = payload
+        .get(ROWS)
+        .and_then(|r| serde_json::from_value(r.clone()).ok());
+    let Some(sealed) = payload.get(SEALED).and_then(Value::as_object) else {
+        return if is_sealed(record) {
+            vec![(record.to_string(), rows)]
+        } else {
+            Vec::new()
+        };
+    };
+    let rows = rows.unwrap_or_default();
+    sealed
+        .iter()
+        .filter(|(r, _)| is_sealed(r))
+        .map(|(r, names)| {
+            let picked = names
+                .as_array()
+                .into_iter()
+                .flatten()
+                .filter_map(Value::as_str)
+                .map(|n| (n.to_string(), rows.get(n).cloned().unwrap_or_default()))
+                .collect();
+            (r.clone(), Some(picked))
+        })
+        .collect()
 }
 
 /// The rows whose digests differ between a seal and the tables now: (row, what happened).

@@ -4,7 +4,7 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use crate::chem::{Formula, check_cas, ihd, ms_formula_warnings, parse_formula};
+use crate::chem::{Formula, check_cas, check_inchikey, ihd, ms_formula_warnings, parse_formula};
 use crate::error::{Error, Result};
 use crate::library::Metadata;
 use crate::prepare::{Conditions, Prepared, Recipe, Solvent, plausibility, prepare};
@@ -88,8 +88,12 @@ pub fn read_and_prepare(
     Ok((raw, prepared))
 }
 
+/// The extra field that holds a compound's InChIKey.
+pub const INCHIKEY: &str = "inchikey";
+
 /// Normalises and checks metadata: a name is required, a formula is rewritten in Hill order,
-/// a CAS RN must pass its check digit, an NMR solvent must be one whorl knows.
+/// a CAS RN must pass its check digit, an InChIKey (extra field `inchikey`) must have the
+/// published form, an NMR solvent must be one whorl knows.
 pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metadata> {
     m.name = m.name.trim().to_string();
     if m.name.is_empty() {
@@ -137,6 +141,12 @@ pub fn normalise_metadata(technique: Technique, mut m: Metadata) -> Result<Metad
     }
     if let Some(c) = &m.cas {
         m.cas = Some(check_cas(c)?);
+    }
+    // An InChIKey (a manifest column or `--set inchikey=...`) is part of the compound's
+    // identity when there is no CAS RN, so its form is checked and its case made one.
+    if let Some(k) = m.extra.get(INCHIKEY) {
+        let key = check_inchikey(k)?;
+        m.extra.insert(INCHIKEY.into(), key);
     }
     if let Some(s) = &m.solvent {
         let solvent: Solvent = s.parse()?;

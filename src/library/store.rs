@@ -22,12 +22,34 @@ pub enum Outcome {
         spectrum_id: i64,
         /// Its compound.
         compound_id: i64,
+        /// When its compound is new and an older compound has the same normalised name: that
+        /// compound (they may be one substance, to merge with `whorl compound merge`).
+        #[serde(skip_serializing_if = "Option::is_none")]
+        same_name: Option<i64>,
     },
     /// The same raw points were already in the library for this technique.
     AlreadyPresent {
         /// The id already holding them.
         spectrum_id: i64,
     },
+}
+
+impl Outcome {
+    /// The warning of a new compound that takes an existing compound's name, naming both and
+    /// the command that merges them.
+    pub fn same_name_warning(&self) -> Option<String> {
+        let Outcome::Added {
+            compound_id,
+            same_name: Some(other),
+            ..
+        } = self
+        else {
+            return None;
+        };
+        Some(format!(
+            "a new compound {compound_id} was made for this spectrum, and compound {other} has the same name: if they are one substance, merge them with `whorl compound merge {compound_id} {other} --reason TEXT` (see `whorl compound show {other}`)"
+        ))
+    }
 }
 
 impl Library {
@@ -46,10 +68,11 @@ impl Library {
             .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         let mut outcomes = Vec::with_capacity(batch.len());
         let mut added = Vec::new();
+        let mut names = CompoundNames::default();
         for staged in batch {
             // A savepoint per spectrum: a refusal halfway through one leaves nothing of it behind.
             let sp = tx.savepoint()?;
-            let outcome = store_one(&sp, staged, actor);
+            let outcome = store_one(&sp, staged, actor, &mut names);
             if outcome.is_ok() {
                 sp.commit()?;
             }
@@ -70,15 +93,82 @@ impl Library {
     }
 }
 
-/// The identity key of a compound: its CAS RN when known, else its lower-cased name.
+/// The identity key of a new compound: its CAS RN when known, else its InChIKey (the extra
+/// field `inchikey`), else its name normalised by [`normalised_name`]. A formula is not part of
+/// the key but must agree with the compound's (`find_or_create_compound`). Compounds made
+/// before this key keep theirs (`cas:` is unchanged; a name key was the lower-cased name,
+/// which [`compound_keys`] still looks up), since their rows are sealed.
 pub(super) fn compound_key(m: &Metadata) -> String {
-    match &m.cas {
-        Some(cas) => format!("cas:{cas}"),
-        None => format!("name:{}", m.name.to_lowercase()),
+    compound_keys(m).0
+}
+
+/// The key of [`compound_key`] and, for a name key, the key a compound of that name was given
+/// before names were normalised (when it differs).
+fn compound_keys(m: &Metadata) -> (String, Option<String>) {
+    if let Some(cas) = &m.cas {
+        return (format!("cas:{cas}"), None);
+    }
+    if let Some(key) = m.extra.get(super::stage::INCHIKEY) {
+        return (format!("inchikey:{key}"), None);
+    }
+    let key = format!("name:{}", normalised_name(&m.name));
+    let legacy = format!("name:{}", m.name.to_lowercase());
+    let legacy = (legacy != key).then_some(legacy);
+    (key, legacy)
+}
+
+/// A compound name as identity compares it: NFKC (Unicode Standard Annex #15), lower-cased
+/// (Unicode default case mapping), runs of white space made one space, trimmed; so "Toluene",
+/// "toluene" and "TOLUENE " are one name, as are full-width and ordinary letters.
+pub fn normalised_name(name: &str) -> String {
+    use unicode_normalization::UnicodeNormalization;
+    let folded: String = name
+        .nfkc()
+        .flat_map(char::to_lowercase)
+        .collect::<String>()
+        .nfkc()
+        .collect();
+    folded.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
+/// The normalised names of the compounds not merged into another, loaded once per write that
+/// may create compounds, to warn when a new compound takes an existing one's name.
+#[derive(Default)]
+pub(super) struct CompoundNames(Option<std::collections::HashMap<String, i64>>);
+
+impl CompoundNames {
+    /// The compound other than `id` whose normalised name is `name`'s, if any (the oldest).
+    fn same_name(&mut self, tx: &Connection, name: &str, id: i64) -> Result<Option<i64>> {
+        if self.0.is_none() {
+            let mut map = std::collections::HashMap::new();
+            let mut stmt =
+                tx.prepare("SELECT id, name FROM compound WHERE merged_into IS NULL ORDER BY id")?;
+            let rows = stmt.query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, String>(1)?)))?;
+            for row in rows {
+                let (c, n) = row?;
+                map.entry(normalised_name(&n)).or_insert(c);
+            }
+            self.0 = Some(map);
+        }
+        let map = self.0.as_mut().expect("loaded above");
+        let key = normalised_name(name);
+        match map.get(&key) {
+            Some(&c) if c != id => Ok(Some(c)),
+            Some(_) => Ok(None),
+            None => {
+                map.insert(key, id);
+                Ok(None)
+            }
+        }
     }
 }
 
-fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
+fn store_one(
+    tx: &Connection,
+    staged: &Staged,
+    actor: &str,
+    names: &mut CompoundNames,
+) -> Result<Outcome> {
     let sub = &staged.submission;
     let technique = sub.technique.name();
     let raw_sha256 = staged.raw.raw_sha256();
@@ -87,7 +177,14 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
         return Ok(Outcome::AlreadyPresent { spectrum_id });
     }
     let m = &sub.metadata;
-    let compound_id = find_or_create_compound(tx, m)?;
+    let (compound_id, created) = find_or_create_compound(tx, m)?;
+    // A new compound under a name another compound already has is stored (they may be two
+    // substances), with the other's id for the warning that offers a merge.
+    let same_name = if created {
+        names.same_name(tx, &m.name, compound_id)?
+    } else {
+        None
+    };
     let file_name = sub
         .path
         .file_name()
@@ -152,40 +249,72 @@ fn store_one(tx: &Connection, staged: &Staged, actor: &str) -> Result<Outcome> {
     Ok(Outcome::Added {
         spectrum_id,
         compound_id,
+        same_name,
     })
 }
 
-/// The compound a metadata record names: found by its identity key, or created. Refuses a
+/// The compound a metadata record names: found by its identity key (a compound merged into
+/// another leads to the one it went into), or created; with whether it was created. Refuses a
 /// formula that contradicts the compound already on record.
-pub(super) fn find_or_create_compound(tx: &Connection, m: &Metadata) -> Result<i64> {
-    let key = compound_key(m);
-    let found: Option<(i64, Option<String>)> = tx
-        .query_row(
-            "SELECT id, formula FROM compound WHERE key = ?1",
-            [&key],
-            |r| Ok((r.get(0)?, r.get(1)?)),
-        )
-        .optional()?;
-    match found {
-        Some((id, Some(formula))) if m.formula.as_ref().is_some_and(|f| f != &formula) => {
-            Err(Error::invalid(
-                format!(
-                    "compound {id} ('{}') is on record with formula {formula}, but this spectrum says {}",
-                    m.name,
-                    m.formula.as_deref().unwrap_or("")
-                ),
-                "correct the formula, or give the CAS RN if this is a different substance",
-            ))
-        }
-        Some((id, _)) => Ok(id),
-        None => {
-            tx.execute(
-                "INSERT INTO compound (key, name, formula, cas, created_at) VALUES (?1, ?2, ?3, ?4, ?5)",
-                params![key, m.name, m.formula, m.cas, now()],
-            )?;
-            Ok(tx.last_insert_rowid())
+pub(super) fn find_or_create_compound(tx: &Connection, m: &Metadata) -> Result<(i64, bool)> {
+    let (key, legacy) = compound_keys(m);
+    let mut found = None;
+    for k in std::iter::once(&key).chain(legacy.as_ref()) {
+        let row: Option<i64> = tx
+            .query_row("SELECT id FROM compound WHERE key = ?1", [k], |r| r.get(0))
+            .optional()?;
+        if let Some(id) = row {
+            found = Some(merged_target(tx, id)?);
+            break;
         }
     }
+    let Some(id) = found else {
+        tx.execute(
+            "INSERT INTO compound (key, name, formula, cas, created_at) VALUES (?1, ?2, ?3, ?4, ?5)",
+            params![key, m.name, m.formula, m.cas, now()],
+        )?;
+        return Ok((tx.last_insert_rowid(), true));
+    };
+    let formula: Option<String> =
+        tx.query_row("SELECT formula FROM compound WHERE id = ?1", [id], |r| {
+            r.get(0)
+        })?;
+    match formula {
+        Some(formula) if m.formula.as_ref().is_some_and(|f| f != &formula) => Err(Error::invalid(
+            format!(
+                "compound {id} ('{}') is on record with formula {formula}, but this spectrum says {}",
+                m.name,
+                m.formula.as_deref().unwrap_or("")
+            ),
+            "correct the formula, or give the CAS RN (or --set inchikey=KEY) if this is a different substance",
+        )),
+        _ => Ok((id, false)),
+    }
+}
+
+/// The compound `id` was merged into, following merges of merges (a compound merged into one
+/// that was merged later); `id` itself when it was not merged.
+pub(super) fn merged_target(tx: &Connection, id: i64) -> Result<i64> {
+    let mut seen = std::collections::HashSet::new();
+    let mut at = id;
+    while seen.insert(at) {
+        let next: Option<i64> = tx
+            .query_row(
+                "SELECT merged_into FROM compound WHERE id = ?1",
+                [at],
+                |r| r.get(0),
+            )
+            .optional()?
+            .flatten();
+        match next {
+            Some(n) => at = n,
+            None => return Ok(at),
+        }
+    }
+    Err(Error::invalid(
+        format!("compound {id} is merged in a loop"),
+        "run `whorl check`: the compound table was edited outside whorl",
+    ))
 }
 
 /// The spectrum holding exactly these raw points for this technique, if any: the identity
@@ -484,6 +613,7 @@ mod tests {
         let Ok(Outcome::Added {
             spectrum_id,
             compound_id,
+            ..
         }) = out[0]
         else {
             panic!("{out:?}")
