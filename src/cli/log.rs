@@ -8,7 +8,8 @@ use super::{Context, output};
 
 #[derive(Debug, Args)]
 pub struct LogArgs {
-    /// Only the events of this spectrum
+    /// Only the events of this spectrum (with the compound merges that moved it or joined its
+    /// compound)
     pub id: Option<i64>,
     /// Print the events (with payloads and hashes) as JSON
     #[arg(long)]
@@ -17,11 +18,10 @@ pub struct LogArgs {
 
 pub fn run(args: LogArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let lib = ctx.open()?;
-    if let Some(id) = args.id {
-        lib.spectrum(id)?;
-    }
-    let record = args.id.map(|id| format!("spectrum:{id}"));
-    let events = lib.events(record.as_deref())?;
+    let events = match args.id {
+        Some(id) => lib.spectrum_log(id)?,
+        None => lib.events(None)?,
+    };
     let mut out = std::io::stdout().lock();
     if args.json {
         output::json(&mut out, &events)?;

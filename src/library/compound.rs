@@ -243,6 +243,34 @@ impl Library {
     }
 }
 
+impl Library {
+    /// The audit trail of one spectrum: its own events (record `spectrum:ID`) and every
+    /// `compound-merge` that concerned it, in sequence order. A merge concerns a spectrum when
+    /// it moved the spectrum, or when it merged another compound into the one the spectrum
+    /// belonged to then (the merge event seals that spectrum's compound row too). Which
+    /// compound that was is found walking the merges back from the spectrum's compound now:
+    /// before a merge that moved it, it belonged to the merge's `from`.
+    pub fn spectrum_log(&self, id: i64) -> Result<Vec<super::Event>> {
+        let mut compound = self.spectrum(id)?.compound_id;
+        let mut events = self.events(Some(&format!("spectrum:{id}")))?;
+        let mut merges = self.events_of_action("compound-merge")?;
+        merges.sort_by_key(|e| std::cmp::Reverse(e.seq));
+        for e in merges {
+            let moved = e.payload["spectra"]
+                .as_array()
+                .is_some_and(|s| s.iter().any(|v| v.as_i64() == Some(id)));
+            if moved {
+                compound = e.payload["from"].as_i64().unwrap_or(compound);
+                events.push(e);
+            } else if e.payload["into"].as_i64() == Some(compound) {
+                events.push(e);
+            }
+        }
+        events.sort_by_key(|e| e.seq);
+        Ok(events)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -174,11 +174,21 @@ impl Library {
 
     /// Events in sequence order, for the whole library or for one record (e.g. "spectrum:12").
     pub fn events(&self, record: Option<&str>) -> Result<Vec<Event>> {
-        let mut stmt = self.conn.prepare(
+        self.events_where("?1 IS NULL OR record = ?1", record)
+    }
+
+    /// Events of one action (e.g. "compound-merge"), in sequence order.
+    pub fn events_of_action(&self, action: &str) -> Result<Vec<Event>> {
+        self.events_where("action = ?1", Some(action))
+    }
+
+    /// Events matching `condition` (SQL over the event table, with `?1` bound to `param`).
+    fn events_where(&self, condition: &str, param: Option<&str>) -> Result<Vec<Event>> {
+        let mut stmt = self.conn.prepare(&format!(
             "SELECT seq, at, actor, action, record, payload, payload_hash, prev_hash, hash, identity
-             FROM event WHERE ?1 IS NULL OR record = ?1 ORDER BY seq",
-        )?;
-        let rows = stmt.query_map([record], |r| {
+             FROM event WHERE {condition} ORDER BY seq"
+        ))?;
+        let rows = stmt.query_map([param], |r| {
             Ok((
                 r.get::<_, i64>(0)?,
                 r.get::<_, String>(1)?,

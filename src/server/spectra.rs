@@ -217,7 +217,7 @@ pub async fn show(
                 "spectrum": record,
                 "reviews": lib.reviews(id)?,
                 "withdrawn_reason": lib.withdrawn_reason(id)?,
-                "events": lib.events(Some(&format!("spectrum:{id}")))?,
+                "events": lib.spectrum_log(id)?,
             }))
         })
         .await?;

@@ -6,6 +6,7 @@ mod add;
 mod bad_input;
 mod bundle;
 mod comfort;
+mod compound;
 mod concurrency;
 mod curation;
 mod demo;

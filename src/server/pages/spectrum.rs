@@ -114,7 +114,7 @@ pub fn facts(lib: &Library, id: i64, plotted_neighbours: usize) -> Result<Facts,
     }
     Ok(Facts {
         reviews: lib.reviews(id)?,
-        events: lib.events(Some(&format!("spectrum:{id}")))?,
+        events: lib.spectrum_log(id)?,
         withdrawn: lib.withdrawn_reason(id)?,
         record,
         prepared,
@@ -237,7 +237,7 @@ pub fn event_rows(events: &[Event]) -> Vec<EventRow> {
 /// The few payload fields people read in a timeline.
 pub fn summary(p: &Value) -> String {
     [
-        "decision", "revision", "reason", "meaning", "name", "role", "status",
+        "decision", "revision", "from", "into", "reason", "meaning", "name", "role", "status",
     ]
     .iter()
     .filter_map(|k| p.get(*k).map(|v| format!("{k} {}", show(v))))
