@@ -54,6 +54,13 @@ pub struct IdentifyArgs {
     /// with overlays of the unknown on its top hits
     #[arg(long, value_name = "FILE")]
     pub html: Option<PathBuf>,
+    /// The sample or case id the HTML report is for (printed in its case section, with the
+    /// provenance of every technique's hits)
+    #[arg(long, value_name = "ID", requires = "html")]
+    pub sample: Option<String>,
+    /// The analyst named in the HTML report's case section
+    #[arg(long, value_name = "NAME", requires = "html")]
+    pub analyst: Option<String>,
 }
 
 impl IdentifyArgs {
@@ -102,7 +109,8 @@ pub fn run(args: IdentifyArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     // One search per unknown: the HTML report's sections are the same searches.
     let found = identify_with_searches(&lib, &unknowns, &options)?;
     if let Some(path) = &args.html {
-        write_html(&lib, &found, config.report.plots, path)?;
+        let case = (args.sample.as_deref(), args.analyst.as_deref());
+        write_html(&lib, &found, config.report.plots, case, path)?;
         eprintln!("report written to {}", output::shown(path.display()));
     }
     let report = found.report;
@@ -121,12 +129,15 @@ fn write_html(
     lib: &whorl::library::Library,
     found: &Identification,
     plots: usize,
+    (sample, analyst): (Option<&str>, Option<&str>),
     path: &std::path::Path,
 ) -> anyhow::Result<()> {
     let mut runs = Vec::with_capacity(found.searches.len());
+    let mut provenance = Vec::with_capacity(found.searches.len());
     for (r, prepared) in &found.searches {
         let refs = whorl::search::references(lib, r, plots)?;
         runs.push((r, prepared, refs));
+        provenance.push(whorl::search::provenance(lib, &r.hits)?);
     }
     let queries: Vec<whorl::report::Query<'_>> = runs
         .iter()
@@ -136,7 +147,13 @@ fn write_html(
             references: refs,
         })
         .collect();
-    let html = whorl::report::identify_page(&found.report, &queries)?;
+    // As in `search --html`: the case section, with every hit's provenance, always comes.
+    let case = whorl::report::IdentifyCase {
+        sample,
+        analyst,
+        provenance: &provenance,
+    };
+    let html = whorl::report::identify_page(&found.report, &queries, Some(&case))?;
     std::fs::write(path, html).map_err(|e| {
         whorl::Error::io(format!("writing the HTML report to {}", path.display()), e)
     })?;

@@ -12,6 +12,7 @@ pub mod html;
 pub mod plot;
 
 pub use html::{
-    Case, Query, escape, identify_page, page, query_section, search_page, search_page_for_case,
+    Case, IdentifyCase, Query, escape, identify_page, page, query_section, search_page,
+    search_page_for_case,
 };
 pub use plot::{Series, overlay, spectra};

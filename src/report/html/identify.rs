@@ -3,11 +3,16 @@
 use crate::error::Result;
 use crate::search::IdentifyReport;
 
-use super::{Query, code, escape, page, query_section, w};
+use super::{IdentifyCase, Query, case_section, code, escape, page, query_section, w};
 
-/// A whole page for `identify`: the fused list per compound, then one section per technique
-/// searched (the same section a search report has), on one page.
-pub fn identify_page(r: &IdentifyReport, queries: &[Query<'_>]) -> Result<String> {
+/// A whole page for `identify`: the case section when a case is given (sample, analyst, and
+/// the provenance of each technique's hits), the fused list per compound, then one section per
+/// technique searched (the same section a search report has), on one page.
+pub fn identify_page(
+    r: &IdentifyReport,
+    queries: &[Query<'_>],
+    case: Option<&IdentifyCase<'_>>,
+) -> Result<String> {
     let f = &r.fusion;
     let techniques: Vec<&str> = f.techniques.iter().map(|t| t.name()).collect();
     let title = format!("Identification from {}", techniques.join(", "));
@@ -56,7 +61,7 @@ pub fn identify_page(r: &IdentifyReport, queries: &[Query<'_>]) -> Result<String
         }
         s.push_str("</ul>\n");
     }
-    s.push_str("<table class=\"hits\">\n<thead><tr><th class=\"num\">rank</th><th class=\"num\">fused</th>");
+    s.push_str("<div class=\"wide\"><table class=\"hits fused\">\n<thead><tr><th class=\"num\">rank</th><th class=\"num\">fused</th>");
     for t in &techniques {
         w(&mut s, format_args!("<th class=\"num\">{}</th>", escape(t)));
     }
@@ -83,15 +88,28 @@ pub fn identify_page(r: &IdentifyReport, queries: &[Query<'_>]) -> Result<String
         w(
             &mut s,
             format_args!(
-                "<td class=\"name\">{}</td><td>{}</td><td>{}</td></tr>\n",
+                "<td class=\"name\">{}</td><td>{}</td><td class=\"wrap\">{}</td></tr>\n",
                 escape(&c.name),
                 escape(c.formula.as_deref().unwrap_or("")),
                 escape(&c.disagreements.join("; "))
             ),
         );
     }
-    s.push_str("</tbody>\n</table>\n</section>\n");
-    let mut sections = vec![s];
+    s.push_str("</tbody>\n</table></div>\n</section>\n");
+    let mut sections = Vec::with_capacity(queries.len() + 2);
+    if let Some(case) = case {
+        let headings: Vec<String> = queries
+            .iter()
+            .map(|q| format!("{} hits", q.report.unknown.technique.title()))
+            .collect();
+        let groups: Vec<(Option<&str>, &[crate::search::Provenance])> = headings
+            .iter()
+            .zip(case.provenance)
+            .map(|(h, p)| (Some(h.as_str()), p.as_slice()))
+            .collect();
+        sections.push(case_section(case.sample, case.analyst, &groups));
+    }
+    sections.push(s);
     for q in queries {
         let heading = format!("{} unknown", q.report.unknown.technique.title());
         sections.push(query_section(q, Some(&heading))?);

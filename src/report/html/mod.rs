@@ -35,6 +35,16 @@ pub struct Query<'a> {
 
 /// A whole page for one search.
 pub fn search_page(query: &Query<'_>) -> Result<String> {
+    search_page_with(query, None)
+}
+
+/// A whole page for one search written for a case: the case section (sample, analyst, the
+/// provenance of each hit's reference) before the search's own section.
+pub fn search_page_for_case(query: &Query<'_>, case: &Case<'_>) -> Result<String> {
+    search_page_with(query, Some(case))
+}
+
+fn search_page_with(query: &Query<'_>, case: Option<&Case<'_>>) -> Result<String> {
     let r = query.report;
     let title = format!("Search of {}", file_name(&r.unknown.file));
     let lede = format!(
@@ -44,13 +54,21 @@ pub fn search_page(query: &Query<'_>) -> Result<String> {
         r.hits.len(),
         query.references.len().min(r.hits.len())
     );
-    let section = query_section(query, None)?;
+    let mut sections = Vec::with_capacity(2);
+    if let Some(case) = case {
+        sections.push(case_section(
+            case.sample,
+            case.analyst,
+            &[(None, case.provenance)],
+        ));
+    }
+    sections.push(query_section(query, None)?);
     Ok(page(
         &title,
         &lede,
         &r.tool_version,
         &r.searched_at,
-        &[section],
+        &sections,
     ))
 }
 
@@ -66,23 +84,25 @@ pub struct Case<'a> {
     pub provenance: &'a [Provenance],
 }
 
-/// A whole page for one search written for a case: the case section (sample, analyst, the
-/// provenance of each hit's reference) before the search's own section.
-pub fn search_page_for_case(query: &Query<'_>, case: &Case<'_>) -> Result<String> {
-    let page = search_page(query)?;
-    let at = page
-        .find("<section class=\"query\"")
-        .expect("a search page has its query section");
-    Ok(format!(
-        "{}{}{}",
-        &page[..at],
-        case_section(case),
-        &page[at..]
-    ))
+/// The case an `identify` report is written for: as [`Case`], with the provenance of each
+/// technique's hits (`provenance[i]` belongs to the page's `queries[i]`).
+#[derive(Debug, Clone, Copy)]
+pub struct IdentifyCase<'a> {
+    /// Sample or case id.
+    pub sample: Option<&'a str>,
+    /// The analyst who ran the identification.
+    pub analyst: Option<&'a str>,
+    /// Per query, the provenance of its hits' references, in rank order.
+    pub provenance: &'a [Vec<Provenance>],
 }
 
-/// The case section: the case facts, then a row per hit with its reference's provenance.
-fn case_section(case: &Case<'_>) -> String {
+/// The case section: the case facts, then a table per group of hits (one for a search, one
+/// per technique for `identify`) with each hit's reference provenance.
+pub(super) fn case_section(
+    sample: Option<&str>,
+    analyst: Option<&str>,
+    groups: &[(Option<&str>, &[Provenance])],
+) -> String {
     let given = |v: Option<&str>| match v {
         Some(v) => escape(v),
         None => "<span class=\"muted\">not given</span>".to_string(),
@@ -92,33 +112,40 @@ fn case_section(case: &Case<'_>) -> String {
         &mut s,
         format_args!(
             "<dl class=\"facts\">\n<dt>sample</dt><dd>{}</dd>\n<dt>analyst</dt><dd>{}</dd>\n</dl>\n",
-            given(case.sample),
-            given(case.analyst)
+            given(sample),
+            given(analyst)
         ),
     );
-    s.push_str("<h3>Where the hits' references come from</h3>\n<table class=\"hits provenance\">\n<thead><tr><th class=\"num\">rank</th><th>compound</th><th class=\"num\">spectrum</th><th>status</th><th class=\"num\">revision</th><th>approved by</th><th>approved at</th><th>sign-off</th></tr></thead>\n<tbody>\n");
-    for p in case.provenance {
-        let kind = if p.detail.is_empty() {
-            escape(&p.kind)
-        } else {
-            format!("{}: {}", escape(&p.kind), escape(&p.detail))
-        };
-        w(
-            &mut s,
-            format_args!(
-                "<tr><td class=\"num\">{}</td><td class=\"name\">{}</td><td class=\"num\">{}</td><td>{}</td><td class=\"num\">{}</td><td>{}</td><td>{}</td><td class=\"name\">{}</td></tr>\n",
-                p.rank,
-                escape(&p.name),
-                p.spectrum_id,
-                escape(&p.status),
-                p.revision,
-                escape(p.approved_by.as_deref().unwrap_or("")),
-                escape(p.approved_at.as_deref().unwrap_or("")),
-                kind
-            ),
-        );
+    s.push_str("<h3>Where the hits' references come from</h3>\n");
+    for (heading, provenance) in groups {
+        if let Some(h) = heading {
+            w(&mut s, format_args!("<h4>{}</h4>\n", escape(h)));
+        }
+        s.push_str("<div class=\"wide\"><table class=\"hits provenance\">\n<thead><tr><th class=\"num\">rank</th><th>compound</th><th class=\"num\">spectrum</th><th>status</th><th class=\"num\">revision</th><th>approved by</th><th>approved at</th><th>sign-off</th></tr></thead>\n<tbody>\n");
+        for p in *provenance {
+            let kind = if p.detail.is_empty() {
+                escape(&p.kind)
+            } else {
+                format!("{}: {}", escape(&p.kind), escape(&p.detail))
+            };
+            w(
+                &mut s,
+                format_args!(
+                    "<tr><td class=\"num\">{}</td><td class=\"name\">{}</td><td class=\"num\">{}</td><td>{}</td><td class=\"num\">{}</td><td>{}</td><td>{}</td><td class=\"name\">{}</td></tr>\n",
+                    p.rank,
+                    escape(&p.name),
+                    p.spectrum_id,
+                    escape(&p.status),
+                    p.revision,
+                    escape(p.approved_by.as_deref().unwrap_or("")),
+                    escape(p.approved_at.as_deref().unwrap_or("")),
+                    kind
+                ),
+            );
+        }
+        s.push_str("</tbody>\n</table></div>\n");
     }
-    s.push_str("</tbody>\n</table>\n</section>\n");
+    s.push_str("</section>\n");
     s
 }
 
@@ -231,7 +258,8 @@ table.hits { border-collapse: collapse; width: 100%; font-variant-numeric: tabul
 table.hits th, table.hits td { padding: 4px 8px; white-space: nowrap; border-bottom: 1px solid var(--rule); text-align: left; }
 table.hits thead th { border-bottom: 2px solid var(--ink); font-weight: 600; }
 table.hits .num { text-align: right; }
-table.hits td.name { white-space: normal; }
+table.hits td.name, table.hits td.wrap { white-space: normal; }
+.wide { overflow-x: auto; }
 table.hits tr.first td { font-weight: 650; background: var(--tint); }
 .note { color: var(--muted); font-size: 14px; }
 figure { margin: 18px 0 26px; break-inside: avoid; }
@@ -243,7 +271,7 @@ details { margin-top: 14px; }
 pre { background: var(--tint); padding: 10px; overflow-x: auto; font-size: 13px; }
 footer { margin-top: 28px; font-size: 13px; color: var(--muted); }
 a { color: #0a5a8c; }
-@media print { main { max-width: none; padding: 0; } figure svg { border: none; } a { color: inherit; text-decoration: none; } }
+@media print { main { max-width: none; padding: 0; } .wide { overflow: visible; } table.hits tr { break-inside: avoid; } h2, h3, h4, figcaption { break-after: avoid-page; } figure svg { border: none; } a { color: inherit; text-decoration: none; } }
 "#;
 
 #[cfg(test)]

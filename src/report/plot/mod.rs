@@ -15,8 +15,9 @@
 //! Colours come from the Okabe-Ito palette, which stays distinct for the common forms of
 //! colour blindness, and each role differs in more than hue so that a greyscale print still
 //! tells them apart: the unknown is a heavy near-black line, the reference a pale filled
-//! silhouette with a thin blue edge, and further spectra in a multi-spectrum plot get dash
-//! patterns as well as colours.
+//! silhouette with a thin blue edge drawn translucent over that line (so a close match hides
+//! neither), and further spectra in a multi-spectrum plot get dash patterns as well as
+//! colours.
 //!
 //! `overlay` and `spectra` here choose what to draw; `axis` holds the x range, its direction,
 //! the frame and the tick text; `render` the SVG canvas with its legend band and the masked
@@ -134,14 +135,17 @@ pub fn overlay(
                 .map(|&(x, y)| (axis.to_plot(x), y))
                 .collect()
         };
-        chart.draw_series(
-            AreaSeries::new(shown(&cr), 0.0, SKY.mix(0.35))
-                .border_style(ShapeStyle::from(BLUE).stroke_width(1)),
-        )?;
+        // The unknown first, the reference's translucent silhouette over it: where the two
+        // coincide (a good match) the unknown's heavy line would otherwise cover the
+        // reference's fill and edge; drawn this way both stay visible, the line tinted blue.
         chart.draw_series(LineSeries::new(
             shown(&cu),
             ShapeStyle::from(INK).stroke_width(2),
         ))?;
+        chart.draw_series(
+            AreaSeries::new(shown(&cr), 0.0, SKY.mix(0.35))
+                .border_style(ShapeStyle::from(BLUE).stroke_width(1)),
+        )?;
         // The unknown's strongest peaks, then the reference's strongest peaks that have no
         // partner in the unknown: those are the differences an analyst looks for.
         let mut cands = peak_candidates(grid, u, &cu, &axis, INK);
@@ -309,5 +313,24 @@ mod tests {
         )
         .unwrap_err();
         assert!(err.to_string().contains("one technique"), "{err}");
+    }
+
+    #[test]
+    fn the_reference_silhouette_is_drawn_over_the_unknowns_line() {
+        // SVG paints in document order (SVG 1.1, section 3.3 "Rendering order"), so the
+        // translucent reference area must come after the unknown's polyline to stay visible
+        // where the two coincide.
+        let u = ir(&[(1715.0, 1.0), (2950.0, 0.6)]);
+        let r = ir(&[(1712.0, 0.9), (2950.0, 0.5)]);
+        let grid = Technique::Ir.default_grid();
+        let svg = overlay(&grid, ("u", &u), ("r", &r), 8.0).unwrap();
+        let first = |tag: &str, colour: &str| {
+            svg.match_indices(tag)
+                .map(|(i, _)| i)
+                .find(|&i| svg[i..].split('>').next().unwrap().contains(colour))
+        };
+        let line = first("<polyline", "#1A1A1A").expect("the unknown's line");
+        let area = first("<polygon", "#56B4E9").expect("the reference's silhouette");
+        assert!(area > line, "the silhouette comes before the line");
     }
 }
