@@ -125,9 +125,9 @@ pub enum Command {
     Show(show::ShowArgs),
     /// List the library's spectra.
     List(list::ListArgs),
-    /// Counts, grids and the library fingerprint.
+    /// Counts, grids and the library state hash.
     Stats(stats::StatsArgs),
-    /// Sign off a pending spectrum (approve or reject).
+    /// Sign off a pending spectrum: verify it as a reference, or reject it.
     Review(review::ReviewArgs),
     /// Make a new revision of a spectrum's metadata.
     Revise(Box<revise::ReviseArgs>),
@@ -139,7 +139,7 @@ pub enum Command {
     Compound(compound::CompoundArgs),
     /// Print the audit trail, for the library or one spectrum.
     Log(log::LogArgs),
-    /// Verify the audit chain, raw data, prepared data and fingerprint.
+    /// Verify the audit chain, raw data, prepared data and state hash.
     Check(check::CheckArgs),
     /// Copy the library consistently while it is in use (a server or other commands running).
     Backup(backup::BackupArgs),

@@ -9,14 +9,15 @@ use whorl::library::Decision;
 use super::{Context, identity, output};
 
 #[derive(Debug, Args)]
-#[command(group(clap::ArgGroup::new("decision").required(true).args(["approve", "reject"])))]
+#[command(group(clap::ArgGroup::new("decision").required(true).args(["verify", "reject"])))]
 pub struct ReviewArgs {
     /// Spectrum ids: one sign-off each, recorded together (all or none)
     #[arg(required = true, num_args = 1.., value_name = "ID")]
     pub ids: Vec<i64>,
-    /// Approve it as a reference: it becomes verified and is searched by default
-    #[arg(long)]
-    pub approve: bool,
+    /// Verify it as a reference: its status becomes `verified` and it is searched by default
+    /// (`--approve` is accepted as another name for it)
+    #[arg(long, alias = "approve")]
+    pub verify: bool,
     /// Reject it: it stays pending until revised or withdrawn
     #[arg(long)]
     pub reject: bool,
@@ -39,7 +40,7 @@ pub struct ReviewArgs {
 
 pub fn run(args: ReviewArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     let mut lib = ctx.open()?;
-    let decision = if args.approve {
+    let decision = if args.verify {
         Decision::Approve
     } else {
         Decision::Reject

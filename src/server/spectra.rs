@@ -286,7 +286,7 @@ pub async fn reinstate(
 /// moment of signing.
 #[derive(Deserialize, utoipa::ToSchema)]
 pub struct SignOff {
-    /// "approve" or "reject".
+    /// "verify" (its status becomes verified; "approve" is accepted too) or "reject".
     pub decision: String,
     /// What the signature means (default: the library's wording for the decision).
     pub meaning: Option<String>,
@@ -316,12 +316,12 @@ pub async fn review(
 ) -> Result<Json<Value>, ApiError> {
     let (Path(id), Json(body)) = (id?, body?);
     let decision = match body.decision.trim() {
-        "approve" => Decision::Approve,
+        "verify" | "approve" => Decision::Approve,
         "reject" => Decision::Reject,
         other => {
             return Err(ApiError::input(
-                format!("decision '{other}' is neither approve nor reject"),
-                "send \"decision\": \"approve\" or \"reject\"",
+                format!("decision '{other}' is neither verify nor reject"),
+                "send \"decision\": \"verify\" or \"reject\"",
             ));
         }
     };

@@ -264,7 +264,7 @@ async function main() {
     await Promise.all([page.waitForNavigation(), page.click(`#queue a[href="/review/${pending}"]`)]);
     expect((await page.$('#sign-off')) !== null, `open pending spectrum ${pending}: the sign-off form is there`, page.url());
     await visited(page, 'review');
-    await page.check('#approve');
+    await page.check('#verify');
     await page.fill('#password', firstPass);
     await Promise.all([page.waitForNavigation(), page.click('#sign-off button[type=submit]')]);
     const problem = (await page.textContent('#problem').catch(() => '')) || '';
@@ -278,7 +278,7 @@ async function main() {
     await signIn(page, secondName, secondPass);
     await page.goto(base + `/review/${pending}`);
     if (docs) await page.screenshot({ path: 'docs/web-review.png', fullPage: true, clip: { x: 0, y: 0, width: 1280, height: 1300 } });
-    await page.check('#approve');
+    await page.check('#verify');
     await page.fill('#password', secondPass);
     await page.fill('#note', 'Bands checked against the lab\'s own measurement.');
     await Promise.all([page.waitForNavigation(), page.click('#sign-off button[type=submit]')]);

@@ -216,7 +216,7 @@ async fn sign_off(
             id,
             StatusCode::BAD_REQUEST,
             "no decision was chosen".into(),
-            "Choose approve or reject, then sign with your password.".into(),
+            "Choose verify or reject, then sign with your password.".into(),
         )
         .await;
     };
