@@ -3,7 +3,7 @@
 //! ```text
 //! cargo run --release --example bench_query -- LIBRARY ir|ms-ei UNKNOWNS_DIR REPEATS [--exact] [--forward]
 //! ```
-//! Prints one JSON object of medians in milliseconds: open, fingerprint, cache (map or
+//! Prints one JSON object of medians in milliseconds: open, state hash, cache (map or
 //! build), prepare, search (warm, one unknown), rank (scan and rescoring without the hit
 //! list's metadata), batch (all unknowns together), and with `--exact` the exact search; and
 //! the stage breakdown (`whorl::search::Trace`) of the median single rank and of the batch.
@@ -38,8 +38,8 @@ fn main() -> anyhow::Result<()> {
     let lib = Library::open(&root)?;
     let open = ms(t0);
     let t0 = Instant::now();
-    lib.fingerprint()?;
-    let fingerprint = ms(t0);
+    lib.state_hash()?;
+    let state_hash = ms(t0);
     let kind = whorl::cache::kind_for(t, whorl::score::Measure::default_for(t)).expect("kind");
     let t0 = Instant::now();
     // A rebuild renames a new file into place: a changed inode tells it from a reuse.
@@ -119,7 +119,7 @@ fn main() -> anyhow::Result<()> {
         "stride": cache.stride(),
         "cache_origin": origin,
         "open_ms": open,
-        "fingerprint_ms": fingerprint,
+        "state_hash_ms": state_hash,
         "cache_ms": cache_ms,
         "prepare_ms": prepare,
         "search_ms": median(warm),

@@ -49,7 +49,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         })?;
     }
     let snapshot = Snapshot {
-        fingerprint: "0".repeat(64),
+        state_hash: "0".repeat(64),
         generation: 1,
         sum: [0; 32],
         last_id: 0,

@@ -3,7 +3,7 @@
 
 Generates a few thousand synthetic IR spectra and a manifest, starts `whorl import`, kills it with
 `kill -9` at a random moment, and then requires that
-  * `whorl check` passes (audit chain, raw hashes, prepared data, fingerprint), and
+  * `whorl check` passes (audit chain, raw hashes, prepared data, state hash), and
   * every spectrum is whole or absent: each spectrum row has its revision, its prepared form and
     its import event, and nothing of a spectrum exists without the others;
 until at least --kills imports have been killed mid-way. A final re-run must complete the import.
@@ -125,7 +125,7 @@ def write_commands(whorl, lib, env, rng, kills, data):
     os.makedirs(exports, exist_ok=True)
     landed = {}
     commands = {
-        "review": lambda n: ["review", str(rng.choice(ids("pending"))), "--approve", "--by", "r.reviewer"],
+        "review": lambda n: ["review", str(rng.choice(ids("pending"))), "--verify", "--by", "r.reviewer"],
         "revise": lambda n: ["revise", str(rng.choice(ids("pending") + ids("verified"))), "--note", f"note {n}",
                              "--reason", "crash test", "--by", "e.editor"],
         "withdraw": lambda n: ["withdraw", str(rng.choice(ids("pending") + ids("verified"))), "--reason", "crash test",

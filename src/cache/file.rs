@@ -21,7 +21,7 @@ pub struct VectorCache {
     pub kind: Kind,
     /// Grid length.
     pub dim: usize,
-    /// The fingerprint and generation the cache was built from.
+    /// The state hash and generation the cache was built from.
     pub built_from: Snapshot,
     /// The composite weighting the sparse weights were computed with.
     pub composite: CompositeParams,
@@ -198,10 +198,10 @@ impl VectorCache {
                 .is_some_and(|m| stamp_of(&m) == self.stamp)
     }
 
-    /// True when the cache was built from this state of the library (same fingerprint and
+    /// True when the cache was built from this state of the library (same state hash and
     /// generation).
     pub fn is_current(&self, snapshot: &Snapshot) -> bool {
-        self.built_from.fingerprint == snapshot.fingerprint
+        self.built_from.state_hash == snapshot.state_hash
             && self.built_from.generation == snapshot.generation
     }
 
@@ -318,7 +318,7 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         }
     }
     let generation = u64_at(h, 80) as i64;
-    let fingerprint = String::from_utf8_lossy(&h[104..168]).to_string();
+    let state_hash = String::from_utf8_lossy(&h[104..168]).to_string();
     let composite = CompositeParams {
         intensity_exponent: f64::from_bits(u64_at(h, 88)),
         mass_exponent: f64::from_bits(u64_at(h, 96)),
@@ -336,7 +336,7 @@ fn parse(map: Mmap, technique: Technique, kind: Kind) -> std::result::Result<Vec
         kind,
         dim,
         built_from: Snapshot {
-            fingerprint,
+            state_hash,
             generation,
             sum,
             last_id,
@@ -392,7 +392,7 @@ mod tests {
 
     fn snapshot() -> Snapshot {
         Snapshot {
-            fingerprint: "f".repeat(64),
+            state_hash: "f".repeat(64),
             generation: 7,
             sum: [3; 32],
             last_id: 41,

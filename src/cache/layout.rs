@@ -2,7 +2,7 @@
 //!
 //! ```text
 //! header   1024 bytes: magic, format version, kind, technique, grid length (dim), padded
-//!          row length (stride), rows, peaks (nnz), generation, fingerprint, composite
+//!          row length (stride), rows, peaks (nnz), generation, state hash, composite
 //!          exponents, section offsets, flags (byte 400), coarse factor (bytes 404-407),
 //!          the XXH3-64 checksum of every section (bytes 512-671, see [`checksum`]), the
 //!          snapshot's content sum (bytes 680-711) and highest spectrum id (712-719) and,
@@ -265,7 +265,7 @@ pub(super) fn write_header(map: &mut [u8], c: &Tag<'_>) {
     h[80..88].copy_from_slice(&(snapshot.generation as u64).to_le_bytes());
     h[88..96].copy_from_slice(&c.params.intensity_exponent.to_bits().to_le_bytes());
     h[96..104].copy_from_slice(&c.params.mass_exponent.to_bits().to_le_bytes());
-    let fp = snapshot.fingerprint.as_bytes();
+    let fp = snapshot.state_hash.as_bytes();
     h[104..104 + fp.len().min(64)].copy_from_slice(&fp[..fp.len().min(64)]);
     for (i, &o) in l.offsets.iter().enumerate() {
         h[168 + 8 * i..176 + 8 * i].copy_from_slice(&(o as u64).to_le_bytes());

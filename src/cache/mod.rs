@@ -2,7 +2,7 @@
 //! searchable prepared spectrum as one contiguous matrix, the row transforms that fill it,
 //! and the kernels that read it.
 //!
-//! A cache is derived data. It is tagged with the library fingerprint and generation it was
+//! A cache is derived data. It is tagged with the library state hash and generation it was
 //! built from ([`Snapshot`]), rebuilt whenever either differs from the database, written to
 //! a temporary file and renamed into place (a crash never leaves half a cache), and deleting
 //! the `cache/` folder loses nothing. Its header keeps a checksum of every section and of
@@ -32,17 +32,17 @@ use crate::score::Measure;
 use crate::spectrum::Status;
 use crate::technique::Technique;
 
-/// The state of the searchable content a cache was built from: the library fingerprint and
+/// The state of the searchable content a cache was built from: the library state hash and
 /// generation, and what a library needs to tell whether spectra stored since are all that
-/// changed (the content sum under the fingerprint and the highest spectrum id of any
+/// changed (the content sum under the state hash and the highest spectrum id of any
 /// technique), read together with the rows.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Snapshot {
-    /// The library fingerprint.
-    pub fingerprint: String,
+    /// The library state hash.
+    pub state_hash: String,
     /// The generation counter.
     pub generation: i64,
-    /// The content sum the fingerprint was made from (see `library::fingerprint`).
+    /// The content sum the state hash was made from (see `library::state_hash`).
     pub sum: [u8; 32],
     /// The highest spectrum id in the library, of any technique and status (0 when empty).
     pub last_id: i64,

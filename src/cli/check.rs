@@ -80,7 +80,7 @@ pub fn run(args: CheckArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
                 format!("{} inconsistencies", report.findings.len())
             }
         )?;
-        writeln!(out, "fingerprint {}", lib.fingerprint()?)?;
+        writeln!(out, "state hash {}", lib.state_hash()?)?;
     }
     Ok(if report.findings.is_empty() {
         ExitCode::SUCCESS

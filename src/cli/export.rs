@@ -56,7 +56,7 @@ pub fn run(args: ExportArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             report.info.spectra,
             output::shown(report.dir.display())
         )?;
-        writeln!(out, "bundle fingerprint {}", report.info.fingerprint)?;
+        writeln!(out, "bundle state hash {}", report.info.state_hash)?;
         match &signer {
             Some(key) => writeln!(
                 out,

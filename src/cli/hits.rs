@@ -105,7 +105,7 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
             verdict.to_string(),
             margin.clone(),
             codes.clone(),
-            r.library.fingerprint.clone(),
+            r.library.state_hash.clone(),
         ])?;
     }
     if r.hits.is_empty() {
@@ -114,7 +114,7 @@ pub fn write_csv(out: &mut impl Write, r: &Report) -> anyhow::Result<()> {
             verdict.to_string(),
             margin,
             codes,
-            r.library.fingerprint.clone(),
+            r.library.state_hash.clone(),
         ]);
         w.write_record(row)?;
     }
@@ -212,9 +212,9 @@ pub fn print_report_styled(
     )?;
     writeln!(
         out,
-        "library   {}  (fingerprint {})",
+        "library   {}  (state hash {})",
         output::terminal_text(&r.library.path),
-        output::short(&r.library.fingerprint)
+        output::short(&r.library.state_hash)
     )?;
     let filter = r
         .parameters

@@ -164,9 +164,9 @@ fn write_html(
 pub fn print_identify(out: &mut impl Write, r: &IdentifyReport) -> anyhow::Result<()> {
     writeln!(
         out,
-        "library   {}  (fingerprint {})",
+        "library   {}  (state hash {})",
         output::shown(&r.library.path),
-        output::short(&r.library.fingerprint)
+        output::short(&r.library.state_hash)
     )?;
     for run in &r.runs {
         let u = &run.unknown;

@@ -219,7 +219,7 @@ fn import_bundle(
     if args.json {
         output::json(
             &mut out,
-            &json!({ "bundle": info, "signature": trust, "imported": added, "already_present": present, "rejected": [], "fingerprint": lib.fingerprint()? }),
+            &json!({ "bundle": info, "signature": trust, "imported": added, "already_present": present, "rejected": [], "state_hash": lib.state_hash()? }),
         )?;
     } else {
         writeln!(
@@ -255,10 +255,10 @@ fn import_bundle(
         }
         writeln!(
             out,
-            "bundle fingerprint  {}",
-            output::shown(&info.fingerprint)
+            "bundle state hash  {}",
+            output::shown(&info.state_hash)
         )?;
-        writeln!(out, "library fingerprint {}", lib.fingerprint()?)?;
+        writeln!(out, "library state hash {}", lib.state_hash()?)?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -15,7 +15,7 @@ pub struct InitArgs {
     /// Who creates the library [default: $WHORL_USER, else the OS user]
     #[arg(long, value_name = "WHO")]
     pub by: Option<String>,
-    /// Print the new library's recipes and fingerprint as JSON
+    /// Print the new library's recipes and state hash as JSON
     #[arg(long)]
     pub json: bool,
     /// IR baseline removal: none, als or rubber-band
@@ -147,14 +147,14 @@ pub fn run(args: InitArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
             &serde_json::json!({
                 "library": ctx.library.display().to_string(),
                 "recipes": lib.recipes().values().collect::<Vec<_>>(),
-                "fingerprint": lib.fingerprint()?,
+                "state_hash": lib.state_hash()?,
             }),
         )?;
         return Ok(ExitCode::SUCCESS);
     }
     writeln!(out, "created library {}", ctx.library.display())?;
     print_recipes(&mut out, lib.recipes().values())?;
-    writeln!(out, "fingerprint {}", lib.fingerprint()?)?;
+    writeln!(out, "state hash {}", lib.state_hash()?)?;
     Ok(ExitCode::SUCCESS)
 }
 

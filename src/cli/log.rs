@@ -65,7 +65,13 @@ fn detail(e: &whorl::library::Event) -> String {
                 .and_then(|r| r.last())
                 .map(|r| r["metadata"]["name"].as_str().unwrap_or_default())
                 .unwrap_or_default(),
-            output::short(p["bundle"]["fingerprint"].as_str().unwrap_or_default())
+            // Import events recorded before the term changed say `fingerprint`.
+            output::short(
+                p["bundle"]["state_hash"]
+                    .as_str()
+                    .or_else(|| p["bundle"]["fingerprint"].as_str())
+                    .unwrap_or_default()
+            )
         ),
         "review" => format!(
             "revision {} {}{}",

@@ -147,9 +147,9 @@ pub fn run(args: RecipeArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     )?;
     writeln!(
         out,
-        "fingerprint {} -> {}",
-        output::short(&change.fingerprint_before),
-        output::short(&change.fingerprint_after)
+        "state hash {} -> {}",
+        output::short(&change.state_hash_before),
+        output::short(&change.state_hash_after)
     )?;
     writeln!(
         out,

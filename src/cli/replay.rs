@@ -34,15 +34,15 @@ pub fn run(args: ReplayArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
     } else {
         writeln!(
             out,
-            "saved    {} against fingerprint {}",
+            "saved    {} against state hash {}",
             saved.searched_at,
-            output::short(&r.fingerprint_then)
+            output::short(&r.state_hash_then)
         )?;
         writeln!(
             out,
-            "now      {} against fingerprint {}",
+            "now      {} against state hash {}",
             r.now.searched_at,
-            output::short(&r.fingerprint_now)
+            output::short(&r.state_hash_now)
         )?;
         if r.same {
             writeln!(

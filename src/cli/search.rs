@@ -51,7 +51,7 @@ pub struct SearchArgs {
     /// Also search pending (not yet reviewed) spectra
     #[arg(long)]
     pub include_pending: bool,
-    /// Save the search record (unknown's hash, parameters, fingerprint, hits) for `whorl replay`
+    /// Save the search record (unknown's hash, parameters, state hash, hits) for `whorl replay`
     #[arg(long, value_name = "FILE")]
     pub save: Option<PathBuf>,
     /// Print the full report as JSON

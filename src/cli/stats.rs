@@ -1,4 +1,4 @@
-//! `whorl stats`: counts, grids, fingerprint.
+//! `whorl stats`: counts, grids, state hash.
 
 use std::io::Write;
 use std::process::ExitCode;
@@ -27,7 +27,7 @@ pub fn run(args: StatsArgs, ctx: &Context) -> anyhow::Result<ExitCode> {
         "library      {}",
         super::output::shown(ctx.library.display())
     )?;
-    writeln!(out, "fingerprint  {}", s.fingerprint)?;
+    writeln!(out, "state hash   {}", s.state_hash)?;
     writeln!(out, "compounds    {}", s.compounds)?;
     writeln!(out, "events       {}", s.events)?;
     writeln!(out)?;

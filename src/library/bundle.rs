@@ -3,7 +3,7 @@
 //!
 //! A bundle is a folder: `spectra/<id>.<technique>.csv` (raw points exactly as imported),
 //! `manifest.csv` (metadata, provenance, revision and review history), `bundle.json` (format,
-//! fingerprint of what was exported, recipes, who and when) and `SHA256SUMS` (sha256sum format)
+//! state hash of what was exported, recipes, who and when) and `SHA256SUMS` (sha256sum format)
 //! covering every other file.
 
 use std::collections::{BTreeMap, BTreeSet, HashSet};
@@ -15,7 +15,7 @@ use serde::{Deserialize, Serialize};
 use super::keys::{KeyPair, SIGNATURE_FILE, signature_line};
 use super::manifest::{KNOWN_COLUMNS, ManifestRow, resolve_within};
 use super::records::SpectrumRecord;
-use super::{ContentSum, Library, fingerprint, now, record_hash};
+use super::{ContentSum, Library, now, record_hash, state_hash};
 use crate::error::{Error, Location, Result};
 use crate::spectrum::{Metadata, Status};
 use crate::spectrum::{csv_cell, sha256_hex, sha256_hex_of};
@@ -28,8 +28,10 @@ pub const BUNDLE_FORMAT: &str = "whorl-bundle-1";
 pub struct BundleInfo {
     /// Always [`BUNDLE_FORMAT`].
     pub format: String,
-    /// Fingerprint of the exported spectra (recipes plus their searchable records).
-    pub fingerprint: String,
+    /// State hash of the exported spectra (recipes plus their searchable records). Bundles
+    /// written before the term changed call it `fingerprint`.
+    #[serde(alias = "fingerprint")]
+    pub state_hash: String,
     /// Spectra in the bundle.
     pub spectra: usize,
     /// When it was written (UTC).
@@ -38,8 +40,9 @@ pub struct BundleInfo {
     pub exported_by: String,
     /// whorl version that wrote it.
     pub tool_version: String,
-    /// Fingerprint of the whole library it came from.
-    pub source_fingerprint: String,
+    /// State hash of the whole library it came from (`source_fingerprint` in older bundles).
+    #[serde(alias = "source_fingerprint")]
+    pub source_state_hash: String,
     /// The recipes of the library it came from.
     pub recipes: serde_json::Value,
     /// The metadata query that selected the spectra, if any.
@@ -233,12 +236,12 @@ impl Library {
         let recipes_json = serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?;
         let info = BundleInfo {
             format: BUNDLE_FORMAT.into(),
-            fingerprint: fingerprint(&recipes_json, content),
+            state_hash: state_hash(&recipes_json, content),
             spectra: records.len(),
             exported_at: now(),
             exported_by: actor.into(),
             tool_version: env!("CARGO_PKG_VERSION").into(),
-            source_fingerprint: self.fingerprint()?,
+            source_state_hash: self.state_hash()?,
             recipes: serde_json::from_str(&recipes_json)?,
             query: query.map(str::to_string),
             status,
@@ -381,7 +384,7 @@ pub(super) fn content_state_hash(
             ));
         }
     }
-    Ok(fingerprint(&serde_json::to_string(&recipes)?, content))
+    Ok(state_hash(&serde_json::to_string(&recipes)?, content))
 }
 
 /// Checks `SHA256SUMS` against every file it lists, and that every file in the bundle is listed.
@@ -629,9 +632,9 @@ mod tests {
         assert_eq!(info.spectra, 3);
         assert_eq!(info.format, BUNDLE_FORMAT);
         assert_eq!(info.exported_by, "carol");
-        // Everything exported: the bundle's fingerprint is the library's.
-        assert_eq!(info.fingerprint, lib.fingerprint().unwrap());
-        assert_eq!(report.info.fingerprint, info.fingerprint);
+        // Everything exported: the bundle's state hash is the library's.
+        assert_eq!(info.state_hash, lib.state_hash().unwrap());
+        assert_eq!(report.info.state_hash, info.state_hash);
         let mut files: Vec<String> = std::fs::read_dir(dir.join("spectra"))
             .unwrap()
             .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())

@@ -88,12 +88,12 @@ impl Library {
         // The state hash written at export must be the one its content gives: a bundle edited
         // and re-summed but not re-hashed (a status changed, a sign-off added) is refused here.
         let recomputed = content_state_hash(dir, &info, &rows)?;
-        if recomputed != info.fingerprint {
+        if recomputed != info.state_hash {
             return Err(Error::input(
                 Location::file(dir.join("bundle.json")),
                 format!(
                     "the bundle's state hash {} does not match its content, which hashes to {}",
-                    short(&info.fingerprint),
+                    short(&info.state_hash),
                     short(&recomputed)
                 ),
                 "the manifest or bundle.json was changed after export; export the bundle again from its source; nothing was imported",
@@ -129,7 +129,7 @@ impl Library {
                 Trust::Signed { key, .. } => format!("signed ({key})"),
                 Trust::Untrusted { .. } => "untrusted".to_string(),
             },
-            short(&info.fingerprint),
+            short(&info.state_hash),
             dir.display()
         );
         let outcomes = self.write(|tx| {
@@ -367,7 +367,7 @@ fn import_one(
         "revisions": revisions,
         "reviews": reviews,
         "status_history": history,
-        "bundle": { "fingerprint": info.fingerprint, "original_id": field("whorl_original_id"), "exported_by": info.exported_by, "exported_at": info.exported_at },
+        "bundle": { "state_hash": info.state_hash, "original_id": field("whorl_original_id"), "exported_by": info.exported_by, "exported_at": info.exported_at },
     });
     append_event(
         tx,
@@ -420,20 +420,20 @@ mod tests {
     }
 
     #[test]
-    fn an_imported_bundle_keeps_history_status_and_fingerprint() {
+    fn an_imported_bundle_keeps_history_status_and_state_hash() {
         let source = curated();
         let (_tmp, dir) = exported(&source);
         let mut lib = Library::in_memory("t").unwrap();
         let (info, outcomes) = untrusted(&mut lib, &dir).unwrap();
         assert_eq!(added(&outcomes), [1, 2, 3]);
-        assert_eq!(info.fingerprint, source.fingerprint().unwrap());
+        assert_eq!(info.state_hash, source.state_hash().unwrap());
         let status = |id| lib.spectrum(id).unwrap().status;
         // Verified at home, pending local acceptance here.
         assert_eq!(
             [status(1), status(2), status(3)],
             [Status::Pending, Status::Pending, Status::Withdrawn]
         );
-        assert_ne!(lib.fingerprint().unwrap(), info.fingerprint);
+        assert_ne!(lib.state_hash().unwrap(), info.state_hash);
         // The sign-off comes along, saying where from.
         let reviews = lib.reviews(1).unwrap();
         assert_eq!(reviews.len(), 1);
@@ -441,7 +441,7 @@ mod tests {
         assert_eq!(reviews[0].note.as_deref(), Some("matches the CoA"));
         let from = reviews[0].imported_from.as_deref().unwrap();
         assert!(
-            from.starts_with(&format!("untrusted bundle {}", &info.fingerprint[..16])),
+            from.starts_with(&format!("untrusted bundle {}", &info.state_hash[..16])),
             "{from}"
         );
         assert!(from.ends_with("spectrum 1"), "{from}");
@@ -506,7 +506,7 @@ mod tests {
         let path = dir.join("bundle.json");
         let mut info: serde_json::Value =
             serde_json::from_slice(&std::fs::read(&path).unwrap()).unwrap();
-        info["fingerprint"] = hash.into();
+        info["state_hash"] = hash.into();
         std::fs::write(&path, serde_json::to_string_pretty(&info).unwrap() + "\n").unwrap();
     }
 
@@ -519,6 +519,39 @@ mod tests {
             }
             other => panic!("expected a refusal, got {other:?}"),
         }
+    }
+
+    #[test]
+    fn a_bundle_written_when_the_state_hash_was_called_fingerprint_imports() {
+        let source = curated();
+        let (_tmp, dir) = exported(&source);
+        let path = dir.join("bundle.json");
+        let text = std::fs::read_to_string(&path).unwrap();
+        let old = text
+            .replace("\"source_state_hash\"", "\"source_fingerprint\"")
+            .replace("\"state_hash\"", "\"fingerprint\"");
+        assert!(
+            old.contains("\"fingerprint\"") && !old.contains("state_hash"),
+            "{old}"
+        );
+        std::fs::write(&path, old).unwrap();
+        reseal(&dir);
+        let mut lib = Library::in_memory("t").unwrap();
+        let (info, outcomes) = untrusted(&mut lib, &dir).unwrap();
+        assert_eq!(added(&outcomes), [1, 2, 3]);
+        assert_eq!(info.state_hash, source.state_hash().unwrap());
+        // Under the old key, a wrong value is still refused.
+        set_state_hash(&dir, &"0".repeat(64));
+        let text = std::fs::read_to_string(&path).unwrap();
+        let mut info: serde_json::Value = serde_json::from_str(&text).unwrap();
+        let zero = info.as_object_mut().unwrap().remove("state_hash").unwrap();
+        info.as_object_mut().unwrap().remove("fingerprint");
+        info["fingerprint"] = zero;
+        std::fs::write(&path, serde_json::to_string_pretty(&info).unwrap()).unwrap();
+        reseal(&dir);
+        let mut fresh = Library::in_memory("t").unwrap();
+        let reason = refused_at_bundle_json(&mut fresh, &dir);
+        assert!(reason.contains("state hash"), "{reason}");
     }
 
     #[test]

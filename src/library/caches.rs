@@ -7,7 +7,7 @@ use std::collections::HashMap;
 use std::path::Path;
 use std::sync::Arc;
 
-use super::{ContentSum, Library, Status, fingerprint, record_hash};
+use super::{ContentSum, Library, Status, record_hash, state_hash};
 use crate::cache::{self, BLOCK_SAMPLE, Builder, CACHE_DIR, Kind, Snapshot, VectorCache};
 use crate::error::{Error, Result};
 use crate::score::{CompositeParams, Measure};
@@ -87,8 +87,8 @@ impl Library {
     /// tail is empty when the cache is current. A cache older than the library is used with
     /// its tail only when spectra stored after it are all that changed: the content sum now,
     /// less the record hashes of every searchable spectrum of any technique with a higher id
-    /// than the library held at the build, makes the cache's fingerprint again with today's
-    /// recipes (the sum is a multiset hash, see `fingerprint`), so nothing the cache holds was
+    /// than the library held at the build, makes the cache's state hash again with today's
+    /// recipes (the sum is a multiset hash, see `state_hash`), so nothing the cache holds was
     /// withdrawn, reinstated, signed off, revised or prepared again since; and the tail holds at
     /// most [`tail_limit`] spectra. Otherwise the cache is rebuilt, as [`Library::vector_cache`]
     /// does. A server adding spectra while it searches thus rebuilds its cache now and then,
@@ -206,7 +206,7 @@ impl Library {
         }
         tx.finish()?;
         let recipes = serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?;
-        Ok((fingerprint(&recipes, sum) == built.fingerprint).then_some(tail))
+        Ok((state_hash(&recipes, sum) == built.state_hash).then_some(tail))
     }
 
     /// Builds the cache of one technique and kind from the database: into `cache/` when the

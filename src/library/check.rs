@@ -1,5 +1,5 @@
 //! `check`: walk the audit chain, replay it against the tables, re-hash every raw blob,
-//! re-prepare every spectrum, recompute the fingerprint, and bring derived data up to date.
+//! re-prepare every spectrum, recompute the state hash, and bring derived data up to date.
 
 use std::collections::{BTreeMap, HashMap, HashSet};
 
@@ -721,7 +721,7 @@ impl Library {
         if stored_sum != sum {
             find(
                 "library".into(),
-                "the stored fingerprint sum does not match the searchable records".into(),
+                "the stored state hash sum does not match the searchable records".into(),
             );
         }
 
@@ -989,7 +989,7 @@ mod tests {
     use crate::library::Status;
 
     /// A recorded check, like an account change, touches no spectrum: the generation and the
-    /// fingerprint stay, so the vector cache in use is still current and is reused, not built
+    /// state hash stay, so the vector cache in use is still current and is reused, not built
     /// again; a spectrum added moves both and the next search builds a new one.
     #[test]
     fn a_recorded_check_leaves_the_vector_cache_current() {

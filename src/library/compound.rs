@@ -138,7 +138,7 @@ impl Library {
     /// it. Refuses `from == into`, an unknown id, a compound already merged on either side,
     /// and two different formulas unless `formulas_differ` says the caller knows (the reason
     /// then has to say why they are one substance). The revisions keep the compound they
-    /// named when written; the fingerprint does not move (it sums spectra and metadata, not
+    /// named when written; the state hash does not move (it sums spectra and metadata, not
     /// compound ids), but the generation does, so the text index and caches catch up.
     pub fn merge_compounds(
         &mut self,

@@ -195,7 +195,7 @@ impl Library {
 
     /// Brings a withdrawn spectrum back: it returns to `pending` at its current revision, so
     /// the review policy applies to it again (its earlier sign-offs stay as history and grant
-    /// nothing), and it counts in the fingerprint again. The withdrawal's reason is cleared
+    /// nothing), and it counts in the state hash again. The withdrawal's reason is cleared
     /// from the spectrum and kept in the audit trail, beside the `reinstate` event with its
     /// own reason. Which role may reinstate is the face's business (the server's curators).
     pub fn reinstate(&mut self, id: i64, actor: &str, reason: &str) -> Result<()> {
@@ -389,7 +389,7 @@ mod tests {
         let id = add(&mut lib, &ir(1, "acetone", "alice"));
         lib.review(id, "bob", Decision::Approve, None, None)
             .unwrap();
-        let before = lib.fingerprint().unwrap();
+        let before = lib.state_hash().unwrap();
         let number = lib
             .revise(id, &notes("from the 2023 lot"), "alice", Some("lot noted"))
             .unwrap();
@@ -417,7 +417,7 @@ mod tests {
             ),
             (Some(2), Some(1))
         );
-        assert_ne!(lib.fingerprint().unwrap(), before);
+        assert_ne!(lib.state_hash().unwrap(), before);
         // A revision that changes nothing is refused.
         let err = lib
             .revise(id, &notes("from the 2023 lot"), "alice", None)
@@ -473,12 +473,12 @@ mod tests {
     }
 
     #[test]
-    fn a_withdrawn_spectrum_leaves_search_and_the_fingerprint() {
+    fn a_withdrawn_spectrum_leaves_search_and_the_state_hash() {
         let mut lib = Library::in_memory("t").unwrap();
         add(&mut lib, &ir(1, "acetone", "alice"));
-        let without = lib.fingerprint().unwrap();
+        let without = lib.state_hash().unwrap();
         let id = add(&mut lib, &ir(2, "butanone", "alice"));
-        assert_ne!(lib.fingerprint().unwrap(), without);
+        assert_ne!(lib.state_hash().unwrap(), without);
         let err = lib.withdraw(id, "alice", "  ").unwrap_err();
         assert!(err.to_string().contains("needs a reason"), "{err}");
         lib.withdraw(id, "alice", " wrong sample ").unwrap();
@@ -493,8 +493,8 @@ mod tests {
             .unwrap();
         assert!(searchable.iter().all(|c| c.spectrum_id != id));
         assert_eq!(searchable.len(), 1);
-        // The fingerprint is that of the library without it.
-        assert_eq!(lib.fingerprint().unwrap(), without);
+        // The state hash is that of the library without it.
+        assert_eq!(lib.state_hash().unwrap(), without);
         let event = lib.events(Some("spectrum:2")).unwrap().pop().unwrap();
         assert_eq!(event.action, "withdraw");
         assert_eq!(event.payload["previous_status"], "pending");
@@ -510,12 +510,12 @@ mod tests {
         let id = add(&mut lib, &ir(1, "acetone", "alice"));
         lib.review(id, "bob", Decision::Approve, None, None)
             .unwrap();
-        let verified = lib.fingerprint().unwrap();
+        let verified = lib.state_hash().unwrap();
         // Only a withdrawn spectrum, and only with a reason.
         let err = lib.reinstate(id, "carol", "back").unwrap_err();
         assert!(err.to_string().contains("not withdrawn"), "{err}");
         lib.withdraw(id, "carol", "suspected mix-up").unwrap();
-        let withdrawn = lib.fingerprint().unwrap();
+        let withdrawn = lib.state_hash().unwrap();
         let err = lib.reinstate(id, "carol", " ").unwrap_err();
         assert!(err.to_string().contains("needs a reason"), "{err}");
         lib.reinstate(id, "carol", " lot confirmed by the supplier ")
@@ -523,8 +523,8 @@ mod tests {
         let rec = lib.spectrum(id).unwrap();
         assert_eq!((rec.status, rec.revision), (Status::Pending, 1));
         assert_eq!(lib.withdrawn_reason(id).unwrap(), None);
-        // Searchable again, pending: in the fingerprint, but not as the verified spectrum was.
-        let fp = lib.fingerprint().unwrap();
+        // Searchable again, pending: in the state hash, but not as the verified spectrum was.
+        let fp = lib.state_hash().unwrap();
         assert!(fp != withdrawn && fp != verified);
         let event = lib.events(Some("spectrum:1")).unwrap().pop().unwrap();
         assert_eq!(event.action, "reinstate");
@@ -539,7 +539,7 @@ mod tests {
         lib.review(id, "bob", Decision::Approve, None, None)
             .unwrap();
         assert_eq!(lib.spectrum(id).unwrap().status, Status::Verified);
-        assert_eq!(lib.fingerprint().unwrap(), verified);
+        assert_eq!(lib.state_hash().unwrap(), verified);
         // It can be withdrawn again, for a new reason, and `check` replays all of it.
         lib.withdraw(id, "carol", "second thoughts").unwrap();
         assert_eq!(

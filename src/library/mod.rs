@@ -11,7 +11,6 @@ mod compound;
 mod curation;
 mod events;
 mod find;
-mod fingerprint;
 mod identity;
 mod import;
 mod keys;
@@ -23,6 +22,7 @@ mod schema;
 mod seal;
 mod stage;
 mod state;
+mod state_hash;
 mod store;
 pub mod synthetic;
 #[cfg(test)]
@@ -46,7 +46,6 @@ pub use compound::{CompoundRecord, Merge};
 pub use curation::{MetadataPatch, RevisionInfo, StatusChange};
 pub use events::{ASSERTED, Event, SIGNED_IN};
 pub use find::Found;
-pub use fingerprint::{ContentSum, fingerprint, record_hash};
 pub use identity::{MAX_NAME_CHARS, Person, same_person};
 pub use import::{BATCH, ImportReport, RowReport, import_rows};
 pub use keys::{BundleSignature, KeyPair, PublicKey, SIGNATURE_FILE, TrustedKey};
@@ -61,6 +60,7 @@ pub use stage::{
     Recipes, Staged, Submission, normalise_metadata, prepare_raw, prepare_stored, read_and_prepare,
     stage, usual_x_unit,
 };
+pub use state_hash::{ContentSum, record_hash, state_hash};
 pub use store::{Outcome, normalised_name};
 pub use witness::{WitnessedHead, read_witness};
 
@@ -402,15 +402,15 @@ impl Library {
         Ok(v.parse().unwrap_or(0))
     }
 
-    /// The fingerprint of the searchable content and the recipes.
-    pub fn fingerprint(&self) -> Result<String> {
+    /// The state hash of the searchable content and the recipes.
+    pub fn state_hash(&self) -> Result<String> {
         let sum: String = self.conn.query_row(
             "SELECT value FROM setting WHERE key = 'content_sum'",
             [],
             |r| r.get(0),
         )?;
         let sum = ContentSum::from_hex(&sum).unwrap_or_default();
-        Ok(fingerprint(
+        Ok(state_hash(
             &serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?,
             sum,
         ))

@@ -4,7 +4,7 @@
 //!
 //! The raw points, metadata, statuses and sign-offs stay as they are: a sign-off covers the
 //! measurement and what it says it is, and the prepared form is derived from the raw points by
-//! the recipe. The fingerprint changes (it covers the recipes), so saved searches made before
+//! the recipe. The state hash changes (it covers the recipes), so saved searches made before
 //! the change replay as different and `whorl replay` names this event as the reason.
 
 use rayon::prelude::*;
@@ -33,10 +33,10 @@ pub struct RecipeChange {
     pub to: Recipe,
     /// Spectra prepared again, of every status.
     pub spectra: usize,
-    /// The library's fingerprint before the change.
-    pub fingerprint_before: String,
-    /// The library's fingerprint after it.
-    pub fingerprint_after: String,
+    /// The library's state hash before the change.
+    pub state_hash_before: String,
+    /// The library's state hash after it.
+    pub state_hash_after: String,
 }
 
 impl Library {
@@ -67,7 +67,7 @@ impl Library {
                 "nothing to change; `whorl recipe` shows the current recipes",
             ));
         }
-        let fingerprint_before = self.fingerprint()?;
+        let state_hash_before = self.state_hash()?;
         let spectra = self.write(|tx| {
             let n = reprepare_all(tx, &recipe, progress)?;
             tx.execute(
@@ -97,8 +97,8 @@ impl Library {
             from,
             to: recipe,
             spectra,
-            fingerprint_before,
-            fingerprint_after: self.fingerprint()?,
+            state_hash_before,
+            state_hash_after: self.state_hash()?,
         })
     }
 }
@@ -199,13 +199,13 @@ mod tests {
     fn every_spectrum_of_the_technique_is_prepared_again() {
         let mut lib = mixed();
         let ms_before = lib.prepared(3).unwrap().vector;
-        let fingerprint = lib.fingerprint().unwrap();
+        let state_hash = lib.state_hash().unwrap();
         let change = lib
             .change_recipe(coarser(), "admin", "coarser grid", &|_, _| {})
             .unwrap();
         assert_eq!(change.spectra, 2);
-        assert_eq!(change.fingerprint_before, fingerprint);
-        assert_ne!(change.fingerprint_after, fingerprint);
+        assert_eq!(change.state_hash_before, state_hash);
+        assert_ne!(change.state_hash_after, state_hash);
         assert_eq!(lib.recipe(Technique::Ir).unwrap(), &coarser());
         for id in [1, 2] {
             let p = lib.prepared(id).unwrap();

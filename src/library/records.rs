@@ -111,8 +111,8 @@ pub struct Stats {
     pub events: i64,
     /// Recipes per technique.
     pub recipes: Vec<Recipe>,
-    /// The library fingerprint.
-    pub fingerprint: String,
+    /// The library state hash.
+    pub state_hash: String,
     /// Schema version.
     pub schema_version: i64,
 }
@@ -333,7 +333,7 @@ impl Library {
         Ok(out)
     }
 
-    /// Counts, recipes and fingerprint.
+    /// Counts, recipes and state hash.
     pub fn stats(&self) -> Result<Stats> {
         let compounds = self
             .conn
@@ -361,7 +361,7 @@ impl Library {
             spectra,
             events,
             recipes: self.recipes.values().cloned().collect(),
-            fingerprint: self.fingerprint()?,
+            state_hash: self.state_hash()?,
             schema_version: super::schema::version(&self.conn)?,
         })
     }

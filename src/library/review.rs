@@ -330,7 +330,7 @@ mod tests {
     fn another_reviewer_can_approve() {
         let mut lib = Library::in_memory("t").unwrap();
         let id = add(&mut lib, &ir(1, "acetone", "alice"));
-        let before = lib.fingerprint().unwrap();
+        let before = lib.state_hash().unwrap();
         let review = approve(&mut lib, id, "bob").unwrap();
         assert_eq!(lib.spectrum(id).unwrap().status, Status::Verified);
         let stored = lib.reviews(id).unwrap();
@@ -347,8 +347,8 @@ mod tests {
             (event.action.as_str(), event.actor.as_str()),
             ("review", "bob")
         );
-        // The status is part of what the fingerprint covers.
-        assert_ne!(lib.fingerprint().unwrap(), before);
+        // The status is part of what the state hash covers.
+        assert_ne!(lib.state_hash().unwrap(), before);
         // Approved once is enough.
         let err = approve(&mut lib, id, "carol").unwrap_err().to_string();
         assert!(err.contains("already verified"), "{err}");

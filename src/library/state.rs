@@ -1,9 +1,9 @@
 //! The library's own state beside its rows: the recipes, the generation counter, the content
-//! sum behind the fingerprint, and the write transaction that keeps them in step.
+//! sum behind the state hash, and the write transaction that keeps them in step.
 
 use rusqlite::Connection;
 
-use super::fingerprint::{ContentSum, record_hash};
+use super::state_hash::{ContentSum, record_hash};
 use super::{Library, Recipes};
 use crate::error::Result;
 use crate::prepare::Recipe;
@@ -54,7 +54,7 @@ pub(super) fn update_content_sum(tx: &Connection, f: impl FnOnce(&mut ContentSum
     Ok(())
 }
 
-/// Moves a spectrum's contribution to the fingerprint from its old state to its new one.
+/// Moves a spectrum's contribution to the state hash from its old state to its new one.
 pub(super) fn reweigh(
     tx: &Connection,
     technique: &str,
@@ -100,7 +100,7 @@ impl Library {
     /// account or token change, a lock-out). No derived store reads those tables, so the text
     /// index and the vector caches stay current: a check recorded from the audit page does not
     /// make the next search rebuild its cache. The event chain still grows by one link; the
-    /// fingerprint, which no such write can move (it sums spectra and recipes only), is left
+    /// state hash, which no such write can move (it sums spectra and recipes only), is left
     /// as it is. `f` must not write a spectrum, revision, prepared form, recipe or the content
     /// sum: those go through [`Library::write`].
     pub(super) fn write_trail<T>(&mut self, f: impl FnOnce(&Connection) -> Result<T>) -> Result<T> {

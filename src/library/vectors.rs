@@ -1,15 +1,15 @@
 //! Bulk reads for derived data: the prepared vectors of one technique in one read
-//! transaction, so that a vector cache built from them matches one fingerprint exactly.
+//! transaction, so that a vector cache built from them matches one state hash exactly.
 
 use crate::cache::{Snapshot, VectorRow};
 use crate::error::Result;
 use crate::library::Library;
-use crate::library::fingerprint;
 use crate::library::records::{coverage_from, f32_from_bytes};
+use crate::library::state_hash;
 use crate::technique::Technique;
 
 impl Library {
-    /// The fingerprint, generation, content sum and highest spectrum id, read together.
+    /// The state hash, generation, content sum and highest spectrum id, read together.
     pub fn snapshot(&self) -> Result<Snapshot> {
         let tx = self.conn.unchecked_transaction()?;
         let snapshot = self.snapshot_in(&tx)?;
@@ -34,7 +34,7 @@ impl Library {
         })?;
         let sum = crate::library::ContentSum::from_hex(&sum).unwrap_or_default();
         Ok(Snapshot {
-            fingerprint: fingerprint(
+            state_hash: state_hash(
                 &serde_json::to_string(&self.recipes.values().collect::<Vec<_>>())?,
                 sum,
             ),

@@ -464,7 +464,7 @@ mod tests {
         assert_eq!(r.binning, Binning::Nearest);
         assert_eq!(r.despike, None);
         assert_eq!(r.picking, Picking::Whole);
-        // ... and serialise without the new fields, so the library fingerprint is unchanged.
+        // ... and serialise without the new fields, so the library state hash is unchanged.
         let text = serde_json::to_string(&r).unwrap();
         for field in ["noise_floor", "binning", "despike", "picking"] {
             assert!(!text.contains(field), "{text}");

@@ -9,8 +9,8 @@ use crate::search::{
 use crate::spectrum::{Status, YUnit};
 use crate::technique::Technique;
 
-/// The library fingerprint the reports of [`report`] carry.
-pub const FINGERPRINT: &str = "5d1c0a9e7b3f42c8a6e0d4b2f9c7e5a3b1d8f6e4c2a0b9d7f5e3c1a8b6d4f2e0";
+/// The library state hash the reports of [`report`] carry.
+pub const STATE_HASH: &str = "5d1c0a9e7b3f42c8a6e0d4b2f9c7e5a3b1d8f6e4c2a0b9d7f5e3c1a8b6d4f2e0";
 /// The unknown file's SHA-256 the reports of [`report`] carry.
 pub const SHA256: &str = "0a1b2c3d4e5f60718293a4b5c6d7e8f90a1b2c3d4e5f60718293a4b5c6d7e8f9";
 
@@ -101,7 +101,7 @@ pub fn report(
         searched_at: "2025-01-02T03:04:05Z".into(),
         library: LibraryStamp {
             path: "/lab/library".into(),
-            fingerprint: FINGERPRINT.into(),
+            state_hash: STATE_HASH.into(),
             last_event: 7,
         },
         unknown: UnknownStamp {

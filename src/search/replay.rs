@@ -19,10 +19,10 @@ const SAME_SCORE: f64 = 1e-9;
 pub struct Replay {
     /// True when the hits (spectrum, rank and score) are the same as when the search was saved.
     pub same: bool,
-    /// The library fingerprint then and now.
-    pub fingerprint_then: String,
-    /// See `fingerprint_then`.
-    pub fingerprint_now: String,
+    /// The library state hash then and now.
+    pub state_hash_then: String,
+    /// See `state_hash_then`.
+    pub state_hash_now: String,
     /// One line per difference in the hit list.
     pub differences: Vec<String>,
     /// The audit-trail events since the search was saved: what may explain a difference.
@@ -165,8 +165,8 @@ pub fn replay(library: &Library, saved: &Report) -> Result<Replay> {
     let events_since = library.events_since(saved.library.last_event)?;
     Ok(Replay {
         same: differences.is_empty(),
-        fingerprint_then: saved.library.fingerprint.clone(),
-        fingerprint_now: now.library.fingerprint.clone(),
+        state_hash_then: saved.library.state_hash.clone(),
+        state_hash_now: now.library.state_hash.clone(),
         differences,
         events_since,
         now,

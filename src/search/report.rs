@@ -22,8 +22,10 @@ use crate::technique::Technique;
 pub struct LibraryStamp {
     /// Library folder.
     pub path: String,
-    /// Library fingerprint at the time of the search.
-    pub fingerprint: String,
+    /// Library state hash at the time of the search. Searches saved before the term changed
+    /// call it `fingerprint`, and still replay.
+    #[serde(alias = "fingerprint")]
+    pub state_hash: String,
     /// The last audit-trail event at the time of the search.
     pub last_event: i64,
 }
@@ -36,7 +38,7 @@ impl LibraryStamp {
                 .root()
                 .map(|p| p.display().to_string())
                 .unwrap_or_else(|| ":memory:".into()),
-            fingerprint: library.fingerprint()?,
+            state_hash: library.state_hash()?,
             last_event: library.last_event()?,
         })
     }

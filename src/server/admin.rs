@@ -25,10 +25,10 @@ pub fn router() -> Routes {
 }
 
 /// Runs `whorl check` on the library: the audit chain, the event replay, raw hashes,
-/// re-preparation, fingerprint and derived stores (rebuilt where damaged or behind); the
+/// re-preparation, state hash and derived stores (rebuilt where damaged or behind); the
 /// result is then recorded in the audit trail as a `check` event by the caller, signed in
 /// (`Library::record_check`), which the audit-trail page shows as the last check. The
-/// answer is the report `whorl check --json` prints, with the fingerprint; 200 when nothing is
+/// answer is the report `whorl check --json` prints, with the state hash; 200 when nothing is
 /// inconsistent, 409 with the same report when something is.
 #[utoipa::path(post, path = "/api/v1/check", tag = "audit",
     responses((status = 200, description = "No inconsistency: the check report"),
@@ -39,10 +39,10 @@ pub async fn check(
     Allowed(caller, _): Allowed<ToCurate>,
 ) -> Result<Response, ApiError> {
     tracing::info!(account = %caller.account.name, "check");
-    let (report, fingerprint) = run_check(&state, caller.account.name.clone()).await?;
+    let (report, state_hash) = run_check(&state, caller.account.name.clone()).await?;
     let clean = report.findings.is_empty();
     let mut body = serde_json::to_value(&report).map_err(whorl::Error::from)?;
-    body["fingerprint"] = json!(fingerprint);
+    body["state_hash"] = json!(state_hash);
     let status = if clean {
         StatusCode::OK
     } else {
@@ -56,7 +56,7 @@ pub async fn check(
 }
 
 /// Runs the check as `actor` (signed in) and records its result in the audit trail; the
-/// report and the fingerprint.
+/// report and the state hash.
 pub async fn run_check(
     state: &AppState,
     actor: String,
@@ -65,7 +65,7 @@ pub async fn run_check(
         .write_as(move |lib| {
             let report = lib.check(&|_, _| {})?;
             lib.record_check(&actor, &report)?;
-            Ok((report, lib.fingerprint()?))
+            Ok((report, lib.state_hash()?))
         })
         .await
 }

@@ -48,7 +48,7 @@ pub async fn log(
     ))
 }
 
-/// Counts, recipes and the library fingerprint, as `whorl stats --json` prints them.
+/// Counts, recipes and the library state hash, as `whorl stats --json` prints them.
 #[utoipa::path(get, path = "/api/v1/stats", tag = "audit",
     responses((status = 200, description = "The library's statistics")))]
 pub async fn stats(

@@ -88,7 +88,7 @@ impl Status {
         }
     }
 
-    /// Whether spectra in this status count towards the fingerprint.
+    /// Whether spectra in this status count towards the state hash.
     pub fn searchable(self) -> bool {
         self != Status::Withdrawn
     }

@@ -34,14 +34,14 @@ fn source() -> Lab {
     lab
 }
 
-fn fingerprint(lab: &Lab, library: &Path) -> String {
+fn state_hash(lab: &Lab, library: &Path) -> String {
     let out = lab.ok(&["--library", library.to_str().unwrap(), "stats", "--json"]);
     let v: serde_json::Value = serde_json::from_str(&out).unwrap();
-    v["fingerprint"].as_str().unwrap().to_string()
+    v["state_hash"].as_str().unwrap().to_string()
 }
 
 #[test]
-fn export_then_import_into_an_empty_library_keeps_fingerprint_and_history() {
+fn export_then_import_into_an_empty_library_keeps_state_hash_and_history() {
     let lab = source();
     let bundle = lab.path("bundle");
     let info = lab.json(&["export", bundle.to_str().unwrap()]);
@@ -55,13 +55,13 @@ fn export_then_import_into_an_empty_library_keeps_fingerprint_and_history() {
     ] {
         assert!(bundle.join(f).is_file(), "{f}");
     }
-    let original = lab.json(&["stats"])["fingerprint"]
+    let original = lab.json(&["stats"])["state_hash"]
         .as_str()
         .unwrap()
         .to_string();
     assert_eq!(
-        info["fingerprint"], original,
-        "a full export carries the library's fingerprint"
+        info["state_hash"], original,
+        "a full export carries the library's state hash"
     );
 
     let target = lab.path("target-lib");
@@ -78,7 +78,7 @@ fn export_then_import_into_an_empty_library_keeps_fingerprint_and_history() {
         "{out}"
     );
     // Approvals given in the source library do not count here: the copy differs in status.
-    let copied = fingerprint(&lab, &target);
+    let copied = state_hash(&lab, &target);
     assert_ne!(copied, original);
 
     // History survives: sign-offs, revisions, the withdrawal reason, the original file hash.
@@ -160,7 +160,7 @@ fn export_then_import_into_an_empty_library_keeps_fingerprint_and_history() {
         again.contains(&format!("imported 0, already present {all}")),
         "{again}"
     );
-    assert_eq!(fingerprint(&lab, &target), copied);
+    assert_eq!(state_hash(&lab, &target), copied);
 }
 
 #[test]
@@ -216,7 +216,7 @@ fn import_fails(lab: &Lab, bundle: &Path, words: &str) {
     if !target.exists() {
         lab.ok(&["--library", target.to_str().unwrap(), "init"]);
     }
-    let before = fingerprint(lab, &target);
+    let before = state_hash(lab, &target);
     let out = lab.run(&[
         "--library",
         target.to_str().unwrap(),
@@ -227,7 +227,7 @@ fn import_fails(lab: &Lab, bundle: &Path, words: &str) {
     let text = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(3), "{text}");
     assert!(text.contains(words) && text.contains("hint:"), "{text}");
-    assert_eq!(fingerprint(lab, &target), before, "nothing was imported");
+    assert_eq!(state_hash(lab, &target), before, "nothing was imported");
 }
 
 #[test]
@@ -347,7 +347,7 @@ fn formula_cells_are_neutralised_in_every_csv_and_bundles_round_trip() {
     assert_eq!(m["source"], "-src");
     assert_eq!(shown["spectrum"]["submitted_by"], "'quoted");
     // Every metadata value as it was at home (the status differs: a foreign reference arrives
-    // pending, so the two fingerprints differ by design).
+    // pending, so the two state hashes differ by design).
     assert_eq!(
         m,
         &lab.json(&["show", &id.to_string()])["spectrum"]["metadata"]

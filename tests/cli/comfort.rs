@@ -164,7 +164,7 @@ fn every_command_that_prints_data_speaks_json() {
         serde_json::from_slice(&out.stdout)
             .unwrap_or_else(|e| panic!("{args:?} did not print JSON: {e}\n{}", stdout(&out)))
     };
-    assert!(parse(&["init", "--json"])["fingerprint"].is_string());
+    assert!(parse(&["init", "--json"])["state_hash"].is_string());
     lab.write("a.csv", ir_csv(&[(1715.0, 0.9, 10.0)]));
     lab.write("m/b.csv", ir_csv(&[(1740.0, 0.9, 10.0)]));
     lab.write("m/manifest.csv", "file,technique,name\nb.csv,ir,ester\n");
@@ -184,7 +184,7 @@ fn every_command_that_prints_data_speaks_json() {
         "ketone"
     );
     assert_eq!(parse(&["list", "--json"]).as_array().unwrap().len(), 2);
-    assert!(parse(&["stats", "--json"])["fingerprint"].is_string());
+    assert!(parse(&["stats", "--json"])["state_hash"].is_string());
     assert_eq!(
         parse(&["plot", &id, "--svg", "p.svg", "--json"])["spectra"][0]["label"],
         format!("ketone (spectrum {id})")

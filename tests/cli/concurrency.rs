@@ -11,7 +11,7 @@ use crate::util::{Lab, ir_csv, seed};
 fn a_writer_kept_busy_gives_up_clearly_while_readers_go_on() {
     let lab = Lab::seeded();
     let file = lab.write("new.csv", ir_csv(&[(1700.0, 0.8, 9.0)]));
-    let before = lab.fingerprint();
+    let before = lab.state_hash();
 
     // Another process holds the write lock.
     let holder = Connection::open(lab.library().join("library.sqlite")).unwrap();
@@ -34,7 +34,7 @@ fn a_writer_kept_busy_gives_up_clearly_while_readers_go_on() {
     holder.execute_batch("ROLLBACK;").unwrap();
     drop(holder);
     assert_eq!(
-        lab.fingerprint(),
+        lab.state_hash(),
         before,
         "the refused add left nothing behind"
     );

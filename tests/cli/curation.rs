@@ -57,6 +57,7 @@ fn a_second_analyst_approves_and_the_spectrum_is_searched() {
         1
     );
 
+    // `--approve`, the other name of `--verify` (which `Lab::approve_all` uses), still works.
     let signed = lab.json(&[
         "review",
         &id,
@@ -194,7 +195,7 @@ fn a_revision_replaces_the_old_one_and_the_old_one_stays_readable() {
 fn withdrawal_keeps_the_spectrum_out_of_search_and_out_of_review() {
     let (lab, id) = one_spectrum();
     lab.ok(&["review", &id, "--approve", "--by", "r.reviewer"]);
-    let before = lab.json(&["stats"])["fingerprint"].clone();
+    let before = lab.json(&["stats"])["state_hash"].clone();
     lab.ok(&[
         "withdraw",
         &id,
@@ -204,7 +205,7 @@ fn withdrawal_keeps_the_spectrum_out_of_search_and_out_of_review() {
         "q.manager",
     ]);
     assert_ne!(
-        lab.json(&["stats"])["fingerprint"],
+        lab.json(&["stats"])["state_hash"],
         before,
         "withdrawal changes the searchable content"
     );
@@ -289,10 +290,10 @@ fn the_log_records_who_did_what_in_order() {
 }
 
 #[test]
-fn the_fingerprint_changes_exactly_when_the_searchable_content_changes() {
+fn the_state_hash_changes_exactly_when_the_searchable_content_changes() {
     let (lab, id) = one_spectrum();
     let fp = |lab: &Lab| {
-        lab.json(&["stats"])["fingerprint"]
+        lab.json(&["stats"])["state_hash"]
             .as_str()
             .unwrap()
             .to_string()
@@ -353,7 +354,7 @@ fn the_fingerprint_changes_exactly_when_the_searchable_content_changes() {
         &["withdraw", &id, "--reason", "recalled", "--by", "q.manager"],
         true,
     );
-    // Withdrawing the only other spectrum leaves the empty library's fingerprint.
+    // Withdrawing the only other spectrum leaves the empty library's state hash.
     changed(
         &lab,
         &["withdraw", "2", "--reason", "test", "--by", "q.manager"],
@@ -363,7 +364,7 @@ fn the_fingerprint_changes_exactly_when_the_searchable_content_changes() {
     assert_eq!(
         fp(&empty),
         *seen.last().unwrap(),
-        "nothing searchable: the fingerprint of the recipes alone"
+        "nothing searchable: the state hash of the recipes alone"
     );
 }
 
@@ -379,7 +380,7 @@ fn a_withdrawn_spectrum_is_reinstated_pending_and_adding_it_again_points_there()
         "--by",
         "q.manager",
     ]);
-    let withdrawn = lab.fingerprint();
+    let withdrawn = lab.state_hash();
     // Adding the same file again does not say "already present" and succeed: it names the
     // withdrawn spectrum and the way back, exit 3, library unchanged.
     let file = lab.path("ketone.csv");
@@ -418,7 +419,7 @@ fn a_withdrawn_spectrum_is_reinstated_pending_and_adding_it_again_points_there()
         "c.curator",
     ]);
     assert!(out.contains("reinstated, pending a new sign-off"), "{out}");
-    assert_ne!(lab.fingerprint(), withdrawn);
+    assert_ne!(lab.state_hash(), withdrawn);
     let shown = lab.json(&["show", &id]);
     assert_eq!(shown["spectrum"]["status"], "pending");
     assert!(shown["withdrawn_reason"].is_null(), "{shown}");

@@ -137,7 +137,7 @@ fn an_edited_status_is_named() {
         ),
         "{f:?}"
     );
-    assert!(named(&f, "library", "fingerprint sum"), "{f:?}");
+    assert!(named(&f, "library", "state hash sum"), "{f:?}");
 }
 
 #[test]

@@ -8,7 +8,7 @@ use crate::util::{Lab, hint, seed};
 fn a_changed_recipe_prepares_the_library_as_a_new_library_with_that_recipe_would() {
     // The library changed after the fact ...
     let changed = Lab::seeded();
-    let before = changed.fingerprint();
+    let before = changed.state_hash();
     let out = changed.ok(&[
         "recipe",
         "ir",
@@ -22,14 +22,14 @@ fn a_changed_recipe_prepares_the_library_as_a_new_library_with_that_recipe_would
         "q.manager",
     ]);
     assert!(out.contains("prepared again: 44 ir spectra"), "{out}");
-    assert_ne!(changed.fingerprint(), before);
+    assert_ne!(changed.state_hash(), before);
     // ... and one made with that recipe from the start hold the same prepared data: equal
-    // fingerprints (recipes and searchable records) and identical hit lists.
+    // state hashes (recipes and searchable records) and identical hit lists.
     let fresh = Lab::empty();
     fresh.ok(&["init", "--ir-baseline", "als", "--ir-mask", "diamond-atr"]);
     fresh.ok(&["import", seed().join("manifest.csv").to_str().unwrap()]);
     fresh.approve_all();
-    assert_eq!(changed.fingerprint(), fresh.fingerprint());
+    assert_eq!(changed.state_hash(), fresh.state_hash());
     let unknown = seed().join("unknowns/u01.ir.csv");
     let search = [
         "search",

@@ -48,6 +48,20 @@ fn a_replay_of_an_unchanged_library_gives_the_same_hits() {
     let r = lab.json(&["replay", "saved.json"]);
     assert_eq!(r["same"], true, "{r}");
     assert_eq!(r["events_since"].as_array().unwrap().len(), 0);
+    assert_eq!(r["state_hash_then"], r["state_hash_now"], "{r}");
+
+    // A search saved when the library's state hash was still called `fingerprint` replays.
+    let mut old = saved.clone();
+    let hash = old["library"]
+        .as_object_mut()
+        .unwrap()
+        .remove("state_hash")
+        .expect("the saved search names the library's state hash");
+    old["library"]["fingerprint"] = hash.clone();
+    std::fs::write(lab.path("old.json"), old.to_string()).unwrap();
+    let r = lab.json(&["replay", "old.json"]);
+    assert_eq!(r["same"], true, "{r}");
+    assert_eq!(r["state_hash_then"], hash, "{r}");
 }
 
 #[test]

@@ -54,7 +54,7 @@ fn search_writes_a_self_contained_report_with_everything_to_reproduce_it() {
     let report = lab.json(&["search", &u, "-t", "ir"]);
     for needle in [
         report["unknown"]["sha256"].as_str().unwrap(),
-        report["library"]["fingerprint"].as_str().unwrap(),
+        report["library"]["state_hash"].as_str().unwrap(),
         report["library"]["path"].as_str().unwrap(),
         report["tool_version"].as_str().unwrap(),
         u.as_str(),

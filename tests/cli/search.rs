@@ -106,10 +106,10 @@ fn search_json_has_the_documented_keys() {
     );
     assert_eq!(
         keys(&report["library"]),
-        ["fingerprint", "last_event", "path"]
+        ["last_event", "path", "state_hash"]
     );
     assert_eq!(report["library"]["path"], lab.library().to_str().unwrap());
-    assert_eq!(report["library"]["fingerprint"], lab.fingerprint());
+    assert_eq!(report["library"]["state_hash"], lab.state_hash());
     let unknown = &report["unknown"];
     for key in ["file", "sha256", "technique"] {
         assert!(
@@ -300,15 +300,15 @@ fn column(header: &str, name: &str) -> (usize, usize) {
 }
 
 #[test]
-fn human_output_shows_the_fingerprint_the_caution_and_aligned_columns() {
+fn human_output_shows_the_state_hash_the_caution_and_aligned_columns() {
     let lab = Lab::seeded();
     let unknown = seed().join("unknowns").join("u01.ir.csv");
     let unknown = unknown.to_str().unwrap();
     let out = lab.ok(&["search", unknown, "-t", "ir", "--top", "8"]);
-    let fingerprint = lab.fingerprint();
+    let state_hash = lab.state_hash();
     // The first 16 hex digits, then the closing bracket: no more, no less.
     assert!(
-        out.contains(&format!("(fingerprint {})", &fingerprint[..16])),
+        out.contains(&format!("(state hash {})", &state_hash[..16])),
         "{out}"
     );
     let caution = lab.json(&["search", unknown, "-t", "ir"])["caution"]
@@ -599,7 +599,7 @@ fn csv_rows_carry_the_verdict_margin_warning_codes_and_library_state_as_the_json
         assert_eq!(&row[col("warnings")], codes.join(";"));
         assert_eq!(
             &row[col("library_state_hash")],
-            report["library"]["fingerprint"].as_str().unwrap()
+            report["library"]["state_hash"].as_str().unwrap()
         );
     }
     // A list without hits is one row, so its verdict and warnings are still read.

@@ -634,10 +634,7 @@ fn the_server_signs_in_refuses_backs_off_searches_and_stops_on_sigterm() {
     let token_id = tokens[0]["id"].as_i64().unwrap();
     let used = call(&server, "GET", "/api/v1/stats", Auth::Bearer(&token), None);
     assert_eq!(used.status, 200, "{}", used.body);
-    assert_eq!(
-        used.body["fingerprint"],
-        lab.json(&["stats"])["fingerprint"]
-    );
+    assert_eq!(used.body["state_hash"], lab.json(&["stats"])["state_hash"]);
     assert!(
         server.log().contains(&format!("token={token_id}")),
         "{}",

@@ -46,14 +46,14 @@ fn stats_counts_spectra_per_technique_and_status() {
         .map(|t| t.name())
         .collect();
     assert_eq!(techniques, known);
-    assert!(is_sha256_hex(stats["fingerprint"].as_str().unwrap()));
+    assert!(is_sha256_hex(stats["state_hash"].as_str().unwrap()));
 }
 
 #[test]
-fn the_fingerprint_changes_after_an_add_and_is_stable_otherwise() {
+fn the_state_hash_changes_after_an_add_and_is_stable_otherwise() {
     let lab = Lab::new();
-    let empty = lab.fingerprint();
-    assert_eq!(lab.fingerprint(), empty, "two stats calls disagree");
+    let empty = lab.state_hash();
+    assert_eq!(lab.state_hash(), empty, "two stats calls disagree");
 
     let id = lab.add(
         "a.csv",
@@ -62,7 +62,7 @@ fn the_fingerprint_changes_after_an_add_and_is_stable_otherwise() {
         "compound a",
         &[],
     );
-    let one = lab.fingerprint();
+    let one = lab.state_hash();
     assert_ne!(one, empty);
 
     // Reading, searching, re-adding the same points and a refused add change nothing.
@@ -73,7 +73,7 @@ fn the_fingerprint_changes_after_an_add_and_is_stable_otherwise() {
     lab.ok(&["add", "a.csv", "-t", "ir", "--name", "compound a"]);
     lab.write("bad.csv", "x,y\n");
     lab.fails(&["add", "bad.csv", "-t", "ir", "--name", "bad"], 3);
-    assert_eq!(lab.fingerprint(), one);
+    assert_eq!(lab.state_hash(), one);
 
     lab.add(
         "n.csv",
@@ -82,18 +82,18 @@ fn the_fingerprint_changes_after_an_add_and_is_stable_otherwise() {
         "compound n",
         &[],
     );
-    let two = lab.fingerprint();
+    let two = lab.state_hash();
     assert_ne!(two, one);
     assert_ne!(two, empty);
 }
 
 #[test]
-fn the_same_content_gives_the_same_fingerprint_in_two_libraries() {
-    // The fingerprint names the searchable content and the recipes, not the folder or the
+fn the_same_content_gives_the_same_state_hash_in_two_libraries() {
+    // The state hash names the searchable content and the recipes, not the folder or the
     // time of import.
     let first = Lab::new();
     let second = Lab::new();
-    assert_eq!(first.fingerprint(), second.fingerprint());
+    assert_eq!(first.state_hash(), second.state_hash());
     let spectrum = ir_csv(&[(1715.0, 0.8, 10.0)]);
     for lab in [&first, &second] {
         lab.add(
@@ -104,7 +104,7 @@ fn the_same_content_gives_the_same_fingerprint_in_two_libraries() {
             &["--tag", "solvent"],
         );
     }
-    assert_eq!(first.fingerprint(), second.fingerprint());
+    assert_eq!(first.state_hash(), second.state_hash());
     // Different metadata is different content.
     let third = Lab::new();
     third.add(
@@ -114,11 +114,11 @@ fn the_same_content_gives_the_same_fingerprint_in_two_libraries() {
         "compound a",
         &["--tag", "reagent"],
     );
-    assert_ne!(third.fingerprint(), first.fingerprint());
+    assert_ne!(third.state_hash(), first.state_hash());
 }
 
 #[test]
-fn stats_prints_the_full_fingerprint_and_a_row_per_technique() {
+fn stats_prints_the_full_state_hash_and_a_row_per_technique() {
     let lab = Lab::new();
     lab.add(
         "a.csv",
@@ -128,10 +128,10 @@ fn stats_prints_the_full_fingerprint_and_a_row_per_technique() {
         &[],
     );
     let out = lab.ok(&["stats"]);
-    let fingerprint = lab.fingerprint();
+    let state_hash = lab.state_hash();
     assert!(
         out.lines()
-            .any(|l| l == format!("fingerprint  {fingerprint}")),
+            .any(|l| l == format!("state hash   {state_hash}")),
         "{out}"
     );
     assert!(

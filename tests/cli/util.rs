@@ -11,7 +11,7 @@ pub struct Lab {
     pub dir: tempfile::TempDir,
 }
 
-/// What can be seen of a library from outside: `stats --json` (fingerprint, counts, events)
+/// What can be seen of a library from outside: `stats --json` (state hash, counts, events)
 /// and `list --json`. Two equal states mean nothing was written.
 #[derive(Debug, PartialEq)]
 pub struct State {
@@ -53,7 +53,7 @@ impl Lab {
             .iter()
             .map(|r| r["id"].to_string())
             .collect();
-        let mut args = vec!["review", "--approve", "--by", "r.second"];
+        let mut args = vec!["review", "--verify", "--by", "r.second"];
         args.extend(ids.iter().map(String::as_str));
         self.ok(&args);
     }
@@ -140,11 +140,11 @@ impl Lab {
         }
     }
 
-    /// The library fingerprint from `stats --json`.
-    pub fn fingerprint(&self) -> String {
-        self.json(&["stats"])["fingerprint"]
+    /// The library state hash from `stats --json`.
+    pub fn state_hash(&self) -> String {
+        self.json(&["stats"])["state_hash"]
             .as_str()
-            .expect("fingerprint is a string")
+            .expect("state hash is a string")
             .to_string()
     }
 

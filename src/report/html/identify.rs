@@ -28,9 +28,9 @@ pub fn identify_page(
     w(
         &mut s,
         format_args!(
-            "<dt>library</dt><dd>{} (fingerprint {})</dd>\n",
+            "<dt>library</dt><dd>{} (state hash {})</dd>\n",
             escape(&r.library.path),
-            code(&r.library.fingerprint)
+            code(&r.library.state_hash)
         ),
     );
     w(

@@ -48,7 +48,7 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
         ),
     );
     fact("library", code(&r.library.path));
-    fact("library fingerprint", code(&r.library.fingerprint));
+    fact("library state hash", code(&r.library.state_hash));
     fact(
         "searched",
         format!(
@@ -266,7 +266,7 @@ fn hit_summary(h: &Hit, measure: Measure) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::report::fixtures::{FINGERPRINT, SHA256, ir, search_page_for};
+    use crate::report::fixtures::{SHA256, STATE_HASH, ir, search_page_for};
 
     #[test]
     fn a_page_holds_facts_hits_overlays_and_the_caution() {
@@ -274,7 +274,7 @@ mod tests {
         let ester = ir(&[(1740.0, 1.0), (1240.0, 0.7)]);
         let html = search_page_for("u.csv", &[("ester", &ester), ("ketone", &ketone)], None);
         assert!(html.contains(SHA256));
-        assert!(html.contains(FINGERPRINT));
+        assert!(html.contains(STATE_HASH));
         assert!(html.contains(env!("CARGO_PKG_VERSION")));
         assert_eq!(html.matches("<svg").count(), 2, "one overlay per hit");
         assert!(html.contains("id=\"ir-hit-1\"") && html.contains("href=\"#ir-hit-2\""));

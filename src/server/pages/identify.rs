@@ -93,7 +93,7 @@ struct ResultPage {
     disagreements: Vec<String>,
     margin: String,
     warnings: Vec<String>,
-    fingerprint: String,
+    state_hash: String,
     searched_at: String,
 }
 
@@ -158,7 +158,7 @@ fn result_page(b: &Browser<ToView>, r: &IdentifyReport) -> ResultPage {
         disagreements,
         margin: f.margin.map(|m| format!("{m:.3}")).unwrap_or_default(),
         warnings,
-        fingerprint: r.library.fingerprint.clone(),
+        state_hash: r.library.state_hash.clone(),
         searched_at: super::when(&r.searched_at),
     }
 }

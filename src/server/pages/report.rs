@@ -75,7 +75,7 @@ struct ReportPage {
     technique: String,
     searched_at: String,
     searched_by: String,
-    fingerprint: String,
+    state_hash: String,
     file_sha256: String,
     provenance: Vec<Provenance>,
     /// The report layer's section (escaped by it).
@@ -162,7 +162,7 @@ async fn page(
         technique: r.unknown.technique.title().to_string(),
         searched_at: when(&r.searched_at),
         searched_by: account,
-        fingerprint: r.library.fingerprint.clone(),
+        state_hash: r.library.state_hash.clone(),
         file_sha256: r.unknown.sha256.clone(),
         provenance,
         section,

@@ -430,7 +430,7 @@ struct ResultPage {
     sample: String,
     candidates: usize,
     statuses: String,
-    fingerprint: String,
+    state_hash: String,
     searched_at: String,
     warnings: Vec<String>,
     techniques: Vec<super::Choice>,
@@ -480,7 +480,7 @@ fn result_page(b: &Browser<ToView>, id: String, s: &Arc<Searched>) -> Result<Res
             .map(|s| s.name())
             .collect::<Vec<_>>()
             .join(", "),
-        fingerprint: r.library.fingerprint.clone(),
+        state_hash: r.library.state_hash.clone(),
         searched_at: super::when(&r.searched_at),
         warnings: r.warnings.iter().map(|w| w.message.clone()).collect(),
         techniques: techniques(t.name()),

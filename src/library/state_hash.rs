@@ -1,10 +1,10 @@
-//! The library fingerprint: a name for an exact state of the searchable content.
+//! The library state hash: a name for an exact state of the searchable content.
 //!
 //! Each searchable spectrum contributes the SHA-256 of its canonical record; the
 //! contributions are added modulo 2^256 (an incremental multiset hash, so that adding,
 //! revising or withdrawing one spectrum updates the sum without reading the others), and the
-//! fingerprint is the SHA-256 of the recipes and that sum. `check` recomputes the sum from
-//! scratch. The audit trail, not the fingerprint, is what makes tampering evident.
+//! state hash is the SHA-256 of the recipes and that sum. `check` recomputes the sum from
+//! scratch. The audit trail, not the state hash, is what makes tampering evident.
 
 use sha2::{Digest, Sha256};
 
@@ -52,7 +52,7 @@ impl ContentSum {
 /// SHA-256 of the canonical encoding of one searchable record: what is searched (technique,
 /// raw points, current metadata) and whether it is searched by default (status). Local ids and
 /// revision numbers are left out, so that a library rebuilt from an exported bundle has the
-/// same fingerprint as the library it came from.
+/// same state hash as the library it came from.
 pub fn record_hash(
     technique: &str,
     status: &str,
@@ -63,8 +63,8 @@ pub fn record_hash(
     Sha256::digest(canonical.as_bytes()).into()
 }
 
-/// The fingerprint: SHA-256 over a format tag, the recipes (JSON, in technique order) and the sum.
-pub fn fingerprint(recipes_json: &str, sum: ContentSum) -> String {
+/// The state hash: SHA-256 over a format tag, the recipes (JSON, in technique order) and the sum.
+pub fn state_hash(recipes_json: &str, sum: ContentSum) -> String {
     let mut h = Sha256::new();
     h.update(b"whorl fingerprint v1\n");
     h.update(recipes_json.as_bytes());
@@ -78,13 +78,13 @@ mod tests {
     use super::*;
     use proptest::prelude::*;
 
-    /// Pins the record hash, the sum and the fingerprint, which existing libraries and
+    /// Pins the record hash, the sum and the state hash, which existing libraries and
     /// bundles record. The values were computed independently with Python: `hashlib.sha256`
     /// over `json.dumps([technique, status, raw_sha256, metadata_json], separators=(",", ":"))`,
     /// the two record hashes added as 256-bit big-endian integers modulo 2^256, and SHA-256
     /// over `b"whorl fingerprint v1\n" + recipes + b"\n" + sum`.
     #[test]
-    fn hashes_and_fingerprint_match_their_documented_encoding() {
+    fn hashes_and_state_hash_match_their_documented_encoding() {
         let a = record_hash("ir", "verified", &"ab".repeat(32), r#"{"name":"acetone"}"#);
         assert_eq!(
             hex::encode(a),
@@ -105,7 +105,7 @@ mod tests {
         );
         assert_eq!(ContentSum::from_hex(&sum.to_hex()), Some(sum));
         assert_eq!(
-            fingerprint(r#"[{"technique":"ir"}]"#, sum),
+            state_hash(r#"[{"technique":"ir"}]"#, sum),
             "0c918d886831f71b2cef9953e2e635d653e37e8c219f00381d7e9edf373483f6"
         );
     }
