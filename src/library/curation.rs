@@ -264,11 +264,15 @@ impl Library {
                 "see `whorl log ID` for its revisions",
             )
         })?;
-        rec.metadata = serde_json::from_str(&meta)?;
-        rec.revision = number;
-        if let Some(c) = compound_id {
+        // An earlier revision names the compound it named when written; the current one, the
+        // compound the spectrum belongs to now (a compound merge moves it, not its revisions).
+        if number != rec.revision
+            && let Some(c) = compound_id
+        {
             rec.compound_id = c;
         }
+        rec.metadata = serde_json::from_str(&meta)?;
+        rec.revision = number;
         Ok((rec, info))
     }
 

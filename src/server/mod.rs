@@ -7,6 +7,7 @@ mod accounts;
 mod admin;
 mod audit;
 mod auth;
+mod compounds;
 mod error;
 mod health;
 mod identify;
@@ -45,6 +46,7 @@ pub fn routes() -> routes::Routes {
         .merge(session::router())
         .merge(search::router())
         .merge(spectra::router())
+        .merge(compounds::router())
         .merge(audit::router())
         .merge(accounts::router())
         .merge(openapi::router())

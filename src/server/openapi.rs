@@ -5,7 +5,9 @@ use axum::routing::get;
 use utoipa::OpenApi;
 
 use super::routes::{Access, Routes};
-use super::{accounts, admin, audit, health, identify, import, search, session, spectra};
+use super::{
+    accounts, admin, audit, compounds, health, identify, import, search, session, spectra,
+};
 
 /// The OpenAPI document, assembled from the `#[utoipa::path]` annotation beside each handler.
 #[derive(OpenApi)]
@@ -38,6 +40,9 @@ use super::{accounts, admin, audit, health, identify, import, search, session, s
         import::import,
         spectra::revise,
         admin::check,
+        compounds::list,
+        compounds::show,
+        compounds::merge,
     ),
     components(schemas(
         session::SignIn,
@@ -49,7 +54,8 @@ use super::{accounts, admin, audit, health, identify, import, search, session, s
         spectra::Revision,
         identify::IdentifyForm,
         import::ImportForm,
-        accounts::RoleChange
+        accounts::RoleChange,
+        compounds::MergeForm
     ))
 )]
 pub struct ApiDoc;

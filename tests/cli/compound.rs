@@ -141,6 +141,13 @@ fn two_toluene_rows_disagree_until_merged_then_identify_sees_one_compound() {
     let rows = toluenes(&lab);
     let merged = rows.iter().find(|c| c["id"] == away).unwrap();
     assert_eq!(merged["merged_into"], keep);
+    // `show` names the compound the spectrum belongs to now, not the one its revision named.
+    let shown = lab.json(&["show", &c13_id.to_string()]);
+    assert_eq!(
+        shown["spectrum"]["compound_id"], keep,
+        "{}",
+        shown["spectrum"]
+    );
 
     // After: one toluene, first by both techniques, nothing missing, no disagreement.
     let after = identify(&lab);

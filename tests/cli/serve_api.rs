@@ -104,6 +104,13 @@ fn pending(lab: &Lab, n: usize) -> i64 {
     .unwrap()
 }
 
+/// The compound spectrum `id` belongs to.
+fn compound_of(lab: &Lab, id: i64) -> i64 {
+    lab.json(&["show", &id.to_string()])["spectrum"]["compound_id"]
+        .as_i64()
+        .expect("show --json names the compound")
+}
+
 /// The concrete path a valid request of a route goes to, after making what it needs (a
 /// pending spectrum submitted by someone else, for the routes on one spectrum).
 fn concrete_for(lab: &Lab, path: &str, n: usize) -> String {
@@ -112,6 +119,9 @@ fn concrete_for(lab: &Lab, path: &str, n: usize) -> String {
         let id = pending(lab, n).to_string();
         lab.ok(&["withdraw", &id, "--reason", "matrix", "--by", "t.tester"]);
         path.replace("{id}", &id)
+    } else if path.starts_with("/api/v1/compounds/") {
+        // A compound of its own: the spectrum's name is new.
+        path.replace("{id}", &compound_of(lab, pending(lab, n)).to_string())
     } else if path.contains("{id}") {
         path.replace("{id}", &pending(lab, n).to_string())
     } else {
@@ -195,9 +205,18 @@ fn valid_request(
             method,
             concrete,
             auth,
-            Some(json!({ "decision": "approve", "password": password_of(role) })),
+            Some(json!({ "decision": "verify", "password": password_of(role) })),
         ),
         ("POST", "/api/v1/check") => call(server, method, path, auth, None),
+        // Into the seed library's compound 1: the spectrum's compound has no formula to
+        // contradict it.
+        ("POST", "/api/v1/compounds/{id}/merge") => call(
+            server,
+            method,
+            concrete,
+            auth,
+            Some(json!({ "into": 1, "reason": "matrix: one substance" })),
+        ),
         ("DELETE", "/api/v1/session") => {
             // Signs in as the role's account and signs that session out.
             let name = PASSWORDS.iter().find(|p| p.1 == role).unwrap().0;
@@ -683,14 +702,14 @@ fn identify_find_import_revise_and_check_answer_as_the_command_line_does() {
     assert_eq!(c.status, 200, "{}", c.body);
     assert_eq!(c.body["findings"], json!([]));
     assert_eq!(c.body["spectra"], lab.json(&["check"])["spectra"]);
-    assert_eq!(c.body["fingerprint"], lab.fingerprint());
+    assert_eq!(c.body["state_hash"], lab.state_hash());
 
     // A recorded check changes no spectrum, so it leaves the vector cache current: the check
     // rebuilds the cache as it verifies, and the next search maps that same file instead of
     // building a new one and renaming it into place (a new inode).
     let unknown = seed().join("unknowns/u01.ir.csv");
     let search = || lab.ok(&["search", unknown.to_str().unwrap(), "-t", "ir"]);
-    let fingerprint = lab.fingerprint();
+    let state_hash = lab.state_hash();
     let c = call(
         &server,
         "POST",
@@ -703,7 +722,7 @@ fn identify_find_import_revise_and_check_answer_as_the_command_line_does() {
         lab.json(&["log"]).as_array().unwrap().last().unwrap()["action"],
         "check"
     );
-    assert_eq!(lab.fingerprint(), fingerprint);
+    assert_eq!(lab.state_hash(), state_hash);
     let before = ir_cache_identity(&lab);
     search();
     assert_eq!(
@@ -1504,4 +1523,97 @@ fn every_page_form_refuses_a_missing_or_wrong_csrf_token() {
         lab.json(&["show", &id.to_string()])["spectrum"]["status"],
         "pending"
     );
+}
+
+#[test]
+fn a_curator_merges_two_compounds_through_the_api_and_a_reader_cannot() {
+    let lab = lab_with_accounts();
+    let server = Server::start(&lab);
+    let tokens = tokens(&lab);
+    let token = |role: &str| tokens.iter().find(|t| t.1 == role).unwrap().2.clone();
+    // A spectrum whose compound is a row of its own, as one stored without its CAS RN is.
+    let spectrum = pending(&lab, 1);
+    let away = compound_of(&lab, spectrum);
+    let into = 1;
+
+    let listed = call(
+        &server,
+        "GET",
+        "/api/v1/compounds",
+        Auth::Bearer(&token("reader")),
+        None,
+    );
+    assert_eq!(listed.status, 200, "{}", listed.body);
+    let ids: Vec<i64> = listed.body["compounds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c["id"].as_i64().unwrap())
+        .collect();
+    assert!(ids.contains(&away) && ids.contains(&into), "{ids:?}");
+
+    let path = format!("/api/v1/compounds/{away}/merge");
+    let body = json!({ "into": into, "reason": "one substance; its CAS RN was left out" });
+    let before = lab.state();
+    let refused = call(
+        &server,
+        "POST",
+        &path,
+        Auth::Bearer(&token("reader")),
+        Some(body.clone()),
+    );
+    assert_eq!(refused.status, 403, "{}", refused.body);
+    assert_eq!(lab.state(), before);
+    let blank = call(
+        &server,
+        "POST",
+        &path,
+        Auth::Bearer(&token("curator")),
+        Some(json!({ "into": into, "reason": " " })),
+    );
+    assert_eq!(blank.status, 400, "{}", blank.body);
+    assert!(
+        blank.body["message"]
+            .as_str()
+            .unwrap()
+            .contains("needs a reason"),
+        "{}",
+        blank.body
+    );
+
+    let merged = call(
+        &server,
+        "POST",
+        &path,
+        Auth::Bearer(&token("curator")),
+        Some(body),
+    );
+    assert_eq!(merged.status, 200, "{}", merged.body);
+    assert_eq!(merged.body["merge"]["spectra"], json!([spectrum]));
+    let curator = PASSWORDS.iter().find(|p| p.1 == "curator").unwrap().0;
+    assert_eq!(merged.body["by"], curator);
+    assert_eq!(compound_of(&lab, spectrum), into);
+    let shown = call(
+        &server,
+        "GET",
+        &format!("/api/v1/compounds/{away}"),
+        Auth::Bearer(&token("reader")),
+        None,
+    );
+    assert_eq!(
+        shown.body["compound"]["merged_into"], into,
+        "{}",
+        shown.body
+    );
+    // The merge is a signed-in event by the curator, and the spectrum's log shows it.
+    let log = lab.json(&["log", &spectrum.to_string()]);
+    let event = log
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|e| e["action"] == "compound-merge")
+        .unwrap_or_else(|| panic!("no merge in {log}"));
+    assert_eq!(event["actor"], curator, "{event}");
+    assert_eq!(event["identity"], "signed-in", "{event}");
+    lab.ok(&["check"]);
 }
