@@ -41,11 +41,10 @@ pub struct FusedCompound {
     pub fused: f64,
     /// One entry per technique searched, in the order given.
     pub evidence: Vec<TechniqueEvidence>,
-    /// Techniques searched for which the library has no spectrum of this compound.
-    #[serde(skip_serializing_if = "Vec::is_empty")]
+    /// Techniques searched for which the library has no spectrum of this compound (always
+    /// present in the JSON, empty when none is missing, so a program reads one shape).
     pub missing: Vec<Technique>,
-    /// Where the techniques disagree about this compound.
-    #[serde(skip_serializing_if = "Vec::is_empty")]
+    /// Where the techniques disagree about this compound (always present, possibly empty).
     pub disagreements: Vec<String>,
 }
 

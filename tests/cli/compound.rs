@@ -156,14 +156,9 @@ fn two_toluene_rows_disagree_until_merged_then_identify_sees_one_compound() {
     let t = &listed[0];
     assert_eq!(t["compound_id"], keep);
     assert_eq!(t["rank"], 1, "{t}");
-    // Both lists are left out of the JSON when empty.
-    for key in ["missing", "disagreements"] {
-        assert!(
-            t[key].is_null() || t[key] == serde_json::json!([]),
-            "{key}: {}",
-            t[key]
-        );
-    }
+    // Both lists are in the JSON, empty.
+    assert_eq!(t["missing"], serde_json::json!([]));
+    assert_eq!(t["disagreements"], serde_json::json!([]));
     for e in t["evidence"].as_array().unwrap() {
         assert_eq!(e["rank"], 1, "{e}");
     }
