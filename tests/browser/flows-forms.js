@@ -92,9 +92,10 @@ async function main() {
     page.on('console', (m) => {
       if (m.type() === 'error' && !m.text().startsWith('Failed to load resource')) errors.push(m.text());
     });
-    // Refused requests: only the two pages a signer is refused. No /favicon.ico 404: the
-    // pages declare an icon of their own.
-    const expected = [/^GET \/accounts 403$/, /^GET \/submit 403$/];
+    // Refused requests: only the two pages a signer is refused, and the discarded preview
+    // asked for again (404, no longer held). No /favicon.ico 404: the pages declare an icon
+    // of their own.
+    const expected = [/^GET \/accounts 403$/, /^GET \/submit 403$/, /^GET \/submit\/[0-9a-f]{32} 404$/];
     const icons = [];
     page.on('response', (r) => {
       const p = new URL(r.url()).pathname;
@@ -140,6 +141,25 @@ async function main() {
     await page.goto(base + '/library?status=pending');
     const pendingAfter = (await page.textContent('#spectra')) || '';
     expect(pendingAfter.includes(name), 'submit: the library lists it among the pending spectra', 'not listed');
+
+    // A second preview discarded: the server lets go of it at once and says so; nothing saved.
+    const dropped = 'discarded preview ' + Date.now().toString(36);
+    await page.goto(base + '/submit');
+    await page.setInputFiles('#file', submitFile);
+    await page.selectOption('#technique', 'ir');
+    await page.fill('#name', dropped);
+    await Promise.all([page.waitForNavigation(), page.click('#submit-form button[type=submit]')]);
+    const droppedUrl = page.url();
+    await Promise.all([page.waitForNavigation(), page.click('#discard button[type=submit]')]);
+    const discardNotice = (await page.textContent('#discarded').catch(() => '')) || '';
+    expect(new URL(page.url()).pathname === '/submit' && /discarded/.test(discardNotice),
+      'submit: a preview discarded, the submit page says so', `${page.url()}: ${discardNotice}`);
+    await visited(page, 'submit-discarded');
+    const gone = await page.goto(droppedUrl);
+    expect(gone.status() === 404, 'submit: the discarded preview is no longer held', String(gone.status()));
+    await page.goto(base + '/library?status=pending');
+    const stillPending = (await page.textContent('#spectra')) || '';
+    expect(!stillPending.includes(dropped), 'submit: the discarded file was not saved', 'listed');
 
     // Identify with two files of one sample.
     await page.goto(base + '/identify');

@@ -248,6 +248,46 @@ fn a_submission_is_previewed_with_its_warnings_and_saved_only_when_confirmed_as_
     );
     assert_eq!(again.status, 404, "{}", again.html);
 
+    // A preview discarded: let go of at once, by its own session only; nothing saved.
+    let before_discard = lab.state();
+    let held = post_multipart(&server, &cookie, "/submit", &fields("probe to discard"));
+    assert_eq!(held.status, 303, "{}", held.html);
+    let key = held.location.strip_prefix("/submit/").unwrap().to_string();
+    let preview = get(&server, &cookie, &held.location);
+    assert!(
+        preview
+            .html
+            .contains(&format!("action=\"/submit/{key}/discard\"")),
+        "the preview offers to discard it: {}",
+        preview.html
+    );
+    let discard = format!("/submit/{key}/discard");
+    let elsewhere = post_fields(&server, &other_cookie, &discard, &[("csrf", &other_csrf)]);
+    assert_eq!(elsewhere.status, 404, "{}", elsewhere.html);
+    assert_eq!(
+        get(&server, &cookie, &held.location).status,
+        200,
+        "still held"
+    );
+    let discarded = post_fields(&server, &cookie, &discard, &[("csrf", &csrf)]);
+    assert_eq!(discarded.status, 303, "{}", discarded.html);
+    assert_eq!(discarded.location, "/submit?discarded=1");
+    let page = get(&server, &cookie, &discarded.location);
+    assert!(page.html.contains("was discarded"), "{}", page.html);
+    assert_eq!(get(&server, &cookie, &held.location).status, 404);
+    let late = post_fields(
+        &server,
+        &cookie,
+        &format!("/submit/{key}/confirm"),
+        &[("csrf", &csrf), ("sha256", &sha256)],
+    );
+    assert_eq!(late.status, 404, "{}", late.html);
+    assert_eq!(
+        lab.state(),
+        before_discard,
+        "a discarded preview saved something"
+    );
+
     // A manifest with its files, chosen in a browser (names without folders): a result per
     // row, the missing file refused, the other row stored as the signed-in account.
     let n = list(&lab).len();

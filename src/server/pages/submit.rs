@@ -14,8 +14,8 @@ use std::path::Path as FsPath;
 use askama::Template;
 use axum::Extension;
 use axum::extract::multipart::MultipartRejection;
-use axum::extract::rejection::{FormRejection, PathRejection};
-use axum::extract::{Form, Multipart, Path, State};
+use axum::extract::rejection::{FormRejection, PathRejection, QueryRejection};
+use axum::extract::{Form, Multipart, Path, Query, State};
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Redirect, Response};
 use axum::routing::{get, post};
@@ -54,7 +54,13 @@ pub fn router(held: &Held) -> Routes {
             "POST",
             "/submit/{key}/confirm",
             submit,
-            post(confirm).layer(h),
+            post(confirm).layer(h.clone()),
+        )
+        .add(
+            "POST",
+            "/submit/{key}/discard",
+            submit,
+            post(discard).layer(h),
         )
         .add("POST", "/submit/manifest", submit, post(manifest))
 }
@@ -87,6 +93,8 @@ pub struct Awaiting {
 #[template(path = "submit.html")]
 struct SubmitPage {
     layout: Layout,
+    /// A preview was just discarded (`?discarded=1`).
+    discarded: bool,
     techniques: Vec<Choice>,
     x_units: Vec<Choice>,
     y_units: Vec<Choice>,
@@ -103,9 +111,17 @@ fn choices(names: &[&'static str]) -> Vec<Choice> {
         .collect()
 }
 
-async fn form(b: Browser<ToSubmit>) -> Response {
+/// The submit page's query: `discarded=1` after a preview was discarded.
+#[derive(Deserialize)]
+struct FormQuery {
+    discarded: Option<String>,
+}
+
+async fn form(b: Browser<ToSubmit>, query: Result<Query<FormQuery>, QueryRejection>) -> Response {
+    let discarded = query.ok().and_then(|Query(q)| q.discarded).is_some();
     render(&SubmitPage {
         layout: b.layout("Submit", "/submit"),
+        discarded,
         techniques: techniques(""),
         x_units: choices(&["um", "nm"]),
         y_units: choices(&[
@@ -461,6 +477,38 @@ async fn shown(
 struct ConfirmForm {
     csrf: Option<String>,
     sha256: Option<String>,
+}
+
+/// The form of a discard: only the session's token.
+#[derive(Deserialize)]
+struct DiscardForm {
+    csrf: Option<String>,
+}
+
+/// Lets go of a held preview at once, freeing the room it took in the account's share of the
+/// server's memory, instead of keeping it for the two hours; nothing is saved. Only the
+/// session that previewed it may discard it.
+async fn discard(
+    Extension(held): Extension<Held>,
+    b: Browser<ToSubmit>,
+    key: Result<Path<String>, PathRejection>,
+    body: Result<Form<DiscardForm>, FormRejection>,
+) -> Response {
+    let csrf = body.ok().and_then(|Form(f)| f.csrf);
+    if let Some(r) = b.csrf_refused(csrf.as_deref()) {
+        return r;
+    }
+    let Ok(Path(key)) = key else {
+        return gone(&b, "submission", "the submit page");
+    };
+    match held.get::<Awaiting>(b.caller.account.id, &key) {
+        Some(a) if a.session == b.csrf => {}
+        _ => return gone(&b, "submission", "the submit page"),
+    }
+    if held.take::<Awaiting>(b.caller.account.id, &key).is_none() {
+        return gone(&b, "submission", "the submit page");
+    }
+    Redirect::to("/submit?discarded=1").into_response()
 }
 
 async fn confirm(
