@@ -66,6 +66,8 @@ pub fn record_hash(
 /// The state hash: SHA-256 over a format tag, the recipes (JSON, in technique order) and the sum.
 pub fn state_hash(recipes_json: &str, sum: ContentSum) -> String {
     let mut h = Sha256::new();
+    // The format tag keeps the word the hash was first called by: changing it would change
+    // every state hash, and with it every saved search and bundle made before.
     h.update(b"whorl fingerprint v1\n");
     h.update(recipes_json.as_bytes());
     h.update(b"\n");
