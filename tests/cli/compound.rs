@@ -50,14 +50,18 @@ fn toluene_twice() -> (Lab, i64) {
     (lab, id)
 }
 
-fn toluenes(lab: &Lab) -> Vec<Value> {
-    lab.json(&["compound", "list"])
-        .as_array()
+/// The rows of a JSON array named toluene, in any case.
+fn toluene_rows(rows: &Value) -> Vec<Value> {
+    rows.as_array()
         .unwrap()
         .iter()
         .filter(|c| c["name"].as_str().unwrap().eq_ignore_ascii_case("toluene"))
         .cloned()
         .collect()
+}
+
+fn toluenes(lab: &Lab) -> Vec<Value> {
+    toluene_rows(&lab.json(&["compound", "list"]))
 }
 
 fn identify(lab: &Lab) -> Value {
@@ -78,13 +82,7 @@ fn identify(lab: &Lab) -> Value {
 }
 
 fn fused_toluenes(report: &Value) -> Vec<Value> {
-    report["fusion"]["compounds"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .filter(|c| c["name"].as_str().unwrap().eq_ignore_ascii_case("toluene"))
-        .cloned()
-        .collect()
+    toluene_rows(&report["fusion"]["compounds"])
 }
 
 #[test]
