@@ -132,7 +132,10 @@ def write_commands(whorl, lib, env, rng, kills, data):
                                "--by", "q.manager"],
         "reinstate": lambda n: ["reinstate", str(rng.choice(ids("withdrawn"))), "--reason", "crash test", "--by", "c.curator"],
         "export": lambda n: ["export", os.path.join(exports, f"e{n}")],
-        "recipe": lambda n: ["recipe", "ir", "--als-lambda", str(rng.choice([1e4, 1e5, 1e6])), "--reason", "crash test"],
+        # A lambda of its own per run, so every run is a change (asking for the recipe already
+        # in place is refused at once, and an ALS lambda needs `--baseline als`).
+        "recipe": lambda n: ["recipe", "ir", "--baseline", "als", "--als-lambda", str(10_000 * (n + 1)),
+                             "--reason", "crash test"],
         "bundle import": lambda n: ["import", bundle, "--untrusted"],
         "cache rebuild": lambda n: ["check"],
     }
