@@ -250,11 +250,21 @@ impl Library {
         let mut seals: BTreeMap<String, (i64, Option<BTreeMap<String, String>>)> = BTreeMap::new();
         // The newest recipe change of each technique.
         let mut recipe_changed: HashMap<String, i64> = HashMap::new();
+        // The newest digest sealed of each compound row, by any event: for the compounds no
+        // spectrum points to any more, which no spectrum's newest seal covers.
+        let mut compound_seals: BTreeMap<String, (i64, String)> = BTreeMap::new();
         for (seq, _, actor, action, record, payload, ..) in &events {
             // An event seals its own record, or (a compound merge) every record it names.
             let parsed = serde_json::from_str::<Value>(payload).unwrap_or(Value::Null);
             for (sealed, rows) in event_seals(record, &parsed) {
                 seals.insert(sealed, (*seq, rows));
+            }
+            if let Some(rows) = parsed.get(ROWS).and_then(Value::as_object) {
+                for (row, digest) in rows {
+                    if let (true, Some(d)) = (row.starts_with("compound:"), digest.as_str()) {
+                        compound_seals.insert(row.clone(), (*seq, d.to_string()));
+                    }
+                }
             }
             if action == "init" || action == "recipe" {
                 replay_recipes(action, payload, &mut expected_recipes);
@@ -286,6 +296,7 @@ impl Library {
                     let mut p = p;
                     if let Some(object) = p.as_object_mut() {
                         object.remove(ROWS);
+                        object.remove(super::events::GENERATION);
                     }
                     expected_keys.push(p);
                 }
@@ -454,20 +465,31 @@ impl Library {
         }
 
         // The generation counts write transactions, for the derived stores to see that they
-        // are behind; no event records it, so only a value that is no count at all is found.
+        // are behind. Every event records the generation its transaction left, so the counter
+        // must be the newest event's (events written before they recorded it say nothing).
         let generation = self.setting("generation")?;
-        if generation
-            .as_deref()
-            .and_then(|g| g.parse::<u64>().ok())
-            .is_none()
-        {
-            find(
+        let recorded = events.iter().rev().find_map(|e| {
+            let p = serde_json::from_str::<Value>(&e.5).ok()?;
+            Some((e.0, p.get(super::events::GENERATION)?.as_u64()?))
+        });
+        match (
+            generation.as_deref().and_then(|g| g.parse::<u64>().ok()),
+            recorded,
+        ) {
+            (None, _) => find(
                 "setting:generation".into(),
                 format!(
                     "it is {}, not a count of write transactions (edited)",
                     generation.as_deref().unwrap_or("absent")
                 ),
-            );
+            ),
+            (Some(now), Some((seq, then))) if now != then => find(
+                "setting:generation".into(),
+                format!(
+                    "it is {now} but event {seq}, the newest, recorded {then} (edited outside whorl)"
+                ),
+            ),
+            _ => {}
         }
 
         // Every sealed record's rows against the seal of its newest event. A spectrum whose
@@ -509,6 +531,48 @@ impl Library {
                     problem: format!(
                         "its rows differ from those its event {seq} sealed (changed outside whorl): {}",
                         rows.join(", ")
+                    ),
+                });
+            }
+        }
+
+        // Compounds no spectrum points to (left behind by a revision that renamed its spectrum,
+        // or merged away) against the newest event that sealed them; compounds are never
+        // deleted (a trigger), so one sealed once must still be there.
+        let ids = |sql: &str| -> Result<HashSet<i64>> {
+            let mut stmt = self.conn.prepare(sql)?;
+            Ok(stmt
+                .query_map([], |r| r.get(0))?
+                .collect::<rusqlite::Result<_>>()?)
+        };
+        let compounds = ids("SELECT id FROM compound")?;
+        let named = ids("SELECT compound_id FROM spectrum")?;
+        let mut orphans: Vec<i64> = compounds.difference(&named).copied().collect();
+        orphans.sort_unstable();
+        for id in orphans {
+            let row = format!("compound:{id}");
+            let now = super::seal::compound_seal(&self.conn, id)?;
+            match compound_seals.get(&row) {
+                None => unsealed += 1,
+                Some((seq, digest)) if now.get(&row) != Some(digest) => {
+                    seal_findings.push(Finding {
+                        record: row.clone(),
+                        problem: format!(
+                            "a compound no spectrum names; its row differs from the one event {seq} sealed (changed outside whorl)"
+                        ),
+                    })
+                }
+                Some(_) => {}
+            }
+        }
+        for (row, (seq, _)) in &compound_seals {
+            let id = row["compound:".len()..].parse::<i64>().unwrap_or(-1);
+            // A compound a spectrum still names is its spectrum's seal's to report.
+            if !compounds.contains(&id) && !named.contains(&id) {
+                seal_findings.push(Finding {
+                    record: row.clone(),
+                    problem: format!(
+                        "event {seq} sealed this compound but its row is gone (deleted outside whorl)"
                     ),
                 });
             }
@@ -1257,6 +1321,107 @@ mod tests {
                 )
                 .unwrap();
         }
+    }
+
+    #[test]
+    fn a_generation_set_to_another_count_is_found_and_a_true_one_is_not() {
+        use crate::library::testing::{add, ir};
+        let mut lib = Library::in_memory("t").unwrap();
+        add(&mut lib, &ir(1, "acetone", "alice"));
+        add(&mut lib, &ir(2, "toluene", "alice"));
+        // A write that leaves the generation alone (a recorded check) keeps them in step too.
+        let report = lib.check(&|_, _| {}).unwrap();
+        lib.record_check("alice", &report).unwrap();
+        let generation = lib.generation().unwrap();
+        assert!(lib.check(&|_, _| {}).unwrap().findings.is_empty());
+        // Set back to what a stale cache records, or forward: either is another count.
+        for other in [generation - 1, generation + 1, 0] {
+            lib.conn
+                .execute(
+                    "UPDATE setting SET value = ?1 WHERE key = 'generation'",
+                    [other.to_string()],
+                )
+                .unwrap();
+            let findings = lib.check(&|_, _| {}).unwrap().findings;
+            assert_eq!(findings.len(), 1, "{other}: {findings:?}");
+            assert_eq!(findings[0].record, "setting:generation");
+            assert!(findings[0].problem.contains("recorded"), "{findings:?}");
+        }
+    }
+
+    #[test]
+    fn a_compound_no_spectrum_names_is_still_sealed() {
+        use crate::library::MetadataPatch;
+        use crate::library::testing::{add, ir};
+        let mut lib = Library::in_memory("t").unwrap();
+        let a = add(&mut lib, &ir(1, "acetone", "alice"));
+        let b = add(&mut lib, &ir(2, "propanone", "alice"));
+        let c = add(&mut lib, &ir(3, "toluene", "alice"));
+        let compound_of = |lib: &Library, id: i64| -> i64 {
+            lib.conn
+                .query_row(
+                    "SELECT compound_id FROM spectrum WHERE id = ?1",
+                    [id],
+                    |r| r.get(0),
+                )
+                .unwrap()
+        };
+        // Left behind by a revision that renames its only spectrum...
+        let renamed = compound_of(&lib, c);
+        let patch = MetadataPatch {
+            name: Some("methylbenzene".into()),
+            ..Default::default()
+        };
+        lib.revise(c, &patch, "alice", Some("preferred name"))
+            .unwrap();
+        assert_ne!(compound_of(&lib, c), renamed);
+        // ...and merged away.
+        let merged = compound_of(&lib, b);
+        lib.merge_compounds(merged, compound_of(&lib, a), "bob", "one substance", false)
+            .unwrap();
+        let report = lib.check(&|_, _| {}).unwrap();
+        assert!(report.findings.is_empty(), "{:?}", report.findings);
+        assert_eq!(report.unsealed, 0);
+        for orphan in [renamed, merged] {
+            for edit in [
+                "UPDATE compound SET name = name || 'x' WHERE id = ?1",
+                "UPDATE compound SET formula = 'C9H9' WHERE id = ?1",
+                "UPDATE compound SET cas = '50-00-0' WHERE id = ?1",
+            ] {
+                let before: (String, Option<String>, Option<String>) = lib
+                    .conn
+                    .query_row(
+                        "SELECT name, formula, cas FROM compound WHERE id = ?1",
+                        [orphan],
+                        |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)),
+                    )
+                    .unwrap();
+                lib.conn.execute(edit, [orphan]).unwrap();
+                let findings = lib.check(&|_, _| {}).unwrap().findings;
+                lib.conn
+                    .execute(
+                        "UPDATE compound SET name = ?2, formula = ?3, cas = ?4 WHERE id = ?1",
+                        rusqlite::params![orphan, before.0, before.1, before.2],
+                    )
+                    .unwrap();
+                assert_eq!(findings.len(), 1, "{orphan} {edit}: {findings:?}");
+                assert_eq!(findings[0].record, format!("compound:{orphan}"));
+            }
+        }
+        // Deleted, with the trigger that forbids it dropped and foreign keys off first.
+        lib.conn
+            .execute_batch("DROP TRIGGER compound_no_delete; PRAGMA foreign_keys = OFF;")
+            .unwrap();
+        lib.conn
+            .execute("DELETE FROM compound WHERE id = ?1", [renamed])
+            .unwrap();
+        let findings = lib.check(&|_, _| {}).unwrap().findings;
+        assert!(
+            findings
+                .iter()
+                .any(|f| f.record == format!("compound:{renamed}") && f.problem.contains("gone")),
+            "{findings:?}"
+        );
     }
 
     #[test]

@@ -41,6 +41,9 @@ fn asserted() -> String {
 
 /// The identity of an event whose actor is a name given on the command line.
 pub const ASSERTED: &str = "asserted";
+
+/// The payload key under which every event records the generation its transaction leaves.
+pub const GENERATION: &str = "generation";
 /// The identity of an event whose actor signed in (session or token).
 pub const SIGNED_IN: &str = "signed-in";
 
@@ -126,8 +129,19 @@ pub fn append_event(
         .unwrap_or((0, GENESIS_HASH.to_string()));
     let seq = last_seq + 1;
     let at = now();
+    // Every event records the generation its transaction leaves (a write bumps it before it
+    // appends its events), so that `check` can compare the counter with the newest event.
+    let generation: i64 = tx.query_row(
+        "SELECT CAST(value AS INTEGER) FROM setting WHERE key = 'generation'",
+        [],
+        |r| r.get(0),
+    )?;
+    let mut payload = payload.clone();
+    if let Some(object) = payload.as_object_mut() {
+        object.insert(GENERATION.into(), generation.into());
+    }
     // Events on a record seal the rows it stands for, as this transaction leaves them.
-    let payload_text = super::seal::sealed_payload(tx, record, payload)?.to_string();
+    let payload_text = super::seal::sealed_payload(tx, record, &payload)?.to_string();
     let payload_hash = sha256_hex(payload_text.as_bytes());
     let identity = identity_of(tx)?;
     let hash = event_hash_with(

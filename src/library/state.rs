@@ -79,7 +79,8 @@ impl Library {
     /// The generation counts the writes that may change what the derived stores are built
     /// from (spectra, their revisions and metadata, prepared forms, recipes, the content sum):
     /// the text index and every vector cache record the generation they reflect and are
-    /// rebuilt when it moves. A write that touches none of that goes through
+    /// rebuilt when it moves. Every event records the generation its transaction leaves, so
+    /// `check` finds a counter set to another number outside whorl. A write that touches none of that goes through
     /// [`Library::write_trail`] instead.
     pub(super) fn write<T>(
         &mut self,
@@ -88,8 +89,9 @@ impl Library {
         let tx = self
             .conn
             .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
-        let (value, touched) = f(&tx)?;
+        // Bumped first, so that the events `f` appends record the generation they make.
         let generation = bump_generation(&tx)?;
+        let (value, touched) = f(&tx)?;
         tx.commit()?;
         self.sync_text(&touched, generation)?;
         Ok(value)

@@ -67,6 +67,9 @@ impl Library {
             .conn
             .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         let mut outcomes = Vec::with_capacity(batch.len());
+        // Bumped first, so that each import event records the generation this batch makes; a
+        // batch that adds nothing rolls the bump back with the rest.
+        let generation = bump_generation(&tx)?;
         let mut added = Vec::new();
         let mut names = CompoundNames::default();
         for staged in batch {
@@ -86,7 +89,6 @@ impl Library {
             drop(tx); // rolls back
             return Ok(outcomes);
         }
-        let generation = bump_generation(&tx)?;
         tx.commit()?;
         self.sync_text(&added, generation)?;
         Ok(outcomes)

@@ -991,6 +991,17 @@ fn tamper_walk_every_table_and_column() {
         "--expires",
         "1d",
     ]);
+    // A compound no spectrum names any more: spectrum 1 renamed, its old compound left.
+    lab.ok(&[
+        "revise",
+        "1",
+        "--name",
+        "propan-2-one",
+        "--reason",
+        "preferred name",
+        "--by",
+        "c.curator",
+    ]);
     lab.ok(&["check"]);
     let db = rusqlite::Connection::open(lab.library().join("library.sqlite")).unwrap();
     let tables: Vec<String> = db
@@ -1021,7 +1032,22 @@ fn tamper_walk_every_table_and_column() {
                     ),
                 ));
             }
+            // The generation set to another count, as a stale cache would want it.
+            cases.push((
+                "setting[generation] (another count)".into(),
+                "UPDATE setting SET value = CAST(CAST(value AS INTEGER) - 1 AS TEXT) WHERE key = 'generation'".into(),
+            ));
             continue;
+        }
+        if t == "compound" {
+            for c in ["key", "name", "formula", "cas", "created_at"] {
+                cases.push((
+                    format!("compound.{c} (no spectrum names it)"),
+                    format!(
+                        "UPDATE compound SET \"{c}\" = coalesce(\"{c}\", '') || 'x' WHERE id = (SELECT min(id) FROM compound WHERE id NOT IN (SELECT compound_id FROM spectrum))"
+                    ),
+                ));
+            }
         }
         let columns: Vec<(String, String)> = db
             .prepare(&format!("PRAGMA table_info(\"{t}\")"))
@@ -1125,6 +1151,7 @@ fn tamper_walk_every_table_and_column() {
         "trusted_key.",
         "setting[created_at]",
         "setting[created_by_version]",
+        "setting[generation]",
     ];
     let missed_guarded: Vec<&String> = missed
         .iter()
