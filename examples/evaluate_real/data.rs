@@ -21,6 +21,8 @@ pub struct Entry {
     pub label: String,
     /// The instrument (Raman; empty for EI).
     pub instrument: String,
+    /// The retention index the source gives (EI; `None` where the manifest has none).
+    pub ri: Option<f64>,
     /// `(x, y)` as written in the file, in file order.
     pub points: Vec<(f64, f64)>,
 }
@@ -99,6 +101,7 @@ pub fn entries(dir: &Path, label_column: &str) -> Vec<Entry> {
         col(label_column).expect("label column"),
     );
     let instrument = col("instrument");
+    let ri = col("ri");
     reader
         .records()
         .map(|r| {
@@ -107,6 +110,7 @@ pub fn entries(dir: &Path, label_column: &str) -> Vec<Entry> {
                 file: r[file].to_string(),
                 label: r[label].to_string(),
                 instrument: instrument.map_or_else(String::new, |i| r[i].to_string()),
+                ri: ri.and_then(|i| r[i].trim().parse::<f64>().ok()),
                 points: read_points(&dir.join(&r[file])),
             }
         })

@@ -64,10 +64,10 @@ pub struct Verdicts {
     pub correct_no_match: usize,
     pub absent: usize,
     pub absent_words: std::collections::BTreeMap<&'static str, usize>,
-    /// The evidence the weak threshold applies to (`Confidence::evidence`) of each list
-    /// whose first hit is right.
+    /// The discriminant (Lam et al. 2007) of each list whose first hit is right.
     pub right_best: Vec<f64>,
-    /// The evidence of each list with the true identity withdrawn (0 when nothing is left).
+    /// The discriminant of each list with the true identity withdrawn (0 when nothing is
+    /// left).
     pub absent_best: Vec<f64>,
     /// The best score alone of each list whose first hit is right, for comparison.
     pub right_score: Vec<f64>,
@@ -94,7 +94,9 @@ impl Verdicts {
         let absent: Vec<_> = hits.iter().filter(|h| !is_truth(h)).cloned().collect();
         let without = verdict(&absent, confidence);
         dump(tag, &hits, &absent, right_first);
-        let evidence = confidence.evidence;
+        // The discriminant, whatever the list's own thresholds apply to, so that both bases
+        // are derived from the same values whichever `THRESHOLDS` holds now.
+        let evidence = whorl::search::Evidence::Discriminant;
         if right_first {
             self.right_best
                 .push(evidence.of(&hits).expect("a right first hit"));
@@ -141,7 +143,7 @@ pub struct Derived {
 /// Which value of a list the threshold applies to.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Basis {
-    /// The default scoring's evidence (`Confidence::evidence`).
+    /// The discriminant of Lam et al. 2007 (`Evidence::Discriminant`).
     Evidence,
     /// The best score alone.
     Score,

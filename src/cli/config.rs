@@ -80,6 +80,18 @@ fn write_derived(out: &mut impl Write) -> anyhow::Result<()> {
             "#   {technique} {}: {:.2}, {:.2}, {:.2}{applies}",
             params.measure, c.weak_score, c.close_margin, c.strong_score
         )?;
+        let ri = whorl::search::confidence_for(technique, &params, true);
+        if ri.retention_index {
+            writeln!(
+                out,
+                "#     searched with --ri: weak threshold {:.2}{}",
+                ri.weak_score,
+                match ri.evidence {
+                    whorl::search::Evidence::Score => " on the best score",
+                    whorl::search::Evidence::Discriminant => " on the same combination",
+                }
+            )?;
+        }
     }
     writeln!(
         out,

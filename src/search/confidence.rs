@@ -27,6 +27,10 @@ pub struct Confidence {
     /// existed).
     #[serde(default)]
     pub evidence: Evidence,
+    /// Whether the weak threshold is the one derived for searches given a retention index
+    /// ([`Threshold::with_ri`]); absent (false) otherwise and in results saved before it.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub retention_index: bool,
 }
 
 /// What the no-match threshold (`weak_score`) is compared with.
@@ -108,6 +112,20 @@ pub struct Threshold {
     pub strong_score: f64,
     /// See [`Confidence::evidence`].
     pub evidence: Evidence,
+    /// The weak threshold and its evidence for a search given a retention index (`--ri`),
+    /// where derived: such a search competes only with the references inside its window,
+    /// so its evidence is distributed otherwise than a search by the spectrum alone.
+    pub with_ri: Option<(f64, Evidence)>,
+}
+
+impl Threshold {
+    /// This row with a weak threshold of its own for searches given a retention index.
+    const fn and_with_ri(self, weak: f64, evidence: Evidence) -> Threshold {
+        Threshold {
+            with_ri: Some((weak, evidence)),
+            ..self
+        }
+    }
 }
 
 const fn row(
@@ -126,6 +144,7 @@ const fn row(
         close_margin,
         strong_score,
         evidence: Evidence::Score,
+        with_ri: None,
     }
 }
 
@@ -169,6 +188,9 @@ const fn discriminant_row(
 /// below it, at most 5 % of right first hits below it.
 ///
 /// The unit test `thresholds_match_the_evaluation` checks this table against both files.
+///
+/// The EI-MS entropy row also carries a weak threshold of its own for searches given a
+/// retention index, derived on the tuning part of the real EI protocol searched with one.
 pub const THRESHOLDS: [Threshold; 14] = [
     row(Technique::Ir, Measure::Correlation, false, 0.82, 0.03, 0.93),
     row(Technique::Ir, Measure::Cosine, false, 0.83, 0.03, 0.90),
@@ -183,7 +205,8 @@ pub const THRESHOLDS: [Threshold; 14] = [
         0.68,
     ),
     row(Technique::Raman, Measure::Cosine, false, 0.53, 0.04, 0.58),
-    discriminant_row(Technique::MsEi, Measure::Entropy, 0.51, 0.01, 0.88),
+    discriminant_row(Technique::MsEi, Measure::Entropy, 0.52, 0.01, 0.88)
+        .and_with_ri(RI_WEAK, RI_EVIDENCE),
     row(Technique::MsEi, Measure::Composite, false, 0.85, 0.02, 0.96),
     row(Technique::MsEi, Measure::Composite, true, 0.98, 0.02, 1.00),
     row(Technique::MsEi, Measure::Cosine, false, 0.94, 0.03, 0.96),
@@ -207,11 +230,28 @@ pub const THRESHOLDS: [Threshold; 14] = [
     row(Technique::Nmr13c, Measure::Cosine, false, 0.67, 0.50, 1.00),
 ];
 
+/// The weak threshold of an EI-MS entropy search given a retention index, and what it applies
+/// to, derived on the real tuning part (`docs/evaluation-real.md`, "searched with its
+/// retention index").
+const RI_WEAK: f64 = 0.77;
+const RI_EVIDENCE: Evidence = Evidence::Score;
+
 /// The thresholds for a technique and its score parameters: the derived row for this
 /// technique, measure and search direction (which matters only to the EI-MS composite); for
 /// a combination the table lacks, the row of the technique's default scoring, marked as not
 /// derived for this scoring.
 pub fn confidence(technique: Technique, params: &ScoreParams) -> Confidence {
+    confidence_for(technique, params, false)
+}
+
+/// [`confidence`] for a search that is (`retention_index`) or is not given a retention
+/// index: the row's weak threshold for such searches where one was derived
+/// ([`Threshold::with_ri`]), else the same as without.
+pub fn confidence_for(
+    technique: Technique,
+    params: &ScoreParams,
+    retention_index: bool,
+) -> Confidence {
     // The search direction shapes only the composite score.
     let direction = |p: &ScoreParams| {
         technique == Technique::MsEi && p.measure == Measure::Composite && p.composite.reverse
@@ -229,12 +269,17 @@ pub fn confidence(technique: Technique, params: &ScoreParams) -> Confidence {
             false,
         ),
     };
+    let (weak_score, evidence, retention_index) = match row.with_ri {
+        Some((weak, evidence)) if retention_index && derived => (weak, evidence, true),
+        _ => (row.weak_score, row.evidence, false),
+    };
     Confidence {
-        weak_score: row.weak_score,
+        weak_score,
         close_margin: row.close_margin,
         strong_score: row.strong_score,
         derived,
-        evidence: row.evidence,
+        evidence,
+        retention_index,
     }
 }
 
@@ -481,7 +526,7 @@ mod tests {
         // score (and its evidence) for that row.
         let real = std::fs::read_to_string(docs.join("evaluation-real.md"))
             .expect("docs/evaluation-real.md");
-        let real_weak: Vec<(Technique, Measure, Evidence, f64)> = real
+        let real_weak: Vec<(Technique, Measure, bool, Evidence, f64)> = real
             .split("## Verdict thresholds from the real tuning parts")
             .nth(1)
             .expect("a real thresholds section")
@@ -494,7 +539,12 @@ mod tests {
                     .iter()
                     .find_map(|c| c.strip_prefix("**")?.strip_suffix("**")?.parse().ok())
                     .unwrap_or_else(|| panic!("a bold weak score in {line}"));
-                let evidence = match cells[2] {
+                let with_ri = match cells[2] {
+                    "none" => false,
+                    "given" => true,
+                    other => panic!("retention index {other}?"),
+                };
+                let evidence = match cells[3] {
                     "best score" => Evidence::Score,
                     "discriminant" => Evidence::Discriminant,
                     other => panic!("threshold on {other}?"),
@@ -502,12 +552,34 @@ mod tests {
                 (
                     cells[0].parse().unwrap(),
                     cells[1].parse().unwrap(),
+                    with_ri,
                     evidence,
                     weak,
                 )
             })
             .collect();
-        assert_eq!(real_weak.len(), 2, "EI-MS and Raman rows from real spectra");
+        assert_eq!(
+            real_weak.len(),
+            3,
+            "EI-MS (without and with a retention index) and Raman rows from real spectra"
+        );
+        for &(technique, measure, _, evidence, weak) in real_weak.iter().filter(|r| r.2) {
+            let t = THRESHOLDS
+                .iter()
+                .find(|t| t.technique == technique && t.measure == measure && !t.reverse)
+                .expect("a THRESHOLDS row for the retention-index threshold");
+            assert_eq!(t.with_ri, Some((weak, evidence)), "{technique} {measure}");
+        }
+        assert_eq!(
+            THRESHOLDS.iter().filter(|t| t.with_ri.is_some()).count(),
+            real_weak.iter().filter(|r| r.2).count(),
+            "every retention-index threshold is in the evaluation"
+        );
+        let real_weak: Vec<(Technique, Measure, Evidence, f64)> = real_weak
+            .into_iter()
+            .filter(|r| !r.2)
+            .map(|(t, m, _, e, w)| (t, m, e, w))
+            .collect();
         let mut real_rows = 0;
         let mut rows = 0;
         let section = text
@@ -564,6 +636,38 @@ mod tests {
     }
 
     #[test]
+    fn a_search_given_a_retention_index_takes_the_threshold_derived_for_it() {
+        let entropy = ScoreParams::default_for(Technique::MsEi);
+        let (without, with) = (
+            confidence_for(Technique::MsEi, &entropy, false),
+            confidence_for(Technique::MsEi, &entropy, true),
+        );
+        assert_eq!(without, confidence(Technique::MsEi, &entropy));
+        assert!(!without.retention_index && with.retention_index);
+        assert_eq!((with.weak_score, with.evidence), (RI_WEAK, RI_EVIDENCE));
+        // The close margin and strong score are the spectrum's either way.
+        assert_eq!(
+            (with.close_margin, with.strong_score),
+            (without.close_margin, without.strong_score)
+        );
+        // A scoring without a threshold of its own for retention indices keeps its row's.
+        let mut cosine = entropy.clone();
+        cosine.measure = Measure::Cosine;
+        assert_eq!(
+            confidence_for(Technique::MsEi, &cosine, true),
+            confidence(Technique::MsEi, &cosine)
+        );
+        assert_eq!(
+            confidence_for(
+                Technique::Ir,
+                &ScoreParams::default_for(Technique::Ir),
+                true
+            ),
+            confidence(Technique::Ir, &ScoreParams::default_for(Technique::Ir))
+        );
+    }
+
+    #[test]
     fn each_verdict_follows_from_the_scores_and_thresholds() {
         use crate::search::hit::test_hit as hit;
         let c = Confidence {
@@ -572,6 +676,7 @@ mod tests {
             strong_score: 0.90,
             derived: true,
             evidence: Evidence::Score,
+            retention_index: false,
         };
         let word = |hits: &[Hit]| verdict(hits, &c).word();
         assert_eq!(word(&[]), "no-acceptable-match");
@@ -626,6 +731,7 @@ mod tests {
             strong_score: 0.95,
             derived: true,
             evidence: e,
+            retention_index: false,
         };
         assert_eq!(verdict(&hits, &c).word(), "probable");
         let crowded = [hit(1, "a", 0.9), hit(2, "b", 0.88), hit(3, "c", 0.87)];

@@ -248,6 +248,7 @@ mod tests {
             strong_score: weak_score,
             derived: false,
             evidence: crate::search::Evidence::Score,
+            retention_index: false,
         }
     }
 

@@ -21,7 +21,8 @@ mod warning;
 
 pub use crate::config::{IdentityPolicy, Thresholds};
 pub use confidence::{
-    Confidence, Evidence, THRESHOLDS, Threshold, Verdict, confidence, is_confident, verdict,
+    Confidence, Evidence, THRESHOLDS, Threshold, Verdict, confidence, confidence_for, is_confident,
+    verdict,
 };
 pub use constraints::{Constraints, RI_KEY, RI_PHASE_KEY, RiWindow};
 pub use fusion::{DISAGREE_OUTSIDE, FUSION_RULE, FusedCompound, Fusion, TechniqueEvidence, fuse};

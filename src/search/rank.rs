@@ -4,7 +4,7 @@
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
-use super::confidence::{Confidence, Verdict, confidence, list_warnings, verdict};
+use super::confidence::{Confidence, Verdict, confidence_for, list_warnings, verdict};
 use super::hit::{Excluded, Hit};
 use super::plan::{Plan, Request};
 use super::scan;
@@ -284,7 +284,11 @@ fn finish(
     excluded: Vec<Excluded>,
 ) -> Result<HitList> {
     let margin = (hits.len() >= 2).then(|| hits[0].score - hits[1].score);
-    let mut confidence = confidence(request.technique, &request.params);
+    let mut confidence = confidence_for(
+        request.technique,
+        &request.params,
+        request.constraints.ri.is_some(),
+    );
     if let Some(w) = request.thresholds.weak_score {
         // A configured weak score is a score, as `whorl.toml` documents it.
         confidence.weak_score = w;

@@ -539,6 +539,17 @@ fn retention_index_window_uses_the_ri_on_record() {
         "--explain",
     ]);
     assert_eq!(names(&report), ["ethylbenzene", "p-xylene"]);
+    // A search given a retention index takes the weak threshold derived for such searches on
+    // the real EI tuning part (docs/evaluation-real.md, on the best score); one without keeps
+    // the spectrum's own (on the discriminant).
+    let c = &report["confidence"];
+    assert_eq!(c["retention_index"], true, "{c}");
+    assert_eq!(c["evidence"], "score", "{c}");
+    let plain = lab.json(&["search", &u, "-t", "ms-ei"]);
+    let p = &plain["confidence"];
+    assert!(p.get("retention_index").is_none(), "{p}");
+    assert_eq!(p["evidence"], "discriminant", "{p}");
+    assert_ne!(c["weak_score"], p["weak_score"]);
     let r = lab.json(&[
         "search",
         &u,

@@ -111,7 +111,9 @@ pub fn query_section(query: &Query<'_>, heading: Option<&str>) -> Result<String>
             r.confidence.evidence.describe(),
             r.confidence.weak_score,
             r.confidence.close_margin,
-            if r.confidence.derived {
+            if r.confidence.retention_index {
+                "derived for this scoring on searches given a retention index"
+            } else if r.confidence.derived {
                 "derived for this scoring"
             } else {
                 "set for this library or not derived"
