@@ -90,8 +90,22 @@ impl Library {
             .conn
             .transaction_with_behavior(rusqlite::TransactionBehavior::Immediate)?;
         // Bumped first, so that the events `f` appends record the generation they make.
-        let generation = bump_generation(&tx)?;
+        let last_event = |tx: &Connection| -> Result<i64> {
+            Ok(tx.query_row("SELECT coalesce(max(seq), 0) FROM event", [], |r| r.get(0))?)
+        };
+        let before = last_event(&tx)?;
+        let mut generation = bump_generation(&tx)?;
         let (value, touched) = f(&tx)?;
+        if touched.is_empty() && last_event(&tx)? == before {
+            // Nothing recorded, nothing touched (a bundle whose spectra are all present): the
+            // derived stores have nothing to catch up with, and the generation stays the
+            // newest event's.
+            tx.execute(
+                "UPDATE setting SET value = CAST(CAST(value AS INTEGER) - 1 AS TEXT) WHERE key = 'generation'",
+                [],
+            )?;
+            generation -= 1;
+        }
         tx.commit()?;
         self.sync_text(&touched, generation)?;
         Ok(value)
