@@ -113,8 +113,10 @@ fn number<T: std::str::FromStr>(form: &Upload, name: &str) -> Result<Option<T>, 
         .transpose()
 }
 
-/// The constraints of the form, validated as `whorl identify`'s options are.
-fn constraints(form: &Upload) -> Result<Constraints, ApiError> {
+/// The constraints of the form, validated as `whorl identify`'s and `whorl search`'s options
+/// are: `formula`, `elements`, `mass`, `ihd`, `ri`, `ri_window`, `ri_phase` (a field the form
+/// was not read with is absent).
+pub(super) fn constraints(form: &Upload) -> Result<Constraints, ApiError> {
     let mut c = Constraints::default();
     if let Some(f) = form.field("formula").filter(|v| !v.is_empty()) {
         c = c.with_formula(f)?;

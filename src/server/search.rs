@@ -48,9 +48,24 @@ pub struct SearchForm {
     x_unit: Option<String>,
     /// "true" to search pending spectra too.
     include_pending: Option<bool>,
+    /// Only compounds with exactly this formula.
+    formula: Option<String>,
+    /// Only compounds of this nominal mass.
+    mass: Option<u64>,
+    /// Only compounds with this index of hydrogen deficiency.
+    ihd: Option<f64>,
+    /// Only compounds made of these elements, e.g. C,H,O.
+    elements: Option<String>,
+    /// Retention index of the unknown (EI-MS only); hits need an `ri` within `ri_window`,
+    /// and the verdict takes the threshold derived for searches given one.
+    ri: Option<f64>,
+    /// Half-width of the retention-index window (default 20).
+    ri_window: Option<f64>,
+    /// Column phase of the retention index; hits' `ri_phase` must match.
+    ri_phase: Option<String>,
 }
 
-const FIELDS: [&str; 7] = [
+const FIELDS: [&str; 14] = [
     "technique",
     "top",
     "where",
@@ -58,6 +73,13 @@ const FIELDS: [&str; 7] = [
     "y_unit",
     "x_unit",
     "include_pending",
+    "formula",
+    "mass",
+    "ihd",
+    "elements",
+    "ri",
+    "ri_window",
+    "ri_phase",
 ];
 
 /// Searches an uploaded unknown; the answer is the report of `whorl search --json`.
@@ -88,6 +110,7 @@ pub async fn search(
     let y_unit = form.parsed("y_unit")?;
     let x_unit = form.parsed("x_unit")?;
     let filter = form.field("where").map(str::to_string);
+    let constraints = super::identify::constraints(&form)?;
     let include_pending = matches!(
         form.field("include_pending"),
         Some("true" | "1" | "yes" | "on")
@@ -109,6 +132,7 @@ pub async fn search(
             let mut request = Request::resolve(technique, &given, &config);
             request.top = request.top.max(1);
             request.filter = filter;
+            request.constraints = constraints;
             if include_pending {
                 request.statuses.push(Status::Pending);
             }

@@ -1024,3 +1024,127 @@ fn the_library_page_pages_its_filtered_and_sorted_rows_with_the_count_of_every_m
     sorted.sort_by(|a, b| b.cmp(a));
     assert_eq!(names, sorted);
 }
+
+/// A GC-MS peak searched with its retention index, through the API and the search page: the
+/// same hits, window and thresholds as `whorl search --ri` (the real server on loopback).
+#[test]
+fn an_ei_search_with_a_retention_index_answers_as_the_command_line_does() {
+    let lab = lab_with_accounts();
+    // Two EI references with retention indices (invented for the test): the seed's spectra
+    // with every intensity scaled by 0.97, so that they are other raw points. The seed's own
+    // EI spectra carry none, so a window leaves only these two.
+    for (slug, ri) in [("toluene", "765"), ("ethylbenzene", "857")] {
+        let file = format!("{slug}-ri.csv");
+        let seed_file =
+            std::fs::read_to_string(seed().join(format!("spectra/{slug}.ms-ei.csv"))).unwrap();
+        let contents: String = seed_file
+            .lines()
+            .map(|line| match line.split_once(',') {
+                Some((mz, y)) if y.trim().parse::<f64>().is_ok() => {
+                    format!("{mz},{:.4}\n", y.trim().parse::<f64>().unwrap() * 0.97)
+                }
+                _ => format!("{line}\n"),
+            })
+            .collect();
+        lab.add(
+            &file,
+            &contents,
+            "ms-ei",
+            &format!("{slug} (with RI)"),
+            &["--set", &format!("ri={ri}")],
+        );
+    }
+    let server = Server::start(&lab);
+    let unknown = seed().join("unknowns/u09.ms-ei.csv");
+    let bytes = std::fs::read(&unknown).unwrap();
+    let cli = lab.json(&[
+        "search",
+        unknown.to_str().unwrap(),
+        "-t",
+        "ms-ei",
+        "--ri",
+        "860",
+        "--ri-window",
+        "100",
+        "--include-pending",
+    ]);
+    let names = |v: &Value| -> Vec<String> {
+        v["hits"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|h| h["name"].as_str().unwrap().to_string())
+            .collect()
+    };
+    assert_eq!(
+        names(&cli),
+        ["ethylbenzene (with RI)", "toluene (with RI)"],
+        "only the references inside the window"
+    );
+    assert_eq!(cli["confidence"]["retention_index"], true);
+
+    // The API takes ri and ri_window as the command line takes --ri and --ri-window.
+    let (cookie, csrf) = session(&server, "reader");
+    let api = crate::serve_api::post_form(
+        &server,
+        "/api/v1/search",
+        crate::serve::Auth::Cookie(&cookie),
+        &[
+            ("technique", None, text("ms-ei")),
+            ("ri", None, text("860")),
+            ("ri_window", None, text("100")),
+            ("include_pending", None, text("true")),
+            ("file", Some("u09.ms-ei.csv"), bytes.clone()),
+        ],
+    );
+    assert_eq!(api.status, 200, "{}", api.body);
+    assert_eq!(names(&api.body), names(&cli));
+    assert_eq!(api.body["parameters"], cli["parameters"]);
+    assert_eq!(api.body["confidence"], cli["confidence"]);
+    assert_eq!(api.body["verdict"], cli["verdict"]);
+    // A retention index on an IR search is refused, as on the command line.
+    let ir = crate::serve_api::post_form(
+        &server,
+        "/api/v1/search",
+        crate::serve::Auth::Cookie(&cookie),
+        &[
+            ("technique", None, text("ir")),
+            ("ri", None, text("860")),
+            (
+                "file",
+                Some("u01.ir.csv"),
+                std::fs::read(seed().join("unknowns/u01.ir.csv")).unwrap(),
+            ),
+        ],
+    );
+    assert_eq!(ir.status, 400, "{}", ir.body);
+
+    // The search page: the window is applied and shown with the result.
+    let sent = post_multipart(
+        &server,
+        &cookie,
+        "/search",
+        &[
+            ("csrf", None, text(&csrf)),
+            ("technique", None, text("ms-ei")),
+            ("include_pending", None, text("on")),
+            ("ri", None, text("860")),
+            ("ri_window", None, text("100")),
+            ("file", Some("u09.ms-ei.csv"), bytes),
+        ],
+    );
+    assert_eq!(sent.status, 303, "{}", sent.html);
+    let shown = get(&server, &cookie, &sent.location);
+    assert_eq!(shown.status, 200, "{}", shown.html);
+    assert!(
+        shown.html.contains("id=\"retention-index\">860 \u{b1} 100"),
+        "{}",
+        shown.html
+    );
+    let at = |name: &str| shown.html.find(name).unwrap_or(usize::MAX);
+    assert!(at("ethylbenzene (with RI)") < at("toluene (with RI)"));
+    assert!(
+        !shown.html.contains("href=\"/spectra/1\""),
+        "a seed spectrum outside the window"
+    );
+}

@@ -131,6 +131,8 @@ struct Options {
     top: usize,
     include_pending: bool,
     sample: String,
+    /// The retention-index window (EI-MS), from the form's `ri` and `ri_window`.
+    constraints: whorl::search::Constraints,
 }
 
 /// Runs the search on the blocking pool and holds the result; returns its key.
@@ -151,6 +153,7 @@ async fn run(
     let root = state.options.library.clone();
     let top = o.top.clamp(1, MOST_HITS);
     let include_pending = o.include_pending;
+    let constraints = o.constraints.clone();
     let (name, data) = (file_name.clone(), bytes.clone());
     let (report, unknown, references) = state
         .with_library(move |lib| {
@@ -170,6 +173,7 @@ async fn run(
             if include_pending {
                 request.statuses.push(Status::Pending);
             }
+            request.constraints = constraints;
             let unknown = Unknown {
                 technique,
                 file: path,
@@ -200,7 +204,15 @@ async fn run(
     )
 }
 
-const FIELDS: [&str; 5] = ["csrf", "technique", "top", "include_pending", "sample"];
+const FIELDS: [&str; 7] = [
+    "csrf",
+    "technique",
+    "top",
+    "include_pending",
+    "sample",
+    "ri",
+    "ri_window",
+];
 
 async fn upload(
     State(state): State<AppState>,
@@ -252,11 +264,16 @@ async fn upload(
             }
         },
     };
+    let constraints = match super::super::identify::constraints(&form) {
+        Ok(c) => c,
+        Err(e) => return b.fail("Search refused", e),
+    };
     let options = Options {
         technique,
         top,
         include_pending: form.field("include_pending").is_some(),
         sample: form.field("sample").unwrap_or_default().to_string(),
+        constraints,
     };
     match run(&state, &held, &b, file_name, bytes, options).await {
         Ok(key) => Redirect::to(&format!("/search/{key}")).into_response(),
@@ -301,11 +318,18 @@ async fn again(
         .top
         .and_then(|t| t.parse::<usize>().ok())
         .unwrap_or(before.report.parameters.top);
+    // A retention index belongs to the GC run: kept for another EI search, dropped for
+    // another technique.
+    let mut constraints = before.report.parameters.constraints.clone();
+    if technique != Technique::MsEi {
+        constraints.ri = None;
+    }
     let options = Options {
         technique: Some(technique),
         top,
         include_pending: before.include_pending,
         sample: before.sample.clone(),
+        constraints,
     };
     let (name, bytes) = (before.file_name.clone(), before.bytes.clone());
     match run(&state, &held, &b, name, bytes, options).await {
@@ -428,6 +452,8 @@ struct ResultPage {
     technique: String,
     suggested: String,
     sample: String,
+    /// The retention-index window, as "1642 +- 20" (empty when none was given).
+    retention_index: String,
     candidates: usize,
     statuses: String,
     state_hash: String,
@@ -472,6 +498,13 @@ fn result_page(b: &Browser<ToView>, id: String, s: &Arc<Searched>) -> Result<Res
         technique: t.title().to_string(),
         suggested: s.suggested.clone(),
         sample: s.sample.clone(),
+        retention_index: r
+            .parameters
+            .constraints
+            .ri
+            .as_ref()
+            .map(|w| format!("{} \u{b1} {}", w.value, w.window))
+            .unwrap_or_default(),
         candidates: r.candidates,
         statuses: r
             .parameters
