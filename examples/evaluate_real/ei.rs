@@ -243,36 +243,41 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             prepare(Path::new(&entries[i].file), &recipe, points, &conditions).expect("prepares")
         })
         .collect();
-    let mut rows = Vec::new();
-    let mut deg_verdicts = None;
-    for (label, default, params) in variants() {
+    let tally = |tag: &str, lists: &dyn Fn(ScoreParams) -> Vec<HitList>| {
+        let mut rows = Vec::new();
+        let mut verdicts = None;
+        for (label, default, params) in variants() {
+            let lists = lists(params);
+            let mut row = Row::new(label, default);
+            let mut by_part: [Verdicts; 2] = Default::default();
+            for (&i, list) in distinct.iter().zip(&lists) {
+                let labels = list.hits.iter().map(|h| label_of[&h.spectrum_id]);
+                let r = rank(labels, &entries[i].label);
+                let part = parts[&entries[i].label];
+                row.add(part, r);
+                if default {
+                    let truth = entries[i].label.as_str();
+                    by_part[part as usize].add_hits(
+                        list.hits.clone(),
+                        &list.confidence,
+                        &format!("{tag}/{part:?}"),
+                        r == Some(1),
+                        |h| label_of[&h.spectrum_id] == truth,
+                    );
+                }
+            }
+            if default {
+                verdicts = Some(by_part);
+            }
+            rows.push(row);
+        }
+        (rows, verdicts)
+    };
+    let (mut rows, deg_verdicts) = tally("ei-degraded", &|params| {
         let mut req = request(Technique::MsEi, VERDICT_DEPTH);
         req.params = params;
-        let lists = search_many(lib, &prepared, &req).expect("search");
-        let mut row = Row::new(label, default);
-        let mut verdicts: [Verdicts; 2] = Default::default();
-        for (&i, list) in distinct.iter().zip(&lists) {
-            let labels = list.hits.iter().map(|h| label_of[&h.spectrum_id]);
-            let r = rank(labels, &entries[i].label);
-            let part = parts[&entries[i].label];
-            row.add(part, r);
-            if default {
-                let hits = list.hits.clone();
-                let truth = entries[i].label.as_str();
-                verdicts[part as usize].add_hits(
-                    hits,
-                    &list.confidence,
-                    &format!("ei-degraded/{part:?}"),
-                    r == Some(1),
-                    |h| label_of[&h.spectrum_id] == truth,
-                );
-            }
-        }
-        if default {
-            deg_verdicts = Some(verdicts);
-        }
-        rows.push(row);
-    }
+        search_many(lib, &prepared, &req).expect("search")
+    });
     let mut row = Row::new(BASELINE, false);
     for (&i, points) in distinct.iter().zip(&degraded) {
         let v = ei_vector(points);
@@ -310,40 +315,22 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
                 + rng.range(-RI_DRIFT, RI_DRIFT)
         })
         .collect();
-    let mut rows = Vec::new();
-    let mut ri_verdicts = None;
-    for (label, default, params) in variants() {
-        let mut row = Row::new(label, default);
-        let mut verdicts: [Verdicts; 2] = Default::default();
-        for ((&i, unknown), &ri) in distinct.iter().zip(&prepared).zip(&query_ri) {
-            let mut req = request(Technique::MsEi, VERDICT_DEPTH);
-            req.params = params.clone();
-            req.constraints.ri = Some(RiWindow {
-                value: ri,
-                window: RI_WINDOW,
-                phase: None,
-            });
-            let list = search(lib, unknown, &req).expect("search");
-            let labels = list.hits.iter().map(|h| label_of[&h.spectrum_id]);
-            let r = rank(labels, &entries[i].label);
-            let part = parts[&entries[i].label];
-            row.add(part, r);
-            if default {
-                let truth = entries[i].label.as_str();
-                verdicts[part as usize].add_hits(
-                    list.hits.clone(),
-                    &list.confidence,
-                    &format!("ei-degraded-ri/{part:?}"),
-                    r == Some(1),
-                    |h| label_of[&h.spectrum_id] == truth,
-                );
-            }
-        }
-        if default {
-            ri_verdicts = Some(verdicts);
-        }
-        rows.push(row);
-    }
+    let (mut rows, ri_verdicts) = tally("ei-degraded-ri", &|params| {
+        prepared
+            .iter()
+            .zip(&query_ri)
+            .map(|(unknown, &ri)| {
+                let mut req = request(Technique::MsEi, VERDICT_DEPTH);
+                req.params = params.clone();
+                req.constraints.ri = Some(RiWindow {
+                    value: ri,
+                    window: RI_WINDOW,
+                    phase: None,
+                });
+                search(lib, unknown, &req).expect("search")
+            })
+            .collect()
+    });
     let mut row = Row::new(BASELINE, false);
     for ((&i, points), &ri) in distinct.iter().zip(&degraded).zip(&query_ri) {
         let v = ei_vector(points);
