@@ -361,6 +361,10 @@ fn the_identify_page_gives_the_command_lines_fused_list_and_the_accounts_page_is
             ("top", None, text("4")),
             ("formula", None, text("")),
             ("elements", None, text("")),
+            // As a browser sends the retention-index inputs left alone: no index, the
+            // window's default.
+            ("ri", None, text("")),
+            ("ri_window", None, text("20")),
         ],
     );
     assert_eq!(shown.status, 200, "{}", shown.html);
