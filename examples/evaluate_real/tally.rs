@@ -283,11 +283,31 @@ impl Table {
         }
         println!();
         if let Some(v) = &self.verdicts {
+            use whorl::score::ScoreParams;
+            use whorl::search::{Evidence, confidence_for};
+            use whorl::technique::Technique;
+            let technique = if self.title.starts_with("EI-MS") {
+                Technique::MsEi
+            } else {
+                Technique::Raman
+            };
+            let with_ri = self.title.contains("retention index");
+            let c = confidence_for(technique, &ScoreParams::default_for(technique), with_ri);
+            let basis = match c.evidence {
+                Evidence::Score => "on the best score",
+                Evidence::Discriminant => "on the discriminant of Lam et al. 2007",
+            };
+            let derived = if c.retention_index {
+                "the one for searches given a retention index, derived on this protocol's tuning part"
+            } else {
+                "derived on the real tuning parts"
+            };
             println!(
-                "Verdicts of the default scoring (`THRESHOLDS`: the weak threshold, on the discriminant of Lam et al. 2007, derived on the real tuning parts, \
-                 last section; the close margin and strong score on generated spectra, `docs/evaluation.md`). Target: \
+                "Verdicts of the default scoring (`THRESHOLDS`: the weak threshold {:.2} {basis}, {derived}, last \
+                 section; the close margin and strong score on generated spectra, `docs/evaluation.md`). Target: \
                  with the true identity withdrawn, at least 90 % *no acceptable match*; of the right first hits, at \
-                 most 5 % called *no acceptable match*."
+                 most 5 % called *no acceptable match*.",
+                c.weak_score
             );
             println!();
             println!("| | tuning | reported |");
