@@ -152,13 +152,8 @@ def write_commands(whorl, lib, env, rng, kills, data):
                 shutil.rmtree(os.path.join(lib, "cache"), ignore_errors=True)
             before = counts()
             t = time.time()
-            p = subprocess.Popen([whorl, "--library", lib, *make(runs)], env=env,
-                                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-            delay = rng.uniform(0.005, max_delay)
-            time.sleep(delay)
-            if p.poll() is None:
-                os.kill(p.pid, signal.SIGKILL)
-                p.wait()
+            killed, _ = kill_after([whorl, "--library", lib, *make(runs)], env, rng.uniform(0.005, max_delay))
+            if killed:
                 kills += 1
             else:
                 # Finished first: aim earlier next time.
@@ -181,6 +176,18 @@ def write_commands(whorl, lib, env, rng, kills, data):
 KILLS = [3]
 
 
+def kill_after(cmd, env, delay):
+    """Starts `cmd`, waits `delay` seconds and SIGKILLs it if it is still running: (whether it
+    was killed, its exit code if it finished first)."""
+    p = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    time.sleep(delay)
+    if p.poll() is None:
+        os.kill(p.pid, signal.SIGKILL)
+        p.wait()
+        return True, None
+    return False, p.returncode
+
+
 def kill_import(whorl, lib, manifest, db, env, rng, args, wanted, files):
     """SIGKILLs `whorl import` of `manifest` into `lib` at random moments until `wanted` kills
     landed or the import completed, checking the library after each; then completes the
@@ -194,17 +201,13 @@ def kill_import(whorl, lib, manifest, db, env, rng, args, wanted, files):
         runs += 1
         if runs > wanted * 5:
             sys.exit(f"FAIL: only {kills} kills landed in {runs} runs; use more --files")
-        p = subprocess.Popen([whorl, "--library", lib, "import", manifest], env=env,
-                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         delay = rng.uniform(0.02, max_delay)
-        time.sleep(delay)
-        if p.poll() is None:
-            os.kill(p.pid, signal.SIGKILL)
-            p.wait()
+        killed, code = kill_after([whorl, "--library", lib, "import", manifest], env, delay)
+        if killed:
             kills += 1
             landed = "killed"
         else:
-            landed = f"finished before the kill (exit {p.returncode})"
+            landed = f"finished before the kill (exit {code})"
         check = subprocess.run([whorl, "--library", lib, "check", "--json"], env=env, capture_output=True, text=True)
         report = json.loads(check.stdout) if check.stdout else {"findings": ["no report"]}
         spectra, problems = whole_or_absent(db)
