@@ -41,11 +41,11 @@ fn asserted() -> String {
 
 /// The identity of an event whose actor is a name given on the command line.
 pub const ASSERTED: &str = "asserted";
+/// The identity of an event whose actor signed in (session or token).
+pub const SIGNED_IN: &str = "signed-in";
 
 /// The payload key under which every event records the generation its transaction leaves.
 pub const GENERATION: &str = "generation";
-/// The identity of an event whose actor signed in (session or token).
-pub const SIGNED_IN: &str = "signed-in";
 
 /// The hash of one event: SHA-256 over a JSON array of its fields, which makes the encoding
 /// unambiguous whatever the fields contain. Asserted events hash as they always have; a

@@ -80,8 +80,8 @@ impl Library {
     /// from (spectra, their revisions and metadata, prepared forms, recipes, the content sum):
     /// the text index and every vector cache record the generation they reflect and are
     /// rebuilt when it moves. Every event records the generation its transaction leaves, so
-    /// `check` finds a counter set to another number outside whorl. A write that touches none of that goes through
-    /// [`Library::write_trail`] instead.
+    /// `check` finds a counter set to another number outside whorl. A write that touches none
+    /// of that goes through [`Library::write_trail`] instead.
     pub(super) fn write<T>(
         &mut self,
         f: impl FnOnce(&Connection) -> Result<(T, Vec<i64>)>,
