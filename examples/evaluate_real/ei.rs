@@ -6,11 +6,14 @@ use std::path::Path;
 
 use whorl::prepare::{Conditions, Prepared, prepare};
 use whorl::score::{Measure, ScoreParams};
-use whorl::search::{Hit, HitList, RiWindow, search, search_many};
+use whorl::search::{
+    Hit, HitList, RiWindow, TWIN_SIMILARITY, TWIN_SWAP_RATE, reference_similarity, search,
+    search_many,
+};
 use whorl::technique::Technique;
 
 use crate::baseline::{ei_cosine, ei_vector, ranked};
-use crate::data::{Entry, entries, import, request, split};
+use crate::data::{Entry, Part, entries, import, request, split};
 use crate::rng::Rng;
 use crate::tally::{Row, Table, Verdicts, rank};
 
@@ -181,6 +184,9 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
                     &format!("ei-loo/{part:?}"),
                     r == Some(1),
                     |h| label_of[&h.spectrum_id] == truth,
+                    // The query's own spectrum led its list and was removed: the list's
+                    // warnings are about that spectrum, not about what is left.
+                    None,
                 );
             }
         }
@@ -216,6 +222,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         source: SOURCE,
         rows,
         verdicts: loo_verdicts,
+        extra: None,
     };
 
     // Degraded: every stored spectrum, degraded, against the full library.
@@ -243,9 +250,10 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             prepare(Path::new(&entries[i].file), &recipe, points, &conditions).expect("prepares")
         })
         .collect();
-    let tally = |tag: &str, lists: &dyn Fn(ScoreParams) -> Vec<HitList>| {
+    let tally = |tag: &str, twins: bool, lists: &dyn Fn(ScoreParams) -> Vec<HitList>| {
         let mut rows = Vec::new();
         let mut verdicts = None;
+        let mut right_first = Vec::new();
         for (label, default, params) in variants() {
             let lists = lists(params);
             let mut row = Row::new(label, default);
@@ -263,7 +271,9 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
                         &format!("{tag}/{part:?}"),
                         r == Some(1),
                         |h| label_of[&h.spectrum_id] == truth,
+                        twins.then_some(list.warnings.as_slice()),
                     );
+                    right_first.push(r == Some(1));
                 }
             }
             if default {
@@ -271,9 +281,9 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
             }
             rows.push(row);
         }
-        (rows, verdicts)
+        (rows, verdicts, right_first)
     };
-    let (mut rows, deg_verdicts) = tally("ei-degraded", &|params| {
+    let (mut rows, deg_verdicts, deg_right) = tally("ei-degraded", true, &|params| {
         let mut req = request(Technique::MsEi, VERDICT_DEPTH);
         req.params = params;
         search_many(lib, &prepared, &req).expect("search")
@@ -301,6 +311,13 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         source: SOURCE,
         rows,
         verdicts: deg_verdicts,
+        extra: Some(twins_section(
+            &distinct,
+            &entries,
+            &imported.prepared,
+            &parts,
+            &deg_right,
+        )),
     };
 
     // Degraded, searched with the query's retention index: the same degraded queries, each
@@ -315,7 +332,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
                 + rng.range(-RI_DRIFT, RI_DRIFT)
         })
         .collect();
-    let (mut rows, ri_verdicts) = tally("ei-degraded-ri", &|params| {
+    let (mut rows, ri_verdicts, _) = tally("ei-degraded-ri", false, &|params| {
         prepared
             .iter()
             .zip(&query_ri)
@@ -359,6 +376,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         source: SOURCE,
         rows,
         verdicts: ri_verdicts,
+        extra: None,
     };
     vec![loo, deg, with_ri]
 }
@@ -366,3 +384,112 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
 /// Hits asked for per query: enough that withdrawing every spectrum of the true InChIKey
 /// still leaves the list's first hits.
 const VERDICT_DEPTH: usize = 40;
+
+/// The similarities scanned for [`TWIN_SIMILARITY`]: 0.80, 0.81, ..., 0.99.
+fn twin_steps() -> impl Iterator<Item = f64> {
+    (80..100).map(|k| f64::from(k) / 100.0)
+}
+
+/// "Reference spectra too alike": for each degraded query, the highest entropy similarity
+/// between its own original (the reference it should find) and a spectrum of another
+/// InChIKey, reference against reference; per band of that similarity, how often the default
+/// put another compound first. [`TWIN_SIMILARITY`] is the lowest similarity, in steps of
+/// 0.01, at and above which at least [`TWIN_SWAP_RATE`] of the tuning searches did.
+fn twins_section(
+    distinct: &[usize],
+    entries: &[Entry],
+    prepared: &[Prepared],
+    parts: &BTreeMap<String, Part>,
+    right_first: &[bool],
+) -> String {
+    use std::fmt::Write;
+    let nearest: Vec<f64> = distinct
+        .iter()
+        .map(|&i| {
+            distinct
+                .iter()
+                .filter(|&&k| entries[k].label != entries[i].label)
+                .map(|&k| reference_similarity(&prepared[i], &prepared[k]))
+                .fold(0.0, f64::max)
+        })
+        .collect();
+    let count = |part: Part, t: f64| -> (usize, usize) {
+        let mut n = 0;
+        let mut wrong = 0;
+        for ((&i, &s), &right) in distinct.iter().zip(&nearest).zip(right_first) {
+            if parts[&entries[i].label] == part && s >= t {
+                n += 1;
+                wrong += usize::from(!right);
+            }
+        }
+        (n, wrong)
+    };
+    let derived = twin_steps().find(|&t| {
+        let (n, wrong) = count(Part::Tuning, t);
+        n > 0 && wrong as f64 >= TWIN_SWAP_RATE * n as f64
+    });
+    let mut out = String::new();
+    let _ = writeln!(out, "### Reference spectra too alike");
+    let _ = writeln!(out);
+    let _ = writeln!(
+        out,
+        "Most wrong first hits above are isomers or close relatives whose library spectra agree almost as \
+         well as two runs of one standard. For each degraded query, the highest entropy similarity (Li et al. \
+         2021) between its own original and a spectrum of another InChIKey, reference against reference; per \
+         similarity, how many queries reach it and how many of them the default put another compound first. An \
+         EI search without a retention index warns (`similar-references`) when the first hit's reference and \
+         another compound's among the hits reach `TWIN_SIMILARITY` (`src/search/twins.rs`): the lowest \
+         similarity, in steps of 0.01 from 0.80, at and above which at least {:.0} % of the tuning searches put \
+         another compound first (bold). The reported part is shown for information; it played no part.",
+        100.0 * TWIN_SWAP_RATE
+    );
+    let _ = writeln!(out);
+    let _ = writeln!(
+        out,
+        "| similarity at least | tuning: queries | tuning: another compound first | reported: queries | reported: another compound first |"
+    );
+    let _ = writeln!(out, "|---|---|---|---|---|");
+    for t in twin_steps() {
+        let (tn, tw) = count(Part::Tuning, t);
+        let (rn, rw) = count(Part::Reported, t);
+        let share = |w: usize, n: usize| {
+            if n == 0 {
+                "-".to_string()
+            } else {
+                format!("{w} ({:.2})", w as f64 / n as f64)
+            }
+        };
+        let label = if Some(t) == derived {
+            format!("**{t:.2}**")
+        } else {
+            format!("{t:.2}")
+        };
+        let _ = writeln!(
+            out,
+            "| {label} | {tn} | {} | {rn} | {} |",
+            share(tw, tn),
+            share(rw, rn)
+        );
+    }
+    let _ = writeln!(out);
+    match derived {
+        Some(t) => {
+            let _ = writeln!(
+                out,
+                "Derived: {t:.2}; `TWIN_SIMILARITY` holds {TWIN_SIMILARITY:.2}{}.",
+                if (t - TWIN_SIMILARITY).abs() < 1e-9 {
+                    ""
+                } else {
+                    " -- they differ: set it to the derived value"
+                }
+            );
+        }
+        None => {
+            let _ = writeln!(
+                out,
+                "Derived: none (no similarity reaches the rate on tuning); `TWIN_SIMILARITY` holds {TWIN_SIMILARITY:.2}."
+            );
+        }
+    }
+    out
+}

@@ -131,6 +131,7 @@ fn table(
                         &format!("{}/{part:?}", queries.tag),
                         r == Some(1),
                         |h| entry(h).label == entries[k].label,
+                        None,
                     );
                 }
             }
@@ -202,6 +203,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         source: SOURCE,
         rows: measured_rows,
         verdicts: measured_verdicts,
+        extra: None,
     };
 
     let degraded: Vec<Vec<(f64, f64)>> = entries
@@ -244,6 +246,7 @@ pub fn protocols(dir: &Path) -> Vec<Table> {
         source: SOURCE,
         rows: degraded_rows,
         verdicts: degraded_verdicts,
+        extra: None,
     };
     vec![across, deg]
 }

@@ -74,11 +74,28 @@ pub struct Verdicts {
     /// The best score alone of each list with the true identity withdrawn (0 when nothing is
     /// left).
     pub absent_score: Vec<f64>,
+    /// Lists whose first hit is wrong (the true identity among the hits or not).
+    pub wrong: usize,
+    /// Of those, the lists called ambiguous with the true identity among the candidates
+    /// named: the analyst is told that the first hit is not the only possible answer.
+    pub wrong_named: usize,
+    /// Of those, the lists called no acceptable match.
+    pub wrong_no_match: usize,
+    /// Whether the protocol's lists carry the similar-references warning (EI without a
+    /// retention index, the query's own original in the library).
+    pub twins_checked: bool,
+    /// Lists whose first hit is right and that warn of similar references.
+    pub right_twin_warned: usize,
+    /// Lists whose first hit is wrong and whose similar-references warning names the right
+    /// identity.
+    pub wrong_twin_named: usize,
+    /// Lists whose first hit is wrong and that say so in one of these ways: ambiguous with
+    /// the right identity named, no acceptable match, or a similar-references warning naming
+    /// the right identity.
+    pub wrong_flagged: usize,
 }
 
 impl Verdicts {
-    /// Counts one query: whether its first hit was right, the verdict on its list, and the
-    /// verdict with the true identity withdrawn.
     /// Counts one query from the hits the protocol sees (best first), whether its first hit
     /// was right, and which hits are of the true identity.
     pub fn add_hits(
@@ -88,9 +105,42 @@ impl Verdicts {
         tag: &str,
         right_first: bool,
         is_truth: impl Fn(&whorl::search::Hit) -> bool,
+        warnings: Option<&[whorl::search::Warning]>,
     ) {
-        use whorl::search::verdict;
+        use whorl::search::{WarningCode, verdict};
         let on_list = verdict(&hits, confidence);
+        let twin =
+            warnings.and_then(|ws| ws.iter().find(|w| w.code == WarningCode::SimilarReferences));
+        self.twins_checked |= warnings.is_some();
+        if right_first {
+            self.right_twin_warned += usize::from(twin.is_some());
+        } else {
+            self.wrong += 1;
+            let truth: Vec<&str> = hits
+                .iter()
+                .filter(|h| is_truth(h))
+                .map(|h| h.name.as_str())
+                .collect();
+            let named = match &on_list {
+                whorl::search::Verdict::Ambiguous { candidates, .. } => {
+                    candidates.iter().any(|c| truth.contains(&c.as_str()))
+                }
+                _ => false,
+            };
+            let no_match = matches!(on_list, whorl::search::Verdict::NoAcceptableMatch { .. });
+            // The warning names each compound as "name (similarity)".
+            let twin_named = twin.is_some_and(|w| {
+                truth.iter().any(|name| {
+                    ["0.", "1."]
+                        .iter()
+                        .any(|d| w.message.contains(&format!("{name} ({d}")))
+                })
+            });
+            self.wrong_named += usize::from(named);
+            self.wrong_no_match += usize::from(no_match);
+            self.wrong_twin_named += usize::from(twin_named);
+            self.wrong_flagged += usize::from(named || no_match || twin_named);
+        }
         let absent: Vec<_> = hits.iter().filter(|h| !is_truth(h)).cloned().collect();
         let without = verdict(&absent, confidence);
         dump(tag, &hits, &absent, right_first);
@@ -244,6 +294,8 @@ pub struct Table {
     pub rows: Vec<Row>,
     /// The default scoring's verdicts per part (tuning, reported), when measured.
     pub verdicts: Option<[Verdicts; 2]>,
+    /// Markdown printed after the tables (a derivation that belongs to this protocol).
+    pub extra: Option<String>,
 }
 
 impl Table {
@@ -306,8 +358,16 @@ impl Table {
                 "Verdicts of the default scoring (`THRESHOLDS`: the weak threshold {:.2} {basis}, {derived}, last \
                  section; the close margin and strong score on generated spectra, `docs/evaluation.md`). Target: \
                  with the true identity withdrawn, at least 90 % *no acceptable match*; of the right first hits, at \
-                 most 5 % called *no acceptable match*.",
-                c.weak_score
+                 most 5 % called *no acceptable match*. The rows on wrong first hits (no target) show how \
+                 often a wrong answer reaches the analyst flagged: called ambiguous with the right identity among \
+                 the candidates named, or called no acceptable match{}.",
+                c.weak_score,
+                if v[0].twins_checked {
+                    ", or with a `similar-references` warning naming the right identity (next section); the \
+                     last row, what that warning costs on right first hits"
+                } else {
+                    ""
+                }
             );
             println!();
             println!("| | tuning | reported |");
@@ -317,6 +377,33 @@ impl Table {
                 Verdicts::share(v[0].correct_no_match, v[0].correct),
                 Verdicts::share(v[1].correct_no_match, v[1].correct)
             );
+            println!(
+                "| wrong first hits called ambiguous, the right identity named among the candidates | {} | {} |",
+                Verdicts::share(v[0].wrong_named, v[0].wrong),
+                Verdicts::share(v[1].wrong_named, v[1].wrong)
+            );
+            println!(
+                "| wrong first hits called no acceptable match | {} | {} |",
+                Verdicts::share(v[0].wrong_no_match, v[0].wrong),
+                Verdicts::share(v[1].wrong_no_match, v[1].wrong)
+            );
+            if v[0].twins_checked {
+                println!(
+                    "| wrong first hits warning of similar references, the right identity named | {} | {} |",
+                    Verdicts::share(v[0].wrong_twin_named, v[0].wrong),
+                    Verdicts::share(v[1].wrong_twin_named, v[1].wrong)
+                );
+                println!(
+                    "| wrong first hits flagged in one of these three ways | {} | {} |",
+                    Verdicts::share(v[0].wrong_flagged, v[0].wrong),
+                    Verdicts::share(v[1].wrong_flagged, v[1].wrong)
+                );
+                println!(
+                    "| right first hits warning of similar references | {} | {} |",
+                    Verdicts::share(v[0].right_twin_warned, v[0].correct),
+                    Verdicts::share(v[1].right_twin_warned, v[1].correct)
+                );
+            }
             for w in WORDS {
                 let k = |p: &Verdicts| p.absent_words.get(w).copied().unwrap_or(0);
                 println!(
@@ -326,6 +413,9 @@ impl Table {
                 );
             }
             println!();
+        }
+        if let Some(extra) = &self.extra {
+            println!("{extra}");
         }
     }
 }

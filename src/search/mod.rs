@@ -17,6 +17,7 @@ mod replay;
 mod report;
 mod retention;
 mod scan;
+mod twins;
 mod warning;
 
 pub use crate::config::{IdentityPolicy, Thresholds};
@@ -47,4 +48,5 @@ pub use report::{
 };
 pub use retention::{linear_retention_index, parse_alkanes, retention_index};
 pub use scan::{Trace, rank, rank_traced};
+pub use twins::{TWIN_SIMILARITY, TWIN_SWAP_RATE, reference_similarity, similar_references};
 pub use warning::{Warning, WarningCode};

@@ -8,6 +8,7 @@ use super::confidence::{Confidence, Verdict, confidence_for, list_warnings, verd
 use super::hit::{Excluded, Hit};
 use super::plan::{Plan, Request};
 use super::scan;
+use super::twins::{similar_references, twin_warning};
 use super::warning::{Warning, WarningCode};
 use crate::error::Result;
 use crate::library::{HitRecord, Library, Status};
@@ -306,7 +307,17 @@ fn finish(
     // A configured weak score above the derived strong one leaves no room for "probable".
     confidence.strong_score = confidence.strong_score.max(confidence.weak_score);
     let mut warnings = list_warnings(&hits, &confidence);
-    let verdict = Some(verdict(&hits, &confidence));
+    let verdict = verdict(&hits, &confidence);
+    // Without a retention index, an EI list whose first hit is accepted says so when another
+    // compound's reference is as alike as isomers are (`twins`).
+    if request.technique == Technique::MsEi
+        && request.constraints.ri.is_none()
+        && !matches!(verdict, Verdict::NoAcceptableMatch { .. })
+    {
+        let twins = similar_references(library, &hits, confidence.close_margin)?;
+        warnings.extend(twin_warning(&hits[0], &twins));
+    }
+    let verdict = Some(verdict);
     hits.truncate(request.top);
     if request.filter.is_some() && library.text_index_behind() {
         warnings.push(Warning::new(

@@ -14,6 +14,9 @@ pub enum WarningCode {
     WeakMatch,
     /// The first hit and the nearest hit of another compound are within the close margin.
     TooClose,
+    /// The best hit's reference spectrum and another compound's agree too closely for the
+    /// spectrum alone to tell them apart (EI-MS without a retention index).
+    SimilarReferences,
     /// The metadata index is behind the database, so a `--where` filter may miss spectra.
     TextIndexBehind,
     /// Pending (not yet reviewed) spectra of the technique were left out of the search.
@@ -36,6 +39,7 @@ impl WarningCode {
             WarningCode::NoCandidates => "no-candidates",
             WarningCode::WeakMatch => "weak-match",
             WarningCode::TooClose => "too-close",
+            WarningCode::SimilarReferences => "similar-references",
             WarningCode::TextIndexBehind => "text-index-behind",
             WarningCode::PendingNotSearched => "pending-not-searched",
             WarningCode::UnknownPreparation => "unknown-preparation",

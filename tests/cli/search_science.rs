@@ -3,7 +3,7 @@
 
 use serde_json::Value;
 
-use crate::util::{Lab, ir_csv, seed};
+use crate::util::{Lab, ir_csv, ms_csv, seed};
 
 fn seeded() -> Lab {
     let lab = Lab::new();
@@ -503,6 +503,110 @@ fn bad_constraints_are_refused_with_a_hint() {
         assert!(err.contains(part), "{args:?}: {err}");
         assert!(err.contains("hint:"), "{err}");
     }
+}
+
+/// The codes of a report's warnings.
+fn warning_codes(report: &Value) -> Vec<&str> {
+    report["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w["code"].as_str().unwrap())
+        .collect()
+}
+
+#[test]
+fn an_ei_hit_whose_reference_is_as_alike_as_an_isomer_is_flagged_without_a_retention_index() {
+    // Positional isomers and close relatives give EI spectra that differ little more than two
+    // runs of one standard, and GC-MS analysts tell them apart by retention index (common
+    // practice). Made-up ion lists: "isomer b" is "isomer a" with two ratios changed and one
+    // small ion added; "alkane d" shares no ion with either.
+    let a = [
+        (39, 80.0),
+        (51, 40.0),
+        (63, 50.0),
+        (65, 120.0),
+        (91, 1000.0),
+        (92, 600.0),
+    ];
+    let b = [
+        (39, 80.0),
+        (51, 40.0),
+        (63, 50.0),
+        (65, 200.0),
+        (91, 1000.0),
+        (92, 450.0),
+        (105, 60.0),
+    ];
+    let d = [
+        (29, 400.0),
+        (41, 600.0),
+        (43, 500.0),
+        (57, 1000.0),
+        (71, 150.0),
+        (85, 100.0),
+    ];
+    let lab = Lab::new();
+    let ids: Vec<i64> = [
+        ("a.csv", &a[..], "isomer a", "1000"),
+        ("b.csv", &b[..], "isomer b", "1010"),
+        ("d.csv", &d[..], "alkane d", "1005"),
+    ]
+    .iter()
+    .map(|(file, ions, name, ri)| {
+        lab.add(
+            file,
+            &ms_csv(ions),
+            "ms-ei",
+            name,
+            &["--set", &format!("ri={ri}")],
+        )
+    })
+    .collect();
+    lab.approve_all();
+    lab.write("u.csv", ms_csv(&a));
+    let u = lab.path("u.csv").display().to_string();
+    let plain = lab.json(&["search", &u, "-t", "ms-ei"]);
+    assert_eq!(names(&plain), ["isomer a", "isomer b", "alkane d"]);
+    // The unknown is isomer a's own spectrum, so the second score is the entropy similarity
+    // of the two references, well clear of the close margin yet above TWIN_SIMILARITY.
+    let second = plain["hits"][1]["score"].as_f64().unwrap();
+    assert!((0.94..0.99).contains(&second), "{second}");
+    assert!(
+        warning_codes(&plain).contains(&"similar-references"),
+        "{plain}"
+    );
+    assert!(!warning_codes(&plain).contains(&"too-close"), "{plain}");
+    let w = plain["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|w| w["code"] == "similar-references")
+        .unwrap()["message"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    assert!(w.contains(&format!("isomer b ({second:.3})")), "{w}");
+    assert!(!w.contains("alkane d"), "{w}");
+    // The text report shows it as every other warning.
+    let text = lab.ok(&["search", &u, "-t", "ms-ei"]);
+    assert!(text.contains("agree as closely as isomers"), "{text}");
+    // Given a retention index, the window does the telling apart: no such warning.
+    let with_ri = lab.json(&["search", &u, "-t", "ms-ei", "--ri", "1004"]);
+    assert_eq!(names(&with_ri), ["isomer a", "isomer b", "alkane d"]);
+    assert!(
+        !warning_codes(&with_ri).contains(&"similar-references"),
+        "{with_ri}"
+    );
+    // With isomer b withdrawn, nothing in the library is as alike: no warning.
+    let b_id = ids[1].to_string();
+    lab.ok(&["withdraw", &b_id, "--by", "r.second", "--reason", "test"]);
+    let alone = lab.json(&["search", &u, "-t", "ms-ei"]);
+    assert_eq!(names(&alone), ["isomer a", "alkane d"]);
+    assert!(
+        !warning_codes(&alone).contains(&"similar-references"),
+        "{alone}"
+    );
 }
 
 #[test]
