@@ -372,37 +372,34 @@ impl Table {
             println!();
             println!("| | tuning | reported |");
             println!("|---|---|---|");
-            println!(
-                "| right first hits called no acceptable match | {} | {} |",
-                Verdicts::share(v[0].correct_no_match, v[0].correct),
-                Verdicts::share(v[1].correct_no_match, v[1].correct)
+            let row = |label: &str, count: fn(&Verdicts) -> (usize, usize)| {
+                let [t, r] = [&v[0], &v[1]].map(|p| {
+                    let (k, n) = count(p);
+                    Verdicts::share(k, n)
+                });
+                println!("| {label} | {t} | {r} |");
+            };
+            row("right first hits called no acceptable match", |p| {
+                (p.correct_no_match, p.correct)
+            });
+            row(
+                "wrong first hits called ambiguous, the right identity named among the candidates",
+                |p| (p.wrong_named, p.wrong),
             );
-            println!(
-                "| wrong first hits called ambiguous, the right identity named among the candidates | {} | {} |",
-                Verdicts::share(v[0].wrong_named, v[0].wrong),
-                Verdicts::share(v[1].wrong_named, v[1].wrong)
-            );
-            println!(
-                "| wrong first hits called no acceptable match | {} | {} |",
-                Verdicts::share(v[0].wrong_no_match, v[0].wrong),
-                Verdicts::share(v[1].wrong_no_match, v[1].wrong)
-            );
+            row("wrong first hits called no acceptable match", |p| {
+                (p.wrong_no_match, p.wrong)
+            });
             if v[0].twins_checked {
-                println!(
-                    "| wrong first hits warning of similar references, the right identity named | {} | {} |",
-                    Verdicts::share(v[0].wrong_twin_named, v[0].wrong),
-                    Verdicts::share(v[1].wrong_twin_named, v[1].wrong)
+                row(
+                    "wrong first hits warning of similar references, the right identity named",
+                    |p| (p.wrong_twin_named, p.wrong),
                 );
-                println!(
-                    "| wrong first hits flagged in one of these three ways | {} | {} |",
-                    Verdicts::share(v[0].wrong_flagged, v[0].wrong),
-                    Verdicts::share(v[1].wrong_flagged, v[1].wrong)
-                );
-                println!(
-                    "| right first hits warning of similar references | {} | {} |",
-                    Verdicts::share(v[0].right_twin_warned, v[0].correct),
-                    Verdicts::share(v[1].right_twin_warned, v[1].correct)
-                );
+                row("wrong first hits flagged in one of these three ways", |p| {
+                    (p.wrong_flagged, p.wrong)
+                });
+                row("right first hits warning of similar references", |p| {
+                    (p.right_twin_warned, p.correct)
+                });
             }
             for w in WORDS {
                 let k = |p: &Verdicts| p.absent_words.get(w).copied().unwrap_or(0);
